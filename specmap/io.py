@@ -1,0 +1,114 @@
+"""Atomic writers for result files (the only place results touch the disk).
+
+Writes go to a temporary file in the target folder, are flushed and fsynced,
+then renamed over the target, so an interrupted run never leaves a torn file.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import os
+import tempfile
+from collections.abc import Iterator
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+
+def to_plain(obj: Any) -> Any:
+    """Convert numpy scalars/arrays and tuples to plain JSON types; inf/nan -> strings.
+
+    JSON has no infinity: ``inf`` is written as the string ``"inf"`` (``"-inf"``,
+    ``"nan"``), and :func:`from_plain_float` reads it back.
+    """
+    if isinstance(obj, dict):
+        return {str(k): to_plain(v) for k, v in obj.items()}
+    if isinstance(obj, (list, tuple)):
+        return [to_plain(v) for v in obj]
+    if isinstance(obj, np.ndarray):
+        return to_plain(obj.tolist())
+    if isinstance(obj, (np.bool_,)):
+        return bool(obj)
+    if isinstance(obj, (np.integer,)):
+        return int(obj)
+    if isinstance(obj, (float, np.floating)):
+        x = float(obj)
+        if math.isfinite(x):
+            return x
+        return "nan" if math.isnan(x) else ("inf" if x > 0 else "-inf")
+    if isinstance(obj, Path):
+        return str(obj)
+    return obj
+
+
+def from_plain_float(x: Any) -> float:
+    """Inverse of :func:`to_plain` for one number (accepts "inf", "-inf", "nan")."""
+    return float(x)
+
+
+def _atomic_write_bytes(path: Path, data: bytes) -> None:
+    path.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
+    try:
+        with os.fdopen(fd, "wb") as fh:
+            fh.write(data)
+            fh.flush()
+            os.fsync(fh.fileno())
+        os.replace(tmp, path)
+    except BaseException:
+        try:
+            os.unlink(tmp)
+        except FileNotFoundError:
+            pass
+        raise
+
+
+def write_json(path: str | Path, obj: Any) -> Path:
+    """Write JSON atomically (indent 2, plain floats, inf as "inf")."""
+    p = Path(path)
+    _atomic_write_bytes(p, (json.dumps(to_plain(obj), indent=2) + "\n").encode())
+    return p
+
+
+def write_text(path: str | Path, text: str) -> Path:
+    p = Path(path)
+    _atomic_write_bytes(p, text.encode())
+    return p
+
+
+def read_json(path: str | Path) -> Any:
+    return json.loads(Path(path).read_text())
+
+
+def append_jsonl(path: str | Path, record: dict[str, Any]) -> None:
+    """Append one JSON line, flushed and fsynced (a crash loses at most this line).
+
+    The line is written with a single ``write`` call on an ``O_APPEND`` file, so
+    concurrent appenders never interleave inside a line.
+    """
+    p = Path(path)
+    p.parent.mkdir(parents=True, exist_ok=True)
+    line = (json.dumps(to_plain(record), separators=(",", ":")) + "\n").encode()
+    fd = os.open(p, os.O_WRONLY | os.O_APPEND | os.O_CREAT, 0o644)
+    try:
+        os.write(fd, line)
+        os.fsync(fd)
+    finally:
+        os.close(fd)
+
+
+def read_jsonl(path: str | Path) -> Iterator[dict[str, Any]]:
+    """Yield complete JSON lines; a torn last line (no newline / bad JSON) is skipped."""
+    p = Path(path)
+    if not p.exists():
+        return
+    with p.open("rb") as fh:
+        for raw in fh:
+            if not raw.endswith(b"\n"):
+                break
+            try:
+                yield json.loads(raw)
+            except json.JSONDecodeError:
+                continue
