@@ -1,0 +1,5 @@
+"""``python -m specmap`` runs the command line."""
+
+from specmap.cli import main
+
+main()

@@ -1,0 +1,153 @@
+"""Command line: ``specmap grid|map|distance|perturb|report|demo``.
+
+The CLI only loads, calls and writes. User mistakes become one line on
+standard error and exit status 2; Ctrl-C exits 130 and keeps finished files.
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+from pathlib import Path
+
+from specmap import __version__
+from specmap.errors import SpecmapInputError, StudyError
+
+EXIT_USER = 2
+EXIT_INTERRUPT = 130
+
+
+def _degrees(text: str) -> tuple[int, ...]:
+    try:
+        vals = tuple(sorted({int(x) for x in text.split(",") if x.strip()}))
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a list like 0,1,2") from None
+    if not vals or any(v not in (0, 1, 2) for v in vals):
+        raise argparse.ArgumentTypeError("degrees must be among 0,1,2")
+    return vals
+
+
+def _positive(text: str) -> int:
+    try:
+        v = int(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a whole number") from None
+    if v < 1:
+        raise argparse.ArgumentTypeError("must be >= 1")
+    return v
+
+
+def build_parser() -> argparse.ArgumentParser:
+    p = argparse.ArgumentParser(
+        prog="specmap",
+        description="Map the special set, the matching distance and their perturbations "
+        "for two R^2-valued filtering functions.",
+    )
+    p.add_argument("--version", action="version", version=f"specmap {__version__}")
+    p.add_argument("--quiet", action="store_true", help="no progress bars")
+    sub = p.add_subparsers(dest="verb", required=True, metavar="VERB")
+
+    def study_cmd(name: str, help_: str) -> argparse.ArgumentParser:
+        sp = sub.add_parser(name, help=help_, description=help_)
+        sp.add_argument("study", help="study file (.toml)")
+        sp.add_argument("--out", help="result folder (default results/<study name>)")
+        return sp
+
+    study_cmd("grid", "compute the extended Pareto grids of f and g")
+    sp = study_cmd("map", "map the special set in the parameter strip")
+    sp.add_argument("--pairs", choices=["all", "roles"], help="which ties to map (default: study's)")
+    sp.add_argument("--resolution", type=_positive, help="sample nodes per side of the window")
+    sp.add_argument("--method", choices=["sweep", "naive"], help="detection method (naive = reference)")
+    sp = study_cmd("distance", "compute the matching distance and where it is reached")
+    sp.add_argument("--method", choices=["reduced", "dense", "both"])
+    sp.add_argument("--degrees", type=_degrees, help="homology degrees, e.g. 0,1,2")
+    sp.add_argument("--jobs", type=_positive, default=1, help="parallel slice workers")
+    sp = study_cmd("perturb", "run a perturbation study of the special set")
+    sp.add_argument("--runs", type=_positive)
+    sp.add_argument("--jobs", type=_positive, default=1)
+    sp.add_argument("--cluster", help="Dask scheduler address, e.g. tcp://127.0.0.1:8786")
+    sp = sub.add_parser("report", help="build the PDF report of a result folder")
+    sp.add_argument("dir", help="result folder")
+    sp.add_argument("--out", help="PDF path (default DIR/report.pdf)")
+    sp = sub.add_parser("demo", help="run the shipped demo study end to end")
+    sp.add_argument("--out", help="result folder (default results/demo)")
+    sp.add_argument("--pdf", default="reports/demo.pdf", help="report path (default reports/demo.pdf)")
+    sp.add_argument("--jobs", type=_positive, default=2)
+    sp.add_argument("--quick", action="store_true", help="smaller settings (for CI)")
+    return p
+
+
+def demo_study_path() -> Path:
+    """The shipped demo study (studies/demo.toml next to the package, or in the working folder)."""
+    for cand in (Path(__file__).resolve().parents[1] / "studies" / "demo.toml",
+                 Path.cwd() / "studies" / "demo.toml"):
+        if cand.is_file():
+            return cand
+    raise StudyError("demo study not found", file="studies/demo.toml", field="(file)",
+                     fix="run from a clone of the specmap repository")
+
+
+def run(argv: list[str] | None = None) -> int:
+    args = build_parser().parse_args(argv)
+    from specmap.pipeline import StudyRun
+    from specmap.study import load_study
+
+    show = not args.quiet
+    if args.verb == "report":
+        from specmap.report.pdf import build_report
+
+        pdf = build_report(args.dir, args.out)
+        print(f"report: {pdf}")
+        return 0
+    if args.verb == "demo":
+        from specmap.demo import run_demo
+
+        pdf = run_demo(demo_study_path(), out=args.out, pdf=args.pdf, jobs=args.jobs, quick=args.quick,
+                       show_progress=show)
+        print(f"demo report: {pdf}")
+        return 0
+    study = load_study(args.study)
+    sr = StudyRun(study, args.out, show_progress=show)
+    if args.verb == "grid":
+        counts = sr.write_grids()
+        sr.record()
+        print(f"grids: f {counts['f']} contours, g {counts['g']} contours -> {sr.out}")
+    elif args.verb == "map":
+        js = sr.write_map(pairs=args.pairs, resolution=args.resolution, method=args.method)
+        sr.write_grids()
+        sr.record()
+        c = js["counts"]
+        print(f"special set: {c['curve']} curves, {c['patch']} patches, {c['point']} points; "
+              f"area fraction {js['area_fraction']:.4g} -> {sr.out / 'special.json'}")
+    elif args.verb == "distance":
+        if study.grid_only:
+            raise StudyError("this study gives a grid file, which has no mesh, so no slice diagrams",
+                             file=str(study.path), field="[f]/[g]",
+                             fix="give a surface or mesh for both f and g to compute distances")
+        js = sr.write_distance(method=args.method, degrees=args.degrees, jobs=args.jobs)
+        sr.record()
+        print(f"matching distance: {js['value']} at (a, b) = {js['at']}, reached on {js['reached_on']} "
+              f"-> {sr.out / 'distance.json'}")
+        if js.get("audit", {}).get("theorem_gap"):
+            print("WARNING: the dense sweep exceeds the reduced search (see distance.json audit)",
+                  file=sys.stderr)
+    elif args.verb == "perturb":
+        if study.perturb is None:
+            raise StudyError("no [perturb] table", file=str(study.path), field="[perturb]",
+                             fix="add [perturb] with size = ..., runs = ...")
+        summary = sr.write_perturb(runs=args.runs, jobs=args.jobs, cluster=args.cluster)
+        sr.record()
+        print(summary.get("verdict", ""))
+    return 0
+
+
+def main(argv: list[str] | None = None) -> None:
+    try:
+        code = run(argv)
+    except SpecmapInputError as exc:
+        print(f"specmap: error: {exc.one_line()}", file=sys.stderr)
+        code = EXIT_USER
+    except KeyboardInterrupt:
+        print("specmap: interrupted; finished results are kept", file=sys.stderr)
+        code = EXIT_INTERRUPT
+    sys.exit(code)

@@ -1,0 +1,157 @@
+"""The stages of a study, run in order and written to a result folder.
+
+    study -> shapes -> grids -> special set -> matching distance -> perturbation -> report
+
+:class:`StudyRun` computes each stage lazily (at most once per process) and
+writes its result files atomically into ``out`` (default ``results/<name>/``).
+This is the I/O edge: the computations it calls are pure functions.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import shlex
+import sys
+from functools import cached_property
+from pathlib import Path
+from typing import Any
+
+from specmap import __version__
+from specmap.io import read_json, write_json
+from specmap.progress import Progress
+from specmap.strip import Window, default_window
+from specmap.study import Study
+
+
+def default_out(study: Study) -> Path:
+    return Path("results") / study.name
+
+
+class StudyRun:
+    """Lazy, write-as-you-go execution of one study.
+
+    Parameters
+    ----------
+    study : Study
+    out : path, optional
+        Result folder; default ``results/<study name>``.
+    show_progress : bool
+        Draw progress bars on standard error.
+    """
+
+    def __init__(self, study: Study, out: str | Path | None = None, *, show_progress: bool = True) -> None:
+        self.study = study
+        self.out = Path(out) if out is not None else default_out(study)
+        self.show_progress = show_progress
+
+    def progress(self, label: str) -> Progress:
+        return Progress(label, enabled=self.show_progress)
+
+    # -- stages -----------------------------------------------------------
+    @cached_property
+    def shapes(self):
+        from specmap.shapes.build import build_shape
+
+        return build_shape(self.study.f, self.study), build_shape(self.study.g, self.study)
+
+    @cached_property
+    def grids(self):
+        from specmap.grids import pareto_grid
+
+        sf, sg = self.shapes
+        return pareto_grid(sf), pareto_grid(sg)
+
+    @cached_property
+    def window(self) -> Window:
+        if self.study.window is not None:
+            return self.study.window
+        sf, sg = self.shapes
+        gf, gg = self.grids
+        bf = sf.value_bounds() if sf.has_mesh else gf.bbox()
+        bg = sg.value_bounds() if sg.has_mesh else gg.bbox()
+        return default_window(bf, bg)
+
+    def atlas(self, *, pairs: str | None = None, resolution: int | None = None, method: str | None = None):
+        key = (pairs or self.study.map.pairs, resolution or self.study.map.resolution,
+               method or self.study.map.method)
+        cache = self.__dict__.setdefault("_atlases", {})
+        if key not in cache:
+            from specmap.special import special_set
+
+            gf, gg = self.grids
+            cache[key] = special_set(gf, gg, self.window, pairs=key[0], resolution=key[1], method=key[2],
+                                     progress=self.progress("map"))
+        return cache[key]
+
+    # -- writers ----------------------------------------------------------
+    def record(self, command: str | None = None) -> None:
+        """Write or update ``study.json`` (what ran, when, on what)."""
+        path = self.out / "study.json"
+        old = read_json(path) if path.is_file() else {}
+        commands = list(old.get("commands", []))
+        line = command or " ".join(shlex.quote(a) for a in ["specmap", *sys.argv[1:]])
+        commands.append({"command": line, "date": _dt.datetime.now().isoformat(timespec="seconds")})
+        s = self.study
+        write_json(path, {
+            "name": s.name,
+            "study_file": str(s.path),
+            "seed": s.seed,
+            "f": s.f.to_json(),
+            "g": s.g.to_json(),
+            "constants": s.constants,
+            "window": self.window.to_json(),
+            "specmap_version": __version__,
+            "commands": commands[-50:],
+        })
+
+    def write_grids(self) -> dict[str, Any]:
+        from specmap.report.figures import grids_figure, save_png
+
+        gf, gg = self.grids
+        jf, jg = gf.to_json(), gg.to_json()
+        write_json(self.out / "grid_f.json", jf)
+        write_json(self.out / "grid_g.json", jg)
+        save_png(grids_figure(jf, jg), self.out / "figures" / "grids.png")
+        return {"f": len(gf), "g": len(gg)}
+
+    def write_map(self, **kw: Any) -> dict[str, Any]:
+        from specmap.report.figures import save_png, special_figure
+
+        atlas = self.atlas(**kw)
+        js, geo = atlas.to_json(), atlas.to_geojson()
+        write_json(self.out / "special.json", js)
+        write_json(self.out / "special.geojson", geo)
+        save_png(special_figure(js, geo), self.out / "figures" / "special.png")
+        return js
+
+    def write_distance(self, *, method: str | None = None, degrees: tuple[int, ...] | None = None,
+                       jobs: int = 1) -> dict[str, Any]:
+        from specmap.distance import matching_distance
+        from specmap.report.figures import landscape_figure, save_png
+
+        method = method or self.study.distance.method
+        sf, sg = self.shapes
+        atlas = self.atlas() if method in ("both", "reduced") else None
+        result = matching_distance(
+            sf, sg, method=method, degrees=degrees or self.study.distance.degrees, window=self.window,
+            atlas=atlas, grids=self.grids, jobs=jobs,
+            dense_resolution=self.study.distance.dense_resolution, progress=self.progress("distance"),
+        )
+        js = result.to_json()
+        write_json(self.out / "distance.json", js)
+        geo = atlas.to_geojson() if atlas is not None else None
+        if js.get("landscape"):
+            save_png(landscape_figure(js, geo), self.out / "figures" / "landscape.png")
+        return js
+
+    def write_perturb(self, *, runs: int | None = None, jobs: int = 1, cluster: str | None = None) -> dict:
+        from specmap.io import read_jsonl
+        from specmap.perturb import perturbation_study
+        from specmap.report.figures import perturb_figure, save_png
+
+        base = {"shapes": self.shapes, "grids": self.grids, "window": self.window, "atlas": self.atlas()}
+        summary = perturbation_study(self.study, out_dir=self.out, runs=runs, jobs=jobs, cluster=cluster,
+                                     progress=self.progress("perturb"), base=base)
+        rows = list(read_jsonl(self.out / "perturb" / "runs.jsonl"))
+        save_png(perturb_figure(summary, rows), self.out / "figures" / "perturb.png")
+        return summary

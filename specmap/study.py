@@ -1,0 +1,369 @@
+"""Study files (TOML) -> a validated :class:`Study`.
+
+A study names two filtered shapes f and g and the settings of each stage.
+Every mistake raises :class:`~specmap.errors.StudyError` naming the file, the
+field and the fix. Study files are data: expressions are compiled by
+:mod:`specmap.expr` (an AST whitelist), never evaluated as code.
+
+Format (all tables but ``[study]``, ``[f]``, ``[g]`` optional)::
+
+    [study]
+    name = "demo"            # results go to results/<name>/
+    seed = 7
+
+    [constants]              # names usable in expressions
+    k = 0.3
+
+    [f]                      # exactly one of: surface, mesh, grid
+    surface = "ellipsoid"    # or "torus"
+    radii = [2.0, 1.0, 1.0]  # torus: [R, r] with R > r > 0, axis z
+    map = ["x", "y + k*z"]
+    resolution = 3000        # mesh vertices for slices and the PL checks
+
+    [g]
+    mesh = "g.ply"           # .ply .off .obj, closed triangulated surface
+    fields = ["f1", "f2"]    # or map = [...]
+
+    [window]
+    a = [0.02, 0.98]
+    b = [-3.0, 3.0]
+
+    [map]      pairs = "all" | "roles", resolution = 121, method = "sweep" | "naive"
+    [distance] method = "both", degrees = [0, 1, 2], dense_resolution = 41
+    [perturb]  model = "function" | "grid", size = 1e-3, runs = 20, seed = 1,
+               sizes = [1e-3, 1e-2], distance = false
+"""
+
+from __future__ import annotations
+
+import math
+import tomllib
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+from specmap.errors import StudyError
+from specmap.strip import Window
+
+SURFACES = {"ellipsoid": 3, "torus": 2}
+MESH_SUFFIXES = (".ply", ".off", ".obj")
+TABLES = {"study", "constants", "f", "g", "window", "map", "distance", "perturb"}
+SHAPE_KEYS = {"surface", "radii", "map", "resolution", "mesh", "fields", "grid", "simplify", "route"}
+
+
+@dataclass(frozen=True)
+class ShapeSpec:
+    """One shape as the study file gives it (paths resolved, nothing loaded yet)."""
+
+    label: str
+    source: str  # "surface" | "mesh" | "grid"
+    path: Path | None = None
+    surface: str | None = None
+    radii: tuple[float, ...] | None = None
+    map: tuple[str, str] | None = None
+    fields: tuple[str, str] | None = None
+    resolution: int = 3000
+    simplify: float = 0.0
+    route: str = "auto"
+
+    def describe(self) -> str:
+        """One human line, e.g. ``ellipsoid radii (2, 1, 1), map (x, y)``."""
+        if self.source == "grid":
+            return f"grid file {self.path.name if self.path else '?'}"
+        values = f"map ({', '.join(self.map)})" if self.map else f"fields ({', '.join(self.fields or ())})"
+        if self.source == "surface":
+            radii = ", ".join(f"{r:g}" for r in self.radii or ())
+            return f"{self.surface} radii ({radii}), {values}"
+        return f"mesh {self.path.name if self.path else '?'}, {values}"
+
+    def to_json(self) -> dict[str, Any]:
+        return {
+            "source": self.source,
+            "path": str(self.path) if self.path else None,
+            "surface": self.surface,
+            "radii": list(self.radii) if self.radii else None,
+            "map": list(self.map) if self.map else None,
+            "fields": list(self.fields) if self.fields else None,
+            "resolution": self.resolution,
+            "description": self.describe(),
+        }
+
+
+@dataclass(frozen=True)
+class MapSpec:
+    pairs: str = "all"
+    resolution: int = 121
+    method: str = "sweep"
+
+
+@dataclass(frozen=True)
+class DistanceSpec:
+    method: str = "both"
+    degrees: tuple[int, ...] = (0, 1, 2)
+    dense_resolution: int = 41
+
+
+@dataclass(frozen=True)
+class PerturbSpec:
+    model: str = "function"
+    size: float = 1e-3
+    runs: int = 20
+    seed: int = 1
+    sizes: tuple[float, ...] | None = None
+    distance: bool = False
+
+
+@dataclass(frozen=True)
+class Study:
+    """A validated study. Paths are absolute; shapes are not loaded yet."""
+
+    name: str
+    seed: int
+    path: Path
+    f: ShapeSpec
+    g: ShapeSpec
+    constants: dict[str, float] = field(default_factory=dict)
+    window: Window | None = None
+    map: MapSpec = MapSpec()
+    distance: DistanceSpec = DistanceSpec()
+    perturb: PerturbSpec | None = None
+
+    @property
+    def grid_only(self) -> bool:
+        return self.f.source == "grid" or self.g.source == "grid"
+
+
+class _Reader:
+    """Typed access to TOML tables with precise errors."""
+
+    def __init__(self, file: str) -> None:
+        self.file = file
+
+    def fail(self, field_: str, problem: str, fix: str) -> StudyError:
+        return StudyError(problem, file=self.file, field=field_, fix=fix)
+
+    def table(self, data: dict, name: str, required: bool, allowed: set[str]) -> dict:
+        t = data.get(name)
+        if t is None:
+            if required:
+                raise self.fail(f"[{name}]", "missing table", f"add a [{name}] table")
+            return {}
+        if not isinstance(t, dict):
+            raise self.fail(name, "is not a table", f"write it as [{name}] with keys below it")
+        for key in t:
+            if key not in allowed:
+                raise self.fail(f"{name}.{key}", "unknown key",
+                                f"use one of: {', '.join(sorted(allowed))}")
+        return t
+
+    def number(self, t: dict, name: str, key: str, default: float | None = None, *,
+               positive: bool = False) -> float:
+        v = t.get(key, default)
+        where = f"{name}.{key}"
+        if v is None:
+            raise self.fail(where, "missing", f"set {key} = <number>")
+        if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v):
+            raise self.fail(where, f"{v!r} is not a finite number", f"set {key} = <number>")
+        if positive and v <= 0:
+            raise self.fail(where, f"{v!r} is not positive", f"set {key} to a number > 0")
+        return float(v)
+
+    def integer(self, t: dict, name: str, key: str, default: int, *, lo: int = 0, hi: int | None = None) -> int:
+        v = t.get(key, default)
+        where = f"{name}.{key}"
+        if isinstance(v, bool) or not isinstance(v, int):
+            raise self.fail(where, f"{v!r} is not a whole number", f"set {key} = <integer>")
+        if v < lo or (hi is not None and v > hi):
+            rng = f">= {lo}" if hi is None else f"in [{lo}, {hi}]"
+            raise self.fail(where, f"{v} is out of range", f"set {key} to an integer {rng}")
+        return v
+
+    def choice(self, t: dict, name: str, key: str, default: str, options: tuple[str, ...]) -> str:
+        v = t.get(key, default)
+        if v not in options:
+            raise self.fail(f"{name}.{key}", f"unknown value {v!r}",
+                            f"use one of: {', '.join(repr(o) for o in options)}")
+        return v
+
+    def numbers(self, t: dict, name: str, key: str, count: int | None = None) -> tuple[float, ...]:
+        v = t.get(key)
+        where = f"{name}.{key}"
+        if not isinstance(v, list) or not all(
+            isinstance(x, (int, float)) and not isinstance(x, bool) and math.isfinite(x) for x in v
+        ):
+            raise self.fail(where, f"{v!r} is not a list of finite numbers",
+                            f"write {key} = [n1, n2{', ...' if count is None or count > 2 else ''}]")
+        if count is not None and len(v) != count:
+            raise self.fail(where, f"has {len(v)} numbers, expected {count}",
+                            f"give exactly {count} numbers")
+        return tuple(float(x) for x in v)
+
+    def strings(self, t: dict, name: str, key: str, count: int) -> tuple[str, ...]:
+        v = t.get(key)
+        if not isinstance(v, list) or len(v) != count or not all(isinstance(x, str) for x in v):
+            raise self.fail(f"{name}.{key}", f"{v!r} is not a list of {count} strings",
+                            f'write {key} = ["...", "..."]')
+        return tuple(v)
+
+
+def _shape(r: _Reader, data: dict, label: str, base: Path) -> ShapeSpec:
+    t = r.table(data, label, True, SHAPE_KEYS)
+    given = [k for k in ("surface", "mesh", "grid") if k in t]
+    if len(given) != 1:
+        problem = "gives none of" if not given else f"gives {', '.join(given)}; exactly one of"
+        raise r.fail(f"[{label}]", f"{problem} surface, mesh, grid",
+                     "give exactly one of surface = ..., mesh = ..., grid = ...")
+    source = given[0]
+    allowed = {"surface": {"surface", "radii", "map", "resolution", "route"},
+               "mesh": {"mesh", "map", "fields", "simplify"},
+               "grid": {"grid"}}[source]
+    for key in t:
+        if key not in allowed:
+            raise r.fail(f"{label}.{key}", f"does not apply to a {source} shape",
+                         f"remove it; a {source} shape takes {', '.join(sorted(allowed))}")
+    if source == "grid":
+        path = _path(r, t, label, "grid", base, (".json",))
+        return ShapeSpec(label, "grid", path=path)
+    fmap = fields = None
+    if "map" in t and "fields" in t:
+        raise r.fail(f"{label}.map", "both map and fields given", "give one of map = [...] or fields = [...]")
+    if "map" in t:
+        fmap = r.strings(t, label, "map", 2)
+    elif source == "mesh" and "fields" in t:
+        fields = r.strings(t, label, "fields", 2)
+    else:
+        fix = 'add map = ["expr1", "expr2"]' + (' or fields = ["name1", "name2"]' if source == "mesh" else "")
+        raise r.fail(f"{label}.map", "missing the two filtering functions", fix)
+    if source == "surface":
+        kind = t["surface"]
+        if kind not in SURFACES:
+            raise r.fail(f"{label}.surface", f"unknown surface {kind!r}",
+                         f"use one of: {', '.join(repr(s) for s in SURFACES)}")
+        radii = r.numbers(t, label, "radii", SURFACES[kind])
+        if any(x <= 0 for x in radii):
+            raise r.fail(f"{label}.radii", f"radii {list(radii)} must be positive", "give radii > 0")
+        if kind == "torus" and radii[0] <= radii[1]:
+            raise r.fail(f"{label}.radii", f"torus needs R > r, got R={radii[0]:g}, r={radii[1]:g}",
+                         "give radii = [R, r] with R > r > 0")
+        res = r.integer(t, label, "resolution", 3000, lo=100, hi=2_000_000)
+        route = r.choice(t, label, "route", "auto", ("auto", "smooth", "exact", "piecewise"))
+        return ShapeSpec(label, "surface", surface=kind, radii=radii, map=fmap, resolution=res, route=route)
+    path = _path(r, t, label, "mesh", base, MESH_SUFFIXES)
+    simplify = r.number(t, label, "simplify", 0.0)
+    if simplify < 0:
+        raise r.fail(f"{label}.simplify", "is negative", "set simplify >= 0 (0 = off)")
+    return ShapeSpec(label, "mesh", path=path, map=fmap, fields=fields, simplify=simplify)
+
+
+def _path(r: _Reader, t: dict, label: str, key: str, base: Path, suffixes: tuple[str, ...]) -> Path:
+    v = t[key]
+    if not isinstance(v, str) or not v:
+        raise r.fail(f"{label}.{key}", f"{v!r} is not a file name", f'write {key} = "path"')
+    p = Path(v)
+    p = p if p.is_absolute() else (base / p)
+    if p.suffix.lower() not in suffixes:
+        raise r.fail(f"{label}.{key}", f"unsupported file type {p.suffix or '(none)'!r}",
+                     f"give a {' / '.join(suffixes)} file")
+    if not p.is_file():
+        raise r.fail(f"{label}.{key}", f"file not found: {p}",
+                     "check the path; relative paths resolve against the study file's folder")
+    return p.resolve()
+
+
+def parse_study(data: dict[str, Any], path: Path) -> Study:
+    """Validate a parsed TOML document (see module docstring for the format)."""
+    r = _Reader(str(path))
+    for key in data:
+        if key not in TABLES:
+            raise r.fail(f"[{key}]", "unknown table", f"use tables: {', '.join(sorted(TABLES))}")
+    st = r.table(data, "study", True, {"name", "seed"})
+    name = st.get("name")
+    if not isinstance(name, str) or not name or any(c in name for c in "/\\") or name.startswith("."):
+        raise r.fail("study.name", f"{name!r} is not a usable name",
+                     'set name = "my-study" (letters, digits, - and _)')
+    seed = r.integer(st, "study", "seed", 0)
+    consts_t = data.get("constants", {})
+    if not isinstance(consts_t, dict):
+        raise r.fail("constants", "is not a table", "write [constants] with name = number lines")
+    constants = {k: r.number(consts_t, "constants", k) for k in consts_t}
+    base = path.parent
+    f = _shape(r, data, "f", base)
+    g = _shape(r, data, "g", base)
+    window = None
+    if "window" in data:
+        wt = r.table(data, "window", False, {"a", "b"})
+        a = r.numbers(wt, "window", "a", 2) if "a" in wt else (0.02, 0.98)
+        if not (0 < a[0] < a[1] < 1):
+            raise r.fail("window.a", f"{list(a)} is not inside ]0, 1[", "give a = [lo, hi] with 0 < lo < hi < 1")
+        if "b" not in wt:
+            raise r.fail("window.b", "missing", "give b = [lo, hi], or drop [window] for the default")
+        b = r.numbers(wt, "window", "b", 2)
+        if not b[0] < b[1]:
+            raise r.fail("window.b", f"{list(b)} is empty", "give b = [lo, hi] with lo < hi")
+        window = Window(a, b)
+    mt = r.table(data, "map", False, {"pairs", "resolution", "method"})
+    mspec = MapSpec(
+        pairs=r.choice(mt, "map", "pairs", "all", ("all", "roles")),
+        resolution=r.integer(mt, "map", "resolution", 121, lo=5, hi=4001),
+        method=r.choice(mt, "map", "method", "sweep", ("sweep", "naive")),
+    )
+    dt = r.table(data, "distance", False, {"method", "degrees", "dense_resolution"})
+    degrees = (0, 1, 2)
+    if "degrees" in dt:
+        dv = dt["degrees"]
+        if not isinstance(dv, list) or not dv or not all(x in (0, 1, 2) and not isinstance(x, bool) for x in dv):
+            raise r.fail("distance.degrees", f"{dv!r} is not a list of degrees", "give degrees among [0, 1, 2]")
+        degrees = tuple(sorted(set(dv)))
+    dspec = DistanceSpec(
+        method=r.choice(dt, "distance", "method", "both", ("both", "dense", "reduced")),
+        degrees=degrees,
+        dense_resolution=r.integer(dt, "distance", "dense_resolution", 41, lo=3, hi=1001),
+    )
+    pspec = None
+    if "perturb" in data:
+        pt = r.table(data, "perturb", False, {"model", "size", "runs", "seed", "sizes", "distance"})
+        default_model = "grid" if (f.source == "grid" or g.source == "grid") else "function"
+        model = r.choice(pt, "perturb", "model", default_model, ("function", "grid"))
+        if model == "function" and (f.source == "grid" or g.source == "grid"):
+            raise r.fail("perturb.model", "'function' needs surfaces or meshes, this study has a grid file",
+                         "use model = \"grid\"")
+        sizes = None
+        if "sizes" in pt:
+            sizes = r.numbers(pt, "perturb", "sizes")
+            if not sizes or any(s <= 0 for s in sizes):
+                raise r.fail("perturb.sizes", "needs positive sizes", "give sizes = [1e-3, 1e-2, ...]")
+        dist = pt.get("distance", False)
+        if not isinstance(dist, bool):
+            raise r.fail("perturb.distance", f"{dist!r} is not true/false", "set distance = true or false")
+        pspec = PerturbSpec(
+            model=model,
+            size=r.number(pt, "perturb", "size", 1e-3, positive=True),
+            runs=r.integer(pt, "perturb", "runs", 20, lo=1, hi=100_000),
+            seed=r.integer(pt, "perturb", "seed", seed),
+            sizes=sizes,
+            distance=dist,
+        )
+    return Study(name, seed, path, f, g, constants, window, mspec, dspec, pspec)
+
+
+def load_study(path: str | Path) -> Study:
+    """Read and validate a study file.
+
+    Raises
+    ------
+    StudyError
+        Missing file, malformed TOML, unknown key or surface, bad radii, ...
+    """
+    p = Path(path)
+    if not p.is_file():
+        raise StudyError("file not found", file=str(p), field="(file)",
+                         fix="give the path of a .toml study file (see studies/)")
+    try:
+        data = tomllib.loads(p.read_text())
+    except tomllib.TOMLDecodeError as exc:
+        raise StudyError(f"malformed TOML ({exc})", file=str(p), field="(syntax)",
+                         fix="fix the TOML syntax at the position given") from None
+    except UnicodeDecodeError:
+        raise StudyError("not a text file", file=str(p), field="(file)",
+                         fix="give a UTF-8 TOML study file") from None
+    return parse_study(data, p.resolve())
