@@ -1,0 +1,119 @@
+"""Bad input gives one line naming file, field and fix, exit status 2, no traceback, no files.
+
+Source of each expectation: the project's error contract (design.md "Errors" and
+the foundation issue's list of user mistakes); the messages are checked for the
+field they must name, not for exact wording.
+"""
+
+from __future__ import annotations
+
+import json
+import subprocess
+import sys
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+GOOD_F = '[f]\nsurface = "ellipsoid"\nradii = [2, 1, 1]\nmap = ["x", "y"]\nresolution = 400\n'
+GOOD_G = '[g]\nsurface = "ellipsoid"\nradii = [2, 1, 1]\nmap = ["x", "y + 0.1*z"]\nresolution = 400\n'
+HEAD = '[study]\nname = "t"\nseed = 1\n'
+
+
+def run_cli(args: list[str], cwd: Path) -> subprocess.CompletedProcess:
+    return subprocess.run([sys.executable, "-m", "specmap", "--quiet", *args], cwd=cwd,
+                          capture_output=True, text=True, timeout=300)
+
+
+def assert_user_error(proc: subprocess.CompletedProcess, *needles: str) -> None:
+    assert proc.returncode == 2, proc.stderr
+    lines = [ln for ln in proc.stderr.splitlines() if ln.strip()]
+    assert len(lines) == 1, proc.stderr
+    assert "Traceback" not in proc.stderr
+    for n in needles:
+        assert n in lines[0], (n, lines[0])
+
+
+CASES = {
+    "malformed_toml": (HEAD + "[f\n", ["(syntax)"]),
+    "unknown_table": (HEAD + GOOD_F + GOOD_G + "[extra]\nx = 1\n", ["[extra]", "unknown table"]),
+    "unknown_key": (HEAD + GOOD_F.replace("resolution", "resolutoin") + GOOD_G, ["f.resolutoin", "use one of"]),
+    "unknown_surface": (HEAD + GOOD_F.replace("ellipsoid", "klein") + GOOD_G, ["f.surface", "klein"]),
+    "radii_count": (HEAD + GOOD_F.replace("[2, 1, 1]", "[2, 1]") + GOOD_G, ["f.radii", "expected 3"]),
+    "radii_sign": (HEAD + GOOD_F.replace("[2, 1, 1]", "[2, -1, 1]") + GOOD_G, ["f.radii", "positive"]),
+    "torus_order": (HEAD + '[f]\nsurface = "torus"\nradii = [1, 2]\nmap = ["x", "y"]\n' + GOOD_G, ["f.radii", "R > r"]),
+    "two_sources": (HEAD + GOOD_F.replace('[f]\n', '[f]\ngrid = "x.json"\n') + GOOD_G, ["[f]", "exactly one"]),
+    "missing_g": (HEAD + GOOD_F, ["[g]", "missing table"]),
+    "unknown_name": (HEAD + GOOD_F.replace('"y"]', '"y + q"]') + GOOD_G, ["f.map", "q"]),
+    "attribute": (HEAD + GOOD_F.replace('"y"]', '"x.__class__"]') + GOOD_G, ["f.map"]),
+    "import": (HEAD + GOOD_F.replace('"y"]', '"__import__(\'os\')"]') + GOOD_G, ["f.map"]),
+    "subscript": (HEAD + GOOD_F.replace('"y"]', '"x[0]"]') + GOOD_G, ["f.map"]),
+    "call_outside": (HEAD + GOOD_F.replace('"y"]', '"open(x)"]') + GOOD_G, ["f.map"]),
+    "nan_values": (HEAD + GOOD_F.replace('"y"]', '"log(x - 10)"]') + GOOD_G, ["f.map", "NaN"]),
+    "window_a": (HEAD + GOOD_F + GOOD_G + "[window]\na = [0, 1.2]\nb = [-1, 1]\n", ["window.a"]),
+    "pairs_option": (HEAD + GOOD_F + GOOD_G + '[map]\npairs = "some"\n', ["map.pairs"]),
+}
+
+
+@pytest.mark.parametrize("case", sorted(CASES))
+def test_bad_study_one_line_exit_2_nothing_written(case: str, tmp_path: Path) -> None:
+    text, needles = CASES[case]
+    study = tmp_path / "s.toml"
+    study.write_text(text)
+    proc = run_cli(["grid", str(study)], tmp_path)
+    assert_user_error(proc, str(study.name), *needles)
+    assert not (tmp_path / "results").exists()
+
+
+def test_missing_study_file(tmp_path: Path) -> None:
+    proc = run_cli(["grid", "nope.toml"], tmp_path)
+    assert_user_error(proc, "nope.toml", "not found")
+
+
+def test_grid_file_increasing_proper_contour(tmp_path: Path) -> None:
+    # A proper contour must be non-increasing (CEF19: Pareto contours are monotone).
+    grid = {"format": "specmap-grid/1", "contours": [{"id": "p0", "kind": "proper", "points": [[0, 0], [1, 1]]}]}
+    (tmp_path / "g.json").write_text(json.dumps(grid))
+    (tmp_path / "s.toml").write_text(HEAD + '[f]\ngrid = "g.json"\n[g]\ngrid = "g.json"\n')
+    proc = run_cli(["grid", "s.toml"], tmp_path)
+    assert_user_error(proc, "g.json", "contours[0]", "non-increasing")
+    assert not (tmp_path / "results").exists()
+
+
+def test_grid_file_nan(tmp_path: Path) -> None:
+    (tmp_path / "g.json").write_text('{"format": "specmap-grid/1", "contours": '
+                                     '[{"id": "v0", "kind": "vertical", "start": [NaN, 0]}]}')
+    (tmp_path / "s.toml").write_text(HEAD + '[f]\ngrid = "g.json"\n[g]\ngrid = "g.json"\n')
+    proc = run_cli(["grid", "s.toml"], tmp_path)
+    assert_user_error(proc, "g.json", "non-finite")
+
+
+def test_distance_on_grid_only_study_says_so(tmp_path: Path) -> None:
+    grid = {"format": "specmap-grid/1", "contours": [{"id": "v0", "kind": "vertical", "start": [0, 0]}]}
+    (tmp_path / "g.json").write_text(json.dumps(grid))
+    (tmp_path / "s.toml").write_text(HEAD + '[f]\ngrid = "g.json"\n[g]\ngrid = "g.json"\n')
+    proc = run_cli(["distance", "s.toml"], tmp_path)
+    assert_user_error(proc, "no slice diagrams")
+
+
+def _open_mesh(path: Path) -> None:
+    import meshio
+
+    # an octahedron with one face removed: 3 boundary edges
+    V = np.array([[1, 0, 0], [-1, 0, 0], [0, 1, 0], [0, -1, 0], [0, 0, 1], [0, 0, -1]], float)
+    T = np.array([[0, 2, 4], [2, 1, 4], [1, 3, 4], [3, 0, 4], [2, 0, 5], [1, 2, 5], [3, 1, 5]])
+    meshio.write(str(path), meshio.Mesh(V, [("triangle", T)]))
+
+
+def test_open_mesh(tmp_path: Path) -> None:
+    _open_mesh(tmp_path / "m.off")
+    (tmp_path / "s.toml").write_text(HEAD + '[f]\nmesh = "m.off"\nmap = ["x", "y"]\n' + GOOD_G)
+    proc = run_cli(["grid", "s.toml"], tmp_path)
+    assert_user_error(proc, "m.off")
+    assert not (tmp_path / "results").exists()
+
+
+def test_missing_mesh_file(tmp_path: Path) -> None:
+    (tmp_path / "s.toml").write_text(HEAD + '[f]\nmesh = "absent.ply"\nmap = ["x", "y"]\n' + GOOD_G)
+    proc = run_cli(["grid", "s.toml"], tmp_path)
+    assert_user_error(proc, "f.mesh", "not found")

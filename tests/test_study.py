@@ -1,0 +1,45 @@
+"""Study loading: defaults, relative paths, the default window (math.md section 3)."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import pytest
+
+from specmap.errors import StudyError
+from specmap.strip import default_window
+from specmap.study import load_study
+
+
+def write(tmp_path: Path, text: str) -> Path:
+    p = tmp_path / "s.toml"
+    p.write_text(text)
+    return p
+
+
+def test_defaults_and_relative_paths(tmp_path: Path) -> None:
+    sub = tmp_path / "data"
+    sub.mkdir()
+    (sub / "g.json").write_text('{"format": "specmap-grid/1", "contours": []}')
+    p = write(sub, '[study]\nname = "x"\n[f]\ngrid = "g.json"\n[g]\ngrid = "g.json"\n[perturb]\nruns = 3\n')
+    s = load_study(p)
+    assert s.f.path == (sub / "g.json").resolve()  # resolved against the study's folder
+    assert s.map.pairs == "all" and s.map.method == "sweep"
+    assert s.distance.degrees == (0, 1, 2)
+    assert s.perturb is not None and s.perturb.model == "grid" and s.perturb.runs == 3
+    assert s.window is None
+
+
+def test_function_model_rejected_for_grid_files(tmp_path: Path) -> None:
+    (tmp_path / "g.json").write_text("{}")
+    p = write(tmp_path, '[study]\nname = "x"\n[f]\ngrid = "g.json"\n[g]\ngrid = "g.json"\n'
+                        '[perturb]\nmodel = "function"\n')
+    with pytest.raises(StudyError, match="perturb.model"):
+        load_study(p)
+
+
+def test_default_window_closed_form() -> None:
+    # math.md section 3: b- = min(min f1, min g1, -max f2, -max g2), b+ = max(max f1, max g1, -min f2, -min g2)
+    w = default_window((-2, -1, 2, 1), (0, -3, 5, 0.5))
+    assert w.b == (min(-2, 0, -1, -0.5), max(2, 5, 1, 3))
+    assert w.a == (0.02, 0.98)
