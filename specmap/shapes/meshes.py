@@ -1,0 +1,392 @@
+"""Triangle meshes: read, check (closed 2-manifold), orient, write.
+
+A mesh is a pair ``(V, T)``: vertex positions ``V`` of shape (n, 3) and
+triangles ``T`` of shape (m, 3) (integer vertex indices). Two values per
+vertex (the filtering functions f1, f2) travel alongside as an (n, 2) array.
+
+Every mistake in a user's mesh raises :class:`specmap.errors.MeshError` with
+the file, the field and the fix, so that the CLI can print one line.
+
+Supported files (read through meshio): ``.ply``, ``.off``, ``.obj``. Only
+PLY keeps per-vertex data (meshio's ``point_data``); meshio's OFF and OBJ
+writers and readers drop it, so values for OFF/OBJ meshes must be given by
+expressions rather than fields.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import io
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+from scipy.sparse import coo_matrix
+from scipy.sparse.csgraph import breadth_first_order, connected_components
+
+from specmap.errors import MeshError
+
+FORMATS = {".ply": "ply", ".off": "off", ".obj": "obj"}
+
+
+@dataclass(frozen=True)
+class EdgeTable:
+    """The edges of a triangle mesh with their incident triangles.
+
+    Attributes
+    ----------
+    edges : ndarray (E, 2) of int
+        Vertex pairs with ``edges[:, 0] < edges[:, 1]``, sorted.
+    counts : ndarray (E,) of int
+        Number of triangles on each edge (2 on a closed 2-manifold).
+    faces : ndarray (E, 2) of int
+        For edges with ``counts == 2``: the two triangles; -1 elsewhere.
+    opposite : ndarray (E, 2) of int
+        For edges with ``counts == 2``: the vertex of each of those triangles
+        that is not on the edge; -1 elsewhere.
+    """
+
+    edges: np.ndarray
+    counts: np.ndarray
+    faces: np.ndarray
+    opposite: np.ndarray
+
+
+def edges_and_faces(T: np.ndarray) -> EdgeTable:
+    """Edge table of a triangle array: each edge, its triangles and opposite vertices.
+
+    Parameters
+    ----------
+    T : ndarray (m, 3) of int
+
+    Returns
+    -------
+    EdgeTable
+    """
+    T = np.asarray(T, dtype=np.int64).reshape(-1, 3)
+    m = len(T)
+    a = T[:, [0, 1, 2]].reshape(-1)
+    b = T[:, [1, 2, 0]].reshape(-1)
+    c = T[:, [2, 0, 1]].reshape(-1)
+    face = np.repeat(np.arange(m), 3)
+    lo = np.minimum(a, b)
+    hi = np.maximum(a, b)
+    order = np.lexsort((hi, lo))
+    lo, hi, c, face = lo[order], hi[order], c[order], face[order]
+    if len(lo) == 0:
+        empty = np.empty((0, 2), dtype=np.int64)
+        return EdgeTable(empty, np.empty(0, dtype=np.int64), empty, empty)
+    new = np.ones(len(lo), dtype=bool)
+    new[1:] = (lo[1:] != lo[:-1]) | (hi[1:] != hi[:-1])
+    starts = np.nonzero(new)[0]
+    counts = np.diff(np.append(starts, len(lo)))
+    edges = np.stack([lo[starts], hi[starts]], axis=1)
+    faces = np.full((len(starts), 2), -1, dtype=np.int64)
+    opposite = np.full((len(starts), 2), -1, dtype=np.int64)
+    two = counts == 2
+    s2 = starts[two]
+    faces[two] = np.stack([face[s2], face[s2 + 1]], axis=1)
+    opposite[two] = np.stack([c[s2], c[s2 + 1]], axis=1)
+    return EdgeTable(edges, counts, faces, opposite)
+
+
+def euler_characteristic(V: np.ndarray, T: np.ndarray) -> int:
+    """Euler characteristic V - E + F of the surface spanned by the triangles.
+
+    Only vertices used by some triangle are counted.
+
+    Parameters
+    ----------
+    V : ndarray (n, 3)
+        Unused except for its role in the signature (vertex count comes from T).
+    T : ndarray (m, 3) of int
+    """
+    T = np.asarray(T, dtype=np.int64).reshape(-1, 3)
+    n_used = len(np.unique(T))
+    n_edges = len(edges_and_faces(T).edges)
+    return int(n_used - n_edges + len(T))
+
+
+def check_closed_manifold(
+    V: np.ndarray, T: np.ndarray, *, file: str | None = None, field: str = "mesh"
+) -> None:
+    """Check that (V, T) is a closed triangulated 2-manifold with finite vertices.
+
+    Checks, in order: shapes, finite coordinates, indices in range, no
+    repeated vertex within a triangle, no duplicated triangle, every vertex
+    used, every edge on exactly two triangles (more: non-manifold edge; one:
+    boundary), and every vertex link one cycle (else a pinched vertex).
+
+    Parameters
+    ----------
+    V : ndarray (n, 3)
+    T : ndarray (m, 3) of int
+    file, field : str
+        Named in the error.
+
+    Raises
+    ------
+    MeshError
+    """
+    V = np.asarray(V)
+    T = np.asarray(T)
+    if V.ndim != 2 or V.shape[1] != 3 or len(V) == 0:
+        raise MeshError(f"vertices have shape {V.shape}, expected (n, 3)", file=file, field=field,
+                        fix="give 3D vertex coordinates")
+    if T.ndim != 2 or T.shape[1] != 3 or len(T) == 0:
+        raise MeshError("the mesh has no triangles", file=file, field=field,
+                        fix="give a surface made of triangles (faces with 3 vertices)")
+    bad = np.nonzero(~np.isfinite(V).all(axis=1))[0]
+    if bad.size:
+        raise MeshError(f"{bad.size} vertices have NaN or inf coordinates (first: vertex {bad[0]})",
+                        file=file, field=field, fix="repair or remove those vertices")
+    if T.min() < 0 or T.max() >= len(V):
+        raise MeshError(f"triangle indices outside 0..{len(V) - 1}", file=file, field=field,
+                        fix="index existing vertices only")
+    T = T.astype(np.int64)
+    degenerate = (T[:, 0] == T[:, 1]) | (T[:, 1] == T[:, 2]) | (T[:, 0] == T[:, 2])
+    if degenerate.any():
+        k = int(np.nonzero(degenerate)[0][0])
+        raise MeshError(f"{int(degenerate.sum())} triangles repeat a vertex (first: triangle {k})",
+                        file=file, field=field, fix="remove degenerate triangles")
+    key = np.sort(T, axis=1)
+    if len(np.unique(key, axis=0)) < len(T):
+        raise MeshError("some triangles appear twice", file=file, field=field,
+                        fix="remove duplicated triangles")
+    used = np.zeros(len(V), dtype=bool)
+    used[T.reshape(-1)] = True
+    if not used.all():
+        k = int(np.nonzero(~used)[0][0])
+        raise MeshError(f"{int((~used).sum())} vertices belong to no triangle (first: vertex {k})",
+                        file=file, field=field, fix="remove unreferenced vertices")
+    table = edges_and_faces(T)
+    over = table.counts > 2
+    if over.any():
+        u, v = table.edges[np.nonzero(over)[0][0]]
+        raise MeshError(
+            f"not a 2-manifold: {int(over.sum())} edges lie on more than two triangles "
+            f"(first: edge {u}-{v} on {int(table.counts[over][0])})",
+            file=file, field=field, fix="split the surface so that every edge has exactly two triangles")
+    open_ = table.counts == 1
+    if open_.any():
+        u, v = table.edges[np.nonzero(open_)[0][0]]
+        raise MeshError(f"not closed: {int(open_.sum())} boundary edges lie on one triangle only "
+                        f"(first: edge {u}-{v})", file=file, field=field,
+                        fix="close the holes (every edge must have exactly two triangles)")
+    cycles = _link_cycles(T, table, len(V))
+    pinched = np.nonzero(cycles != 1)[0]
+    if pinched.size:
+        raise MeshError(f"not a 2-manifold: {pinched.size} vertices have a link that is not one cycle "
+                        f"(first: vertex {pinched[0]}, {int(cycles[pinched[0]])} cycles)",
+                        file=file, field=field, fix="split pinched vertices into separate copies")
+
+
+def _link_cycles(T: np.ndarray, table: EdgeTable, n: int) -> np.ndarray:
+    # Nodes are the corners (triangle, vertex). Across every edge uv, the two
+    # corners at u (and the two at v) are joined; the components at a vertex are
+    # the cycles of its link (every edge has two triangles here).
+    m = len(T)
+    corner_id = np.arange(3 * m).reshape(m, 3)
+
+    def corner_of(face: np.ndarray, vert: np.ndarray) -> np.ndarray:
+        local = np.argmax(T[face] == vert[:, None], axis=1)
+        return corner_id[face, local]
+
+    f0, f1 = table.faces[:, 0], table.faces[:, 1]
+    rows, cols = [], []
+    for end in (0, 1):
+        w = table.edges[:, end]
+        rows.append(corner_of(f0, w))
+        cols.append(corner_of(f1, w))
+    r = np.concatenate(rows)
+    c = np.concatenate(cols)
+    graph = coo_matrix((np.ones(len(r)), (r, c)), shape=(3 * m, 3 * m))
+    ncomp, labels = connected_components(graph, directed=False)
+    comp_vertex = np.empty(ncomp, dtype=np.int64)
+    comp_vertex[labels] = T.reshape(-1)
+    return np.bincount(comp_vertex, minlength=n)
+
+
+def orient_consistently(T: np.ndarray) -> np.ndarray:
+    """Flip triangles so that neighbours induce opposite directions on shared edges.
+
+    Works component by component (breadth-first from the lowest triangle). A
+    non-orientable component (e.g. a Klein bottle) cannot be oriented; it is
+    returned with the best effort of the traversal, which is harmless for
+    specmap (grids and persistence do not use orientation).
+
+    Parameters
+    ----------
+    T : ndarray (m, 3) of int
+        Triangles of a closed 2-manifold (each edge on two triangles).
+
+    Returns
+    -------
+    ndarray (m, 3) of int
+    """
+    T = np.asarray(T, dtype=np.int64).copy()
+    m = len(T)
+    table = edges_and_faces(T)
+    two = table.counts == 2
+    e = table.edges[two]
+    f0, f1 = table.faces[two, 0], table.faces[two, 1]
+    # direction of edge (lo -> hi) inside each triangle: +1 if lo follows by hi cyclically
+    d0 = _direction(T, f0, e[:, 0], e[:, 1])
+    d1 = _direction(T, f1, e[:, 0], e[:, 1])
+    same = d0 == d1  # the two triangles disagree: one of them must flip
+    graph = coo_matrix((np.ones(len(f0)), (f0, f1)), shape=(m, m)).tocsr()
+    ncomp, labels = connected_components(graph, directed=False)
+    pred = np.arange(m)
+    for comp in range(ncomp):
+        root = int(np.argmax(labels == comp))
+        _, p = breadth_first_order(graph, root, directed=False, return_predecessors=True)
+        hit = p >= 0
+        pred[hit] = p[hit]
+    # parity of the tree edge (pred[t], t), looked up among the mesh edges
+    key_edge = np.minimum(f0, f1) * m + np.maximum(f0, f1)
+    order = np.argsort(key_edge)
+    key_tree = np.minimum(pred, np.arange(m)) * m + np.maximum(pred, np.arange(m))
+    pos = np.clip(np.searchsorted(key_edge[order], key_tree), 0, max(len(order) - 1, 0))
+    acc = np.zeros(m, dtype=bool)
+    is_tree = pred != np.arange(m)
+    if len(order):
+        acc[is_tree] = same[order[pos[is_tree]]]
+    # flip[t] = XOR of the parities on the tree path to the root (pointer doubling)
+    anc = pred.copy()
+    while True:
+        nxt = anc[anc]
+        if np.array_equal(nxt, anc):
+            break
+        acc = acc ^ acc[anc]
+        anc = nxt
+    flip = acc
+    T[flip] = T[flip][:, ::-1]
+    return T
+
+
+def _direction(T: np.ndarray, face: np.ndarray, u: np.ndarray, v: np.ndarray) -> np.ndarray:
+    tri = T[face]
+    iu = np.argmax(tri == u[:, None], axis=1)
+    iv = np.argmax(tri == v[:, None], axis=1)
+    return np.where((iu + 1) % 3 == iv, 1, -1)
+
+
+def read_mesh(
+    path: str | Path, *, fields: tuple[str, str] | None = None
+) -> tuple[np.ndarray, np.ndarray, np.ndarray | None]:
+    """Read a closed triangle mesh (.ply, .off, .obj) and optionally two vertex fields.
+
+    The mesh is checked with :func:`check_closed_manifold`; an inconsistent
+    orientation of the triangles is repaired silently.
+
+    Parameters
+    ----------
+    path : str or Path
+    fields : (str, str), optional
+        Names of two per-vertex arrays (PLY vertex properties) used as f1, f2.
+
+    Returns
+    -------
+    V : ndarray (n, 3) float
+    T : ndarray (m, 3) int
+    values : ndarray (n, 2) float or None
+        The two fields, or None when ``fields`` is None.
+
+    Raises
+    ------
+    MeshError
+        Missing or unreadable file, unknown format, faces that are not
+        triangles, unknown field, NaN/inf, open or non-manifold surface.
+    """
+    p = Path(path)
+    file = str(p)
+    if not p.is_file():
+        raise MeshError("file not found", file=file, field="mesh",
+                        fix="check the path (relative paths resolve against the study file)")
+    fmt = FORMATS.get(p.suffix.lower())
+    if fmt is None:
+        raise MeshError(f"unknown mesh format '{p.suffix}'", file=file, field="mesh",
+                        fix=f"use one of {', '.join(FORMATS)}")
+    import meshio  # local: meshio is slow to import
+
+    chatter = io.StringIO()
+    try:
+        with contextlib.redirect_stdout(chatter), contextlib.redirect_stderr(chatter):
+            mesh = meshio.read(p, file_format=fmt)
+    except (Exception, SystemExit) as exc:  # meshio exits on some parse errors
+        said = " ".join(chatter.getvalue().split()) or str(exc) or type(exc).__name__
+        fix = f"write a valid {fmt.upper()} file of triangles"
+        if "triangular" in said:
+            fix = "triangulate the faces first (split every polygon into triangles)"
+        raise MeshError(f"cannot read the file as {fmt.upper()} ({said})", file=file, field="mesh",
+                        fix=fix) from None
+    blocks = [b for b in mesh.cells if len(b.data)]
+    others = sorted({b.type for b in blocks if b.type not in ("triangle", "vertex", "line")})
+    if others:
+        raise MeshError(f"faces that are not triangles ({', '.join(others)})", file=file, field="mesh",
+                        fix="triangulate the faces first (split every polygon into triangles)")
+    tris = [b.data for b in blocks if b.type == "triangle"]
+    if not tris:
+        raise MeshError("the mesh has no triangles", file=file, field="mesh",
+                        fix="give a closed surface made of triangles")
+    V = np.asarray(mesh.points, dtype=float)
+    if V.ndim == 2 and V.shape[1] == 2:
+        V = np.column_stack([V, np.zeros(len(V))])
+    T = np.concatenate(tris).astype(np.int64)
+    values = None
+    if fields is not None:
+        available = sorted(mesh.point_data)
+        cols = []
+        for name in fields:
+            if name not in mesh.point_data:
+                listed = ", ".join(available) if available else "none"
+                raise MeshError(f"no vertex field '{name}' (available: {listed})", file=file,
+                                field=name, fix="name one of the available vertex fields "
+                                "(PLY vertex properties; OFF/OBJ carry none)")
+            col = np.asarray(mesh.point_data[name], dtype=float)
+            if col.shape != (len(V),):
+                raise MeshError(f"vertex field '{name}' has shape {col.shape}, expected ({len(V)},)",
+                                file=file, field=name, fix="use a scalar per-vertex field")
+            bad = np.nonzero(~np.isfinite(col))[0]
+            if bad.size:
+                raise MeshError(f"vertex field '{name}' has {bad.size} NaN/inf values "
+                                f"(first: vertex {bad[0]})", file=file, field=name,
+                                fix="give finite values at every vertex")
+            cols.append(col)
+        values = np.column_stack(cols)
+    check_closed_manifold(V, T, file=file, field="mesh")
+    return V, orient_consistently(T), values
+
+
+def write_mesh(
+    path: str | Path,
+    V: np.ndarray,
+    T: np.ndarray,
+    values: np.ndarray | None = None,
+    names: tuple[str, str] = ("f1", "f2"),
+) -> None:
+    """Write a triangle mesh, with two vertex fields when given.
+
+    Use a ``.ply`` path to keep the values: meshio stores them as PLY vertex
+    properties and reads them back as ``point_data``. meshio's OFF and OBJ
+    writers drop vertex data.
+
+    Parameters
+    ----------
+    path : str or Path
+    V : ndarray (n, 3)
+    T : ndarray (m, 3) of int
+    values : ndarray (n, 2), optional
+    names : (str, str)
+        Property names of the two fields.
+    """
+    import meshio
+
+    point_data = {}
+    if values is not None:
+        vals = np.asarray(values, dtype=float)
+        point_data = {names[0]: vals[:, 0].copy(), names[1]: vals[:, 1].copy()}
+    mesh = meshio.Mesh(np.asarray(V, dtype=float),
+                       [("triangle", np.asarray(T, dtype=np.int32))], point_data=point_data)
+    with contextlib.redirect_stdout(io.StringIO()), contextlib.redirect_stderr(io.StringIO()):
+        meshio.write(Path(path), mesh, file_format=FORMATS.get(Path(path).suffix.lower()))
