@@ -218,23 +218,34 @@ def critical_points(surface, fmap: SmoothMap, which: int, resolution: int = 4000
         raise ValueError("which must be 0 (f1) or 1 (f2)")
     V, T = surface.mesh(resolution) if mesh is None else mesh
     E, _ = _edges(T)
-    seeds = V[_seed_vertices(surface, fmap, which, V, E)]
+    found = _refine_seeds(surface, fmap, which, V[_seed_vertices(surface, fmap, which, V, E)],
+                          tol, [])
+    # every critical point lies on the Jacobi set, where t1 . t2 changes sign
+    cycles = jacobi_cycles(surface, fmap, V, T, tol)
+    located, vanishing = _pareto_ends(surface, fmap, cycles, tol)
+    if len(located):
+        found = _refine_seeds(surface, fmap, which, located[vanishing == which], tol, found)
+    return found
+
+
+def _refine_seeds(surface, fmap: SmoothMap, which: int, seeds: np.ndarray, tol: float,
+                  known: list[CriticalPoint]) -> list[CriticalPoint]:
+    """Newton-refine seeds to critical points of f_which; merge with ``known``; sort by value."""
+    out = list(known)
     if len(seeds) == 0:
-        return []
-    P, mu, ok = _lagrange_newton(surface, fmap, which, seeds, tol)
+        return out
+    P, mu, ok = _lagrange_newton(surface, fmap, which, np.asarray(seeds, dtype=float), tol)
     P, mu = P[ok], mu[ok]
-    keep: list[int] = []
-    merge = 1e-6 * surface.size
-    for i in range(len(P)):
-        if all(np.linalg.norm(P[i] - P[j]) > merge for j in keep):
-            keep.append(i)
-    P, mu = P[keep], mu[keep]
     if len(P) == 0:
-        return []
+        return out
     idx = _morse_index(surface, fmap, which, P, mu)
     vals = np.asarray(fmap.values(P), dtype=float)
-    order = np.argsort(vals[:, which], kind="stable")
-    return [CriticalPoint(P[k].copy(), vals[k].copy(), int(idx[k])) for k in order]
+    merge = 1e-6 * surface.size
+    for k in range(len(P)):
+        if all(np.linalg.norm(P[k] - c.point) > merge for c in out):
+            out.append(CriticalPoint(P[k].copy(), vals[k].copy(), int(idx[k])))
+    out.sort(key=lambda c: (float(c.value[which]), float(c.value[1 - which])))
+    return out
 
 
 def _euler_check(cps: list[CriticalPoint], chi: int) -> dict[str, Any]:
@@ -338,22 +349,72 @@ def _pareto_sign(surface, fmap: SmoothMap, P: np.ndarray) -> np.ndarray:
     return np.einsum("ni,ni->n", t[:, 0], t[:, 1]) / np.maximum(nrm, 1e-300)
 
 
-def _boundary_point(surface, fmap, pa, pb, sa, sb, crit: np.ndarray, snap: float, tol: float
-                    ) -> np.ndarray:
-    """End of a Pareto arc between pa (inside) and pb (outside): a critical point of f1 or f2."""
-    w = sa / (sa - sb) if sa != sb else 0.5
-    p = _refine_on_jacobi(surface, fmap, (pa + w * (pb - pa))[None], tol)[0]
-    if len(crit):
-        dist = np.linalg.norm(crit - p, axis=1)
-        k = int(np.argmin(dist))
-        if dist[k] <= snap:
-            return crit[k].copy()
-    return p
+def _sign_changes(s: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Cyclic index pairs (k, k+1) where the Pareto sign flips; first index is the inside one."""
+    inside = s <= 0
+    nxt = np.roll(np.arange(len(s)), -1)
+    flip = np.nonzero(inside != inside[nxt])[0]
+    k_in = np.where(inside[flip], flip, nxt[flip])
+    k_out = np.where(inside[flip], nxt[flip], flip)
+    return k_in, k_out
+
+
+def _locate_ends(surface, fmap, pa: np.ndarray, pb: np.ndarray, tol: float,
+                 iters: int = 60) -> np.ndarray:
+    """Points of the Jacobi curve between pa (t1 . t2 <= 0) and pb (> 0) where it is zero.
+
+    Vectorised regula falsi (Illinois variant) on the Pareto sign, each trial point moved onto
+    the curve; stops when the bracket is below ``tol * size``.
+    """
+    pa, pb = pa.copy(), pb.copy()
+    sa, sb = _pareto_sign(surface, fmap, pa), _pareto_sign(surface, fmap, pb)
+    side = np.zeros(len(pa), dtype=int)
+    for _ in range(iters):
+        act = np.linalg.norm(pb - pa, axis=1) > tol * surface.size
+        if not act.any():
+            break
+        w = np.clip(sa[act] / np.where(sa[act] != sb[act], sa[act] - sb[act], 1.0), 0.05, 0.95)
+        p = _refine_on_jacobi(surface, fmap, pa[act] + w[:, None] * (pb[act] - pa[act]), tol)
+        sp = _pareto_sign(surface, fmap, p)
+        idx = np.nonzero(act)[0]
+        lo = sp <= 0
+        for j, k in enumerate(idx):
+            if lo[j]:
+                pa[k], sa[k] = p[j], sp[j]
+                if side[k] == -1:
+                    sb[k] *= 0.5
+                side[k] = -1
+            else:
+                pb[k], sb[k] = p[j], sp[j]
+                if side[k] == 1:
+                    sa[k] *= 0.5
+                side[k] = 1
+    return 0.5 * (pa + pb)
+
+
+def _pareto_ends(surface, fmap, cycles: list[np.ndarray], tol: float
+                 ) -> tuple[np.ndarray, np.ndarray]:
+    """All ends of Pareto arcs on the cycles and which gradient vanishes there (0 or 1)."""
+    pa, pb = [], []
+    for cyc in cycles:
+        k_in, k_out = _sign_changes(_pareto_sign(surface, fmap, cyc))
+        pa.append(cyc[k_in])
+        pb.append(cyc[k_out])
+    if not pa or sum(len(x) for x in pa) == 0:
+        return np.empty((0, 3)), np.empty(0, dtype=int)
+    ends = _locate_ends(surface, fmap, np.concatenate(pa), np.concatenate(pb), tol)
+    t = _tangential(surface, fmap, ends)
+    J = np.asarray(fmap.jacobian(ends), dtype=float)
+    rel = np.linalg.norm(t, axis=2) / np.maximum(np.linalg.norm(J, axis=2), 1e-300)
+    return ends, np.argmin(rel, axis=1)
 
 
 def _pareto_runs(surface, fmap, cyc: np.ndarray, crit: np.ndarray, snap: float, tol: float
                  ) -> list[np.ndarray]:
-    """Maximal Pareto arcs of one Jacobi cycle, with end points at critical points."""
+    """Maximal Pareto arcs of one Jacobi cycle; ends at critical points of f1 or f2.
+
+    Each end is located on the curve and replaced by the critical point within ``snap``.
+    """
     s = _pareto_sign(surface, fmap, cyc)
     inside = s <= 0
     if inside.all():
@@ -361,9 +422,9 @@ def _pareto_runs(surface, fmap, cyc: np.ndarray, crit: np.ndarray, snap: float, 
     if not inside.any():
         return []
     shift = int(np.nonzero(~inside)[0][0])
-    cyc, s, inside = np.roll(cyc, -shift, 0), np.roll(s, -shift), np.roll(inside, -shift)
+    cyc, inside = np.roll(cyc, -shift, 0), np.roll(inside, -shift)
     m = len(cyc)
-    runs = []
+    spans = []
     k = 0
     while k < m:
         if not inside[k]:
@@ -372,12 +433,44 @@ def _pareto_runs(surface, fmap, cyc: np.ndarray, crit: np.ndarray, snap: float, 
         j = k
         while j + 1 < m and inside[j + 1]:
             j += 1
-        b0 = _boundary_point(surface, fmap, cyc[k], cyc[k - 1], s[k], s[k - 1], crit, snap, tol)
-        j1 = (j + 1) % m
-        b1 = _boundary_point(surface, fmap, cyc[j], cyc[j1], s[j], s[j1], crit, snap, tol)
-        runs.append(np.concatenate([b0[None], cyc[k:j + 1], b1[None]]))
+        spans.append((k, j))
         k = j + 1
-    return runs
+    pa = np.array([cyc[k] for k, j in spans] + [cyc[j] for k, j in spans])
+    pb = np.array([cyc[k - 1] for k, j in spans] + [cyc[(j + 1) % m] for k, j in spans])
+    ends = _locate_ends(surface, fmap, pa, pb, tol)
+    if len(crit):
+        dist = np.linalg.norm(ends[:, None, :] - crit[None, :, :], axis=2)
+        near = np.argmin(dist, axis=1)
+        close = dist[np.arange(len(ends)), near] <= snap
+        ends[close] = crit[near[close]]
+    n = len(spans)
+    return [np.concatenate([ends[i][None], cyc[k:j + 1], ends[n + i][None]])
+            for i, (k, j) in enumerate(spans)]
+
+
+def _densify(surface, fmap, run: np.ndarray, tol: float, eps: float, rounds: int = 25
+             ) -> np.ndarray:
+    """Insert curve points into segments whose image step is not monotone (dx dy > 0).
+
+    Such a step hides a cusp (often next to a critical point); its 3-D chord midpoint is moved
+    onto the Jacobi curve and the test repeated, halving the segment each round.
+    """
+    min_len = 1e-7 * surface.size
+    cap = 4 * len(run) + 200
+    for _ in range(rounds):
+        if len(run) > cap:
+            break
+        Y = np.asarray(fmap.values(run), dtype=float)
+        d = np.diff(Y, axis=0)
+        seg = np.linalg.norm(np.diff(run, axis=0), axis=1)
+        bad = (d[:, 0] * d[:, 1] > 0) & (np.abs(d[:, 0]) > eps) & (np.abs(d[:, 1]) > eps)
+        bad &= seg > min_len
+        if not bad.any():
+            break
+        k = np.nonzero(bad)[0]
+        mids = _refine_on_jacobi(surface, fmap, 0.5 * (run[k] + run[k + 1]), tol)
+        run = np.insert(run, k + 1, mids, axis=0)
+    return run
 
 
 def _refine_cusp(surface, fmap, P: np.ndarray, k: int, tol: float) -> np.ndarray:
@@ -411,6 +504,7 @@ def _refine_cusp(surface, fmap, P: np.ndarray, k: int, tol: float) -> np.ndarray
 def _cut_at_cusps(surface, fmap, run: np.ndarray, closed: bool, tol: float, eps: float
                   ) -> list[np.ndarray]:
     """Split a Pareto arc into pieces whose images are monotone (3-D point lists)."""
+    run = _densify(surface, fmap, run, tol, eps)
     Y = np.asarray(fmap.values(run), dtype=float)
     keep = np.concatenate([[True], np.linalg.norm(np.diff(Y, axis=0), axis=1) > eps])
     run, Y = run[keep], Y[keep]
@@ -499,15 +593,22 @@ def smooth_grid(surface, fmap: SmoothMap, *, label: str = "f", resolution: int =
     V, T = surface.mesh(resolution)
     E, _ = _edges(T)
     spacing = _mesh_spacing(V, E)
-    cps = [critical_points(surface, fmap, i, resolution, tol=min(tol, 1e-10), mesh=(V, T))
-           for i in (0, 1)]
+    ctol = min(tol, 1e-10)
+    cycles = jacobi_cycles(surface, fmap, V, T, tol)
+    located, vanishing = _pareto_ends(surface, fmap, cycles, ctol)
+    cps = []
+    for i in (0, 1):
+        found = _refine_seeds(surface, fmap, i, V[_seed_vertices(surface, fmap, i, V, E)], ctol, [])
+        if len(located):
+            found = _refine_seeds(surface, fmap, i, located[vanishing == i], ctol, found)
+        cps.append(found)
     crit = np.array([c.point for c in cps[0] + cps[1]]).reshape(-1, 3)
     vals = np.asarray(fmap.values(V), dtype=float)
     vscale = float(max(np.ptp(vals[:, 0]), np.ptp(vals[:, 1]), 1e-300))
     eps = 1e-12 * vscale
     pieces: list[np.ndarray] = []
-    for cyc in jacobi_cycles(surface, fmap, V, T, tol):
-        for run in _pareto_runs(surface, fmap, cyc, crit, 3.0 * spacing, tol):
+    for cyc in cycles:
+        for run in _pareto_runs(surface, fmap, cyc, crit, 1e-6 * surface.size, ctol):
             closed = bool(np.linalg.norm(run[0] - run[-1]) <= 1e-12 * surface.size and len(run) > 3)
             for piece in _cut_at_cusps(surface, fmap, run, closed, tol, eps):
                 Y = np.asarray(fmap.values(piece), dtype=float)
