@@ -1,0 +1,171 @@
+"""Summaries of perturbation run sets: counts, a Wilson interval, means, maxima and a verdict.
+
+Pure functions of the run records (the dicts written to ``runs.jsonl``) and the base summary.
+
+References
+----------
+.. [Wil27] Wilson, "Probable inference, the law of succession, and statistical inference",
+   J. Amer. Statist. Assoc. 22 (1927). The score interval for a binomial proportion.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+from typing import Any
+
+__all__ = ["wilson_interval", "summarize_runs", "verdict", "sweep_row"]
+
+Z95 = 1.959963984540054
+"""Two-sided 95% normal quantile."""
+
+
+def wilson_interval(successes: int, trials: int, z: float = Z95) -> tuple[float, float]:
+    """Wilson score interval for a binomial proportion [Wil27].
+
+    Parameters
+    ----------
+    successes, trials : int
+        0 <= successes <= trials.
+    z : float
+        Normal quantile (1.96 for 95%).
+
+    Returns
+    -------
+    (lo, hi) : tuple of float
+        Bounds in [0, 1]; (0, 1) when ``trials == 0``.
+
+    Examples
+    --------
+    >>> lo, hi = wilson_interval(0, 50, z=1.96)
+    >>> lo, round(hi, 4)
+    (0.0, 0.0714)
+    """
+    if trials < 0 or not 0 <= successes <= trials:
+        raise ValueError(f"need 0 <= successes <= trials, got {successes} of {trials}")
+    if trials == 0:
+        return 0.0, 1.0
+    n = float(trials)
+    p = successes / n
+    z2 = z * z
+    denom = 1.0 + z2 / n
+    center = (p + z2 / (2.0 * n)) / denom
+    half = z / denom * math.sqrt(p * (1.0 - p) / n + z2 / (4.0 * n * n))
+    lo = 0.0 if successes == 0 else max(0.0, center - half)
+    hi = 1.0 if successes == trials else min(1.0, center + half)
+    return lo, hi
+
+
+def _mean_max(values: Sequence[float]) -> dict[str, float | None]:
+    vals = [float(v) for v in values if v is not None and math.isfinite(float(v))]
+    if not vals:
+        return {"mean": None, "max": None}
+    return {"mean": sum(vals) / len(vals), "max": max(vals)}
+
+
+def _pct(x: float) -> str:
+    v = 100.0 * x
+    if v == 0.0 or v >= 99.95:
+        return f"{v:.0f}"
+    return f"{v:.2g}" if v < 1.0 else f"{v:.1f}".rstrip("0").rstrip(".")
+
+
+def verdict(base: dict[str, Any], n_runs: int, with_patch: int, ci: tuple[float, float], size: float,
+            window_area: float) -> str:
+    """One sentence: the base special set, then how many perturbed runs had a patch.
+
+    Examples
+    --------
+    >>> verdict({"total_area": 0.84, "counts": {"patch": 1, "curve": 0, "point": 0}},
+    ...         50, 0, (0.0, 0.0713), 1e-3, 0.84)
+    'The base special set has 1 patch (area 0.84, 100% of the window); 0 of 50 perturbed runs of size 0.001 kept a patch (95% CI 0-7.1%).'
+    """
+    counts = base.get("counts", {})
+    n_patch = int(counts.get("patch", 0))
+    lo, hi = ci
+    ci_text = f"95% CI {_pct(lo)}-{_pct(hi)}%"
+    if n_patch:
+        area = float(base.get("total_area", 0.0))
+        share = area / window_area if window_area > 0 else 0.0
+        head = (f"The base special set has {n_patch} patch{'es' if n_patch > 1 else ''} "
+                f"(area {area:.3g}, {_pct(share)}% of the window)")
+        verb = "kept"
+    else:
+        n_curve = int(counts.get("curve", 0))
+        head = (f"The base special set has no patch ({n_curve} curve{'s' if n_curve != 1 else ''}, "
+                f"{int(counts.get('point', 0))} isolated points)")
+        verb = "gained"
+    return (f"{head}; {with_patch} of {n_runs} perturbed runs of size {size:g} {verb} a patch "
+            f"({ci_text}).")
+
+
+def summarize_runs(records: Sequence[dict[str, Any]], *, base: dict[str, Any], size: float, model: str,
+                   window_area: float, runs_per_minute: float | None = None,
+                   runs_per_minute_basis: str | None = None) -> dict[str, Any]:
+    """The summary of one run set (one size).
+
+    Parameters
+    ----------
+    records : sequence of dict
+        Run records as written to ``runs.jsonl`` (one per run index).
+    base : dict
+        ``{"total_area", "counts"}`` (and optionally ``"distance"``) of the unperturbed pair.
+    size : float
+    model : {"function", "grid"}
+    window_area : float
+    runs_per_minute : float, optional
+    runs_per_minute_basis : str, optional
+        How the rate was measured.
+
+    Returns
+    -------
+    dict
+        JSON-ready; keys listed in :func:`specmap.perturb.runs.run_study`.
+    """
+    recs = sorted(records, key=lambda r: int(r["run"]))
+    n = len(recs)
+    with_patch = sum(1 for r in recs if int(r["counts"].get("patch", 0)) > 0)
+    ci = wilson_interval(with_patch, n)
+    dist_recs = [r["distance"] for r in recs if r.get("distance")]
+    distance = None
+    if dist_recs:
+        changes = [abs(float(d["change"])) for d in dist_recs]
+        distance = {
+            "base": base.get("distance"),
+            "abs_change": _mean_max(changes),
+            "bound": _mean_max([float(d["bound"]) for d in dist_recs]),
+            "runs": len(dist_recs),
+        }
+    violations = sum(1 for r in recs if r.get("stability_ok") is False)
+    return {
+        "runs": n,
+        "size": float(size),
+        "model": model,
+        "base": {"total_area": float(base.get("total_area", 0.0)), "counts": dict(base.get("counts", {}))},
+        "runs_with_patch": with_patch,
+        "runs_with_patch_ci95": [ci[0], ci[1]],
+        "total_area": _mean_max([r["total_area"] for r in recs]),
+        "hausdorff": _mean_max([r["hausdorff"] for r in recs]),
+        "distance": distance,
+        "stability_violations": violations,
+        "verdict": verdict(base, n, with_patch, ci, size, window_area),
+        "sweep": None,
+        "runs_per_minute": runs_per_minute,
+        "runs_per_minute_basis": runs_per_minute_basis,
+    }
+
+
+def sweep_row(summary: dict[str, Any]) -> dict[str, Any]:
+    """One row of a size sweep, taken from the summary of that size's run set."""
+    dist = summary.get("distance")
+    return {
+        "size": summary["size"],
+        "runs": summary["runs"],
+        "runs_with_patch": summary["runs_with_patch"],
+        "runs_with_patch_ci95": summary["runs_with_patch_ci95"],
+        "total_area_mean": summary["total_area"]["mean"],
+        "hausdorff_mean": summary["hausdorff"]["mean"],
+        "hausdorff_max": summary["hausdorff"]["max"],
+        "distance_change_max": dist["abs_change"]["max"] if dist else None,
+        "stability_violations": summary["stability_violations"],
+    }
