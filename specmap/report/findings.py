@@ -1,0 +1,202 @@
+"""Plain sentences from the numbers of a result folder.
+
+Each sentence states one finding with its tolerance where the result file
+records one. Sentences that report a disagreement between the computation and
+the theory start with ``WARNING:``.
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Any
+
+from specmap.report.fmt import fmt, fmt_interval, fmt_pct, fmt_point, fraction_interval, num, plural
+
+WARNING = "WARNING:"
+
+
+def _tol(x: Any) -> str:
+    return f" (tolerance {fmt(x, 3)})" if x is not None else ""
+
+
+def _grid_sentences(res: dict[str, Any]) -> list[str]:
+    out = []
+    for name in ("f", "g"):
+        grid = res.get(f"grid_{name}")
+        if not grid:
+            continue
+        kinds = [c.get("kind") for c in grid.get("contours", [])]
+        out.append(
+            f"The extended Pareto grid of {name} has {plural(len(kinds), 'contour')}: "
+            f"{kinds.count('proper')} proper, {kinds.count('vertical')} vertical and "
+            f"{kinds.count('horizontal')} horizontal half-lines (route {grid.get('route', 'n/a')})"
+            f"{_tol(grid.get('tolerance'))}."
+        )
+    return out
+
+
+def _perturb_tail(res: dict[str, Any]) -> str:
+    """``"; none survived 200 perturbations of size 0.001"`` or ``""``."""
+    pert = res.get("perturb") or {}
+    s = pert.get("summary")
+    if not s:
+        return ""
+    runs, k = int(num(s.get("runs")) or 0), s.get("runs_with_patch")
+    if k is None:
+        return ""
+    k = int(num(k))
+    if k == 0:
+        return f"; none survived {runs} perturbations of size {fmt(s.get('size'), 3)}"
+    return (f"; a patch persisted in {k} of {runs} perturbations of size {fmt(s.get('size'), 3)}"
+            f" (95% interval for the fraction {fmt_interval(fraction_interval(s.get('runs_with_patch_ci95'), runs))})")
+
+
+def _special_sentences(res: dict[str, Any]) -> list[str]:
+    sp = res.get("special")
+    if not sp:
+        return []
+    c = sp.get("counts") or {}
+    n_curve, n_patch, n_point = (int(num(c.get(k, 0))) for k in ("curve", "patch", "point"))
+    win = sp.get("window") or {}
+    out = [
+        f"In the window a in {fmt_interval(win.get('a'))}, b in {fmt_interval(win.get('b'))} the special "
+        f"set has {plural(n_curve, 'curve')}, {plural(n_patch, 'patch', 'patches')} and "
+        f"{plural(n_point, 'isolated point')}, found with method {sp.get('method', 'n/a')} at resolution "
+        f"{sp.get('resolution', 'n/a')} over {sp.get('pairs', 'n/a')} pairs{_tol(sp.get('tolerance'))}."
+    ]
+    tail = _perturb_tail(res)
+    if n_patch:
+        verb = "covers" if n_patch == 1 else "cover"
+        out.append(f"{plural(n_patch, 'patch', 'patches')} {verb} {fmt_pct(sp.get('area_fraction'))} of the "
+                   f"window (total area {fmt(sp.get('total_area'))}){tail}.")
+    else:
+        out.append("No patch was found: at this resolution and tolerance the special set has zero area"
+                   f"{tail.replace('none survived', 'no patch appeared in')}.")
+    return out
+
+
+def _reached(on: Any, at: Any, comp: Any) -> str:
+    at = at or [math.nan, math.nan]
+    b = fmt(at[1]) if len(at) > 1 else "n/a"
+    if on == "slope-one":
+        return f"reached on the slope-one line at b = {b}"
+    where = f"at (a, b) = {fmt_point(at)}" + (f" (component {comp})" if comp is not None else "")
+    if on == "special":
+        return f"reached on the special set {where}"
+    if on == "both":
+        return f"reached both on the slope-one line and on the special set, {where}"
+    return f"reached {where}"
+
+
+def _distance_sentences(res: dict[str, Any]) -> list[str]:
+    d = res.get("distance")
+    if not d:
+        return []
+    out = []
+    by = d.get("by_degree") or {}
+    value = num(d.get("value"))
+    degs = [k for k, v in by.items() if num((v or {}).get("value")) == value]
+    deg = f" (degree {', '.join(degs)})" if degs else ""
+    out.append(f"The matching distance is {fmt(value)}{deg}, "
+               f"{_reached(d.get('reached_on'), d.get('at'), d.get('component'))}{_tol(d.get('tolerance'))}.")
+    if len(by) > 1:
+        parts = [f"D_{k} = {fmt((v or {}).get('value'))} ({(v or {}).get('reached_on', 'n/a')})"
+                 for k, v in sorted(by.items(), key=lambda kv: int(num(kv[0])) if kv[0].isdigit() else 0)]
+        out.append("Per degree: " + "; ".join(parts) + ".")
+    inf = d.get("infinite") or []
+    if inf:
+        out.append(f"Infinite costs were recorded for: {', '.join(str(x) for x in inf)} "
+                   "(unmatched essential classes); they are excluded from the finite value.")
+    dense, red = d.get("dense"), d.get("reduced")
+    if dense and red:
+        out.append(f"The dense sweep ({dense.get('lines', 'n/a')} lines, {fmt(dense.get('seconds'), 3)} s) "
+                   f"gives {fmt(dense.get('value'))} with error bound {fmt(dense.get('error_bound'), 3)}; the "
+                   f"reduced search ({red.get('lines', 'n/a')} lines, {fmt(red.get('seconds'), 3)} s) gives "
+                   f"{fmt(red.get('value'))}.")
+    elif dense:
+        out.append(f"Only the dense sweep was run ({dense.get('lines', 'n/a')} lines): "
+                   f"{fmt(dense.get('value'))} with error bound {fmt(dense.get('error_bound'), 3)}.")
+    elif red:
+        out.append(f"Only the reduced search was run ({red.get('lines', 'n/a')} lines): {fmt(red.get('value'))}; "
+                   "no dense sweep checks it.")
+    audit = d.get("audit") or {}
+    if audit.get("theorem_gap"):
+        line = audit.get("line")
+        at = fmt_point(line) if isinstance(line, list) else str(line)
+        out.append(f"{WARNING} the dense sweep exceeds the reduced search by {fmt(audit.get('gap'))} at "
+                   f"(a, b) = {at}: the computation disagrees with the theorem's reduction here"
+                   f"{_tol(d.get('tolerance'))}.")
+    elif "theorem_gap" in audit:
+        out.append(f"The dense sweep does not exceed the reduced search beyond the tolerance "
+                   f"(gap {fmt(audit.get('gap'))}){_tol(d.get('tolerance'))}.")
+    pos = audit.get("position") or {}
+    if pos:
+        frac = num(pos.get("fraction_explained"))
+        txt = (f"{fmt_pct(frac)} of diagram coordinates on {pos.get('lines', 'n/a')} audited lines are push "
+               f"coordinates of grid contours (max deviation {fmt(pos.get('max_deviation'), 3)})")
+        if math.isfinite(frac) and frac < 1.0:
+            out.append(f"{WARNING} only {txt}: the position theorem is not met numerically; the grids may "
+                       "be incomplete or the tolerance too tight.")
+        else:
+            out.append(txt[0].upper() + txt[1:] + ", as the position theorem requires.")
+    return out
+
+
+def _perturb_sentences(res: dict[str, Any]) -> list[str]:
+    pert = res.get("perturb") or {}
+    s = pert.get("summary")
+    if not s:
+        return []
+    runs = int(num(s.get("runs")) or 0)
+    k = int(num(s.get("runs_with_patch"))) if s.get("runs_with_patch") is not None else None
+    ta, hd = s.get("total_area") or {}, s.get("hausdorff") or {}
+    out = [f"{runs} perturbed runs ({s.get('model', 'n/a')} model, size {fmt(s.get('size'), 3)}): "
+           + (f"{k} had a patch (95% interval for the fraction "
+              f"{fmt_interval(fraction_interval(s.get('runs_with_patch_ci95'), runs))}); " if k is not None else "")
+           + f"total patch area mean {fmt(ta.get('mean'), 3)}, max {fmt(ta.get('max'), 3)}; Hausdorff distance "
+           f"of the special set mean {fmt(hd.get('mean'), 3)}, max {fmt(hd.get('max'), 3)}."]
+    viol = s.get("stability_violations")
+    if viol is not None and int(num(viol)) > 0:
+        out.append(f"{WARNING} {int(num(viol))} perturbed runs changed the matching distance by more than the "
+                   "perturbation size allows: this contradicts the stability theorem and points to a numerical "
+                   "error.")
+    elif viol is not None and s.get("distance"):
+        out.append("Every perturbed run respected the stability bound on the matching distance.")
+    sweep = s.get("sweep") or []
+    if len(sweep) >= 2:
+        rows = sorted(sweep, key=lambda r: num(r.get("size")))
+        parts = [f"{int(num(r.get('runs_with_patch')))}/{int(num(r.get('runs')))} at size {fmt(r.get('size'), 3)}"
+                 for r in rows]
+        out.append("Size sweep, runs with a patch: " + ", ".join(parts) + ".")
+    if s.get("verdict"):
+        out.append(f"Verdict of the perturbation study: {s['verdict']}")
+    return [t if t.endswith(".") else t + "." for t in out]
+
+
+def findings(results: dict[str, Any]) -> list[str]:
+    """Sentences stating what the result files show.
+
+    Parameters
+    ----------
+    results : dict
+        As returned by :func:`specmap.report.load.load_results`: keys
+        ``grid_f``, ``grid_g``, ``special``, ``distance``, ``perturb``
+        (``{"summary", "runs"}``); absent stages may be ``None`` or missing.
+
+    Returns
+    -------
+    list of str
+        One finding per sentence; disagreements with the theory start with
+        ``"WARNING:"`` and come first.
+
+    Examples
+    --------
+    >>> findings({"special": {"counts": {"curve": 2, "patch": 0, "point": 0}, "tolerance": 1e-6}})[1]
+    'No patch was found: at this resolution and tolerance the special set has zero area.'
+    """
+    out = (_grid_sentences(results) + _special_sentences(results) + _distance_sentences(results)
+           + _perturb_sentences(results))
+    if not out:
+        out = ["No stage has written results yet: there is nothing to report."]
+    loud = [s for s in out if s.startswith(WARNING)]
+    return loud + [s for s in out if not s.startswith(WARNING)]

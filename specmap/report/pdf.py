@@ -1,0 +1,483 @@
+"""The PDF report of one result folder (matplotlib ``PdfPages`` only).
+
+Pages, each present only when its stage was run:
+
+1. cover -- study, shapes and maps, window, tolerances, version, date,
+   command lines, and which stages were run (a missing stage says "not run");
+2. grids -- both extended Pareto grids;
+3. special set -- the map and a component table;
+4. matching distance -- landscape, value per degree, where it is reached, audits;
+5. perturbations -- distributions, runs with a patch, size sweep, verdict;
+6. findings -- plain sentences (:func:`specmap.report.findings.findings`);
+7. methods appendix -- definitions, references, tolerances, caution.
+
+Text pages flow onto continuation pages, so nothing is clipped or overlaps.
+"""
+
+from __future__ import annotations
+
+import datetime as _dt
+import textwrap
+from collections.abc import Callable
+from pathlib import Path
+from typing import Any
+
+from matplotlib.backends.backend_pdf import PdfPages
+from matplotlib.figure import Figure, FigureBase
+
+from specmap.errors import ResultsError
+from specmap.report.figures import grids_figure, landscape_figure, perturb_figure, save_png, special_figure
+from specmap.report.findings import WARNING, findings
+from specmap.report.fmt import fmt, fmt_interval, fmt_pct, fmt_point, fraction_interval, num
+from specmap.report.load import STAGE_VERB, load_results
+
+A4 = (8.27, 11.69)
+LEFT, TOP, BOTTOM = 0.08, 0.955, 0.055
+TEXT_PT = 9.5
+MONO_PT = 8.0
+MAX_TABLE_ROWS = 18
+RED = "#b00020"
+
+
+class _Pager:
+    """Writes A4 pages: an optional figure on top, then flowing text."""
+
+    def __init__(self, pdf: PdfPages, study_name: str) -> None:
+        self.pdf = pdf
+        self.study_name = study_name
+        self.page_no = 0
+        self.fig: Figure | None = None
+        self.y = TOP
+        self.title = ""
+
+    # -- pages ---------------------------------------------------------------
+    def page(self, title: str, plot_height: float = 0.0) -> FigureBase | None:
+        """Start a page; return a subfigure of ``plot_height`` (fraction of the page) to draw into."""
+        self.close()
+        self.title = title
+        self.fig = Figure(figsize=A4)
+        self.page_no += 1
+        self.fig.text(LEFT, TOP, title, fontsize=15, weight="bold", va="top", parse_math=False)
+        self.fig.text(0.5, 0.022, f"specmap report: {self.study_name}   page {self.page_no}",
+                      fontsize=8, ha="center", color="0.35", parse_math=False)
+        self.y = TOP - 0.04
+        if plot_height <= 0:
+            return None
+        head = 1.0 - self.y + 0.005
+        _, sub, _ = self.fig.subfigures(3, 1, height_ratios=[head, plot_height, 1.0 - head - plot_height])
+        self.fig.set_layout_engine("constrained")
+        self.y = 1.0 - head - plot_height - 0.01
+        return sub
+
+    def close(self) -> None:
+        if self.fig is not None:
+            self.pdf.savefig(self.fig)
+            self.fig = None
+
+    # -- text ------------------------------------------------------------------
+    def _room(self, height: float) -> None:
+        if self.fig is None or self.y - height < BOTTOM:
+            self.page(self.title + (" (continued)" if "(continued)" not in self.title else ""))
+
+    def _line(self, text: str, size: float, **kw: Any) -> None:
+        step = size * 1.45 / 72.0 / A4[1]
+        self._room(step)
+        assert self.fig is not None
+        self.fig.text(LEFT + kw.pop("indent", 0.0), self.y, text, fontsize=size, va="top",
+                      parse_math=False, **kw)
+        self.y -= step
+
+    def heading(self, text: str) -> None:
+        self.gap(0.6)
+        self._room(0.06)
+        self._line(text, 11.5, weight="bold")
+        self.gap(0.2)
+
+    def gap(self, lines: float = 1.0) -> None:
+        self.y -= lines * TEXT_PT * 1.45 / 72.0 / A4[1]
+
+    def para(self, text: str, size: float = TEXT_PT, *, indent: float = 0.0, **kw: Any) -> None:
+        width_pt = (1.0 - 2 * LEFT - indent) * A4[0] * 72.0
+        chars = max(20, int(width_pt / (0.56 * size)))
+        for i, line in enumerate(textwrap.wrap(text, chars) or [""]):
+            self._line(line, size, indent=indent + (0.02 if i else 0.0), **kw)
+
+    def field(self, key: str, value: Any) -> None:
+        self.para(f"{key}: {value}")
+
+    def mono(self, line: str, **kw: Any) -> None:
+        chars = int((1.0 - 2 * LEFT) * A4[0] * 72.0 / (0.61 * MONO_PT))
+        for i, piece in enumerate(textwrap.wrap(line, chars, drop_whitespace=False,
+                                                subsequent_indent="    ") or [""]):
+            self._line(piece if i else piece, MONO_PT, family="DejaVu Sans Mono", **kw)
+
+    def warn(self, text: str) -> None:
+        self.para(text, color=RED, weight="bold")
+
+
+# -- helpers ---------------------------------------------------------------------
+def _draw(stage: str, file: str, draw: Callable[[], FigureBase]) -> FigureBase:
+    """Run a figure function; a malformed result file becomes a ResultsError."""
+    try:
+        return draw()
+    except (ValueError, KeyError, TypeError, IndexError) as exc:
+        raise ResultsError(f"cannot draw the {stage} figure ({exc})", file=file, field="(contents)",
+                           fix=f"rerun specmap {STAGE_VERB[stage]} to rewrite it") from None
+
+
+def _describe_shape(spec: Any) -> str:
+    if not isinstance(spec, dict):
+        return str(spec) if spec is not None else "n/a"
+    desc = spec.get("description") or ""
+    src = spec.get("source")
+    return f"{desc} (source: {src})" if src and src not in desc else (desc or f"source: {src}")
+
+
+def _tie_text(tie: dict[str, Any]) -> str:
+    pairs = tie.get("pairs") or []
+    p = ["-".join(str(x) for x in pair) for pair in pairs]
+    if len(p) < 2:
+        return str(tie)
+    if tie.get("condition") == "half":
+        return f"|{p[0]}| = 2|{p[1]}|"
+    return f"|{p[0]}| = |{p[1]}|"
+
+
+def _short_dict(d: Any, limit: int = 8) -> str:
+    if not isinstance(d, dict) or not d:
+        return "n/a"
+    items = [f"{k}={fmt(v) if isinstance(v, (int, float)) and not isinstance(v, bool) else v}"
+             for k, v in list(d.items())[:limit]]
+    more = f", and {len(d) - limit} more" if len(d) > limit else ""
+    return ", ".join(items) + more
+
+
+# -- pages -------------------------------------------------------------------------
+def _cover(pg: _Pager, res: dict[str, Any]) -> None:
+    st = res["study"]
+    pg.page("specmap report")
+    pg.para(f"Study: {st.get('name', 'n/a')}", 14, weight="bold")
+    pg.field("Study file", st.get("study_file", "n/a"))
+    pg.field("Seed", st.get("seed", "n/a"))
+    pg.heading("Shapes and maps")
+    pg.field("f", _describe_shape(st.get("f")))
+    pg.field("g", _describe_shape(st.get("g")))
+    win = st.get("window") or {}
+    pg.field("Window", f"a in {fmt_interval(win.get('a'))}, b in {fmt_interval(win.get('b'))}")
+    pg.heading("Stages")
+    stages = res["stages"]
+    gf, gg = res.get("grid_f"), res.get("grid_g")
+    details = {
+        "grids": (f"run: {len((gf or {}).get('contours', []))} contours in grid f, "
+                  f"{len((gg or {}).get('contours', []))} in grid g"
+                  + ("" if gf and gg else " (one grid file is missing)")),
+        "special": "run: special set atlas (special.json"
+                   + (", special.geojson)" if res.get("geojson") else "; special.geojson missing)"),
+        "distance": "run: matching distance (distance.json)",
+        "perturb": f"run: {len((res.get('perturb') or {}).get('runs') or [])} perturbation records",
+    }
+    names = {"grids": "Extended Pareto grids", "special": "Special set", "distance": "Matching distance",
+             "perturb": "Perturbation study"}
+    for key, title in names.items():
+        if stages[key]:
+            pg.field(title, details[key])
+        else:
+            pg.field(title, f"not run (no result file; run specmap {STAGE_VERB[key]})")
+    pg.heading("Tolerances")
+    for label, src in (("grid f", gf), ("grid g", gg), ("special set", res.get("special")),
+                       ("matching distance", res.get("distance"))):
+        if src is not None:
+            pg.field(label, fmt(src.get("tolerance"), 3))
+    pg.heading("Provenance")
+    pg.field("specmap version", st.get("specmap_version", "n/a"))
+    pg.field("Report date", _dt.datetime.now().isoformat(timespec="seconds"))
+    cmds = st.get("commands") or []
+    pg.para(f"Command lines ({len(cmds)}):")
+    for c in cmds:
+        if isinstance(c, dict):
+            pg.mono(f"{c.get('date', '')}  {c.get('command', '')}")
+        else:
+            pg.mono(str(c))
+
+
+def _grids_page(pg: _Pager, res: dict[str, Any]) -> None:
+    sub = pg.page("Extended Pareto grids", 0.6)
+    _draw("grids", "grid_f.json / grid_g.json", lambda: grids_figure(res.get("grid_f"), res.get("grid_g"),
+                                                                        fig=sub))
+    for name in ("f", "g"):
+        grid = res.get(f"grid_{name}")
+        if grid is None:
+            pg.para(f"Grid {name}: grid_{name}.json is missing.")
+            continue
+        kinds = [c.get("kind") for c in grid.get("contours", [])]
+        pg.para(f"Grid {name}: {len(kinds)} contours ({kinds.count('proper')} proper, "
+                f"{kinds.count('vertical')} vertical, {kinds.count('horizontal')} horizontal); route "
+                f"{grid.get('route', 'n/a')}; tolerance {fmt(grid.get('tolerance'), 3)}; "
+                f"meta: {_short_dict(grid.get('meta'))}.")
+    pg.para("Solid: proper contours (images of the Pareto critical set). Dashed: improper contours, "
+            "half-lines from a critical value, drawn from their start (o) to the plot edge (arrow head).",
+            8.5, color="0.3")
+
+
+def _component_rows(comps: list[dict[str, Any]]) -> list[dict[str, Any]]:
+    order = {"patch": 0, "point": 1, "curve": 2}
+    return sorted(comps, key=lambda c: (order.get(str(c.get("kind")), 3), -num(c.get("area") or 0),
+                                        -num(c.get("length") or 0)))
+
+
+def _special_page(pg: _Pager, res: dict[str, Any]) -> None:
+    sp = res["special"]
+    sub = pg.page("Special set", 0.52)
+    _draw("special", "special.json", lambda: special_figure(sp, res.get("geojson"), fig=sub))
+    c = sp.get("counts") or {}
+    pg.para(f"Components: {c.get('curve', 0)} curves, {c.get('patch', 0)} patches, {c.get('point', 0)} points. "
+            f"Total patch area {fmt(sp.get('total_area'))} = {fmt_pct(sp.get('area_fraction'))} of the window. "
+            f"Method {sp.get('method', 'n/a')}, resolution {sp.get('resolution', 'n/a')}, pairs "
+            f"{sp.get('pairs', 'n/a')}, tolerance {fmt(sp.get('tolerance'), 3)}.")
+    if sp.get("stats"):
+        pg.para(f"Statistics: {_short_dict(sp.get('stats'), 10)}.", 8.5)
+    if res.get("geojson") is None:
+        pg.warn("special.geojson is missing: components are drawn as their bounding boxes.")
+    comps = _component_rows(list(sp.get("components") or []))
+    pg.heading("Components")
+    shown = comps[:MAX_TABLE_ROWS]
+    if len(comps) > len(shown):
+        pg.para(f"Table truncated: the first {len(shown)} of {len(comps)} components are listed "
+                "(patches, then points, then curves; larger first). All are in special.json.", 8.5)
+    pg.mono(f"{'id':<10}{'kind':<7}{'area':>11}{'length':>11}  bbox [a_min, b_min, a_max, b_max]")
+    for comp in shown:
+        bbox = comp.get("bbox") or []
+        bb = "[" + ", ".join(fmt(x, 3) for x in bbox) + "]" if bbox else "n/a"
+        pg.mono(f"{str(comp.get('id')):<10}{str(comp.get('kind')):<7}{fmt(comp.get('area'), 3):>11}"
+                f"{fmt(comp.get('length'), 3):>11}  {bb}")
+        ties = comp.get("ties") or []
+        if ties:
+            more = f"  (+{len(ties) - 2} more ties)" if len(ties) > 2 else ""
+            pg.mono("    ties: " + "; ".join(_tie_text(t) for t in ties[:2]) + more, color="0.3")
+    if len(comps) > len(shown):
+        pg.mono(f"... and {len(comps) - len(shown)} more components (not listed)")
+
+
+def _distance_page(pg: _Pager, res: dict[str, Any]) -> None:
+    d = res["distance"]
+    st = res["study"]
+    sub = pg.page("Matching distance", 0.5)
+    _draw("distance", "distance.json",
+          lambda: landscape_figure(d, res.get("geojson"), window=st.get("window"), fig=sub))
+    pg.para(f"Matching distance D = {fmt(d.get('value'))}, reached on {d.get('reached_on', 'n/a')} at "
+            f"(a, b) = {fmt_point(d.get('at'))}"
+            + (f", component {d['component']}" if d.get("component") is not None else "")
+            + f"; tolerance {fmt(d.get('tolerance'), 3)}.")
+    by = d.get("by_degree") or {}
+    if by:
+        pg.mono(f"{'degree':<8}{'value':>12}  {'at (a, b)':<24}reached on")
+        for k, v in by.items():
+            v = v or {}
+            pg.mono(f"{k:<8}{fmt(v.get('value')):>12}  {fmt_point(v.get('at')):<24}{v.get('reached_on', 'n/a')}")
+    if d.get("infinite"):
+        pg.para(f"Infinite costs: {', '.join(str(x) for x in d['infinite'])}.")
+    pg.heading("Dense sweep and reduced search")
+    dense, red = d.get("dense"), d.get("reduced")
+    if dense:
+        pg.para(f"Dense sweep: {fmt(dense.get('value'))} at {fmt_point(dense.get('at'))}; "
+                f"{dense.get('lines', 'n/a')} lines in {fmt(dense.get('seconds'), 3)} s; error bound "
+                f"{fmt(dense.get('error_bound'), 3)}.")
+    else:
+        pg.para("Dense sweep: not run.")
+    if red:
+        pg.para(f"Reduced search: {fmt(red.get('value'))} at {fmt_point(red.get('at'))}; "
+                f"{red.get('lines', 'n/a')} lines in {fmt(red.get('seconds'), 3)} s; pruned: "
+                f"{_short_dict(red.get('pruned'))}.")
+    else:
+        pg.para("Reduced search: not run.")
+    pg.heading("Audits")
+    audit = d.get("audit") or {}
+    if not audit:
+        pg.para("No audit was recorded.")
+    elif audit.get("theorem_gap"):
+        pg.warn(f"{WARNING} theorem audit failed: the dense sweep exceeds the reduced search by "
+                f"{fmt(audit.get('gap'))} on the line {audit.get('line')}. The computation disagrees with "
+                "the reduction to slope-one lines and special values here.")
+    else:
+        pg.para(f"Theorem audit passed: the dense sweep does not exceed the reduced search "
+                f"(gap {fmt(audit.get('gap'))}, tolerance {fmt(d.get('tolerance'), 3)}).")
+    pos = audit.get("position") or {}
+    if pos:
+        frac = num(pos.get("fraction_explained"))
+        text = (f"Position audit: {fmt_pct(frac)} of diagram coordinates on {pos.get('lines', 'n/a')} lines "
+                f"are push coordinates of grid contours; max deviation {fmt(pos.get('max_deviation'), 3)}.")
+        pg.warn(WARNING + " " + text) if frac < 1.0 else pg.para(text)
+
+
+def _perturb_page(pg: _Pager, res: dict[str, Any]) -> None:
+    s = res["perturb"]["summary"]
+    runs = res["perturb"]["runs"]
+    sub = pg.page("Perturbation study", 0.5 if s.get("sweep") else 0.3)
+    _draw("perturb", "perturb/summary.json", lambda: perturb_figure(s, runs, fig=sub))
+    n = s.get("runs")
+    ci = fraction_interval(s.get("runs_with_patch_ci95"), n)
+    base = s.get("base") or {}
+    pg.para(f"{n} runs, model {s.get('model', 'n/a')}, size {fmt(s.get('size'), 3)} "
+            f"({len(runs)} run records read from runs.jsonl).")
+    pg.para(f"Unperturbed: total patch area {fmt(base.get('total_area'))}, counts "
+            f"{_short_dict(base.get('counts'))}.")
+    pg.para(f"Runs with a patch: {s.get('runs_with_patch', 'n/a')} of {n} "
+            f"(95% interval for the fraction {fmt_interval(ci)}).")
+    ta, hd = s.get("total_area") or {}, s.get("hausdorff") or {}
+    pg.para(f"Total patch area: mean {fmt(ta.get('mean'), 3)}, max {fmt(ta.get('max'), 3)}. Hausdorff "
+            f"distance to the unperturbed special set: mean {fmt(hd.get('mean'), 3)}, max {fmt(hd.get('max'), 3)}.")
+    if s.get("distance"):
+        pg.para(f"Matching distance under perturbation: {_short_dict(s.get('distance'))}.")
+    viol = s.get("stability_violations")
+    if viol is not None and num(viol) > 0:
+        pg.warn(f"{WARNING} {viol} runs violate the stability bound of the matching distance.")
+    else:
+        pg.para(f"Stability violations: {viol if viol is not None else 'n/a'}.")
+    if s.get("runs_per_minute") is not None:
+        pg.para(f"Throughput: {fmt(s.get('runs_per_minute'), 3)} runs per minute.")
+    sweep = s.get("sweep") or []
+    if sweep:
+        pg.heading("Size sweep")
+        pg.mono(f"{'size':>10}{'runs':>7}{'patch':>7}  {'95% interval':<20}{'area mean':>11}{'Hausdorff mean':>16}")
+        for r in sorted(sweep, key=lambda r: num(r.get("size"))):
+            iv = fmt_interval(fraction_interval(r.get("runs_with_patch_ci95"), r.get("runs")))
+            pg.mono(f"{fmt(r.get('size'), 3):>10}{str(r.get('runs')):>7}{str(r.get('runs_with_patch')):>7}  "
+                    f"{iv:<20}{fmt((r.get('total_area') or {}).get('mean'), 3):>11}"
+                    f"{fmt((r.get('hausdorff') or {}).get('mean'), 3):>16}")
+    pg.heading("Verdict")
+    pg.para(str(s.get("verdict", "n/a")), weight="bold")
+
+
+def _findings_page(pg: _Pager, res: dict[str, Any]) -> None:
+    pg.page("Findings")
+    for i, sentence in enumerate(findings(res), 1):
+        if sentence.startswith(WARNING):
+            pg.warn(f"{i}. {sentence}")
+        else:
+            pg.para(f"{i}. {sentence}")
+        pg.gap(0.4)
+
+
+METHODS = [
+    ("Filtering lines", "A pair (a, b) in ]0,1[ x R names the line r(a, b) = {s(a, 1-a) + (b, -b)}. "
+     "On it an R^2-valued function f = (f1, f2) gives the one-parameter function "
+     "F*(a,b) = min(a, 1-a) max((f1 - b)/a, (f2 + b)/(1 - a)) [CDFFL13]."),
+    ("Matching distance", "D_k(f, g) is the supremum over (a, b) of h_k(a, b), the bottleneck distance "
+     "between the degree-k persistence diagrams of F*_f(a,b) and F*_g(a,b) [CDFFL13; DFL10]. The report "
+     "also gives the maximum over degrees."),
+    ("Extended Pareto grid", "The image of the Pareto critical set of f (where the two gradients vanish or "
+     "point in opposite directions), cut into non-increasing pieces (proper contours), together with a "
+     "vertical half-line from each critical value of f1 and a horizontal one from each critical value of f2 "
+     "(improper contours) [CEF19]. Every finite coordinate of a slice diagram is the push coordinate of a "
+     "point where the line meets the grid (position theorem) [CEF19]."),
+    ("Special values", "(a, b) is special when, for two different pairs of grid contours met by r(a, b), "
+     "the differences of their push coordinates are equal, or one is twice the other [EFQT23]. For normal "
+     "(generic) pairs the matching distance is reached on a = 1/2 or at special values [EFQT23; FMQT]. A "
+     "patch is a region of positive area where one such tie holds identically; curves and points have zero "
+     "area."),
+]
+REFERENCES = [
+    "[CDFFL13] A. Cerri, B. Di Fabio, M. Ferri, P. Frosini, C. Landi. Betti numbers in multidimensional "
+    "persistent homology are stable functions. Math. Methods Appl. Sci. 36 (2013).",
+    "[CEF19] A. Cerri, M. Ethier, P. Frosini. On the geometrical properties of the coherent matching distance "
+    "in 2D persistent homology. J. Appl. Comput. Topol. 3 (2019).",
+    "[EFQT23] M. Ethier, P. Frosini, N. Quercioli, F. Tombari. Geometry of the matching distance for 2D "
+    "filtering functions. J. Appl. Comput. Topol. (2023).",
+    "[FMQT] P. Frosini, E. Mósig García, N. Quercioli, F. Tombari. Matching distance via the extended Pareto "
+    "grid. arXiv:2312.04201.",
+    "[DFL10] M. d'Amico, P. Frosini, C. Landi. Natural pseudo-distance and optimal matching between reduced "
+    "size functions. Acta Appl. Math. 109 (2010).",
+]
+
+
+def _methods_page(pg: _Pager, res: dict[str, Any]) -> None:
+    pg.page("Methods appendix")
+    for title, text in METHODS:
+        pg.heading(title)
+        pg.para(text)
+    pg.heading("Tolerances used")
+    any_tol = False
+    for label, key in (("grid f", "grid_f"), ("grid g", "grid_g"), ("special set", "special"),
+                       ("matching distance", "distance")):
+        if res.get(key) is not None:
+            any_tol = True
+            pg.para(f"{label}: {fmt(res[key].get('tolerance'), 3)} (value units for grids; a tie holds when "
+                    "the two differences agree within it)" if key == "special" else
+                    f"{label}: {fmt(res[key].get('tolerance'), 3)}")
+    if not any_tol:
+        pg.para("No stage with a tolerance was run.")
+    pg.heading("Caution")
+    pg.para("All numbers here are numerical evidence computed at finite resolution and within the stated "
+            "tolerances. They are not a proof: a patch may be an artefact of resolution, a curve may be missed "
+            "between sample points, and agreement with a theorem on finitely many lines does not establish it.")
+    pg.heading("References")
+    for ref in REFERENCES:
+        pg.para(ref, 8.5)
+        pg.gap(0.2)
+
+
+# -- entry point -------------------------------------------------------------------
+def build_report(result_dir: str | Path, out_pdf: str | Path | None = None) -> Path:
+    """Build the PDF report and the PNG figures of a result folder.
+
+    Parameters
+    ----------
+    result_dir : str or Path
+        Folder with ``study.json`` and the result files of the stages run.
+    out_pdf : str or Path, optional
+        Output path; default ``<result_dir>/report.pdf``.
+
+    Returns
+    -------
+    Path
+        The PDF written. PNG figures go to ``<result_dir>/figures/`` (``grids.png``,
+        ``special.png``, ``landscape.png``, ``perturb.png``, one per stage run).
+
+    Raises
+    ------
+    ResultsError
+        If the folder or ``study.json`` is missing, or a result file is malformed.
+
+    Examples
+    --------
+    >>> build_report("results/demo")                 # doctest: +SKIP
+    PosixPath('results/demo/report.pdf')
+    """
+    res = load_results(result_dir)
+    root: Path = res["dir"]
+    out = Path(out_pdf) if out_pdf is not None else root / "report.pdf"
+    out.parent.mkdir(parents=True, exist_ok=True)
+    stages = res["stages"]
+    figs = root / "figures"
+    if stages["grids"]:
+        save_png(_draw("grids", str(root / "grid_f.json"),
+                       lambda: grids_figure(res.get("grid_f"), res.get("grid_g"))), figs / "grids.png")
+    if stages["special"]:
+        save_png(_draw("special", str(root / "special.json"),
+                       lambda: special_figure(res["special"], res.get("geojson"))), figs / "special.png")
+    if stages["distance"]:
+        save_png(_draw("distance", str(root / "distance.json"),
+                       lambda: landscape_figure(res["distance"], res.get("geojson"),
+                                                window=res["study"].get("window"))), figs / "landscape.png")
+    if stages["perturb"]:
+        save_png(_draw("perturb", str(root / "perturb" / "summary.json"),
+                       lambda: perturb_figure(res["perturb"]["summary"], res["perturb"]["runs"])),
+                 figs / "perturb.png")
+    name = str(res["study"].get("name", root.name))
+    tmp = out.with_name(f".{out.name}.tmp")
+    with PdfPages(tmp, metadata={"Title": f"specmap report: {name}", "Creator": "specmap"}) as pdf:
+        pg = _Pager(pdf, name)
+        _cover(pg, res)
+        if stages["grids"]:
+            _grids_page(pg, res)
+        if stages["special"]:
+            _special_page(pg, res)
+        if stages["distance"]:
+            _distance_page(pg, res)
+        if stages["perturb"]:
+            _perturb_page(pg, res)
+        _findings_page(pg, res)
+        _methods_page(pg, res)
+        pg.close()
+    tmp.replace(out)
+    return out

@@ -1,0 +1,347 @@
+"""Report tests on small example result folders built here (test fixtures, not shipped data)."""
+
+from __future__ import annotations
+
+import json
+import math
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pytest
+from pypdf import PdfReader
+
+from specmap.errors import ResultsError
+from specmap.report import build_report, findings, load_results
+from specmap.report.figures import grids_figure, landscape_figure, perturb_figure, special_figure
+from specmap.report.fmt import fraction_interval, num
+
+# -- fixture folders -------------------------------------------------------------
+
+STUDY = {
+    "name": "fixture-torus-shift",
+    "study_file": "studies/fixture.toml",
+    "seed": 7,
+    "f": {"description": "torus R=2 r=1, map (x, z)", "source": "surface"},
+    "g": {"description": "torus R=2 r=1, map (x + 0.3, z)", "source": "surface"},
+    "window": {"a": [0.02, 0.98], "b": [-3.5, 3.5]},
+    "specmap_version": "0.1.0",
+    "commands": [{"command": "specmap grid studies/fixture.toml", "date": "2024-05-01T10:00:00"},
+                 {"command": "specmap map studies/fixture.toml", "date": "2024-05-01T10:01:00"}],
+}
+GRID_F = {
+    "format": "specmap-grid/1", "route": "exact", "tolerance": 1e-9, "meta": {"surface": "torus"},
+    "contours": [
+        {"id": "f:p0", "kind": "proper", "points": [[-3.0, 1.0], [-2.5, 0.5], [-2.0, 0.0]]},
+        {"id": "f:p1", "kind": "proper", "points": [[2.0, 0.0], [2.5, -0.5], [3.0, -1.0]]},
+        {"id": "f:v0", "kind": "vertical", "start": [-3.0, 0.0]},
+        {"id": "f:v1", "kind": "vertical", "start": [-1.0, -1.0]},
+        {"id": "f:h0", "kind": "horizontal", "start": [-2.0, -1.0]},
+    ],
+}
+GRID_G = {
+    **GRID_F,
+    "contours": [
+        {"id": "g:p0", "kind": "proper", "points": [[-2.7, 1.0], [-2.2, 0.5], [-1.7, 0.0]]},
+        {"id": "g:p1", "kind": "proper", "points": [[2.3, 0.0], [2.8, -0.5], [3.3, -1.0]]},
+        {"id": "g:v0", "kind": "vertical", "start": [-2.7, 0.0]},
+        {"id": "g:v1", "kind": "vertical", "start": [-0.7, -1.0]},
+        {"id": "g:h0", "kind": "horizontal", "start": [-1.7, -1.0]},
+    ],
+}
+
+
+def _special(n_patch: int = 2) -> tuple[dict[str, Any], dict[str, Any]]:
+    comps, feats = [], []
+    for i in range(3):  # curves
+        b0 = -2.0 + 1.5 * i
+        line = [[0.05, b0], [0.3, b0 + 0.2], [0.6, b0 + 0.1], [0.95, b0 + 0.4]]
+        cond = ["equal", "half", "equal"][i]
+        ties = [{"pairs": [["f:v0", "g:v0"], ["f:v1", "g:v1"]], "condition": cond}]
+        if i == 2:
+            ties.append({"pairs": [["f:v0", "f:v1"], ["f:h0", "g:h0"]], "condition": "half"})
+        comps.append({"id": f"c{i}", "kind": "curve", "area": 0.0, "length": 1.02 + 0.1 * i,
+                      "bbox": [0.05, b0, 0.95, b0 + 0.4], "ties": ties})
+        feats.append({"type": "Feature", "geometry": {"type": "LineString", "coordinates": line},
+                      "properties": {"id": f"c{i}", "kind": "curve"}})
+    for j in range(n_patch):  # patches
+        a0, b0 = 0.1 + 0.45 * j, 1.8
+        ring = [[a0, b0], [a0 + 0.3, b0], [a0 + 0.3, b0 + 0.5], [a0, b0 + 0.5], [a0, b0]]
+        comps.append({"id": f"p{j}", "kind": "patch", "area": 0.15, "length": 1.6,
+                      "bbox": [a0, b0, a0 + 0.3, b0 + 0.5],
+                      "ties": [{"pairs": [["f:v0", "g:v0"], ["f:v1", "g:v1"]], "condition": "equal"}]})
+        feats.append({"type": "Feature", "geometry": {"type": "Polygon", "coordinates": [ring]},
+                      "properties": {"id": f"p{j}", "kind": "patch"}})
+    comps.append({"id": "q0", "kind": "point", "area": 0.0, "length": 0.0, "bbox": [0.5, -0.3, 0.5, -0.3],
+                  "ties": [{"pairs": [["f:p0", "g:p0"], ["f:h0", "g:h0"]], "condition": "half"}]})
+    feats.append({"type": "Feature", "geometry": {"type": "Point", "coordinates": [0.5, -0.3]},
+                  "properties": {"id": "q0", "kind": "point"}})
+    area = 0.15 * n_patch
+    special = {"window": STUDY["window"], "tolerance": 1e-7, "pairs": "all", "method": "sweep",
+               "resolution": 121, "components": comps, "total_area": area,
+               "area_fraction": area / (0.96 * 7.0),
+               "counts": {"curve": 3, "patch": n_patch, "point": 1}, "stats": {"quads": 210, "seconds": 1.4}}
+    return special, {"type": "FeatureCollection", "features": feats}
+
+
+def _distance(gap: bool = False) -> dict[str, Any]:
+    a = np.linspace(0.02, 0.98, 25)
+    b = np.linspace(-3.5, 3.5, 29)
+    h = 0.3 * np.exp(-((a[None, :] - 0.5) ** 2) / 0.05) * np.exp(-((b[:, None] - 0.13) ** 2))
+    h = np.round(h, 6).tolist()
+    h[0][0] = "nan"
+    return {
+        "value": 0.3, "at": [0.5, 0.13], "reached_on": "slope-one", "component": None,
+        "by_degree": {"0": {"value": 0.3, "at": [0.5, 0.13], "reached_on": "slope-one"},
+                      "1": {"value": 0.2125, "at": [0.31, 1.9], "reached_on": "special"}},
+        "dense": {"value": 0.2996, "at": [0.5, 0.125], "lines": 725, "seconds": 3.1, "error_bound": 0.004},
+        "reduced": {"value": 0.3, "at": [0.5, 0.13], "lines": 212, "seconds": 0.8,
+                    "pruned": {"below_best": 120, "above_bound": 3}},
+        "audit": {"theorem_gap": gap, "gap": 0.0271 if gap else 0.0, "line": [0.27, -1.4],
+                  "position": {"fraction_explained": 1.0, "max_deviation": 2e-9, "lines": 40}},
+        "tolerance": 1e-6, "infinite": [],
+        "landscape": {"a": a.tolist(), "b": b.tolist(), "h": h, "by_degree": {"0": h}},
+    }
+
+
+def _perturb(with_sweep: bool = True, runs_with_patch: int = 0) -> tuple[dict[str, Any], list[dict[str, Any]]]:
+    rng = np.random.default_rng(3)
+    n = 40
+    runs = [{"run": i, "seed": 100 + i, "total_area": float(0.02 * rng.random()) if i < runs_with_patch else 0.0,
+             "counts": {"curve": 3, "patch": int(i < runs_with_patch), "point": 1},
+             "hausdorff": float(0.01 * rng.random()), "seconds": 0.5} for i in range(n)]
+    runs[5]["hausdorff"] = "inf"
+    summary = {
+        "runs": n, "size": 1e-3, "model": "grid-jitter", "base": {"total_area": 0.3, "counts": {"patch": 2}},
+        "runs_with_patch": runs_with_patch, "runs_with_patch_ci95": [0.0, 0.0876],
+        "total_area": {"mean": 0.0, "max": 0.0}, "hausdorff": {"mean": 0.0049, "max": 0.0098},
+        "distance": {"mean_change": 0.0004, "max_change": 0.0009}, "stability_violations": 0,
+        "verdict": "the patches are not stable: none survives a perturbation of size 0.001.",
+        "sweep": [{"size": s, "runs": 20, "runs_with_patch": k, "runs_with_patch_ci95": [lo, hi],
+                   "total_area": {"mean": 0.01 * k, "max": 0.02 * k}, "hausdorff": {"mean": s, "max": 2 * s}}
+                  for s, k, lo, hi in [(1e-4, 6, 0.145, 0.519), (1e-3, 0, 0.0, 0.161), (1e-2, 0, 0.0, 0.161)]]
+        if with_sweep else None,
+        "runs_per_minute": 80.0,
+    }
+    return summary, runs
+
+
+def _dump(path: Path, obj: Any) -> None:
+    path.parent.mkdir(parents=True, exist_ok=True)
+    path.write_text(json.dumps(obj))
+
+
+def make_folder(root: Path, stages: tuple[str, ...] = ("grids", "special", "distance", "perturb"),
+                **kw: Any) -> Path:
+    root.mkdir(parents=True, exist_ok=True)
+    _dump(root / "study.json", STUDY)
+    if "grids" in stages:
+        _dump(root / "grid_f.json", GRID_F)
+        _dump(root / "grid_g.json", GRID_G)
+    if "special" in stages:
+        sp, geo = _special(kw.get("n_patch", 2))
+        _dump(root / "special.json", sp)
+        _dump(root / "special.geojson", geo)
+    if "distance" in stages:
+        _dump(root / "distance.json", _distance(kw.get("gap", False)))
+    if "perturb" in stages:
+        summary, runs = _perturb(kw.get("with_sweep", True))
+        _dump(root / "perturb" / "summary.json", summary)
+        (root / "perturb" / "runs.jsonl").write_text("".join(json.dumps(r) + "\n" for r in runs))
+    return root
+
+
+def pdf_pages(path: Path) -> list[str]:
+    return [p.extract_text() for p in PdfReader(str(path)).pages]
+
+
+def page_titles(pages: list[str]) -> list[str]:
+    """The page heading of each page (figure text may come first in the extraction order)."""
+    known = ("Methods appendix", "Findings", "specmap report", "Extended Pareto grids", "Special set",
+             "Matching distance", "Perturbation study")
+    out = []
+    for p in pages:
+        lines = [ln.strip() for ln in p.splitlines()]
+        out.append(next((t for t in known if t in lines), "?"))
+    return out
+
+
+def _flat(text: str) -> str:
+    return " ".join(text.split())
+
+
+# -- PDF ------------------------------------------------------------------------------
+
+
+def test_full_report_pages_numbers_and_pngs(tmp_path: Path) -> None:
+    root = make_folder(tmp_path / "full")
+    out = build_report(root)
+    assert out == root / "report.pdf"
+    pages = pdf_pages(out)
+    heads = page_titles(pages)
+    for title in ("specmap report", "Extended Pareto grids", "Special set", "Matching distance",
+                  "Perturbation study", "Findings", "Methods appendix"):
+        assert title in heads, (title, heads)
+    text = _flat(" ".join(pages))
+    assert "not run" not in pages[0]
+    assert "D = 0.3," in text  # distance value
+    assert "3 curves, 2 patches, 1 points" in text  # component counts
+    assert "Runs with a patch: 0 of 40" in text
+    assert "0.2125" in text  # degree-1 value
+    assert "arXiv:2312.04201" in text
+    assert "fixture-torus-shift" in pages[0]
+    assert "specmap grid studies/fixture.toml" in _flat(pages[0])
+    for name in ("grids", "special", "landscape", "perturb"):
+        png = root / "figures" / f"{name}.png"
+        assert png.is_file() and png.stat().st_size > 5000
+
+
+def test_partial_report_has_no_page_for_missing_stage(tmp_path: Path) -> None:
+    root = make_folder(tmp_path / "part", stages=("grids", "special"))
+    pages = pdf_pages(build_report(root, tmp_path / "out" / "r.pdf"))
+    heads = page_titles(pages)
+    assert "Matching distance" not in heads and "Perturbation study" not in heads
+    assert "Special set" in heads
+    cover = _flat(pages[0])
+    assert "Matching distance: not run" in cover
+    assert "Perturbation study: not run" in cover
+    assert not (root / "figures" / "landscape.png").exists()
+    assert not (root / "figures" / "perturb.png").exists()
+
+
+def test_cover_only_when_nothing_ran(tmp_path: Path) -> None:
+    root = make_folder(tmp_path / "empty", stages=())
+    pages = pdf_pages(build_report(root))
+    assert _flat(pages[0]).count("not run") == 4
+    assert "nothing to report" in _flat(" ".join(pages))
+
+
+def test_long_component_table_is_truncated(tmp_path: Path) -> None:
+    root = make_folder(tmp_path / "many", stages=("special",), n_patch=30)
+    text = _flat(" ".join(pdf_pages(build_report(root))))
+    assert "Table truncated" in text
+    assert "and 16 more components" in text  # 34 components, 18 listed
+
+
+def test_theorem_gap_is_loud_in_pdf(tmp_path: Path) -> None:
+    root = make_folder(tmp_path / "gap", stages=("distance",), gap=True)
+    text = _flat(" ".join(pdf_pages(build_report(root))))
+    assert "WARNING: theorem audit failed" in text
+    assert "0.0271" in text
+
+
+def test_missing_folder_and_study(tmp_path: Path) -> None:
+    with pytest.raises(ResultsError) as err:
+        build_report(tmp_path / "nope")
+    assert "run specmap" in str(err.value)
+    (tmp_path / "bare").mkdir()
+    with pytest.raises(ResultsError) as err:
+        build_report(tmp_path / "bare")
+    assert err.value.file.endswith("study.json") and err.value.fix
+
+
+def test_malformed_json_names_the_file(tmp_path: Path) -> None:
+    root = make_folder(tmp_path / "bad", stages=())
+    (root / "distance.json").write_text("{not json")
+    with pytest.raises(ResultsError) as err:
+        load_results(root)
+    assert err.value.file.endswith("distance.json")
+
+
+def test_bad_landscape_shape_is_a_results_error(tmp_path: Path) -> None:
+    root = make_folder(tmp_path / "shape", stages=("distance",))
+    d = json.loads((root / "distance.json").read_text())
+    d["landscape"]["h"] = d["landscape"]["h"][:-1]
+    (root / "distance.json").write_text(json.dumps(d))
+    with pytest.raises(ResultsError) as err:
+        build_report(root)
+    assert "distance.json" in err.value.file
+
+
+# -- findings --------------------------------------------------------------------------
+
+
+def test_findings_full() -> None:
+    sp, geo = _special()
+    summary, runs = _perturb()
+    res = {"grid_f": GRID_F, "grid_g": GRID_G, "special": sp, "geojson": geo, "distance": _distance(),
+           "perturb": {"summary": summary, "runs": runs}}
+    out = findings(res)
+    text = " ".join(out)
+    assert "2 patches cover 4.46% of the window" in text
+    assert "none survived 40 perturbations of size 0.001" in text
+    assert ("The matching distance is 0.3 (degree 0), reached on the slope-one line at b = 0.13 "
+            "(tolerance 1e-06).") in out
+    assert "(tolerance 1e-07)" in text  # special-set tolerance carried
+    assert not any(s.startswith("WARNING") for s in out)
+    assert all(s.endswith(".") for s in out)
+
+
+def test_findings_no_patches() -> None:
+    sp, _ = _special(n_patch=0)
+    summary, runs = _perturb()
+    out = findings({"special": sp, "perturb": {"summary": summary, "runs": runs}})
+    assert any(s.startswith("No patch was found") and "no patch appeared in 40 perturbations" in s for s in out)
+    assert not any("cover" in s for s in out)
+
+
+def test_findings_theorem_gap_comes_first_and_loud() -> None:
+    out = findings({"distance": _distance(gap=True)})
+    assert out[0].startswith("WARNING: the dense sweep exceeds the reduced search by 0.0271 at (a, b) = "
+                             "(0.27, -1.4)")
+    assert "disagrees with the theorem's reduction" in out[0]
+
+
+def test_findings_position_audit_and_stability_warnings() -> None:
+    d = _distance()
+    d["audit"]["position"]["fraction_explained"] = 0.97
+    summary, runs = _perturb()
+    summary["stability_violations"] = 2
+    out = findings({"distance": d, "perturb": {"summary": summary, "runs": runs}})
+    loud = [s for s in out if s.startswith("WARNING")]
+    assert len(loud) == 2
+    assert "97%" in loud[0] and "2 perturbed runs" in loud[1]
+
+
+def test_findings_patch_survives_and_infinite_strings() -> None:
+    sp, _ = _special(n_patch=1)
+    summary, runs = _perturb()
+    summary["runs_with_patch"] = 12
+    summary["runs_with_patch_ci95"] = [6.8, 19.1]  # on the count scale
+    d = _distance()
+    d["value"] = "inf"
+    d["reached_on"] = "special"
+    d["at"] = [0.31, 1.9]
+    out = " ".join(findings({"special": sp, "distance": d, "perturb": {"summary": summary, "runs": runs}}))
+    assert "1 patch covers" in out and "persisted in 12 of 40" in out
+    assert "[0.17, 0.478]" in out
+    assert "The matching distance is inf, reached on the special set at (a, b) = (0.31, 1.9)" in out
+
+
+# -- figures and helpers ---------------------------------------------------------------
+
+
+def test_figures_from_dicts() -> None:
+    fig = grids_figure(GRID_F, GRID_G)
+    ax = fig.axes[0]
+    assert ax.get_xlabel() == "f1 / g1" and ax.get_ylabel() == "f2 / g2"
+    assert len(ax.get_legend().get_texts()) == 4
+    sp, geo = _special()
+    fig = special_figure(sp, geo)
+    labels = [t.get_text() for t in fig.axes[0].get_legend().get_texts()]
+    assert any("half difference" in s for s in labels) and any("equal and half" in s for s in labels)
+    assert sum("patch p" in s and "area 0.15" in s for s in labels) == 2
+    assert "3 curves, 2 patches, 1 point" in fig.axes[0].get_title()
+    fig = landscape_figure(_distance(), geo)
+    assert len(fig.axes) == 2  # heat map + colour bar
+    summary, runs = _perturb()
+    assert fig.axes[1].get_ylabel().startswith("h(a, b)")
+    assert len(perturb_figure(summary, runs).axes) == 3
+    summary["sweep"] = None
+    assert len(perturb_figure(summary, runs).axes) == 2
+
+
+def test_number_helpers() -> None:
+    assert math.isinf(num("inf")) and math.isnan(num("nan")) and math.isnan(num(None))
+    assert fraction_interval([2.0, 10.0], 20) == (0.1, 0.5)
+    assert fraction_interval([0.1, 0.5], 20) == (0.1, 0.5)
