@@ -207,8 +207,8 @@ def test_run_seed_matches_spawn_and_is_independent_of_count():
 
 def test_set_hausdorff_conventions_and_value():
     # closed form: two parallel segments at distance 0.3; empty-set conventions (documented).
-    from shapely.geometry import LineString, box
     from shapely import GeometryCollection
+    from shapely.geometry import LineString, box
 
     w = Window((0.0, 1.0), (0.0, 2.0))
     a = LineString([(0.2, 0.0), (0.2, 2.0)])
@@ -245,3 +245,240 @@ def test_settings_validation():
         PerturbSettings(model="noise")
     with pytest.raises(StudyError):
         PerturbSettings(size=-1.0)
+
+
+# --------------------------------------------------------------------------- run sets (need special_set)
+def _special_available() -> bool:
+    try:
+        from specmap.special import special_set  # noqa: F401
+    except ImportError:
+        return False
+    return True
+
+
+needs_special = pytest.mark.skipif(not _special_available(),
+                                   reason="specmap.special.special_set is not importable yet")
+
+# All four half-lines are met by every line of this window: at x0 >= 0 >= b the line's height
+# (1-a)/a (x0 - b) - b is >= 0 > -10 (math.md section 5, vertical half-line).
+WINDOW = Window((0.25, 0.75), (-1.0, 0.0))
+RESOLUTION = 21
+
+
+def grid_base():
+    from specmap.perturb import make_base
+
+    gf, gg = four_verticals()
+    settings = PerturbSettings(model="grid", size=1e-3, runs=6, seed=5, resolution=RESOLUTION)
+    return make_base((gf, gg), WINDOW, settings=settings), settings
+
+
+def read_lines(path: Path) -> list[bytes]:
+    return path.read_bytes().splitlines(keepends=True)
+
+
+@needs_special
+def test_equal_spacing_patch_is_destroyed_by_grid_perturbation(tmp_path):
+    # checks.md (four vertical half-lines at 0, 1, 2, 3): the base special set is one patch with
+    # the window's area; math.md section 5: the equal-difference condition is not generic, so
+    # moving all four half-lines generically (size 1e-3) leaves no patch in any run.
+    from specmap.perturb import run_study
+
+    base, settings = grid_base()
+    assert base.counts["patch"] >= 1
+    assert base.total_area == pytest.approx(WINDOW.area, rel=1e-6)
+    summary = run_study(base, settings, tmp_path / "perturb")
+    assert summary["runs"] == settings.runs
+    assert summary["runs_with_patch"] == 0
+    assert summary["total_area"]["max"] == 0.0
+    lo, hi = summary["runs_with_patch_ci95"]
+    assert lo == 0.0 and hi == pytest.approx(Z**2 / (settings.runs + Z**2), rel=1e-3)  # [Wil27]
+    assert summary["verdict"].startswith("The base special set has 1 patch")
+    assert "0 of 6 perturbed runs of size 0.001 kept a patch" in summary["verdict"]
+    on_disk = json.loads((tmp_path / "perturb" / "summary.json").read_text())
+    assert on_disk["runs_with_patch"] == 0 and on_disk["fingerprint"] == summary["fingerprint"]
+    for rec in load_runs(tmp_path / "perturb" / "runs.jsonl").values():
+        # the patch filled the window; what is left is at most curves, so the Hausdorff
+        # distance is positive and at most the window diameter (documented convention)
+        assert 0.0 < rec["hausdorff"] <= WINDOW.diameter + 1e-12
+        assert max(rec["applied"]) <= settings.size
+
+
+@needs_special
+def test_same_seed_same_records_for_one_and_two_jobs(tmp_path):
+    # construction: per-run seeds depend on (seed, run index) only (SeedSequence spawn keys).
+    from specmap.perturb import run_study
+
+    base, settings = grid_base()
+    run_study(base, settings, tmp_path / "one", jobs=1)
+    run_study(base, settings, tmp_path / "two", jobs=2)
+    one = records_without_time(read_jsonl_list(tmp_path / "one" / "runs.jsonl"))
+    two = records_without_time(read_jsonl_list(tmp_path / "two" / "runs.jsonl"))
+    assert [r["run"] for r in one] == list(range(settings.runs))
+    assert one == two
+
+
+def read_jsonl_list(path: Path) -> list[dict]:
+    return [json.loads(line) for line in read_lines(path)]
+
+
+@needs_special
+def test_changed_settings_start_a_new_run_set_and_old_one_comes_back(tmp_path):
+    # construction (documented layout): a different fingerprint moves runs.jsonl aside; returning
+    # to the old settings restores it and computes nothing new.
+    from specmap.perturb import run_study
+
+    base, settings = grid_base()
+    folder = tmp_path / "perturb"
+    small = PerturbSettings(**{**settings.to_json(), "runs": 3, "degrees": tuple(settings.degrees)})
+    first = run_study(base, small, folder)
+    other = PerturbSettings(**{**small.to_json(), "size": 2e-3, "degrees": tuple(settings.degrees)})
+    second = run_study(base, other, folder)
+    assert first["fingerprint"] != second["fingerprint"]
+    assert (folder / f"runs-{first['fingerprint']}.jsonl").exists()
+    assert {r["fingerprint"] for r in read_jsonl_list(folder / "runs.jsonl")} == {second["fingerprint"]}
+    before = (folder / f"runs-{first['fingerprint']}.jsonl").read_bytes()
+    again = run_study(base, small, folder)
+    assert (folder / "runs.jsonl").read_bytes() == before  # nothing recomputed
+    assert again["runs"] == 3 and again["fingerprint"] == first["fingerprint"]
+    assert json.loads((folder / "settings.json").read_text())["fingerprint"] == first["fingerprint"]
+
+
+KILL_SCRIPT = textwrap.dedent("""
+    import sys
+    from specmap.grids.model import Contour, Grid
+    from specmap.perturb import PerturbSettings, make_base, run_study
+    from specmap.strip import Window
+
+    gf = Grid((Contour("f:v0", "vertical", [[0.0, -10.0]]), Contour("f:v1", "vertical", [[1.0, -10.0]])))
+    gg = Grid((Contour("g:v0", "vertical", [[2.0, -10.0]]), Contour("g:v1", "vertical", [[3.0, -10.0]])))
+    w = Window((0.25, 0.75), (-1.0, 0.0))
+    s = PerturbSettings(model="grid", size=1e-3, runs=int(sys.argv[2]), seed=9, resolution=int(sys.argv[3]))
+    run_study(make_base((gf, gg), w, settings=s), s, sys.argv[1], jobs=int(sys.argv[4]))
+""")
+
+
+@needs_special
+def test_kill_minus_nine_then_resume_gives_each_run_once(tmp_path):
+    # construction: lines are appended whole and fsynced by one writer; a rerun skips finished
+    # run indices and truncates a torn tail, so the end state has exactly `runs` distinct lines.
+    folder = tmp_path / "perturb"
+    script = tmp_path / "study.py"
+    script.write_text(KILL_SCRIPT)
+    runs = 24
+    args = [sys.executable, str(script), str(folder), str(runs), str(RESOLUTION), "2"]
+    proc = subprocess.Popen(args, start_new_session=True)
+    path = folder / "runs.jsonl"
+    deadline = time.time() + 60
+    while time.time() < deadline and proc.poll() is None:
+        if path.exists() and len(read_lines(path)) >= 3:
+            break
+        time.sleep(0.01)
+    killed = proc.poll() is None
+    if killed:
+        os.killpg(proc.pid, signal.SIGKILL)
+    proc.wait()
+    have = len(read_lines(path))
+    # simulate a kill in the middle of a write: a torn, unterminated last line
+    with path.open("ab") as fh:
+        fh.write(b'{"run": 999, "seed": 1, "tot')
+    subprocess.run(args[:-1] + ["1"], check=True, timeout=120)
+    lines = read_lines(path)
+    assert all(line.endswith(b"\n") for line in lines)
+    recs = [json.loads(line) for line in lines]
+    assert sorted(r["run"] for r in recs) == list(range(runs))
+    assert len(lines) == runs
+    if killed:
+        assert have < runs
+    # the resumed records equal an uninterrupted run (same seeds)
+    clean = tmp_path / "clean"
+    subprocess.run([sys.executable, str(script), str(clean), str(runs), str(RESOLUTION), "1"], check=True,
+                   timeout=120)
+    assert records_without_time(recs) == records_without_time(read_jsonl_list(clean / "runs.jsonl"))
+
+
+@needs_special
+def test_dask_local_cluster_matches_joblib(tmp_path):
+    # construction: the dask backend runs the same pure run_one with the same per-run seeds.
+    distributed = pytest.importorskip("distributed", reason="dask.distributed is not installed")
+    from specmap.perturb import run_study
+
+    base, settings = grid_base()
+    run_study(base, settings, tmp_path / "joblib", jobs=1)
+    with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
+                                  dashboard_address=None) as cluster:
+        run_study(base, settings, tmp_path / "dask", cluster=cluster.scheduler_address)
+    a = records_without_time(read_jsonl_list(tmp_path / "joblib" / "runs.jsonl"))
+    b = records_without_time(read_jsonl_list(tmp_path / "dask" / "runs.jsonl"))
+    assert a == b
+
+
+def test_cluster_without_dask_is_a_one_line_error(tmp_path, monkeypatch):
+    # construction: dask is an optional extra; its absence is a StudyError with the fix.
+    from specmap.errors import StudyError
+    from specmap.perturb.runs import _results
+
+    monkeypatch.setitem(sys.modules, "distributed", None)
+    with pytest.raises(StudyError, match="dask") as info:
+        list(_results([], 1, "tcp://127.0.0.1:1"))
+    assert "\n" not in str(info.value) and "pip install" in str(info.value)
+
+
+@needs_special
+def test_perturbation_study_sweep_from_a_study(tmp_path):
+    # construction: each size of a sweep is its own run set; the main size is reused.
+    from types import SimpleNamespace
+
+    from specmap.perturb import perturbation_study
+    from specmap.study import PerturbSpec
+
+    gf, gg = four_verticals()
+    study = SimpleNamespace(
+        name="sweep", seed=1, window=WINDOW, perturb=PerturbSpec(model="grid", size=1e-3, runs=3, seed=2,
+                                                                sizes=(1e-3, 1e-2), distance=False),
+        map=SimpleNamespace(pairs="all", resolution=RESOLUTION, method="sweep"),
+    )
+    summary = perturbation_study(study, out_dir=tmp_path, base={"grids": (gf, gg), "window": WINDOW})
+    assert [row["size"] for row in summary["sweep"]] == [1e-3, 1e-2]
+    assert all(row["runs"] == 3 for row in summary["sweep"])
+    assert (tmp_path / "perturb" / "sweep" / "size-0.01" / "runs.jsonl").exists()
+    assert json.loads((tmp_path / "perturb" / "summary.json").read_text())["sweep"] == summary["sweep"]
+
+
+def _distance_available() -> bool:
+    try:
+        from specmap.distance import matching_distance  # noqa: F401
+    except ImportError:
+        return False
+    return _special_available()
+
+
+@pytest.mark.skipif(not _distance_available(),
+                    reason="specmap.distance.matching_distance (and special_set) not importable yet; "
+                           "enable by landing the distance module")
+def test_stability_bound_holds_on_every_run(tmp_path):
+    # [CDFFL13] (math.md section 3): |D(f', g') - D(f, g)| <= ||f - f'||_inf + ||g - g'||_inf,
+    # degree by degree; the perturbation model makes each sup norm equal to size.
+    from specmap.expr import compile_map
+    from specmap.grids import pareto_grid
+    from specmap.perturb import make_base, run_study
+    from specmap.shapes.surfaces import make_surface
+    from specmap.strip import default_window
+
+    surface = make_surface("ellipsoid", (2.0, 1.0, 1.0))
+    V, T = surface.mesh(300)
+    f = Shape("f", "mesh", V, T, compile_map(["x", "y"]).values(V))
+    g = Shape("g", "mesh", V, T, compile_map(["x + 0.3*z", "y - 0.2*x*z"]).values(V))
+    grids = (pareto_grid(f), pareto_grid(g))
+    window = default_window(f.value_bounds(), g.value_bounds())
+    settings = PerturbSettings(model="function", size=0.05, runs=3, seed=4, resolution=31, distance=True,
+                               degrees=(0, 1))
+    base = make_base(grids, window, shapes=(f, g), settings=settings)
+    summary = run_study(base, settings, tmp_path / "perturb")
+    recs = read_jsonl_list(tmp_path / "perturb" / "runs.jsonl")
+    assert len(recs) == 3
+    for r in recs:
+        assert r["applied"] == pytest.approx([0.05, 0.05])
+        assert r["stability_ok"] is True
+        assert abs(r["distance"]["change"]) <= 0.1 + r["distance"]["slack"]
+    assert summary["stability_violations"] == 0
