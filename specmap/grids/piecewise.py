@@ -28,6 +28,17 @@ f2, at vertices whose number of Pareto edges is not 2, and at cusps (the
 image turns back); each piece is monotone in f1 (and oppositely in f2), so it
 is ordered by increasing (f1, index) and is a non-increasing polyline.
 
+Accuracy and limits. On a mesh of a smooth map the grid converges to the
+smooth one: contour vertices lie O(h^2) from the smooth fold in the normal
+direction, while contour ends (at PL extrema) move O(h) along it; ``tolerance``
+(the largest edge variation of f) bounds both in practice. Slice diagrams
+of a lower-star filtration interpolate F*(a, b) from the vertices, which is
+not max(g1, g2) of the interpolated functions: near the crease g1 = g2 it
+has short-lived pairs (persistence below the edge variation of F*) that no
+grid contour explains; longer pairs obey the position theorem [CEF19] to
+within a mesh size. Each critical vertex gives one half-line, whatever its
+multiplicity.
+
 References
 ----------
 .. [EH04] Edelsbrunner, Harer, "Jacobi sets of multiple Morse functions",
