@@ -98,7 +98,7 @@ def euler_characteristic(V: np.ndarray, T: np.ndarray) -> int:
     Parameters
     ----------
     V : ndarray (n, 3)
-        Unused except for its role in the signature (vertex count comes from T).
+        Vertex positions; not needed for the count (unused vertices are ignored).
     T : ndarray (m, 3) of int
     """
     T = np.asarray(T, dtype=np.int64).reshape(-1, 3)
