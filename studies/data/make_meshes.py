@@ -20,11 +20,11 @@ from specmap.shapes.surfaces import Ellipsoid
 def knob(resolution: int, twist: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     V, T = Ellipsoid((1.0, 1.0, 1.0)).mesh(resolution)
     x, y, z = V.T
-    bump = 1.0 + 0.15 * np.exp(-((x - 0.8) ** 2 + y**2) * 4) + 0.1 * np.exp(-((y + 0.7) ** 2 + z**2) * 5)
+    bump = 1.0 + 0.3 * np.exp(-((x - 0.8) ** 2 + y**2) * 4) + 0.1 * np.exp(-((y + 0.7) ** 2 + z**2) * 5)
     V = V * bump[:, None]
     x, y, z = V.T
-    f1 = x + 0.3 * z + 0.1 * np.sin(3 * y)
-    f2 = y + twist * x * z - 0.2 * z
+    f1 = x + 0.3 * z + 0.25 * np.sin(3 * y)
+    f2 = y + twist * x * z + 0.2 * np.cos(3 * x)
     return V, T, np.c_[f1, f2]
 
 
