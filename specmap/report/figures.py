@@ -149,7 +149,8 @@ def grids_figure(grid_f: dict[str, Any] | None, grid_g: dict[str, Any] | None, *
     ax.set_ylabel("f2 / g2")
     ax.set_title("Extended Pareto grids (half-lines continue past the arrow heads)", fontsize=10)
     ax.grid(alpha=0.25)
-    ax.legend(handles=handles, fontsize=LEGEND_SIZE, loc="lower left", framealpha=0.9)
+    ax.legend(handles=handles, fontsize=LEGEND_SIZE, loc="upper center", bbox_to_anchor=(0.5, -0.11),
+              ncol=2, frameon=False)
     return fig
 
 
@@ -254,6 +255,7 @@ def _draw_special(ax: Any, feats: list[dict[str, Any]], *, thin: bool = False,
             cond = str(pc[i]) if per_part else rec["condition"]
             st = CONDITION_STYLE.get(cond, CONDITION_STYLE["unknown"])
             col = mono or st["color"]
+            ls = "-" if mono else st["linestyle"]
             if g.geom_type == "Point":
                 ax.plot([g.x], [g.y], "o", color=col, mec="black" if not mono else col, ms=4 if thin else 6,
                         zorder=4)
@@ -261,7 +263,7 @@ def _draw_special(ax: Any, feats: list[dict[str, Any]], *, thin: bool = False,
                                                    label="isolated special point"))
             elif g.geom_type in ("LineString", "LinearRing"):
                 xy = np.asarray(g.coords)[:, :2]
-                ax.plot(xy[:, 0], xy[:, 1], color=col, ls=st["linestyle"], lw=lw, zorder=3)
+                ax.plot(xy[:, 0], xy[:, 1], color=col, ls=ls, lw=lw, zorder=3)
                 if not mono:
                     handles.setdefault(cond, Line2D([], [], color=col, ls=st["linestyle"], lw=lw,
                                                     label=st["label"]))
@@ -370,14 +372,15 @@ def landscape_figure(distance: dict[str, Any], geojson: dict[str, Any] | None = 
             raise ValueError(f"landscape h has shape {h.shape}, expected (len(b), len(a)) = "
                              f"({len(b)}, {len(a)})")
         masked = np.ma.masked_invalid(h)
-        mesh = ax.pcolormesh(a, b, masked, shading="nearest", cmap="viridis")
+        mesh = ax.pcolormesh(a, b, masked, shading="nearest", cmap="viridis",
+                             rasterized=True)
         label = "h(a, b)" + (" (max over degrees)" if degree is None else f" (degree {degree})")
         fig.colorbar(mesh, ax=ax, label=label, shrink=0.9)
         ax.set_xlim(a.min(), a.max())
         ax.set_ylim(b.min(), b.max())
         n_bad = int((~np.isfinite(h)).sum())
         if n_bad:
-            title += f"; {n_bad} non-finite cells blank"
+            title += f"; {plural(n_bad, 'non-finite cell')} left blank"
     else:
         title += " (no landscape stored)"
         if window:
@@ -412,16 +415,19 @@ def landscape_figure(distance: dict[str, Any], geojson: dict[str, Any] | None = 
 def _hist(ax: Any, values: np.ndarray, xlabel: str, base: float | None = None) -> None:
     finite = values[np.isfinite(values)]
     n_bad = len(values) - len(finite)
+    notes = [f"{n_bad} non-finite omitted"] if n_bad else []
     if len(finite):
         bins = min(30, max(5, int(np.sqrt(len(finite)))))
         ax.hist(finite, bins=bins, color="#4a7fb5", edgecolor="white")
+        if np.ptp(finite) == 0:
+            notes.append(f"all {len(finite)} values are {fmt(finite[0], 3)}")
     else:
         ax.text(0.5, 0.5, "no finite values recorded", ha="center", va="center", transform=ax.transAxes,
                 fontsize=9)
     if base is not None and math.isfinite(base):
         ax.axvline(base, color="#c0392b", ls="--", lw=1.2, label=f"unperturbed: {fmt(base, 3)}")
-        ax.legend(fontsize=LEGEND_SIZE)
-    ax.set_xlabel(xlabel + (f"  ({n_bad} non-finite omitted)" if n_bad else ""))
+        ax.legend(fontsize=LEGEND_SIZE, loc="upper right")
+    ax.set_xlabel(xlabel + (f"\n({'; '.join(notes)})" if notes else ""))
     ax.set_ylabel("runs")
 
 

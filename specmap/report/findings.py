@@ -29,8 +29,8 @@ def _grid_sentences(res: dict[str, Any]) -> list[str]:
         out.append(
             f"The extended Pareto grid of {name} has {plural(len(kinds), 'contour')}: "
             f"{kinds.count('proper')} proper, {kinds.count('vertical')} vertical and "
-            f"{kinds.count('horizontal')} horizontal half-lines (route {grid.get('route', 'n/a')})"
-            f"{_tol(grid.get('tolerance'))}."
+            f"{kinds.count('horizontal')} horizontal half-lines (route {grid.get('route', 'n/a')}, "
+            f"tolerance {fmt(grid.get('tolerance'), 3)})."
         )
     return out
 

@@ -28,7 +28,7 @@ from matplotlib.figure import Figure, FigureBase
 from specmap.errors import ResultsError
 from specmap.report.figures import grids_figure, landscape_figure, perturb_figure, save_png, special_figure
 from specmap.report.findings import WARNING, findings
-from specmap.report.fmt import fmt, fmt_interval, fmt_pct, fmt_point, fraction_interval, num
+from specmap.report.fmt import fmt, fmt_interval, fmt_pct, fmt_point, fraction_interval, num, plural
 from specmap.report.load import STAGE_VERB, load_results
 
 A4 = (8.27, 11.69)
@@ -143,6 +143,10 @@ def _tie_text(tie: dict[str, Any]) -> str:
     return f"|{p[0]}| = |{p[1]}|"
 
 
+def _line_text(line: Any) -> str:
+    return fmt_point(line) if isinstance(line, list) else str(line)
+
+
 def _short_dict(d: Any, limit: int = 8) -> str:
     if not isinstance(d, dict) or not d:
         return "n/a"
@@ -183,6 +187,12 @@ def _cover(pg: _Pager, res: dict[str, Any]) -> None:
             pg.field(title, details[key])
         else:
             pg.field(title, f"not run (no result file; run specmap {STAGE_VERB[key]})")
+    loud = [s for s in findings(res) if s.startswith(WARNING)]
+    if loud:
+        pg.heading("Warnings")
+        pg.warn(f"{plural(len(loud), 'warning')} about disagreement with the theory; see the Findings page:")
+        for s in loud:
+            pg.warn(s)
     pg.heading("Tolerances")
     for label, src in (("grid f", gf), ("grid g", gg), ("special set", res.get("special")),
                        ("matching distance", res.get("distance"))):
@@ -230,7 +240,9 @@ def _special_page(pg: _Pager, res: dict[str, Any]) -> None:
     sub = pg.page("Special set", 0.52)
     _draw("special", "special.json", lambda: special_figure(sp, res.get("geojson"), fig=sub))
     c = sp.get("counts") or {}
-    pg.para(f"Components: {c.get('curve', 0)} curves, {c.get('patch', 0)} patches, {c.get('point', 0)} points. "
+    counts = ", ".join(plural(int(num(c.get(k, 0))), w, m) for k, w, m in
+                       (("curve", "curve", None), ("patch", "patch", "patches"), ("point", "point", None)))
+    pg.para(f"Components: {counts}. "
             f"Total patch area {fmt(sp.get('total_area'))} = {fmt_pct(sp.get('area_fraction'))} of the window. "
             f"Method {sp.get('method', 'n/a')}, resolution {sp.get('resolution', 'n/a')}, pairs "
             f"{sp.get('pairs', 'n/a')}, tolerance {fmt(sp.get('tolerance'), 3)}.")
@@ -296,7 +308,8 @@ def _distance_page(pg: _Pager, res: dict[str, Any]) -> None:
         pg.para("No audit was recorded.")
     elif audit.get("theorem_gap"):
         pg.warn(f"{WARNING} theorem audit failed: the dense sweep exceeds the reduced search by "
-                f"{fmt(audit.get('gap'))} on the line {audit.get('line')}. The computation disagrees with "
+                f"{fmt(audit.get('gap'))} on the line (a, b) = {_line_text(audit.get('line'))}. The computation "
+                "disagrees with "
                 "the reduction to slope-one lines and special values here.")
     else:
         pg.para(f"Theorem audit passed: the dense sweep does not exceed the reduced search "
@@ -375,7 +388,21 @@ METHODS = [
      "(generic) pairs the matching distance is reached on a = 1/2 or at special values [EFQT23; FMQT]. A "
      "patch is a region of positive area where one such tie holds identically; curves and points have zero "
      "area."),
+    ("Dense sweep, reduced search and audits", "The dense sweep evaluates h on a regular grid of lines over "
+     "the window; the reduced search evaluates it only on a = 1/2 and on the special set, as the theorem "
+     "allows. The theorem audit flags a dense value that exceeds the reduced maximum by more than the "
+     "tolerance. The position audit checks, on sampled lines, that every finite diagram coordinate is the push "
+     "coordinate of a contour met by the line."),
+    ("Perturbation study", "The study is rerun on many perturbed inputs (model and size as recorded in "
+     "perturb/summary.json), each with its own seed. Each run reports its patch area, the Hausdorff distance "
+     "of its special set to the unperturbed one and, when computed, the change of the matching distance, "
+     "which the stability theorem bounds by the sup-norm size of the perturbation [CDFFL13]. The 95% "
+     "interval is for the fraction of runs with a patch."),
 ]
+TOL_MEANING = {"grid_f": "accuracy of contour positions, value units",
+               "grid_g": "accuracy of contour positions, value units",
+               "special": "tie conditions and patch detection",
+               "distance": "values of h and the audits"}
 REFERENCES = [
     "[CDFFL13] A. Cerri, B. Di Fabio, M. Ferri, P. Frosini, C. Landi. Betti numbers in multidimensional "
     "persistent homology are stable functions. Math. Methods Appl. Sci. 36 (2013).",
@@ -401,9 +428,8 @@ def _methods_page(pg: _Pager, res: dict[str, Any]) -> None:
                        ("matching distance", "distance")):
         if res.get(key) is not None:
             any_tol = True
-            pg.para(f"{label}: {fmt(res[key].get('tolerance'), 3)} (value units for grids; a tie holds when "
-                    "the two differences agree within it)" if key == "special" else
-                    f"{label}: {fmt(res[key].get('tolerance'), 3)}")
+            pg.para(f"{label}: {fmt(res[key].get('tolerance'), 3)} ({TOL_MEANING[key]}; from "
+                    f"{'grid_f.json' if key == 'grid_f' else 'grid_g.json' if key == 'grid_g' else key + '.json'})")
     if not any_tol:
         pg.para("No stage with a tolerance was run.")
     pg.heading("Caution")
