@@ -343,6 +343,31 @@ def test_figures_from_dicts() -> None:
     assert len(perturb_figure(summary, runs).axes) == 2
 
 
+def test_figures_edge_cases() -> None:
+    sp, geo = _special(n_patch=0)
+    empty = dict(sp, components=[], counts={"curve": 0, "patch": 0, "point": 0})
+    assert special_figure(empty, None).axes[0].get_legend() is not None  # a = 1/2 still marked
+    mixed = {"type": "FeatureCollection", "features": [
+        {"type": "Feature", "properties": {"id": "c0", "conditions": ["equal", "half", "half"]},
+         "geometry": {"type": "GeometryCollection", "geometries": [
+             {"type": "LineString", "coordinates": [[0.1, 0], [0.2, 1]]},
+             {"type": "MultiLineString", "coordinates": [[[0.3, 0], [0.4, 1]], [[0.5, 0], [0.6, 1]]]}]}},
+        {"type": "Feature", "properties": {"id": "x1", "kind": "patch"},
+         "geometry": {"type": "MultiPolygon", "coordinates": [[[[0.1, 2], [0.3, 2], [0.3, 3], [0.1, 3], [0.1, 2]],
+                                                               [[0.15, 2.2], [0.2, 2.2], [0.2, 2.5],
+                                                                [0.15, 2.5], [0.15, 2.2]]]]}}]}
+    labels = [t.get_text() for t in special_figure(sp, mixed).axes[0].get_legend().get_texts()]
+    assert "patch x1: area not recorded" in labels
+    assert "curve: equal difference" in labels and "curve: half difference" in labels
+    d = _distance()
+    d["landscape"] = None
+    fig = landscape_figure(d, geo, window=STUDY["window"])
+    assert len(fig.axes) == 1 and "no landscape stored" in fig.axes[0].get_title()
+    summary, _ = _perturb()
+    fig = perturb_figure(summary, [])
+    assert any(t.get_text() == "no run records" for t in fig.axes[0].texts)
+
+
 def test_number_helpers() -> None:
     assert math.isinf(num("inf")) and math.isnan(num("nan")) and math.isnan(num(None))
     assert fraction_interval([2.0, 10.0], 20) == (0.1, 0.5)

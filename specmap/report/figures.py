@@ -244,8 +244,9 @@ def _draw_special(ax: Any, feats: list[dict[str, Any]], *, thin: bool = False,
                                            lw=lw, hatch="//" if thin else None))
             if not thin:
                 if patch_no < MAX_PATCH_LABELS:
+                    area = fmt(rec["area"], 3) if math.isfinite(rec["area"]) else "not recorded"
                     handles[f"patch{patch_no}"] = Patch(fc=col, alpha=0.45, ec=col,
-                                                        label=f"patch {rec['id']}: area {fmt(rec['area'], 3)}")
+                                                        label=f"patch {rec['id']}: area {area}")
                 else:
                     patch_rest += 1
                     patch_area_rest += rec["area"] if math.isfinite(rec["area"]) else 0.0
@@ -387,9 +388,10 @@ def landscape_figure(distance: dict[str, Any], geojson: dict[str, Any] | None = 
             ax.set_xlim(*nums(window.get("a", [0, 1]))[:2])
             ax.set_ylim(*nums(window.get("b", [0, 1]))[:2])
     handles: list[Any] = []
+    over = "white" if land else "0.25"
     if geojson:
-        _draw_special(ax, _features(None, geojson), thin=True, mono="white")
-        handles.append(Line2D([], [], color="white", lw=0.8, label="special set"))
+        _draw_special(ax, _features(None, geojson), thin=True, mono=over)
+        handles.append(Line2D([], [], color=over, lw=0.8, label="special set"))
     at = distance.get("at")
     if at is not None and len(at) >= 2:
         value = distance.get("value")
@@ -405,9 +407,9 @@ def landscape_figure(distance: dict[str, Any], geojson: dict[str, Any] | None = 
     ax.set_title(title, fontsize=10)
     if handles:
         leg = ax.legend(handles=handles, fontsize=LEGEND_SIZE, loc="upper center", bbox_to_anchor=(0.5, -0.12),
-                        ncol=2, frameon=True, facecolor="0.55")
+                        ncol=2, frameon=True, facecolor="0.55" if land else "white")
         for t in leg.get_texts():
-            t.set_color("white")
+            t.set_color("white" if land else "black")
     return fig
 
 
@@ -422,8 +424,8 @@ def _hist(ax: Any, values: np.ndarray, xlabel: str, base: float | None = None) -
         if np.ptp(finite) == 0:
             notes.append(f"all {len(finite)} values are {fmt(finite[0], 3)}")
     else:
-        ax.text(0.5, 0.5, "no finite values recorded", ha="center", va="center", transform=ax.transAxes,
-                fontsize=9)
+        ax.text(0.5, 0.5, "no finite values recorded" if len(values) else "no run records", ha="center",
+                va="center", transform=ax.transAxes, fontsize=9, bbox={"fc": "white", "ec": "none"}, zorder=5)
     if base is not None and math.isfinite(base):
         ax.axvline(base, color="#c0392b", ls="--", lw=1.2, label=f"unperturbed: {fmt(base, 3)}")
         ax.legend(fontsize=LEGEND_SIZE, loc="upper right")
