@@ -143,6 +143,14 @@ def _tie_text(tie: dict[str, Any]) -> str:
     return f"|{p[0]}| = |{p[1]}|"
 
 
+def _stat(row: dict[str, Any], key: str, stat: str) -> Any:
+    """``row[key][stat]``, or the flat form ``row[f"{key}_{stat}"]``."""
+    nested = row.get(key)
+    if isinstance(nested, dict):
+        return nested.get(stat)
+    return row.get(f"{key}_{stat}")
+
+
 def _line_text(line: Any) -> str:
     return fmt_point(line) if isinstance(line, list) else str(line)
 
@@ -355,8 +363,8 @@ def _perturb_page(pg: _Pager, res: dict[str, Any]) -> None:
         for r in sorted(sweep, key=lambda r: num(r.get("size"))):
             iv = fmt_interval(fraction_interval(r.get("runs_with_patch_ci95"), r.get("runs")))
             pg.mono(f"{fmt(r.get('size'), 3):>10}{str(r.get('runs')):>7}{str(r.get('runs_with_patch')):>7}  "
-                    f"{iv:<20}{fmt((r.get('total_area') or {}).get('mean'), 3):>11}"
-                    f"{fmt((r.get('hausdorff') or {}).get('mean'), 3):>16}")
+                    f"{iv:<20}{fmt(_stat(r, 'total_area', 'mean'), 3):>11}"
+                    f"{fmt(_stat(r, 'hausdorff', 'mean'), 3):>16}")
     pg.heading("Verdict")
     pg.para(str(s.get("verdict", "n/a")), weight="bold")
 
