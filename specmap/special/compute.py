@@ -1,0 +1,142 @@
+"""The special-set atlas of two grids in a window: :func:`special_set`.
+
+References
+----------
+.. [EFQT23] Ethier, Frosini, Quercioli, Tombari, "Geometry of the matching
+   distance for 2D filtering functions", J. Appl. Comput. Topol. (2023).
+"""
+
+from __future__ import annotations
+
+import math
+import time
+from collections.abc import Callable
+
+import numpy as np
+import shapely
+
+from specmap.grids.model import Grid
+from specmap.special.atlas import Atlas, TiePiece, components
+from specmap.special.detect import find_crossings, sample
+from specmap.special.lattice import Lattice
+from specmap.special.pairs import pair_table
+from specmap.special.patches import patch_cells, patch_polygons
+from specmap.special.trace import refine, trace
+from specmap.strip import Window
+
+
+def default_tolerance(grid_f: Grid, grid_g: Grid) -> float:
+    """1e-9 times the diagonal of the bounding box of both grids (1e-9 if it is a point)."""
+    f = grid_f.bbox()
+    g = grid_g.bbox()
+    diag = math.hypot(max(f[2], g[2]) - min(f[0], g[0]), max(f[3], g[3]) - min(f[1], g[1]))
+    return 1e-9 * (diag if diag > 0 else 1.0)
+
+
+def special_set(grid_f: Grid, grid_g: Grid, window: Window, *, pairs: str = "all",
+                resolution: int | tuple[int, int] = 121, method: str = "sweep", tol: float | None = None,
+                progress: Callable[[int, int], None] | None = None, sub: int = 8, seed: int = 0) -> Atlas:
+    """The special set of (Γ(f), Γ(g)) in a window of the strip, as an :class:`Atlas`.
+
+    (a, b) is special when two different pairs of contours met by r(a, b) tie:
+    |s_α - s_β| = |s_γ - s_δ| > 0 (equal) or = 2 |s_γ - s_δ| > 0 (half), s the
+    line parameter (math.md section 5).
+
+    Parameters
+    ----------
+    grid_f, grid_g : Grid
+        Contour ids should be unique across the grids ("f:"/"g:" prefixes);
+        colliding ids are re-prefixed.
+    window : Window
+    pairs : {"all", "roles"}
+        ``roles`` keeps only ties that can change an optimal matching cost:
+        equal ties of two cross or two same-grid pairs, half ties of a cross
+        pair against a doubled same-grid pair.
+    resolution : int or (n_a, n_b)
+        Sample lattice nodes.
+    method : {"sweep", "naive"}
+        ``sweep``: output-sensitive detection of order swaps; ``naive``: every
+        tie on every edge (reference, same result).
+    tol : float, optional
+        Residual tolerance in push units; default :func:`default_tolerance`.
+    progress : callable (done, total), optional
+    sub : int
+        Patch boundary refinement (sub-cells per cell side).
+    seed : int
+        Seed of the random interior checks of patch cells.
+
+    Returns
+    -------
+    Atlas
+        Curves are exact to ~1e-12 of the window diameter at crossing vertices
+        (chords in between); patch areas to about perimeter x cell / ``sub``.
+
+    References
+    ----------
+    .. [EFQT23] Ethier, Frosini, Quercioli, Tombari, J. Appl. Comput. Topol. (2023).
+
+    Examples
+    --------
+    >>> from specmap.grids.model import Contour, Grid
+    >>> f = Grid((Contour("f:v0", "vertical", [0, -20]), Contour("f:v1", "vertical", [1, -20])))
+    >>> g = Grid((Contour("g:h0", "horizontal", [-20, 0]), Contour("g:h1", "horizontal", [-20, 1])))
+    >>> atlas = special_set(f, g, Window((0.1, 0.9), (-1, 1)), resolution=41)
+    >>> atlas.counts()["patch"]
+    0
+    """
+    t_start = time.perf_counter()
+    n_a, n_b = (resolution, resolution) if isinstance(resolution, int) else tuple(resolution)
+    table = pair_table(grid_f, grid_g, pairs)
+    tol = default_tolerance(grid_f, grid_g) if tol is None else float(tol)
+    snap = 1e-3 * tol
+    lat = Lattice.of(window, int(n_a), int(n_b))
+    total = 2 * lat.n_b + 2
+    timings = {}
+    t = time.perf_counter()
+    samples = sample(table, lat)
+    timings["sample_s"] = time.perf_counter() - t
+    t = time.perf_counter()
+    codes, edges, dstats = find_crossings(table, samples, method=method, tol=tol, snap=snap,
+                                          progress=progress, progress_total=total)
+    timings["detect_s"] = time.perf_counter() - t
+    t = time.perf_counter()
+    points = refine(table, samples, codes, edges, snap=snap)
+    traced = trace(table, samples, codes, edges, points, snap=snap, tol=tol)
+    timings["trace_s"] = time.perf_counter() - t
+    if progress is not None:
+        progress(lat.n_b + 1, total)
+    t = time.perf_counter()
+    pcodes, pcells, pstats = patch_cells(table, samples, tol, seed=seed)
+    polys = patch_polygons(table, samples, pcodes, pcells, tol, sub=sub)
+    timings["patch_s"] = time.perf_counter() - t
+    if progress is not None:
+        progress(2 * lat.n_b + 1, total)
+    pieces = []
+    for tt in traced:
+        tie = table.tie(tt.code)
+        if tt.lines:
+            pieces.append(TiePiece(tie, "curve", shapely.MultiLineString(list(tt.lines))))
+        if tt.points:
+            pieces.append(TiePiece(tie, "point", shapely.MultiPoint(np.array(tt.points))))
+    for code, poly in sorted(polys.items()):
+        if not poly.is_empty:
+            pieces.append(TiePiece(table.tie(code), "patch", poly))
+    t = time.perf_counter()
+    comps = components(tuple(pieces), window)
+    timings["components_s"] = time.perf_counter() - t
+    if progress is not None:
+        progress(total, total)
+    stats = {
+        "contours": len(table.contours),
+        "pairs_total": table.n_pairs,
+        **dstats,
+        **pstats,
+        "tie_curves": sum(len(tt.lines) for tt in traced),
+        "ties_with_curves": sum(1 for tt in traced if tt.lines),
+        "ties_with_patches": len(polys),
+        "pieces": len(pieces),
+        "snap": snap,
+        **{k: round(v, 4) for k, v in timings.items()},
+        "seconds": round(time.perf_counter() - t_start, 4),
+    }
+    return Atlas(window, tol, pairs, method, (lat.n_a, lat.n_b), tuple(pieces), comps, stats)

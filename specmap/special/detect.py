@@ -1,0 +1,285 @@
+"""Where tie curves cross the sample lattice: the output-sensitive sweep and the naive reference.
+
+At every node the pair differences |c_P| (push units) and their doubles 2|c_Q|
+are *items*. A tie curve crosses a lattice edge where the order of two items
+(P vs Q for ``equal``, P vs 2Q for ``half``) differs between the edge's ends.
+
+``sweep`` (default) treats every item on an edge as the interval between its
+two end values, sorts the interval starts of the edge and finds each
+interval's overlapping partners with one ``searchsorted``; only overlapping
+items can swap, and only actual swaps are kept. The work grows with the number
+of overlaps, not with the number of quadruples. ``naive`` evaluates every
+allowed tie on every edge; both return the same crossings.
+
+Pairs appear and disappear where the line stops meeting a contour: an item
+takes part on an edge only if its pair is met at a corner of a cell beside the
+edge, and a crossing is kept only if the tie is met (all four contours at one
+corner) in a cell beside the edge. Signs are taken with a snap ``R >= -snap``
+so that exact zeros at nodes (curves through nodes) count once.
+
+References
+----------
+.. [EFQT23] Ethier, Frosini, Quercioli, Tombari, J. Appl. Comput. Topol. (2023).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from dataclasses import dataclass
+
+import numpy as np
+
+from specmap.special.evaluate import sample_contours
+from specmap.special.lattice import Lattice
+from specmap.special.pairs import PairTable, all_tie_codes, equal_allowed, half_allowed
+from specmap.strip import push_scale
+
+METHODS = ("sweep", "naive")
+
+
+@dataclass(frozen=True, eq=False)
+class Samples:
+    """Contour parameters at the lattice nodes.
+
+    Attributes
+    ----------
+    lattice : Lattice
+    s : ndarray (C, n_b, n_a)
+        Extended line parameters.
+    met : ndarray of bool (C, n_b, n_a)
+    pair_met : ndarray of bool (n_pairs, n_b, n_a)
+    cell_pair : ndarray of bool (n_pairs, n_b - 1, n_a - 1)
+        Pair met at some corner of the cell.
+    """
+
+    lattice: Lattice
+    s: np.ndarray
+    met: np.ndarray
+    pair_met: np.ndarray
+    cell_pair: np.ndarray
+
+    def pair_values(self, table: PairTable, j: int) -> np.ndarray:
+        """|c_P| in push units on node row j: shape (n_pairs, n_a)."""
+        m = push_scale(self.lattice.av)
+        return np.abs(self.s[table.first, j] - self.s[table.second, j]) * m
+
+
+def sample(table: PairTable, lattice: Lattice) -> Samples:
+    """Evaluate every contour at every node (:func:`sample_contours`) and the pair masks."""
+    A, B = lattice.mesh()
+    s, met = sample_contours(table.contours, A, B)
+    pm = met[table.first] & met[table.second]
+    cp = pm[:, :-1, :-1] | pm[:, :-1, 1:] | pm[:, 1:, :-1] | pm[:, 1:, 1:]
+    return Samples(lattice, s, met, pm, cp)
+
+
+@dataclass(frozen=True)
+class Items:
+    """The values compared on edges: plain pair differences, then doubled ones."""
+
+    pair: np.ndarray
+    factor: np.ndarray
+    doubled_index: np.ndarray  # item index of 2|c_Q| for pair Q, -1 if none
+
+    @staticmethod
+    def of(table: PairTable) -> Items:
+        n = table.n_pairs
+        dbl = np.arange(n) if table.mode == "all" else np.nonzero(~table.cross)[0]
+        pair = np.concatenate([np.arange(n), dbl])
+        factor = np.concatenate([np.ones(n), np.full(dbl.size, 2.0)])
+        di = np.full(n, -1, dtype=np.int64)
+        di[dbl] = n + np.arange(dbl.size)
+        return Items(pair, factor, di)
+
+
+def _row_edges(lat: Lattice, samples: Samples, table: PairTable, j: int, items: Items,
+               dv: dict[int, np.ndarray]):
+    """Edges handled for node row j, their end values (E, M) and item presence (E, M)."""
+    na, nb = lat.n_a, lat.n_b
+    cp = samples.cell_pair
+    none = np.zeros((table.n_pairs, na - 1), dtype=bool)
+    below = cp[:, j - 1] if j > 0 else none
+    above = cp[:, j] if j < nb - 1 else none
+    h_pres = (below | above).T
+    vals = [np.concatenate([dv[j], 2.0 * dv[j][items.pair[table.n_pairs:]]])]
+    v0 = [vals[0][:, :-1].T]
+    v1 = [vals[0][:, 1:].T]
+    pres = [h_pres]
+    edges = [j * (na - 1) + np.arange(na - 1)]
+    if j < nb - 1:
+        up = np.concatenate([dv[j + 1], 2.0 * dv[j + 1][items.pair[table.n_pairs:]]])
+        pad = np.zeros((table.n_pairs, na + 1), dtype=bool)
+        pad[:, 1:-1] = cp[:, j]
+        v_pres = (pad[:, :-1] | pad[:, 1:]).T
+        v0.append(vals[0].T)
+        v1.append(up.T)
+        pres.append(v_pres)
+        edges.append(lat.n_h + j * na + np.arange(na))
+    V0 = np.concatenate(v0)
+    V1 = np.concatenate(v1)
+    P = np.concatenate(pres)[:, items.pair]
+    return np.concatenate(edges), V0, V1, P
+
+
+def _overlaps(lo: np.ndarray, hi: np.ndarray, present: np.ndarray, slack: float):
+    """All (edge, u, v) with intervals [lo, hi] of items u, v overlapping on the same edge.
+
+    Vectorised over edges: keys ``edge + 0.5 * value / scale`` are sorted once and
+    each interval's partners are a contiguous run found by ``searchsorted``.
+    """
+    E, M = lo.shape
+    if not present.any():
+        z = np.zeros(0, dtype=np.int64)
+        return z, z, z
+    scale = float(np.max(hi[present])) or 1.0
+    eidx = np.arange(E, dtype=float)[:, None]
+    klo = np.where(present, eidx + 0.5 * lo / scale, eidx + 0.9).ravel()
+    khi = np.where(present, eidx + 0.5 * hi / scale + 0.5 * slack / scale + 1e-12, -1.0).ravel()
+    order = np.argsort(klo, kind="stable")
+    sk = klo[order]
+    q = np.searchsorted(sk, khi[order], side="right")
+    pos = np.arange(sk.size)
+    cnt = np.maximum(q - pos - 1, 0)
+    cnt[~present.ravel()[order]] = 0
+    total = int(cnt.sum())
+    src = np.repeat(pos, cnt)
+    offs = np.arange(total) - np.repeat(np.cumsum(cnt) - cnt, cnt)
+    dst = src + 1 + offs
+    fu = order[src]
+    fv = order[dst]
+    e, u = np.divmod(fu, M)
+    _, v = np.divmod(fv, M)
+    return e, u, v
+
+
+def _as_ties(table: PairTable, items: Items, u: np.ndarray, v: np.ndarray):
+    """Item pairs -> (keep mask, cond, P, Q, big item, small item)."""
+    fu = items.factor[u]
+    fv = items.factor[v]
+    pu = items.pair[u]
+    pv = items.pair[v]
+    eq = (fu == 1) & (fv == 1)
+    hf = (fu != fv)
+    big_i = np.where(eq, np.where(pu < pv, u, v), np.where(fu == 1, u, v))
+    small_i = np.where(eq, np.where(pu < pv, v, u), np.where(fu == 1, v, u))
+    P = items.pair[big_i]
+    Q = items.pair[small_i]
+    keep = np.zeros(u.shape, dtype=bool)
+    keep[eq] = equal_allowed(table, P[eq], Q[eq])
+    keep[hf] = half_allowed(table, P[hf], Q[hf])
+    cond = np.where(hf, 1, 0)
+    return keep, cond, P, Q, big_i, small_i
+
+
+def _swapped(V0, V1, e, big_i, small_i, snap: float, tol: float) -> np.ndarray:
+    f0 = V0[e, big_i] - V0[e, small_i]
+    f1 = V1[e, big_i] - V1[e, small_i]
+    return ((f0 >= -snap) != (f1 >= -snap)) & (np.maximum(np.abs(f0), np.abs(f1)) > tol)
+
+
+def find_crossings(table: PairTable, samples: Samples, *, method: str = "sweep", tol: float,
+                   snap: float, progress: Callable[[int, int], None] | None = None,
+                   progress_offset: int = 0, progress_total: int | None = None
+                   ) -> tuple[np.ndarray, np.ndarray, dict]:
+    """Tie codes and edge ids of all lattice edges a tie curve crosses.
+
+    Parameters
+    ----------
+    table : PairTable
+    samples : Samples
+    method : {"sweep", "naive"}
+    tol : float
+        Edges where the residual is within ``tol`` at both ends are not crossings
+        (they lie in a patch).
+    snap : float
+        Sign convention: a residual counts as non-negative when ``R >= -snap``.
+    progress : callable (done, total), optional
+
+    Returns
+    -------
+    codes, edges : ndarray of int64
+        Sorted by (code, edge), unique.
+    stats : dict
+        ``candidate_item_pairs`` (overlaps examined), ``swaps``, ``crossings``.
+    """
+    if method not in METHODS:
+        raise ValueError(f"method must be one of {METHODS}, not {method!r}")
+    lat = samples.lattice
+    items = Items.of(table)
+    nb = lat.n_b
+    total = progress_total or nb
+    codes_out: list[np.ndarray] = []
+    edges_out: list[np.ndarray] = []
+    n_cand = 0
+    n_swap = 0
+    dv: dict[int, np.ndarray] = {}
+    if method == "naive":
+        all_codes = all_tie_codes(table)
+        acond, aP, aQ = table.decode(all_codes)
+        abig = aP
+        asmall = np.where(acond == 1, items.doubled_index[aQ], aQ)
+    for j in range(nb):
+        for k in (j, j + 1):
+            if k < nb and k not in dv:
+                dv[k] = samples.pair_values(table, k)
+        dv.pop(j - 1, None)
+        edges, V0, V1, pres = _row_edges(lat, samples, table, j, items, dv)
+        if method == "sweep":
+            lo = np.minimum(V0, V1)
+            hi = np.maximum(V0, V1)
+            e, u, v = _overlaps(lo, hi, pres, snap)
+            n_cand += e.size
+            keep, cond, P, Q, big_i, small_i = _as_ties(table, items, u, v)
+            e, cond, P, Q, big_i, small_i = (x[keep] for x in (e, cond, P, Q, big_i, small_i))
+            sw = _swapped(V0, V1, e, big_i, small_i, snap, tol)
+            code = table.encode(cond[sw], P[sw], Q[sw])
+            ee = e[sw]
+        else:
+            code_l, ee_l = [], []
+            step = max(1, 4_000_000 // max(len(edges), 1))
+            for t0 in range(0, all_codes.size, step):
+                sl = slice(t0, t0 + step)
+                b_i, s_i = abig[sl], asmall[sl]
+                n_cand += b_i.size * len(edges)
+                f0 = V0[:, b_i] - V0[:, s_i]
+                f1 = V1[:, b_i] - V1[:, s_i]
+                ok = pres[:, b_i] & pres[:, s_i]
+                sw = ok & ((f0 >= -snap) != (f1 >= -snap)) & (np.maximum(np.abs(f0), np.abs(f1)) > tol)
+                ei, ti = np.nonzero(sw)
+                code_l.append(all_codes[sl][ti])
+                ee_l.append(ei)
+            code = np.concatenate(code_l)
+            ee = np.concatenate(ee_l)
+        n_swap += code.size
+        codes_out.append(code)
+        edges_out.append(edges[ee])
+        if progress is not None:
+            progress(progress_offset + j + 1, total)
+    codes = np.concatenate(codes_out) if codes_out else np.zeros(0, np.int64)
+    eids = np.concatenate(edges_out) if edges_out else np.zeros(0, np.int64)
+    keep = relevant_cells(table, samples, codes, eids).any(axis=1)
+    codes, eids = codes[keep], eids[keep]
+    key = np.unique(codes * lat.n_edges + eids)
+    codes, eids = np.divmod(key, lat.n_edges)
+    stats = {"candidate_item_pairs": int(n_cand), "swaps": int(n_swap), "crossings": int(codes.size)}
+    return codes, eids, stats
+
+
+def relevant_cells(table: PairTable, samples: Samples, codes: np.ndarray, edges: np.ndarray) -> np.ndarray:
+    """For each (tie, edge): which of the two cells beside the edge see the tie met.
+
+    A cell sees a tie when all four contours are met at one of its corners.
+    Returns a bool array (K, 2) aligned with :meth:`Lattice.edge_cells`.
+    """
+    lat = samples.lattice
+    cells = lat.edge_cells(edges)
+    slots, _ = table.tie_contours(codes)
+    met = samples.met.reshape(len(table.contours), -1)
+    out = np.zeros(cells.shape, dtype=bool)
+    for side in range(2):
+        c = cells[:, side]
+        valid = c >= 0
+        corners = lat.cell_corners(np.where(valid, c, 0))  # (K, 4)
+        m4 = met[slots[:, None, :], corners[:, :, None]]  # (K, 4 corners, 4 contours)
+        out[:, side] = valid & m4.all(axis=2).any(axis=1)
+    return out
