@@ -457,6 +457,7 @@ def _densify(surface, fmap, run: np.ndarray, tol: float, eps: float, rounds: int
     """
     min_len = 1e-7 * surface.size
     cap = 4 * len(run) + 200
+    stuck = np.zeros(len(run), dtype=bool)  # per segment (last entry unused)
     for _ in range(rounds):
         if len(run) > cap:
             break
@@ -467,9 +468,19 @@ def _densify(surface, fmap, run: np.ndarray, tol: float, eps: float, rounds: int
         bad &= seg > min_len
         if not bad.any():
             break
-        k = np.nonzero(bad)[0]
-        mids = _refine_on_jacobi(surface, fmap, 0.5 * (run[k] + run[k + 1]), tol)
+        k = np.nonzero(bad & ~stuck[: len(bad)])[0]
+        if k.size == 0:
+            break
+        chord_mid = 0.5 * (run[k] + run[k + 1])
+        mids = _refine_on_jacobi(surface, fmap, chord_mid, tol)
+        # accept a midpoint only if it stays local and Pareto; otherwise leave the step
+        # (the final monotonicity guard splits there)
+        ok = np.linalg.norm(mids - chord_mid, axis=1) <= 0.5 * seg[k]
+        ok &= _pareto_sign(surface, fmap, mids) <= 1e-9
+        stuck[k[~ok]] = True
+        k, mids = k[ok], mids[ok]
         run = np.insert(run, k + 1, mids, axis=0)
+        stuck = np.insert(stuck, k + 1, False)
     return run
 
 
@@ -530,6 +541,19 @@ def _cut_at_cusps(surface, fmap, run: np.ndarray, closed: bool, tol: float, eps:
             if bounds[i + 1] > bounds[i]]
 
 
+def _monotone_parts(Y: np.ndarray, tol: float) -> tuple[list[np.ndarray], int]:
+    """Split a polyline at steps that are not non-increasing (beyond ``tol``), dropping them.
+
+    A guard against under-resolved geometry (a cusp or two branches inside one mesh cell);
+    returns the parts with at least two points and the number of dropped steps.
+    """
+    d = np.diff(Y, axis=0)
+    bad = np.nonzero((d[:, 0] < -tol) | (d[:, 1] > tol))[0]
+    bounds = [-1, *bad.tolist(), len(Y) - 1]
+    parts = [Y[bounds[i] + 1:bounds[i + 1] + 1] for i in range(len(bounds) - 1)]
+    return [p for p in parts if len(p) >= 2], int(bad.size)
+
+
 def _chord_error(Y: np.ndarray) -> float:
     """Largest sagitta of the polyline's segments, from a three-point curvature estimate.
 
@@ -551,7 +575,7 @@ def _chord_error(Y: np.ndarray) -> float:
 
 # ----------------------------------------------------------------------------- the grid
 def smooth_grid(surface, fmap: SmoothMap, *, label: str = "f", resolution: int = 4000,
-                tol: float = 1e-9) -> Grid:
+                tol: float = 1e-9, retries: int = 1) -> Grid:
     """Extended Pareto grid of a smooth map on a smooth surface.
 
     Parameters
@@ -568,6 +592,11 @@ def smooth_grid(surface, fmap: SmoothMap, *, label: str = "f", resolution: int =
         Vertices of the mesh on which the Jacobi set is contoured and critical points seeded.
     tol : float
         Newton accuracy of curve points and critical points, relative to the surface size.
+    retries : int
+        If the Morse check fails (#min - #saddle + #max != chi for f1 or f2, i.e. critical
+        points closer than the mesh spacing were missed) or non-monotone steps had to be
+        dropped, recompute up to ``retries`` times at 4x the resolution and keep the first
+        clean result (else the last one).
 
     Returns
     -------
@@ -590,6 +619,24 @@ def smooth_grid(surface, fmap: SmoothMap, *, label: str = "f", resolution: int =
     >>> len(g.by_kind("vertical")), len(g.by_kind("horizontal"))
     (4, 4)
     """
+    res = int(resolution)
+    grid = _smooth_grid_once(surface, fmap, label, res, tol)
+    for _ in range(max(int(retries), 0)):
+        if _clean(grid):
+            break
+        res *= 4
+        grid = _smooth_grid_once(surface, fmap, label, res, tol)
+    grid.meta["requested_resolution"] = int(resolution)
+    return grid
+
+
+def _clean(grid: Grid) -> bool:
+    ec = grid.meta["euler_check"]
+    return bool(ec["f1"]["ok"] and ec["f2"]["ok"] and grid.meta["dropped_steps"] == 0)
+
+
+def _smooth_grid_once(surface, fmap: SmoothMap, label: str, resolution: int, tol: float) -> Grid:
+    """One pass of :func:`smooth_grid` at a fixed resolution."""
     V, T = surface.mesh(resolution)
     E, _ = _edges(T)
     spacing = _mesh_spacing(V, E)
@@ -606,6 +653,9 @@ def smooth_grid(surface, fmap: SmoothMap, *, label: str = "f", resolution: int =
     vals = np.asarray(fmap.values(V), dtype=float)
     vscale = float(max(np.ptp(vals[:, 0]), np.ptp(vals[:, 1]), 1e-300))
     eps = 1e-12 * vscale
+    lip = float(np.linalg.norm(np.asarray(fmap.jacobian(V), dtype=float), axis=2).max())
+    mono_tol = max(1e-7 * vscale, 10.0 * tol * surface.size * lip)
+    n_dropped = 0
     pieces: list[np.ndarray] = []
     for cyc in cycles:
         for run in _pareto_runs(surface, fmap, cyc, crit, 1e-6 * surface.size, ctol):
@@ -614,10 +664,10 @@ def smooth_grid(surface, fmap: SmoothMap, *, label: str = "f", resolution: int =
                 Y = np.asarray(fmap.values(piece), dtype=float)
                 if Y[-1, 0] - Y[-1, 1] < Y[0, 0] - Y[0, 1]:
                     Y = Y[::-1]
-                if len(Y) >= 2:
-                    pieces.append(Y)
+                parts, dropped = _monotone_parts(Y, mono_tol)
+                n_dropped += dropped
+                pieces.extend(parts)
     pieces.sort(key=lambda Y: (Y[0, 0], Y[0, 1]))
-    lip = float(np.linalg.norm(np.asarray(fmap.jacobian(V), dtype=float), axis=2).max())
     err = max([_chord_error(Y) for Y in pieces] + [tol * surface.size * lip, 1e-15 * vscale])
     contours: list[Contour] = [Contour(f"{label}:p{k}", "proper", Y) for k, Y in enumerate(pieces)]
     contours += [Contour(f"{label}:v{k}", "vertical", c.value) for k, c in enumerate(cps[0])]
@@ -629,6 +679,7 @@ def smooth_grid(surface, fmap: SmoothMap, *, label: str = "f", resolution: int =
         "mesh_spacing": spacing,
         "critical_points": {"f1": [c.to_json() for c in cps[0]], "f2": [c.to_json() for c in cps[1]]},
         "euler_check": {"f1": _euler_check(cps[0], chi), "f2": _euler_check(cps[1], chi)},
+        "dropped_steps": n_dropped,
     }
     grid = Grid(tuple(contours), route="smooth", tolerance=err, meta=meta)
-    return validate_grid(grid, tol=max(1e-7 * vscale, 10.0 * tol * surface.size * lip))
+    return validate_grid(grid, tol=mono_tol)
