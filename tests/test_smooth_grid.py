@@ -180,7 +180,7 @@ def test_ellipsoid_linear_convergence_rate():
     # error of a polyline through exact curve points.
     E = Ellipsoid(tuple(RADII))
     res = [1000, 4000, 16000]
-    errs = [hausdorff_to_exact(smooth_grid(E, Linear(L, C), resolution=n)) for n in res]
+    errs = [float(hausdorff_to_exact(smooth_grid(E, Linear(L, C), resolution=n))) for n in res]
     rates = [math.log(errs[i] / errs[i + 1]) / math.log(res[i + 1] / res[i]) for i in range(2)]
     print(f"smooth route Hausdorff errors {errs}, rates in resolution {rates}")
     assert errs[0] > errs[1] > errs[2]
@@ -216,6 +216,37 @@ def test_morse_counts_on_random_maps(surface, seed):
         assert np.all(d[:, 0] >= -1e-7) and np.all(d[:, 1] <= 1e-7)
 
 
+@pytest.mark.parametrize("surface", [Ellipsoid((2.0, 1.3, 0.7)), Torus((2.0, 1.0))],
+                         ids=["ellipsoid", "torus"])
+def test_proper_contours_end_at_critical_values_or_cusps(surface):
+    # [CEF19]: the image of J_P is cut only at critical points of f1, f2 and at cusps; a cusp
+    # is shared by exactly the two pieces meeting there
+    g = smooth_grid(surface, QuadSine(1), resolution=3000)
+    starts = np.array([c.start for c in g.contours if c.kind != "proper"])
+    proper = g.by_kind("proper")
+    ends = [(i, p.points[j]) for i, p in enumerate(proper) for j in (0, -1)]
+    n_cusp_ends = 0
+    for i, q in ends:
+        if np.min(np.linalg.norm(starts - q, axis=1)) < 1e-8:
+            continue
+        shared = [k for k, r in ends if k != i and np.linalg.norm(r - q) < 1e-12]
+        assert len(shared) == 1
+        n_cusp_ends += 1
+    assert n_cusp_ends % 2 == 0
+
+
+def test_hard_map_reports_and_repairs_missed_critical_points():
+    # a wiggly map on a thin torus: at 3000 vertices a close min-saddle pair of f1 is missed,
+    # which the Morse check [Mil63] detects; one retry at 4x resolution finds it
+    surface, fmap = Torus((3.0, 0.5)), QuadSine(1, e=0.5)
+    coarse = smooth_grid(surface, fmap, resolution=3000, retries=0)
+    assert not coarse.meta["euler_check"]["f1"]["ok"]
+    fine = smooth_grid(surface, fmap, resolution=3000, retries=1)
+    assert fine.meta["resolution"] == 12000 and fine.meta["requested_resolution"] == 3000
+    for key in ("f1", "f2"):
+        assert fine.meta["euler_check"][key]["alternating_sum"] == 0  # chi(torus) [Mil63]
+
+
 def test_pareto_fronts_lie_on_proper_contours():
     # Minimal (and maximal) points of f(M) are Pareto critical [CEF19], so the non-dominated
     # samples of a dense random sampling must lie near the proper contours.
@@ -232,8 +263,9 @@ def test_pareto_fronts_lie_on_proper_contours():
         best = np.minimum.accumulate(Z[order, 1])
         front = Y[order][np.concatenate([[True], Z[order, 1][1:] < best[:-1]])]
         dist = np.min([to_polyline(front, q) for q in poly], axis=0)
-        assert np.quantile(dist, 0.9) < 5e-3 * span
-        assert dist.max() < 3e-2 * span
+        # observed: 90% quantile ~ 1e-3 span, max ~ 1.3e-3 span (sampling gap of the front)
+        assert np.quantile(dist, 0.9) < 3e-3 * span
+        assert dist.max() < 1e-2 * span
 
 
 def test_critical_points_api_on_ellipsoid():
