@@ -15,6 +15,8 @@ The route follows math.md sections 4 and 7:
 3. Contours. Pareto arcs are mapped to the plane, cut at cusps (where the image reverses
    direction) into non-increasing polylines ("proper" contours); every critical point of f1
    (f2) starts a vertical (horizontal) half-line [CEF19].
+4. Checks. The Morse counts #min - #saddle + #max must equal chi(M) for f1 and f2 [Mil63]; when
+   they do not (features below the mesh spacing), the computation is repeated on a finer mesh.
 
 The map is duck-typed: any object with ``values(P) -> (n, 2)`` and ``jacobian(P) -> (n, 2, 3)``.
 
@@ -626,8 +628,8 @@ def smooth_grid(surface, fmap: SmoothMap, *, label: str = "f", resolution: int =
             break
         res *= 4
         grid = _smooth_grid_once(surface, fmap, label, res, tol)
-    grid.meta["requested_resolution"] = int(resolution)
-    return grid
+    meta = {**grid.meta, "requested_resolution": int(resolution)}
+    return Grid(grid.contours, grid.route, grid.tolerance, meta)
 
 
 def _clean(grid: Grid) -> bool:
