@@ -70,7 +70,7 @@ def test_arcs_cover_the_pareto_boundary_within_tolerance():
     g = ellipsoid_linear_grid(RADII, L, C, n_points=301)
     # independent parametrisation: y = c + K (cos t, sin t) with K K^T = Q (Cholesky)
     K = np.linalg.cholesky(np.linalg.inv(ellipse_form()))
-    t = np.linspace(0, 2 * np.pi, 200001)
+    t = np.linspace(0, 2 * np.pi, 40001)
     Y = C + np.stack([np.cos(t), np.sin(t)], 1) @ K.T
     n = (Y - C) @ ellipse_form().T
     for contour, quadrant in zip(g.by_kind("proper"), (-1.0, 1.0), strict=True):
