@@ -4,7 +4,7 @@ A *piece* is the curve set, the isolated points or the patch of one tie. The
 special set is the union of all pieces; its *components* are the connected
 components of the graph whose nodes are the single parts (one line string,
 polygon or point) of all pieces and whose edges join parts closer than a tiny
-distance (shapely ``STRtree`` candidates, networkx components).
+distance (binned segment tests and a shapely ``STRtree``; scipy graph components).
 
 References
 ----------
@@ -16,7 +16,6 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from typing import Any
 
-import networkx as nx
 import numpy as np
 import shapely
 from shapely.geometry import mapping
@@ -26,7 +25,6 @@ from specmap.special.pairs import Tie, tie_from_json
 from specmap.strip import Window
 
 KINDS = ("curve", "patch", "point")
-UNION_LIMIT = 4000
 
 
 @dataclass(frozen=True)
@@ -171,14 +169,136 @@ def _dedupe_lines(lines: list, scale: float) -> list:
     return out
 
 
+def _segment_links(lines: list, eps: float) -> tuple[np.ndarray, np.ndarray]:
+    """Links (i, j) between lines whose union connects every set of touching lines.
+
+    Lines sharing a vertex (to ``eps``) are linked first. Segments are binned in
+    a hash grid whose cell is the largest segment extent, so two touching
+    segments share a bin; only segments of a common bin that still belong to
+    different components are tested (vectorised, bins in random chunks with the
+    components updated after each chunk), which keeps the work near-linear.
+    """
+    if not lines:
+        z = np.zeros(0, np.int64)
+        return z, z
+    coords, idx = shapely.get_coordinates(np.array(lines, dtype=object), return_index=True)
+    same = idx[1:] == idx[:-1]
+    p = coords[:-1][same]
+    q = coords[1:][same]
+    owner = idx[:-1][same]
+    lo = np.minimum(p, q) - eps
+    hi = np.maximum(p, q) + eps
+    h = max(float(np.max(hi - lo)), eps, 1e-300)
+    org = lo.min(axis=0)
+    c0 = np.floor((lo - org) / h).astype(np.int64)
+    c1 = np.floor((hi - org) / h).astype(np.int64)
+    width = int(c1[:, 0].max()) + 2
+    segs, bins = [], []
+    for dx in (0, 1):
+        for dy in (0, 1):
+            ok = (c0[:, 0] + dx <= c1[:, 0]) & (c0[:, 1] + dy <= c1[:, 1])
+            k = np.nonzero(ok)[0]
+            segs.append(k)
+            bins.append((c0[k, 1] + dy) * width + c0[k, 0] + dx)
+    segs = np.concatenate(segs)
+    bins = np.concatenate(bins)
+    n_lines = len(lines)
+    # round 1: lines sharing an end point or vertex (to eps) are linked without tests
+    key = np.round(np.vstack([p, q]) / eps).astype(np.int64)
+    _, vid = np.unique(key, axis=0, return_inverse=True)
+    vid = vid.ravel()
+    links_a = [np.concatenate([owner, owner])]
+    links_b = [n_lines + vid]
+    n_nodes = n_lines + int(vid.max()) + 1
+    label = _labels(n_nodes, links_a, links_b)[:n_lines]
+    # coincident segments (same rounded end points) are already linked: keep one per bin
+    vp, vq = vid[:p.shape[0]], vid[p.shape[0]:]
+    sk = np.minimum(vp, vq)[segs] * (int(vid.max()) + 1) + np.maximum(vp, vq)[segs]
+    _, first = np.unique(np.stack([bins, sk], axis=1), axis=0, return_index=True)
+    segs, bins = segs[first], bins[first]
+    order = np.argsort(bins, kind="stable")
+    segs, bins = segs[order], bins[order]
+    _, start, count = np.unique(bins, return_index=True, return_counts=True)
+    rng = np.random.default_rng(0)
+    multi = np.nonzero(count > 1)[0]
+    multi = multi[rng.permutation(multi.size)]
+    work = count[multi].astype(np.int64) * (count[multi] - 1) // 2
+    cuts = np.searchsorted(np.cumsum(work), np.arange(0, int(work.sum()) + 1, 1_000_000)[1:])
+    for chunk in np.split(multi, np.unique(cuts + 1)):
+        if chunk.size == 0:
+            continue
+        us, vs = [], []
+        for cval in np.unique(count[chunk]):
+            sel = start[chunk[count[chunk] == cval]]
+            ia, ib = np.triu_indices(int(cval), k=1)
+            u = segs[(sel[:, None] + ia[None, :]).ravel()]
+            v = segs[(sel[:, None] + ib[None, :]).ravel()]
+            keep = label[owner[u]] != label[owner[v]]
+            us.append(u[keep])
+            vs.append(v[keep])
+        u = np.concatenate(us)
+        v = np.concatenate(vs)
+        if u.size == 0:
+            continue
+        hit = _segments_close(p[u], q[u], p[v], q[v], eps)
+        if hit.any():
+            links_a.append(owner[u[hit]])
+            links_b.append(owner[v[hit]])
+            label = _labels(n_nodes, links_a, links_b)[:n_lines]
+    # links from every line to the first line of its component
+    rep = np.full(int(label.max()) + 1, -1, dtype=np.int64)
+    rep[label[::-1]] = np.arange(n_lines)[::-1]
+    return np.arange(n_lines), rep[label]
+
+
+def _labels(n: int, a: list, b: list) -> np.ndarray:
+    from scipy.sparse import coo_matrix
+    from scipy.sparse.csgraph import connected_components
+
+    ea = np.concatenate(a)
+    eb = np.concatenate(b)
+    g = coo_matrix((np.ones(ea.size), (ea, eb)), shape=(n, n))
+    return connected_components(g, directed=False)[1]
+
+
+def _point_segment_distance(x, p, q):
+    d = q - p
+    L = np.einsum("ij,ij->i", d, d)
+    t = np.where(L > 0, np.einsum("ij,ij->i", x - p, d) / np.where(L > 0, L, 1.0), 0.0)
+    t = np.clip(t, 0.0, 1.0)
+    return np.hypot(*(x - p - t[:, None] * d).T)
+
+
+def _segments_close(p1, q1, p2, q2, eps) -> np.ndarray:
+    """Vectorised: segments p1q1 and p2q2 cross or come within eps."""
+    def orient(a, b, c):
+        return (b[:, 0] - a[:, 0]) * (c[:, 1] - a[:, 1]) - (b[:, 1] - a[:, 1]) * (c[:, 0] - a[:, 0])
+
+    o1 = orient(p1, q1, p2)
+    o2 = orient(p1, q1, q2)
+    o3 = orient(p2, q2, p1)
+    o4 = orient(p2, q2, q1)
+    cross = (o1 * o2 < 0) & (o3 * o4 < 0)
+    dist = np.minimum.reduce([_point_segment_distance(p2, p1, q1), _point_segment_distance(q2, p1, q1),
+                              _point_segment_distance(p1, p2, q2), _point_segment_distance(q1, p2, q2)])
+    return cross | (dist <= eps)
+
+
 def components(pieces: tuple[TiePiece, ...], window: Window) -> tuple[Component, ...]:
     """Connected components of the union of all pieces.
 
-    Parts closer than ``1e-9`` of the window diameter are joined. Area is the
-    area of the union of patch polygons; length the length of the union of the
-    curves (above ``UNION_LIMIT`` line parts: the sum over distinct curves).
+    Parts closer than ``1e-9`` of the window diameter are joined: line/line
+    contacts by a binned, vectorised segment test; contacts with polygons and
+    points by a shapely ``STRtree``. Components are those of the resulting graph
+    (scipy sparse graph). Area is the area of the union of patch polygons;
+    length the sum over distinct curves (curves of several ties that coincide
+    to 1e-9 count once).
     """
+    from scipy.sparse import coo_matrix
+    from scipy.sparse.csgraph import connected_components
+
     scale = max(window.diameter, 1e-300)
+    eps = 1e-9 * scale
     parts, owner = [], []
     for k, p in enumerate(pieces):
         for g in shapely.get_parts(p.geometry):
@@ -188,25 +308,33 @@ def components(pieces: tuple[TiePiece, ...], window: Window) -> tuple[Component,
     if not parts:
         return ()
     arr = np.array(parts, dtype=object)
-    tree = shapely.STRtree(arr)
-    i, j = tree.query(arr, predicate="dwithin", distance=1e-9 * scale)
-    graph = nx.Graph()
-    graph.add_nodes_from(range(len(parts)))
-    graph.add_edges_from(zip(i[i < j].tolist(), j[i < j].tolist(), strict=True))
+    types = shapely.get_type_id(arr)
+    line_idx = np.nonzero(types == 1)[0]
+    other_idx = np.nonzero(types != 1)[0]
+    la, lb = _segment_links(list(arr[line_idx]), eps)
+    ea, eb = [line_idx[la]], [line_idx[lb]]
+    if other_idx.size:
+        tree = shapely.STRtree(arr)
+        qi, ti = tree.query(arr[other_idx], predicate="dwithin", distance=eps)
+        ea.append(other_idx[qi])
+        eb.append(ti)
+    ea = np.concatenate(ea)
+    eb = np.concatenate(eb)
+    n = len(parts)
+    graph = coo_matrix((np.ones(ea.size), (ea, eb)), shape=(n, n))
+    _, label = connected_components(graph, directed=False)
+    order = np.argsort(label, kind="stable")
+    _, st = np.unique(label[order], return_index=True)
+    groups = np.split(order, st[1:])
     comps = []
-    for nodes in nx.connected_components(graph):
-        nodes = sorted(nodes)
+    for nodes in groups:
         geoms = [parts[n] for n in nodes]
         polys = [g for g in geoms if g.geom_type == "Polygon"]
         lines = _dedupe_lines([g for g in geoms if g.geom_type == "LineString"], scale)
         pts = [g for g in geoms if g.geom_type == "Point"]
         area_geom = shapely.union_all(polys) if polys else None
-        if len(lines) <= UNION_LIMIT and lines:
-            line_geom = shapely.union_all(lines)
-            length = float(line_geom.length)
-        else:
-            line_geom = shapely.MultiLineString(lines) if lines else None
-            length = float(sum(g.length for g in lines))
+        line_geom = shapely.MultiLineString(lines) if lines else None
+        length = float(sum(g.length for g in lines))
         members = [g for g in (area_geom, line_geom) if g is not None]
         if pts:
             members.append(shapely.MultiPoint(pts))

@@ -116,7 +116,7 @@ def segments(table: PairTable, samples: Samples, codes: np.ndarray, edges: np.nd
         first = np.where(same[:, None], sub[:, [0, 1]], sub[:, [3, 0]])
         second = np.where(same[:, None], sub[:, [2, 3]], sub[:, [1, 2]])
         out.extend([first, second])
-    odd = np.nonzero((count == 3))[0]
+    odd = np.nonzero(count == 3)[0]
     if odd.size:
         sub = idx[odd]
         order = np.argsort(~present[odd], axis=1, kind="stable")
