@@ -17,102 +17,21 @@ Text pages flow onto continuation pages, so nothing is clipped or overlaps.
 from __future__ import annotations
 
 import datetime as _dt
-import textwrap
 from collections.abc import Callable
 from pathlib import Path
 from typing import Any
 
 from matplotlib.backends.backend_pdf import PdfPages
-from matplotlib.figure import Figure, FigureBase
+from matplotlib.figure import FigureBase
 
 from specmap.errors import ResultsError
 from specmap.report.figures import grids_figure, landscape_figure, perturb_figure, save_png, special_figure
 from specmap.report.findings import WARNING, findings
 from specmap.report.fmt import fmt, fmt_interval, fmt_pct, fmt_point, fraction_interval, num, plural
+from specmap.report.layout import Pager
 from specmap.report.load import STAGE_VERB, load_results
 
-A4 = (8.27, 11.69)
-LEFT, TOP, BOTTOM = 0.08, 0.955, 0.055
-TEXT_PT = 9.5
-MONO_PT = 8.0
 MAX_TABLE_ROWS = 18
-RED = "#b00020"
-
-
-class _Pager:
-    """Writes A4 pages: an optional figure on top, then flowing text."""
-
-    def __init__(self, pdf: PdfPages, study_name: str) -> None:
-        self.pdf = pdf
-        self.study_name = study_name
-        self.page_no = 0
-        self.fig: Figure | None = None
-        self.y = TOP
-        self.title = ""
-
-    # -- pages ---------------------------------------------------------------
-    def page(self, title: str, plot_height: float = 0.0) -> FigureBase | None:
-        """Start a page; return a subfigure of ``plot_height`` (fraction of the page) to draw into."""
-        self.close()
-        self.title = title
-        self.fig = Figure(figsize=A4)
-        self.page_no += 1
-        self.fig.text(LEFT, TOP, title, fontsize=15, weight="bold", va="top", parse_math=False)
-        self.fig.text(0.5, 0.022, f"specmap report: {self.study_name}   page {self.page_no}",
-                      fontsize=8, ha="center", color="0.35", parse_math=False)
-        self.y = TOP - 0.04
-        if plot_height <= 0:
-            return None
-        head = 1.0 - self.y + 0.005
-        _, sub, _ = self.fig.subfigures(3, 1, height_ratios=[head, plot_height, 1.0 - head - plot_height])
-        self.fig.set_layout_engine("constrained")
-        self.y = 1.0 - head - plot_height - 0.01
-        return sub
-
-    def close(self) -> None:
-        if self.fig is not None:
-            self.pdf.savefig(self.fig)
-            self.fig = None
-
-    # -- text ------------------------------------------------------------------
-    def _room(self, height: float) -> None:
-        if self.fig is None or self.y - height < BOTTOM:
-            self.page(self.title + (" (continued)" if "(continued)" not in self.title else ""))
-
-    def _line(self, text: str, size: float, **kw: Any) -> None:
-        step = size * 1.45 / 72.0 / A4[1]
-        self._room(step)
-        assert self.fig is not None
-        self.fig.text(LEFT + kw.pop("indent", 0.0), self.y, text, fontsize=size, va="top",
-                      parse_math=False, **kw)
-        self.y -= step
-
-    def heading(self, text: str) -> None:
-        self.gap(0.6)
-        self._room(0.06)
-        self._line(text, 11.5, weight="bold")
-        self.gap(0.2)
-
-    def gap(self, lines: float = 1.0) -> None:
-        self.y -= lines * TEXT_PT * 1.45 / 72.0 / A4[1]
-
-    def para(self, text: str, size: float = TEXT_PT, *, indent: float = 0.0, **kw: Any) -> None:
-        width_pt = (1.0 - 2 * LEFT - indent) * A4[0] * 72.0
-        chars = max(20, int(width_pt / (0.56 * size)))
-        for i, line in enumerate(textwrap.wrap(text, chars) or [""]):
-            self._line(line, size, indent=indent + (0.02 if i else 0.0), **kw)
-
-    def field(self, key: str, value: Any) -> None:
-        self.para(f"{key}: {value}")
-
-    def mono(self, line: str, **kw: Any) -> None:
-        chars = int((1.0 - 2 * LEFT) * A4[0] * 72.0 / (0.61 * MONO_PT))
-        for i, piece in enumerate(textwrap.wrap(line, chars, drop_whitespace=False,
-                                                subsequent_indent="    ") or [""]):
-            self._line(piece if i else piece, MONO_PT, family="DejaVu Sans Mono", **kw)
-
-    def warn(self, text: str) -> None:
-        self.para(text, color=RED, weight="bold")
 
 
 # -- helpers ---------------------------------------------------------------------
@@ -165,7 +84,7 @@ def _short_dict(d: Any, limit: int = 8) -> str:
 
 
 # -- pages -------------------------------------------------------------------------
-def _cover(pg: _Pager, res: dict[str, Any]) -> None:
+def _cover(pg: Pager, res: dict[str, Any]) -> None:
     st = res["study"]
     pg.page("specmap report")
     pg.para(f"Study: {st.get('name', 'n/a')}", 14, weight="bold")
@@ -218,7 +137,7 @@ def _cover(pg: _Pager, res: dict[str, Any]) -> None:
             pg.mono(str(c))
 
 
-def _grids_page(pg: _Pager, res: dict[str, Any]) -> None:
+def _grids_page(pg: Pager, res: dict[str, Any]) -> None:
     sub = pg.page("Extended Pareto grids", 0.6)
     _draw("grids", "grid_f.json / grid_g.json", lambda: grids_figure(res.get("grid_f"), res.get("grid_g"),
                                                                         fig=sub))
@@ -243,7 +162,7 @@ def _component_rows(comps: list[dict[str, Any]]) -> list[dict[str, Any]]:
                                         -num(c.get("length") or 0)))
 
 
-def _special_page(pg: _Pager, res: dict[str, Any]) -> None:
+def _special_page(pg: Pager, res: dict[str, Any]) -> None:
     sp = res["special"]
     sub = pg.page("Special set", 0.52)
     _draw("special", "special.json", lambda: special_figure(sp, res.get("geojson"), fig=sub))
@@ -278,7 +197,7 @@ def _special_page(pg: _Pager, res: dict[str, Any]) -> None:
         pg.mono(f"... and {len(comps) - len(shown)} more components (not listed)")
 
 
-def _distance_page(pg: _Pager, res: dict[str, Any]) -> None:
+def _distance_page(pg: Pager, res: dict[str, Any]) -> None:
     d = res["distance"]
     st = res["study"]
     sub = pg.page("Matching distance", 0.5)
@@ -327,10 +246,13 @@ def _distance_page(pg: _Pager, res: dict[str, Any]) -> None:
         frac = num(pos.get("fraction_explained"))
         text = (f"Position audit: {fmt_pct(frac)} of diagram coordinates on {pos.get('lines', 'n/a')} lines "
                 f"are push coordinates of grid contours; max deviation {fmt(pos.get('max_deviation'), 3)}.")
-        pg.warn(WARNING + " " + text) if frac < 1.0 else pg.para(text)
+        if frac < 1.0:
+            pg.warn(f"{WARNING} {text}")
+        else:
+            pg.para(text)
 
 
-def _perturb_page(pg: _Pager, res: dict[str, Any]) -> None:
+def _perturb_page(pg: Pager, res: dict[str, Any]) -> None:
     s = res["perturb"]["summary"]
     runs = res["perturb"]["runs"]
     sub = pg.page("Perturbation study", 0.5 if s.get("sweep") else 0.3)
@@ -369,7 +291,7 @@ def _perturb_page(pg: _Pager, res: dict[str, Any]) -> None:
     pg.para(str(s.get("verdict", "n/a")), weight="bold")
 
 
-def _findings_page(pg: _Pager, res: dict[str, Any]) -> None:
+def _findings_page(pg: Pager, res: dict[str, Any]) -> None:
     pg.page("Findings")
     for i, sentence in enumerate(findings(res), 1):
         if sentence.startswith(WARNING):
@@ -425,7 +347,7 @@ REFERENCES = [
 ]
 
 
-def _methods_page(pg: _Pager, res: dict[str, Any]) -> None:
+def _methods_page(pg: Pager, res: dict[str, Any]) -> None:
     pg.page("Methods appendix")
     for title, text in METHODS:
         pg.heading(title)
@@ -500,7 +422,7 @@ def build_report(result_dir: str | Path, out_pdf: str | Path | None = None) -> P
     name = str(res["study"].get("name", root.name))
     tmp = out.with_name(f".{out.name}.tmp")
     with PdfPages(tmp, metadata={"Title": f"specmap report: {name}", "Creator": "specmap"}) as pdf:
-        pg = _Pager(pdf, name)
+        pg = Pager(pdf, name)
         _cover(pg, res)
         if stages["grids"]:
             _grids_page(pg, res)

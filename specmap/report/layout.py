@@ -1,0 +1,95 @@
+"""Page layout for the PDF report: A4 pages with a figure on top and flowing text.
+
+Text is placed line by line from the top; when a page is full the text flows
+onto a continuation page with the same title, so nothing is clipped and
+nothing overlaps. Every font is at least 8 pt.
+"""
+
+from __future__ import annotations
+
+import textwrap
+from typing import Any
+
+from matplotlib.backends.backend_pdf import PdfPages
+from matplotlib.figure import Figure, FigureBase
+
+A4 = (8.27, 11.69)
+LEFT, TOP, BOTTOM = 0.08, 0.955, 0.055
+TEXT_PT = 9.5
+MONO_PT = 8.0
+RED = "#b00020"
+
+
+class Pager:
+    """Writes A4 pages: an optional figure on top, then flowing text."""
+
+    def __init__(self, pdf: PdfPages, study_name: str) -> None:
+        self.pdf = pdf
+        self.study_name = study_name
+        self.page_no = 0
+        self.fig: Figure | None = None
+        self.y = TOP
+        self.title = ""
+
+    # -- pages ---------------------------------------------------------------
+    def page(self, title: str, plot_height: float = 0.0) -> FigureBase | None:
+        """Start a page; return a subfigure of ``plot_height`` (fraction of the page) to draw into."""
+        self.close()
+        self.title = title
+        self.fig = Figure(figsize=A4)
+        self.page_no += 1
+        self.fig.text(LEFT, TOP, title, fontsize=15, weight="bold", va="top", parse_math=False)
+        self.fig.text(0.5, 0.022, f"specmap report: {self.study_name}   page {self.page_no}",
+                      fontsize=8, ha="center", color="0.35", parse_math=False)
+        self.y = TOP - 0.04
+        if plot_height <= 0:
+            return None
+        head = 1.0 - self.y + 0.005
+        _, sub, _ = self.fig.subfigures(3, 1, height_ratios=[head, plot_height, 1.0 - head - plot_height])
+        self.fig.set_layout_engine("constrained")
+        self.y = 1.0 - head - plot_height - 0.01
+        return sub
+
+    def close(self) -> None:
+        if self.fig is not None:
+            self.pdf.savefig(self.fig)
+            self.fig = None
+
+    # -- text ------------------------------------------------------------------
+    def _room(self, height: float) -> None:
+        if self.fig is None or self.y - height < BOTTOM:
+            self.page(self.title + (" (continued)" if "(continued)" not in self.title else ""))
+
+    def _line(self, text: str, size: float, **kw: Any) -> None:
+        step = size * 1.45 / 72.0 / A4[1]
+        self._room(step)
+        assert self.fig is not None
+        self.fig.text(LEFT + kw.pop("indent", 0.0), self.y, text, fontsize=size, va="top",
+                      parse_math=False, **kw)
+        self.y -= step
+
+    def heading(self, text: str) -> None:
+        self.gap(0.6)
+        self._room(0.06)
+        self._line(text, 11.5, weight="bold")
+        self.gap(0.2)
+
+    def gap(self, lines: float = 1.0) -> None:
+        self.y -= lines * TEXT_PT * 1.45 / 72.0 / A4[1]
+
+    def para(self, text: str, size: float = TEXT_PT, *, indent: float = 0.0, **kw: Any) -> None:
+        width_pt = (1.0 - 2 * LEFT - indent) * A4[0] * 72.0
+        chars = max(20, int(width_pt / (0.56 * size)))
+        for i, line in enumerate(textwrap.wrap(text, chars) or [""]):
+            self._line(line, size, indent=indent + (0.02 if i else 0.0), **kw)
+
+    def field(self, key: str, value: Any) -> None:
+        self.para(f"{key}: {value}")
+
+    def mono(self, line: str, **kw: Any) -> None:
+        chars = int((1.0 - 2 * LEFT) * A4[0] * 72.0 / (0.61 * MONO_PT))
+        for piece in textwrap.wrap(line, chars, drop_whitespace=False, subsequent_indent="    ") or [""]:
+            self._line(piece, MONO_PT, family="DejaVu Sans Mono", **kw)
+
+    def warn(self, text: str) -> None:
+        self.para(text, color=RED, weight="bold")
