@@ -106,6 +106,7 @@ class SliceEngine:
     def __init__(self, triangles: np.ndarray, values: np.ndarray) -> None:
         self.values = np.asarray(values, dtype=float)
         tri = np.asarray(triangles, dtype=np.int64)
+        self.triangles = tri
         if self.values.ndim != 2 or self.values.shape[1] != 2:
             raise ValueError(f"values must have shape (n, 2), got {self.values.shape}")
         n = len(self.values)

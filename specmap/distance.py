@@ -1,0 +1,1017 @@
+"""The matching distance: dense sweep, reduced search on the special set, and audits.
+
+For meshed maps f, g: M -> R^2 the matching distance in degree k is
+
+    D_k(f, g) = sup over lines (a, b) of h_k(a, b),
+    h_k(a, b) = d_B(Dgm_k F*_f(a, b), Dgm_k F*_g(a, b))                    [CDFFL13]
+
+specmap computes it two ways and compares them:
+
+- **dense**: h_k on a node grid of the window, the best node refined by a
+  pattern search, with a rigorous sampling-error bound (:func:`lipschitz_constants`);
+- **reduced**: by the main theorem [EFQT23, FMQT] D_k is reached on the
+  slope-one line a = 1/2 or at a special value, so h_k is evaluated only on
+  a = 1/2 and along the special set of an atlas (:mod:`specmap.special`),
+  skipping ties whose tied cost cannot be the maximum (math.md section 5).
+
+References
+----------
+.. [CDFFL13] Cerri, Di Fabio, Ferri, Frosini, Landi, "Betti numbers in
+   multidimensional persistent homology are stable functions", Math. Methods
+   Appl. Sci. 36 (2013).
+.. [EFQT23] Ethier, Frosini, Quercioli, Tombari, "Geometry of the matching
+   distance for 2D filtering functions", J. Appl. Comput. Topol. (2023).
+.. [FMQT] Frosini, Mosig Garcia, Quercioli, Tombari, "Matching distance via the
+   extended Pareto grid", arXiv:2312.04201.
+.. [CEF19] Cerri, Ethier, Frosini, J. Appl. Comput. Topol. 3 (2019): position
+   of diagram points on the extended Pareto grid.
+.. [DFL10] d'Amico, Frosini, Landi, Acta Appl. Math. 109 (2010): matching cost.
+"""
+
+from __future__ import annotations
+
+import math
+import time
+import warnings
+from collections.abc import Callable, Iterable, Sequence
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+
+from specmap.errors import StudyError
+from specmap.slices import DEGREES, SliceEngine, bottleneck
+from specmap.strip import Window, default_window, line_parameter, push_scale
+
+Progress = Callable[[int, int], None]
+METHODS = ("both", "dense", "reduced")
+TOLERANCE_FRACTION = 1e-3
+"""Default tolerance: this fraction of the largest value range of f and g."""
+
+
+# ----------------------------------------------------------------------------------------------
+# bounds
+# ----------------------------------------------------------------------------------------------
+
+def lipschitz_constants(bounds_f: Sequence[float], bounds_g: Sequence[float],
+                        window: Window) -> tuple[float, float]:
+    """Constants (L_a, L_b) with ||F*(a, b) - F*(a', b')||_inf <= L_a |a - a'| + L_b |b - b'|.
+
+    Derivation (math.md section 2, explicit forms). For a <= 1/2,
+    F* = max(f1 - b, t (f2 + b)) with t = a / (1 - a) in [0, 1]:
+    |d/db| <= max(1, t) = 1 and |d/da| <= |f2 + b| / (1 - a)^2 <= 4 |f2 + b|.
+    For a >= 1/2, F* = max((1 - a)/a (f1 - b), f2 + b): |d/db| <= 1 and
+    |d/da| = |f1 - b| / a^2 <= 4 |f1 - b|. A max of Lipschitz functions keeps
+    the largest constant, so L_b = 1 and L_a = 4 M with
+    M = max over both maps and b in the window of max(|f1 - b|, |f2 + b|).
+
+    Since d_B is 1-Lipschitz in the sup norm of the filtration (stability,
+    also for lower-star filtrations of one mesh) and both F*_f and F*_g move,
+    |h_k(a, b) - h_k(a', b')| <= 2 (L_a |a - a'| + L_b |b - b'|).
+
+    Parameters
+    ----------
+    bounds_f, bounds_g : (min f1, min f2, max f1, max f2)
+    window : Window
+
+    Returns
+    -------
+    (L_a, L_b) : tuple of float
+
+    References
+    ----------
+    .. [CDFFL13] Cerri et al. (2013): stability of d_B under sup-norm perturbations.
+    """
+    b_lo, b_hi = window.b
+    m = 0.0
+    for lo1, lo2, hi1, hi2 in (bounds_f, bounds_g):
+        m = max(m, abs(hi1 - b_lo), abs(lo1 - b_hi), abs(hi2 + b_hi), abs(lo2 + b_lo),
+                abs(hi1 - b_hi), abs(lo1 - b_lo), abs(hi2 + b_lo), abs(lo2 + b_hi))
+    return 4.0 * m, 1.0
+
+
+def distance_upper_bound(shape_f, shape_g) -> tuple[float, str]:
+    """An upper bound U >= D_k(f, g) for every k, and how it was obtained.
+
+    - Same triangles (so the same simplicial complex): U = ||f - g||_inf over the
+      vertices [CDFFL13] (|F*_f - F*_g| <= max(|f1 - g1|, |f2 - g2|) vertex-wise).
+    - Otherwise, from the value ranges [D]: on a line with a <= 1/2,
+      F* = max(f1 - b, t (f2 + b)), t in [0, 1], so
+      max F*_f - min F*_g <= max(max f1 - min g1, t (max f2 - min g2)); every
+      bottleneck cost (|u - u'|, or a half persistence) is at most the largest of
+      max f1 - min g1, max g1 - min f1, max f2 - min g2, max g2 - min f2
+      (the same for a >= 1/2 with the roles of f1, f2 exchanged).
+    """
+    vf, vg = shape_f.values, shape_g.values
+    same = (vf.shape == vg.shape and shape_f.triangles is not None and shape_g.triangles is not None
+            and np.array_equal(shape_f.triangles, shape_g.triangles))
+    if same:
+        return float(np.abs(vf - vg).max()), "sup_norm"
+    f1lo, f2lo, f1hi, f2hi = shape_f.value_bounds()
+    g1lo, g2lo, g1hi, g2hi = shape_g.value_bounds()
+    return float(max(f1hi - g1lo, g1hi - f1lo, f2hi - g2lo, g2hi - f2lo, 0.0)), "value_ranges"
+
+
+def value_range(shape_f, shape_g) -> float:
+    """Largest extent of f1, f2, g1, g2 (value units); scales default tolerances."""
+    f1lo, f2lo, f1hi, f2hi = shape_f.value_bounds()
+    g1lo, g2lo, g1hi, g2hi = shape_g.value_bounds()
+    return float(max(f1hi - f1lo, f2hi - f2lo, g1hi - g1lo, g2hi - g2lo, 1e-12))
+
+
+# ----------------------------------------------------------------------------------------------
+# h on many lines, in parallel
+# ----------------------------------------------------------------------------------------------
+
+_WORKER_ENGINES: dict[tuple, tuple[SliceEngine, SliceEngine]] = {}
+
+
+def _mesh_parts(source) -> tuple[np.ndarray, np.ndarray]:
+    if isinstance(source, SliceEngine):
+        return source.triangles, source.values
+    if not getattr(source, "has_mesh", False):
+        label = getattr(source, "label", "a shape")
+        raise StudyError(f"{label} has no mesh, so no slice diagrams", fix="give a surface or mesh for f and g")
+    return np.asarray(source.triangles), np.asarray(source.values, dtype=float)
+
+
+def _h_lines(engine_f: SliceEngine, engine_g: SliceEngine, lines: np.ndarray,
+             degrees: Sequence[int]) -> np.ndarray:
+    out = np.empty((len(lines), len(degrees)))
+    for i, (a, b) in enumerate(lines):
+        df = engine_f.diagrams(a, b, degrees)
+        dg = engine_g.diagrams(a, b, degrees)
+        out[i] = [bottleneck(df[k], dg[k]) for k in degrees]
+    return out
+
+
+def _h_chunk(key: tuple, tri_f, val_f, tri_g, val_g, lines, degrees) -> np.ndarray:
+    # Runs in a worker: engines are built once per worker process and kept for later chunks.
+    engines = _WORKER_ENGINES.get(key)
+    if engines is None:
+        _WORKER_ENGINES.clear()
+        engines = (SliceEngine(tri_f, val_f), SliceEngine(tri_g, val_g))
+        _WORKER_ENGINES[key] = engines
+    return _h_lines(engines[0], engines[1], lines, degrees)
+
+
+def _content_key(*arrays: np.ndarray) -> tuple:
+    return tuple((a.shape, a.dtype.str, hash(np.ascontiguousarray(a).tobytes())) for a in arrays)
+
+
+class LineEvaluator:
+    """h_k on lines, with a memo, a line counter, optional joblib workers and progress reports.
+
+    Parameters
+    ----------
+    source_f, source_g : Shape or SliceEngine
+    degrees : sequence of int
+    jobs : int
+        Worker processes (joblib); 1 evaluates in this process.
+    progress : callable(done, total), optional
+    """
+
+    def __init__(self, source_f, source_g, degrees: Sequence[int] = DEGREES, *, jobs: int = 1,
+                 progress: Progress | None = None) -> None:
+        self.degrees = tuple(int(k) for k in degrees)
+        self.tri_f, self.val_f = _mesh_parts(source_f)
+        self.tri_g, self.val_g = _mesh_parts(source_g)
+        self.jobs = max(1, int(jobs))
+        self.progress = progress
+        self.done = 0
+        self.total = 0
+        self.memo: dict[tuple[float, float], np.ndarray] = {}
+        self.infinite: list[dict[str, Any]] = []
+        self._engines: tuple[SliceEngine, SliceEngine] | None = None
+        if isinstance(source_f, SliceEngine) and isinstance(source_g, SliceEngine):
+            self._engines = (source_f, source_g)
+        self._key = _content_key(self.tri_f, self.val_f, self.tri_g, self.val_g)
+        self._pool = None
+
+    def plan(self, n: int) -> None:
+        """Announce n more lines (for the progress total)."""
+        self.total += int(n)
+
+    def _report(self) -> None:
+        if self.progress is not None:
+            self.total = max(self.total, self.done)
+            self.progress(self.done, self.total)
+
+    def _compute(self, lines: np.ndarray) -> np.ndarray:
+        if self.jobs == 1 or len(lines) < 2 * self.jobs:
+            if self._engines is None:
+                self._engines = (SliceEngine(self.tri_f, self.val_f), SliceEngine(self.tri_g, self.val_g))
+            out = np.empty((len(lines), len(self.degrees)))
+            step = max(1, len(lines) // 50)
+            for i in range(0, len(lines), step):
+                out[i:i + step] = _h_lines(*self._engines, lines[i:i + step], self.degrees)
+                self.done += len(lines[i:i + step])
+                self._report()
+            return out
+        from joblib import Parallel, delayed
+
+        if self._pool is None:
+            self._pool = Parallel(n_jobs=self.jobs, return_as="generator")
+        n_chunks = min(len(lines), 4 * self.jobs)
+        chunks = np.array_split(lines, n_chunks)
+        parts = []
+        for part, chunk in zip(self._pool(delayed(_h_chunk)(self._key, self.tri_f, self.val_f, self.tri_g,
+                                                           self.val_g, c, self.degrees) for c in chunks),
+                               chunks, strict=True):
+            parts.append(part)
+            self.done += len(chunk)
+            self._report()
+        return np.concatenate(parts)
+
+    def __call__(self, a, b) -> np.ndarray:
+        """h for lines (a, b) (broadcast): shape (len(degrees), *shape)."""
+        a, b = np.broadcast_arrays(np.asarray(a, dtype=float), np.asarray(b, dtype=float))
+        shape = a.shape
+        flat = [(float(x), float(y)) for x, y in zip(a.ravel(), b.ravel(), strict=True)]
+        todo = list(dict.fromkeys(p for p in flat if p not in self.memo))
+        if todo:
+            lines = np.array(todo, dtype=float)
+            self.total = max(self.total, self.done + len(todo))
+            vals = self._compute(lines)
+            for p, v in zip(todo, vals, strict=True):
+                self.memo[p] = v
+                for k, x in zip(self.degrees, v, strict=True):
+                    if math.isinf(x) and len(self.infinite) < 50:
+                        self.infinite.append({"degree": k, "at": [p[0], p[1]]})
+        out = np.array([self.memo[p] for p in flat]).reshape(*shape, len(self.degrees))
+        return np.moveaxis(out, -1, 0)
+
+    @property
+    def lines(self) -> int:
+        """Distinct lines evaluated so far."""
+        return len(self.memo)
+
+
+def h_values(source_f, source_g, A, B, degrees: Sequence[int] = DEGREES, *, jobs: int = 1,
+             progress: Progress | None = None) -> np.ndarray:
+    """Bottleneck distances h_k(a, b) between slice diagrams on many lines.
+
+    Parameters
+    ----------
+    source_f, source_g : Shape or SliceEngine
+        Meshed maps. With ``jobs > 1`` only their triangles and values travel to the
+        workers, each of which builds its engines once.
+    A, B : array_like
+        Line parameters, broadcast together.
+    degrees : sequence of int
+    jobs : int
+    progress : callable(done, total), optional
+
+    Returns
+    -------
+    ndarray of shape (len(degrees), *broadcast shape); ``inf`` where the numbers of
+    points at infinity differ.
+
+    References
+    ----------
+    .. [CDFFL13] Cerri et al. (2013); [DFL10] d'Amico, Frosini, Landi (2010).
+
+    Examples
+    --------
+    >>> from specmap.shapes.surfaces import Ellipsoid
+    >>> V, T = Ellipsoid((2.0, 1.0, 1.0)).mesh(300)
+    >>> f, g = SliceEngine(T, V[:, :2]), SliceEngine(T, V[:, :2] + 0.1)
+    >>> round(float(h_values(f, g, 0.5, 0.0, (0,))[0]), 6)
+    0.1
+    """
+    return LineEvaluator(source_f, source_g, degrees, jobs=jobs, progress=progress)(A, B)
+
+
+# ----------------------------------------------------------------------------------------------
+# local refinement
+# ----------------------------------------------------------------------------------------------
+
+@dataclass
+class _Best:
+    value: float = -math.inf
+    at: tuple[float, float] = (math.nan, math.nan)
+    where: str = ""
+    component: str | None = None
+    tag: tuple[int, int] | None = None  # (sample set, sample index) of the best special sample
+
+    def offer(self, value: float, at: tuple[float, float], where: str) -> bool:
+        if value > self.value:
+            self.value, self.at, self.where = float(value), (float(at[0]), float(at[1])), where
+            return True
+        return False
+
+
+def _pattern_search(ev: LineEvaluator, j: int, start: tuple[float, float], step: tuple[float, float],
+                    window: Window, levels: int = 5, max_batches: int = 40) -> tuple[float, tuple[float, float]]:
+    """Compass search (8 directions) maximising h_{degrees[j]} from ``start``; halves the step ``levels`` times."""
+    (a_lo, a_hi), (b_lo, b_hi) = window.a, window.b
+    x = start
+    fx = float(ev(*x)[j])
+    da, db = step
+    dirs = [(1, 0), (-1, 0), (0, 1), (0, -1), (1, 1), (1, -1), (-1, 1), (-1, -1)]
+    level = 0
+    for _ in range(max_batches):
+        cand = [(min(max(x[0] + u * da, a_lo), a_hi), min(max(x[1] + v * db, b_lo), b_hi)) for u, v in dirs]
+        cand = [c for c in dict.fromkeys(cand) if c != x]
+        if cand:
+            vals = ev(np.array([c[0] for c in cand]), np.array([c[1] for c in cand]))[j]
+            i = int(np.argmax(vals))
+            if vals[i] > fx:
+                x, fx = cand[i], float(vals[i])
+                continue
+        level += 1
+        if level > levels:
+            break
+        da, db = da / 2, db / 2
+    return fx, x
+
+
+def _golden_max(fun: Callable[[float], float], lo: float, hi: float, iters: int) -> tuple[float, float]:
+    """Golden-section search for a max of ``fun`` on [lo, hi]; returns the best (value, t) seen."""
+    g = (math.sqrt(5.0) - 1) / 2
+    best = (-math.inf, lo)
+    x1, x2 = hi - g * (hi - lo), lo + g * (hi - lo)
+    f1, f2 = fun(x1), fun(x2)
+    best = max(best, (f1, x1), (f2, x2))
+    for _ in range(iters):
+        if f1 >= f2:
+            hi, x2, f2 = x2, x1, f1
+            x1 = hi - g * (hi - lo)
+            f1 = fun(x1)
+            best = max(best, (f1, x1))
+        else:
+            lo, x1, f1 = x1, x2, f2
+            x2 = lo + g * (hi - lo)
+            f2 = fun(x2)
+            best = max(best, (f2, x2))
+    return best
+
+
+def _golden_iters(width: float, target: float) -> int:
+    if width <= target or target <= 0:
+        return 1
+    return int(min(25, math.ceil(math.log(width / target) / math.log(1.618034))))
+
+
+# ----------------------------------------------------------------------------------------------
+# dense sweep
+# ----------------------------------------------------------------------------------------------
+
+def cell_error_bound(H: np.ndarray, av: np.ndarray, bv: np.ndarray, bounds_f: Sequence[float],
+                     bounds_g: Sequence[float]) -> float:
+    """Sampling error of a node grid: sup of h over the window minus max of h over the nodes (upper bound).
+
+    Cell by cell, with the local constants of :func:`lipschitz_constants`
+    (|dF*/da| <= |f2 + b| / (1 - a)^2 for a <= 1/2 and |f1 - b| / a^2 for
+    a >= 1/2, maximised over the cell; |dF*/db| <= 1): a line of the cell is within
+    (h_a/2, h_b/2) of a corner, so h there is at most
+    max over corners of h + 2 (L_a h_a/2 + L_b h_b/2).
+
+    Returns
+    -------
+    float
+        max over cells of that quantity, minus the node maximum (>= 0); ``inf`` if
+        any node value is infinite.
+    """
+    Hm = np.where(np.isnan(H), -math.inf, H)
+    if not np.all(np.isfinite(Hm)):
+        return math.inf
+    lo1, lo2 = min(bounds_f[0], bounds_g[0]), min(bounds_f[1], bounds_g[1])
+    hi1, hi2 = max(bounds_f[2], bounds_g[2]), max(bounds_f[3], bounds_g[3])
+    a0, a1 = av[:-1], av[1:]
+    b0, b1 = bv[:-1], bv[1:]
+    m2 = np.maximum.reduce([np.abs(hi2 + b0), np.abs(hi2 + b1), np.abs(lo2 + b0), np.abs(lo2 + b1)])
+    m1 = np.maximum.reduce([np.abs(hi1 - b0), np.abs(hi1 - b1), np.abs(lo1 - b0), np.abs(lo1 - b1)])
+    left = np.where(a0 <= 0.5, 1.0 / (1.0 - np.minimum(a1, 0.5)) ** 2, 0.0)  # (n_a - 1,)
+    right = np.where(a1 >= 0.5, 1.0 / np.maximum(a0, 0.5) ** 2, 0.0)
+    La = np.maximum(left[None, :] * m2[:, None], right[None, :] * m1[:, None])  # (n_b - 1, n_a - 1)
+    ha, hb = np.diff(av)[None, :], np.diff(bv)[:, None]
+    corner = np.maximum.reduce([Hm[..., :-1, :-1], Hm[..., 1:, :-1], Hm[..., :-1, 1:], Hm[..., 1:, 1:]])
+    top = corner + (La * ha + 1.0 * hb)
+    return float(max(0.0, top.max() - Hm.max()))
+
+
+def dense_sweep(ev: LineEvaluator, window: Window, *, resolution: int = 41, refine: bool = True,
+                bounds: tuple[Sequence[float], Sequence[float]] | None = None) -> dict[str, Any]:
+    """h_k on a ``resolution`` x ``resolution`` node grid, maxima refined by pattern search.
+
+    The sampling-error bound (:func:`cell_error_bound`, per degree, the largest
+    reported): D_k <= max over nodes of h_k + error_bound, rigorously for the
+    meshed maps, by stability [CDFFL13] and the Lipschitz constants of
+    :func:`lipschitz_constants` taken cell by cell.
+
+    Returns
+    -------
+    dict with ``grid`` (ndarray (n_deg, n_b, n_a)), ``a``, ``b`` (axes), ``best``
+    (per degree index: (value, (a, b))), ``node_best``, ``error_bound``, ``lines``, ``seconds``.
+    """
+    t0 = time.perf_counter()
+    n0 = ev.lines
+    n = max(2, int(resolution))
+    A, B = window.mesh(n, n)
+    ev.plan(A.size)
+    H = ev(A, B)
+    av, bv = A[0], B[:, 0]
+    ha, hb = (window.a[1] - window.a[0]) / (n - 1), (window.b[1] - window.b[0]) / (n - 1)
+    best = []
+    node_best = []
+    for j in range(len(ev.degrees)):
+        Hj = np.where(np.isnan(H[j]), -math.inf, H[j])
+        r, c = np.unravel_index(int(np.argmax(Hj)), Hj.shape)
+        start = (float(av[c]), float(bv[r]))
+        val = float(Hj[r, c])
+        node_best.append((val, start))
+        if refine and math.isfinite(val):
+            ev.plan(60)
+            val, start = _pattern_search(ev, j, start, (ha / 2, hb / 2), window)
+        best.append((val, start))
+    err = math.inf
+    if bounds is not None:
+        err = max(cell_error_bound(H[j], av, bv, *bounds) for j in range(len(ev.degrees)))
+    return {"grid": H, "a": av, "b": bv, "best": best, "node_best": node_best,
+            "error_bound": err, "lines": ev.lines - n0, "seconds": time.perf_counter() - t0}
+
+
+# ----------------------------------------------------------------------------------------------
+# reduced search: ties, sampling of the special set
+# ----------------------------------------------------------------------------------------------
+
+def _grid_of(cid: str) -> str | None:
+    return cid.split(":", 1)[0] if ":" in cid else None
+
+
+def tie_costs(tie, contours_by_id: dict, a, b, *, roles: bool = True) -> tuple[np.ndarray, np.ndarray]:
+    """Lower and upper candidate bottleneck cost of a tie at lines (a, b), in value units.
+
+    With the differences d_P = |c_a - c_b|, d_Q = |c_c - c_d| of push
+    coordinates (value units, min(a, 1-a) times the line-parameter difference):
+
+    - ``equal`` (d_P = d_Q = d): two matching costs tie at d when both pairs are
+      cross pairs (one contour of each grid), two diagonal costs tie at d/2
+      when both are same-grid pairs; a mixed equal tie compares d with d/2 and is
+      no tie of costs (math.md, role-aware refinement [D]).
+    - ``half`` (d_big = 2 d_small): the diagonal cost d_big/2 of a same-grid pair
+      ties with the matching cost d_small of a cross pair: the tied cost is the
+      smaller difference, d_small [EFQT23].
+
+    Off the curve the two sides differ; ``lo`` and ``hi`` bracket both sides
+    (min and max). Where the roles make the tie impossible, or a contour is
+    not met, both are NaN. Without role information (ids without a grid
+    prefix, or ``roles=False``) an equal tie brackets [d/2, d].
+
+    Returns
+    -------
+    lo, hi : ndarray of the broadcast shape of a and b.
+    """
+    (p1, p2), (q1, q2) = tie.pairs
+    a, b = np.broadcast_arrays(np.asarray(a, float), np.asarray(b, float))
+    m = push_scale(a)
+    s = [line_parameter(contours_by_id[c], a, b) for c in (p1, p2, q1, q2)]
+    dp = np.abs(s[0] - s[1]) * m
+    dq = np.abs(s[2] - s[3]) * m
+    gp = [_grid_of(p1), _grid_of(p2)]
+    gq = [_grid_of(q1), _grid_of(q2)]
+    known = roles and None not in gp + gq
+    cross_p, cross_q = gp[0] != gp[1], gq[0] != gq[1]
+    with np.errstate(invalid="ignore"):
+        if tie.condition == "equal":
+            lo_d, hi_d = np.minimum(dp, dq), np.maximum(dp, dq)
+            if known and cross_p and cross_q:
+                lo, hi = lo_d, hi_d
+            elif known and not cross_p and not cross_q:
+                lo, hi = lo_d / 2, hi_d / 2
+            elif known:
+                lo = hi = np.full(a.shape, np.nan)
+            else:
+                lo, hi = lo_d / 2, hi_d
+        else:
+            p_big = dp >= dq
+            big = np.where(p_big, dp, dq)
+            small = np.where(p_big, dq, dp)
+            lo, hi = np.minimum(big / 2, small), np.maximum(big / 2, small)
+            if known:
+                ok = np.where(p_big, (not cross_p) & cross_q, (not cross_q) & cross_p)
+                lo, hi = np.where(ok, lo, np.nan), np.where(ok, hi, np.nan)
+    return lo, hi
+
+
+def _paths(geom) -> list[np.ndarray]:
+    """Coordinate arrays (n, 2) of the 1-d parts of a shapely geometry (polygons: their rings)."""
+    if geom is None or geom.is_empty:
+        return []
+    t = geom.geom_type
+    if t in ("LineString", "LinearRing"):
+        return [np.asarray(geom.coords, float)[:, :2]]
+    if t == "Point":
+        return [np.asarray(geom.coords, float)[:, :2]]
+    if t == "Polygon":
+        return [np.asarray(r.coords, float)[:, :2] for r in (geom.exterior, *geom.interiors)]
+    if hasattr(geom, "geoms"):
+        return [p for g in geom.geoms for p in _paths(g)]
+    return []
+
+
+def _normalise(pts: np.ndarray, window: Window) -> np.ndarray:
+    wa = window.a[1] - window.a[0]
+    wb = window.b[1] - window.b[0]
+    return (np.asarray(pts, float) - [window.a[0], window.b[0]]) / [wa, wb]
+
+
+def _path_candidates(path: np.ndarray, window: Window, spacing: float, cost) -> list[tuple[float, float, float, float]]:
+    """Candidate maximisers on one path: local maxima of the tie cost along it, and its interior ends.
+
+    The path is resampled every ``spacing`` of the normalised window (plus its own
+    vertices); returns (hi, lo, a, b) per candidate.
+    """
+    norm = _normalise(path, window)
+    if len(path) == 1:
+        lo, hi = cost(path[:, 0], path[:, 1])
+        return [(float(hi[0]), float(lo[0]), float(path[0, 0]), float(path[0, 1]))]
+    seg = np.linalg.norm(np.diff(norm, axis=0), axis=1)
+    cum = np.concatenate([[0.0], np.cumsum(seg)])
+    t = np.union1d(cum, np.linspace(0.0, cum[-1], max(2, math.ceil(cum[-1] / spacing) + 1)))
+    a = np.interp(t, cum, path[:, 0])
+    b = np.interp(t, cum, path[:, 1])
+    lo, hi = cost(a, b)
+    h = np.where(np.isnan(hi), -np.inf, hi)
+    n = len(t)
+    keep = np.zeros(n, dtype=bool)
+    if n >= 3:
+        keep[1:-1] = (h[1:-1] >= h[:-2]) & (h[1:-1] > h[2:]) & np.isfinite(h[1:-1])
+    edge = 1e-9
+    for i in (0, n - 1):  # ends inside the window: junctions where ties start or stop
+        x = norm[0] if i == 0 else norm[-1]
+        if np.isfinite(h[i]) and edge < x[0] < 1 - edge and edge < x[1] < 1 - edge:
+            keep[i] = True
+    return [(float(hi[i]), float(lo[i]), float(a[i]), float(b[i])) for i in np.nonzero(keep)[0]]
+
+
+def _component_of(piece, point: tuple[float, float], components: Sequence) -> str | None:
+    if not components:
+        return None
+    from shapely.geometry import Point
+
+    p = Point(point)
+    same = [c for c in components if piece.tie in tuple(getattr(c, "ties", ()))]
+    pool = [c for c in (same or list(components)) if c.geometry is not None]
+    if not pool:
+        return None
+    return str(min(pool, key=lambda c: c.geometry.distance(p)).id)
+
+
+def reduced_search(ev: LineEvaluator, window: Window, atlas, contours_by_id: dict, *, tolerance: float,
+                   upper: float, slope_samples: int = 25, spacing: float = 1 / 200, roles: bool = True,
+                   certify: str = "max", polish: bool = True, batch: int | None = None) -> dict[str, Any]:
+    """D_k = max(max_b h_k(1/2, b), sup of h_k over the special set) [EFQT23, FMQT].
+
+    1. Slope-one line: ``slope_samples`` values of b, the best refined by
+       golden-section search (|d h / d b| <= 2 on a = 1/2: F* moves with slope
+       at most 1 in b for each map).
+    2. Special set. Where h changes formula it equals a tied cost (math.md 5
+       (ii)), so the maximiser p* lies on the curve of a tie whose cost is active
+       at p*; along that curve h equals the tie cost while the tie stays active,
+       hence p* is (a) a local maximum of the tie cost along the curve, or (b) an
+       end of the active arc, where one of the two tied costs ties with a third:
+       a crossing with the curve of a tie sharing a pair, or (c) an end of the curve inside the window (the
+       tie starts or stops: a contour stops being met). Patches need only their
+       boundary (math.md 5 (i)): their rings are treated as curves. This finite
+       candidate set is built without diagrams (:func:`tie_costs` along curves
+       resampled every ``spacing`` of the normalised window; crossings with
+       shapely), then visited in decreasing tie cost. A candidate is skipped
+       when its cost bracket [lo, hi] has hi < best - tol (below the best found
+       so far) or lo > upper + tol (above the bound U of D).
+       ``certify="max"`` prunes with the best over degrees (the max over degrees
+       is certified; single degrees below it are lower bounds), ``"each"`` with
+       each degree's own best.
+    3. Polish: on meshes the grid, hence the special set, is approximate, so the
+       best candidate of each certified degree is refined by a short pattern search.
+
+    Returns
+    -------
+    dict with ``slope`` and ``special`` (per degree), ``lines``, ``seconds``, ``pruned``.
+    """
+    if certify not in ("max", "each"):
+        raise ValueError("certify must be 'max' or 'each'")
+    t0 = time.perf_counter()
+    n0 = ev.lines
+    nd = len(ev.degrees)
+    slope = [_Best() for _ in range(nd)]
+    special = [_Best() for _ in range(nd)]
+    (b_lo, b_hi) = window.b
+    # 1. slope-one line
+    if window.a[0] <= 0.5 <= window.a[1]:
+        bs = np.linspace(b_lo, b_hi, max(3, int(slope_samples)))
+        ev.plan(len(bs))
+        H = ev(np.full(bs.shape, 0.5), bs)
+        db = bs[1] - bs[0]
+        for j in range(nd):
+            i = int(np.argmax(np.where(np.isnan(H[j]), -np.inf, H[j])))
+            slope[j].offer(H[j, i], (0.5, bs[i]), "slope-one")
+        order = sorted(range(nd), key=lambda j: -slope[j].value)
+        for j in order if certify == "each" else order[:1]:
+            i = int(np.argmin(np.abs(bs - slope[j].at[1])))
+            if math.isfinite(slope[j].value):
+                lo, hi = max(b_lo, bs[i] - db), min(b_hi, bs[i] + db)
+                it = _golden_iters(hi - lo, tolerance / 2)
+                ev.plan(it + 2)
+                _golden_max(lambda x, j=j: float(ev(0.5, x)[j]), lo, hi, it)
+        for (a, b), v in list(ev.memo.items()):
+            if a == 0.5:
+                for j in range(nd):
+                    slope[j].offer(v[j], (a, b), "slope-one")
+    best = [s.value for s in slope]
+
+    def threshold() -> list[float]:
+        return best if certify == "each" else [max(best)] * nd
+
+    # 2. special set: candidates
+    pruned = {"roles": 0, "unknown_contour": 0, "not_met": 0, "below_best": 0, "above_bound": 0,
+              "outside_window": 0}
+    pieces = tuple(getattr(atlas, "pieces", ()) or ())
+    components = tuple(getattr(atlas, "components", ()) or ())
+    from shapely import STRtree, intersection
+    from shapely.geometry import box
+
+    wbox = box(*window.bounds())
+    cand: list[tuple[float, float, float, float, int]] = []  # (hi, lo, a, b, piece)
+    live: list[int] = []
+    geoms = []
+    for ip, piece in enumerate(pieces):
+        ids = [c for pair in piece.tie.pairs for c in pair]
+        if any(c not in contours_by_id for c in ids):
+            pruned["unknown_contour"] += 1
+            continue
+        geom = piece.geometry
+        if geom is None or geom.is_empty or not geom.intersects(wbox):
+            pruned["outside_window"] += 1
+            continue
+        geom = geom if wbox.contains(geom) else geom.intersection(wbox)
+
+        def cost(a, b, tie=piece.tie):
+            return tie_costs(tie, contours_by_id, a, b, roles=roles)
+
+        got = [c for path in _paths(geom) for c in _path_candidates(path, window, spacing, cost)]
+        if not got:
+            rep = geom.representative_point()
+            met = all(not math.isnan(float(line_parameter(contours_by_id[c], rep.x, rep.y))) for c in ids)
+            pruned["roles" if met and roles else "not_met"] += 1
+            continue
+        cand.extend((*c, ip) for c in got)
+        live.append(ip)
+        geoms.append(geom.boundary if geom.geom_type in ("Polygon", "MultiPolygon") else geom)
+    n_crossings = 0
+    if len(geoms) > 1:
+        tree = STRtree(geoms)
+        left, right = tree.query(geoms, predicate="intersects")
+        sel = left < right
+        left, right = left[sel], right[sel]
+        if len(left):
+            inter = intersection(np.asarray(geoms, dtype=object)[left], np.asarray(geoms, dtype=object)[right])
+            for u, v, g in zip(left, right, inter, strict=True):
+                # an active arc of a tie ends where one of its two costs ties with a third one:
+                # only crossings of ties that share a pair can end it
+                if not set(pieces[live[u]].tie.pairs) & set(pieces[live[v]].tie.pairs):
+                    continue
+                pts = [p for path in _paths(g) for p in (path if len(path) == 1 else path[[0, -1]])]
+                for a, b in pts:
+                    n_crossings += 1
+                    for ip in (live[u], live[v]):
+                        lo, hi = tie_costs(pieces[ip].tie, contours_by_id, a, b, roles=roles)
+                        if np.isfinite(hi):
+                            cand.append((float(hi), float(lo), float(a), float(b), ip))
+    cand.sort(key=lambda c: -c[0])
+    alive = dict.fromkeys(live, False)
+    reasons: dict[int, set[str]] = {ip: set() for ip in live}
+    step = batch or max(4, 2 * ev.jobs)
+    evaluated = 0
+    pos = 0
+    while pos < len(cand):
+        take = []
+        thr = threshold()
+        while pos < len(cand) and len(take) < step:
+            hi, lo, a, b, ip = cand[pos]
+            pos += 1
+            if lo > upper + tolerance:
+                reasons[ip].add("above_bound")
+                continue
+            if all(hi < thr[j] - tolerance for j in range(nd)):
+                reasons[ip].add("below_best")
+                continue
+            take.append((a, b, ip))
+            alive[ip] = True
+        if not take:
+            continue
+        pts = np.array([(a, b) for a, b, _ in take])
+        ev.plan(len(take))
+        H = ev(pts[:, 0], pts[:, 1])
+        evaluated += len(take)
+        for c, (a, b, ip) in enumerate(take):
+            for j in range(nd):
+                if special[j].offer(H[j, c], (a, b), "special"):
+                    special[j].tag = (ip, c)
+                best[j] = max(best[j], float(H[j, c]))
+    for ip, ok in alive.items():
+        if not ok:
+            pruned["above_bound" if reasons[ip] == {"above_bound"} else "below_best"] += 1
+    # 3. polish the certified maxima
+    wa, wb = window.a[1] - window.a[0], window.b[1] - window.b[0]
+    top = max(best)
+    for j in range(nd):
+        for rec in (special[j], slope[j]):
+            if not (polish and math.isfinite(rec.value)):
+                continue
+            if certify == "max" and rec.value < top - tolerance:
+                continue
+            if rec is slope[j] and special[j].value >= slope[j].value:
+                continue
+            ev.plan(40)
+            v, at = _pattern_search(ev, j, rec.at, (4 * spacing * wa, 4 * spacing * wb), window, levels=3)
+            where = "slope-one" if rec is slope[j] and abs(at[0] - 0.5) < 1e-12 else "special"
+            if v > rec.value:
+                target = rec if where == rec.where else special[j]
+                target.offer(v, at, where)
+    for j in range(nd):
+        if special[j].tag is not None:
+            special[j].component = _component_of(pieces[special[j].tag[0]], special[j].at, components) \
+                or f"piece:{special[j].tag[0]}"
+    return {"slope": slope, "special": special, "lines": ev.lines - n0, "seconds": time.perf_counter() - t0,
+            "certify": certify,
+            "pruned": {**pruned, "ties_total": len(pieces), "ties_evaluated": int(sum(alive.values())),
+                       "candidates_total": len(cand), "candidates_evaluated": evaluated,
+                       "crossings": n_crossings}}
+
+
+# ----------------------------------------------------------------------------------------------
+# audits
+# ----------------------------------------------------------------------------------------------
+
+def position_audit(shape_f, shape_g, grids, window: Window, *, tolerance: float, lines: int = 20,
+                   seed: int = 0) -> dict[str, Any]:
+    """How many finite diagram coordinates sit at push coordinates of the grid [CEF19].
+
+    For ``lines`` lines drawn uniformly in the window (fixed seed), every finite
+    coordinate (birth, finite death) of Dgm_k F*_f is compared with the push
+    coordinates min(a, 1-a) s of the contours of Γ(f) met by the line (the same
+    for g); the deviation is the distance to the nearest one.
+
+    Returns
+    -------
+    dict ``{"fraction_explained", "max_deviation", "lines", "coordinates", "tolerance"}``
+    """
+    rng = np.random.default_rng(seed)
+    A = rng.uniform(*window.a, lines)
+    B = rng.uniform(*window.b, lines)
+    devs = []
+    for shape, grid in zip((shape_f, shape_g), grids, strict=True):
+        eng = SliceEngine.from_shape(shape)
+        for a, b in zip(A, B, strict=True):
+            push = np.array([line_parameter(c, a, b) for c in grid.contours], dtype=float) * float(push_scale(a))
+            push = push[np.isfinite(push)]
+            d = eng.diagrams(a, b)
+            coords = np.concatenate([v.ravel() for v in d.values()])
+            coords = coords[np.isfinite(coords)]
+            if not len(coords):
+                continue
+            if not len(push):
+                devs.extend([math.inf] * len(coords))
+                continue
+            devs.extend(np.abs(coords[:, None] - push[None, :]).min(axis=1).tolist())
+    devs_a = np.asarray(devs, dtype=float)
+    return {"fraction_explained": float(np.mean(devs_a <= tolerance)) if len(devs_a) else 1.0,
+            "max_deviation": float(devs_a.max()) if len(devs_a) else 0.0,
+            "lines": int(lines), "coordinates": int(len(devs_a)), "tolerance": float(tolerance)}
+
+
+# ----------------------------------------------------------------------------------------------
+# result and entry point
+# ----------------------------------------------------------------------------------------------
+
+def _pt(at: tuple[float, float]) -> list[float]:
+    return [float(at[0]), float(at[1])]
+
+
+@dataclass(frozen=True)
+class DistanceResult:
+    """The matching distance of a pair, where it is reached, and how it was checked.
+
+    Attributes
+    ----------
+    value : float
+        max over degrees of D_k (the reduced value when available, else the dense one).
+    at : (a, b)
+    reached_on : str
+        ``"slope-one"``, ``"special"`` (see ``component``), ``"both"`` or ``"dense"``.
+    component : str or None
+        Atlas component id when reached on the special set.
+    by_degree : dict
+        ``{k: {"value", "at", "reached_on", "component"}}``.
+    dense, reduced : dict or None
+    audit : dict
+    tolerance : float
+    infinite : list
+        ``{"degree", "at"}`` of lines whose diagrams have different numbers of points at infinity.
+    landscape : dict or None
+        ``{"a", "b", "h" (n_b x n_a, max over degrees), "by_degree"}`` from the dense sweep.
+    window : Window
+    """
+
+    value: float
+    at: tuple[float, float]
+    reached_on: str
+    component: str | None
+    by_degree: dict[int, dict[str, Any]]
+    dense: dict[str, Any] | None
+    reduced: dict[str, Any] | None
+    audit: dict[str, Any]
+    tolerance: float
+    infinite: list[dict[str, Any]]
+    landscape: dict[str, Any] | None
+    window: Window
+    meta: dict[str, Any] = field(default_factory=dict)
+
+    def to_json(self) -> dict[str, Any]:
+        from specmap.io import to_plain
+
+        return to_plain({
+            "value": self.value, "at": _pt(self.at), "reached_on": self.reached_on,
+            "component": self.component,
+            "by_degree": {str(k): {**v, "at": _pt(v["at"])} for k, v in self.by_degree.items()},
+            "dense": self.dense, "reduced": self.reduced, "audit": self.audit,
+            "tolerance": self.tolerance, "infinite": self.infinite, "landscape": self.landscape,
+            "window": self.window.to_json(), "meta": self.meta,
+        })
+
+
+def _grids_pair(grids) -> tuple | None:
+    if grids is None:
+        return None
+    if isinstance(grids, dict):
+        return (grids["f"], grids["g"])
+    g = tuple(grids)
+    if len(g) != 2:
+        raise ValueError("grids must be (grid_f, grid_g)")
+    return g
+
+
+def matching_distance(shape_f, shape_g, *, method: str = "both", degrees: Iterable[int] = DEGREES,
+                      window: Window | None = None, atlas=None, grids=None, jobs: int = 1,
+                      dense_resolution: int = 41, progress: Progress | None = None,
+                      tolerance: float | None = None, slope_samples: int = 25,
+                      spacing: float = 1 / 200, roles: bool = True, certify: str = "max",
+                      position_lines: int = 20) -> DistanceResult:
+    """Matching distance D_k(f, g) of two meshed maps, dense, reduced or both.
+
+    Parameters
+    ----------
+    shape_f, shape_g : Shape
+        Must carry a mesh (vertices, triangles, values).
+    method : {"both", "dense", "reduced"}
+    degrees : iterable of int
+    window : Window, optional
+        Default: :func:`specmap.strip.default_window` of the value bounds.
+    atlas : object, optional
+        Special-set atlas with ``pieces`` (tie, kind, geometry) and ``components``;
+        computed with :func:`specmap.special.special_set` from ``grids`` when omitted.
+    grids : (Grid, Grid), optional
+        Extended Pareto grids of f and g; needed by the reduced search and the position audit.
+    jobs : int
+        Worker processes for the slices.
+    dense_resolution : int
+        Nodes per side of the dense sweep.
+    progress : callable(done, total), optional
+    tolerance : float, optional
+        Default: 1e-3 times the largest value range of f and g.
+    slope_samples, spacing, roles, certify
+        Reduced search settings (:func:`reduced_search`). With ``certify="max"`` the
+        max over degrees is certified and ``by_degree`` values below it are lower
+        bounds (``"certified": false``); ``"each"`` certifies every degree.
+    position_lines : int
+        Lines of the position audit (0 to skip).
+
+    Returns
+    -------
+    DistanceResult
+
+    Raises
+    ------
+    StudyError
+        A shape without a mesh; the reduced search without grids.
+
+    Warns
+    -----
+    UserWarning
+        When the dense sweep exceeds the reduced search by more than the tolerance
+        (``audit.theorem_gap``).
+
+    References
+    ----------
+    .. [CDFFL13] Cerri et al. (2013); [EFQT23] Ethier et al. (2023); [FMQT] arXiv:2312.04201.
+    """
+    if method not in METHODS:
+        raise ValueError(f"method must be one of {METHODS}, not {method!r}")
+    for s in (shape_f, shape_g):
+        if not getattr(s, "has_mesh", False):
+            raise StudyError(f"{getattr(s, 'label', 'a shape')} has no mesh, so no slice diagrams",
+                             fix="give a surface or mesh for f and g")
+    degrees = tuple(int(k) for k in degrees)
+    bf, bg = shape_f.value_bounds(), shape_g.value_bounds()
+    window = window or default_window(bf, bg)
+    pair = _grids_pair(grids)
+    tol = tolerance
+    if tol is None:
+        tol = TOLERANCE_FRACTION * value_range(shape_f, shape_g)
+    lip = lipschitz_constants(bf, bg, window)
+    upper, upper_kind = distance_upper_bound(shape_f, shape_g)
+    ev = LineEvaluator(shape_f, shape_g, degrees, jobs=jobs, progress=progress)
+
+    dense = red = None
+    if method in ("dense", "both"):
+        dense = dense_sweep(ev, window, resolution=dense_resolution, bounds=(bf, bg))
+    if method in ("reduced", "both"):
+        if pair is None:
+            raise StudyError("the reduced search needs the extended Pareto grids of f and g",
+                             field="grids", fix="pass grids=(grid_f, grid_g) or use method='dense'")
+        if atlas is None:
+            from specmap.special import special_set
+
+            atlas = special_set(pair[0], pair[1], window)
+        contours = {c.id: c for g in pair for c in g.contours}
+        before = ev.lines
+        red = reduced_search(ev, window, atlas, contours, tolerance=tol, upper=upper,
+                             slope_samples=slope_samples, spacing=spacing, roles=roles, certify=certify)
+        red["lines_shared_with_dense"] = red["lines"] - (ev.lines - before)
+
+    by_degree: dict[int, dict[str, Any]] = {}
+    for j, k in enumerate(degrees):
+        if red is not None:
+            s, p = red["slope"][j], red["special"][j]
+            if p.value > s.value + tol:
+                entry = {"value": p.value, "at": p.at, "reached_on": "special", "component": p.component}
+            elif s.value > p.value + tol or not math.isfinite(p.value):
+                entry = {"value": s.value, "at": s.at, "reached_on": "slope-one", "component": None}
+            else:
+                top = p if p.value > s.value else s
+                entry = {"value": top.value, "at": top.at, "reached_on": "both", "component": p.component}
+        else:
+            v, at = dense["best"][j]
+            entry = {"value": v, "at": at, "reached_on": "dense", "component": None}
+        by_degree[k] = entry
+    vmax = max(by_degree[k]["value"] for k in degrees)
+    for k in degrees:
+        by_degree[k]["certified"] = bool(red is None or certify == "each" or by_degree[k]["value"] >= vmax - tol)
+    kmax = max(degrees, key=lambda k: by_degree[k]["value"])
+    top = by_degree[kmax]
+
+    # audits
+    audit: dict[str, Any] = {"theorem_gap": False, "gap": 0.0, "line": None, "degree": None,
+                             "position": None, "upper_bound": upper, "upper_bound_kind": upper_kind}
+    if dense is not None and red is not None:
+        # certified degrees against their dense values, and the max over degrees
+        gaps = [(dense["best"][j][0] - by_degree[k]["value"], dense["best"][j][1], k)
+                for j, k in enumerate(degrees) if by_degree[k]["certified"]]
+        dbest = max(range(len(degrees)), key=lambda j: dense["best"][j][0])
+        gaps.append((dense["best"][dbest][0] - vmax, dense["best"][dbest][1], degrees[dbest]))
+        gaps = [g for g in gaps if not math.isnan(g[0])]  # inf: the reduced search found nothing
+        if gaps:
+            gap, line, k = max(gaps, key=lambda g: g[0])
+            audit.update(gap=float(gap), degree=k, line=_pt(line))
+            if gap > tol:
+                audit["theorem_gap"] = True
+                warnings.warn(f"dense sweep exceeds the reduced search by {gap:.4g} > tolerance {tol:.3g} "
+                              f"in degree {k} at (a, b) = ({line[0]:.4g}, {line[1]:.4g})", stacklevel=2)
+    if pair is not None and position_lines > 0:
+        audit["position"] = position_audit(shape_f, shape_g, pair, window, tolerance=tol, lines=position_lines)
+
+    landscape = None
+    dense_js = red_js = None
+    if dense is not None:
+        H = dense["grid"]
+        with np.errstate(invalid="ignore"):
+            landscape = {"a": dense["a"].tolist(), "b": dense["b"].tolist(), "h": H.max(axis=0).tolist(),
+                         "by_degree": {str(k): H[j].tolist() for j, k in enumerate(degrees)}}
+        jbest = int(np.argmax([v for v, _ in dense["best"]]))
+        dense_js = {"value": dense["best"][jbest][0], "at": _pt(dense["best"][jbest][1]),
+                    "degree": degrees[jbest], "lines": dense["lines"], "seconds": dense["seconds"],
+                    "error_bound": dense["error_bound"], "resolution": int(dense_resolution),
+                    "node_value": max(v for v, _ in dense["node_best"]),
+                    "by_degree": {str(k): {"value": dense["best"][j][0], "at": _pt(dense["best"][j][1])}
+                                  for j, k in enumerate(degrees)}}
+    if red is not None:
+        jbest = degrees.index(kmax)
+        red_js = {"value": top["value"], "at": _pt(top["at"]), "lines": red["lines"],
+                  "seconds": red["seconds"], "pruned": red["pruned"],
+                  "slope_one": {str(k): {"value": red["slope"][j].value, "at": _pt(red["slope"][j].at)}
+                                for j, k in enumerate(degrees)},
+                  "special": {str(k): {"value": red["special"][j].value, "at": _pt(red["special"][j].at),
+                                       "component": red["special"][j].component}
+                              for j, k in enumerate(degrees)},
+                  "settings": {"slope_samples": slope_samples, "spacing": spacing, "roles": roles,
+                               "certify": certify},
+                  "degree": degrees[jbest]}
+    return DistanceResult(
+        value=float(top["value"]), at=top["at"], reached_on=top["reached_on"], component=top["component"],
+        by_degree=by_degree, dense=dense_js, reduced=red_js, audit=audit, tolerance=float(tol),
+        infinite=list(ev.infinite), landscape=landscape, window=window,
+        meta={"degrees": list(degrees), "lines_total": ev.lines, "jobs": int(jobs),
+              "lipschitz": {"a": lip[0], "b": lip[1]}},
+    )
