@@ -7,9 +7,13 @@
 
 from __future__ import annotations
 
+from typing import TYPE_CHECKING
+
 from specmap.errors import StudyError
 from specmap.grids.model import Contour, Grid, grid_from_json, read_grid, validate_grid
-from specmap.shapes.model import Shape
+
+if TYPE_CHECKING:
+    from specmap.shapes.model import Shape
 
 __all__ = ["Contour", "Grid", "grid_from_json", "read_grid", "validate_grid", "pareto_grid", "route_for"]
 
