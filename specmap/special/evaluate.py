@@ -1,12 +1,12 @@
 """Exact evaluation of tie residuals at arbitrary lines (a, b).
 
 Every contour is *extended* so that every line of positive slope meets it:
-a proper contour by the vertical ray up from its first point and the
-horizontal ray right from its last point, a half-line by the ray that closes
-it into the boundary of a quadrant. The extended parameter s̄ equals the true
-line parameter where the line meets the contour and is continuous
-everywhere, so a tie residual built from s̄ is continuous across domain
-boundaries; whether a tie *exists* is decided by the true ``met`` flags.
+a half-line to its full straight line, a proper contour by prolonging its
+first and last segments (a single point by the line of slope -1 through it).
+The extended parameter s̄ equals the true line parameter where the line meets
+the contour and continues it smoothly across the domain boundary, so a tie
+residual built from s̄ is continuous (and smooth across that boundary);
+whether a tie *exists* is decided by the true ``met`` flags.
 
 The residual of a tie (P, Q) is, in push units (math.md section 5),
 
@@ -42,7 +42,7 @@ def extended_parameter(contour: Contour, a, b) -> tuple[np.ndarray, np.ndarray]:
     -------
     s_ext : ndarray
         The true parameter where met; otherwise where the line meets the
-        closing ray(s) (continuous in (a, b)).
+        prolongation (continuous in (a, b)).
     met : ndarray of bool
 
     Examples
@@ -50,22 +50,42 @@ def extended_parameter(contour: Contour, a, b) -> tuple[np.ndarray, np.ndarray]:
     >>> from specmap.grids.model import Contour
     >>> s, met = extended_parameter(Contour("f:v0", "vertical", [0.0, 5.0]), 0.5, 0.0)
     >>> float(s), bool(met)
-    (10.0, False)
+    (0.0, False)
     """
     a, b = np.broadcast_arrays(np.asarray(a, float), np.asarray(b, float))
     s = line_parameter(contour, a, b)
     met = ~np.isnan(s)
     if met.all():
         return s, met
-    x0, y0 = contour.points[0]
+    pts = contour.points
+    x0, y0 = pts[0]
     with np.errstate(divide="ignore", invalid="ignore"):
-        if contour.kind != "proper":
-            ext = np.maximum((x0 - b) / a, (y0 + b) / (1.0 - a))
+        if contour.kind == "vertical":
+            ext = (x0 - b) / a
+        elif contour.kind == "horizontal":
+            ext = (y0 + b) / (1.0 - a)
         else:
-            xn, yn = contour.points[-1]
-            g0 = (1.0 - a) * (x0 - b) - a * (y0 + b)
-            ext = np.where(g0 > 0, (x0 - b) / a, (yn + b) / (1.0 - a))
+            ext = np.where(_g(pts[0], a, b) > 0, _through(pts[0], pts[1] if len(pts) > 1 else None, a, b),
+                           _through(pts[-1], pts[-2] if len(pts) > 1 else None, a, b))
     return np.where(met, s, ext), met
+
+
+def _g(p, a, b):
+    """(1-a)(x-b) - a(y+b): zero on r(a, b), positive below it."""
+    return (1.0 - a) * (p[0] - b) - a * (p[1] + b)
+
+
+def _through(p, q, a, b):
+    """Parameter where r(a, b) meets the full straight line through p and q.
+
+    On r(a, b), x + y = s. Without q (single-point contour) the line of slope -1
+    through p is used.
+    """
+    q = p + np.array([1.0, -1.0]) if q is None or np.allclose(p, q) else q
+    gp = _g(p, a, b)
+    gq = _g(q, a, b)
+    t = -gp / (gq - gp)
+    return p[0] + p[1] + t * ((q[0] - p[0]) + (q[1] - p[1]))
 
 
 def sample_contours(contours: Sequence[Contour], a, b) -> tuple[np.ndarray, np.ndarray]:
