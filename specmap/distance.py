@@ -41,7 +41,7 @@ import numpy as np
 
 from specmap.errors import StudyError
 from specmap.slices import DEGREES, SliceEngine, bottleneck
-from specmap.strip import Window, default_window, line_parameter, push_scale
+from specmap.strip import Window, default_window, line_parameter, line_parameters, push_scale
 
 Progress = Callable[[int, int], None]
 METHODS = ("both", "dense", "reduced")
@@ -433,11 +433,53 @@ def dense_sweep(ev: LineEvaluator, window: Window, *, resolution: int = 41, refi
 
 
 # ----------------------------------------------------------------------------------------------
-# reduced search: ties, sampling of the special set
+# reduced search: tied costs, candidates on the special set, a bound per line
 # ----------------------------------------------------------------------------------------------
+
+# How the two differences d_P, d_Q of a tie give its candidate costs (see tie_costs).
+_EQUAL_CROSS, _EQUAL_SAME, _HALF_P, _HALF_Q, _ANY_EQUAL, _ANY_HALF = range(6)
+_LOCAL_MAX, _END, _CROSSING = range(3)
+ORIGINS = ("local_max", "end", "crossing")
+"""Where a candidate comes from: a local maximum of the tied cost along a curve, a curve end, a crossing."""
+
 
 def _grid_of(cid: str) -> str | None:
     return cid.split(":", 1)[0] if ":" in cid else None
+
+
+def _tie_code(tie, *, roles: bool = True) -> int | None:
+    """How the tied cost of ``tie`` follows from its differences; ``None`` for a tie of no two costs.
+
+    With roles known (ids ``"<grid>:..."`` and ``roles=True``): equal ties of
+    two cross pairs or two same-grid pairs; half ties of a same-grid pair (the
+    larger difference) against a cross pair; any other tie compares costs of
+    different kinds and gives ``None`` (math.md section 5, role-aware refinement).
+    """
+    (p1, p2), (q1, q2) = tie.pairs
+    gp, gq = (_grid_of(p1), _grid_of(p2)), (_grid_of(q1), _grid_of(q2))
+    if not roles or None in gp + gq:
+        return _ANY_EQUAL if tie.condition == "equal" else _ANY_HALF
+    cross_p, cross_q = gp[0] != gp[1], gq[0] != gq[1]
+    if tie.condition == "equal":
+        if cross_p == cross_q:
+            return _EQUAL_CROSS if cross_p else _EQUAL_SAME
+        return None
+    if cross_p != cross_q:
+        return _HALF_Q if cross_p else _HALF_P
+    return None
+
+
+def _costs_from_differences(code, dp, dq) -> tuple[np.ndarray, np.ndarray]:
+    """(lo, hi) of :func:`tie_costs` from the codes of :func:`_tie_code` and the differences (value units)."""
+    code, dp, dq = np.broadcast_arrays(np.asarray(code), np.asarray(dp, float), np.asarray(dq, float))
+    with np.errstate(invalid="ignore"):
+        lo_d, hi_d = np.minimum(dp, dq), np.maximum(dp, dq)
+        half_lo, half_hi = np.minimum(hi_d / 2, lo_d), np.maximum(hi_d / 2, lo_d)
+        conds = [code == _EQUAL_CROSS, code == _EQUAL_SAME, code == _ANY_EQUAL]
+        lo = np.select(conds, [lo_d, lo_d / 2, lo_d / 2], half_lo)
+        hi = np.select(conds, [hi_d, hi_d / 2, hi_d], half_hi)
+        bad = ((code == _HALF_P) & ~(dp >= dq)) | ((code == _HALF_Q) & ~(dq >= dp))
+    return np.where(bad, np.nan, lo), np.where(bad, np.nan, hi)
 
 
 def tie_costs(tie, contours_by_id: dict, a, b, *, roles: bool = True) -> tuple[np.ndarray, np.ndarray]:
@@ -455,9 +497,10 @@ def tie_costs(tie, contours_by_id: dict, a, b, *, roles: bool = True) -> tuple[n
       smaller difference, d_small [EFQT23].
 
     Off the curve the two sides differ; ``lo`` and ``hi`` bracket both sides
-    (min and max). Where the roles make the tie impossible, or a contour is
-    not met, both are NaN. Without role information (ids without a grid
-    prefix, or ``roles=False``) an equal tie brackets [d/2, d].
+    (min and max); on the curve both equal the tied cost t. Where the roles make
+    the tie impossible, or a contour is not met, both are NaN. Without role
+    information (ids without a grid prefix, or ``roles=False``) an equal tie
+    brackets [d/2, d].
 
     Returns
     -------
@@ -467,32 +510,54 @@ def tie_costs(tie, contours_by_id: dict, a, b, *, roles: bool = True) -> tuple[n
     a, b = np.broadcast_arrays(np.asarray(a, float), np.asarray(b, float))
     m = push_scale(a)
     s = [line_parameter(contours_by_id[c], a, b) for c in (p1, p2, q1, q2)]
-    dp = np.abs(s[0] - s[1]) * m
-    dq = np.abs(s[2] - s[3]) * m
-    gp = [_grid_of(p1), _grid_of(p2)]
-    gq = [_grid_of(q1), _grid_of(q2)]
-    known = roles and None not in gp + gq
-    cross_p, cross_q = gp[0] != gp[1], gq[0] != gq[1]
-    with np.errstate(invalid="ignore"):
-        if tie.condition == "equal":
-            lo_d, hi_d = np.minimum(dp, dq), np.maximum(dp, dq)
-            if known and cross_p and cross_q:
-                lo, hi = lo_d, hi_d
-            elif known and not cross_p and not cross_q:
-                lo, hi = lo_d / 2, hi_d / 2
-            elif known:
-                lo = hi = np.full(a.shape, np.nan)
-            else:
-                lo, hi = lo_d / 2, hi_d
-        else:
-            p_big = dp >= dq
-            big = np.where(p_big, dp, dq)
-            small = np.where(p_big, dq, dp)
-            lo, hi = np.minimum(big / 2, small), np.maximum(big / 2, small)
-            if known:
-                ok = np.where(p_big, (not cross_p) & cross_q, (not cross_q) & cross_p)
-                lo, hi = np.where(ok, lo, np.nan), np.where(ok, hi, np.nan)
-    return lo, hi
+    code = _tie_code(tie, roles=roles)
+    if code is None:
+        return np.full(a.shape, np.nan), np.full(a.shape, np.nan)
+    return _costs_from_differences(code, np.abs(s[0] - s[1]) * m, np.abs(s[2] - s[3]) * m)
+
+
+def line_upper_bound(values_f: np.ndarray, values_g: np.ndarray, a, b, *, chunk: int = 256) -> np.ndarray:
+    """||F*_f(a, b) - F*_g(a, b)||_inf over the vertices, per line: h_k(a, b) <= it for every k.
+
+    For two maps on the same triangulation the lower-star filtrations of one
+    line differ on every simplex by at most their largest vertex difference, so
+    by stability of persistence (points at infinity included)
+    h_k(a, b) <= max_v |F*_f(a, b)(v) - F*_g(a, b)(v)| [CDFFL13]. No diagram is
+    needed: O(n) per line (math.md section 2, explicit forms of F*).
+
+    Parameters
+    ----------
+    values_f, values_g : ndarray (n, 2)
+        Values at the same vertices (same triangles).
+    a, b : array_like
+        Lines, broadcast together.
+    chunk : int
+        Lines per vectorised block.
+
+    Returns
+    -------
+    ndarray of the broadcast shape of a and b.
+
+    Examples
+    --------
+    >>> v = np.array([[0.0, 1.0], [2.0, -1.0]])
+    >>> float(line_upper_bound(v, v + [0.3, 0.1], 0.5, 0.0))
+    0.3
+    """
+    a, b = np.broadcast_arrays(np.asarray(a, float), np.asarray(b, float))
+    af, bf = a.ravel(), b.ravel()
+    vf, vg = np.asarray(values_f, float), np.asarray(values_g, float)
+    out = np.empty(af.shape)
+    for i in range(0, len(af), chunk):
+        aa, bb = af[i:i + chunk], bf[i:i + chunk]
+        r1 = np.where(aa <= 0.5, 1.0, (1.0 - aa) / aa)
+        r2 = np.where(aa <= 0.5, aa / (1.0 - aa), 1.0)
+
+        def star(v, aa=aa, bb=bb, r1=r1, r2=r2):
+            return np.maximum(r1 * (v[:, :1] - bb), r2 * (v[:, 1:] + bb))
+
+        out[i:i + chunk] = np.abs(star(vf) - star(vg)).max(axis=0)
+    return out.reshape(a.shape)
 
 
 def _paths(geom) -> list[np.ndarray]:
@@ -517,33 +582,243 @@ def _normalise(pts: np.ndarray, window: Window) -> np.ndarray:
     return (np.asarray(pts, float) - [window.a[0], window.b[0]]) / [wa, wb]
 
 
-def _path_candidates(path: np.ndarray, window: Window, spacing: float, cost) -> list[tuple[float, float, float, float]]:
-    """Candidate maximisers on one path: local maxima of the tie cost along it, and its interior ends.
+def _denormalise(pts: np.ndarray, window: Window) -> np.ndarray:
+    wa = window.a[1] - window.a[0]
+    wb = window.b[1] - window.b[0]
+    return np.asarray(pts, float) * [wa, wb] + [window.a[0], window.b[0]]
 
-    The path is resampled every ``spacing`` of the normalised window (plus its own
-    vertices); returns (hi, lo, a, b) per candidate.
+
+def _resample(norm: np.ndarray, spacing: float) -> np.ndarray:
+    """Arc-length positions: the vertices of a (normalised) path and a point every ``spacing``."""
+    if len(norm) == 1:
+        return np.zeros(1)
+    cum = np.concatenate([[0.0], np.cumsum(np.linalg.norm(np.diff(norm, axis=0), axis=1))])
+    return np.union1d(cum, np.linspace(0.0, cum[-1], max(2, math.ceil(cum[-1] / spacing) + 1)))
+
+
+def _at_arclength(norm: np.ndarray, t: np.ndarray) -> np.ndarray:
+    if len(norm) == 1:
+        return np.repeat(norm, len(np.atleast_1d(t)), axis=0)
+    cum = np.concatenate([[0.0], np.cumsum(np.linalg.norm(np.diff(norm, axis=0), axis=1))])
+    return np.c_[np.interp(t, cum, norm[:, 0]), np.interp(t, cum, norm[:, 1])]
+
+
+def _costs_at(codes: np.ndarray, quads: np.ndarray, columns: dict, contours_by_id: dict,
+              a: np.ndarray, b: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Tie costs (lo, hi) at many lines at once: line i for the tie (codes[i], quads[i] (column indices))."""
+    ids = list(columns)
+    S = line_parameters([contours_by_id[c] for c in ids], a, b) if len(a) else np.zeros((len(ids), 0))
+    n = np.arange(len(a))
+    m = push_scale(a)
+    s = [S[quads[:, k], n] for k in range(4)]
+    return _costs_from_differences(codes, np.abs(s[0] - s[1]) * m, np.abs(s[2] - s[3]) * m)
+
+
+def special_candidates(atlas, contours_by_id: dict, window: Window, *, spacing: float = 1 / 200,
+                       roles: bool = True) -> dict[str, Any]:
+    """The finite candidate set of the reduced search, built without any diagram.
+
+    For every tie piece of ``atlas`` whose tie is a tie of two costs
+    (:func:`tie_costs`), each path of its geometry inside ``window`` (patches:
+    their rings) is resampled every ``spacing`` of the normalised window; the
+    candidates are the local maxima of the tie cost ``hi`` along each path and
+    the path ends inside the window (a tie starts or stops), plus the crossings
+    of two curves whose ties share a pair (where an active tie can stop being
+    active: one of its costs ties with a third one).
+
+    Returns
+    -------
+    dict with arrays ``a``, ``b``, ``lo``, ``hi`` (cost bracket), ``piece``
+    (index into ``atlas.pieces``), ``origin`` (index into :data:`ORIGINS`); ``paths``
+    (normalised coordinates) and ``paths_of`` (piece -> path indices) for the polish;
+    ``pruned`` (ties: ``roles``, ``unknown_contour``, ``not_met``, ``outside_window``),
+    ``crossings``, ``live`` (pieces with candidates), ``seconds``.
     """
-    norm = _normalise(path, window)
-    if len(path) == 1:
-        lo, hi = cost(path[:, 0], path[:, 1])
-        return [(float(hi[0]), float(lo[0]), float(path[0, 0]), float(path[0, 1]))]
-    seg = np.linalg.norm(np.diff(norm, axis=0), axis=1)
-    cum = np.concatenate([[0.0], np.cumsum(seg)])
-    t = np.union1d(cum, np.linspace(0.0, cum[-1], max(2, math.ceil(cum[-1] / spacing) + 1)))
-    a = np.interp(t, cum, path[:, 0])
-    b = np.interp(t, cum, path[:, 1])
-    lo, hi = cost(a, b)
+    from shapely import box, intersection, intersects
+
+    t0 = time.perf_counter()
+    pieces = tuple(getattr(atlas, "pieces", ()) or ())
+    pruned = {"roles": 0, "unknown_contour": 0, "not_met": 0, "outside_window": 0}
+    columns = {c: i for i, c in enumerate(contours_by_id)}
+    wbox = box(*window.bounds())
+    codes, quads, geoms, live_ids = [], [], [], []
+    paths: list[np.ndarray] = []
+    paths_of: dict[int, list[int]] = {}
+    samp_t, samp_path = [], []
+    for ip, piece in enumerate(pieces):
+        ids = [c for pair in piece.tie.pairs for c in pair]
+        if any(c not in columns for c in ids):
+            pruned["unknown_contour"] += 1
+            continue
+        code = _tie_code(piece.tie, roles=roles)
+        if code is None:
+            pruned["roles"] += 1
+            continue
+        geom = piece.geometry
+        if geom is None or geom.is_empty or not geom.intersects(wbox):
+            pruned["outside_window"] += 1
+            continue
+        geom = geom if wbox.contains(geom) else geom.intersection(wbox)
+        live_ids.append(ip)
+        codes.append(code)
+        quads.append([columns[c] for c in ids])
+        geoms.append(geom.boundary if geom.geom_type in ("Polygon", "MultiPolygon") else geom)
+        paths_of[ip] = []
+        for path in _paths(geom):
+            norm = _normalise(path, window)
+            t = _resample(norm, spacing)
+            paths_of[ip].append(len(paths))
+            samp_t.append(t)
+            samp_path.append(np.full(len(t), len(paths)))
+            paths.append(norm)
+    path_live = np.array([i for i, ip in enumerate(live_ids) for _ in paths_of[ip]], dtype=np.int64)
+    codes_a = np.asarray(codes, dtype=np.int64)
+    quads_a = np.asarray(quads, dtype=np.int64).reshape(-1, 4)
+    if paths:
+        pid = np.concatenate(samp_path)
+        norm_pts = np.concatenate([_at_arclength(paths[p], t) for p, t in enumerate(samp_t)])
+    else:
+        pid = np.zeros(0, dtype=np.int64)
+        norm_pts = np.zeros((0, 2))
+    raw = _denormalise(norm_pts, window)
+    li = path_live[pid] if len(pid) else np.zeros(0, dtype=np.int64)
+    lo, hi = _costs_at(codes_a[li], quads_a[li], columns, contours_by_id, raw[:, 0], raw[:, 1])
     h = np.where(np.isnan(hi), -np.inf, hi)
-    n = len(t)
-    keep = np.zeros(n, dtype=bool)
-    if n >= 3:
-        keep[1:-1] = (h[1:-1] >= h[:-2]) & (h[1:-1] > h[2:]) & np.isfinite(h[1:-1])
+    n = len(h)
+    same_prev = np.zeros(n, dtype=bool)
+    same_next = np.zeros(n, dtype=bool)
+    same_prev[1:] = pid[1:] == pid[:-1]
+    same_next[:-1] = pid[:-1] == pid[1:]
+    prev_h = np.r_[-np.inf, h[:-1]] if n else h
+    next_h = np.r_[h[1:], -np.inf] if n else h
+    finite = np.isfinite(h)
+    local_max = same_prev & same_next & (h >= prev_h) & (h > next_h) & finite
     edge = 1e-9
-    for i in (0, n - 1):  # ends inside the window: junctions where ties start or stop
-        x = norm[0] if i == 0 else norm[-1]
-        if np.isfinite(h[i]) and edge < x[0] < 1 - edge and edge < x[1] < 1 - edge:
-            keep[i] = True
-    return [(float(hi[i]), float(lo[i]), float(a[i]), float(b[i])) for i in np.nonzero(keep)[0]]
+    inside = np.all((norm_pts > edge) & (norm_pts < 1 - edge), axis=1)
+    end = (~same_prev | ~same_next) & finite & inside
+    keep = local_max | end
+    # pieces with no finite cost anywhere: their contours are never met together (or the roles fail)
+    has = np.zeros(len(live_ids), dtype=bool)
+    has[li[finite]] = True
+    pruned["not_met"] = int((~has).sum())
+    cand = {"a": [raw[keep, 0]], "b": [raw[keep, 1]], "lo": [lo[keep]], "hi": [hi[keep]],
+            "live": [li[keep]], "origin": [np.where(local_max[keep], _LOCAL_MAX, _END)]}
+    # crossings of ties that share a pair
+    n_crossings = 0
+    alive = np.nonzero(has)[0]
+    if len(alive) > 1:
+        by_pair: dict[tuple, list[int]] = {}
+        for i in alive:
+            for pair in pieces[live_ids[i]].tie.pairs:
+                by_pair.setdefault(pair, []).append(int(i))
+        us, vs = [], []
+        for members in by_pair.values():
+            m = np.asarray(members)
+            if len(m) > 1:
+                u, v = np.triu_indices(len(m), 1)
+                us.append(m[u])
+                vs.append(m[v])
+        if us:
+            uv = np.unique(np.c_[np.concatenate(us), np.concatenate(vs)], axis=0)
+            garr = np.asarray(geoms, dtype=object)
+            hit = intersects(garr[uv[:, 0]], garr[uv[:, 1]]) if len(uv) else np.zeros(0, bool)
+            uv = uv[hit]
+            pa, pb, pl = [], [], []
+            for (u, v), g in zip(uv.tolist(), intersection(garr[uv[:, 0]], garr[uv[:, 1]]), strict=True):
+                pts = [p for path in _paths(g) for p in (path if len(path) == 1 else path[[0, -1]])]
+                for x, y in pts:
+                    n_crossings += 1
+                    pa += [x, x]
+                    pb += [y, y]
+                    pl += [u, v]
+            if pa:
+                pa_a, pb_a, pl_a = np.asarray(pa), np.asarray(pb), np.asarray(pl, dtype=np.int64)
+                clo, chi = _costs_at(codes_a[pl_a], quads_a[pl_a], columns, contours_by_id, pa_a, pb_a)
+                ok = np.isfinite(chi)
+                cand["a"].append(pa_a[ok])
+                cand["b"].append(pb_a[ok])
+                cand["lo"].append(clo[ok])
+                cand["hi"].append(chi[ok])
+                cand["live"].append(pl_a[ok])
+                cand["origin"].append(np.full(int(ok.sum()), _CROSSING))
+    out = {k: np.concatenate(v) for k, v in cand.items()}
+    live_arr = np.asarray(live_ids, dtype=np.int64)
+    out["piece"] = live_arr[out.pop("live")] if len(live_arr) else np.zeros(0, dtype=np.int64)
+    out["origin"] = out["origin"].astype(np.int64)
+    out.update(paths=paths, paths_of=paths_of, pruned=pruned, crossings=n_crossings,
+               live=[live_ids[i] for i in alive], seconds=time.perf_counter() - t0)
+    return out
+
+
+def _star_values(values: np.ndarray, a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """F*(a, b) at every vertex for many lines: shape (len(a), n) (math.md section 2)."""
+    a = np.asarray(a, float)[:, None]
+    b = np.asarray(b, float)[:, None]
+    r1 = np.where(a <= 0.5, 1.0, (1.0 - a) / a)
+    r2 = np.where(a <= 0.5, a / (1.0 - a), 1.0)
+    return np.maximum(r1 * (values[None, :, 0] - b), r2 * (values[None, :, 1] + b))
+
+
+class _LocalBound:
+    """h at a line from h at evaluated lines: h(p) <= h(q) + ||F*_f(p) - F*_f(q)|| + ||F*_g(p) - F*_g(q)||.
+
+    Stability [CDFFL13] applied to each map between the lines p and q (both
+    filtrations on one mesh), plus the triangle inequality for d_B. Exact
+    vertex-wise sup norms, no Lipschitz constant; only the ``near`` evaluated
+    lines closest to p (normalised window distance) are used, which keeps it an
+    upper bound.
+    """
+
+    def __init__(self, values_f: np.ndarray, values_g: np.ndarray, window: Window, near: int = 16) -> None:
+        self.vf, self.vg = values_f, values_g
+        self.window = window
+        self.near = near
+        self.pts: list[np.ndarray] = []
+        self.h: list[np.ndarray] = []
+        self.Ff: list[np.ndarray] = []
+        self.Fg: list[np.ndarray] = []
+
+    def add(self, a: np.ndarray, b: np.ndarray, H: np.ndarray) -> None:
+        """Record lines (a, b) with h values H (n_lines, n_groups)."""
+        a, b = np.atleast_1d(a).astype(float), np.atleast_1d(b).astype(float)
+        self.pts.append(_normalise(np.c_[a, b], self.window))
+        self.h.append(np.asarray(H, float).reshape(len(a), -1))
+        self.Ff.append(_star_values(self.vf, a, b))
+        self.Fg.append(_star_values(self.vg, a, b))
+        self.pts, self.h = [np.concatenate(self.pts)], [np.concatenate(self.h)]
+        self.Ff, self.Fg = [np.concatenate(self.Ff)], [np.concatenate(self.Fg)]
+
+    def __call__(self, a: float, b: float) -> np.ndarray:
+        """Upper bound of h (per group) at the line (a, b); ``inf`` before any line is recorded."""
+        if not self.pts:
+            return np.array([math.inf])
+        P, H = self.pts[0], self.h[0]
+        d = np.linalg.norm(P - _normalise(np.array([a, b]), self.window), axis=1)
+        idx = np.argsort(d)[:self.near]
+        ff = _star_values(self.vf, np.array([a]), np.array([b]))[0]
+        fg = _star_values(self.vg, np.array([a]), np.array([b]))[0]
+        move = np.abs(self.Ff[0][idx] - ff).max(axis=1) + np.abs(self.Fg[0][idx] - fg).max(axis=1)
+        return (H[idx] + move[:, None]).min(axis=0)
+
+
+def _polish_along(ev: LineEvaluator, j_group: Sequence[int], path: np.ndarray, point: tuple[float, float],
+                  window: Window, spacing: float, iters: int) -> tuple[float, tuple[float, float]]:
+    """Golden-section search of max over ``j_group`` of h along a (normalised) path, within 2 spacings of ``point``."""
+    from shapely.geometry import LineString, Point
+
+    if len(path) < 2:
+        return -math.inf, point
+    line = LineString(path)
+    d0 = line.project(Point(_normalise(np.array(point), window)))
+    lo, hi = max(0.0, d0 - 2 * spacing), min(line.length, d0 + 2 * spacing)
+
+    def fun(d: float) -> float:
+        a, b = _denormalise(np.asarray(line.interpolate(d).coords[0]), window)
+        return float(ev(float(a), float(b))[list(j_group)].max())
+
+    v, d = _golden_max(fun, lo, hi, iters)
+    a, b = _denormalise(np.asarray(line.interpolate(d).coords[0]), window)
+    return v, (float(a), float(b))
 
 
 def _component_of(piece, point: tuple[float, float], components: Sequence) -> str | None:
@@ -561,34 +836,60 @@ def _component_of(piece, point: tuple[float, float], components: Sequence) -> st
 
 def reduced_search(ev: LineEvaluator, window: Window, atlas, contours_by_id: dict, *, tolerance: float,
                    upper: float, slope_samples: int = 25, spacing: float = 1 / 200, roles: bool = True,
-                   certify: str = "max", polish: bool = True, batch: int | None = None) -> dict[str, Any]:
+                   certify: str = "max", polish: bool = True, batch: int | None = None,
+                   local_bound: bool = True, polish_iters: int = 6) -> dict[str, Any]:
     """D_k = max(max_b h_k(1/2, b), sup of h_k over the special set) [EFQT23, FMQT].
 
+    Write t(p) for the tied cost of a tie at p (value units, :func:`tie_costs`):
+    |d| for an equal tie of two cross pairs (matching costs), |d|/2 for one of
+    two same-grid pairs (diagonal costs), the smaller difference for a half tie
+    of a same-grid pair (larger difference) against a cross pair. Other ties
+    compare costs of different kinds and carry no maximum (math.md 5,
+    role-aware refinement): they are skipped (``pruned["roles"]``).
+
+    Why a short list suffices. If D is not reached on a = 1/2 it is reached at
+    a special point p* where the active cost ties with another, so
+    h(p*) = t(p*) = D for a tie through p*; along that curve h = t while the
+    tie stays active, so p* is a local maximum of t along the curve, an end of
+    the active arc (a crossing with a tie sharing a pair) or an end of the curve
+    (:func:`special_candidates`). Every candidate c has h(c) <= D, so a
+    candidate with t(c) > D has h(c) < t(c).
+
     1. Slope-one line: ``slope_samples`` values of b, the best refined by
-       golden-section search (|d h / d b| <= 2 on a = 1/2: F* moves with slope
-       at most 1 in b for each map).
-    2. Special set. Where h changes formula it equals a tied cost (math.md 5
-       (ii)), so the maximiser p* lies on the curve of a tie whose cost is active
-       at p*; along that curve h equals the tie cost while the tie stays active,
-       hence p* is (a) a local maximum of the tie cost along the curve, or (b) an
-       end of the active arc, where one of the two tied costs ties with a third:
-       a crossing with the curve of a tie sharing a pair, or (c) an end of the curve inside the window (the
-       tie starts or stops: a contour stops being met). Patches need only their
-       boundary (math.md 5 (i)): their rings are treated as curves. This finite
-       candidate set is built without diagrams (:func:`tie_costs` along curves
-       resampled every ``spacing`` of the normalised window; crossings with
-       shapely), then visited in decreasing tie cost. A candidate is skipped
-       when its cost bracket [lo, hi] has hi < best - tol (below the best found
-       so far) or lo > upper + tol (above the bound U of D).
-       ``certify="max"`` prunes with the best over degrees (the max over degrees
-       is certified; single degrees below it are lower bounds), ``"each"`` with
-       each degree's own best.
-    3. Polish: on meshes the grid, hence the special set, is approximate, so the
-       best candidate of each certified degree is refined by a short pattern search.
+       golden-section search; ``best`` is its value.
+    2. Candidates in descending order of t (sort key ``hi``, the larger side
+       off the curve); a candidate is dropped when
+       - ``below_best``: t <= best + tol (then so is every later one);
+       - ``above_bound``: ``lo`` > U + tol, U an upper bound of D (``upper``);
+       - ``line_bound``: ``lo`` > ||F*_f - F*_g||_inf on its line + tol
+         (:func:`line_upper_bound`, same mesh only): then h(c) < t(c);
+       - ``local_bound``: ``lo`` > h(q) + ||F*_f(c) - F*_f(q)|| + ||F*_g(c) - F*_g(q)|| + tol
+         for an evaluated line q (stability between lines, same mesh only).
+       The others are evaluated in batches (``batch``, default 1 for one job,
+       else 2 jobs) and ``best`` grows. **Early stop**: the first evaluated c
+       with h(c) >= t(c) - tol gives D = max(best, h(c)) up to tol: any
+       candidate with t > D has h < t, so the first one with h = t has t = D,
+       and every later one has t <= t(c) <= h(c) + tol (it is then
+       ``below_best``).
+    3. Polish: the best special candidate of each certified degree is refined by
+       a golden-section search of h along its curve (``polish_iters``).
+
+    On meshes the grid, hence the special set, is approximate; nothing above is
+    used to *hide* a larger value: :func:`matching_distance` audits the result
+    against the dense sweep (``theorem_gap``).
+
+    ``certify="max"`` works with the max over degrees (the max over degrees is
+    certified; single degrees below it are lower bounds), ``"each"`` with each
+    degree on its own.
 
     Returns
     -------
-    dict with ``slope`` and ``special`` (per degree), ``lines``, ``seconds``, ``pruned``.
+    dict with ``slope`` and ``special`` (per degree), ``lines``, ``seconds``,
+    ``pruned`` (ties: ``roles``, ``unknown_contour``, ``not_met``,
+    ``outside_window``; candidates: ``below_best``, ``above_bound``,
+    ``line_bound``, ``local_bound``; ``candidates_total``, ``candidates_evaluated``,
+    ``crossings``, ``early_stop``), ``stop`` (the stopping candidate or None),
+    ``candidate_seconds``.
     """
     if certify not in ("max", "each"):
         raise ValueError("certify must be 'max' or 'each'")
@@ -619,126 +920,104 @@ def reduced_search(ev: LineEvaluator, window: Window, atlas, contours_by_id: dic
             if a == 0.5:
                 for j in range(nd):
                     slope[j].offer(v[j], (a, b), "slope-one")
-    best = [s.value for s in slope]
+    groups = [[j] for j in range(nd)] if certify == "each" else [list(range(nd))]
+    best = np.array([max(slope[j].value for j in g) for g in groups])
 
-    def threshold() -> list[float]:
-        return best if certify == "each" else [max(best)] * nd
-
-    # 2. special set: candidates
-    pruned = {"roles": 0, "unknown_contour": 0, "not_met": 0, "below_best": 0, "above_bound": 0,
-              "outside_window": 0}
+    # 2. candidates, then the descending pass
+    t1 = time.perf_counter()
+    cand = special_candidates(atlas, contours_by_id, window, spacing=spacing, roles=roles)
+    cand_seconds = time.perf_counter() - t1
     pieces = tuple(getattr(atlas, "pieces", ()) or ())
     components = tuple(getattr(atlas, "components", ()) or ())
-    from shapely import STRtree, intersection
-    from shapely.geometry import box
-
-    wbox = box(*window.bounds())
-    cand: list[tuple[float, float, float, float, int]] = []  # (hi, lo, a, b, piece)
-    live: list[int] = []
-    geoms = []
-    for ip, piece in enumerate(pieces):
-        ids = [c for pair in piece.tie.pairs for c in pair]
-        if any(c not in contours_by_id for c in ids):
-            pruned["unknown_contour"] += 1
-            continue
-        geom = piece.geometry
-        if geom is None or geom.is_empty or not geom.intersects(wbox):
-            pruned["outside_window"] += 1
-            continue
-        geom = geom if wbox.contains(geom) else geom.intersection(wbox)
-
-        def cost(a, b, tie=piece.tie):
-            return tie_costs(tie, contours_by_id, a, b, roles=roles)
-
-        got = [c for path in _paths(geom) for c in _path_candidates(path, window, spacing, cost)]
-        if not got:
-            rep = geom.representative_point()
-            met = all(not math.isnan(float(line_parameter(contours_by_id[c], rep.x, rep.y))) for c in ids)
-            pruned["roles" if met and roles else "not_met"] += 1
-            continue
-        cand.extend((*c, ip) for c in got)
-        live.append(ip)
-        geoms.append(geom.boundary if geom.geom_type in ("Polygon", "MultiPolygon") else geom)
-    n_crossings = 0
-    if len(geoms) > 1:
-        tree = STRtree(geoms)
-        left, right = tree.query(geoms, predicate="intersects")
-        sel = left < right
-        left, right = left[sel], right[sel]
-        if len(left):
-            inter = intersection(np.asarray(geoms, dtype=object)[left], np.asarray(geoms, dtype=object)[right])
-            for u, v, g in zip(left, right, inter, strict=True):
-                # an active arc of a tie ends where one of its two costs ties with a third one:
-                # only crossings of ties that share a pair can end it
-                if not set(pieces[live[u]].tie.pairs) & set(pieces[live[v]].tie.pairs):
-                    continue
-                pts = [p for path in _paths(g) for p in (path if len(path) == 1 else path[[0, -1]])]
-                for a, b in pts:
-                    n_crossings += 1
-                    for ip in (live[u], live[v]):
-                        lo, hi = tie_costs(pieces[ip].tie, contours_by_id, a, b, roles=roles)
-                        if np.isfinite(hi):
-                            cand.append((float(hi), float(lo), float(a), float(b), ip))
-    cand.sort(key=lambda c: -c[0])
-    alive = dict.fromkeys(live, False)
-    reasons: dict[int, set[str]] = {ip: set() for ip in live}
-    step = batch or max(4, 2 * ev.jobs)
-    evaluated = 0
+    ca, cb, clo, chi = cand["a"], cand["b"], cand["lo"], cand["hi"]
+    n = len(ca)
+    same_mesh = ev.val_f.shape == ev.val_g.shape and np.array_equal(ev.tri_f, ev.tri_g)
+    local = _LocalBound(ev.val_f, ev.val_g, window) if (same_mesh and local_bound) else None
+    if local is not None:
+        known = [(p, v) for p, v in ev.memo.items()]
+        if known:
+            P = np.array([p for p, _ in known])
+            V = np.array([[np.max(v[g]) for g in groups] for _, v in known])
+            local.add(P[:, 0], P[:, 1], V)
+    counts = {"below_best": 0, "above_bound": 0, "line_bound": 0, "local_bound": 0}
+    order = np.argsort(-chi, kind="stable")
+    line_b = np.full(n, np.nan)
+    step = batch or (1 if ev.jobs == 1 else 2 * ev.jobs)
+    evaluated: list[int] = []
+    stop = None
+    open_g = np.ones(len(groups), dtype=bool)
     pos = 0
-    while pos < len(cand):
-        take = []
-        thr = threshold()
-        while pos < len(cand) and len(take) < step:
-            hi, lo, a, b, ip = cand[pos]
+    while pos < n and open_g.any():
+        thr = float(best[open_g].min())
+        take: list[int] = []
+        while pos < n and len(take) < step:
+            i = int(order[pos])
+            if not chi[i] > thr + tolerance:
+                counts["below_best"] += n - pos
+                pos = n
+                break
             pos += 1
-            if lo > upper + tolerance:
-                reasons[ip].add("above_bound")
+            if clo[i] > upper + tolerance:
+                counts["above_bound"] += 1
                 continue
-            if all(hi < thr[j] - tolerance for j in range(nd)):
-                reasons[ip].add("below_best")
+            if same_mesh:
+                if math.isnan(line_b[i]):
+                    chunk = order[pos - 1:pos - 1 + 256]
+                    line_b[chunk] = line_upper_bound(ev.val_f, ev.val_g, ca[chunk], cb[chunk])
+                if clo[i] > line_b[i] + tolerance:
+                    counts["line_bound"] += 1
+                    continue
+            if local is not None and clo[i] > float(local(ca[i], cb[i]).max()) + tolerance:
+                counts["local_bound"] += 1
                 continue
-            take.append((a, b, ip))
-            alive[ip] = True
+            take.append(i)
         if not take:
             continue
-        pts = np.array([(a, b) for a, b, _ in take])
         ev.plan(len(take))
-        H = ev(pts[:, 0], pts[:, 1])
-        evaluated += len(take)
-        for c, (a, b, ip) in enumerate(take):
+        H = ev(ca[take], cb[take])
+        evaluated.extend(take)
+        G = np.array([[np.max(H[g, c]) for g in groups] for c in range(len(take))])
+        if local is not None:
+            local.add(ca[take], cb[take], G)
+        for c, i in enumerate(take):
             for j in range(nd):
-                if special[j].offer(H[j, c], (a, b), "special"):
-                    special[j].tag = (ip, c)
-                best[j] = max(best[j], float(H[j, c]))
-    for ip, ok in alive.items():
-        if not ok:
-            pruned["above_bound" if reasons[ip] == {"above_bound"} else "below_best"] += 1
-    # 3. polish the certified maxima
-    wa, wb = window.a[1] - window.a[0], window.b[1] - window.b[0]
-    top = max(best)
+                if special[j].offer(H[j, c], (ca[i], cb[i]), "special"):
+                    special[j].tag = (int(cand["piece"][i]), i)
+            best = np.maximum(best, G[c])
+            hit = open_g & (G[c] >= chi[i] - tolerance)
+            if hit.any() and stop is None:
+                stop = {"a": float(ca[i]), "b": float(cb[i]), "t": float(chi[i]), "h": float(G[c].max()),
+                        "origin": ORIGINS[int(cand["origin"][i])], "rank": len(evaluated) - len(take) + c + 1}
+            open_g &= ~hit
+    counts["below_best"] += n - pos  # after an early stop every later t is <= best + tol
+    # 3. polish the best special candidates along their curves
+    top = max(max(s.value, p.value) for s, p in zip(slope, special, strict=True))
     for j in range(nd):
-        for rec in (special[j], slope[j]):
-            if not (polish and math.isfinite(rec.value)):
-                continue
-            if certify == "max" and rec.value < top - tolerance:
-                continue
-            if rec is slope[j] and special[j].value >= slope[j].value:
-                continue
-            ev.plan(40)
-            v, at = _pattern_search(ev, j, rec.at, (4 * spacing * wa, 4 * spacing * wb), window, levels=3)
-            where = "slope-one" if rec is slope[j] and abs(at[0] - 0.5) < 1e-12 else "special"
-            if v > rec.value:
-                target = rec if where == rec.where else special[j]
-                target.offer(v, at, where)
+        rec = special[j]
+        if not (polish and rec.tag is not None and math.isfinite(rec.value)):
+            continue
+        if rec.value < slope[j].value - tolerance or (certify == "max" and rec.value < top - tolerance):
+            continue
+        ip, i = rec.tag
+        paths = cand["paths_of"].get(ip, [])
+        if not paths:
+            continue
+        norm = _normalise(np.array(rec.at), window)
+        k = min(paths, key=lambda p: float(np.min(np.linalg.norm(cand["paths"][p] - norm, axis=1))))
+        ev.plan(polish_iters + 2)
+        v, at = _polish_along(ev, [j], cand["paths"][k], rec.at, window, spacing, polish_iters)
+        if v > rec.value:
+            rec.offer(v, at, "special")
     for j in range(nd):
         if special[j].tag is not None:
             special[j].component = _component_of(pieces[special[j].tag[0]], special[j].at, components) \
                 or f"piece:{special[j].tag[0]}"
+    pruned = {**cand["pruned"], **counts, "ties_total": len(pieces), "ties_live": len(cand["live"]),
+              "ties_evaluated": len({int(cand["piece"][i]) for i in evaluated}), "candidates_total": n,
+              "candidates_evaluated": len(evaluated), "crossings": cand["crossings"],
+              "early_stop": stop is not None}
     return {"slope": slope, "special": special, "lines": ev.lines - n0, "seconds": time.perf_counter() - t0,
-            "certify": certify,
-            "pruned": {**pruned, "ties_total": len(pieces), "ties_evaluated": int(sum(alive.values())),
-                       "candidates_total": len(cand), "candidates_evaluated": evaluated,
-                       "crossings": n_crossings}}
+            "certify": certify, "pruned": pruned, "stop": stop, "candidate_seconds": cand_seconds}
 
 
 # ----------------------------------------------------------------------------------------------
@@ -999,7 +1278,8 @@ def matching_distance(shape_f, shape_g, *, method: str = "both", degrees: Iterab
     if red is not None:
         jbest = degrees.index(kmax)
         red_js = {"value": top["value"], "at": _pt(top["at"]), "lines": red["lines"],
-                  "seconds": red["seconds"], "pruned": red["pruned"],
+                  "seconds": red["seconds"], "pruned": red["pruned"], "stop": red["stop"],
+                  "candidate_seconds": red["candidate_seconds"],
                   "slope_one": {str(k): {"value": red["slope"][j].value, "at": _pt(red["slope"][j].at)}
                                 for j, k in enumerate(degrees)},
                   "special": {str(k): {"value": red["special"][j].value, "at": _pt(red["special"][j].at),

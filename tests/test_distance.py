@@ -24,8 +24,10 @@ from specmap.distance import (
     cell_error_bound,
     distance_upper_bound,
     h_values,
+    line_upper_bound,
     lipschitz_constants,
     matching_distance,
+    reduced_search,
     tie_costs,
 )
 from specmap.errors import StudyError
@@ -303,3 +305,69 @@ def test_window_is_respected():
     land = res.landscape
     assert land["a"][0] == 0.3 and land["a"][-1] == 0.7 and land["b"][0] == -0.5
     assert w.a[0] <= res.at[0] <= w.a[1] and w.b[0] <= res.at[1] <= w.b[1]
+
+
+def test_line_upper_bound_is_stability():
+    # stability [CDFFL13] on one mesh: h_k(a, b) <= ||F*_f(a, b) - F*_g(a, b)||_inf for every k;
+    # for g = f + (c, c) the bound is exactly |c| on a = 1/2 (math.md 6, F*_g = F*_f + c there).
+    V, T, f = ellipsoid_pair(200)
+    g = f + 0.1 * np.c_[np.sin(2 * V[:, 2]), np.cos(2 * V[:, 0])]
+    sf, sg = shapes(V, T, f, g)
+    rng = np.random.default_rng(3)
+    A, B = rng.uniform(0.05, 0.95, 10), rng.uniform(-1.5, 1.5, 10)
+    h = h_values(sf, sg, A, B)
+    lb = line_upper_bound(f, g, A, B, chunk=3)
+    assert lb.shape == (10,) and np.all(h <= lb + 1e-12)
+    assert np.allclose(line_upper_bound(f, f + 0.15, 0.5, np.linspace(-1, 1, 5)), 0.15)
+
+
+class _AnalyticEvaluator:
+    """Duck-typed LineEvaluator with a known h: h(a, b) = 0.3 - |a - 0.3| - |b| (max 0.3 at (0.3, 0))."""
+
+    def __init__(self):
+        self.degrees, self.jobs, self.memo = (0,), 1, {}
+        self.val_f, self.val_g = np.zeros((3, 2)), np.zeros((4, 2))  # different meshes: no line bounds
+        self.tri_f = self.tri_g = np.zeros((1, 3), dtype=int)
+
+    def plan(self, n):
+        pass
+
+    @property
+    def lines(self):
+        return len(self.memo)
+
+    def __call__(self, a, b):
+        a, b = np.broadcast_arrays(np.asarray(a, float), np.asarray(b, float))
+        for x, y in zip(a.ravel(), b.ravel(), strict=True):
+            self.memo[(float(x), float(y))] = np.array([0.3 - abs(x - 0.3) - abs(y)])
+        return (0.3 - np.abs(a - 0.3) - np.abs(b))[None]
+
+
+def test_reduced_search_early_stop():
+    # The stopping rule of reduced_search, on an h known in closed form. Equal ties of two cross
+    # pairs of vertical half-lines have the constant cost t = d (push coordinates x - b for a <= 1/2).
+    # Tie A (t = 0.5 > D) must be evaluated and fail h >= t; tie B (t = 0.3) ends at the maximiser
+    # (0.3, 0), where h = t = D = 0.3: the search stops there and tie C (t = 0.2) is never evaluated.
+    def verticals(d, k):
+        return [Contour(f"f:a{k}", "vertical", [0.0, -100.0]), Contour(f"g:a{k}", "vertical", [d, -100.0]),
+                Contour(f"f:b{k}", "vertical", [1.0, -100.0]), Contour(f"g:b{k}", "vertical", [1.0 + d, -100.0])]
+
+    C = {c.id: c for k, d in enumerate((0.5, 0.3, 0.2)) for c in verticals(d, k)}
+
+    def tie(k):
+        return FakeTie(((f"f:a{k}", f"g:a{k}"), (f"f:b{k}", f"g:b{k}")), "equal")
+
+    pieces = (FakePiece(tie(0), "curve", LineString([(0.2, 0.3), (0.4, 0.3)])),
+              FakePiece(tie(1), "curve", LineString([(0.3, 0.0), (0.3, 0.1)])),
+              FakePiece(tie(2), "curve", LineString([(0.25, -0.05), (0.35, -0.05)])))
+    w = Window((0.02, 0.98), (-1.0, 1.0))
+    red = reduced_search(_AnalyticEvaluator(), w, FakeAtlas(pieces, ()), C, tolerance=1e-6, upper=1.0,
+                         polish=False)
+    pr = red["pruned"]
+    assert red["slope"][0].value == pytest.approx(0.1)  # max of h on a = 1/2
+    assert red["special"][0].value == pytest.approx(0.3)
+    assert red["special"][0].at == pytest.approx((0.3, 0.0))
+    assert pr["early_stop"] is True and red["stop"]["t"] == pytest.approx(0.3)
+    # constant costs: every sample of a flat curve may count as a local maximum, so count ties
+    assert pr["ties_evaluated"] == 2  # A and B, never C
+    assert pr["candidates_evaluated"] + pr["below_best"] == pr["candidates_total"]
