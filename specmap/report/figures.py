@@ -120,6 +120,8 @@ def grids_figure(grid_f: dict[str, Any] | None, grid_g: dict[str, Any] | None, *
     handles: list[Any] = []
     for name, grid in present.items():
         col = GRID_COLOURS[name]
+        # f and g dashes are out of phase, so coinciding half-lines show both colours
+        dash = (0.0, (4.0, 4.0)) if name == "f" else (4.0, (4.0, 4.0))
         counts = {"proper": 0, "vertical": 0, "horizontal": 0}
         for c in grid.get("contours", []):
             kind = c.get("kind")
@@ -132,7 +134,7 @@ def grids_figure(grid_f: dict[str, Any] | None, grid_g: dict[str, Any] | None, *
             elif kind in ("vertical", "horizontal"):
                 sx, sy = nums(c.get("start", [math.nan, math.nan]))[:2]
                 ex, ey = (sx, y1) if kind == "vertical" else (x1, sy)
-                ax.plot([sx, ex], [sy, ey], "--", color=col, lw=1.2)
+                ax.plot([sx, ex], [sy, ey], ls=dash, color=col, lw=1.2)
                 ax.plot([sx], [sy], "o", color=col, mfc="white", ms=5, mew=1.3)
                 ax.plot([ex], [ey], "^" if kind == "vertical" else ">", color=col, ms=6, clip_on=False)
             else:
@@ -141,7 +143,7 @@ def grids_figure(grid_f: dict[str, Any] | None, grid_g: dict[str, Any] | None, *
         tag = rf"$\Gamma({name})$"
         handles.append(Line2D([], [], color=col, lw=1.6, label=f"{tag} proper ({counts['proper']})"))
         n_half = counts["vertical"] + counts["horizontal"]
-        handles.append(Line2D([], [], color=col, lw=1.2, ls="--", marker="o", mfc="white",
+        handles.append(Line2D([], [], color=col, lw=1.2, ls=dash, marker="o", mfc="white",
                               label=f"{tag} half-lines ({n_half}), o = start"))
     ax.set_xlim(x0, x1)
     ax.set_ylim(y0, y1)

@@ -74,11 +74,22 @@ def _line_text(line: Any) -> str:
     return fmt_point(line) if isinstance(line, list) else str(line)
 
 
+def _short_value(v: Any) -> str:
+    """One value of a free-form dict, kept short (nested values are only counted)."""
+    if isinstance(v, bool) or v is None:
+        return str(v)
+    if isinstance(v, (int, float)):
+        return fmt(v)
+    if isinstance(v, (dict, list)):
+        return f"({len(v)} {'entries' if isinstance(v, dict) else 'items'})"
+    text = str(v)
+    return text if len(text) <= 40 else text[:37] + "..."
+
+
 def _short_dict(d: Any, limit: int = 8) -> str:
     if not isinstance(d, dict) or not d:
         return "n/a"
-    items = [f"{k}={fmt(v) if isinstance(v, (int, float)) and not isinstance(v, bool) else v}"
-             for k, v in list(d.items())[:limit]]
+    items = [f"{k}={_short_value(v)}" for k, v in list(d.items())[:limit]]
     more = f", and {len(d) - limit} more" if len(d) > limit else ""
     return ", ".join(items) + more
 
