@@ -188,18 +188,21 @@ def _segment_links(lines: list, eps: float) -> tuple[np.ndarray, np.ndarray]:
     owner = idx[:-1][same]
     lo = np.minimum(p, q) - eps
     hi = np.maximum(p, q) + eps
-    h = max(float(np.max(hi - lo)), eps, 1e-300)
+    ext = np.max(hi - lo, axis=1)
+    h = max(float(np.quantile(ext, 0.99)), eps, 1e-300)
     org = lo.min(axis=0)
     c0 = np.floor((lo - org) / h).astype(np.int64)
     c1 = np.floor((hi - org) / h).astype(np.int64)
     width = int(c1[:, 0].max()) + 2
-    segs, bins = [], []
-    for dx in (0, 1):
-        for dy in (0, 1):
-            ok = (c0[:, 0] + dx <= c1[:, 0]) & (c0[:, 1] + dy <= c1[:, 1])
-            k = np.nonzero(ok)[0]
-            segs.append(k)
-            bins.append((c0[k, 1] + dy) * width + c0[k, 0] + dx)
+    # every bin a segment's bounding box touches (long segments: several)
+    nx_ = c1[:, 0] - c0[:, 0] + 1
+    ny_ = c1[:, 1] - c0[:, 1] + 1
+    tot = nx_ * ny_
+    sid = np.repeat(np.arange(len(p)), tot)
+    k = np.arange(int(tot.sum())) - np.repeat(np.cumsum(tot) - tot, tot)
+    dy, dx = np.divmod(k, nx_[sid])
+    segs = [sid]
+    bins = [(c0[sid, 1] + dy) * width + c0[sid, 0] + dx]
     segs = np.concatenate(segs)
     bins = np.concatenate(bins)
     n_lines = len(lines)
@@ -231,24 +234,37 @@ def _segment_links(lines: list, eps: float) -> tuple[np.ndarray, np.ndarray]:
         for cval in np.unique(count[chunk]):
             sel = start[chunk[count[chunk] == cval]]
             ia, ib = np.triu_indices(int(cval), k=1)
-            u = segs[(sel[:, None] + ia[None, :]).ravel()]
-            v = segs[(sel[:, None] + ib[None, :]).ravel()]
-            keep = label[owner[u]] != label[owner[v]]
-            us.append(u[keep])
-            vs.append(v[keep])
-        u = np.concatenate(us)
-        v = np.concatenate(vs)
-        if u.size == 0:
-            continue
-        hit = _segments_close(p[u], q[u], p[v], q[v], eps)
-        if hit.any():
-            links_a.append(owner[u[hit]])
-            links_b.append(owner[v[hit]])
-            label = _labels(n_nodes, links_a, links_b)[:n_lines]
+            for t0 in range(0, ia.size, 1_000_000):
+                ja, jb = ia[t0:t0 + 1_000_000], ib[t0:t0 + 1_000_000]
+                u = segs[(sel[:, None] + ja[None, :]).ravel()]
+                v = segs[(sel[:, None] + jb[None, :]).ravel()]
+                keep = label[owner[u]] != label[owner[v]]
+                us.append(u[keep])
+                vs.append(v[keep])
+                if sum(x.size for x in us) > 1_000_000:
+                    label = _test_links(p, q, owner, eps, us, vs, links_a, links_b, n_nodes, n_lines, label)
+                    us, vs = [], []
+        if us:
+            label = _test_links(p, q, owner, eps, us, vs, links_a, links_b, n_nodes, n_lines, label)
     # links from every line to the first line of its component
     rep = np.full(int(label.max()) + 1, -1, dtype=np.int64)
     rep[label[::-1]] = np.arange(n_lines)[::-1]
     return np.arange(n_lines), rep[label]
+
+
+def _test_links(p, q, owner, eps, us, vs, links_a, links_b, n_nodes, n_lines, label):
+    u = np.concatenate(us)
+    v = np.concatenate(vs)
+    keep = label[owner[u]] != label[owner[v]]
+    u, v = u[keep], v[keep]
+    if u.size == 0:
+        return label
+    hit = _segments_close(p[u], q[u], p[v], q[v], eps)
+    if not hit.any():
+        return label
+    links_a.append(owner[u[hit]])
+    links_b.append(owner[v[hit]])
+    return _labels(n_nodes, links_a, links_b)[:n_lines]
 
 
 def _labels(n: int, a: list, b: list) -> np.ndarray:
