@@ -147,7 +147,8 @@ def test_roles_is_a_subset_of_all():
         (p1, p2), (q1, q2) = p.tie.pairs
         cross_p = p1[0] != p2[0]
         cross_q = q1[0] != q2[0]
-        assert (cross_p == cross_q) if p.tie.condition == "equal" else (cross_p and not cross_q)
+        # half: the larger difference is a same-grid pair (diagonal cost), the doubled one a cross pair
+        assert (cross_p == cross_q) if p.tie.condition == "equal" else (not cross_p and cross_q)
 
 
 def test_progress_is_reported():
@@ -156,3 +157,25 @@ def test_progress_is_reported():
     special_set(f, g, default_window(f.bbox(), g.bbox()), resolution=RES,
                 progress=lambda d, t: calls.append((d, t)))
     assert calls and calls[-1][0] == calls[-1][1]
+
+
+def test_roles_keeps_only_diagonal_vs_matching_half_ties():
+    # math.md 5, role-aware refinement (closed form, derived here): with vertical half-lines
+    # every abscissa difference is constant in b, so a tie holds on the whole window or nowhere.
+    # Case 1: f at x = 0, 2 (same-grid difference 2) and g at x = 3 (cross difference |2 - 3| = 1):
+    # |d_same| = 2 |d_cross| is a diagonal cost tying a matching cost -> kept by "roles".
+    # Case 2: f at x = 0, 1 and g at x = 2: every tie is cross-vs-cross half, mixed equal, or
+    # cross = 2 * same -> none is kept by "roles", while "all" has a patch.
+    from specmap.grids.model import Contour, Grid
+    from specmap.strip import Window
+
+    def vgrid(label, xs):
+        return Grid(tuple(Contour(f"{label}:v{i}", "vertical", [[x, -50.0]]) for i, x in enumerate(xs)))
+
+    w = Window((0.3, 0.45), (-0.5, 0.5))
+    kept = special_set(vgrid("f", [0, 2]), vgrid("g", [3]), w, resolution=21, pairs="roles")
+    assert kept.to_json()["area_fraction"] > 0.99
+    dropped = special_set(vgrid("f", [0, 1]), vgrid("g", [2]), w, resolution=21, pairs="roles")
+    assert dropped.to_json()["total_area"] == 0
+    everything = special_set(vgrid("f", [0, 1]), vgrid("g", [2]), w, resolution=21, pairs="all")
+    assert everything.to_json()["area_fraction"] > 0.99

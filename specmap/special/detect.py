@@ -84,7 +84,8 @@ class Items:
     @staticmethod
     def of(table: PairTable) -> Items:
         n = table.n_pairs
-        dbl = np.arange(n) if table.mode == "all" else np.nonzero(~table.cross)[0]
+        # "roles": only cross pairs are doubled (|c_same| = 2 |c_cross|, math.md 5)
+        dbl = np.arange(n) if table.mode == "all" else np.nonzero(table.cross)[0]
         pair = np.concatenate([np.arange(n), dbl])
         factor = np.concatenate([np.ones(n), np.full(dbl.size, 2.0)])
         di = np.full(n, -1, dtype=np.int64)

@@ -168,14 +168,17 @@ def equal_allowed(table: PairTable, p: np.ndarray, q: np.ndarray) -> np.ndarray:
 def half_allowed(table: PairTable, big: np.ndarray, doubled: np.ndarray) -> np.ndarray:
     """Which half ties |c_big| = 2 |c_doubled| the pair mode keeps.
 
-    ``roles``: the doubled difference is a same-grid pair (a diagonal cost,
-    halved) and the other a cross pair (a matching cost).
+    ``roles``: the larger difference ``big`` is a same-grid pair and the
+    smaller ``doubled`` one a cross pair. A same-grid pair stands for a point
+    sent to the diagonal, whose cost is |c_big| / 2; a cross pair for two
+    matched points, whose cost is |c_doubled|. The two costs tie exactly when
+    |c_big| = 2 |c_doubled| (math.md section 5, role-aware refinement).
     """
     big = np.asarray(big)
     doubled = np.asarray(doubled)
     ok = big != doubled
     if table.mode == "roles":
-        ok &= table.cross[big] & ~table.cross[doubled]
+        ok &= ~table.cross[big] & table.cross[doubled]
     return ok
 
 
