@@ -122,7 +122,7 @@ def special_set(grid_f: Grid, grid_g: Grid, window: Window, *, pairs: str = "all
         if not poly.is_empty:
             pieces.append(TiePiece(table.tie(code), "patch", poly))
     t = time.perf_counter()
-    comps = components(tuple(pieces), window)
+    comps = components(tuple(pieces), window, lat)
     timings["components_s"] = time.perf_counter() - t
     if progress is not None:
         progress(total, total)
