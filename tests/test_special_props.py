@@ -179,3 +179,20 @@ def test_roles_keeps_only_diagonal_vs_matching_half_ties():
     assert dropped.to_json()["total_area"] == 0
     everything = special_set(vgrid("f", [0, 1]), vgrid("g", [2]), w, resolution=21, pairs="all")
     assert everything.to_json()["area_fraction"] > 0.99
+
+
+@pytest.mark.parametrize("seed", [3, 4, 5])
+def test_lattice_components_match_generic_components(seed):
+    """Components linked through the lattice (chord interleaving) equal the generic segment test."""
+    from specmap.special.atlas import components
+
+    f, g = random_pair(seed, 10)
+    w = default_window(f.bbox(), g.bbox())
+    at = special_set(f, g, w, resolution=RES + 6)
+    generic = components(at.pieces, w)
+
+    def key(cs):
+        return sorted((tuple((t.condition, t.pairs) for t in c.ties), round(c.length, 9), round(c.area, 9))
+                      for c in cs)
+
+    assert key(at.components) == key(generic)
