@@ -347,10 +347,13 @@ def _lattice_links(lines: list, eps: float, lattice) -> tuple[np.ndarray, np.nda
     n_lines = len(lines)
     av, bv = lattice.av, lattice.bv
     na1, nb1 = av.size - 1, bv.size - 1
-    # links by shared vertices
+    # links by shared vertices (ids of rounded vertices by one lexsort)
     key = np.round(np.vstack([p, q]) / eps).astype(np.int64)
-    _, vid = np.unique(key, axis=0, return_inverse=True)
-    vid = vid.ravel()
+    order = np.lexsort((key[:, 1], key[:, 0]))
+    ks = key[order]
+    new_v = np.concatenate([[True], np.any(ks[1:] != ks[:-1], axis=1)])
+    vid = np.empty(key.shape[0], dtype=np.int64)
+    vid[order] = np.cumsum(new_v) - 1
     la = [np.concatenate([owner, owner])]
     lb = [n_lines + vid]
     # the cell of every segment (by its midpoint) and perimeter positions of its ends
