@@ -84,6 +84,8 @@ def main() -> None:
         lines.append(f"| {n} | {last:.1f} | {st['detect_s']:.1f} | {st['trace_s']:.1f} | {st['components_s']:.1f} | "
                      f"{st['crossings']} | {st['tie_curves']} | {st['ties_with_curves']} | {len(at.components)} |")
         print(lines[-1], flush=True)
+    lines += ["", f"budget: SPECMAP_BENCH_BUDGET={BUDGET_S:.0f} s; a size is skipped when the previous one took "
+              f"more than budget / 16 (the next size costs ~16x: output ~N^4)."]
     (HERE / "results_special.md").write_text("\n".join(lines) + "\n")
 
 
