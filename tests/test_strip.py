@@ -43,7 +43,7 @@ def test_horizontal_half_line_closed_form(a: float, b: float, y0: float) -> None
 
 
 @settings(max_examples=200)
-@given(A, B, st.lists(st.tuples(st.floats(0, 1), st.floats(0, 1)), min_size=2, max_size=8))
+@given(A, B, st.lists(st.tuples(st.floats(0, 1), st.floats(0, 1)), min_size=2, max_size=40))
 def test_polyline_meeting_point_is_on_both(a: float, b: float, steps) -> None:
     # A non-increasing polyline meets a line of positive slope at most once (math.md 4).
     d = np.array(steps)

@@ -29,7 +29,6 @@ from specmap.special.pairs import Tie
 from specmap.strip import line_parameter, push_scale
 
 #: proper contours with at least this many vertices are evaluated by binary search
-BISECT_MIN_POINTS = 9
 
 
 def extended_parameter(contour: Contour, a, b) -> tuple[np.ndarray, np.ndarray]:
@@ -56,10 +55,7 @@ def extended_parameter(contour: Contour, a, b) -> tuple[np.ndarray, np.ndarray]:
     (0.0, False)
     """
     a, b = np.broadcast_arrays(np.asarray(a, float), np.asarray(b, float))
-    if contour.kind == "proper" and len(contour.points) >= BISECT_MIN_POINTS:
-        s = polyline_parameter(contour.points, a, b)
-    else:
-        s = line_parameter(contour, a, b)
+    s = line_parameter(contour, a, b)
     met = ~np.isnan(s)
     if met.all():
         return s, met
@@ -74,62 +70,6 @@ def extended_parameter(contour: Contour, a, b) -> tuple[np.ndarray, np.ndarray]:
             ext = np.where(_g(pts[0], a, b) > 0, _through(pts[0], pts[1] if len(pts) > 1 else None, a, b),
                            _through(pts[-1], pts[-2] if len(pts) > 1 else None, a, b))
     return np.where(met, s, ext), met
-
-
-def polyline_parameter(pts: np.ndarray, a: np.ndarray, b: np.ndarray) -> np.ndarray:
-    """Line parameter on a non-increasing polyline by binary search, NaN where missed.
-
-    Same result as :func:`specmap.strip.line_parameter` (same formulas), in
-    O(Q log n) instead of O(Q n) for Q lines and n vertices: along the polyline
-    G(x, y) = (1-a)(x-b) - a(y+b) is non-decreasing (also in floating point, as
-    each term is rounded monotonically), so the crossing segment is found by
-    bisection on the vertex index.
-
-    Parameters
-    ----------
-    pts : ndarray (n, 2), n >= 2
-    a, b : ndarray
-        Broadcast line parameters.
-
-    Returns
-    -------
-    ndarray of the broadcast shape.
-    """
-    a, b = np.broadcast_arrays(np.asarray(a, float), np.asarray(b, float))
-    shape = a.shape
-    a1 = a.reshape(-1)
-    b1 = b.reshape(-1)
-    n = len(pts)
-    xs = pts[:, 0]
-    ys = pts[:, 1]
-
-    def g_at(k: np.ndarray) -> np.ndarray:
-        return (1.0 - a1) * (xs[k] - b1) - a1 * (ys[k] + b1)
-
-    # count = number of vertices with G <= 0 = first index with G > 0
-    lo = np.zeros(a1.shape, dtype=np.int64)
-    hi = np.full(a1.shape, n, dtype=np.int64)
-    for _ in range(int(np.ceil(np.log2(n + 1))) + 1):
-        active = lo < hi
-        if not active.any():
-            break
-        mid = np.minimum((lo + hi) // 2, n - 1)
-        gt = g_at(mid) > 0.0
-        hi = np.where(active & gt, mid, hi)
-        lo = np.where(active & ~gt, mid + 1, lo)
-    count = lo
-    with np.errstate(invalid="ignore", divide="ignore"):
-        met = (count >= 1) & (g_at(np.full(a1.shape, n - 1)) >= 0.0)
-        k = np.clip(count - 1, 0, n - 2)
-        g0 = g_at(k)
-        g1 = g_at(k + 1)
-        denom = g1 - g0
-        t = np.where(denom > 0, -g0 / np.where(denom > 0, denom, 1.0), 0.0)
-        t = np.clip(t, 0.0, 1.0)
-        px = xs[k] + t * (xs[k + 1] - xs[k])
-        py = ys[k] + t * (ys[k + 1] - ys[k])
-        s = (a1 * (px - b1) + (1.0 - a1) * (py + b1)) / (a1 * a1 + (1.0 - a1) ** 2)
-    return np.where(met, s, np.nan).reshape(shape)
 
 
 def _g(p, a, b):
