@@ -388,8 +388,7 @@ def test_kill_minus_nine_then_resume_gives_each_run_once(tmp_path):
     recs = [json.loads(line) for line in lines]
     assert sorted(r["run"] for r in recs) == list(range(runs))
     assert len(lines) == runs
-    if killed:
-        assert have < runs
+    assert killed and 3 <= have < runs  # the kill really happened mid-way
     # the resumed records equal an uninterrupted run (same seeds)
     clean = tmp_path / "clean"
     subprocess.run([sys.executable, str(script), str(clean), str(runs), str(RESOLUTION), "1"], check=True,
@@ -458,7 +457,9 @@ def _distance_available() -> bool:
                            "enable by landing the distance module")
 def test_stability_bound_holds_on_every_run(tmp_path):
     # [CDFFL13] (math.md section 3): |D(f', g') - D(f, g)| <= ||f - f'||_inf + ||g - g'||_inf,
-    # degree by degree; the perturbation model makes each sup norm equal to size.
+    # degree by degree; the perturbation model makes each sup norm equal to size. The dense
+    # method samples the same lines before and after, where per-line stability (math.md 1)
+    # makes the bound hold exactly on the samples.
     from specmap.expr import compile_map
     from specmap.grids import pareto_grid
     from specmap.perturb import make_base, run_study
@@ -472,7 +473,7 @@ def test_stability_bound_holds_on_every_run(tmp_path):
     grids = (pareto_grid(f), pareto_grid(g))
     window = default_window(f.value_bounds(), g.value_bounds())
     settings = PerturbSettings(model="function", size=0.05, runs=3, seed=4, resolution=31, distance=True,
-                               degrees=(0, 1))
+                               degrees=(0, 1), distance_method="dense", dense_resolution=9)
     base = make_base(grids, window, shapes=(f, g), settings=settings)
     summary = run_study(base, settings, tmp_path / "perturb")
     recs = read_jsonl_list(tmp_path / "perturb" / "runs.jsonl")
@@ -481,4 +482,22 @@ def test_stability_bound_holds_on_every_run(tmp_path):
         assert r["applied"] == pytest.approx([0.05, 0.05])
         assert r["stability_ok"] is True
         assert abs(r["distance"]["change"]) <= 0.1 + r["distance"]["slack"]
+        assert r["distance"]["certified_degrees"] == ["0", "1"]
     assert summary["stability_violations"] == 0
+    assert summary["distance"]["runs"] == 3
+
+
+def test_stability_check_flags_violations():
+    # [CDFFL13]: a change larger than the bound (plus tolerances) must be flagged; uncertified
+    # degrees (lower bounds only) are not judged.
+    from specmap.perturb.runs import stability_check
+
+    before = {"value": 1.0, "by_degree": {"0": 1.0, "1": 0.2}, "certified": ["0", "1"], "tolerance": 0.0}
+    ok_after = {"value": 1.05, "by_degree": {"0": 1.05, "1": 0.25}, "certified": ["0", "1"], "tolerance": 0.0}
+    bad_after = {"value": 1.3, "by_degree": {"0": 1.3, "1": 0.2}, "certified": ["0", "1"], "tolerance": 0.0}
+    deg_after = {"value": 1.0, "by_degree": {"0": 1.0, "1": 0.9}, "certified": ["0"], "tolerance": 0.0}
+    assert stability_check(before, ok_after, 0.1)[1] is True
+    digest, ok = stability_check(before, bad_after, 0.1)
+    assert ok is False and digest["change"] == pytest.approx(0.3)
+    assert stability_check(before, deg_after, 0.1)[1] is True
+    assert stability_check(before, {**deg_after, "certified": ["0", "1"]}, 0.1)[1] is False
