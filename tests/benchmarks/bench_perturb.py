@@ -71,6 +71,7 @@ def main(argv: list[str] | None = None) -> int:
     else:
         grids, window, shapes, settings = grid_workload(args.resolution)
     settings = PerturbSettings(**{**settings.to_json(), "runs": args.runs, "degrees": settings.degrees})
+    load_before = os.getloadavg()[0]
     t0 = time.perf_counter()
     base = make_base(grids, window, shapes=shapes, settings=settings)
     t_base = time.perf_counter() - t0
@@ -93,6 +94,8 @@ def main(argv: list[str] | None = None) -> int:
         f"Machine: {platform.processor() or platform.machine()}, {os.cpu_count()} CPUs, Python "
         f"{sys.version.split()[0]}. Base special set computed once ({t_base:.2f} s, "
         f"{base.counts}). Records identical for 1 and 2 jobs: {same}.",
+        f"Load average (1 min) before / after: {load_before:.2f} / {os.getloadavg()[0]:.2f} "
+        "(above ~0.5 other work shared the CPUs and the speed-up is understated).",
         "",
         "| jobs | runs | wall time (s) | runs per minute | speed-up |",
         "|---:|---:|---:|---:|---:|",
