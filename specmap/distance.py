@@ -834,8 +834,17 @@ def _component_of(piece, point: tuple[float, float], components: Sequence) -> st
     return str(min(pool, key=lambda c: c.geometry.distance(p)).id)
 
 
+def _top_local_maxima(values: np.ndarray, k: int) -> list[int]:
+    """Indices of the ``k`` largest local maxima of a sampled profile (ends included)."""
+    v = np.asarray(values, dtype=float)
+    left = np.r_[-np.inf, v[:-1]]
+    right = np.r_[v[1:], -np.inf]
+    idx = np.nonzero((v >= left) & (v >= right) & np.isfinite(v))[0]
+    return [int(i) for i in idx[np.argsort(-v[idx], kind="stable")][: max(1, k)]]
+
+
 def reduced_search(ev: LineEvaluator, window: Window, atlas, contours_by_id: dict, *, tolerance: float,
-                   upper: float, slope_samples: int = 25, spacing: float = 1 / 200, roles: bool = True,
+                   upper: float, slope_samples: int = 41, slope_refine: int = 3, spacing: float = 1 / 200, roles: bool = True,
                    certify: str = "max", polish: bool = True, batch: int | None = None,
                    local_bound: bool = True, polish_iters: int = 6) -> dict[str, Any]:
     """D_k = max(max_b h_k(1/2, b), sup of h_k over the special set) [EFQT23, FMQT].
@@ -910,8 +919,10 @@ def reduced_search(ev: LineEvaluator, window: Window, atlas, contours_by_id: dic
             slope[j].offer(H[j, i], (0.5, bs[i]), "slope-one")
         order = sorted(range(nd), key=lambda j: -slope[j].value)
         for j in order if certify == "each" else order[:1]:
-            i = int(np.argmin(np.abs(bs - slope[j].at[1])))
-            if math.isfinite(slope[j].value):
+            if not math.isfinite(slope[j].value):
+                continue
+            # h is rough at mesh scale: refine the best few sampled local maxima, not only the top one
+            for i in _top_local_maxima(np.where(np.isnan(H[j]), -np.inf, H[j]), slope_refine):
                 lo, hi = max(b_lo, bs[i] - db), min(b_hi, bs[i] + db)
                 it = _golden_iters(hi - lo, tolerance / 2)
                 ev.plan(it + 2)
@@ -1135,7 +1146,7 @@ def _grids_pair(grids) -> tuple | None:
 def matching_distance(shape_f, shape_g, *, method: str = "both", degrees: Iterable[int] = DEGREES,
                       window: Window | None = None, atlas=None, grids=None, jobs: int = 1,
                       dense_resolution: int = 41, progress: Progress | None = None,
-                      tolerance: float | None = None, slope_samples: int = 25,
+                      tolerance: float | None = None, slope_samples: int = 41,
                       spacing: float = 1 / 200, roles: bool = True, certify: str = "max",
                       position_lines: int = 20) -> DistanceResult:
     """Matching distance D_k(f, g) of two meshed maps, dense, reduced or both.
