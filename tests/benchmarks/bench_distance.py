@@ -1,7 +1,9 @@
 """Benchmark: reduced search vs dense sweep for the matching distance.
 
-Run ``python tests/benchmarks/bench_distance.py [vertices] [jobs]``. Builds a demo-like pair (two
-non-linear maps on one ellipsoid mesh), its PL extended Pareto grids and special-set atlas, then
+Run ``python tests/benchmarks/bench_distance.py [vertices] [jobs]`` for a rough pair (two
+non-linear maps on one ellipsoid mesh, PL grids), or
+``python tests/benchmarks/bench_distance.py studies/demo.toml [jobs]`` for the demo study's pair
+(its own grids, window and mesh). Builds the extended Pareto grids and special-set atlas, then
 runs the dense sweep and the reduced search separately (no shared lines) and writes a markdown
 table to ``tests/benchmarks/results_distance.md``.
 
@@ -40,13 +42,35 @@ def demo_pair(n: int) -> tuple[Shape, Shape]:
     return Shape("f", "mesh", V, T, f), Shape("g", "mesh", V, T, g)
 
 
-def main(n: int = 1500, jobs: int = 1) -> str:
-    sf, sg = demo_pair(n)
+def study_pair(path: str):
+    """Shapes, grids (timed) and window of a study file."""
+    from specmap.pipeline import StudyRun
+    from specmap.study import load_study
+
+    study = load_study(path)
+    run = StudyRun(study, show_progress=False)
+    sf, sg = run.shapes
     t = time.perf_counter()
-    gf = piecewise_grid(sf.vertices, sf.triangles, sf.values, label="f")
-    gg = piecewise_grid(sg.vertices, sg.triangles, sg.values, label="g")
+    gf, gg = run.grids
     t_grid = time.perf_counter() - t
-    w = default_window(sf.value_bounds(), sg.value_bounds())
+    desc = f"study {study.name}: f = {study.f.describe()}; g = {study.g.describe()}"
+    return sf, sg, gf, gg, run.window, t_grid, desc
+
+
+def main(n: int | str = 1500, jobs: int = 1) -> str:
+    if isinstance(n, str):
+        sf, sg, gf, gg, w, t_grid, desc = study_pair(n)
+        out = OUT.with_name("results_distance_" + Path(n).stem + ".md")
+    else:
+        sf, sg = demo_pair(n)
+        t = time.perf_counter()
+        gf = piecewise_grid(sf.vertices, sf.triangles, sf.values, label="f")
+        gg = piecewise_grid(sg.vertices, sg.triangles, sg.values, label="g")
+        t_grid = time.perf_counter() - t
+        w = default_window(sf.value_bounds(), sg.value_bounds())
+        out = OUT
+        desc = (f"ellipsoid (1.6, 1, 0.8), {len(sf.values)} vertices; f = (x + 0.35 z^2, y + 0.25 x z), "
+                "g = (x + 0.3 sin 1.5z + 0.1 y, y - 0.2 z^2 + 0.1 x)")
     t = time.perf_counter()
     atlas = special_set(gf, gg, w)
     t_atlas = time.perf_counter() - t
@@ -72,8 +96,7 @@ def main(n: int = 1500, jobs: int = 1) -> str:
     lines = [
         "# Matching distance: reduced search vs dense sweep",
         "",
-        f"Pair: ellipsoid (1.6, 1, 0.8), {len(sf.values)} vertices; f = (x + 0.35 z^2, y + 0.25 x z), "
-        f"g = (x + 0.3 sin 1.5z + 0.1 y, y - 0.2 z^2 + 0.1 x); degrees 0, 1, 2; jobs = {jobs}.",
+        f"Pair: {desc}; {len(sf.values)} vertices; degrees 0, 1, 2; jobs = {jobs}.",
         f"Grids: {len(gf.contours)} + {len(gg.contours)} contours ({t_grid:.1f} s); atlas: "
         f"{len(atlas.pieces)} tie pieces, {len(atlas.components)} components ({t_atlas:.1f} s, not in the "
         f"reduced time below). Value range {rng:.4g}; tolerance {red.tolerance:.3g}.",
@@ -102,13 +125,13 @@ def main(n: int = 1500, jobs: int = 1) -> str:
         "",
     ]
     text = "\n".join(lines)
-    old = OUT.read_text() if OUT.exists() else ""
+    old = out.read_text() if out.exists() else ""
     if MARK in old:  # keep the hand-written analysis of the figures
         text += "\n" + old[old.index(MARK):]
-    OUT.write_text(text)
+    out.write_text(text)
     return text
 
 
 if __name__ == "__main__":
-    args = [int(x) for x in sys.argv[1:]]
+    args = [x if x.endswith(".toml") else int(x) for x in sys.argv[1:]]
     print(main(*args))
