@@ -156,6 +156,13 @@ def atlas_from_json(d: dict[str, Any]) -> AtlasSummary:
                         dict(d["counts"]), dict(d.get("stats", {})))
 
 
+def _segments(lines: list) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Segments (start, end, owning line index) of a list of LineStrings."""
+    coords, idx = shapely.get_coordinates(np.array(lines, dtype=object), return_index=True)
+    same = idx[1:] == idx[:-1]
+    return coords[:-1][same], coords[1:][same], idx[:-1][same].astype(np.int64)
+
+
 def _dedupe_lines(lines: list, scale: float) -> list:
     seen = set()
     out = []
@@ -181,11 +188,7 @@ def _segment_links(lines: list, eps: float) -> tuple[np.ndarray, np.ndarray]:
     if not lines:
         z = np.zeros(0, np.int64)
         return z, z
-    coords, idx = shapely.get_coordinates(np.array(lines, dtype=object), return_index=True)
-    same = idx[1:] == idx[:-1]
-    p = coords[:-1][same]
-    q = coords[1:][same]
-    owner = idx[:-1][same]
+    p, q, owner = _segments(lines)
     lo = np.minimum(p, q) - eps
     hi = np.maximum(p, q) + eps
     ext = np.max(hi - lo, axis=1)
@@ -339,11 +342,7 @@ def _lattice_links(lines: list, eps: float, lattice) -> tuple[np.ndarray, np.nda
     if not lines:
         z = np.zeros(0, np.int64)
         return z, z
-    coords, idx = shapely.get_coordinates(np.array(lines, dtype=object), return_index=True)
-    same = idx[1:] == idx[:-1]
-    p = coords[:-1][same]
-    q = coords[1:][same]
-    owner = idx[:-1][same].astype(np.int64)
+    p, q, owner = _segments(lines)
     n_lines = len(lines)
     av, bv = lattice.av, lattice.bv
     na1, nb1 = av.size - 1, bv.size - 1
