@@ -253,8 +253,14 @@ def _draw_special(ax: Any, feats: list[dict[str, Any]], *, thin: bool = False,
                     patch_rest += 1
                     patch_area_rest += rec["area"] if math.isfinite(rec["area"]) else 0.0
             patch_no += 1
-            continue
+            if thin:
+                continue
+        # tie curves are drawn for patch components too (thinner): they cross the patch and
+        # carry the changes of the cost formula there (math.md section 5, reduced search)
+        line_w = lw * 0.45 if rec["kind"] == "patch" else lw
         for i, g in enumerate(leaves):
+            if g.geom_type == "Polygon":
+                continue
             cond = str(pc[i]) if per_part else rec["condition"]
             st = CONDITION_STYLE.get(cond, CONDITION_STYLE["unknown"])
             col = mono or st["color"]
@@ -266,7 +272,7 @@ def _draw_special(ax: Any, feats: list[dict[str, Any]], *, thin: bool = False,
                                                    label="isolated special point"))
             elif g.geom_type in ("LineString", "LinearRing"):
                 xy = np.asarray(g.coords)[:, :2]
-                ax.plot(xy[:, 0], xy[:, 1], color=col, ls=ls, lw=lw, zorder=3)
+                ax.plot(xy[:, 0], xy[:, 1], color=col, ls=ls, lw=line_w, zorder=3)
                 if not mono:
                     handles.setdefault(cond, Line2D([], [], color=col, ls=st["linestyle"], lw=lw,
                                                     label=st["label"]))
