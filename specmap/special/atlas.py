@@ -406,7 +406,13 @@ def _lattice_links(lines: list, eps: float, lattice) -> tuple[np.ndarray, np.nda
         src = np.repeat(eseg, m)
         rr = np.arange(int(m.sum())) - np.repeat(np.cumsum(m) - m, m)
         dst = all_seg[np.repeat(first, m) + rr]
+        # boxes (grown by 2 eps, a superset of the eps test) must overlap
+        blo = np.minimum(p, q)
+        bhi = np.maximum(p, q)
         keep = (owner[src] != owner[dst])
+        src, dst = src[keep], dst[keep]
+        keep = ((blo[src, 0] <= bhi[dst, 0] + 2 * eps) & (blo[dst, 0] <= bhi[src, 0] + 2 * eps)
+                & (blo[src, 1] <= bhi[dst, 1] + 2 * eps) & (blo[dst, 1] <= bhi[src, 1] + 2 * eps))
         src, dst = src[keep], dst[keep]
         for s0 in range(0, src.size, 2_000_000):
             su, sv = src[s0:s0 + 2_000_000], dst[s0:s0 + 2_000_000]

@@ -123,15 +123,15 @@ class SlotEvaluator:
         uniq, starts = np.unique(flat[order], return_index=True)
         bounds = np.append(starts, flat.size)
         self.groups = [(int(c), order[bounds[i]:bounds[i + 1]]) for i, c in enumerate(uniq)]
+        m = max(self.slots.shape[1], 1)
+        self.rows = [idx // m for _, idx in self.groups]
 
     def __call__(self, a: np.ndarray, b: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """(s_ext, met) of shape (K, m) at points (a[k], b[k])."""
         k, m = self.slots.shape
         s = np.empty(k * m)
         met = np.empty(k * m, dtype=bool)
-        row = np.repeat(np.arange(k), m)
-        for c, idx in self.groups:
-            r = row[idx]
+        for (c, idx), r in zip(self.groups, self.rows, strict=True):
             s[idx], met[idx] = extended_parameter(self.contours[c], a[r], b[r])
         return s.reshape(k, m), met.reshape(k, m)
 

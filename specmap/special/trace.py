@@ -38,9 +38,10 @@ class TracedTie:
 
 
 def _residual(table: PairTable, codes: np.ndarray, a: np.ndarray, b: np.ndarray,
-              ev: SlotEvaluator | None = None):
-    slots, factor = table.tie_contours(codes)
-    ev = ev or SlotEvaluator(table.contours, slots)
+              ev: SlotEvaluator | None = None, factor: np.ndarray | None = None):
+    if ev is None or factor is None:
+        slots, factor = table.tie_contours(codes)
+        ev = ev or SlotEvaluator(table.contours, slots)
     s, met = ev(a, b)
     r, val = residual_from_slots(s, factor, a)
     return r, val, met.all(axis=1)
@@ -57,7 +58,7 @@ def refine(table: PairTable, samples: Samples, codes: np.ndarray, edges: np.ndar
         return np.zeros((0, 2))
     slots, factor = table.tie_contours(codes)
     ev = SlotEvaluator(table.contours, slots)
-    r0, _, _ = _residual(table, codes, a0, b0, ev)
+    r0, _, _ = _residual(table, codes, a0, b0, ev, factor)
     side0 = r0 >= -snap
     h = max(float(np.max(np.hypot(a1 - a0, b1 - b0))), 1e-300)
     diam = float(np.hypot(lat.av[-1] - lat.av[0], lat.bv[-1] - lat.bv[0]))
@@ -66,7 +67,7 @@ def refine(table: PairTable, samples: Samples, codes: np.ndarray, edges: np.ndar
     for _ in range(max(n_iter, 1)):
         ma = 0.5 * (lo_a + hi_a)
         mb = 0.5 * (lo_b + hi_b)
-        rm, _, _ = _residual(table, codes, ma, mb, ev)
+        rm, _, _ = _residual(table, codes, ma, mb, ev, factor)
         same = (rm >= -snap) == side0
         lo_a = np.where(same, ma, lo_a)
         lo_b = np.where(same, mb, lo_b)
@@ -126,17 +127,20 @@ def segments(table: PairTable, samples: Samples, codes: np.ndarray, edges: np.nd
 
 def chain(n: int, segs: np.ndarray) -> list[tuple[list[int], bool]]:
     """Chain segments (vertex degree <= 2) into vertex lists; flag closed loops."""
+    # neighbours in half-edge order (u->v, v->u per segment), first two kept
+    segs = np.asarray(segs, dtype=np.int64).reshape(-1, 2)
+    segs = segs[segs[:, 0] != segs[:, 1]]
+    hx = segs.ravel()
+    hy = segs[:, ::-1].ravel()
+    order = np.argsort(hx, kind="stable")
+    hx, hy = hx[order], hy[order]
+    deg = np.bincount(hx, minlength=n)
+    rank = np.arange(hx.size) - np.repeat(np.cumsum(deg) - deg, deg)
     nbr = np.full((n, 2), -1, dtype=np.int64)
-    deg = np.zeros(n, dtype=np.int64)
-    for u, v in segs.tolist():
-        if u == v:
-            continue
-        for x, y in ((u, v), (v, u)):
-            if deg[x] < 2:
-                nbr[x, deg[x]] = y
-            deg[x] += 1
+    first2 = rank < 2
+    nbr[hx[first2], rank[first2]] = hy[first2]
     nbr_l = nbr.tolist()
-    seen = np.zeros(n, dtype=bool)
+    seen = [False] * n
     out: list[tuple[list[int], bool]] = []
 
     def walk(start: int) -> tuple[list[int], bool]:
@@ -175,19 +179,20 @@ def _boundary_points(table, codes, pin, pout, diam, snap, cell_diag):
     hi = pout.copy()
     for _ in range(50):
         mid = 0.5 * (lo + hi)
-        _, _, ok = _residual(table, codes, mid[:, 0], mid[:, 1], ev)
+        _, _, ok = _residual(table, codes, mid[:, 0], mid[:, 1], ev, factor)
         lo = np.where(ok[:, None], mid, lo)
         hi = np.where(ok[:, None], hi, mid)
     # which contour is lost, and through which end: the boundary is the pencil through that end
     _, met_out = ev(hi[:, 0], hi[:, 1])
     lost = np.argmax(~met_out, axis=1)
-    ends = np.empty((codes.size, 2))
-    for k in range(codes.size):
-        c = table.contours[int(slots[k, lost[k]])]
-        a, b = hi[k]
-        x0, y0 = c.points[0]
-        g0 = (1 - a) * (x0 - b) - a * (y0 + b)
-        ends[k] = c.points[-1] if (c.kind == "proper" and g0 <= 0) else c.points[0]
+    first = np.array([c.points[0] for c in table.contours], dtype=float)
+    last = np.array([c.points[-1] for c in table.contours], dtype=float)
+    proper = np.array([c.kind == "proper" for c in table.contours])
+    cid = slots[np.arange(codes.size), lost]
+    a, b = hi[:, 0], hi[:, 1]
+    x0, y0 = first[cid, 0], first[cid, 1]
+    g0 = (1 - a) * (x0 - b) - a * (y0 + b)
+    ends = np.where((proper[cid] & (g0 <= 0))[:, None], last[cid], first[cid])
     d = np.stack([np.ones(codes.size), -(ends[:, 0] + ends[:, 1])], axis=1)
     d /= np.hypot(d[:, 0], d[:, 1])[:, None]
     t = np.linspace(-cell_diag, cell_diag, 9)
@@ -207,7 +212,7 @@ def _boundary_points(table, codes, pin, pout, diam, snap, cell_diag):
     sp = sg[rows, i]
     for _ in range(60):
         m = 0.5 * (p + q)
-        rm, _, _ = _residual(table, codes, m[:, 0], m[:, 1], ev)
+        rm, _, _ = _residual(table, codes, m[:, 0], m[:, 1], ev, factor)
         same = (rm >= -snap) == sp
         p = np.where(same[:, None], m, p)
         q = np.where(same[:, None], q, m)
