@@ -19,6 +19,7 @@ References
 
 from __future__ import annotations
 
+import itertools
 from dataclasses import dataclass
 
 import numpy as np
@@ -247,63 +248,73 @@ def trace(table: PairTable, samples: Samples, codes: np.ndarray, edges: np.ndarr
     paths = chain(codes.size, segs)
     _, val, inside = _residual(table, codes, points[:, 0], points[:, 1])
     inside &= val > tol
-    # cut each path into runs of vertices inside the domain
-    runs: list[tuple[int, list[int], int, int]] = []  # (code, vertices, out-before, out-after)
-    for path, closed in paths:
-        ins = inside[path]
-        if ins.all():
-            vs = path + [path[0]] if closed else path
-            runs.append((int(codes[path[0]]), vs, -1, -1))
-            continue
-        if closed:
-            k = int(np.argmin(ins))
-            path = path[k:] + path[:k + 1]
-            ins = inside[path]
-        i = 0
-        while i < len(path):
-            if not ins[i]:
-                i += 1
-                continue
-            j = i
-            while j + 1 < len(path) and ins[j + 1]:
-                j += 1
-            before = path[i - 1] if i > 0 else -1
-            after = path[j + 1] if j + 1 < len(path) else -1
-            runs.append((int(codes[path[i]]), path[i:j + 1], before, after))
-            i = j + 1
-    # boundary end points, batched
-    ends_in, ends_out, ends_code, ends_ref = [], [], [], []
-    for r, (code, vs, before, after) in enumerate(runs):
-        if before >= 0:
-            ends_in.append(vs[0])
-            ends_out.append(before)
-            ends_code.append(code)
-            ends_ref.append((r, 0))
-        if after >= 0:
-            ends_in.append(vs[-1])
-            ends_out.append(after)
-            ends_code.append(code)
-            ends_ref.append((r, 1))
-    bpts = {}
-    if ends_in:
-        bp = _boundary_points(table, np.array(ends_code, np.int64), points[ends_in], points[ends_out],
+    # cut each path into runs of vertices inside the domain (all paths at once)
+    plen = np.fromiter((len(pt) for pt, _ in paths), dtype=np.int64, count=len(paths))
+    pclosed = np.fromiter((c for _, c in paths), dtype=bool, count=len(paths))
+    flat = np.fromiter(itertools.chain.from_iterable(pt for pt, _ in paths), dtype=np.int64,
+                       count=int(plen.sum()))
+    pstart = np.cumsum(plen) - plen
+    ins = inside[flat]
+    n_out = np.bincount(np.repeat(np.arange(plen.size), plen), weights=~ins, minlength=plen.size)
+    # a closed path is rotated to start at its first vertex outside (if any) and closed again
+    first_out = np.zeros(plen.size, dtype=np.int64)
+    out_pos = np.nonzero(~ins)[0]
+    if out_pos.size:
+        out_pid = np.searchsorted(pstart, out_pos, side="right") - 1
+        u, fi = np.unique(out_pid, return_index=True)
+        first_out[u] = out_pos[fi] - pstart[u]
+    rot = np.where(pclosed & (n_out > 0), first_out, 0)
+    nlen = plen + pclosed
+    npid = np.repeat(np.arange(plen.size), nlen)
+    j = np.arange(int(nlen.sum())) - np.repeat(np.cumsum(nlen) - nlen, nlen)
+    seq = flat[pstart[npid] + (rot[npid] + j) % plen[npid]]
+    sin = inside[seq]
+    head = j == 0
+    tail = j == nlen[npid] - 1
+    prev_in = np.concatenate([[False], sin[:-1]]) & ~head
+    next_in = np.concatenate([sin[1:], [False]]) & ~tail
+    rs = np.nonzero(sin & ~prev_in)[0]
+    re_ = np.nonzero(sin & ~next_in)[0]
+    before = np.where(head[rs], -1, seq[np.maximum(rs - 1, 0)])
+    after = np.where(tail[re_], -1, seq[np.minimum(re_ + 1, seq.size - 1)])
+    rcode = codes[seq[rs]]
+    n_runs = rs.size
+    # boundary end points, batched (per run: the end before, then the end after)
+    e_run = np.stack([np.arange(n_runs), np.arange(n_runs)], axis=1).ravel()
+    e_side = np.tile([0, 1], n_runs)
+    e_in = np.stack([seq[rs], seq[re_]], axis=1).ravel()
+    e_out = np.stack([before, after], axis=1).ravel()
+    has = e_out >= 0
+    e_run, e_side, e_in, e_out = e_run[has], e_side[has], e_in[has], e_out[has]
+    bp = np.zeros((0, 2))
+    if e_in.size:
+        bp = _boundary_points(table, codes[seq[rs]][e_run], points[e_in], points[e_out],
                               diam, snap, cell_diag)
-        bpts = {ref: bp[k] for k, ref in enumerate(ends_ref)}
+    # every line: [boundary point before] + run vertices + [boundary point after]
+    nvert = re_ - rs + 1 + (before >= 0) + (after >= 0)
+    lstart = np.cumsum(nvert) - nvert
+    coords = np.empty((int(nvert.sum()), 2))
+    lid = np.repeat(np.arange(n_runs), re_ - rs + 1)
+    k = np.arange(lid.size) - np.repeat(np.cumsum(re_ - rs + 1) - (re_ - rs + 1), re_ - rs + 1)
+    coords[lstart[lid] + (before[lid] >= 0) + k] = points[seq[rs[lid] + k]]
+    coords[np.where(e_side == 0, lstart[e_run], lstart[e_run] + nvert[e_run] - 1)] = bp
+    if n_runs:
+        ext = np.maximum(np.maximum.reduceat(coords, lstart, axis=0) - np.minimum.reduceat(coords, lstart, axis=0),
+                         0.0).max(axis=1)
+    else:
+        ext = np.zeros(0)
+    is_pt = (nvert <= 1) | (ext <= 1e-12 * diam)
+    keep = np.ones(coords.shape[0], dtype=bool)
+    keep[1:] = np.any(np.abs(np.diff(coords, axis=0)) > 1e-15 * diam, axis=1)
+    keep[lstart] = True
+    rcode_l = rcode.tolist()
+    pieces = np.split(coords, lstart[1:]) if n_runs else []
+    keeps = np.split(keep, lstart[1:]) if n_runs else []
     by_code: dict[int, tuple[list, list]] = {}
-    for r, (code, vs, _b, _a) in enumerate(runs):
-        coords = points[vs]
-        parts = [coords]
-        if (r, 0) in bpts:
-            parts.insert(0, bpts[(r, 0)][None, :])
-        if (r, 1) in bpts:
-            parts.append(bpts[(r, 1)][None, :])
-        line = np.concatenate(parts)
-        lines, pts = by_code.setdefault(code, ([], []))
-        extent = np.ptp(line, axis=0).max() if len(line) > 1 else 0.0
-        if extent <= 1e-12 * diam:
-            pts.append(line[0])
+    for r in range(n_runs):
+        lines, pts = by_code.setdefault(rcode_l[r], ([], []))
+        if is_pt[r]:
+            pts.append(pieces[r][0])
         else:
-            keep = np.ones(len(line), dtype=bool)
-            keep[1:] = np.any(np.abs(np.diff(line, axis=0)) > 1e-15 * diam, axis=1)
-            lines.append(line[keep])
+            lines.append(pieces[r][keeps[r]])
     return [TracedTie(c, tuple(ls), tuple(ps)) for c, (ls, ps) in sorted(by_code.items())]
