@@ -41,7 +41,7 @@ import numpy as np
 
 from specmap.errors import StudyError
 from specmap.slices import DEGREES, SliceEngine, bottleneck
-from specmap.strip import Window, default_window, line_parameter, line_parameters, push_scale
+from specmap.strip import Window, default_window, line_parameter, push_scale
 
 Progress = Callable[[int, int], None]
 METHODS = ("both", "dense", "reduced")
@@ -588,34 +588,46 @@ def _denormalise(pts: np.ndarray, window: Window) -> np.ndarray:
     return np.asarray(pts, float) * [wa, wb] + [window.a[0], window.b[0]]
 
 
-def _resample(norm: np.ndarray, spacing: float) -> np.ndarray:
-    """Arc-length positions: the vertices of a (normalised) path and a point every ``spacing``."""
+def _sample_path(norm: np.ndarray, spacing: float) -> np.ndarray:
+    """Samples of a (normalised) path: its vertices and a point every ``spacing`` of arc length."""
     if len(norm) == 1:
-        return np.zeros(1)
-    cum = np.concatenate([[0.0], np.cumsum(np.linalg.norm(np.diff(norm, axis=0), axis=1))])
-    return np.union1d(cum, np.linspace(0.0, cum[-1], max(2, math.ceil(cum[-1] / spacing) + 1)))
-
-
-def _at_arclength(norm: np.ndarray, t: np.ndarray) -> np.ndarray:
-    if len(norm) == 1:
-        return np.repeat(norm, len(np.atleast_1d(t)), axis=0)
-    cum = np.concatenate([[0.0], np.cumsum(np.linalg.norm(np.diff(norm, axis=0), axis=1))])
-    return np.c_[np.interp(t, cum, norm[:, 0]), np.interp(t, cum, norm[:, 1])]
+        return norm.copy()
+    seg = np.sqrt(np.add.reduce(np.diff(norm, axis=0) ** 2, axis=1))
+    cum = np.empty(len(norm))
+    cum[0] = 0.0
+    np.cumsum(seg, out=cum[1:])
+    t = np.union1d(cum, np.linspace(0.0, cum[-1], max(2, math.ceil(cum[-1] / spacing) + 1)))
+    out = np.empty((len(t), 2))
+    out[:, 0] = np.interp(t, cum, norm[:, 0])
+    out[:, 1] = np.interp(t, cum, norm[:, 1])
+    return out
 
 
 def _costs_at(codes: np.ndarray, quads: np.ndarray, columns: dict, contours_by_id: dict,
               a: np.ndarray, b: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Tie costs (lo, hi) at many lines at once: line i for the tie (codes[i], quads[i] (column indices))."""
+    """Tie costs (lo, hi) at many lines at once: line i for the tie (codes[i], quads[i] (column indices)).
+
+    Each contour is met only by the lines of the ties that use it (line parameters are
+    computed line by line, so this equals evaluating every contour on every line).
+    """
     ids = list(columns)
-    S = line_parameters([contours_by_id[c] for c in ids], a, b) if len(a) else np.zeros((len(ids), 0))
-    n = np.arange(len(a))
+    a, b = np.asarray(a, float), np.asarray(b, float)
+    quads = np.asarray(quads, dtype=np.int64).reshape(-1, 4)
+    s = np.full((4, len(a)), np.nan)
+    for col in np.unique(quads):
+        slots = quads == col
+        rows = slots.any(axis=1)
+        vals = np.empty(len(a))
+        vals[rows] = line_parameter(contours_by_id[ids[int(col)]], a[rows], b[rows])
+        for k in range(4):
+            s[k, slots[:, k]] = vals[slots[:, k]]
     m = push_scale(a)
-    s = [S[quads[:, k], n] for k in range(4)]
     return _costs_from_differences(codes, np.abs(s[0] - s[1]) * m, np.abs(s[2] - s[3]) * m)
 
 
 def special_candidates(atlas, contours_by_id: dict, window: Window, *, spacing: float = 1 / 200,
-                       roles: bool = True) -> dict[str, Any]:
+                       roles: bool = True, floor: float = -math.inf,
+                       tolerance: float = 0.0) -> dict[str, Any]:
     """The finite candidate set of the reduced search, built without any diagram.
 
     For every tie piece of ``atlas`` whose tie is a tie of two costs
@@ -626,12 +638,22 @@ def special_candidates(atlas, contours_by_id: dict, window: Window, *, spacing: 
     of two curves whose ties share a pair (where an active tie can stop being
     active: one of its costs ties with a third one).
 
+    ``floor`` (with ``tolerance``) is a value of D already reached, e.g. on the
+    slope-one line: a candidate with ``hi <= floor + tolerance`` could only be
+    pruned ``below_best`` by :func:`reduced_search`, so it is dropped here and
+    counted in ``below_floor``. Crossings of two ties are not computed when the
+    sampled cost of each tie stays <= ``floor + tolerance`` (sampled max plus the
+    largest step between consecutive samples, a margin for the cost between
+    samples): a crossing's cost is one of the two tie costs there. Those pairs
+    are counted in ``pruned["crossing_pairs_below_floor"]``.
+
     Returns
     -------
     dict with arrays ``a``, ``b``, ``lo``, ``hi`` (cost bracket), ``piece``
     (index into ``atlas.pieces``), ``origin`` (index into :data:`ORIGINS`); ``paths``
     (normalised coordinates) and ``paths_of`` (piece -> path indices) for the polish;
-    ``pruned`` (ties: ``roles``, ``unknown_contour``, ``not_met``, ``outside_window``),
+    ``pruned`` (ties: ``roles``, ``unknown_contour``, ``not_met``, ``outside_window``;
+    ``crossing_pairs_below_floor``), ``below_floor`` (candidates dropped under ``floor``),
     ``crossings``, ``live`` (pieces with candidates), ``seconds``.
     """
     from shapely import box, intersection, intersects
@@ -641,10 +663,12 @@ def special_candidates(atlas, contours_by_id: dict, window: Window, *, spacing: 
     pruned = {"roles": 0, "unknown_contour": 0, "not_met": 0, "outside_window": 0}
     columns = {c: i for i, c in enumerate(contours_by_id)}
     wbox = box(*window.bounds())
+    wa0, wb0, wa1, wb1 = window.bounds()
+    cut = floor + tolerance
     codes, quads, geoms, live_ids = [], [], [], []
     paths: list[np.ndarray] = []
     paths_of: dict[int, list[int]] = {}
-    samp_t, samp_path = [], []
+    samp_pts: list[np.ndarray] = []
     for ip, piece in enumerate(pieces):
         ids = [c for pair in piece.tie.pairs for c in pair]
         if any(c not in columns for c in ids):
@@ -655,10 +679,15 @@ def special_candidates(atlas, contours_by_id: dict, window: Window, *, spacing: 
             pruned["roles"] += 1
             continue
         geom = piece.geometry
-        if geom is None or geom.is_empty or not geom.intersects(wbox):
+        if geom is None or geom.is_empty:
             pruned["outside_window"] += 1
             continue
-        geom = geom if wbox.contains(geom) else geom.intersection(wbox)
+        ga0, gb0, ga1, gb1 = geom.bounds
+        if not (wa0 < ga0 and ga1 < wa1 and wb0 < gb0 and gb1 < wb1):  # not strictly inside: shapely decides
+            if not geom.intersects(wbox):
+                pruned["outside_window"] += 1
+                continue
+            geom = geom if wbox.contains(geom) else geom.intersection(wbox)
         live_ids.append(ip)
         codes.append(code)
         quads.append([columns[c] for c in ids])
@@ -666,17 +695,15 @@ def special_candidates(atlas, contours_by_id: dict, window: Window, *, spacing: 
         paths_of[ip] = []
         for path in _paths(geom):
             norm = _normalise(path, window)
-            t = _resample(norm, spacing)
             paths_of[ip].append(len(paths))
-            samp_t.append(t)
-            samp_path.append(np.full(len(t), len(paths)))
+            samp_pts.append(_sample_path(norm, spacing))
             paths.append(norm)
     path_live = np.array([i for i, ip in enumerate(live_ids) for _ in paths_of[ip]], dtype=np.int64)
     codes_a = np.asarray(codes, dtype=np.int64)
     quads_a = np.asarray(quads, dtype=np.int64).reshape(-1, 4)
     if paths:
-        pid = np.concatenate(samp_path)
-        norm_pts = np.concatenate([_at_arclength(paths[p], t) for p, t in enumerate(samp_t)])
+        pid = np.repeat(np.arange(len(paths)), [len(q) for q in samp_pts])
+        norm_pts = np.concatenate(samp_pts)
     else:
         pid = np.zeros(0, dtype=np.int64)
         norm_pts = np.zeros((0, 2))
@@ -701,8 +728,22 @@ def special_candidates(atlas, contours_by_id: dict, window: Window, *, spacing: 
     has = np.zeros(len(live_ids), dtype=bool)
     has[li[finite]] = True
     pruned["not_met"] = int((~has).sum())
+    # sampled cost bound per live tie: max of the samples plus the largest step between neighbours
+    tie_top = np.full(len(live_ids), -np.inf)
+    if n:
+        np.maximum.at(tie_top, li[finite], h[finite])
+        step = np.zeros(n)
+        both = same_prev & finite & np.r_[False, finite[:-1]]
+        step[both] = np.abs(h[both] - prev_h[both])
+        tie_step = np.zeros(len(live_ids))
+        np.maximum.at(tie_step, li, step)
+        tie_top = tie_top + tie_step
+    low = keep & (hi <= cut)  # NaN compares False: such samples are not kept anyway
+    below_floor = int(low.sum())
+    keep &= ~low
     cand = {"a": [raw[keep, 0]], "b": [raw[keep, 1]], "lo": [lo[keep]], "hi": [hi[keep]],
             "live": [li[keep]], "origin": [np.where(local_max[keep], _LOCAL_MAX, _END)]}
+    pruned["crossing_pairs_below_floor"] = 0
     # crossings of ties that share a pair
     n_crossings = 0
     alive = np.nonzero(has)[0]
@@ -720,21 +761,19 @@ def special_candidates(atlas, contours_by_id: dict, window: Window, *, spacing: 
                 vs.append(m[v])
         if us:
             uv = np.unique(np.c_[np.concatenate(us), np.concatenate(vs)], axis=0)
+            over = (tie_top[uv[:, 0]] > cut) | (tie_top[uv[:, 1]] > cut)
+            pruned["crossing_pairs_below_floor"] = int((~over).sum())
+            uv = uv[over]
             garr = np.asarray(geoms, dtype=object)
             hit = intersects(garr[uv[:, 0]], garr[uv[:, 1]]) if len(uv) else np.zeros(0, bool)
             uv = uv[hit]
-            pa, pb, pl = [], [], []
-            for (u, v), g in zip(uv.tolist(), intersection(garr[uv[:, 0]], garr[uv[:, 1]]), strict=True):
-                pts = [p for path in _paths(g) for p in (path if len(path) == 1 else path[[0, -1]])]
-                for x, y in pts:
-                    n_crossings += 1
-                    pa += [x, x]
-                    pb += [y, y]
-                    pl += [u, v]
-            if pa:
-                pa_a, pb_a, pl_a = np.asarray(pa), np.asarray(pb), np.asarray(pl, dtype=np.int64)
+            pa_a, pb_a, pl_a = _crossing_points(intersection(garr[uv[:, 0]], garr[uv[:, 1]]), uv)
+            n_crossings = len(pa_a) // 2
+            if len(pa_a):
                 clo, chi = _costs_at(codes_a[pl_a], quads_a[pl_a], columns, contours_by_id, pa_a, pb_a)
-                ok = np.isfinite(chi)
+                low = np.isfinite(chi) & (chi <= cut)
+                below_floor += int(low.sum())
+                ok = np.isfinite(chi) & ~low
                 cand["a"].append(pa_a[ok])
                 cand["b"].append(pb_a[ok])
                 cand["lo"].append(clo[ok])
@@ -745,9 +784,47 @@ def special_candidates(atlas, contours_by_id: dict, window: Window, *, spacing: 
     live_arr = np.asarray(live_ids, dtype=np.int64)
     out["piece"] = live_arr[out.pop("live")] if len(live_arr) else np.zeros(0, dtype=np.int64)
     out["origin"] = out["origin"].astype(np.int64)
-    out.update(paths=paths, paths_of=paths_of, pruned=pruned, crossings=n_crossings,
+    out.update(paths=paths, paths_of=paths_of, pruned=pruned, crossings=n_crossings, below_floor=below_floor,
                live=[live_ids[i] for i in alive], seconds=time.perf_counter() - t0)
     return out
+
+
+def _crossing_points(inter: np.ndarray, uv: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Points of the intersections ``inter`` of tie pairs ``uv`` (points; ends of overlaps), twice each.
+
+    Same points and order as :func:`_paths` (a point, or the two ends of a path) per
+    intersection; returns (a, b, live index), one entry for each tie of the pair.
+    """
+    from shapely import get_coordinates, get_parts, get_type_id
+
+    empty = (np.zeros(0), np.zeros(0), np.zeros(0, dtype=np.int64))
+    if not len(uv):
+        return empty
+    parts, owner = get_parts(inter, return_index=True)
+    kinds = get_type_id(parts)
+    if np.isin(kinds, (3, 4, 5, 6, 7)).any():  # nested collections or polygons: the general walk
+        xs, ys, us = [], [], []
+        for k, g in enumerate(inter):
+            for path in _paths(g):
+                for x, y in (path if len(path) == 1 else path[[0, -1]]):
+                    xs.append(x)
+                    ys.append(y)
+                    us.append(k)
+        P = np.c_[np.asarray(xs, float), np.asarray(ys, float)].reshape(-1, 2)
+        pair = np.asarray(us, dtype=np.int64)
+    else:
+        coords, cidx = get_coordinates(parts, return_index=True)
+        cnt = np.bincount(cidx, minlength=len(parts))
+        first = np.cumsum(cnt) - cnt
+        # per part, in order: a single point itself, a path its two ends (start first), an empty part nothing
+        ends = np.c_[first, first + cnt - 1]
+        idx = ends[np.c_[cnt >= 1, cnt > 1]]
+        P = coords[idx]
+        pair = owner[cidx[idx]]
+    if not len(P):
+        return empty
+    u, v = uv[pair, 0], uv[pair, 1]
+    return np.repeat(P[:, 0], 2), np.repeat(P[:, 1], 2), np.c_[u, v].ravel()
 
 
 def _star_values(values: np.ndarray, a: np.ndarray, b: np.ndarray) -> np.ndarray:
@@ -936,7 +1013,10 @@ def reduced_search(ev: LineEvaluator, window: Window, atlas, contours_by_id: dic
 
     # 2. candidates, then the descending pass
     t1 = time.perf_counter()
-    cand = special_candidates(atlas, contours_by_id, window, spacing=spacing, roles=roles)
+    # every threshold of the descending pass is >= min(best): candidates under it are below_best anyway
+    floor = float(best.min()) if len(best) and np.isfinite(best).all() else -math.inf
+    cand = special_candidates(atlas, contours_by_id, window, spacing=spacing, roles=roles, floor=floor,
+                              tolerance=tolerance)
     cand_seconds = time.perf_counter() - t1
     pieces = tuple(getattr(atlas, "pieces", ()) or ())
     components = tuple(getattr(atlas, "components", ()) or ())
@@ -950,7 +1030,7 @@ def reduced_search(ev: LineEvaluator, window: Window, atlas, contours_by_id: dic
             P = np.array([p for p, _ in known])
             V = np.array([[np.max(v[g]) for g in groups] for _, v in known])
             local.add(P[:, 0], P[:, 1], V)
-    counts = {"below_best": 0, "above_bound": 0, "line_bound": 0, "local_bound": 0}
+    counts = {"below_best": int(cand["below_floor"]), "above_bound": 0, "line_bound": 0, "local_bound": 0}
     order = np.argsort(-chi, kind="stable")
     line_b = np.full(n, np.nan)
     step = batch or (1 if ev.jobs == 1 else 2 * ev.jobs)
@@ -1024,7 +1104,8 @@ def reduced_search(ev: LineEvaluator, window: Window, atlas, contours_by_id: dic
             special[j].component = _component_of(pieces[special[j].tag[0]], special[j].at, components) \
                 or f"piece:{special[j].tag[0]}"
     pruned = {**cand["pruned"], **counts, "ties_total": len(pieces), "ties_live": len(cand["live"]),
-              "ties_evaluated": len({int(cand["piece"][i]) for i in evaluated}), "candidates_total": n,
+              "ties_evaluated": len({int(cand["piece"][i]) for i in evaluated}),
+              "candidates_total": n + int(cand["below_floor"]),
               "candidates_evaluated": len(evaluated), "crossings": cand["crossings"],
               "early_stop": stop is not None}
     return {"slope": slope, "special": special, "lines": ev.lines - n0, "seconds": time.perf_counter() - t0,

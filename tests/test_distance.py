@@ -28,6 +28,7 @@ from specmap.distance import (
     lipschitz_constants,
     matching_distance,
     reduced_search,
+    special_candidates,
     tie_costs,
 )
 from specmap.errors import StudyError
@@ -371,3 +372,50 @@ def test_reduced_search_early_stop():
     # constant costs: every sample of a flat curve may count as a local maximum, so count ties
     assert pr["ties_evaluated"] == 2  # A and B, never C
     assert pr["candidates_evaluated"] + pr["below_best"] == pr["candidates_total"]
+
+
+def test_candidate_floor_only_drops_below_best_candidates():
+    # special_candidates(floor=F, tolerance=tol) keeps exactly the candidates with hi > F + tol of the
+    # full list (same order), i.e. it removes only what reduced_search would prune below_best.
+    special_set = _real_special_set()
+    from specmap.grids.piecewise import piecewise_grid
+
+    V, T, f = ellipsoid_pair(300)
+    x, y, z = V.T
+    g = np.c_[x + 0.3 * np.sin(1.5 * z) + 0.1 * y, y - 0.2 * z**2 + 0.1 * x]
+    sf, sg = shapes(V, T, f, g)
+    gf, gg = piecewise_grid(V, T, f, label="f"), piecewise_grid(V, T, g, label="g")
+    w = default_window(sf.value_bounds(), sg.value_bounds())
+    atlas = special_set(gf, gg, w, resolution=61)
+    C = {c.id: c for grid in (gf, gg) for c in grid.contours}
+    full = special_candidates(atlas, C, w)
+    assert full["below_floor"] == 0 and full["pruned"]["crossing_pairs_below_floor"] == 0
+    tol = 1e-3
+    for floor in np.quantile(full["hi"], [0.2, 0.6, 0.9]):
+        cut = special_candidates(atlas, C, w, floor=float(floor), tolerance=tol)
+        keep = full["hi"] > floor + tol
+        for key in ("a", "b", "lo", "hi", "piece", "origin"):
+            np.testing.assert_array_equal(cut[key], full[key][keep])
+        assert 0 < cut["below_floor"] <= len(full["hi"]) - keep.sum()
+        assert cut["live"] == full["live"]
+
+
+def test_candidate_floor_skips_crossings_of_low_ties():
+    # Vertical contours give constant costs: tie A costs 0.5, tie B brackets [0.2, 0.5], ties C, D
+    # cost 0.2. Crossings: A-B (share (f:a, g:a)), B-C (share (f:c, g:c)), C-D (share (f:c, g:c)).
+    # With floor 0.3 only C-D, two ties that never exceed the floor, is not computed.
+    C = {c.id: c for c in (Contour("f:a", "vertical", [0.0, -100.0]), Contour("g:a", "vertical", [0.5, -100.0]),
+                           Contour("f:b", "vertical", [1.0, -100.0]), Contour("g:b", "vertical", [1.5, -100.0]),
+                           Contour("f:c", "vertical", [0.0, -100.0]), Contour("g:c", "vertical", [0.2, -100.0]),
+                           Contour("f:d", "vertical", [1.0, -100.0]), Contour("g:d", "vertical", [1.2, -100.0]))}
+    hv, vv = LineString([(0.2, 0.0), (0.4, 0.0)]), LineString([(0.3, -0.1), (0.3, 0.1)])
+    pieces = (FakePiece(FakeTie((("f:a", "g:a"), ("f:b", "g:b")), "equal"), "curve", hv),  # A
+              FakePiece(FakeTie((("f:a", "g:a"), ("f:c", "g:c")), "equal"), "curve", vv),  # B
+              FakePiece(FakeTie((("f:c", "g:c"), ("f:d", "g:d")), "equal"), "curve", hv.parallel_offset(0.05)),  # C
+              FakePiece(FakeTie((("f:c", "g:c"), ("g:d", "f:d")), "equal"), "curve", vv.parallel_offset(0.05)))  # D
+    w = Window((0.02, 0.98), (-1.0, 1.0))
+    full = special_candidates(FakeAtlas(pieces, ()), C, w)
+    cut = special_candidates(FakeAtlas(pieces, ()), C, w, floor=0.3, tolerance=1e-6)
+    assert full["crossings"] == 3 and full["pruned"]["crossing_pairs_below_floor"] == 0
+    assert cut["crossings"] == 2 and cut["pruned"]["crossing_pairs_below_floor"] == 1  # (C, D) skipped
+    np.testing.assert_array_equal(cut["hi"], full["hi"][full["hi"] > 0.3 + 1e-6])
