@@ -395,22 +395,30 @@ def _lattice_links(lines: list, eps: float, lattice) -> tuple[np.ndarray, np.nda
         dy, dx = np.divmod(r, nx_[sid])
         ecell = (j0[sid] + dy) * na1 + i0[sid] + dx
         eseg = extra[sid]
-        # segments listed per cell: chords by their cell, extras by every touched cell
+        # components so far (shared vertices, chords): only pairs of different ones need a test
+        lab = _labels(n_lines + int(vid.max()) + 1, la, lb)[:n_lines][owner]
+        nl = int(lab.max()) + 1
+        # segments listed per cell (chords by their cell, extras by every touched cell), by component
         all_cell = np.concatenate([cell[chord], ecell])
         all_seg = np.concatenate([np.nonzero(chord)[0], eseg])
-        order = np.argsort(all_cell, kind="stable")
-        all_cell, all_seg = all_cell[order], all_seg[order]
-        first = np.searchsorted(all_cell, ecell, side="left")
-        last = np.searchsorted(all_cell, ecell, side="right")
-        m = last - first
-        src = np.repeat(eseg, m)
-        rr = np.arange(int(m.sum())) - np.repeat(np.cumsum(m) - m, m)
-        dst = all_seg[np.repeat(first, m) + rr]
+        all_key = all_cell * nl + lab[all_seg]
+        order = np.argsort(all_key, kind="stable")
+        all_key, all_seg = all_key[order], all_seg[order]
+        ekey = ecell * nl + lab[eseg]
+        first = np.searchsorted(all_key, ecell * nl, side="left")
+        last = np.searchsorted(all_key, (ecell + 1) * nl, side="left")
+        lf = np.searchsorted(all_key, ekey, side="left")
+        ll = np.searchsorted(all_key, ekey, side="right")
+        srcs, dsts = [], []
+        for r0, r1 in ((first, lf), (ll, last)):
+            m = r1 - r0
+            srcs.append(np.repeat(eseg, m))
+            rr = np.arange(int(m.sum())) - np.repeat(np.cumsum(m) - m, m)
+            dsts.append(all_seg[np.repeat(r0, m) + rr])
+        src, dst = np.concatenate(srcs), np.concatenate(dsts)
         # boxes (grown by 2 eps, a superset of the eps test) must overlap
         blo = np.minimum(p, q)
         bhi = np.maximum(p, q)
-        keep = (owner[src] != owner[dst])
-        src, dst = src[keep], dst[keep]
         keep = ((blo[src, 0] <= bhi[dst, 0] + 2 * eps) & (blo[dst, 0] <= bhi[src, 0] + 2 * eps)
                 & (blo[src, 1] <= bhi[dst, 1] + 2 * eps) & (blo[dst, 1] <= bhi[src, 1] + 2 * eps))
         src, dst = src[keep], dst[keep]
