@@ -61,6 +61,9 @@ def extended_parameter(contour: Contour, a, b) -> tuple[np.ndarray, np.ndarray]:
         return s, met
     pts = contour.points
     x0, y0 = pts[0]
+    # the prolongation only where the contour is missed (elementwise, same values)
+    miss = ~met
+    a, b = a[miss], b[miss]
     with np.errstate(divide="ignore", invalid="ignore"):
         if contour.kind == "vertical":
             ext = (x0 - b) / a
@@ -69,7 +72,9 @@ def extended_parameter(contour: Contour, a, b) -> tuple[np.ndarray, np.ndarray]:
         else:
             ext = np.where(_g(pts[0], a, b) > 0, _through(pts[0], pts[1] if len(pts) > 1 else None, a, b),
                            _through(pts[-1], pts[-2] if len(pts) > 1 else None, a, b))
-    return np.where(met, s, ext), met
+    out = s.copy()
+    out[miss] = ext
+    return out, met
 
 
 def _g(p, a, b):
