@@ -26,7 +26,7 @@ import numpy as np
 
 from specmap.grids.model import Contour
 from specmap.special.pairs import Tie
-from specmap.strip import line_parameter, push_scale
+from specmap.strip import BISECT_MIN_POINTS, line_parameter, push_scale
 
 #: proper contours with at least this many vertices are evaluated by binary search
 
@@ -55,7 +55,10 @@ def extended_parameter(contour: Contour, a, b) -> tuple[np.ndarray, np.ndarray]:
     (0.0, False)
     """
     a, b = np.broadcast_arrays(np.asarray(a, float), np.asarray(b, float))
-    s = line_parameter(contour, a, b)
+    if contour.kind == "proper" and 2 <= len(contour.points) < BISECT_MIN_POINTS:
+        s = _dense_rows(contour.points, a, b)
+    else:
+        s = line_parameter(contour, a, b)
     met = ~np.isnan(s)
     if met.all():
         return s, met
@@ -75,6 +78,33 @@ def extended_parameter(contour: Contour, a, b) -> tuple[np.ndarray, np.ndarray]:
     out = s.copy()
     out[miss] = ext
     return out, met
+
+
+def _dense_rows(pts: np.ndarray, a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """:func:`specmap.strip.line_parameter` of a short proper polyline (same formulas, row by row)."""
+    shape = a.shape
+    a1 = a.reshape(-1)
+    b1 = b.reshape(-1)
+    n = len(pts)
+    oma = 1.0 - a1
+    G = np.empty((n, a1.size))
+    count = np.zeros(a1.size, dtype=np.int64)
+    for v in range(n):
+        G[v] = oma * (pts[v, 0] - b1) - a1 * (pts[v, 1] + b1)
+        count += G[v] <= 0.0
+    met = (count >= 1) & (G[-1] >= 0.0)
+    k = np.clip(count - 1, 0, n - 2)
+    q = np.arange(a1.size)
+    g0 = G[k, q]
+    g1 = G[k + 1, q]
+    with np.errstate(invalid="ignore", divide="ignore"):
+        denom = g1 - g0
+        t = np.where(denom > 0, -g0 / np.where(denom > 0, denom, 1.0), 0.0)
+        t = np.clip(t, 0.0, 1.0)
+        px = pts[k, 0] + t * (pts[k + 1, 0] - pts[k, 0])
+        py = pts[k, 1] + t * (pts[k + 1, 1] - pts[k, 1])
+        s = (a1 * (px - b1) + (1.0 - a1) * (py + b1)) / (a1 * a1 + (1.0 - a1) ** 2)
+    return np.where(met, s, np.nan).reshape(shape)
 
 
 def _g(p, a, b):
