@@ -54,14 +54,33 @@ def extended_parameter(contour: Contour, a, b) -> tuple[np.ndarray, np.ndarray]:
     >>> float(s), bool(met)
     (0.0, False)
     """
+    s, met, _ = _extended(contour, a, b)
+    return s, met
+
+
+def _short(contour: Contour) -> bool:
+    return contour.kind == "proper" and 2 <= len(contour.points) < BISECT_MIN_POINTS
+
+
+def _extended(contour: Contour, a, b, kguess: np.ndarray | None = None):
+    """:func:`extended_parameter`, plus the segment index of short proper contours.
+
+    ``kguess`` (short proper contours, 1-d ``a``/``b``): a guess of the segment
+    index, checked exactly (see :func:`_rows_guess`).
+    """
     a, b = np.broadcast_arrays(np.asarray(a, float), np.asarray(b, float))
-    if contour.kind == "proper" and 2 <= len(contour.points) < BISECT_MIN_POINTS:
-        s = _dense_rows(contour.points, a, b)
+    k = None
+    if _short(contour):
+        if kguess is None:
+            s1, k = _rows(contour.points, a.reshape(-1), b.reshape(-1))
+        else:
+            s1, k = _rows_guess(contour.points, a, b, kguess)
+        s = s1.reshape(a.shape)
     else:
         s = line_parameter(contour, a, b)
     met = ~np.isnan(s)
     if met.all():
-        return s, met
+        return s, met, k
     pts = contour.points
     x0, y0 = pts[0]
     # the prolongation only where the contour is missed (elementwise, same values)
@@ -77,14 +96,27 @@ def extended_parameter(contour: Contour, a, b) -> tuple[np.ndarray, np.ndarray]:
                            _through(pts[-1], pts[-2] if len(pts) > 1 else None, a, b))
     out = s.copy()
     out[miss] = ext
-    return out, met
+    return out, met, k
 
 
 def _dense_rows(pts: np.ndarray, a: np.ndarray, b: np.ndarray) -> np.ndarray:
     """:func:`specmap.strip.line_parameter` of a short proper polyline (same formulas, row by row)."""
-    shape = a.shape
-    a1 = a.reshape(-1)
-    b1 = b.reshape(-1)
+    return _rows(pts, a.reshape(-1), b.reshape(-1))[0].reshape(a.shape)
+
+
+def _finish(pts, a1, b1, k, g0, g1, met):
+    with np.errstate(invalid="ignore", divide="ignore"):
+        denom = g1 - g0
+        t = np.where(denom > 0, -g0 / np.where(denom > 0, denom, 1.0), 0.0)
+        t = np.clip(t, 0.0, 1.0)
+        px = pts[k, 0] + t * (pts[k + 1, 0] - pts[k, 0])
+        py = pts[k, 1] + t * (pts[k + 1, 1] - pts[k, 1])
+        s = (a1 * (px - b1) + (1.0 - a1) * (py + b1)) / (a1 * a1 + (1.0 - a1) ** 2)
+    return s if met is None else np.where(met, s, np.nan)
+
+
+def _rows(pts: np.ndarray, a1: np.ndarray, b1: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """(s, segment index) on 1-d lines, the formulas of strip's dense evaluation."""
     n = len(pts)
     oma = 1.0 - a1
     G = np.empty((n, a1.size))
@@ -95,16 +127,30 @@ def _dense_rows(pts: np.ndarray, a: np.ndarray, b: np.ndarray) -> np.ndarray:
     met = (count >= 1) & (G[-1] >= 0.0)
     k = np.clip(count - 1, 0, n - 2)
     q = np.arange(a1.size)
-    g0 = G[k, q]
-    g1 = G[k + 1, q]
-    with np.errstate(invalid="ignore", divide="ignore"):
-        denom = g1 - g0
-        t = np.where(denom > 0, -g0 / np.where(denom > 0, denom, 1.0), 0.0)
-        t = np.clip(t, 0.0, 1.0)
-        px = pts[k, 0] + t * (pts[k + 1, 0] - pts[k, 0])
-        py = pts[k, 1] + t * (pts[k + 1, 1] - pts[k, 1])
-        s = (a1 * (px - b1) + (1.0 - a1) * (py + b1)) / (a1 * a1 + (1.0 - a1) ** 2)
-    return np.where(met, s, np.nan).reshape(shape)
+    return _finish(pts, a1, b1, k, G[k, q], G[k + 1, q], met), k
+
+
+def _rows_guess(pts: np.ndarray, a1: np.ndarray, b1: np.ndarray, kg: np.ndarray
+                ) -> tuple[np.ndarray, np.ndarray]:
+    """:func:`_rows` given a guess ``kg`` of the segment index.
+
+    G is non-decreasing along the polyline (also in floating point), so
+    G[kg] <= 0 < G[kg + 1] (same formula as the dense rows) proves that
+    ``kg + 1`` vertices have G <= 0 and that the line meets the contour; only
+    the other lines are evaluated densely. Same values as :func:`_rows`.
+    """
+    oma = 1.0 - a1
+    x0, y0 = pts[kg, 0], pts[kg, 1]
+    x1, y1 = pts[kg + 1, 0], pts[kg + 1, 1]
+    g0 = oma * (x0 - b1) - a1 * (y0 + b1)
+    g1 = oma * (x1 - b1) - a1 * (y1 + b1)
+    ok = (g0 <= 0.0) & (g1 > 0.0)
+    s = _finish(pts, a1, b1, kg, g0, g1, None)
+    k = kg.copy()
+    bad = np.nonzero(~ok)[0]
+    if bad.size:
+        s[bad], k[bad] = _rows(pts, a1[bad], b1[bad])
+    return s, k
 
 
 def _g(p, a, b):
@@ -160,14 +206,17 @@ class SlotEvaluator:
         self.groups = [(int(c), order[bounds[i]:bounds[i + 1]]) for i, c in enumerate(uniq)]
         m = max(self.slots.shape[1], 1)
         self.rows = [idx // m for _, idx in self.groups]
+        # segment indices of short proper contours at the last call (guesses for the next)
+        self.kguess: list = [None] * len(self.groups)
 
     def __call__(self, a: np.ndarray, b: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """(s_ext, met) of shape (K, m) at points (a[k], b[k])."""
         k, m = self.slots.shape
         s = np.empty(k * m)
         met = np.empty(k * m, dtype=bool)
-        for (c, idx), r in zip(self.groups, self.rows, strict=True):
-            s[idx], met[idx] = extended_parameter(self.contours[c], a[r], b[r])
+        for gi, ((c, idx), r) in enumerate(zip(self.groups, self.rows, strict=True)):
+            s[idx], met[idx], kk = _extended(self.contours[c], a[r], b[r], self.kguess[gi])
+            self.kguess[gi] = kk
         return s.reshape(k, m), met.reshape(k, m)
 
 
