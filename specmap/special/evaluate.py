@@ -105,12 +105,16 @@ def _dense_rows(pts: np.ndarray, a: np.ndarray, b: np.ndarray) -> np.ndarray:
 
 
 def _finish(pts, a1, b1, k, g0, g1, met):
+    xs, ys = pts[:, 0], pts[:, 1]
     with np.errstate(invalid="ignore", divide="ignore"):
         denom = g1 - g0
-        t = np.where(denom > 0, -g0 / np.where(denom > 0, denom, 1.0), 0.0)
+        if met is None:  # g0 <= 0 < g1: denom > 0
+            t = -g0 / denom
+        else:
+            t = np.where(denom > 0, -g0 / np.where(denom > 0, denom, 1.0), 0.0)
         t = np.clip(t, 0.0, 1.0)
-        px = pts[k, 0] + t * (pts[k + 1, 0] - pts[k, 0])
-        py = pts[k, 1] + t * (pts[k + 1, 1] - pts[k, 1])
+        px = xs[k] + t * np.diff(xs)[k]
+        py = ys[k] + t * np.diff(ys)[k]
         s = (a1 * (px - b1) + (1.0 - a1) * (py + b1)) / (a1 * a1 + (1.0 - a1) ** 2)
     return s if met is None else np.where(met, s, np.nan)
 
