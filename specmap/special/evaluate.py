@@ -232,6 +232,20 @@ def residual_from_slots(s: np.ndarray, factor: np.ndarray, a: np.ndarray) -> tup
     return dp - dq, np.minimum(dp, dq / factor)
 
 
+def _tie_differences(tie: Tie, contours_by_id: Mapping[str, Contour], a, b
+                     ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """|c_P|, |c_Q| (push units) of a tie's two pairs at lines (a, b), and where all four are met."""
+    a, b = np.broadcast_arrays(np.asarray(a, float), np.asarray(b, float))
+    vals = []
+    ok = np.ones(a.shape, dtype=bool)
+    for cid in (c for pair in tie.pairs for c in pair):
+        s, met = extended_parameter(contours_by_id[cid], a, b)
+        vals.append(s)
+        ok &= met
+    m = push_scale(a)
+    return np.abs(vals[0] - vals[1]) * m, np.abs(vals[2] - vals[3]) * m, ok
+
+
 def tie_value(tie: Tie, contours_by_id: Mapping[str, Contour], a, b) -> np.ndarray:
     """The tied value of a tie at lines (a, b), in push units; NaN where not all met.
 
@@ -254,32 +268,14 @@ def tie_value(tie: Tie, contours_by_id: Mapping[str, Contour], a, b) -> np.ndarr
     ----------
     .. [EFQT23] Ethier, Frosini, Quercioli, Tombari, J. Appl. Comput. Topol. (2023).
     """
-    a, b = np.broadcast_arrays(np.asarray(a, float), np.asarray(b, float))
-    (p1, p2), (q1, q2) = tie.pairs
-    vals = []
-    ok = np.ones(a.shape, dtype=bool)
-    for cid in (p1, p2, q1, q2):
-        s, met = extended_parameter(contours_by_id[cid], a, b)
-        vals.append(s)
-        ok &= met
-    m = push_scale(a)
-    dp = np.abs(vals[0] - vals[1]) * m
-    dq = np.abs(vals[2] - vals[3]) * m
+    dp, dq, ok = _tie_differences(tie, contours_by_id, a, b)
     out = np.minimum(dp, dq) if tie.condition == "equal" else np.minimum(dp / 2.0, dq)
     return np.where(ok, out, np.nan)
 
 
 def tie_residual(tie: Tie, contours_by_id: Mapping[str, Contour], a, b) -> np.ndarray:
     """Residual |c_P| - k |c_Q| (push units) of a tie at lines (a, b); NaN where not all met."""
-    a, b = np.broadcast_arrays(np.asarray(a, float), np.asarray(b, float))
-    (p1, p2), (q1, q2) = tie.pairs
-    vals = []
-    ok = np.ones(a.shape, dtype=bool)
-    for cid in (p1, p2, q1, q2):
-        s, met = extended_parameter(contours_by_id[cid], a, b)
-        vals.append(s)
-        ok &= met
+    dp, dq, ok = _tie_differences(tie, contours_by_id, a, b)
     k = 1.0 if tie.condition == "equal" else 2.0
-    m = push_scale(a)
-    r = (np.abs(vals[0] - vals[1]) - k * np.abs(vals[2] - vals[3])) * m
+    r = dp - k * dq
     return np.where(ok, r, np.nan)
