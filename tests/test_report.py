@@ -14,6 +14,7 @@ from pypdf import PdfReader
 from specmap.errors import ResultsError
 from specmap.report import build_report, findings, load_results
 from specmap.report.figures import grids_figure, landscape_figure, perturb_figure, special_figure
+from specmap.report.findings import audit_sentences
 from specmap.report.fmt import fraction_interval, num
 
 # -- fixture folders -------------------------------------------------------------
@@ -227,9 +228,23 @@ def test_long_component_table_is_truncated(tmp_path: Path) -> None:
 def test_theorem_gap_is_loud_in_pdf(tmp_path: Path) -> None:
     root = make_folder(tmp_path / "gap", stages=("distance",), gap=True)
     text = _flat(" ".join(pdf_pages(build_report(root))))
-    assert "WARNING: theorem audit failed" in text
+    # the audit section uses the findings sentence (one source, specmap.report.findings)
+    assert "WARNING: the dense sweep exceeds the reduced search by 0.0271" in text
+    assert "disagrees with the theorem's reduction" in text
     assert "1 warning about disagreement" in text  # repeated on the cover
     assert "0.0271" in text
+
+
+@pytest.mark.parametrize("gap", [False, True])
+def test_pdf_audit_section_uses_the_findings_sentences(tmp_path: Path, gap: bool) -> None:
+    # one source: the Matching distance page states the audits with the sentences of findings.py
+    root = make_folder(tmp_path / "audit", stages=("distance",), gap=gap)
+    pages = [_flat(p) for p in pdf_pages(build_report(root))]
+    page = next(p for p in pages if "Audits" in p and "Reduced search:" in p)
+    sentences = audit_sentences(_distance(gap))
+    assert len(sentences) == 2
+    for sentence in sentences:
+        assert _flat(sentence) in page, sentence
 
 
 def test_missing_folder_and_study(tmp_path: Path) -> None:

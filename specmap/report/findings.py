@@ -88,6 +88,43 @@ def _reached(on: Any, at: Any, comp: Any) -> str:
     return f"reached {where}"
 
 
+def theorem_audit_sentence(d: dict[str, Any]) -> str | None:
+    """The theorem-audit sentence of a distance result (``WARNING:`` when the audit failed), or ``None``.
+
+    One source for the findings list and the PDF's audit section.
+    """
+    audit = d.get("audit") or {}
+    if audit.get("theorem_gap"):
+        line = audit.get("line")
+        at = fmt_point(line) if isinstance(line, list) else str(line)
+        return (f"{WARNING} the dense sweep exceeds the reduced search by {fmt(audit.get('gap'))} at "
+                f"(a, b) = {at}: the computation disagrees with the theorem's reduction here"
+                f"{_tol(d.get('tolerance'))}.")
+    if "theorem_gap" in audit:
+        return (f"The dense sweep does not exceed the reduced search beyond the tolerance "
+                f"(gap {fmt(audit.get('gap'))}){_tol(d.get('tolerance'))}.")
+    return None
+
+
+def position_audit_sentence(d: dict[str, Any]) -> str | None:
+    """The position-audit sentence of a distance result (``WARNING:`` below 100%), or ``None``."""
+    pos = (d.get("audit") or {}).get("position") or {}
+    if not pos:
+        return None
+    frac = num(pos.get("fraction_explained"))
+    txt = (f"{fmt_pct(frac)} of diagram coordinates on {pos.get('lines', 'n/a')} audited lines are push "
+           f"coordinates of grid contours (max deviation {fmt(pos.get('max_deviation'), 3)})")
+    if math.isfinite(frac) and frac < 1.0:
+        return (f"{WARNING} only {txt}: the position theorem is not met numerically; the grids may "
+                "be incomplete or the tolerance too tight.")
+    return txt[0].upper() + txt[1:] + ", as the position theorem requires."
+
+
+def audit_sentences(d: dict[str, Any]) -> list[str]:
+    """Theorem-audit and position-audit sentences of a distance result, those recorded."""
+    return [s for s in (theorem_audit_sentence(d), position_audit_sentence(d)) if s is not None]
+
+
 def _distance_sentences(res: dict[str, Any]) -> list[str]:
     d = res.get("distance")
     if not d:
@@ -119,26 +156,7 @@ def _distance_sentences(res: dict[str, Any]) -> list[str]:
     elif red:
         out.append(f"Only the reduced search was run ({red.get('lines', 'n/a')} lines): {fmt(red.get('value'))}; "
                    "no dense sweep checks it.")
-    audit = d.get("audit") or {}
-    if audit.get("theorem_gap"):
-        line = audit.get("line")
-        at = fmt_point(line) if isinstance(line, list) else str(line)
-        out.append(f"{WARNING} the dense sweep exceeds the reduced search by {fmt(audit.get('gap'))} at "
-                   f"(a, b) = {at}: the computation disagrees with the theorem's reduction here"
-                   f"{_tol(d.get('tolerance'))}.")
-    elif "theorem_gap" in audit:
-        out.append(f"The dense sweep does not exceed the reduced search beyond the tolerance "
-                   f"(gap {fmt(audit.get('gap'))}){_tol(d.get('tolerance'))}.")
-    pos = audit.get("position") or {}
-    if pos:
-        frac = num(pos.get("fraction_explained"))
-        txt = (f"{fmt_pct(frac)} of diagram coordinates on {pos.get('lines', 'n/a')} audited lines are push "
-               f"coordinates of grid contours (max deviation {fmt(pos.get('max_deviation'), 3)})")
-        if math.isfinite(frac) and frac < 1.0:
-            out.append(f"{WARNING} only {txt}: the position theorem is not met numerically; the grids may "
-                       "be incomplete or the tolerance too tight.")
-        else:
-            out.append(txt[0].upper() + txt[1:] + ", as the position theorem requires.")
+    out.extend(audit_sentences(d))
     return out
 
 

@@ -26,7 +26,7 @@ from matplotlib.figure import FigureBase
 
 from specmap.errors import ResultsError
 from specmap.report.figures import grids_figure, landscape_figure, perturb_figure, save_png, special_figure
-from specmap.report.findings import WARNING, findings
+from specmap.report.findings import WARNING, audit_sentences, findings
 from specmap.report.fmt import fmt, fmt_interval, fmt_pct, fmt_point, fraction_interval, num, plural
 from specmap.report.layout import Pager
 from specmap.report.load import STAGE_VERB, load_results
@@ -68,10 +68,6 @@ def _stat(row: dict[str, Any], key: str, stat: str) -> Any:
     if isinstance(nested, dict):
         return nested.get(stat)
     return row.get(f"{key}_{stat}")
-
-
-def _line_text(line: Any) -> str:
-    return fmt_point(line) if isinstance(line, list) else str(line)
 
 
 def _short_value(v: Any) -> str:
@@ -241,26 +237,10 @@ def _distance_page(pg: Pager, res: dict[str, Any]) -> None:
     else:
         pg.para("Reduced search: not run.")
     pg.heading("Audits")
-    audit = d.get("audit") or {}
-    if not audit:
+    if not d.get("audit"):
         pg.para("No audit was recorded.")
-    elif audit.get("theorem_gap"):
-        pg.warn(f"{WARNING} theorem audit failed: the dense sweep exceeds the reduced search by "
-                f"{fmt(audit.get('gap'))} on the line (a, b) = {_line_text(audit.get('line'))}. The computation "
-                "disagrees with "
-                "the reduction to slope-one lines and special values here.")
-    else:
-        pg.para(f"Theorem audit passed: the dense sweep does not exceed the reduced search "
-                f"(gap {fmt(audit.get('gap'))}, tolerance {fmt(d.get('tolerance'), 3)}).")
-    pos = audit.get("position") or {}
-    if pos:
-        frac = num(pos.get("fraction_explained"))
-        text = (f"Position audit: {fmt_pct(frac)} of diagram coordinates on {pos.get('lines', 'n/a')} lines "
-                f"are push coordinates of grid contours; max deviation {fmt(pos.get('max_deviation'), 3)}.")
-        if frac < 1.0:
-            pg.warn(f"{WARNING} {text}")
-        else:
-            pg.para(text)
+    for sentence in audit_sentences(d):  # the same sentences as the Findings page
+        (pg.warn if sentence.startswith(WARNING) else pg.para)(sentence)
 
 
 def _perturb_page(pg: Pager, res: dict[str, Any]) -> None:
