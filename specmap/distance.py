@@ -347,12 +347,6 @@ def _golden_max(fun: Callable[[float], float], lo: float, hi: float, iters: int)
     return best
 
 
-def _golden_iters(width: float, target: float) -> int:
-    if width <= target or target <= 0:
-        return 1
-    return int(min(25, math.ceil(math.log(width / target) / math.log(1.618034))))
-
-
 # ----------------------------------------------------------------------------------------------
 # dense sweep
 # ----------------------------------------------------------------------------------------------
@@ -911,17 +905,154 @@ def _component_of(piece, point: tuple[float, float], components: Sequence) -> st
     return str(min(pool, key=lambda c: c.geometry.distance(p)).id)
 
 
-def _top_local_maxima(values: np.ndarray, k: int) -> list[int]:
-    """Indices of the ``k`` largest local maxima of a sampled profile (ends included)."""
-    v = np.asarray(values, dtype=float)
-    left = np.r_[-np.inf, v[:-1]]
-    right = np.r_[v[1:], -np.inf]
-    idx = np.nonzero((v >= left) & (v >= right) & np.isfinite(v))[0]
-    return [int(i) for i in idx[np.argsort(-v[idx], kind="stable")][: max(1, k)]]
+SLOPE_ONE_LIPSCHITZ = 2.0
+"""|h_k(1/2, b) - h_k(1/2, b')| <= 2 |b - b'| for every k (:func:`lipschitz_constants`, L_b = 1 per map)."""
+
+
+def slope_one_sup_norm_max(values_f: np.ndarray, values_g: np.ndarray, lo: float, hi: float) -> float:
+    """max over b in [lo, hi] of ||F*_f(1/2, b) - F*_g(1/2, b)||_inf, exactly (maps on one mesh).
+
+    On a = 1/2, F*(v) = max(v1 - b, v2 + b), so d_v(b) = F*_f(v) - F*_g(v) is
+    piecewise linear in b with breakpoints only at the creases (f1 - f2)(v) / 2
+    and (g1 - g2)(v) / 2; |d_v| on [lo, hi] is largest at lo, hi or a crease
+    inside. By stability (:func:`line_upper_bound`) the result bounds h_k(1/2, b)
+    for every k and every b in [lo, hi].
+    """
+    vf, vg = np.asarray(values_f, float), np.asarray(values_g, float)
+
+    def d(b):
+        return np.abs(np.maximum(vf[:, 0] - b, vf[:, 1] + b) - np.maximum(vg[:, 0] - b, vg[:, 1] + b))
+
+    m = max(float(d(lo).max(initial=0.0)), float(d(hi).max(initial=0.0)))
+    for crease in ((vf[:, 0] - vf[:, 1]) / 2, (vg[:, 0] - vg[:, 1]) / 2):
+        inside = (crease > lo) & (crease < hi)
+        if inside.any():
+            m = max(m, float(d(crease)[inside].max()))
+    return m
+
+
+def slope_one_search(ev: LineEvaluator, window: Window, groups: Sequence[Sequence[int]], *, tolerance: float,
+                     samples: int = 17, max_lines: int = 200, batch: int = 1,
+                     lipschitz: float = SLOPE_ONE_LIPSCHITZ,
+                     values: tuple[np.ndarray, np.ndarray] | None = None) -> dict[str, Any]:
+    """max over b of h on the slope-one line a = 1/2, by branch and bound, certified to ``tolerance``.
+
+    Bound. On a = 1/2, F* = max(f1 - b, f2 + b) moves by at most |b - b'| at every
+    vertex, so by stability for each map and the triangle inequality for d_B,
+    G(b) = max over a group of degrees of h_k(1/2, b) is L-Lipschitz in b with
+    L = 2 (the L_b = 1 of :func:`lipschitz_constants`, doubled as in the dense
+    sweep's error bound). Between two evaluated lines l < r,
+    G <= min(G(l) + L (x - l), G(r) + L (r - x)), whose largest value is
+
+        UB(l, r) = (G(l) + G(r)) / 2 + L (r - l) / 2,
+
+    reached at x* = (l + r) / 2 + (G(r) - G(l)) / (2 L). For two maps on one mesh
+    (``values``) the interval bound is min(UB, S(l, r)) with S the exact max over
+    [l, r] of ||F*_f - F*_g||_inf (:func:`slope_one_sup_norm_max`, no diagram):
+    stability closes intervals where h cannot exceed best + tolerance whatever
+    its slope, e.g. the flat h = |c| of g = f + (c, c).
+
+    Search (Piyavskii-Shubert). ``samples`` equally spaced values of b over the
+    window, then repeatedly: the interval with the largest UB - best is split
+    at its x* (kept at least 5% of the interval away from its ends), ``batch``
+    intervals per round (one slice each); an interval is dropped for good once
+    UB <= best + tolerance for every group. Every line is evaluated once
+    (:class:`LineEvaluator` keeps a memo by (a, b)). When no interval is left,
+    max_b G <= best + tolerance: the slope-one part of D is certified. The
+    search stops uncertified after ``max_lines`` lines (``certified`` False,
+    ``bound`` still a valid upper bound).
+
+    Parameters
+    ----------
+    ev : LineEvaluator
+    window : Window
+        Its b range is searched.
+    groups : sequence of sequences of int
+        Degree indices whose max is bounded together (one group per certified value).
+    tolerance : float
+    samples, max_lines, batch : int
+    lipschitz : float
+        L above; only a larger value keeps the bound valid.
+    values : (ndarray (n, 2), ndarray (n, 2)), optional
+        Vertex values of f and g on one mesh (same triangles), for the sup-norm bound.
+
+    Returns
+    -------
+    dict with ``best`` (per group), ``bound`` (per group: best + the largest remaining
+    UB - best, an upper bound of max_b G over the window), ``certified``, ``lines``
+    (distinct lines evaluated here), ``rounds``.
+
+    References
+    ----------
+    .. [CDFFL13] Cerri et al. (2013): stability; Piyavskii (1972), Shubert (1972):
+       sequential search for the global maximum of a Lipschitz function.
+    """
+    b_lo, b_hi = (float(x) for x in window.b)
+    n0 = ev.lines
+    ng = len(groups)
+
+    def group_values(b: np.ndarray) -> np.ndarray:
+        H = ev(np.full(b.shape, 0.5), b)  # (n_deg, n)
+        return np.array([[float(np.max(H[list(g), i])) for g in groups] for i in range(len(b))]).reshape(-1, ng)
+
+    xs = np.linspace(b_lo, b_hi, max(2, int(samples)))
+    ev.plan(len(xs))
+    G = group_values(xs)
+    best = np.max(G, axis=0)
+    min_len = 1e-12 * max(1.0, b_hi - b_lo)
+    sup_cache: dict[tuple[float, float], float] = {}
+
+    def sup_bound(lo: float, hi: float) -> float:
+        key = (lo, hi)
+        if key not in sup_cache:
+            sup_cache[key] = slope_one_sup_norm_max(values[0], values[1], lo, hi)
+        return sup_cache[key]
+
+    rounds = 0
+    certified = False
+    ub_top = best.copy()
+    while True:
+        length = np.diff(xs)
+        ub = (G[:-1] + G[1:]) / 2 + lipschitz * length[:, None] / 2  # (n - 1, ng)
+        if values is not None:
+            cap = np.array([sup_bound(float(lo), float(hi)) for lo, hi in zip(xs[:-1], xs[1:], strict=True)])
+            ub = np.minimum(ub, cap[:, None])
+        with np.errstate(invalid="ignore"):
+            gap = ub - (best + tolerance)[None, :]
+            score = np.where(np.isnan(gap), -np.inf, gap).max(axis=1)
+        ub_top = np.maximum(best, np.where(np.isnan(ub), -np.inf, ub).max(axis=0)) if len(ub) else best
+        live = (score > 0) & (length > min_len)
+        if not live.any():
+            certified = True
+            break
+        if ev.lines - n0 >= max_lines:
+            break
+        idx = np.nonzero(live)[0]
+        idx = idx[np.argsort(-score[idx], kind="stable")][:max(1, int(batch))]
+        new = []
+        for i in idx:
+            g = int(np.argmax(np.where(np.isnan(gap[i]), -np.inf, gap[i])))
+            lo, hi = xs[i], xs[i + 1]
+            x = (lo + hi) / 2 + (G[i + 1, g] - G[i, g]) / (2 * lipschitz)
+            x = min(max(x, lo + 0.05 * (hi - lo)), hi - 0.05 * (hi - lo))
+            new.append(x)
+        new = np.array(new)
+        ev.plan(len(new))
+        Gn = group_values(new)
+        best = np.maximum(best, np.max(Gn, axis=0))
+        at = np.searchsorted(xs, new)
+        xs = np.insert(xs, at, new)
+        G = np.insert(G, at, Gn, axis=0)
+        order = np.argsort(xs, kind="stable")  # several splits in one round: keep xs sorted
+        xs, G = xs[order], G[order]
+        rounds += 1
+    return {"best": best.tolist(), "bound": ub_top.tolist(), "certified": certified,
+            "lines": ev.lines - n0, "rounds": rounds}
 
 
 def reduced_search(ev: LineEvaluator, window: Window, atlas, contours_by_id: dict, *, tolerance: float,
-                   upper: float, slope_samples: int = 41, slope_refine: int = 3, spacing: float = 1 / 200, roles: bool = True,
+                   upper: float, slope_samples: int = 17, slope_max_lines: int = 200, spacing: float = 1 / 200,
+                   roles: bool = True,
                    certify: str = "max", polish: bool = True, batch: int | None = None,
                    local_bound: bool = True, polish_iters: int = 6) -> dict[str, Any]:
     """D_k = max(max_b h_k(1/2, b), sup of h_k over the special set) [EFQT23, FMQT].
@@ -941,8 +1072,10 @@ def reduced_search(ev: LineEvaluator, window: Window, atlas, contours_by_id: dic
     (:func:`special_candidates`). Every candidate c has h(c) <= D, so a
     candidate with t(c) > D has h(c) < t(c).
 
-    1. Slope-one line: ``slope_samples`` values of b, the best refined by
-       golden-section search; ``best`` is its value.
+    1. Slope-one line: :func:`slope_one_search`, a branch and bound in b with
+       the Lipschitz constant 2 of h along a = 1/2, from ``slope_samples``
+       equally spaced lines until max_b h <= best + tolerance / 2 is certified
+       (at most ``slope_max_lines`` lines); ``best`` is its value.
     2. Candidates in descending order of t (sort key ``hi``, the larger side
        off the curve); a candidate is dropped when
        - ``below_best``: t <= best + tol (then so is every later one);
@@ -975,7 +1108,8 @@ def reduced_search(ev: LineEvaluator, window: Window, atlas, contours_by_id: dic
     ``outside_window``; candidates: ``below_best``, ``above_bound``,
     ``line_bound``, ``local_bound``; ``candidates_total``, ``candidates_evaluated``,
     ``crossings``, ``early_stop``), ``stop`` (the stopping candidate or None),
-    ``candidate_seconds``.
+    ``candidate_seconds``, ``slope_search`` (:func:`slope_one_search`; None when
+    the window leaves out a = 1/2).
     """
     if certify not in ("max", "each"):
         raise ValueError("certify must be 'max' or 'each'")
@@ -984,31 +1118,19 @@ def reduced_search(ev: LineEvaluator, window: Window, atlas, contours_by_id: dic
     nd = len(ev.degrees)
     slope = [_Best() for _ in range(nd)]
     special = [_Best() for _ in range(nd)]
-    (b_lo, b_hi) = window.b
-    # 1. slope-one line
+    groups = [[j] for j in range(nd)] if certify == "each" else [list(range(nd))]
+    step = batch or (1 if ev.jobs == 1 else 2 * ev.jobs)
+    same_mesh = ev.val_f.shape == ev.val_g.shape and np.array_equal(ev.tri_f, ev.tri_g)
+    # 1. slope-one line: branch and bound with the Lipschitz constant 2 in b, to tolerance / 2
+    slope_info = None
     if window.a[0] <= 0.5 <= window.a[1]:
-        bs = np.linspace(b_lo, b_hi, max(3, int(slope_samples)))
-        ev.plan(len(bs))
-        H = ev(np.full(bs.shape, 0.5), bs)
-        db = bs[1] - bs[0]
-        for j in range(nd):
-            i = int(np.argmax(np.where(np.isnan(H[j]), -np.inf, H[j])))
-            slope[j].offer(H[j, i], (0.5, bs[i]), "slope-one")
-        order = sorted(range(nd), key=lambda j: -slope[j].value)
-        for j in order if certify == "each" else order[:1]:
-            if not math.isfinite(slope[j].value):
-                continue
-            # h is rough at mesh scale: refine the best few sampled local maxima, not only the top one
-            for i in _top_local_maxima(np.where(np.isnan(H[j]), -np.inf, H[j]), slope_refine):
-                lo, hi = max(b_lo, bs[i] - db), min(b_hi, bs[i] + db)
-                it = _golden_iters(hi - lo, tolerance / 2)
-                ev.plan(it + 2)
-                _golden_max(lambda x, j=j: float(ev(0.5, x)[j]), lo, hi, it)
+        slope_info = slope_one_search(ev, window, groups, tolerance=tolerance / 2, samples=slope_samples,
+                                      max_lines=slope_max_lines, batch=step,
+                                      values=(ev.val_f, ev.val_g) if same_mesh else None)
         for (a, b), v in list(ev.memo.items()):
             if a == 0.5:
                 for j in range(nd):
                     slope[j].offer(v[j], (a, b), "slope-one")
-    groups = [[j] for j in range(nd)] if certify == "each" else [list(range(nd))]
     best = np.array([max(slope[j].value for j in g) for g in groups])
 
     # 2. candidates, then the descending pass
@@ -1022,7 +1144,6 @@ def reduced_search(ev: LineEvaluator, window: Window, atlas, contours_by_id: dic
     components = tuple(getattr(atlas, "components", ()) or ())
     ca, cb, clo, chi = cand["a"], cand["b"], cand["lo"], cand["hi"]
     n = len(ca)
-    same_mesh = ev.val_f.shape == ev.val_g.shape and np.array_equal(ev.tri_f, ev.tri_g)
     local = _LocalBound(ev.val_f, ev.val_g, window) if (same_mesh and local_bound) else None
     if local is not None:
         known = [(p, v) for p, v in ev.memo.items()]
@@ -1033,7 +1154,6 @@ def reduced_search(ev: LineEvaluator, window: Window, atlas, contours_by_id: dic
     counts = {"below_best": int(cand["below_floor"]), "above_bound": 0, "line_bound": 0, "local_bound": 0}
     order = np.argsort(-chi, kind="stable")
     line_b = np.full(n, np.nan)
-    step = batch or (1 if ev.jobs == 1 else 2 * ev.jobs)
     evaluated: list[int] = []
     stop = None
     open_g = np.ones(len(groups), dtype=bool)
@@ -1109,7 +1229,8 @@ def reduced_search(ev: LineEvaluator, window: Window, atlas, contours_by_id: dic
               "candidates_evaluated": len(evaluated), "crossings": cand["crossings"],
               "early_stop": stop is not None}
     return {"slope": slope, "special": special, "lines": ev.lines - n0, "seconds": time.perf_counter() - t0,
-            "certify": certify, "pruned": pruned, "stop": stop, "candidate_seconds": cand_seconds}
+            "certify": certify, "pruned": pruned, "stop": stop, "candidate_seconds": cand_seconds,
+            "slope_search": slope_info}
 
 
 # ----------------------------------------------------------------------------------------------
@@ -1227,7 +1348,7 @@ def _grids_pair(grids) -> tuple | None:
 def matching_distance(shape_f, shape_g, *, method: str = "both", degrees: Iterable[int] = DEGREES,
                       window: Window | None = None, atlas=None, grids=None, jobs: int = 1,
                       dense_resolution: int = 41, progress: Progress | None = None,
-                      tolerance: float | None = None, slope_samples: int = 41,
+                      tolerance: float | None = None, slope_samples: int = 17,
                       spacing: float = 1 / 200, roles: bool = True, certify: str = "max",
                       position_lines: int = 20) -> DistanceResult:
     """Matching distance D_k(f, g) of two meshed maps, dense, reduced or both.
@@ -1377,6 +1498,7 @@ def matching_distance(shape_f, shape_g, *, method: str = "both", degrees: Iterab
                   "special": {str(k): {"value": red["special"][j].value, "at": _pt(red["special"][j].at),
                                        "component": red["special"][j].component}
                               for j, k in enumerate(degrees)},
+                  "slope_search": red["slope_search"],
                   "settings": {"slope_samples": slope_samples, "spacing": spacing, "roles": roles,
                                "certify": certify},
                   "degree": degrees[jbest]}

@@ -7,7 +7,9 @@ Sources named beside each check:
 - "symmetry (math.md 6)": g = f o rho for a symmetry rho of the surface gives D = 0; on meshes the
   two PL interpolations differ from the smooth map by at most Lip * longest edge each;
 - "main theorem [EFQT23, FMQT]": the reduced search (slope-one line + special set) reaches the
-  dense maximum.
+  dense maximum;
+- "closed form, derived in the test": an h known in closed form on a = 1/2 (a duck-typed evaluator)
+  for the branch and bound of the slope-one line.
 """
 
 from __future__ import annotations
@@ -28,6 +30,8 @@ from specmap.distance import (
     lipschitz_constants,
     matching_distance,
     reduced_search,
+    slope_one_search,
+    slope_one_sup_norm_max,
     special_candidates,
     tie_costs,
 )
@@ -419,3 +423,93 @@ def test_candidate_floor_skips_crossings_of_low_ties():
     assert full["crossings"] == 3 and full["pruned"]["crossing_pairs_below_floor"] == 0
     assert cut["crossings"] == 2 and cut["pruned"]["crossing_pairs_below_floor"] == 1  # (C, D) skipped
     np.testing.assert_array_equal(cut["hi"], full["hi"][full["hi"] > 0.3 + 1e-6])
+
+
+class _SlopeOneEvaluator:
+    """Duck-typed LineEvaluator, h known on a = 1/2 (closed form, derived in the test).
+
+    Degree 0: a broad hump 0.3 - 0.5 |b + 0.6| (max 0.3 at b = -0.6); degree 1: a narrow peak
+    max(0.05, 0.4 - 1.5 |b - 0.3137|) (max 0.4 at b = 0.3137; slope 1.5 < 2, so the cone's apex
+    misses the peak and the search must refine). Both are 2-Lipschitz in b, as h is
+    (lipschitz_constants).
+    """
+
+    peak = 0.3137
+
+    def __init__(self):
+        self.degrees, self.jobs, self.memo = (0, 1), 1, {}
+
+    def plan(self, n):
+        pass
+
+    @property
+    def lines(self):
+        return len(self.memo)
+
+    def __call__(self, a, b):
+        a, b = np.broadcast_arrays(np.asarray(a, float), np.asarray(b, float))
+        assert np.all(a == 0.5)
+        h = np.stack([0.3 - 0.5 * np.abs(b + 0.6), np.maximum(0.05, 0.4 - 1.5 * np.abs(b - self.peak))])
+        for x, y, v in zip(a.ravel(), b.ravel(), h.reshape(2, -1).T, strict=True):
+            self.memo[(float(x), float(y))] = v
+        return h
+
+
+@pytest.mark.parametrize("batch", [1, 3])
+def test_slope_one_branch_and_bound_keeps_the_true_maximum(batch):
+    # closed form, derived in the test (_SlopeOneEvaluator): max over b and degrees is 0.4 at b = 0.3137,
+    # between the initial samples (spacing 0.125): the best of them is 0.308 (b = 0.375), the decoy hump
+    # gives 0.2875 (b = -0.625). The branch and bound must not prune the peak: bound >= 0.4 and
+    # best >= 0.4 - tol.
+    w = Window((0.02, 0.98), (-1.0, 1.0))
+    tol = 1e-3
+    ev = _SlopeOneEvaluator()
+    out = slope_one_search(ev, w, [[0, 1]], tolerance=tol, samples=17, batch=batch)
+    assert out["certified"] is True
+    assert out["bound"][0] >= 0.4 - 1e-12
+    assert 0.4 - tol <= out["best"][0] <= 0.4 + 1e-12
+    assert out["bound"][0] <= out["best"][0] + tol
+    assert out["lines"] == ev.lines < 200  # each line once
+    # per degree (certify="each"): both maxima certified, the decoy's 0.3 included
+    ev = _SlopeOneEvaluator()
+    out = slope_one_search(ev, w, [[0], [1]], tolerance=tol, samples=17, batch=batch)
+    assert out["certified"] is True
+    assert out["best"][0] == pytest.approx(0.3, abs=tol) and out["best"][1] == pytest.approx(0.4, abs=tol)
+    assert out["bound"][0] >= 0.3 - 1e-12 and out["bound"][1] >= 0.4 - 1e-12
+
+
+def test_slope_one_branch_and_bound_on_a_mesh_against_a_fine_scan():
+    # The certified bound holds on real slice diagrams: no line of a fine scan of a = 1/2 exceeds it
+    # (Lipschitz constant 2 in b, lipschitz_constants), and the value found is within tol of it.
+    V, T, f = ellipsoid_pair(200)
+    g = f + 0.1 * np.c_[np.sin(3 * V[:, 2]), np.cos(2 * V[:, 0])]
+    sf, sg = shapes(V, T, f, g)
+    w = default_window(sf.value_bounds(), sg.value_bounds())
+    tol = 2e-3
+    ev = LineEvaluator(sf, sg)
+    out = slope_one_search(ev, w, [[0, 1, 2]], tolerance=tol, values=(f, g))
+    scan = h_values(sf, sg, 0.5, np.linspace(*w.b, 801)).max(axis=0)
+    assert out["certified"] is True
+    assert scan.max() <= out["bound"][0] + 1e-12
+    assert out["best"][0] >= out["bound"][0] - tol
+    assert out["lines"] < 801
+
+
+def test_slope_one_sup_norm_bound_closes_the_flat_shift():
+    # math.md 6, closed form derived here: g = f + (c, c) gives F*_g = F*_f + c on a = 1/2, so
+    # ||F*_f - F*_g||_inf = |c| = h_0 for every b. The Lipschitz cone alone cannot close a flat
+    # maximum to a tight tolerance; with the exact sup-norm bound the initial samples certify it.
+    V, T, f = ellipsoid_pair(200)
+    c = 0.15
+    sf, sg = shapes(V, T, f, f + c)
+    w = default_window(sf.value_bounds(), sg.value_bounds())
+    assert slope_one_sup_norm_max(f, f + c, *w.b) == pytest.approx(c, abs=1e-12)
+    out = slope_one_search(LineEvaluator(sf, sg, (0,)), w, [[0]], tolerance=1e-9, samples=9, values=(f, f + c))
+    assert out["certified"] is True and out["lines"] == 9
+    assert out["best"][0] == pytest.approx(c, abs=1e-12) and out["bound"][0] == pytest.approx(c, abs=1e-12)
+    cone = slope_one_search(LineEvaluator(sf, sg, (0,)), w, [[0]], tolerance=1e-9, samples=9, max_lines=30)
+    assert cone["certified"] is False and cone["lines"] == 30 and cone["bound"][0] >= c
+    # the sup-norm bound is the exact max over the interval: a fine scan never exceeds it
+    g = f + 0.1 * np.c_[np.sin(3 * V[:, 2]), np.cos(2 * V[:, 0])]
+    bs = np.linspace(-0.4, 0.3, 2001)
+    assert line_upper_bound(f, g, 0.5, bs).max() <= slope_one_sup_norm_max(f, g, -0.4, 0.3) + 1e-12
