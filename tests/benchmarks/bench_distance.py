@@ -1,9 +1,11 @@
 """Benchmark: reduced search vs dense sweep for the matching distance.
 
-Run ``python tests/benchmarks/bench_distance.py [vertices] [jobs]`` for a rough pair (two
-non-linear maps on one ellipsoid mesh, PL grids), or
-``python tests/benchmarks/bench_distance.py studies/demo.toml [jobs]`` for the demo study's pair
-(its own grids, window and mesh). Builds the extended Pareto grids and special-set atlas, then
+Run ``python tests/benchmarks/bench_distance.py [vertices] [jobs] [--repeat N]`` for a rough pair
+(two non-linear maps on one ellipsoid mesh, PL grids), or
+``python tests/benchmarks/bench_distance.py studies/demo.toml [jobs] [--repeat N]`` for the demo
+study's pair (its own grids, window and mesh). With ``--repeat N`` the atlas, the reduced search and
+the dense sweep are each run N times (fresh evaluators, no shared lines) and the median seconds
+are reported (the machine may be shared: single timings are noisy). Builds the extended Pareto grids and special-set atlas, then
 runs the dense sweep and the reduced search separately (no shared lines) and writes a markdown
 table to ``tests/benchmarks/results_distance.md``.
 
@@ -16,6 +18,7 @@ an independent lower bound of D that shows how rough h is on this mesh.
 
 from __future__ import annotations
 
+import statistics
 import sys
 import time
 from pathlib import Path
@@ -57,7 +60,17 @@ def study_pair(path: str):
     return sf, sg, gf, gg, run.window, t_grid, desc
 
 
-def main(n: int | str = 1500, jobs: int = 1) -> str:
+def _timed(fun, repeat: int):
+    """(last result, median seconds, all seconds) of ``repeat`` calls of ``fun``."""
+    secs, out = [], None
+    for _ in range(max(1, repeat)):
+        t = time.perf_counter()
+        out = fun()
+        secs.append(time.perf_counter() - t)
+    return out, statistics.median(secs), secs
+
+
+def main(n: int | str = 1500, jobs: int = 1, repeat: int = 1) -> str:
     if isinstance(n, str):
         sf, sg, gf, gg, w, t_grid, desc = study_pair(n)
         out = OUT.with_name("results_distance_" + Path(n).stem + ".md")
@@ -71,21 +84,13 @@ def main(n: int | str = 1500, jobs: int = 1) -> str:
         out = OUT
         desc = (f"ellipsoid (1.6, 1, 0.8), {len(sf.values)} vertices; f = (x + 0.35 z^2, y + 0.25 x z), "
                 "g = (x + 0.3 sin 1.5z + 0.1 y, y - 0.2 z^2 + 0.1 x)")
-    t = time.perf_counter()
-    atlas = special_set(gf, gg, w)
-    t_atlas = time.perf_counter() - t
+    atlas, t_atlas, atlas_all = _timed(lambda: special_set(gf, gg, w), repeat)
     rng = value_range(sf, sg)
-    rows = []
-    for certify in ("max",):
-        t = time.perf_counter()
-        red = matching_distance(sf, sg, method="reduced", atlas=atlas, grids=(gf, gg), window=w, jobs=jobs,
-                                certify=certify, position_lines=0)
-        red_s = time.perf_counter() - t
-        rows.append(("reduced", red.value, red.reduced["lines"], red_s, red))
-    t = time.perf_counter()
-    den = matching_distance(sf, sg, method="dense", window=w, jobs=jobs, dense_resolution=41, position_lines=0)
-    den_s = time.perf_counter() - t
-    red = rows[0][4]
+    red, red_s, red_all = _timed(lambda: matching_distance(sf, sg, method="reduced", atlas=atlas, grids=(gf, gg),
+                                                           window=w, jobs=jobs, certify="max", position_lines=0),
+                                 repeat)
+    den, den_s, den_all = _timed(lambda: matching_distance(sf, sg, method="dense", window=w, jobs=jobs,
+                                                           dense_resolution=41, position_lines=0), repeat)
     t = time.perf_counter()
     bs = np.linspace(*w.b, 401)
     scan = h_values(sf, sg, 0.5, bs).max(axis=0)
@@ -93,6 +98,8 @@ def main(n: int | str = 1500, jobs: int = 1) -> str:
     i_scan = int(np.argmax(scan))
     diff = red.value - den.value
     pr = red.reduced["pruned"]
+    ss = red.reduced["slope_search"] or {"lines": 0, "certified": None, "bound": [float("nan")],
+                                         "best": [float("nan")]}
     lines = [
         "# Matching distance: reduced search vs dense sweep",
         "",
@@ -122,6 +129,11 @@ def main(n: int | str = 1500, jobs: int = 1) -> str:
         f"{pr['above_bound']}, line_bound {pr['line_bound']}, local_bound {pr['local_bound']}; ties pruned "
         f"for roles {pr['roles']}, not met {pr['not_met']}; early stop: {pr['early_stop']}",
         f"- slope-one part of the reduced search: {red.reduced['slope_one']}",
+        f"- slope-one branch and bound (Lipschitz 2 in b, tolerance {red.tolerance / 2:.3g}): "
+        f"{ss['lines']} of the {red.reduced['lines']} reduced slices, certified {ss['certified']}, "
+        f"max over b of h(1/2, b) <= {ss['bound'][0]:.6f} (best {ss['best'][0]:.6f})",
+        f"- timings (s, {len(red_all)} runs each, medians above): atlas {_secs(atlas_all)}; reduced "
+        f"{_secs(red_all)}; dense {_secs(den_all)}",
         "",
     ]
     text = "\n".join(lines)
@@ -132,6 +144,16 @@ def main(n: int | str = 1500, jobs: int = 1) -> str:
     return text
 
 
+def _secs(xs) -> str:
+    return ", ".join(f"{x:.2f}" for x in xs)
+
+
 if __name__ == "__main__":
-    args = [x if x.endswith(".toml") else int(x) for x in sys.argv[1:]]
-    print(main(*args))
+    argv = sys.argv[1:]
+    repeat = 1
+    if "--repeat" in argv:
+        i = argv.index("--repeat")
+        repeat = int(argv[i + 1])
+        del argv[i:i + 2]
+    args = [x if x.endswith(".toml") else int(x) for x in argv]
+    print(main(*args, repeat=repeat))
