@@ -998,7 +998,7 @@ def slope_one_search(ev: LineEvaluator, window: Window, groups: Sequence[Sequenc
     xs = np.linspace(b_lo, b_hi, max(2, int(samples)))
     ev.plan(len(xs))
     G = group_values(xs)
-    best = np.max(G, axis=0)
+    best = np.where(np.isnan(G), -np.inf, G).max(axis=0)
     min_len = 1e-12 * max(1.0, b_hi - b_lo)
     sup_cache: dict[tuple[float, float], float] = {}
 
@@ -1023,7 +1023,8 @@ def slope_one_search(ev: LineEvaluator, window: Window, groups: Sequence[Sequenc
         ub_top = np.maximum(best, np.where(np.isnan(ub), -np.inf, ub).max(axis=0)) if len(ub) else best
         live = (score > 0) & (length > min_len)
         if not live.any():
-            certified = True
+            # a NaN value bounds nothing, an open interval below min_len is not closed: no certificate then
+            certified = not (score > 0).any() and not np.isnan(G).any()
             break
         if ev.lines - n0 >= max_lines:
             break
@@ -1039,13 +1040,14 @@ def slope_one_search(ev: LineEvaluator, window: Window, groups: Sequence[Sequenc
         new = np.array(new)
         ev.plan(len(new))
         Gn = group_values(new)
-        best = np.maximum(best, np.max(Gn, axis=0))
+        best = np.maximum(best, np.where(np.isnan(Gn), -np.inf, Gn).max(axis=0))
         at = np.searchsorted(xs, new)
         xs = np.insert(xs, at, new)
         G = np.insert(G, at, Gn, axis=0)
         order = np.argsort(xs, kind="stable")  # several splits in one round: keep xs sorted
         xs, G = xs[order], G[order]
         rounds += 1
+    ub_top = np.where(np.isnan(G).any(axis=0), math.inf, ub_top)
     return {"best": best.tolist(), "bound": ub_top.tolist(), "certified": certified,
             "lines": ev.lines - n0, "rounds": rounds}
 
