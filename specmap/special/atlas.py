@@ -21,6 +21,7 @@ import shapely
 from shapely.geometry import mapping
 
 from specmap.io import to_plain
+from specmap.special.kernels import lattice_labels
 from specmap.special.pairs import Tie, tie_from_json
 from specmap.strip import Window
 
@@ -255,89 +256,17 @@ def _segment_links(lines: list, eps: float) -> tuple[np.ndarray, np.ndarray]:
     return np.arange(n_lines), rep[label]
 
 
-def _circle_links(cell: np.ndarray, t0: np.ndarray, t1: np.ndarray, owner: np.ndarray
-                  ) -> tuple[np.ndarray, np.ndarray]:
-    """Links between chords of a cell whose end points interleave on the cell's perimeter.
-
-    Two chords of a convex cell cross exactly when their end points alternate
-    along the perimeter (perimeter positions ``t0 < t1`` in [0, 4)). One scan of
-    the sorted end points per cell with a stack of merged groups (a chord that
-    closes crosses every chord opened after it and still open) gives a set of
-    links with the same connected components as the crossing graph, in
-    O(k log k) for k chords instead of O(k^2) pair tests.
-
-    Returns
-    -------
-    (u, v) : ndarray of int
-        Links between ``owner`` values (lines).
-    """
-    k = cell.size
-    if k < 2:
-        z = np.zeros(0, np.int64)
-        return z, z
-    ev_cell = np.concatenate([cell, cell])
-    ev_t = np.concatenate([t0, t1])
-    ev_chord = np.concatenate([np.arange(k), np.arange(k)])
-    ev_open = np.concatenate([np.ones(k, bool), np.zeros(k, bool)])
-    order = np.lexsort((~ev_open, ev_t, ev_cell))
-    # cells with a single chord need no scan
-    cnt = np.bincount(cell)
-    order = order[cnt[ev_cell[order]] > 1]
-    cells_l = ev_cell[order].tolist()
-    chords_l = ev_chord[order].tolist()
-    open_l = ev_open[order].tolist()
-    own = owner.tolist()
-    lu: list[int] = []
-    lv: list[int] = []
-    group = [0] * k  # chord -> group id
-    parent: list[int] = []  # group -> merged-into group
-    rep: list[int] = []  # group -> owner representative
-    count: list[int] = []  # group -> open chords
-    pos: list[int] = []  # group -> stack position
-    stack: list[int] = []
-    cur = -1
-    for c, ch, is_open in zip(cells_l, chords_l, open_l, strict=True):
-        if c != cur:
-            cur = c
-            stack = []
-        if is_open:
-            g = len(parent)
-            parent.append(g)
-            rep.append(own[ch])
-            count.append(1)
-            pos.append(len(stack))
-            stack.append(g)
-            group[ch] = g
-            continue
-        g = group[ch]
-        while parent[g] != g:
-            parent[g] = parent[parent[g]]
-            g = parent[g]
-        p = pos[g]
-        if p + 1 < len(stack):
-            for h in stack[p + 1:]:
-                parent[h] = g
-                count[g] += count[h]
-                if rep[h] != rep[g]:
-                    lu.append(rep[h])
-                    lv.append(rep[g])
-            del stack[p + 1:]
-        count[g] -= 1
-        if count[g] == 0:
-            stack.pop()
-    return np.array(lu, dtype=np.int64), np.array(lv, dtype=np.int64)
-
-
 def _lattice_links(lines: list, eps: float, lattice) -> tuple[np.ndarray, np.ndarray]:
     """Links (i, j) between lines whose union connects every set of touching lines.
 
     Uses the sample lattice the curves were traced on: every segment whose two
     end points lie on the boundary of one lattice cell (a marching-squares
     chord) is tested against the other chords of its cell by the interleaving
-    of end points on the perimeter (:func:`_circle_links`). The few other
-    segments (ends on the domain boundary) are tested with the exact segment
-    test against every segment of the cells their box touches. Lines sharing a
-    vertex (to ``eps``) are linked directly.
+    of end points on the perimeter, and lines sharing a vertex (to ``eps``) are
+    joined (compiled: :func:`specmap.special.kernels.lattice_labels`). The few
+    other segments (ends on the domain boundary) are tested with the exact
+    segment test against the segments of other components in the cells their
+    box touches.
     """
     if not lines:
         z = np.zeros(0, np.int64)
@@ -346,39 +275,11 @@ def _lattice_links(lines: list, eps: float, lattice) -> tuple[np.ndarray, np.nda
     n_lines = len(lines)
     av, bv = lattice.av, lattice.bv
     na1, nb1 = av.size - 1, bv.size - 1
-    # links by shared vertices (ids of rounded vertices by one lexsort)
-    key = np.round(np.vstack([p, q]) / eps).astype(np.int64)
-    order = np.lexsort((key[:, 1], key[:, 0]))
-    ks = key[order]
-    new_v = np.concatenate([[True], np.any(ks[1:] != ks[:-1], axis=1)])
-    vid = np.empty(key.shape[0], dtype=np.int64)
-    vid[order] = np.cumsum(new_v) - 1
-    la = [np.concatenate([owner, owner])]
-    lb = [n_lines + vid]
-    # the cell of every segment (by its midpoint) and perimeter positions of its ends
-    mid = 0.5 * (p + q)
-    ci = np.clip(np.searchsorted(av, mid[:, 0], side="right") - 1, 0, na1 - 1)
-    cj = np.clip(np.searchsorted(bv, mid[:, 1], side="right") - 1, 0, nb1 - 1)
-    a0, a1, b0, b1 = av[ci], av[ci + 1], bv[cj], bv[cj + 1]
-    wa, wb = a1 - a0, b1 - b0
-
-    def perimeter(x):
-        d = np.stack([np.abs(x[:, 1] - b0), np.abs(x[:, 0] - a1), np.abs(x[:, 1] - b1), np.abs(x[:, 0] - a0)])
-        side = np.argmin(d, axis=0)
-        on = (d[side, np.arange(side.size)] <= 1e-9 * np.minimum(wa, wb)) & (x[:, 0] >= a0 - eps) & \
-             (x[:, 0] <= a1 + eps) & (x[:, 1] >= b0 - eps) & (x[:, 1] <= b1 + eps)
-        fa = np.clip((x[:, 0] - a0) / wa, 0.0, 1.0)
-        fb = np.clip((x[:, 1] - b0) / wb, 0.0, 1.0)
-        t = np.choose(side, [fa, 1.0 + fb, 3.0 - fa, 4.0 - fb])
-        return t, on
-
-    tp, onp = perimeter(p)
-    tq, onq = perimeter(q)
-    chord = onp & onq
-    cell = cj * na1 + ci
-    u, v = _circle_links(cell[chord], np.minimum(tp, tq)[chord], np.maximum(tp, tq)[chord], owner[chord])
-    la.append(u)
-    lb.append(v)
+    ends = np.vstack([p, q])
+    kk = np.round((ends - ends.min(axis=0)) / eps).astype(np.int64)
+    vkey = kk[:, 0] * (int(kk[:, 1].max()) + 1) + kk[:, 1]
+    label, cell, chord = lattice_labels(np.ascontiguousarray(p), np.ascontiguousarray(q), owner, n_lines,
+                                        np.asarray(av, float), np.asarray(bv, float), eps, vkey, np.argsort(vkey))
     extra = np.nonzero(~chord)[0]
     if extra.size:
         # every cell an extra segment's box touches, against every segment of those cells
@@ -395,9 +296,9 @@ def _lattice_links(lines: list, eps: float, lattice) -> tuple[np.ndarray, np.nda
         dy, dx = np.divmod(r, nx_[sid])
         ecell = (j0[sid] + dy) * na1 + i0[sid] + dx
         eseg = extra[sid]
-        # components so far (shared vertices, chords): only pairs of different ones need a test
-        lab = _labels(n_lines + int(vid.max()) + 1, la, lb)[:n_lines][owner]
-        nl = int(lab.max()) + 1
+        # only pairs of different components (so far) need a test
+        lab = label[owner]
+        nl = n_lines
         # segments listed per cell (chords by their cell, extras by every touched cell), by component
         all_cell = np.concatenate([cell[chord], ecell])
         all_seg = np.concatenate([np.nonzero(chord)[0], eseg])
@@ -422,13 +323,13 @@ def _lattice_links(lines: list, eps: float, lattice) -> tuple[np.ndarray, np.nda
         keep = ((blo[src, 0] <= bhi[dst, 0] + 2 * eps) & (blo[dst, 0] <= bhi[src, 0] + 2 * eps)
                 & (blo[src, 1] <= bhi[dst, 1] + 2 * eps) & (blo[dst, 1] <= bhi[src, 1] + 2 * eps))
         src, dst = src[keep], dst[keep]
+        la, lb = [np.arange(n_lines)], [label]
         for s0 in range(0, src.size, 2_000_000):
             su, sv = src[s0:s0 + 2_000_000], dst[s0:s0 + 2_000_000]
             hit = _segments_close(p[su], q[su], p[sv], q[sv], eps)
             la.append(owner[su[hit]])
             lb.append(owner[sv[hit]])
-    n_nodes = n_lines + int(vid.max()) + 1
-    label = _labels(n_nodes, la, lb)[:n_lines]
+        label = _labels(n_lines, la, lb)
     rep = np.full(int(label.max()) + 1, -1, dtype=np.int64)
     rep[label[::-1]] = np.arange(n_lines)[::-1]
     return np.arange(n_lines), rep[label]

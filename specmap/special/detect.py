@@ -30,6 +30,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from specmap.special.evaluate import sample_contours
+from specmap.special.kernels import sweep_rows
 from specmap.special.lattice import Lattice
 from specmap.special.pairs import PairTable, all_tie_codes, equal_allowed, half_allowed
 from specmap.strip import push_scale
@@ -172,10 +173,12 @@ def _as_ties(table: PairTable, items: Items, u: np.ndarray, v: np.ndarray):
     return keep, cond, P, Q, big_i, small_i
 
 
-def _swapped(V0, V1, e, big_i, small_i, snap: float, tol: float) -> np.ndarray:
-    f0 = V0[e, big_i] - V0[e, small_i]
-    f1 = V1[e, big_i] - V1[e, small_i]
-    return ((f0 >= -snap) != (f1 >= -snap)) & (np.maximum(np.abs(f0), np.abs(f1)) > tol)
+def sorted_unique(x: np.ndarray) -> np.ndarray:
+    """``np.unique`` of a 1-d int array by one sort (faster than numpy's hash-based unique here)."""
+    x = np.sort(x)
+    if x.size < 2:
+        return x
+    return x[np.concatenate([[True], x[1:] != x[:-1]])]
 
 
 def find_crossings(table: PairTable, samples: Samples, *, method: str = "sweep", tol: float,
@@ -219,38 +222,41 @@ def find_crossings(table: PairTable, samples: Samples, *, method: str = "sweep",
         acond, aP, aQ = table.decode(all_codes)
         abig = aP
         asmall = np.where(acond == 1, items.doubled_index[aQ], aQ)
-    for j in range(nb):
+    if method == "sweep":
+        m_col = push_scale(lat.av)
+        roles = table.mode == "roles"
+        step = max(1, nb // 40)
+        for j0 in range(0, nb, step):
+            j1 = min(nb, j0 + step)
+            code, ee, cand = sweep_rows(samples.s, samples.met, samples.cell_pair, table.first, table.second,
+                                        table.cross, roles, m_col, j0, j1, snap, tol)
+            n_cand += int(cand)
+            n_swap += code.size
+            codes_out.append(code)
+            edges_out.append(ee)
+            if progress is not None:
+                progress(progress_offset + j1, total)
+    for j in range(nb if method == "naive" else 0):
         for k in (j, j + 1):
             if k < nb and k not in dv:
                 dv[k] = samples.pair_values(table, k)
         dv.pop(j - 1, None)
         edges, V0, V1, pres = _row_edges(lat, samples, table, j, items, dv)
-        if method == "sweep":
-            lo = np.minimum(V0, V1)
-            hi = np.maximum(V0, V1)
-            e, u, v = _overlaps(lo, hi, pres, snap)
-            n_cand += e.size
-            keep, cond, P, Q, big_i, small_i = _as_ties(table, items, u, v)
-            e, cond, P, Q, big_i, small_i = (x[keep] for x in (e, cond, P, Q, big_i, small_i))
-            sw = _swapped(V0, V1, e, big_i, small_i, snap, tol)
-            code = table.encode(cond[sw], P[sw], Q[sw])
-            ee = e[sw]
-        else:
-            code_l, ee_l = [], []
-            step = max(1, 4_000_000 // max(len(edges), 1))
-            for t0 in range(0, all_codes.size, step):
-                sl = slice(t0, t0 + step)
-                b_i, s_i = abig[sl], asmall[sl]
-                n_cand += b_i.size * len(edges)
-                f0 = V0[:, b_i] - V0[:, s_i]
-                f1 = V1[:, b_i] - V1[:, s_i]
-                ok = pres[:, b_i] & pres[:, s_i]
-                sw = ok & ((f0 >= -snap) != (f1 >= -snap)) & (np.maximum(np.abs(f0), np.abs(f1)) > tol)
-                ei, ti = np.nonzero(sw)
-                code_l.append(all_codes[sl][ti])
-                ee_l.append(ei)
-            code = np.concatenate(code_l)
-            ee = np.concatenate(ee_l)
+        code_l, ee_l = [], []
+        step = max(1, 4_000_000 // max(len(edges), 1))
+        for t0 in range(0, all_codes.size, step):
+            sl = slice(t0, t0 + step)
+            b_i, s_i = abig[sl], asmall[sl]
+            n_cand += b_i.size * len(edges)
+            f0 = V0[:, b_i] - V0[:, s_i]
+            f1 = V1[:, b_i] - V1[:, s_i]
+            ok = pres[:, b_i] & pres[:, s_i]
+            sw = ok & ((f0 >= -snap) != (f1 >= -snap)) & (np.maximum(np.abs(f0), np.abs(f1)) > tol)
+            ei, ti = np.nonzero(sw)
+            code_l.append(all_codes[sl][ti])
+            ee_l.append(ei)
+        code = np.concatenate(code_l)
+        ee = np.concatenate(ee_l)
         n_swap += code.size
         codes_out.append(code)
         edges_out.append(edges[ee])
@@ -258,9 +264,10 @@ def find_crossings(table: PairTable, samples: Samples, *, method: str = "sweep",
             progress(progress_offset + j + 1, total)
     codes = np.concatenate(codes_out) if codes_out else np.zeros(0, np.int64)
     eids = np.concatenate(edges_out) if edges_out else np.zeros(0, np.int64)
-    keep = relevant_cells(table, samples, codes, eids).any(axis=1)
-    codes, eids = codes[keep], eids[keep]
-    key = np.unique(codes * lat.n_edges + eids)
+    if method == "naive":  # the sweep kernel tests the cells beside each edge itself
+        keep = relevant_cells(table, samples, codes, eids).any(axis=1)
+        codes, eids = codes[keep], eids[keep]
+    key = sorted_unique(codes * lat.n_edges + eids)
     codes, eids = np.divmod(key, lat.n_edges)
     stats = {"candidate_item_pairs": int(n_cand), "swaps": int(n_swap), "crossings": int(codes.size)}
     return codes, eids, stats

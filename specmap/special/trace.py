@@ -1,8 +1,8 @@
 """From edge crossings to tie curves: bisection, marching squares, chaining, domain clipping.
 
-1. Each crossing is refined by bisection on its edge with exact evaluation of
-   the (continuous, extended) residual until the bracket is below
-   ``1e-12`` of the window diameter.
+1. Each crossing is refined on its edge (ITP root bracketing, compiled) with
+   exact evaluation of the (continuous, extended) residual until the bracket
+   is below ``1e-12`` of the window diameter.
 2. Per tie, every cell that sees the tie met joins the crossings on its edges
    (two: one segment; four: a saddle, decided by the exact residual at the
    cell centre).
@@ -19,13 +19,19 @@ References
 
 from __future__ import annotations
 
-import itertools
 from dataclasses import dataclass
 
 import numpy as np
 
-from specmap.special.detect import Samples, relevant_cells
-from specmap.special.evaluate import SlotEvaluator, residual_from_slots
+from specmap.special.detect import Samples, relevant_cells, sorted_unique
+from specmap.special.kernels import (
+    FlatContours,
+    chain_walk,
+    in_chunks,
+    refine_edges,
+    slot_params,
+    slot_residuals,
+)
 from specmap.special.pairs import PairTable
 
 
@@ -38,43 +44,40 @@ class TracedTie:
     points: tuple[np.ndarray, ...]
 
 
-def _residual(table: PairTable, codes: np.ndarray, a: np.ndarray, b: np.ndarray,
-              ev: SlotEvaluator | None = None, factor: np.ndarray | None = None):
-    if ev is None or factor is None:
-        slots, factor = table.tie_contours(codes)
-        ev = ev or SlotEvaluator(table.contours, slots)
-    s, met = ev(a, b)
-    r, val = residual_from_slots(s, factor, a)
-    return r, val, met.all(axis=1)
+def _flat(table: PairTable) -> tuple:
+    f = FlatContours.of(table.contours)
+    return f.kind, f.start, f.count, f.xs, f.ys, f.ext
+
+
+def _residual(table: PairTable, codes: np.ndarray, a: np.ndarray, b: np.ndarray):
+    """(R, tied value, all four met) of ties ``codes`` at lines (a[k], b[k]) (compiled loop)."""
+    slots, factor = table.tie_contours(codes)
+    a = np.ascontiguousarray(np.broadcast_to(np.asarray(a, float), slots.shape[:1]))
+    b = np.ascontiguousarray(np.broadcast_to(np.asarray(b, float), slots.shape[:1]))
+    return slot_residuals(*_flat(table), slots, factor, a, b)
 
 
 def refine(table: PairTable, samples: Samples, codes: np.ndarray, edges: np.ndarray, *,
            snap: float, rel: float = 1e-12) -> np.ndarray:
-    """Bisection of every crossing on its edge; returns points (K, 2) in (a, b)."""
+    """Zero of every crossing on its edge, to ``rel`` of the window diameter; points (K, 2) in (a, b).
+
+    ITP root finding on the edge (:func:`specmap.special.kernels.refine_edges`)
+    with exact re-evaluation of the residual; the side convention is
+    ``R >= -snap`` as in detection. Work is split over two threads.
+    """
     lat = samples.lattice
+    if codes.size == 0:
+        return np.zeros((0, 2))
     n0, n1 = lat.edge_nodes(edges)
     a0, b0 = lat.node_ab(n0)
     a1, b1 = lat.node_ab(n1)
-    if codes.size == 0:
-        return np.zeros((0, 2))
     slots, factor = table.tie_contours(codes)
-    ev = SlotEvaluator(table.contours, slots)
-    r0, _, _ = _residual(table, codes, a0, b0, ev, factor)
-    side0 = r0 >= -snap
     h = max(float(np.max(np.hypot(a1 - a0, b1 - b0))), 1e-300)
     diam = float(np.hypot(lat.av[-1] - lat.av[0], lat.bv[-1] - lat.bv[0]))
-    n_iter = int(np.ceil(np.log2(h / (rel * diam)))) + 1
-    lo_a, lo_b, hi_a, hi_b = a0.copy(), b0.copy(), a1.copy(), b1.copy()
-    for _ in range(max(n_iter, 1)):
-        ma = 0.5 * (lo_a + hi_a)
-        mb = 0.5 * (lo_b + hi_b)
-        rm, _, _ = _residual(table, codes, ma, mb, ev, factor)
-        same = (rm >= -snap) == side0
-        lo_a = np.where(same, ma, lo_a)
-        lo_b = np.where(same, mb, lo_b)
-        hi_a = np.where(same, hi_a, ma)
-        hi_b = np.where(same, hi_b, mb)
-    return np.stack([0.5 * (lo_a + hi_a), 0.5 * (lo_b + hi_b)], axis=1)
+    eps = 0.5 * rel * diam / h
+    flat = _flat(table)
+    return in_chunks(lambda sl: refine_edges(*flat, slots[sl], factor[sl], a0[sl], b0[sl], a1[sl], b1[sl],
+                                             snap, eps), codes.size)
 
 
 def segments(table: PairTable, samples: Samples, codes: np.ndarray, edges: np.ndarray,
@@ -90,7 +93,7 @@ def segments(table: PairTable, samples: Samples, codes: np.ndarray, edges: np.nd
     tc = np.concatenate([codes[rel[:, 0]], codes[rel[:, 1]]])
     cc = np.concatenate([cells[rel[:, 0], 0], cells[rel[:, 1], 1]])
     nc = lat.n_cells
-    tcell = np.unique(tc * nc + cc)
+    tcell = sorted_unique(tc * nc + cc)
     tcode, cell = np.divmod(tcell, nc)
     ce = lat.cell_edges(cell)  # (T, 4) bottom, right, top, left
     ck = tcode[:, None] * ne + ce
@@ -126,8 +129,11 @@ def segments(table: PairTable, samples: Samples, codes: np.ndarray, edges: np.nd
     return np.concatenate(out) if out else np.zeros((0, 2), dtype=np.int64)
 
 
-def chain(n: int, segs: np.ndarray) -> list[tuple[list[int], bool]]:
-    """Chain segments (vertex degree <= 2) into vertex lists; flag closed loops."""
+def chain(n: int, segs: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Chain segments (vertex degree <= 2) into paths: (flat vertices, path lengths, closed flags).
+
+    The walk itself is compiled (:func:`specmap.special.kernels.chain_walk`).
+    """
     # neighbours in half-edge order (u->v, v->u per segment), first two kept
     segs = np.asarray(segs, dtype=np.int64).reshape(-1, 2)
     segs = segs[segs[:, 0] != segs[:, 1]]
@@ -140,51 +146,21 @@ def chain(n: int, segs: np.ndarray) -> list[tuple[list[int], bool]]:
     nbr = np.full((n, 2), -1, dtype=np.int64)
     first2 = rank < 2
     nbr[hx[first2], rank[first2]] = hy[first2]
-    nbr_l = nbr.tolist()
-    seen = [False] * n
-    out: list[tuple[list[int], bool]] = []
-
-    def walk(start: int) -> tuple[list[int], bool]:
-        path = [start]
-        seen[start] = True
-        prev, cur = -1, start
-        while True:
-            nxt = -1
-            for w in nbr_l[cur]:
-                if w >= 0 and w != prev and not seen[w]:
-                    nxt = w
-                    break
-            if nxt < 0:
-                closed = len(path) > 2 and start in nbr_l[cur] and prev != start
-                return path, closed
-            seen[nxt] = True
-            path.append(nxt)
-            prev, cur = cur, nxt
-
-    for v in np.nonzero(deg == 1)[0].tolist():
-        if not seen[v]:
-            out.append(walk(v))
-    for v in np.nonzero(deg >= 2)[0].tolist():
-        if not seen[v]:
-            out.append(walk(v))
-    for v in np.nonzero(deg == 0)[0].tolist():
-        out.append(([v], False))
-    return out
+    return chain_walk(nbr, deg)
 
 
 def _boundary_points(table, codes, pin, pout, diam, snap, cell_diag):
     """Where polylines leave the tie's domain: chord bisection, then onto R = 0 along the boundary."""
-    slots, factor = table.tie_contours(codes)
-    ev = SlotEvaluator(table.contours, slots)
+    slots, _ = table.tie_contours(codes)
     lo = pin.copy()
     hi = pout.copy()
     for _ in range(50):
         mid = 0.5 * (lo + hi)
-        _, _, ok = _residual(table, codes, mid[:, 0], mid[:, 1], ev, factor)
+        _, _, ok = _residual(table, codes, mid[:, 0], mid[:, 1])
         lo = np.where(ok[:, None], mid, lo)
         hi = np.where(ok[:, None], hi, mid)
     # which contour is lost, and through which end: the boundary is the pencil through that end
-    _, met_out = ev(hi[:, 0], hi[:, 1])
+    _, met_out = slot_params(*_flat(table), slots, np.ascontiguousarray(hi[:, 0]), np.ascontiguousarray(hi[:, 1]))
     lost = np.argmax(~met_out, axis=1)
     first = np.array([c.points[0] for c in table.contours], dtype=float)
     last = np.array([c.points[-1] for c in table.contours], dtype=float)
@@ -213,7 +189,7 @@ def _boundary_points(table, codes, pin, pout, diam, snap, cell_diag):
     sp = sg[rows, i]
     for _ in range(60):
         m = 0.5 * (p + q)
-        rm, _, _ = _residual(table, codes, m[:, 0], m[:, 1], ev, factor)
+        rm, _, _ = _residual(table, codes, m[:, 0], m[:, 1])
         same = (rm >= -snap) == sp
         p = np.where(same[:, None], m, p)
         q = np.where(same[:, None], q, m)
@@ -245,14 +221,10 @@ def trace(table: PairTable, samples: Samples, codes: np.ndarray, edges: np.ndarr
     diam = float(np.hypot(lat.av[-1] - lat.av[0], lat.bv[-1] - lat.bv[0]))
     cell_diag = float(np.hypot(lat.av[1] - lat.av[0], lat.bv[1] - lat.bv[0]))
     segs = segments(table, samples, codes, edges, snap=snap)
-    paths = chain(codes.size, segs)
+    flat, plen, pclosed = chain(codes.size, segs)
     _, val, inside = _residual(table, codes, points[:, 0], points[:, 1])
     inside &= val > tol
     # cut each path into runs of vertices inside the domain (all paths at once)
-    plen = np.fromiter((len(pt) for pt, _ in paths), dtype=np.int64, count=len(paths))
-    pclosed = np.fromiter((c for _, c in paths), dtype=bool, count=len(paths))
-    flat = np.fromiter(itertools.chain.from_iterable(pt for pt, _ in paths), dtype=np.int64,
-                       count=int(plen.sum()))
     pstart = np.cumsum(plen) - plen
     ins = inside[flat]
     n_out = np.bincount(np.repeat(np.arange(plen.size), plen), weights=~ins, minlength=plen.size)

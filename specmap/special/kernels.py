@@ -1,0 +1,665 @@
+"""Compiled inner loops of the special-set atlas (numba).
+
+The atlas spends its time in three loops whose work grows with the output
+(the number of lattice edges that tie curves cross): evaluating contours at
+single lines, refining crossings, and scanning each lattice edge for order
+swaps. They run here, compiled, over a flat array form of the contours
+(:class:`FlatContours`); every formula is the one of
+:mod:`specmap.special.evaluate` and :func:`specmap.strip.line_parameter`.
+
+Functions are compiled on first use and cached on disk next to this module
+(``cache=True``); ``nogil=True`` lets callers split work over threads.
+
+References
+----------
+.. [EFQT23] Ethier, Frosini, Quercioli, Tombari, J. Appl. Comput. Topol. (2023).
+.. [OT20] Oliveira, Takahashi, "An enhancement of the bisection method average
+   performance preserving minmax optimality", ACM Trans. Math. Softw. 47 (2020).
+   The ITP root-finding method used by :func:`refine_edges`.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable, Sequence
+from concurrent.futures import ThreadPoolExecutor
+from dataclasses import dataclass
+
+import numba
+import numpy as np
+
+from specmap.grids.model import Contour
+
+#: contour kinds in the flat form
+VERTICAL, HORIZONTAL, PROPER = 0, 1, 2
+_KIND = {"vertical": VERTICAL, "horizontal": HORIZONTAL, "proper": PROPER}
+
+
+@dataclass(frozen=True, eq=False)
+class FlatContours:
+    """Contours as plain arrays (what the compiled loops read).
+
+    Attributes
+    ----------
+    kind : ndarray of int64 (C,)
+        :data:`VERTICAL`, :data:`HORIZONTAL` or :data:`PROPER`.
+    start, count : ndarray of int64 (C,)
+        Slice of each contour's vertices in ``xs``, ``ys``.
+    xs, ys : ndarray (total vertices,)
+    ext : ndarray (C, 4)
+        Second points (x, y) of the two prolongations of a proper contour:
+        beyond the first vertex (through vertex 1) and beyond the last
+        (through vertex n - 2); a point of slope -1 from the end when the
+        contour is a single point or the two vertices are numerically equal
+        (``np.allclose``), as in :func:`specmap.special.evaluate._through`.
+    """
+
+    kind: np.ndarray
+    start: np.ndarray
+    count: np.ndarray
+    xs: np.ndarray
+    ys: np.ndarray
+    ext: np.ndarray
+
+    @staticmethod
+    def of(contours: Sequence[Contour]) -> FlatContours:
+        kind = np.array([_KIND[c.kind] for c in contours], dtype=np.int64)
+        count = np.array([len(c.points) for c in contours], dtype=np.int64)
+        start = np.concatenate([[0], np.cumsum(count)[:-1]]).astype(np.int64) if len(contours) else count
+        pts = np.concatenate([np.asarray(c.points, float).reshape(-1, 2) for c in contours]) if len(contours) \
+            else np.zeros((0, 2))
+        ext = np.zeros((len(contours), 4))
+        for i, c in enumerate(contours):
+            p = np.asarray(c.points, float).reshape(-1, 2)
+            for side, (end, nxt) in enumerate(((0, 1), (-1, -2))):
+                q = p[nxt] if len(p) > 1 else None
+                if q is None or np.allclose(p[end], q):
+                    q = p[end] + np.array([1.0, -1.0])
+                ext[i, 2 * side:2 * side + 2] = q
+        return FlatContours(kind, start, count, np.ascontiguousarray(pts[:, 0]), np.ascontiguousarray(pts[:, 1]),
+                            ext)
+
+
+#: threads used by :func:`in_chunks` (the compiled loops release the GIL)
+THREADS = 2
+
+
+def in_chunks(fn: Callable[[slice], np.ndarray], n: int, threads: int = THREADS,
+              min_chunk: int = 20_000) -> np.ndarray:
+    """``fn`` over ``threads`` contiguous slices of ``range(n)``, results concatenated (row order kept)."""
+    k = max(1, min(threads, n // min_chunk))
+    if k == 1:
+        return fn(slice(0, n))
+    bounds = np.linspace(0, n, k + 1).astype(int)
+    with ThreadPoolExecutor(k) as pool:
+        parts = list(pool.map(fn, [slice(int(bounds[i]), int(bounds[i + 1])) for i in range(k)]))
+    return np.concatenate(parts)
+
+
+@numba.njit(cache=True, nogil=True, inline="always")
+def _gval(x, y, a, b):
+    return (1.0 - a) * (x - b) - a * (y + b)
+
+
+@numba.njit(cache=True, nogil=True)
+def ext_param(kind, start, count, xs, ys, ext, c, a, b):
+    """Extended line parameter s̄ and ``met`` of contour ``c`` at the line (a, b).
+
+    Scalar version of :func:`specmap.special.evaluate.extended_parameter`
+    (same formulas; binary search on the vertex index for any length).
+    """
+    k0 = start[c]
+    if kind[c] == VERTICAL:
+        x0 = xs[k0]
+        y0 = ys[k0]
+        s = (x0 - b) / a
+        return s, (1.0 - a) * s - b >= y0
+    if kind[c] == HORIZONTAL:
+        x0 = xs[k0]
+        y0 = ys[k0]
+        s = (y0 + b) / (1.0 - a)
+        return s, a * s + b >= x0
+    n = count[c]
+    den = a * a + (1.0 - a) * (1.0 - a)
+    g_last = _gval(xs[k0 + n - 1], ys[k0 + n - 1], a, b)
+    g_first = _gval(xs[k0], ys[k0], a, b)
+    if g_first <= 0.0 and g_last >= 0.0:
+        if n == 1:
+            return (a * (xs[k0] - b) + (1.0 - a) * (ys[k0] + b)) / den, True
+        # count of vertices with G <= 0 (G is non-decreasing along the polyline)
+        lo = 0
+        hi = n
+        while lo < hi:
+            mid = (lo + hi) // 2
+            if _gval(xs[k0 + mid], ys[k0 + mid], a, b) > 0.0:
+                hi = mid
+            else:
+                lo = mid + 1
+        k = min(max(lo - 1, 0), n - 2)
+        g0 = _gval(xs[k0 + k], ys[k0 + k], a, b)
+        g1 = _gval(xs[k0 + k + 1], ys[k0 + k + 1], a, b)
+        d = g1 - g0
+        t = -g0 / d if d > 0.0 else 0.0
+        t = min(max(t, 0.0), 1.0)
+        px = xs[k0 + k] + t * (xs[k0 + k + 1] - xs[k0 + k])
+        py = ys[k0 + k] + t * (ys[k0 + k + 1] - ys[k0 + k])
+        return (a * (px - b) + (1.0 - a) * (py + b)) / den, True
+    # prolongation: through the first end where the line passes above it, else the last
+    if g_first > 0.0:
+        px = xs[k0]
+        py = ys[k0]
+        qx = ext[c, 0]
+        qy = ext[c, 1]
+    else:
+        px = xs[k0 + n - 1]
+        py = ys[k0 + n - 1]
+        qx = ext[c, 2]
+        qy = ext[c, 3]
+    gp = _gval(px, py, a, b)
+    gq = _gval(qx, qy, a, b)
+    t = -gp / (gq - gp)
+    return px + py + t * ((qx - px) + (qy - py)), False
+
+
+@numba.njit(cache=True, nogil=True)
+def _residual(kind, start, count, xs, ys, ext, c0, c1, c2, c3, factor, a, b):
+    """(R, tied value, all met) of one tie at one line; R in push units."""
+    s0, m0 = ext_param(kind, start, count, xs, ys, ext, c0, a, b)
+    s1, m1 = ext_param(kind, start, count, xs, ys, ext, c1, a, b)
+    s2, m2 = ext_param(kind, start, count, xs, ys, ext, c2, a, b)
+    s3, m3 = ext_param(kind, start, count, xs, ys, ext, c3, a, b)
+    m = min(a, 1.0 - a)
+    dp = abs(s0 - s1) * m
+    dq = abs(s2 - s3) * m * factor
+    return dp - dq, min(dp, dq / factor), m0 and m1 and m2 and m3
+
+
+@numba.njit(cache=True, nogil=True)
+def slot_residuals(kind, start, count, xs, ys, ext, slots, factor, a, b):
+    """Residual R, tied value and ``all met`` of ties ``slots`` (K, 4) at lines (a[k], b[k])."""
+    K = slots.shape[0]
+    r = np.empty(K)
+    val = np.empty(K)
+    met = np.empty(K, dtype=np.bool_)
+    for k in range(K):
+        r[k], val[k], met[k] = _residual(kind, start, count, xs, ys, ext, slots[k, 0], slots[k, 1],
+                                         slots[k, 2], slots[k, 3], factor[k], a[k], b[k])
+    return r, val, met
+
+
+@numba.njit(cache=True, nogil=True)
+def slot_params(kind, start, count, xs, ys, ext, slots, a, b):
+    """s̄ and met of every slot contour: arrays (K, m) at lines (a[k], b[k])."""
+    K, M = slots.shape
+    s = np.empty((K, M))
+    met = np.empty((K, M), dtype=np.bool_)
+    for k in range(K):
+        for j in range(M):
+            s[k, j], met[k, j] = ext_param(kind, start, count, xs, ys, ext, slots[k, j], a[k], b[k])
+    return s, met
+
+
+@numba.njit(cache=True, nogil=True)
+def refine_edges(kind, start, count, xs, ys, ext, slots, factor, a0, b0, a1, b1, snap, eps):
+    """Zero of R + snap on each segment (a0, b0)-(a1, b1), to a bracket below ``2 eps`` in t ∈ [0, 1].
+
+    The sign convention is the detection's: a side is ``R >= -snap``. Each
+    root is bracketed by the segment's ends and found by the ITP method
+    [OT20]: never more evaluations than bisection (plus one), superlinear on
+    the smooth pieces of R. Returns the midpoints of the final brackets (K, 2).
+    When both ends are on the same side (no bracket), the end point is returned.
+    """
+    K = slots.shape[0]
+    out = np.empty((K, 2))
+    n_half = int(np.ceil(np.log2(1.0 / (2.0 * eps)))) if eps < 0.5 else 0
+    n_max = n_half + 1
+    for k in range(K):
+        c0, c1, c2, c3, fk = slots[k, 0], slots[k, 1], slots[k, 2], slots[k, 3], factor[k]
+        da = a1[k] - a0[k]
+        db = b1[k] - b0[k]
+        ya = _residual(kind, start, count, xs, ys, ext, c0, c1, c2, c3, fk, a0[k], b0[k])[0] + snap
+        yb = _residual(kind, start, count, xs, ys, ext, c0, c1, c2, c3, fk, a1[k], b1[k])[0] + snap
+        sa = ya >= 0.0
+        if sa == (yb >= 0.0):
+            out[k, 0] = a1[k]
+            out[k, 1] = b1[k]
+            continue
+        lo = 0.0
+        hi = 1.0
+        j = 0
+        while hi - lo > 2.0 * eps and j < n_max + 2:
+            half = 0.5 * (lo + hi)
+            r = eps * 2.0 ** (n_max - j) - 0.5 * (hi - lo)
+            delta = 0.2 * (hi - lo) * (hi - lo)
+            xf = (yb * lo - ya * hi) / (yb - ya) if yb != ya else half
+            sig = 1.0 if half - xf >= 0.0 else -1.0
+            xt = xf + sig * delta if delta <= abs(half - xf) else half
+            x = xt if abs(xt - half) <= r else half - sig * r
+            if not (x > lo and x < hi):
+                x = half
+            y = _residual(kind, start, count, xs, ys, ext, c0, c1, c2, c3, fk,
+                          a0[k] + x * da, b0[k] + x * db)[0] + snap
+            if (y >= 0.0) == sa:
+                lo = x
+                ya = y
+            else:
+                hi = x
+                yb = y
+            j += 1
+        # guard: finish by bisection if the ITP budget ran out (cannot happen in exact arithmetic)
+        while hi - lo > 2.0 * eps:
+            x = 0.5 * (lo + hi)
+            y = _residual(kind, start, count, xs, ys, ext, c0, c1, c2, c3, fk,
+                          a0[k] + x * da, b0[k] + x * db)[0] + snap
+            if (y >= 0.0) == sa:
+                lo = x
+            else:
+                hi = x
+        t = 0.5 * (lo + hi)
+        out[k, 0] = a0[k] + t * da
+        out[k, 1] = b0[k] + t * db
+    return out
+
+
+@numba.njit(cache=True, nogil=True)
+def _grow(buf, n):
+    if n < buf.size:
+        return buf
+    out = np.empty(2 * buf.size + 16, dtype=buf.dtype)
+    out[:buf.size] = buf
+    return out
+
+
+@numba.njit(cache=True, nogil=True)
+def _tie_met(met, c0, c1, c2, c3, cj, ci):
+    """All four contours met at one corner of cell (cj, ci)."""
+    for dj in range(2):
+        for di in range(2):
+            j = cj + dj
+            i = ci + di
+            if met[c0, j, i] and met[c1, j, i] and met[c2, j, i] and met[c3, j, i]:
+                return True
+    return False
+
+
+@numba.njit(cache=True, nogil=True)
+def sweep_rows(s, met, cell_pair, first, second, cross, roles, mcol, j_start, j_stop, snap, tol):
+    """Order swaps of pair differences on the lattice edges of node rows ``j_start`` to ``j_stop - 1``.
+
+    Row j holds the horizontal edges (j, i)-(j, i+1) and the vertical edges
+    (j, i)-(j+1, i). Items are the pair differences |c_P| and their doubles
+    2|c_Q| (push units) present on an edge (pair met at a corner of a cell
+    beside it). Items are sorted by the lower end of their value interval on
+    the edge; each item is compared with the following ones while the
+    intervals overlap (within ``snap``), so the work is the number of
+    overlapping item pairs, not the number of ties. A crossing is an allowed
+    tie whose two items change order (sign convention ``>= -snap``, not both
+    ends within ``tol``) and that is met at a corner of a cell beside the edge.
+
+    Returns
+    -------
+    codes, edges : ndarray of int64
+        Tie codes ``(cond * n + P) * n + Q`` and edge ids (:class:`Lattice` numbering).
+    n_candidates : int
+        Overlapping item pairs examined.
+    """
+    n_p = first.size
+    nb = s.shape[1]
+    na = s.shape[2]
+    n_h = nb * (na - 1)
+    codes = np.empty(1024, dtype=np.int64)
+    edges = np.empty(1024, dtype=np.int64)
+    n_out = 0
+    n_cand = 0
+    M = 2 * n_p
+    lo = np.empty(M)
+    hi = np.empty(M)
+    v0 = np.empty(M)
+    v1 = np.empty(M)
+    ip = np.empty(M, dtype=np.int64)
+    fac = np.empty(M, dtype=np.int64)
+    cells = np.empty((2, 2), dtype=np.int64)
+    for j in range(j_start, j_stop):
+        n_edges_row = (na - 1) + (na if j < nb - 1 else 0)
+        for e in range(n_edges_row):
+            if e < na - 1:  # horizontal edge (j, e)-(j, e+1)
+                ja, ia, jb, ib = j, e, j, e + 1
+                eid = j * (na - 1) + e
+                cells[0, 0], cells[0, 1] = j - 1, e
+                cells[1, 0], cells[1, 1] = j, e
+                if j == 0:
+                    cells[0, 0] = -1
+                if j == nb - 1:
+                    cells[1, 0] = -1
+            else:  # vertical edge (j, i)-(j+1, i)
+                i = e - (na - 1)
+                ja, ia, jb, ib = j, i, j + 1, i
+                eid = n_h + j * na + i
+                cells[0, 0], cells[0, 1] = j, i - 1
+                cells[1, 0], cells[1, 1] = j, i
+                if i == 0:
+                    cells[0, 0] = -1
+                if i == na - 1:
+                    cells[1, 0] = -1
+            ma = mcol[ia]
+            mb = mcol[ib]
+            m = 0
+            for p in range(n_p):
+                pres = False
+                for side in range(2):
+                    cj = cells[side, 0]
+                    if cj >= 0 and cell_pair[p, cj, cells[side, 1]]:
+                        pres = True
+                if not pres:
+                    continue
+                x0 = abs(s[first[p], ja, ia] - s[second[p], ja, ia]) * ma
+                x1 = abs(s[first[p], jb, ib] - s[second[p], jb, ib]) * mb
+                v0[m] = x0
+                v1[m] = x1
+                ip[m] = p
+                fac[m] = 1
+                m += 1
+                if (not roles) or cross[p]:
+                    v0[m] = 2.0 * x0
+                    v1[m] = 2.0 * x1
+                    ip[m] = p
+                    fac[m] = 2
+                    m += 1
+            for q in range(m):
+                lo[q] = min(v0[q], v1[q])
+                hi[q] = max(v0[q], v1[q])
+            order = np.argsort(lo[:m], kind="mergesort")
+            for iu in range(m):
+                u = order[iu]
+                lim = hi[u] + snap + 1e-12 * hi[u]
+                for iv in range(iu + 1, m):
+                    v = order[iv]
+                    if lo[v] > lim:
+                        break
+                    n_cand += 1
+                    fu = fac[u]
+                    fv = fac[v]
+                    if fu == 2 and fv == 2:
+                        continue
+                    if fu == 1 and fv == 1:
+                        if ip[u] < ip[v]:
+                            big, small = u, v
+                        else:
+                            big, small = v, u
+                        P = ip[big]
+                        Q = ip[small]
+                        cond = 0
+                        if P == Q or (roles and cross[P] != cross[Q]):
+                            continue
+                    else:
+                        if fu == 1:
+                            big, small = u, v
+                        else:
+                            big, small = v, u
+                        P = ip[big]
+                        Q = ip[small]
+                        cond = 1
+                        if P == Q or (roles and (cross[P] or not cross[Q])):
+                            continue
+                    f0 = v0[big] - v0[small]
+                    f1 = v1[big] - v1[small]
+                    if (f0 >= -snap) == (f1 >= -snap):
+                        continue
+                    if max(abs(f0), abs(f1)) <= tol:
+                        continue
+                    c0, c1, c2, c3 = first[P], second[P], first[Q], second[Q]
+                    ok = False
+                    for side in range(2):
+                        cj = cells[side, 0]
+                        if cj >= 0 and _tie_met(met, c0, c1, c2, c3, cj, cells[side, 1]):
+                            ok = True
+                    if not ok:
+                        continue
+                    codes = _grow(codes, n_out)
+                    edges = _grow(edges, n_out)
+                    codes[n_out] = (cond * n_p + P) * n_p + Q
+                    edges[n_out] = eid
+                    n_out += 1
+    return codes[:n_out].copy(), edges[:n_out].copy(), n_cand
+
+
+@numba.njit(cache=True, nogil=True)
+def chain_walk(nbr, deg):
+    """Walk a graph of maximum degree 2 (neighbours ``nbr`` (n, 2), -1 = none) into paths.
+
+    Paths start at degree-1 vertices, then at unseen vertices of degree >= 2
+    (loops), then isolated vertices; order as :func:`specmap.special.trace.chain`.
+
+    Returns
+    -------
+    flat : ndarray of int64 (n,)
+        Vertices path after path.
+    length : ndarray of int64 (paths,)
+    closed : ndarray of bool (paths,)
+        Whether the path closes into a loop (last vertex joined to the first).
+    """
+    n = deg.size
+    seen = np.zeros(n, dtype=np.bool_)
+    flat = np.empty(n, dtype=np.int64)
+    length = np.empty(n, dtype=np.int64)
+    closed = np.zeros(n, dtype=np.bool_)
+    pos = 0
+    n_paths = 0
+    for stage in range(3):
+        for v in range(n):
+            d = deg[v]
+            if stage == 0 and d != 1 or stage == 1 and d < 2 or stage == 2 and d != 0:
+                continue
+            if seen[v] and stage < 2:
+                continue
+            if stage == 2:
+                flat[pos] = v
+                pos += 1
+                length[n_paths] = 1
+                n_paths += 1
+                continue
+            start = v
+            begin = pos
+            seen[start] = True
+            flat[pos] = start
+            pos += 1
+            prev = -1
+            cur = start
+            while True:
+                nxt = -1
+                for r in range(2):
+                    w = nbr[cur, r]
+                    if w >= 0 and w != prev and not seen[w]:
+                        nxt = w
+                        break
+                if nxt < 0:
+                    ln = pos - begin
+                    closed[n_paths] = ln > 2 and (nbr[cur, 0] == start or nbr[cur, 1] == start) and prev != start
+                    break
+                seen[nxt] = True
+                flat[pos] = nxt
+                pos += 1
+                prev = cur
+                cur = nxt
+            length[n_paths] = pos - begin
+            n_paths += 1
+    return flat[:pos].copy(), length[:n_paths].copy(), closed[:n_paths].copy()
+
+
+@numba.njit(cache=True, nogil=True, inline="always")
+def _find(parent, x):
+    while parent[x] != x:
+        parent[x] = parent[parent[x]]
+        x = parent[x]
+    return x
+
+
+@numba.njit(cache=True, nogil=True, inline="always")
+def _union(parent, x, y):
+    rx = _find(parent, x)
+    ry = _find(parent, y)
+    if rx != ry:
+        if rx < ry:
+            parent[ry] = rx
+        else:
+            parent[rx] = ry
+
+
+@numba.njit(cache=True, nogil=True)
+def _perimeter(x, y, a0, a1, b0, b1, eps):
+    """Position in [0, 4) of (x, y) along the boundary of cell [a0, a1] x [b0, b1] and ``on``."""
+    wa = a1 - a0
+    wb = b1 - b0
+    d0 = abs(y - b0)
+    d1 = abs(x - a1)
+    d2 = abs(y - b1)
+    d3 = abs(x - a0)
+    side = 0
+    dm = d0
+    if d1 < dm:
+        side, dm = 1, d1
+    if d2 < dm:
+        side, dm = 2, d2
+    if d3 < dm:
+        side, dm = 3, d3
+    on = dm <= 1e-9 * min(wa, wb) and a0 - eps <= x <= a1 + eps and b0 - eps <= y <= b1 + eps
+    fa = min(max((x - a0) / wa, 0.0), 1.0)
+    fb = min(max((y - b0) / wb, 0.0), 1.0)
+    if side == 0:
+        t = fa
+    elif side == 1:
+        t = 1.0 + fb
+    elif side == 2:
+        t = 3.0 - fa
+    else:
+        t = 4.0 - fb
+    return t, on
+
+
+@numba.njit(cache=True, nogil=True)
+def lattice_labels(p, q, owner, n_lines, av, bv, eps, vkey, vorder):
+    """Components of lines linked by shared vertices and by crossing chords of lattice cells.
+
+    ``p``, ``q`` (S, 2): segments, ``owner`` their line; ``vkey`` integer keys
+    of the 2S end points (p then q, rounded to ``eps``) and ``vorder`` their
+    sort order. A segment whose two ends lie on the boundary of the lattice
+    cell holding its midpoint is a *chord*; two chords of a cell cross exactly
+    when their end points interleave along the perimeter. One scan of each
+    cell's sorted end points with a stack of merged groups (a chord that
+    closes crosses every chord opened after it and still open) gives the
+    components of the crossing graph in O(k log k) for k chords instead of
+    O(k^2) pair tests. Union-find on lines.
+
+    Returns
+    -------
+    label : ndarray of int64 (n_lines,)
+        Smallest line index of each line's component.
+    cell : ndarray of int64 (S,)
+        Lattice cell of each segment (by its midpoint).
+    chord : ndarray of bool (S,)
+    """
+    S = p.shape[0]
+    parent = np.arange(n_lines)
+    for i in range(1, 2 * S):
+        u = vorder[i]
+        v = vorder[i - 1]
+        if vkey[u] == vkey[v]:
+            _union(parent, owner[u % S], owner[v % S])
+    na1 = av.size - 1
+    nb1 = bv.size - 1
+    cell = np.empty(S, dtype=np.int64)
+    chord = np.zeros(S, dtype=np.bool_)
+    t0 = np.empty(S)
+    t1 = np.empty(S)
+    for s in range(S):
+        mx = 0.5 * (p[s, 0] + q[s, 0])
+        my = 0.5 * (p[s, 1] + q[s, 1])
+        ci = min(max(np.searchsorted(av, mx, side="right") - 1, 0), na1 - 1)
+        cj = min(max(np.searchsorted(bv, my, side="right") - 1, 0), nb1 - 1)
+        cell[s] = cj * na1 + ci
+        tp, onp = _perimeter(p[s, 0], p[s, 1], av[ci], av[ci + 1], bv[cj], bv[cj + 1], eps)
+        tq, onq = _perimeter(q[s, 0], q[s, 1], av[ci], av[ci + 1], bv[cj], bv[cj + 1], eps)
+        chord[s] = onp and onq
+        t0[s] = min(tp, tq)
+        t1[s] = max(tp, tq)
+    # chords grouped by cell (counting sort)
+    n_cells = na1 * nb1
+    cnt = np.zeros(n_cells + 1, dtype=np.int64)
+    for s in range(S):
+        if chord[s]:
+            cnt[cell[s] + 1] += 1
+    for c in range(n_cells):
+        cnt[c + 1] += cnt[c]
+    fill = cnt[:-1].copy()
+    by_cell = np.empty(cnt[-1], dtype=np.int64)
+    for s in range(S):
+        if chord[s]:
+            by_cell[fill[cell[s]]] = s
+            fill[cell[s]] += 1
+    kmax = 0
+    for c in range(n_cells):
+        kmax = max(kmax, cnt[c + 1] - cnt[c])
+    ev_t = np.empty(2 * kmax)
+    ev_ch = np.empty(2 * kmax, dtype=np.int64)
+    ev_open = np.empty(2 * kmax, dtype=np.bool_)
+    group = np.empty(kmax, dtype=np.int64)
+    gpar = np.empty(kmax, dtype=np.int64)
+    gch = np.empty(kmax, dtype=np.int64)
+    gcount = np.empty(kmax, dtype=np.int64)
+    gpos = np.empty(kmax, dtype=np.int64)
+    stack = np.empty(kmax, dtype=np.int64)
+    for c in range(n_cells):
+        lo = cnt[c]
+        k = cnt[c + 1] - lo
+        if k < 2:
+            continue
+        # opens before closes, so that a stable sort by t puts opens first at equal t
+        for i in range(k):
+            s = by_cell[lo + i]
+            ev_t[i] = t0[s]
+            ev_ch[i] = i
+            ev_open[i] = True
+            ev_t[k + i] = t1[s]
+            ev_ch[k + i] = i
+            ev_open[k + i] = False
+        order = np.argsort(ev_t[:2 * k], kind="mergesort")
+        n_g = 0
+        top = 0
+        for e in range(2 * k):
+            ei = order[e]
+            ch = ev_ch[ei]
+            if ev_open[ei]:
+                g = n_g
+                n_g += 1
+                gpar[g] = g
+                gch[g] = ch
+                gcount[g] = 1
+                gpos[g] = top
+                stack[top] = g
+                top += 1
+                group[ch] = g
+                continue
+            g = group[ch]
+            while gpar[g] != g:
+                gpar[g] = gpar[gpar[g]]
+                g = gpar[g]
+            pg = gpos[g]
+            if pg + 1 < top:
+                # g's chord closes: it crosses every chord opened after it and still open
+                for t in range(pg + 1, top):
+                    h = stack[t]
+                    gpar[h] = g
+                    gcount[g] += gcount[h]
+                top = pg + 1
+            gcount[g] -= 1
+            if gcount[g] == 0:
+                top -= 1
+        # every chord now knows its group root; lines of one group are one component
+        for i in range(k):
+            g = group[i]
+            while gpar[g] != g:
+                g = gpar[g]
+            _union(parent, owner[by_cell[lo + i]], owner[by_cell[lo + gch[g]]])
+    label = np.empty(n_lines, dtype=np.int64)
+    for i in range(n_lines):
+        label[i] = _find(parent, i)
+    return label, cell, chord

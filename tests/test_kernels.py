@@ -1,0 +1,136 @@
+"""The compiled loops of the atlas against the array formulas and closed forms.
+
+Sources: the closed forms of math.md section 5 (vertical/horizontal half-lines:
+abscissa x0, ordinate y0) for the contour parameter; the vectorised
+evaluation of specmap.special.evaluate as the reference of the flat form;
+bisection as the reference of the root finder; the cross-interleaving rule of
+chords in a convex cell (closed form, derived in the test).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+from gridgen import random_grid
+
+from specmap.grids.model import Contour
+from specmap.special.evaluate import extended_parameter
+from specmap.special.kernels import FlatContours, chain_walk, ext_param, lattice_labels, refine_edges
+
+
+def _contours(seed: int) -> list[Contour]:
+    rng = np.random.default_rng(seed)
+    out = list(random_grid(seed, 12).contours)
+    # a long polyline (binary-search path), a single point and a repeated vertex
+    xs = np.cumsum(rng.uniform(0.01, 0.1, 14))
+    ys = 1.0 - np.cumsum(rng.uniform(0.01, 0.1, 14))
+    out.append(Contour("f:long", "proper", np.stack([xs, ys], axis=1)))
+    out.append(Contour("f:dot", "proper", np.array([[0.3, 0.4]])))
+    out.append(Contour("f:rep", "proper", np.array([[0.2, 0.5], [0.2, 0.5], [0.6, 0.1]])))
+    return out
+
+
+@pytest.mark.parametrize("seed", [0, 1, 2])
+def test_flat_evaluation_matches_array_evaluation(seed):
+    contours = _contours(seed)
+    flat = FlatContours.of(contours)
+    rng = np.random.default_rng(100 + seed)
+    a = rng.uniform(0.02, 0.98, 400)
+    b = rng.uniform(-1.5, 1.5, 400)
+    for c, contour in enumerate(contours):
+        s_ref, met_ref = extended_parameter(contour, a, b)
+        got = [ext_param(flat.kind, flat.start, flat.count, flat.xs, flat.ys, flat.ext, c, x, y) for x, y in zip(a, b, strict=True)]
+        s = np.array([g[0] for g in got])
+        met = np.array([g[1] for g in got])
+        assert np.array_equal(met, met_ref), contour.id
+        np.testing.assert_allclose(s, s_ref, rtol=1e-12, atol=1e-12, err_msg=contour.id)
+
+
+def test_half_line_parameters_closed_form():
+    # math.md section 5: on r(a, b) the vertical half-line x = x0 has abscissa x0,
+    # the horizontal one y = y0 has ordinate y0 (point = (a s + b, (1 - a) s - b))
+    flat = FlatContours.of([Contour("f:v", "vertical", [0.7, -5.0]), Contour("f:h", "horizontal", [-5.0, 0.4])])
+    for a, b in [(0.3, 0.1), (0.5, -0.2), (0.8, 0.4)]:
+        s, met = ext_param(flat.kind, flat.start, flat.count, flat.xs, flat.ys, flat.ext, 0, a, b)
+        assert met and a * s + b == pytest.approx(0.7, abs=1e-15)
+        s, met = ext_param(flat.kind, flat.start, flat.count, flat.xs, flat.ys, flat.ext, 1, a, b)
+        assert met and (1 - a) * s - b == pytest.approx(0.4, abs=1e-15)
+
+
+def test_refine_finds_the_closed_form_root():
+    # equal tie of verticals (0, 1) and horizontals (0, 1): for a <= 1/2 the abscissa
+    # differences are 1 and a/(1-a); they tie at a = 1/2 (math.md section 5, exact)
+    cs = [Contour("f:v0", "vertical", [0.0, -9.0]), Contour("f:v1", "vertical", [1.0, -9.0]),
+          Contour("g:h0", "horizontal", [-9.0, 0.0]), Contour("g:h1", "horizontal", [-9.0, 1.0])]
+    flat = FlatContours.of(cs)
+    slots = np.array([[0, 1, 2, 3]] * 3, dtype=np.int64)
+    a0 = np.array([0.3, 0.41, 0.2])
+    a1 = np.array([0.6, 0.52, 0.7])
+    b = np.array([0.0, 0.3, -0.4])
+    out = refine_edges(flat.kind, flat.start, flat.count, flat.xs, flat.ys, flat.ext, slots, np.ones(3),
+                       a0, b, a1, b, 0.0, 1e-13)
+    np.testing.assert_allclose(out[:, 0], 0.5, atol=1e-12)
+    np.testing.assert_array_equal(out[:, 1], b)
+    # half tie (factor 2): 1 = 2 a/(1-a) at a = 1/3
+    out = refine_edges(flat.kind, flat.start, flat.count, flat.xs, flat.ys, flat.ext, slots, np.full(3, 2.0),
+                       np.full(3, 0.2), b, np.full(3, 0.45), b, 0.0, 1e-13)
+    np.testing.assert_allclose(out[:, 0], 1 / 3, atol=1e-12)
+
+
+def test_chain_walk_paths_and_loops():
+    # path 0-1-2, loop 3-4-5-3, isolated 6 (closed form: read off the edges)
+    nbr = np.array([[1, -1], [0, 2], [1, -1], [4, 5], [3, 5], [4, 3], [-1, -1]])
+    deg = (nbr >= 0).sum(axis=1)
+    flat, length, closed = chain_walk(nbr, deg)
+    assert length.tolist() == [3, 3, 1]
+    assert flat[:3].tolist() in ([0, 1, 2], [2, 1, 0])
+    assert sorted(flat[3:6].tolist()) == [3, 4, 5]
+    assert closed.tolist() == [False, True, False]
+
+
+def _interleave(t, u):
+    (a0, a1), (b0, b1) = sorted(t), sorted(u)
+    return (a0 < b0 < a1) != (a0 < b1 < a1)
+
+
+def _on_perimeter(t):
+    """Point of the unit square at perimeter position t in [0, 4) (counter-clockwise from (0, 0))."""
+    side, f = int(t), t - int(t)
+    return [(f, 0.0), (1.0, f), (1.0 - f, 1.0), (0.0, 1.0 - f)][side]
+
+
+def test_lattice_labels_join_exactly_the_crossing_chords():
+    # straight chords of one convex cell cross iff their end points alternate on the
+    # perimeter (closed form); the components must be those of the all-pairs graph
+    import networkx as nx
+    rng = np.random.default_rng(5)
+    av = np.array([0.0, 1.0])
+    bv = np.array([0.0, 1.0])
+    for _ in range(40):
+        k = int(rng.integers(2, 9))
+        ends = (rng.permutation(4 * k)[:2 * k].reshape(k, 2) + 0.5) / k
+        p = np.array([_on_perimeter(t) for t in ends[:, 0]])
+        q = np.array([_on_perimeter(t) for t in ends[:, 1]])
+        keys = np.arange(2 * k, dtype=np.int64)  # no shared vertices
+        label, cell, chord = lattice_labels(p, q, np.arange(k), k, av, bv, 1e-12, keys, np.argsort(keys))
+        assert chord.all() and (cell == 0).all()
+        g = nx.Graph()
+        g.add_nodes_from(range(k))
+        g.add_edges_from((i, j) for i in range(k) for j in range(i + 1, k) if _interleave(ends[i], ends[j]))
+        expected = sorted(sorted(c) for c in nx.connected_components(g))
+        got = {}
+        for i, lab in enumerate(label.tolist()):
+            got.setdefault(lab, []).append(i)
+        assert sorted(got.values()) == expected
+
+
+def test_lattice_labels_join_shared_vertices():
+    # two segments that only share an end point inside the cell are one component
+    p = np.array([[0.2, 0.2], [0.5, 0.5]])
+    q = np.array([[0.5, 0.5], [0.9, 0.1]])
+    ends = np.vstack([p, q])
+    keys = np.round(ends / 1e-9).astype(np.int64) @ np.array([10**10, 1])
+    label, _, chord = lattice_labels(p, q, np.arange(2), 2, np.array([0.0, 1.0]), np.array([0.0, 1.0]), 1e-9,
+                                     keys, np.argsort(keys))
+    assert not chord.any()
+    assert label.tolist() == [0, 0]
