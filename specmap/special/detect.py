@@ -30,7 +30,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from specmap.special.evaluate import sample_contours
-from specmap.special.kernels import sweep_rows
+from specmap.special.kernels import sweep_rows, tie_cells_met
 from specmap.special.lattice import Lattice
 from specmap.special.pairs import PairTable, all_tie_codes, equal_allowed, half_allowed
 from specmap.strip import push_scale
@@ -280,14 +280,5 @@ def relevant_cells(table: PairTable, samples: Samples, codes: np.ndarray, edges:
     Returns a bool array (K, 2) aligned with :meth:`Lattice.edge_cells`.
     """
     lat = samples.lattice
-    cells = lat.edge_cells(edges)
     slots, _ = table.tie_contours(codes)
-    met = samples.met.reshape(len(table.contours), -1)
-    out = np.zeros(cells.shape, dtype=bool)
-    for side in range(2):
-        c = cells[:, side]
-        valid = c >= 0
-        corners = lat.cell_corners(np.where(valid, c, 0))  # (K, 4)
-        m4 = met[slots[:, None, :], corners[:, :, None]]  # (K, 4 corners, 4 contours)
-        out[:, side] = valid & m4.all(axis=2).any(axis=1)
-    return out
+    return tie_cells_met(samples.met, slots, np.asarray(edges, np.int64), lat.n_a, lat.n_b)

@@ -663,3 +663,63 @@ def lattice_labels(p, q, owner, n_lines, av, bv, eps, vkey, vorder):
     for i in range(n_lines):
         label[i] = _find(parent, i)
     return label, cell, chord
+
+
+@numba.njit(cache=True, nogil=True)
+def tie_cells_met(met, slots, edges, n_a, n_b):
+    """For each (tie, edge): whether each of the two cells beside the edge sees the tie met.
+
+    A cell sees a tie when its four contours are met at one of the cell's
+    corners. ``met`` (C, n_b, n_a); ``slots`` (K, 4); ``edges`` (K,) in
+    :class:`specmap.special.lattice.Lattice` numbering. Returns bool (K, 2)
+    in the order of :meth:`~specmap.special.lattice.Lattice.edge_cells`.
+    """
+    K = edges.size
+    out = np.zeros((K, 2), dtype=np.bool_)
+    n_h = n_b * (n_a - 1)
+    for k in range(K):
+        e = edges[k]
+        c0, c1, c2, c3 = slots[k, 0], slots[k, 1], slots[k, 2], slots[k, 3]
+        if e < n_h:
+            j = e // (n_a - 1)
+            i = e - j * (n_a - 1)
+            if j > 0:
+                out[k, 0] = _tie_met(met, c0, c1, c2, c3, j - 1, i)
+            if j < n_b - 1:
+                out[k, 1] = _tie_met(met, c0, c1, c2, c3, j, i)
+        else:
+            j = (e - n_h) // n_a
+            i = (e - n_h) - j * n_a
+            if i > 0:
+                out[k, 0] = _tie_met(met, c0, c1, c2, c3, j, i - 1)
+            if i < n_a - 1:
+                out[k, 1] = _tie_met(met, c0, c1, c2, c3, j, i)
+    return out
+
+
+@numba.njit(cache=True, nogil=True)
+def met_bisect(kind, start, count, xs, ys, ext, slots, lo, hi, n_iter):
+    """Bisection on the chord lo-hi (K, 2 each) for where a tie stops being met.
+
+    ``lo`` has all four contours met, ``hi`` not; after ``n_iter`` halvings
+    returns the new (lo, hi) bracket of the domain boundary.
+    """
+    K = slots.shape[0]
+    lo = lo.copy()
+    hi = hi.copy()
+    for k in range(K):
+        for _ in range(n_iter):
+            ma = 0.5 * (lo[k, 0] + hi[k, 0])
+            mb = 0.5 * (lo[k, 1] + hi[k, 1])
+            ok = True
+            for j in range(4):
+                if not ext_param(kind, start, count, xs, ys, ext, slots[k, j], ma, mb)[1]:
+                    ok = False
+                    break
+            if ok:
+                lo[k, 0] = ma
+                lo[k, 1] = mb
+            else:
+                hi[k, 0] = ma
+                hi[k, 1] = mb
+    return lo, hi

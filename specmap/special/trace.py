@@ -28,6 +28,7 @@ from specmap.special.kernels import (
     FlatContours,
     chain_walk,
     in_chunks,
+    met_bisect,
     refine_edges,
     slot_params,
     slot_residuals,
@@ -151,16 +152,13 @@ def chain(n: int, segs: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]
 
 def _boundary_points(table, codes, pin, pout, diam, snap, cell_diag):
     """Where polylines leave the tie's domain: chord bisection, then onto R = 0 along the boundary."""
-    slots, _ = table.tie_contours(codes)
-    lo = pin.copy()
-    hi = pout.copy()
-    for _ in range(50):
-        mid = 0.5 * (lo + hi)
-        _, _, ok = _residual(table, codes, mid[:, 0], mid[:, 1])
-        lo = np.where(ok[:, None], mid, lo)
-        hi = np.where(ok[:, None], hi, mid)
+    slots, factor = table.tie_contours(codes)
+    flat = _flat(table)
+    # bisection to 1e-13 of the window diameter (chords are at most a cell diagonal long)
+    n_iter = int(np.ceil(np.log2(max(cell_diag, 1e-300) / (1e-13 * diam)))) + 1
+    lo, hi = met_bisect(*flat, slots, np.ascontiguousarray(pin, float), np.ascontiguousarray(pout, float), n_iter)
     # which contour is lost, and through which end: the boundary is the pencil through that end
-    _, met_out = slot_params(*_flat(table), slots, np.ascontiguousarray(hi[:, 0]), np.ascontiguousarray(hi[:, 1]))
+    _, met_out = slot_params(*flat, slots, np.ascontiguousarray(hi[:, 0]), np.ascontiguousarray(hi[:, 1]))
     lost = np.argmax(~met_out, axis=1)
     first = np.array([c.points[0] for c in table.contours], dtype=float)
     last = np.array([c.points[-1] for c in table.contours], dtype=float)
@@ -186,14 +184,11 @@ def _boundary_points(table, codes, pin, pout, diam, snap, cell_diag):
     rows = np.arange(codes.size)
     p = pts[rows, i]
     q = pts[rows, i + 1]
-    sp = sg[rows, i]
-    for _ in range(60):
-        m = 0.5 * (p + q)
-        rm, _, _ = _residual(table, codes, m[:, 0], m[:, 1])
-        same = (rm >= -snap) == sp
-        p = np.where(same[:, None], m, p)
-        q = np.where(same[:, None], q, m)
-    return np.where(has[:, None], 0.5 * (p + q), lo)
+    # zero of the residual between the two samples (ITP, same side convention as the crossings)
+    eps = 0.5e-12 * diam / max(float(t[1] - t[0]), 1e-300)
+    z = refine_edges(*flat, slots, factor, np.ascontiguousarray(p[:, 0]), np.ascontiguousarray(p[:, 1]),
+                     np.ascontiguousarray(q[:, 0]), np.ascontiguousarray(q[:, 1]), snap, eps)
+    return np.where(has[:, None], z, lo)
 
 
 def trace(table: PairTable, samples: Samples, codes: np.ndarray, edges: np.ndarray, points: np.ndarray,
