@@ -39,7 +39,7 @@ def test_flat_evaluation_matches_array_evaluation(seed):
     b = rng.uniform(-1.5, 1.5, 400)
     for c, contour in enumerate(contours):
         s_ref, met_ref = extended_parameter(contour, a, b)
-        got = [ext_param(flat.kind, flat.start, flat.count, flat.xs, flat.ys, flat.ext, c, x, y) for x, y in zip(a, b, strict=True)]
+        got = [ext_param(*flat.args, c, x, y) for x, y in zip(a, b, strict=True)]
         s = np.array([g[0] for g in got])
         met = np.array([g[1] for g in got])
         assert np.array_equal(met, met_ref), contour.id
@@ -51,9 +51,9 @@ def test_half_line_parameters_closed_form():
     # the horizontal one y = y0 has ordinate y0 (point = (a s + b, (1 - a) s - b))
     flat = FlatContours.of([Contour("f:v", "vertical", [0.7, -5.0]), Contour("f:h", "horizontal", [-5.0, 0.4])])
     for a, b in [(0.3, 0.1), (0.5, -0.2), (0.8, 0.4)]:
-        s, met = ext_param(flat.kind, flat.start, flat.count, flat.xs, flat.ys, flat.ext, 0, a, b)
+        s, met = ext_param(*flat.args, 0, a, b)
         assert met and a * s + b == pytest.approx(0.7, abs=1e-15)
-        s, met = ext_param(flat.kind, flat.start, flat.count, flat.xs, flat.ys, flat.ext, 1, a, b)
+        s, met = ext_param(*flat.args, 1, a, b)
         assert met and (1 - a) * s - b == pytest.approx(0.4, abs=1e-15)
 
 
@@ -67,12 +67,12 @@ def test_refine_finds_the_closed_form_root():
     a0 = np.array([0.3, 0.41, 0.2])
     a1 = np.array([0.6, 0.52, 0.7])
     b = np.array([0.0, 0.3, -0.4])
-    out = refine_edges(flat.kind, flat.start, flat.count, flat.xs, flat.ys, flat.ext, slots, np.ones(3),
+    out = refine_edges(*flat.args, slots, np.ones(3),
                        a0, b, a1, b, 0.0, 1e-13)
     np.testing.assert_allclose(out[:, 0], 0.5, atol=1e-12)
     np.testing.assert_array_equal(out[:, 1], b)
     # half tie (factor 2): 1 = 2 a/(1-a) at a = 1/3
-    out = refine_edges(flat.kind, flat.start, flat.count, flat.xs, flat.ys, flat.ext, slots, np.full(3, 2.0),
+    out = refine_edges(*flat.args, slots, np.full(3, 2.0),
                        np.full(3, 0.2), b, np.full(3, 0.45), b, 0.0, 1e-13)
     np.testing.assert_allclose(out[:, 0], 1 / 3, atol=1e-12)
 

@@ -165,15 +165,41 @@ def _segments(lines: list) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
 
 
 def _dedupe_lines(lines: list, scale: float) -> list:
-    seen = set()
+    """Lines without repeats: a line whose vertices all lie within 1e-9 * ``scale`` of an earlier
+    line's (same vertex count, either direction) is dropped.
+
+    Candidates share the vertex count and a bucket of the vertex centroid (side 1e-6 * ``scale``;
+    the 3 x 3 neighbouring buckets are searched, so rounding never separates coincident lines).
+    """
+    if not lines:
+        return []
+    tol = 1e-9 * scale
+    h = 1e-6 * scale
+    coords, idx = shapely.get_coordinates(np.array(lines, dtype=object), return_index=True)
+    n = np.bincount(idx, minlength=len(lines))
+    start = np.cumsum(n) - n
+    cen = np.add.reduceat(coords, start, axis=0) / n[:, None]
+    cell = np.floor(cen / h).astype(np.int64)
+    buckets: dict[tuple[int, int, int], list[int]] = {}
     out = []
-    for g in lines:
-        c = np.round(shapely.get_coordinates(g) / (1e-9 * scale)).astype(np.int64)
-        key = min(c.tobytes(), c[::-1].tobytes())
-        if key in seen:
+    for i, (cx, cy) in enumerate(cell.tolist()):
+        c = coords[start[i]:start[i] + n[i]]
+        dup = False
+        for dx in (-1, 0, 1):
+            for dy in (-1, 0, 1):
+                for j in buckets.get((int(n[i]), cx + dx, cy + dy), ()):
+                    d = coords[start[j]:start[j] + n[j]]
+                    if np.abs(c - d).max() <= tol or np.abs(c - d[::-1]).max() <= tol:
+                        dup = True
+                        break
+                if dup:
+                    break
+            if dup:
+                break
+        if dup:
             continue
-        seen.add(key)
-        out.append(g)
+        buckets.setdefault((int(n[i]), cx, cy), []).append(i)
+        out.append(lines[i])
     return out
 
 

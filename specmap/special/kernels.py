@@ -36,47 +36,52 @@ _KIND = {"vertical": VERTICAL, "horizontal": HORIZONTAL, "proper": PROPER}
 
 @dataclass(frozen=True, eq=False)
 class FlatContours:
-    """Contours as plain arrays (what the compiled loops read).
+    """Contours as two plain arrays (what the compiled loops read).
+
+    Two arrays rather than one per field: every array passed to a compiled
+    function costs reference counting on each call, which dominated the
+    evaluation of a contour at a line.
 
     Attributes
     ----------
-    kind : ndarray of int64 (C,)
-        :data:`VERTICAL`, :data:`HORIZONTAL` or :data:`PROPER`.
-    start, count : ndarray of int64 (C,)
-        Slice of each contour's vertices in ``xs``, ``ys``.
-    xs, ys : ndarray (total vertices,)
-    ext : ndarray (C, 4)
-        Second points (x, y) of the two prolongations of a proper contour:
-        beyond the first vertex (through vertex 1) and beyond the last
-        (through vertex n - 2); a point of slope -1 from the end when the
-        contour is a single point or the two vertices are numerically equal
-        (``np.allclose``), as in :func:`specmap.special.evaluate._through`.
+    meta : ndarray of int64 (C, 3)
+        Kind (:data:`VERTICAL`, :data:`HORIZONTAL`, :data:`PROPER`), first row
+        in ``geo`` and number of vertices of each contour.
+    geo : ndarray (V + 2 C, 2)
+        All vertices (x, y), then for contour c the second points of its two
+        prolongations (rows ``V + 2c``: beyond the first vertex, through vertex
+        1; ``V + 2c + 1``: beyond the last, through vertex n - 2), replaced by
+        a point of slope -1 from the end when the contour is a single point or
+        the two vertices are numerically equal (``np.allclose``), as in
+        :func:`specmap.special.evaluate._through`.
     """
 
-    kind: np.ndarray
-    start: np.ndarray
-    count: np.ndarray
-    xs: np.ndarray
-    ys: np.ndarray
-    ext: np.ndarray
+    meta: np.ndarray
+    geo: np.ndarray
 
     @staticmethod
     def of(contours: Sequence[Contour]) -> FlatContours:
-        kind = np.array([_KIND[c.kind] for c in contours], dtype=np.int64)
-        count = np.array([len(c.points) for c in contours], dtype=np.int64)
-        start = np.concatenate([[0], np.cumsum(count)[:-1]]).astype(np.int64) if len(contours) else count
-        pts = np.concatenate([np.asarray(c.points, float).reshape(-1, 2) for c in contours]) if len(contours) \
-            else np.zeros((0, 2))
-        ext = np.zeros((len(contours), 4))
-        for i, c in enumerate(contours):
-            p = np.asarray(c.points, float).reshape(-1, 2)
+        C = len(contours)
+        pts = [np.asarray(c.points, float).reshape(-1, 2) for c in contours]
+        count = np.array([len(p) for p in pts], dtype=np.int64)
+        start = (np.cumsum(count) - count).astype(np.int64)
+        V = int(count.sum())
+        ext = np.zeros((2 * C, 2))
+        for i, p in enumerate(pts):
             for side, (end, nxt) in enumerate(((0, 1), (-1, -2))):
                 q = p[nxt] if len(p) > 1 else None
                 if q is None or np.allclose(p[end], q):
                     q = p[end] + np.array([1.0, -1.0])
-                ext[i, 2 * side:2 * side + 2] = q
-        return FlatContours(kind, start, count, np.ascontiguousarray(pts[:, 0]), np.ascontiguousarray(pts[:, 1]),
-                            ext)
+                ext[2 * i + side] = q
+        meta = np.stack([np.array([_KIND[c.kind] for c in contours], dtype=np.int64), start, count], axis=1) \
+            if C else np.zeros((0, 3), np.int64)
+        geo = np.ascontiguousarray(np.vstack(pts + [ext])) if C else np.zeros((0, 2))
+        assert geo.shape[0] == V + 2 * C
+        return FlatContours(np.ascontiguousarray(meta), geo)
+
+    @property
+    def args(self) -> tuple[np.ndarray, np.ndarray]:
+        return self.meta, self.geo
 
 
 #: threads used by :func:`in_chunks` (the compiled loops release the GIL)
@@ -95,117 +100,114 @@ def in_chunks(fn: Callable[[slice], np.ndarray], n: int, threads: int = THREADS,
     return np.concatenate(parts)
 
 
-@numba.njit(cache=True, nogil=True, inline="always")
-def _gval(x, y, a, b):
-    return (1.0 - a) * (x - b) - a * (y + b)
-
-
-@numba.njit(cache=True, nogil=True)
-def ext_param(kind, start, count, xs, ys, ext, c, a, b):
+@numba.njit(cache=True, nogil=True, error_model="numpy")
+def ext_param(meta, geo, c, a, b):
     """Extended line parameter s̄ and ``met`` of contour ``c`` at the line (a, b).
 
     Scalar version of :func:`specmap.special.evaluate.extended_parameter`
     (same formulas; binary search on the vertex index for any length).
+    G(x, y) = (1-a)(x-b) - a(y+b) is zero on r(a, b) and non-decreasing along
+    a non-increasing polyline.
     """
-    k0 = start[c]
-    if kind[c] == VERTICAL:
-        x0 = xs[k0]
-        y0 = ys[k0]
-        s = (x0 - b) / a
-        return s, (1.0 - a) * s - b >= y0
-    if kind[c] == HORIZONTAL:
-        x0 = xs[k0]
-        y0 = ys[k0]
-        s = (y0 + b) / (1.0 - a)
-        return s, a * s + b >= x0
-    n = count[c]
-    den = a * a + (1.0 - a) * (1.0 - a)
-    g_last = _gval(xs[k0 + n - 1], ys[k0 + n - 1], a, b)
-    g_first = _gval(xs[k0], ys[k0], a, b)
+    kd = meta[c, 0]
+    k0 = meta[c, 1]
+    if kd == VERTICAL:
+        s = (geo[k0, 0] - b) / a
+        return s, (1.0 - a) * s - b >= geo[k0, 1]
+    if kd == HORIZONTAL:
+        s = (geo[k0, 1] + b) / (1.0 - a)
+        return s, a * s + b >= geo[k0, 0]
+    n = meta[c, 2]
+    oma = 1.0 - a
+    den = a * a + oma * oma
+    g_first = oma * (geo[k0, 0] - b) - a * (geo[k0, 1] + b)
+    g_last = oma * (geo[k0 + n - 1, 0] - b) - a * (geo[k0 + n - 1, 1] + b)
     if g_first <= 0.0 and g_last >= 0.0:
         if n == 1:
-            return (a * (xs[k0] - b) + (1.0 - a) * (ys[k0] + b)) / den, True
-        # count of vertices with G <= 0 (G is non-decreasing along the polyline)
+            return (a * (geo[k0, 0] - b) + oma * (geo[k0, 1] + b)) / den, True
+        # count of vertices with G <= 0
         lo = 0
         hi = n
         while lo < hi:
             mid = (lo + hi) // 2
-            if _gval(xs[k0 + mid], ys[k0 + mid], a, b) > 0.0:
+            if oma * (geo[k0 + mid, 0] - b) - a * (geo[k0 + mid, 1] + b) > 0.0:
                 hi = mid
             else:
                 lo = mid + 1
-        k = min(max(lo - 1, 0), n - 2)
-        g0 = _gval(xs[k0 + k], ys[k0 + k], a, b)
-        g1 = _gval(xs[k0 + k + 1], ys[k0 + k + 1], a, b)
+        k = k0 + min(max(lo - 1, 0), n - 2)
+        g0 = oma * (geo[k, 0] - b) - a * (geo[k, 1] + b)
+        g1 = oma * (geo[k + 1, 0] - b) - a * (geo[k + 1, 1] + b)
         d = g1 - g0
         t = -g0 / d if d > 0.0 else 0.0
         t = min(max(t, 0.0), 1.0)
-        px = xs[k0 + k] + t * (xs[k0 + k + 1] - xs[k0 + k])
-        py = ys[k0 + k] + t * (ys[k0 + k + 1] - ys[k0 + k])
-        return (a * (px - b) + (1.0 - a) * (py + b)) / den, True
+        px = geo[k, 0] + t * (geo[k + 1, 0] - geo[k, 0])
+        py = geo[k, 1] + t * (geo[k + 1, 1] - geo[k, 1])
+        return (a * (px - b) + oma * (py + b)) / den, True
     # prolongation: through the first end where the line passes above it, else the last
+    n_c = meta.shape[0]
+    v_all = geo.shape[0] - 2 * n_c
     if g_first > 0.0:
-        px = xs[k0]
-        py = ys[k0]
-        qx = ext[c, 0]
-        qy = ext[c, 1]
+        px = geo[k0, 0]
+        py = geo[k0, 1]
+        q = v_all + 2 * c
     else:
-        px = xs[k0 + n - 1]
-        py = ys[k0 + n - 1]
-        qx = ext[c, 2]
-        qy = ext[c, 3]
-    gp = _gval(px, py, a, b)
-    gq = _gval(qx, qy, a, b)
+        px = geo[k0 + n - 1, 0]
+        py = geo[k0 + n - 1, 1]
+        q = v_all + 2 * c + 1
+    qx = geo[q, 0]
+    qy = geo[q, 1]
+    gp = oma * (px - b) - a * (py + b)
+    gq = oma * (qx - b) - a * (qy + b)
     t = -gp / (gq - gp)
     return px + py + t * ((qx - px) + (qy - py)), False
 
 
-@numba.njit(cache=True, nogil=True)
-def _residual(kind, start, count, xs, ys, ext, c0, c1, c2, c3, factor, a, b):
+@numba.njit(cache=True, nogil=True, error_model="numpy")
+def _residual(meta, geo, c0, c1, c2, c3, factor, a, b):
     """(R, tied value, all met) of one tie at one line; R in push units."""
-    s0, m0 = ext_param(kind, start, count, xs, ys, ext, c0, a, b)
-    s1, m1 = ext_param(kind, start, count, xs, ys, ext, c1, a, b)
-    s2, m2 = ext_param(kind, start, count, xs, ys, ext, c2, a, b)
-    s3, m3 = ext_param(kind, start, count, xs, ys, ext, c3, a, b)
+    s0, m0 = ext_param(meta, geo, c0, a, b)
+    s1, m1 = ext_param(meta, geo, c1, a, b)
+    s2, m2 = ext_param(meta, geo, c2, a, b)
+    s3, m3 = ext_param(meta, geo, c3, a, b)
     m = min(a, 1.0 - a)
     dp = abs(s0 - s1) * m
     dq = abs(s2 - s3) * m * factor
     return dp - dq, min(dp, dq / factor), m0 and m1 and m2 and m3
 
 
-@numba.njit(cache=True, nogil=True)
-def slot_residuals(kind, start, count, xs, ys, ext, slots, factor, a, b):
+@numba.njit(cache=True, nogil=True, error_model="numpy")
+def slot_residuals(meta, geo, slots, factor, a, b):
     """Residual R, tied value and ``all met`` of ties ``slots`` (K, 4) at lines (a[k], b[k])."""
     K = slots.shape[0]
     r = np.empty(K)
     val = np.empty(K)
     met = np.empty(K, dtype=np.bool_)
     for k in range(K):
-        r[k], val[k], met[k] = _residual(kind, start, count, xs, ys, ext, slots[k, 0], slots[k, 1],
+        r[k], val[k], met[k] = _residual(meta, geo, slots[k, 0], slots[k, 1],
                                          slots[k, 2], slots[k, 3], factor[k], a[k], b[k])
     return r, val, met
 
 
-@numba.njit(cache=True, nogil=True)
-def slot_params(kind, start, count, xs, ys, ext, slots, a, b):
+@numba.njit(cache=True, nogil=True, error_model="numpy")
+def slot_params(meta, geo, slots, a, b):
     """s̄ and met of every slot contour: arrays (K, m) at lines (a[k], b[k])."""
     K, M = slots.shape
     s = np.empty((K, M))
     met = np.empty((K, M), dtype=np.bool_)
     for k in range(K):
         for j in range(M):
-            s[k, j], met[k, j] = ext_param(kind, start, count, xs, ys, ext, slots[k, j], a[k], b[k])
+            s[k, j], met[k, j] = ext_param(meta, geo, slots[k, j], a[k], b[k])
     return s, met
 
 
-@numba.njit(cache=True, nogil=True)
-def refine_edges(kind, start, count, xs, ys, ext, slots, factor, a0, b0, a1, b1, snap, eps):
+@numba.njit(cache=True, nogil=True, error_model="numpy")
+def refine_edges(meta, geo, slots, factor, a0, b0, a1, b1, snap, eps):
     """Zero of R + snap on each segment (a0, b0)-(a1, b1), to a bracket below ``2 eps`` in t ∈ [0, 1].
 
     The sign convention is the detection's: a side is ``R >= -snap``. Each
     root is bracketed by the segment's ends and found by the ITP method
     [OT20]: never more evaluations than bisection (plus one), superlinear on
-    the smooth pieces of R. Returns the midpoints of the final brackets (K, 2).
+    the smooth pieces of R (parameters kappa1 = 0.01, kappa2 = 2, n0 = 1). Returns the midpoints of the final brackets (K, 2).
     When both ends are on the same side (no bracket), the end point is returned.
     """
     K = slots.shape[0]
@@ -216,8 +218,8 @@ def refine_edges(kind, start, count, xs, ys, ext, slots, factor, a0, b0, a1, b1,
         c0, c1, c2, c3, fk = slots[k, 0], slots[k, 1], slots[k, 2], slots[k, 3], factor[k]
         da = a1[k] - a0[k]
         db = b1[k] - b0[k]
-        ya = _residual(kind, start, count, xs, ys, ext, c0, c1, c2, c3, fk, a0[k], b0[k])[0] + snap
-        yb = _residual(kind, start, count, xs, ys, ext, c0, c1, c2, c3, fk, a1[k], b1[k])[0] + snap
+        ya = _residual(meta, geo, c0, c1, c2, c3, fk, a0[k], b0[k])[0] + snap
+        yb = _residual(meta, geo, c0, c1, c2, c3, fk, a1[k], b1[k])[0] + snap
         sa = ya >= 0.0
         if sa == (yb >= 0.0):
             out[k, 0] = a1[k]
@@ -229,14 +231,14 @@ def refine_edges(kind, start, count, xs, ys, ext, slots, factor, a0, b0, a1, b1,
         while hi - lo > 2.0 * eps and j < n_max + 2:
             half = 0.5 * (lo + hi)
             r = eps * 2.0 ** (n_max - j) - 0.5 * (hi - lo)
-            delta = 0.2 * (hi - lo) * (hi - lo)
+            delta = 0.01 * (hi - lo) * (hi - lo)
             xf = (yb * lo - ya * hi) / (yb - ya) if yb != ya else half
             sig = 1.0 if half - xf >= 0.0 else -1.0
             xt = xf + sig * delta if delta <= abs(half - xf) else half
             x = xt if abs(xt - half) <= r else half - sig * r
             if not (x > lo and x < hi):
                 x = half
-            y = _residual(kind, start, count, xs, ys, ext, c0, c1, c2, c3, fk,
+            y = _residual(meta, geo, c0, c1, c2, c3, fk,
                           a0[k] + x * da, b0[k] + x * db)[0] + snap
             if (y >= 0.0) == sa:
                 lo = x
@@ -248,7 +250,7 @@ def refine_edges(kind, start, count, xs, ys, ext, slots, factor, a0, b0, a1, b1,
         # guard: finish by bisection if the ITP budget ran out (cannot happen in exact arithmetic)
         while hi - lo > 2.0 * eps:
             x = 0.5 * (lo + hi)
-            y = _residual(kind, start, count, xs, ys, ext, c0, c1, c2, c3, fk,
+            y = _residual(meta, geo, c0, c1, c2, c3, fk,
                           a0[k] + x * da, b0[k] + x * db)[0] + snap
             if (y >= 0.0) == sa:
                 lo = x
@@ -260,7 +262,7 @@ def refine_edges(kind, start, count, xs, ys, ext, slots, factor, a0, b0, a1, b1,
     return out
 
 
-@numba.njit(cache=True, nogil=True)
+@numba.njit(cache=True, nogil=True, error_model="numpy")
 def _grow(buf, n):
     if n < buf.size:
         return buf
@@ -269,7 +271,7 @@ def _grow(buf, n):
     return out
 
 
-@numba.njit(cache=True, nogil=True)
+@numba.njit(cache=True, nogil=True, error_model="numpy")
 def _tie_met(met, c0, c1, c2, c3, cj, ci):
     """All four contours met at one corner of cell (cj, ci)."""
     for dj in range(2):
@@ -281,7 +283,7 @@ def _tie_met(met, c0, c1, c2, c3, cj, ci):
     return False
 
 
-@numba.njit(cache=True, nogil=True)
+@numba.njit(cache=True, nogil=True, error_model="numpy")
 def sweep_rows(s, met, cell_pair, first, second, cross, roles, mcol, j_start, j_stop, snap, tol):
     """Order swaps of pair differences on the lattice edges of node rows ``j_start`` to ``j_stop - 1``.
 
@@ -422,7 +424,7 @@ def sweep_rows(s, met, cell_pair, first, second, cross, roles, mcol, j_start, j_
     return codes[:n_out].copy(), edges[:n_out].copy(), n_cand
 
 
-@numba.njit(cache=True, nogil=True)
+@numba.njit(cache=True, nogil=True, error_model="numpy")
 def chain_walk(nbr, deg):
     """Walk a graph of maximum degree 2 (neighbours ``nbr`` (n, 2), -1 = none) into paths.
 
@@ -485,7 +487,7 @@ def chain_walk(nbr, deg):
     return flat[:pos].copy(), length[:n_paths].copy(), closed[:n_paths].copy()
 
 
-@numba.njit(cache=True, nogil=True, inline="always")
+@numba.njit(cache=True, nogil=True, error_model="numpy")
 def _find(parent, x):
     while parent[x] != x:
         parent[x] = parent[parent[x]]
@@ -493,7 +495,7 @@ def _find(parent, x):
     return x
 
 
-@numba.njit(cache=True, nogil=True, inline="always")
+@numba.njit(cache=True, nogil=True, error_model="numpy")
 def _union(parent, x, y):
     rx = _find(parent, x)
     ry = _find(parent, y)
@@ -504,7 +506,7 @@ def _union(parent, x, y):
             parent[rx] = ry
 
 
-@numba.njit(cache=True, nogil=True)
+@numba.njit(cache=True, nogil=True, error_model="numpy")
 def _perimeter(x, y, a0, a1, b0, b1, eps):
     """Position in [0, 4) of (x, y) along the boundary of cell [a0, a1] x [b0, b1] and ``on``."""
     wa = a1 - a0
@@ -535,7 +537,7 @@ def _perimeter(x, y, a0, a1, b0, b1, eps):
     return t, on
 
 
-@numba.njit(cache=True, nogil=True)
+@numba.njit(cache=True, nogil=True, error_model="numpy")
 def lattice_labels(p, q, owner, n_lines, av, bv, eps, vkey, vorder):
     """Components of lines linked by shared vertices and by crossing chords of lattice cells.
 
@@ -665,7 +667,7 @@ def lattice_labels(p, q, owner, n_lines, av, bv, eps, vkey, vorder):
     return label, cell, chord
 
 
-@numba.njit(cache=True, nogil=True)
+@numba.njit(cache=True, nogil=True, error_model="numpy")
 def tie_cells_met(met, slots, edges, n_a, n_b):
     """For each (tie, edge): whether each of the two cells beside the edge sees the tie met.
 
@@ -697,8 +699,8 @@ def tie_cells_met(met, slots, edges, n_a, n_b):
     return out
 
 
-@numba.njit(cache=True, nogil=True)
-def met_bisect(kind, start, count, xs, ys, ext, slots, lo, hi, n_iter):
+@numba.njit(cache=True, nogil=True, error_model="numpy")
+def met_bisect(meta, geo, slots, lo, hi, n_iter):
     """Bisection on the chord lo-hi (K, 2 each) for where a tie stops being met.
 
     ``lo`` has all four contours met, ``hi`` not; after ``n_iter`` halvings
@@ -713,7 +715,7 @@ def met_bisect(kind, start, count, xs, ys, ext, slots, lo, hi, n_iter):
             mb = 0.5 * (lo[k, 1] + hi[k, 1])
             ok = True
             for j in range(4):
-                if not ext_param(kind, start, count, xs, ys, ext, slots[k, j], ma, mb)[1]:
+                if not ext_param(meta, geo, slots[k, j], ma, mb)[1]:
                     ok = False
                     break
             if ok:

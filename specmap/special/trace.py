@@ -46,8 +46,7 @@ class TracedTie:
 
 
 def _flat(table: PairTable) -> tuple:
-    f = FlatContours.of(table.contours)
-    return f.kind, f.start, f.count, f.xs, f.ys, f.ext
+    return FlatContours.of(table.contours).args
 
 
 def _residual(table: PairTable, codes: np.ndarray, a: np.ndarray, b: np.ndarray):
