@@ -23,11 +23,12 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from specmap.special.detect import Samples, relevant_cells, sorted_unique
+from specmap.special.detect import Samples, relevant_cells
 from specmap.special.kernels import (
     FlatContours,
     chain_walk,
     in_chunks,
+    march_cells,
     met_bisect,
     refine_edges,
     slot_params,
@@ -82,51 +83,18 @@ def refine(table: PairTable, samples: Samples, codes: np.ndarray, edges: np.ndar
 
 def segments(table: PairTable, samples: Samples, codes: np.ndarray, edges: np.ndarray,
              *, snap: float) -> np.ndarray:
-    """Marching squares per tie: pairs (u, v) of crossing indices joined inside a cell."""
+    """Marching squares per tie: pairs (u, v) of crossing indices joined inside a cell.
+
+    Compiled (:func:`specmap.special.kernels.march_cells`); ``codes`` and
+    ``edges`` sorted by (code, edge) as :func:`find_crossings` returns them.
+    """
     lat = samples.lattice
     if codes.size == 0:
         return np.zeros((0, 2), dtype=np.int64)
-    ne = lat.n_edges
-    keys = codes * ne + edges  # sorted (find_crossings returns them so)
     rel = relevant_cells(table, samples, codes, edges)
-    cells = lat.edge_cells(edges)
-    tc = np.concatenate([codes[rel[:, 0]], codes[rel[:, 1]]])
-    cc = np.concatenate([cells[rel[:, 0], 0], cells[rel[:, 1], 1]])
-    nc = lat.n_cells
-    tcell = sorted_unique(tc * nc + cc)
-    tcode, cell = np.divmod(tcell, nc)
-    ce = lat.cell_edges(cell)  # (T, 4) bottom, right, top, left
-    ck = tcode[:, None] * ne + ce
-    pos = np.searchsorted(keys, ck)
-    pos = np.minimum(pos, keys.size - 1)
-    idx = np.where(keys[pos] == ck, pos, -1)
-    present = idx >= 0
-    count = present.sum(axis=1)
-    out = []
-    two = count == 2
-    if two.any():
-        sub = idx[two]
-        order = np.argsort(~present[two], axis=1, kind="stable")
-        uv = np.take_along_axis(sub, order[:, :2], axis=1)
-        out.append(uv)
-    four = np.nonzero(count == 4)[0]
-    if four.size:
-        a0, b0, a1, b1 = lat.cell_box(cell[four])
-        codes4 = tcode[four]
-        rc, _, _ = _residual(table, codes4, 0.5 * (a0 + a1), 0.5 * (b0 + b1))
-        r00, _, _ = _residual(table, codes4, a0, b0)
-        same = (rc >= -snap) == (r00 >= -snap)
-        sub = idx[four]
-        # centre like corner 00 (and 11): cut off corners 10 and 01
-        first = np.where(same[:, None], sub[:, [0, 1]], sub[:, [3, 0]])
-        second = np.where(same[:, None], sub[:, [2, 3]], sub[:, [1, 2]])
-        out.extend([first, second])
-    odd = np.nonzero(count == 3)[0]
-    if odd.size:
-        sub = idx[odd]
-        order = np.argsort(~present[odd], axis=1, kind="stable")
-        out.append(np.take_along_axis(sub, order[:, :2], axis=1))
-    return np.concatenate(out) if out else np.zeros((0, 2), dtype=np.int64)
+    slots, factor = table.tie_contours(codes)
+    return march_cells(np.asarray(codes, np.int64), np.asarray(edges, np.int64), rel, lat.n_a, lat.n_b,
+                       np.asarray(lat.av, float), np.asarray(lat.bv, float), *_flat(table), slots, factor, snap)
 
 
 def chain(n: int, segs: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
