@@ -326,8 +326,11 @@ def _lattice_links(lines: list, eps: float, lattice) -> tuple[np.ndarray, np.nda
         lab = label[owner]
         nl = n_lines
         # segments listed per cell (chords by their cell, extras by every touched cell), by component
-        all_cell = np.concatenate([cell[chord], ecell])
-        all_seg = np.concatenate([np.nonzero(chord)[0], eseg])
+        touched = np.zeros(na1 * nb1, dtype=bool)
+        touched[ecell] = True
+        near = np.nonzero(chord & touched[cell])[0]
+        all_cell = np.concatenate([cell[near], ecell])
+        all_seg = np.concatenate([near, eseg])
         all_key = all_cell * nl + lab[all_seg]
         order = np.argsort(all_key, kind="stable")
         all_key, all_seg = all_key[order], all_seg[order]

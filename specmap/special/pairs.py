@@ -20,6 +20,7 @@ References
 
 from __future__ import annotations
 
+import weakref
 from dataclasses import dataclass
 from typing import Any
 
@@ -121,10 +122,20 @@ class PairTable:
         return Tie.make(self.pair_ids(p), self.pair_ids(q), CONDITIONS[cond])
 
     def tie_contours(self, codes: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-        """Contour indices (k, 4) = (P.first, P.second, Q.first, Q.second) and factors (1 or 2)."""
+        """Contour indices (k, 4) = (P.first, P.second, Q.first, Q.second) and factors (1 or 2).
+
+        The result for the last large ``codes`` array is kept (the atlas asks for the
+        same crossings' contours at several stages); treat the returned arrays as read-only.
+        """
+        cached = self.__dict__.get("_slots_cache")
+        if cached is not None and cached[0]() is codes:
+            return cached[1]
         cond, p, q = self.decode(codes)
         slots = np.stack([self.first[p], self.second[p], self.first[q], self.second[q]], axis=-1)
-        return slots, np.where(cond == 1, 2.0, 1.0)
+        out = slots, np.where(cond == 1, 2.0, 1.0)
+        if isinstance(codes, np.ndarray) and codes.size >= 100_000:
+            object.__setattr__(self, "_slots_cache", (weakref.ref(codes), out))
+        return out
 
 
 def pair_table(grid_f: Grid, grid_g: Grid, mode: str = "all") -> PairTable:
