@@ -288,11 +288,11 @@ def _lattice_links(lines: list, eps: float, lattice) -> tuple[np.ndarray, np.nda
     Uses the sample lattice the curves were traced on: every segment whose two
     end points lie on the boundary of one lattice cell (a marching-squares
     chord) is tested against the other chords of its cell by the interleaving
-    of end points on the perimeter, and lines sharing a vertex (to ``eps``) are
-    joined (compiled: :func:`specmap.special.kernels.lattice_labels`). The few
-    other segments (ends on the domain boundary) are tested with the exact
-    segment test against the segments of other components in the cells their
-    box touches.
+    of end points on the perimeter, lines sharing a vertex (to ``eps``) are
+    joined, and the few other segments (ends on the domain boundary) are tested
+    with the exact segment test against the segments of other components in
+    the cells their box touches (all compiled:
+    :func:`specmap.special.kernels.lattice_labels`).
     """
     if not lines:
         z = np.zeros(0, np.int64)
@@ -300,65 +300,11 @@ def _lattice_links(lines: list, eps: float, lattice) -> tuple[np.ndarray, np.nda
     p, q, owner = _segments(lines)
     n_lines = len(lines)
     av, bv = lattice.av, lattice.bv
-    na1, nb1 = av.size - 1, bv.size - 1
     ends = np.vstack([p, q])
     kk = np.round((ends - ends.min(axis=0)) / eps).astype(np.int64)
     vkey = kk[:, 0] * (int(kk[:, 1].max()) + 1) + kk[:, 1]
-    label, cell, chord = lattice_labels(np.ascontiguousarray(p), np.ascontiguousarray(q), owner, n_lines,
-                                        np.asarray(av, float), np.asarray(bv, float), eps, vkey, np.argsort(vkey))
-    extra = np.nonzero(~chord)[0]
-    if extra.size:
-        # every cell an extra segment's box touches, against every segment of those cells
-        lo = np.minimum(p[extra], q[extra]) - eps
-        hi = np.maximum(p[extra], q[extra]) + eps
-        i0 = np.clip(np.searchsorted(av, lo[:, 0], side="right") - 1, 0, na1 - 1)
-        i1 = np.clip(np.searchsorted(av, hi[:, 0], side="right") - 1, 0, na1 - 1)
-        j0 = np.clip(np.searchsorted(bv, lo[:, 1], side="right") - 1, 0, nb1 - 1)
-        j1 = np.clip(np.searchsorted(bv, hi[:, 1], side="right") - 1, 0, nb1 - 1)
-        nx_, ny_ = i1 - i0 + 1, j1 - j0 + 1
-        tot = nx_ * ny_
-        sid = np.repeat(np.arange(extra.size), tot)
-        r = np.arange(int(tot.sum())) - np.repeat(np.cumsum(tot) - tot, tot)
-        dy, dx = np.divmod(r, nx_[sid])
-        ecell = (j0[sid] + dy) * na1 + i0[sid] + dx
-        eseg = extra[sid]
-        # only pairs of different components (so far) need a test
-        lab = label[owner]
-        nl = n_lines
-        # segments listed per cell (chords by their cell, extras by every touched cell), by component
-        touched = np.zeros(na1 * nb1, dtype=bool)
-        touched[ecell] = True
-        near = np.nonzero(chord & touched[cell])[0]
-        all_cell = np.concatenate([cell[near], ecell])
-        all_seg = np.concatenate([near, eseg])
-        all_key = all_cell * nl + lab[all_seg]
-        order = np.argsort(all_key, kind="stable")
-        all_key, all_seg = all_key[order], all_seg[order]
-        ekey = ecell * nl + lab[eseg]
-        first = np.searchsorted(all_key, ecell * nl, side="left")
-        last = np.searchsorted(all_key, (ecell + 1) * nl, side="left")
-        lf = np.searchsorted(all_key, ekey, side="left")
-        ll = np.searchsorted(all_key, ekey, side="right")
-        srcs, dsts = [], []
-        for r0, r1 in ((first, lf), (ll, last)):
-            m = r1 - r0
-            srcs.append(np.repeat(eseg, m))
-            rr = np.arange(int(m.sum())) - np.repeat(np.cumsum(m) - m, m)
-            dsts.append(all_seg[np.repeat(r0, m) + rr])
-        src, dst = np.concatenate(srcs), np.concatenate(dsts)
-        # boxes (grown by 2 eps, a superset of the eps test) must overlap
-        blo = np.minimum(p, q)
-        bhi = np.maximum(p, q)
-        keep = ((blo[src, 0] <= bhi[dst, 0] + 2 * eps) & (blo[dst, 0] <= bhi[src, 0] + 2 * eps)
-                & (blo[src, 1] <= bhi[dst, 1] + 2 * eps) & (blo[dst, 1] <= bhi[src, 1] + 2 * eps))
-        src, dst = src[keep], dst[keep]
-        la, lb = [np.arange(n_lines)], [label]
-        for s0 in range(0, src.size, 2_000_000):
-            su, sv = src[s0:s0 + 2_000_000], dst[s0:s0 + 2_000_000]
-            hit = _segments_close(p[su], q[su], p[sv], q[sv], eps)
-            la.append(owner[su[hit]])
-            lb.append(owner[sv[hit]])
-        label = _labels(n_lines, la, lb)
+    label, _, _ = lattice_labels(np.ascontiguousarray(p), np.ascontiguousarray(q), owner, n_lines,
+                                 np.asarray(av, float), np.asarray(bv, float), eps, vkey, np.argsort(vkey))
     rep = np.full(int(label.max()) + 1, -1, dtype=np.int64)
     rep[label[::-1]] = np.arange(n_lines)[::-1]
     return np.arange(n_lines), rep[label]

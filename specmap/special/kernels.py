@@ -551,6 +551,11 @@ def lattice_labels(p, q, owner, n_lines, av, bv, eps, vkey, vorder):
     components of the crossing graph in O(k log k) for k chords instead of
     O(k^2) pair tests. Union-find on lines.
 
+    Other segments (an end inside its cell, where a tie's domain ends) are
+    tested exactly (cross, or closer than ``eps``) against the chords and such
+    segments of every cell their box touches; pairs already in one component
+    are skipped, so a line stops being tested once it is joined.
+
     Returns
     -------
     label : ndarray of int64 (n_lines,)
@@ -661,10 +666,84 @@ def lattice_labels(p, q, owner, n_lines, av, bv, eps, vkey, vorder):
             while gpar[g] != g:
                 g = gpar[g]
             _union(parent, owner[by_cell[lo + i]], owner[by_cell[lo + gch[g]]])
+    # other segments (an end inside a cell: domain boundary points): exact tests against the
+    # chords and other such segments of every cell their box touches, skipping pairs already joined
+    extra = np.nonzero(~chord)[0]
+    n_x = extra.size
+    xi0 = np.empty(n_x, dtype=np.int64)
+    xi1 = np.empty(n_x, dtype=np.int64)
+    xj0 = np.empty(n_x, dtype=np.int64)
+    xj1 = np.empty(n_x, dtype=np.int64)
+    xcnt = np.zeros(n_cells + 1, dtype=np.int64)
+    for r in range(n_x):
+        s = extra[r]
+        xi0[r] = min(max(np.searchsorted(av, min(p[s, 0], q[s, 0]) - eps, side="right") - 1, 0), na1 - 1)
+        xi1[r] = min(max(np.searchsorted(av, max(p[s, 0], q[s, 0]) + eps, side="right") - 1, 0), na1 - 1)
+        xj0[r] = min(max(np.searchsorted(bv, min(p[s, 1], q[s, 1]) - eps, side="right") - 1, 0), nb1 - 1)
+        xj1[r] = min(max(np.searchsorted(bv, max(p[s, 1], q[s, 1]) + eps, side="right") - 1, 0), nb1 - 1)
+        for cj in range(xj0[r], xj1[r] + 1):
+            for ci in range(xi0[r], xi1[r] + 1):
+                xcnt[cj * na1 + ci + 1] += 1
+    for c in range(n_cells):
+        xcnt[c + 1] += xcnt[c]
+    xfill = xcnt[:-1].copy()
+    x_by_cell = np.empty(xcnt[-1], dtype=np.int64)
+    for r in range(n_x):
+        for cj in range(xj0[r], xj1[r] + 1):
+            for ci in range(xi0[r], xi1[r] + 1):
+                c = cj * na1 + ci
+                x_by_cell[xfill[c]] = extra[r]
+                xfill[c] += 1
+    for r in range(n_x):
+        s = extra[r]
+        for cj in range(xj0[r], xj1[r] + 1):
+            for ci in range(xi0[r], xi1[r] + 1):
+                c = cj * na1 + ci
+                for lst in range(2):
+                    if lst == 0:
+                        lo, hi = cnt[c], cnt[c + 1]
+                    else:
+                        lo, hi = xcnt[c], xcnt[c + 1]
+                    for t in range(lo, hi):
+                        o = by_cell[t] if lst == 0 else x_by_cell[t]
+                        if o == s or _find(parent, owner[o]) == _find(parent, owner[s]):
+                            continue
+                        if _segments_close(p[s, 0], p[s, 1], q[s, 0], q[s, 1],
+                                           p[o, 0], p[o, 1], q[o, 0], q[o, 1], eps):
+                            _union(parent, owner[s], owner[o])
     label = np.empty(n_lines, dtype=np.int64)
     for i in range(n_lines):
         label[i] = _find(parent, i)
     return label, cell, chord
+
+
+@numba.njit(cache=True, nogil=True, error_model="numpy")
+def _point_segment_distance(x, y, px, py, qx, qy):
+    dx = qx - px
+    dy = qy - py
+    L = dx * dx + dy * dy
+    t = ((x - px) * dx + (y - py) * dy) / L if L > 0.0 else 0.0
+    t = min(max(t, 0.0), 1.0)
+    return np.hypot(x - px - t * dx, y - py - t * dy)
+
+
+@numba.njit(cache=True, nogil=True, error_model="numpy")
+def _segments_close(p1x, p1y, q1x, q1y, p2x, p2y, q2x, q2y, eps):
+    """Segments p1q1 and p2q2 cross or come within ``eps`` (boxes first)."""
+    if (min(p1x, q1x) > max(p2x, q2x) + 2 * eps or min(p2x, q2x) > max(p1x, q1x) + 2 * eps
+            or min(p1y, q1y) > max(p2y, q2y) + 2 * eps or min(p2y, q2y) > max(p1y, q1y) + 2 * eps):
+        return False
+    o1 = (q1x - p1x) * (p2y - p1y) - (q1y - p1y) * (p2x - p1x)
+    o2 = (q1x - p1x) * (q2y - p1y) - (q1y - p1y) * (q2x - p1x)
+    o3 = (q2x - p2x) * (p1y - p2y) - (q2y - p2y) * (p1x - p2x)
+    o4 = (q2x - p2x) * (q1y - p2y) - (q2y - p2y) * (q1x - p2x)
+    if o1 * o2 < 0 and o3 * o4 < 0:
+        return True
+    d = min(_point_segment_distance(p2x, p2y, p1x, p1y, q1x, q1y),
+            _point_segment_distance(q2x, q2y, p1x, p1y, q1x, q1y),
+            _point_segment_distance(p1x, p1y, p2x, p2y, q2x, q2y),
+            _point_segment_distance(q1x, q1y, p2x, p2y, q2x, q2y))
+    return d <= eps
 
 
 @numba.njit(cache=True, nogil=True, error_model="numpy")
