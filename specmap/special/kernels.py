@@ -425,6 +425,29 @@ def sweep_rows(s, met, cell_pair, first, second, cross, roles, mcol, j_start, j_
 
 
 @numba.njit(cache=True, nogil=True, error_model="numpy")
+def neighbours(n, segs):
+    """Degree and the first two neighbours (-1 = none) of each of ``n`` vertices.
+
+    Half-edges are taken in the order u->v, v->u of each segment in turn;
+    loops (u == v) are ignored.
+    """
+    deg = np.zeros(n, dtype=np.int64)
+    nbr = np.full((n, 2), -1, dtype=np.int64)
+    for k in range(segs.shape[0]):
+        u = segs[k, 0]
+        v = segs[k, 1]
+        if u == v:
+            continue
+        if deg[u] < 2:
+            nbr[u, deg[u]] = v
+        deg[u] += 1
+        if deg[v] < 2:
+            nbr[v, deg[v]] = u
+        deg[v] += 1
+    return nbr, deg
+
+
+@numba.njit(cache=True, nogil=True, error_model="numpy")
 def chain_walk(nbr, deg):
     """Walk a graph of maximum degree 2 (neighbours ``nbr`` (n, 2), -1 = none) into paths.
 
@@ -667,46 +690,86 @@ def lattice_labels(p, q, owner, n_lines, av, bv, eps, vkey, vorder):
                 g = gpar[g]
             _union(parent, owner[by_cell[lo + i]], owner[by_cell[lo + gch[g]]])
     # other segments (an end inside a cell: domain boundary points): exact tests against the
-    # chords and other such segments of every cell their box touches, skipping pairs already joined
+    # chords and other such segments of every cell their box touches. Each cell's list is sorted
+    # by component (as after the chord scan), so the segments of the tested segment's own
+    # component are skipped as one range; pairs joined meanwhile are skipped by union-find.
     extra = np.nonzero(~chord)[0]
     n_x = extra.size
     xi0 = np.empty(n_x, dtype=np.int64)
     xi1 = np.empty(n_x, dtype=np.int64)
     xj0 = np.empty(n_x, dtype=np.int64)
     xj1 = np.empty(n_x, dtype=np.int64)
-    xcnt = np.zeros(n_cells + 1, dtype=np.int64)
     for r in range(n_x):
         s = extra[r]
         xi0[r] = min(max(np.searchsorted(av, min(p[s, 0], q[s, 0]) - eps, side="right") - 1, 0), na1 - 1)
         xi1[r] = min(max(np.searchsorted(av, max(p[s, 0], q[s, 0]) + eps, side="right") - 1, 0), na1 - 1)
         xj0[r] = min(max(np.searchsorted(bv, min(p[s, 1], q[s, 1]) - eps, side="right") - 1, 0), nb1 - 1)
         xj1[r] = min(max(np.searchsorted(bv, max(p[s, 1], q[s, 1]) + eps, side="right") - 1, 0), nb1 - 1)
+    if n_x == 0:
+        label = np.empty(n_lines, dtype=np.int64)
+        for i in range(n_lines):
+            label[i] = _find(parent, i)
+        return label, cell, chord
+    acnt = np.zeros(n_cells + 1, dtype=np.int64)
+    for c in range(n_cells):
+        acnt[c + 1] = cnt[c + 1] - cnt[c]
+    for r in range(n_x):
         for cj in range(xj0[r], xj1[r] + 1):
             for ci in range(xi0[r], xi1[r] + 1):
-                xcnt[cj * na1 + ci + 1] += 1
+                acnt[cj * na1 + ci + 1] += 1
     for c in range(n_cells):
-        xcnt[c + 1] += xcnt[c]
-    xfill = xcnt[:-1].copy()
-    x_by_cell = np.empty(xcnt[-1], dtype=np.int64)
+        acnt[c + 1] += acnt[c]
+    afill = acnt[:-1].copy()
+    a_seg = np.empty(acnt[-1], dtype=np.int64)
+    for c in range(n_cells):
+        for t in range(cnt[c], cnt[c + 1]):
+            a_seg[afill[c]] = by_cell[t]
+            afill[c] += 1
     for r in range(n_x):
         for cj in range(xj0[r], xj1[r] + 1):
             for ci in range(xi0[r], xi1[r] + 1):
                 c = cj * na1 + ci
-                x_by_cell[xfill[c]] = extra[r]
-                xfill[c] += 1
+                a_seg[afill[c]] = extra[r]
+                afill[c] += 1
+    snap_lab = np.empty(n_lines, dtype=np.int64)
+    for i in range(n_lines):
+        snap_lab[i] = _find(parent, i)
+    a_lab = np.empty(a_seg.size, dtype=np.int64)
+    for c in range(n_cells):
+        lo = acnt[c]
+        hi = acnt[c + 1]
+        if hi - lo < 1:
+            continue
+        keys = np.empty(hi - lo, dtype=np.int64)
+        for t in range(lo, hi):
+            keys[t - lo] = snap_lab[owner[a_seg[t]]]
+        order = np.argsort(keys, kind="mergesort")
+        segs = a_seg[lo:hi].copy()
+        for t in range(hi - lo):
+            a_seg[lo + t] = segs[order[t]]
+            a_lab[lo + t] = keys[order[t]]
     for r in range(n_x):
         s = extra[r]
+        own = snap_lab[owner[s]]
+        sx0 = min(p[s, 0], q[s, 0]) - 2 * eps
+        sx1 = max(p[s, 0], q[s, 0]) + 2 * eps
+        sy0 = min(p[s, 1], q[s, 1]) - 2 * eps
+        sy1 = max(p[s, 1], q[s, 1]) + 2 * eps
         for cj in range(xj0[r], xj1[r] + 1):
             for ci in range(xi0[r], xi1[r] + 1):
                 c = cj * na1 + ci
-                for lst in range(2):
-                    if lst == 0:
-                        lo, hi = cnt[c], cnt[c + 1]
-                    else:
-                        lo, hi = xcnt[c], xcnt[c + 1]
-                    for t in range(lo, hi):
-                        o = by_cell[t] if lst == 0 else x_by_cell[t]
-                        if o == s or _find(parent, owner[o]) == _find(parent, owner[s]):
+                lo = acnt[c]
+                hi = acnt[c + 1]
+                l0 = lo + np.searchsorted(a_lab[lo:hi], own, side="left")
+                l1 = lo + np.searchsorted(a_lab[lo:hi], own, side="right")
+                for part in range(2):
+                    t0, t1 = (lo, l0) if part == 0 else (l1, hi)
+                    for t in range(t0, t1):
+                        o = a_seg[t]
+                        if (min(p[o, 0], q[o, 0]) > sx1 or max(p[o, 0], q[o, 0]) < sx0
+                                or min(p[o, 1], q[o, 1]) > sy1 or max(p[o, 1], q[o, 1]) < sy0):
+                            continue
+                        if _find(parent, owner[o]) == _find(parent, owner[s]):
                             continue
                         if _segments_close(p[s, 0], p[s, 1], q[s, 0], q[s, 1],
                                            p[o, 0], p[o, 1], q[o, 0], q[o, 1], eps):

@@ -30,6 +30,7 @@ from specmap.special.kernels import (
     in_chunks,
     march_cells,
     met_bisect,
+    neighbours,
     refine_edges,
     slot_params,
     slot_residuals,
@@ -102,19 +103,7 @@ def chain(n: int, segs: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]
 
     The walk itself is compiled (:func:`specmap.special.kernels.chain_walk`).
     """
-    # neighbours in half-edge order (u->v, v->u per segment), first two kept
-    segs = np.asarray(segs, dtype=np.int64).reshape(-1, 2)
-    segs = segs[segs[:, 0] != segs[:, 1]]
-    hx = segs.ravel()
-    hy = segs[:, ::-1].ravel()
-    order = np.argsort(hx, kind="stable")
-    hx, hy = hx[order], hy[order]
-    deg = np.bincount(hx, minlength=n)
-    rank = np.arange(hx.size) - np.repeat(np.cumsum(deg) - deg, deg)
-    nbr = np.full((n, 2), -1, dtype=np.int64)
-    first2 = rank < 2
-    nbr[hx[first2], rank[first2]] = hy[first2]
-    return chain_walk(nbr, deg)
+    return chain_walk(*neighbours(n, np.ascontiguousarray(np.asarray(segs, dtype=np.int64).reshape(-1, 2))))
 
 
 def _boundary_points(table, codes, pin, pout, diam, snap, cell_diag):
