@@ -112,8 +112,7 @@ def special_set(grid_f: Grid, grid_g: Grid, window: Window, *, pairs: str = "all
     if progress is not None:
         progress(2 * lat.n_b + 1, total)
     pieces = []
-    for tt in traced:
-        tie = table.tie(tt.code)
+    for tt, tie in zip(traced, table.ties(np.array([tt.code for tt in traced], dtype=np.int64)), strict=True):
         if tt.lines:
             pieces.append(TiePiece(tie, "curve", shapely.MultiLineString(list(tt.lines))))
         if tt.points:

@@ -263,6 +263,29 @@ def refine_edges(meta, geo, slots, factor, a0, b0, a1, b1, snap, eps):
 
 
 @numba.njit(cache=True, nogil=True, error_model="numpy")
+def edge_endpoints(edges, av, bv):
+    """(a0, b0, a1, b1) of lattice edges (:class:`specmap.special.lattice.Lattice` numbering)."""
+    n_a = av.size
+    n_h = bv.size * (n_a - 1)
+    K = edges.size
+    a0 = np.empty(K)
+    b0 = np.empty(K)
+    a1 = np.empty(K)
+    b1 = np.empty(K)
+    for k in range(K):
+        e = edges[k]
+        if e < n_h:
+            j = e // (n_a - 1)
+            i = e - j * (n_a - 1)
+            a0[k], b0[k], a1[k], b1[k] = av[i], bv[j], av[i + 1], bv[j]
+        else:
+            j = (e - n_h) // n_a
+            i = (e - n_h) - j * n_a
+            a0[k], b0[k], a1[k], b1[k] = av[i], bv[j], av[i], bv[j + 1]
+    return a0, b0, a1, b1
+
+
+@numba.njit(cache=True, nogil=True, error_model="numpy")
 def _grow(buf, n):
     if n < buf.size:
         return buf

@@ -121,6 +121,14 @@ class PairTable:
         cond, p, q = (int(x[0]) for x in self.decode(np.array([code])))
         return Tie.make(self.pair_ids(p), self.pair_ids(q), CONDITIONS[cond])
 
+    def ties(self, codes: np.ndarray) -> list[Tie]:
+        """:meth:`tie` of many codes (one decode)."""
+        cond, p, q = (x.tolist() for x in self.decode(np.asarray(codes, np.int64)))
+        ids = self.ids
+        f, g = self.first.tolist(), self.second.tolist()
+        return [Tie.make((ids[f[pp]], ids[g[pp]]), (ids[f[qq]], ids[g[qq]]), CONDITIONS[c])
+                for c, pp, qq in zip(cond, p, q, strict=True)]
+
     def tie_contours(self, codes: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """Contour indices (k, 4) = (P.first, P.second, Q.first, Q.second) and factors (1 or 2).
 

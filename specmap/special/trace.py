@@ -19,6 +19,7 @@ References
 
 from __future__ import annotations
 
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass
 
 import numpy as np
@@ -27,6 +28,7 @@ from specmap.special.detect import Samples, relevant_cells
 from specmap.special.kernels import (
     FlatContours,
     chain_walk,
+    edge_endpoints,
     in_chunks,
     march_cells,
     met_bisect,
@@ -70,9 +72,8 @@ def refine(table: PairTable, samples: Samples, codes: np.ndarray, edges: np.ndar
     lat = samples.lattice
     if codes.size == 0:
         return np.zeros((0, 2))
-    n0, n1 = lat.edge_nodes(edges)
-    a0, b0 = lat.node_ab(n0)
-    a1, b1 = lat.node_ab(n1)
+    a0, b0, a1, b1 = edge_endpoints(np.asarray(edges, np.int64), np.asarray(lat.av, float),
+                                    np.asarray(lat.bv, float))
     slots, factor = table.tie_contours(codes)
     h = max(float(np.max(np.hypot(a1 - a0, b1 - b0))), 1e-300)
     diam = float(np.hypot(lat.av[-1] - lat.av[0], lat.bv[-1] - lat.bv[0]))
@@ -94,8 +95,20 @@ def segments(table: PairTable, samples: Samples, codes: np.ndarray, edges: np.nd
         return np.zeros((0, 2), dtype=np.int64)
     rel = relevant_cells(table, samples, codes, edges)
     slots, factor = table.tie_contours(codes)
-    return march_cells(np.asarray(codes, np.int64), np.asarray(edges, np.int64), rel, lat.n_a, lat.n_b,
-                       np.asarray(lat.av, float), np.asarray(lat.bv, float), *_flat(table), slots, factor, snap)
+    codes = np.asarray(codes, np.int64)
+    edges = np.asarray(edges, np.int64)
+    av, bv = np.asarray(lat.av, float), np.asarray(lat.bv, float)
+    flat = _flat(table)
+    # two threads over halves that split at a change of tie (ties are independent)
+    cut = int(np.searchsorted(codes, codes[codes.size // 2], side="left")) if codes.size > 100_000 else 0
+    parts = [slice(0, cut), slice(cut, codes.size)] if cut > 0 else [slice(0, codes.size)]
+
+    def run(sl: slice) -> np.ndarray:
+        return march_cells(codes[sl], edges[sl], rel[sl], lat.n_a, lat.n_b, av, bv, *flat, slots[sl], factor[sl],
+                           snap) + sl.start
+
+    with ThreadPoolExecutor(len(parts)) as pool:
+        return np.concatenate(list(pool.map(run, parts)))
 
 
 def chain(n: int, segs: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
