@@ -714,8 +714,8 @@ def lattice_labels(p, q, owner, n_lines, av, bv, eps, vkey, vorder):
             _union(parent, owner[by_cell[lo + i]], owner[by_cell[lo + gch[g]]])
     # other segments (an end inside a cell: domain boundary points): exact tests against the
     # chords and other such segments of every cell their box touches. Each cell's list is sorted
-    # by component (as after the chord scan), so the segments of the tested segment's own
-    # component are skipped as one range; pairs joined meanwhile are skipped by union-find.
+    # into groups by component (as after the chord scan); a group already joined to the tested
+    # segment is skipped at once, and a group is left at its first contact.
     extra = np.nonzero(~chord)[0]
     n_x = extra.size
     xi0 = np.empty(n_x, dtype=np.int64)
@@ -758,6 +758,7 @@ def lattice_labels(p, q, owner, n_lines, av, bv, eps, vkey, vorder):
     for i in range(n_lines):
         snap_lab[i] = _find(parent, i)
     a_lab = np.empty(a_seg.size, dtype=np.int64)
+    g_end = np.empty(a_seg.size, dtype=np.int64)  # end of the run of equal labels at each position
     for c in range(n_cells):
         lo = acnt[c]
         hi = acnt[c + 1]
@@ -771,9 +772,13 @@ def lattice_labels(p, q, owner, n_lines, av, bv, eps, vkey, vorder):
         for t in range(hi - lo):
             a_seg[lo + t] = segs[order[t]]
             a_lab[lo + t] = keys[order[t]]
+        end = hi
+        for t in range(hi - 1, lo - 1, -1):
+            if t < hi - 1 and a_lab[t] != a_lab[t + 1]:
+                end = t + 1
+            g_end[t] = end
     for r in range(n_x):
         s = extra[r]
-        own = snap_lab[owner[s]]
         sx0 = min(p[s, 0], q[s, 0]) - 2 * eps
         sx1 = max(p[s, 0], q[s, 0]) + 2 * eps
         sy0 = min(p[s, 1], q[s, 1]) - 2 * eps
@@ -781,22 +786,22 @@ def lattice_labels(p, q, owner, n_lines, av, bv, eps, vkey, vorder):
         for cj in range(xj0[r], xj1[r] + 1):
             for ci in range(xi0[r], xi1[r] + 1):
                 c = cj * na1 + ci
-                lo = acnt[c]
+                t = acnt[c]
                 hi = acnt[c + 1]
-                l0 = lo + np.searchsorted(a_lab[lo:hi], own, side="left")
-                l1 = lo + np.searchsorted(a_lab[lo:hi], own, side="right")
-                for part in range(2):
-                    t0, t1 = (lo, l0) if part == 0 else (l1, hi)
-                    for t in range(t0, t1):
-                        o = a_seg[t]
-                        if (min(p[o, 0], q[o, 0]) > sx1 or max(p[o, 0], q[o, 0]) < sx0
-                                or min(p[o, 1], q[o, 1]) > sy1 or max(p[o, 1], q[o, 1]) < sy0):
-                            continue
-                        if _find(parent, owner[o]) == _find(parent, owner[s]):
-                            continue
-                        if _segments_close(p[s, 0], p[s, 1], q[s, 0], q[s, 1],
-                                           p[o, 0], p[o, 1], q[o, 0], q[o, 1], eps):
-                            _union(parent, owner[s], owner[o])
+                while t < hi:
+                    t2 = g_end[t]
+                    # a whole group already in this segment's component: skip it at once
+                    if _find(parent, a_lab[t]) != _find(parent, owner[s]):
+                        for u in range(t, t2):
+                            o = a_seg[u]
+                            if (min(p[o, 0], q[o, 0]) > sx1 or max(p[o, 0], q[o, 0]) < sx0
+                                    or min(p[o, 1], q[o, 1]) > sy1 or max(p[o, 1], q[o, 1]) < sy0):
+                                continue
+                            if _segments_close(p[s, 0], p[s, 1], q[s, 0], q[s, 1],
+                                               p[o, 0], p[o, 1], q[o, 0], q[o, 1], eps):
+                                _union(parent, owner[s], owner[o])
+                                break  # the rest of the group is now joined too
+                    t = t2
     label = np.empty(n_lines, dtype=np.int64)
     for i in range(n_lines):
         label[i] = _find(parent, i)
