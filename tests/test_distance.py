@@ -326,13 +326,13 @@ def test_line_upper_bound_is_stability():
     assert np.allclose(line_upper_bound(f, f + 0.15, 0.5, np.linspace(-1, 1, 5)), 0.15)
 
 
-class _AnalyticEvaluator:
-    """Duck-typed LineEvaluator with a known h: h(a, b) = 0.3 - |a - 0.3| - |b| (max 0.3 at (0.3, 0))."""
+class _ClosedFormEvaluator:
+    """Duck-typed LineEvaluator whose h is a closed form ``h(a, b)`` -> (degrees, ...) (subclasses)."""
+
+    degrees: tuple[int, ...] = (0,)
 
     def __init__(self):
-        self.degrees, self.jobs, self.memo = (0,), 1, {}
-        self.val_f, self.val_g = np.zeros((3, 2)), np.zeros((4, 2))  # different meshes: no line bounds
-        self.tri_f = self.tri_g = np.zeros((1, 3), dtype=int)
+        self.jobs, self.memo = 1, {}
 
     def plan(self, n):
         pass
@@ -343,8 +343,21 @@ class _AnalyticEvaluator:
 
     def __call__(self, a, b):
         a, b = np.broadcast_arrays(np.asarray(a, float), np.asarray(b, float))
-        for x, y in zip(a.ravel(), b.ravel(), strict=True):
-            self.memo[(float(x), float(y))] = np.array([0.3 - abs(x - 0.3) - abs(y)])
+        h = self.h(a, b)
+        for x, y, v in zip(a.ravel(), b.ravel(), h.reshape(len(self.degrees), -1).T, strict=True):
+            self.memo[(float(x), float(y))] = v
+        return h
+
+
+class _AnalyticEvaluator(_ClosedFormEvaluator):
+    """h(a, b) = 0.3 - |a - 0.3| - |b| (max 0.3 at (0.3, 0)); closed form, derived in the test."""
+
+    def __init__(self):
+        super().__init__()
+        self.val_f, self.val_g = np.zeros((3, 2)), np.zeros((4, 2))  # different meshes: no line bounds
+        self.tri_f = self.tri_g = np.zeros((1, 3), dtype=int)
+
+    def h(self, a, b):
         return (0.3 - np.abs(a - 0.3) - np.abs(b))[None]
 
 
@@ -425,7 +438,7 @@ def test_candidate_floor_skips_crossings_of_low_ties():
     np.testing.assert_array_equal(cut["hi"], full["hi"][full["hi"] > 0.3 + 1e-6])
 
 
-class _SlopeOneEvaluator:
+class _SlopeOneEvaluator(_ClosedFormEvaluator):
     """Duck-typed LineEvaluator, h known on a = 1/2 (closed form, derived in the test).
 
     Degree 0: a broad hump 0.3 - 0.5 |b + 0.6| (max 0.3 at b = -0.6); degree 1: a narrow peak
@@ -435,24 +448,11 @@ class _SlopeOneEvaluator:
     """
 
     peak = 0.3137
+    degrees = (0, 1)
 
-    def __init__(self):
-        self.degrees, self.jobs, self.memo = (0, 1), 1, {}
-
-    def plan(self, n):
-        pass
-
-    @property
-    def lines(self):
-        return len(self.memo)
-
-    def __call__(self, a, b):
-        a, b = np.broadcast_arrays(np.asarray(a, float), np.asarray(b, float))
+    def h(self, a, b):
         assert np.all(a == 0.5)
-        h = np.stack([0.3 - 0.5 * np.abs(b + 0.6), np.maximum(0.05, 0.4 - 1.5 * np.abs(b - self.peak))])
-        for x, y, v in zip(a.ravel(), b.ravel(), h.reshape(2, -1).T, strict=True):
-            self.memo[(float(x), float(y))] = v
-        return h
+        return np.stack([0.3 - 0.5 * np.abs(b + 0.6), np.maximum(0.05, 0.4 - 1.5 * np.abs(b - self.peak))])
 
 
 @pytest.mark.parametrize("batch", [1, 3])

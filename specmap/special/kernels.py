@@ -405,26 +405,18 @@ def sweep_rows(s, met, cell_pair, first, second, cross, roles, mcol, j_start, j_
                     fv = fac[v]
                     if fu == 2 and fv == 2:
                         continue
-                    if fu == 1 and fv == 1:
-                        if ip[u] < ip[v]:
-                            big, small = u, v
-                        else:
-                            big, small = v, u
-                        P = ip[big]
-                        Q = ip[small]
-                        cond = 0
-                        if P == Q or (roles and cross[P] != cross[Q]):
-                            continue
+                    # equal: P is the smaller pair index; half: P is the plain (undoubled) item
+                    cond = 0 if fu == fv else 1
+                    if (ip[u] < ip[v]) if cond == 0 else (fu == 1):
+                        big, small = u, v
                     else:
-                        if fu == 1:
-                            big, small = u, v
-                        else:
-                            big, small = v, u
-                        P = ip[big]
-                        Q = ip[small]
-                        cond = 1
-                        if P == Q or (roles and (cross[P] or not cross[Q])):
-                            continue
+                        big, small = v, u
+                    P = ip[big]
+                    Q = ip[small]
+                    if P == Q:
+                        continue
+                    if roles and ((cross[P] != cross[Q]) if cond == 0 else (cross[P] or not cross[Q])):
+                        continue
                     f0 = v0[big] - v0[small]
                     f1 = v1[big] - v1[small]
                     if (f0 >= -snap) == (f1 >= -snap):
