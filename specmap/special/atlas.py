@@ -364,8 +364,10 @@ def components(pieces: tuple[TiePiece, ...], window: Window, lattice: Any = None
     Parts closer than ``1e-9`` of the window diameter are joined: line/line
     contacts by a binned, vectorised segment test (or, given the ``lattice``
     the curves were traced on, by chord interleaving per cell, see
-    :func:`_lattice_links`); contacts with polygons and
-    points by a shapely ``STRtree``. Components are those of the resulting graph
+    :func:`_lattice_links`); patch polygons join through the connected parts of
+    their union (regions closer than the tolerance are joined too), and
+    contacts of regions and points with everything else come from shapely
+    ``STRtree`` queries. Components are those of the resulting graph
     (scipy sparse graph). Area is the area of the union of patch polygons;
     length the sum over distinct curves (curves of several ties that coincide
     to 1e-9 count once).
@@ -392,16 +394,38 @@ def components(pieces: tuple[TiePiece, ...], window: Window, lattice: Any = None
     else:
         la, lb = _segment_links(list(arr[line_idx]), eps)
     ea, eb = [line_idx[la]], [line_idx[lb]]
-    if other_idx.size:
-        tree = shapely.STRtree(arr)
-        qi, ti = tree.query(arr[other_idx], predicate="dwithin", distance=eps)
-        ea.append(other_idx[qi])
-        eb.append(ti)
+    poly_idx = np.nonzero(types == 3)[0]
+    point_idx = other_idx[~np.isin(other_idx, poly_idx)]
+    n = len(parts)
+    n_nodes = n
+    if poly_idx.size:
+        # patch regions: the connected parts of the union of all patch polygons, one graph node each
+        # (ties often share a region; testing each region once replaces a test per polygon)
+        regions = shapely.get_parts(shapely.union_all(arr[poly_idx]))
+        rnode = n + np.arange(len(regions))
+        n_nodes = n + len(regions)
+        rtree = shapely.STRtree(regions)
+        qi, ti = rtree.query(shapely.point_on_surface(arr[poly_idx]), predicate="intersects")
+        ea.append(poly_idx[qi])
+        eb.append(rnode[ti])
+        qi, ti = rtree.query(regions, predicate="dwithin", distance=eps)
+        ea.append(rnode[qi])
+        eb.append(rnode[ti])
+        rest = np.concatenate([line_idx, point_idx])
+        if rest.size:
+            qi, ti = shapely.STRtree(arr[rest]).query(regions, predicate="dwithin", distance=eps)
+            ea.append(rnode[qi])
+            eb.append(rest[ti])
+    if point_idx.size:
+        rest = np.concatenate([line_idx, point_idx])
+        qi, ti = shapely.STRtree(arr[rest]).query(arr[point_idx], predicate="dwithin", distance=eps)
+        ea.append(point_idx[qi])
+        eb.append(rest[ti])
     ea = np.concatenate(ea)
     eb = np.concatenate(eb)
-    n = len(parts)
-    graph = coo_matrix((np.ones(ea.size), (ea, eb)), shape=(n, n))
+    graph = coo_matrix((np.ones(ea.size), (ea, eb)), shape=(n_nodes, n_nodes))
     _, label = connected_components(graph, directed=False)
+    label = label[:n]
     order = np.argsort(label, kind="stable")
     _, st = np.unique(label[order], return_index=True)
     groups = np.split(order, st[1:])

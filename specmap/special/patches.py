@@ -139,7 +139,13 @@ def patch_polygons(table: PairTable, samples: Samples, codes: np.ndarray, cells:
     codes_s, cells_s = codes[order], cells[order]
     uc, st = np.unique(codes_s, return_index=True)
     bounds = np.append(st, codes_s.size)
+    # ties often share their set of patch cells (symmetric maps): the union of those cells is made once
+    by_cells: dict[bytes, object] = {}
     for k, code in enumerate(uc.tolist()):
-        boxes = _row_boxes(lat, cells_s[bounds[k]:bounds[k + 1]]) + sub_boxes.get(code, [])
-        out[code] = shapely.union_all(boxes)
+        cells_k = cells_s[bounds[k]:bounds[k + 1]]
+        key = np.sort(cells_k).tobytes()
+        if key not in by_cells:
+            by_cells[key] = shapely.union_all(_row_boxes(lat, cells_k))
+        extra = sub_boxes.get(code, [])
+        out[code] = shapely.union_all([by_cells[key], *extra]) if extra else by_cells[key]
     return out
