@@ -131,21 +131,31 @@ def patch_polygons(table: PairTable, samples: Samples, codes: np.ndarray, cells:
         rep = np.repeat(rcode, (sub + 1) ** 2)
         h = _holds(table, rep, ga.ravel(), gb.ravel(), tol).reshape(ga.shape)
         full = h[:, :-1, :-1] & h[:, :-1, 1:] & h[:, 1:, :-1] & h[:, 1:, 1:]
-        r, sj, si = np.nonzero(full)
-        boxes = shapely.box(ga[r, sj, si], gb[r, sj, si], ga[r, sj, si + 1], gb[r, sj + 1, si])
+        # runs of full sub-cells along a (one box per run, not per sub-cell)
+        pad = np.zeros((full.shape[0], full.shape[1], full.shape[2] + 2), dtype=np.int8)
+        pad[:, :, 1:-1] = full
+        step = np.diff(pad, axis=2)
+        r, sj, s0 = np.nonzero(step == 1)
+        _, _, s1 = np.nonzero(step == -1)  # same (r, sj) order: runs alternate start/end
+        boxes = shapely.box(ga[r, sj, s0], gb[r, sj, s0], ga[r, sj, s1], gb[r, sj + 1, s0])
         for code, bx in zip(rcode[r].tolist(), boxes, strict=True):
             sub_boxes.setdefault(code, []).append(bx)
     order = np.argsort(codes, kind="stable")
     codes_s, cells_s = codes[order], cells[order]
     uc, st = np.unique(codes_s, return_index=True)
     bounds = np.append(st, codes_s.size)
-    # ties often share their set of patch cells (symmetric maps): the union of those cells is made once
+    # ties often share their patch cells and boundary sub-cells (symmetric maps): each distinct
+    # region is built once
     by_cells: dict[bytes, object] = {}
+    by_region: dict[bytes, object] = {}
     for k, code in enumerate(uc.tolist()):
         cells_k = cells_s[bounds[k]:bounds[k + 1]]
         key = np.sort(cells_k).tobytes()
-        if key not in by_cells:
-            by_cells[key] = shapely.union_all(_row_boxes(lat, cells_k))
         extra = sub_boxes.get(code, [])
-        out[code] = shapely.union_all([by_cells[key], *extra]) if extra else by_cells[key]
+        rkey = key + (shapely.get_coordinates(extra).tobytes() if extra else b"")
+        if rkey not in by_region:
+            if key not in by_cells:
+                by_cells[key] = shapely.union_all(_row_boxes(lat, cells_k))
+            by_region[rkey] = shapely.union_all([by_cells[key], *extra]) if extra else by_cells[key]
+        out[code] = by_region[rkey]
     return out
