@@ -16,6 +16,7 @@ from pathlib import Path
 from typing import Any
 
 import numpy as np
+from matplotlib.collections import LineCollection
 from matplotlib.figure import Figure, FigureBase
 from matplotlib.lines import Line2D
 from matplotlib.patches import Patch, PathPatch, Rectangle
@@ -220,6 +221,7 @@ def _draw_special(ax: Any, feats: list[dict[str, Any]], *, thin: bool = False,
                   mono: str | None = None) -> list[Any]:
     """Draw components on ``ax``; return legend handles (one per style used)."""
     handles: dict[str, Any] = {}
+    batches: dict[tuple[str, str, float], list[np.ndarray]] = {}
     lw = 0.8 if thin else 1.6
     patch_no = 0
     patch_area_rest, patch_rest = 0.0, 0
@@ -271,11 +273,13 @@ def _draw_special(ax: Any, feats: list[dict[str, Any]], *, thin: bool = False,
                 handles.setdefault("point", Line2D([], [], marker="o", color="0.3", mec="black", ls="",
                                                    label="isolated special point"))
             elif g.geom_type in ("LineString", "LinearRing"):
-                xy = np.asarray(g.coords)[:, :2]
-                ax.plot(xy[:, 0], xy[:, 1], color=col, ls=ls, lw=line_w, zorder=3)
+                batches.setdefault((col, ls, line_w), []).append(np.asarray(g.coords)[:, :2])
                 if not mono:
                     handles.setdefault(cond, Line2D([], [], color=col, ls=st["linestyle"], lw=lw,
                                                     label=st["label"]))
+    # one collection per style: tens of thousands of tie curves draw in one call each
+    for (col, ls, w), segs in batches.items():
+        ax.add_collection(LineCollection(segs, colors=col, linestyles=ls, linewidths=w, zorder=3))
     if patch_rest:
         handles["patchrest"] = Patch(fc="none", ec="0.3",
                                      label=f"{patch_rest} more patches (area {fmt(patch_area_rest, 3)})")
