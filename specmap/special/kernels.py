@@ -609,6 +609,19 @@ def lattice_labels(p, q, owner, n_lines, av, bv, eps, vkey, vorder):
         v = vorder[i - 1]
         if vkey[u] == vkey[v]:
             _union(parent, owner[u % S], owner[v % S])
+    cell, chord, t0, t1 = _cells_and_perimeter(p, q, av, bv, eps)
+    cnt, by_cell = _chord_unions(parent, owner, cell, chord, t0, t1, (av.size - 1) * (bv.size - 1))
+    _extra_unions(parent, p, q, owner, chord, cnt, by_cell, av, bv, eps, n_lines)
+    label = np.empty(n_lines, dtype=np.int64)
+    for i in range(n_lines):
+        label[i] = _find(parent, i)
+    return label, cell, chord
+
+
+@numba.njit(cache=True, nogil=True, error_model="numpy")
+def _cells_and_perimeter(p, q, av, bv, eps):
+    """Cell of each segment (by its midpoint), whether it is a chord, and its ends' perimeter positions."""
+    S = p.shape[0]
     na1 = av.size - 1
     nb1 = bv.size - 1
     cell = np.empty(S, dtype=np.int64)
@@ -626,8 +639,14 @@ def lattice_labels(p, q, owner, n_lines, av, bv, eps, vkey, vorder):
         chord[s] = onp and onq
         t0[s] = min(tp, tq)
         t1[s] = max(tp, tq)
+    return cell, chord, t0, t1
+
+
+@numba.njit(cache=True, nogil=True, error_model="numpy")
+def _chord_unions(parent, owner, cell, chord, t0, t1, n_cells):
+    """Join the lines of crossing chords, cell by cell (perimeter scan); returns the chords by cell."""
+    S = cell.size
     # chords grouped by cell (counting sort)
-    n_cells = na1 * nb1
     cnt = np.zeros(n_cells + 1, dtype=np.int64)
     for s in range(S):
         if chord[s]:
@@ -704,6 +723,15 @@ def lattice_labels(p, q, owner, n_lines, av, bv, eps, vkey, vorder):
             while gpar[g] != g:
                 g = gpar[g]
             _union(parent, owner[by_cell[lo + i]], owner[by_cell[lo + gch[g]]])
+    return cnt, by_cell
+
+
+@numba.njit(cache=True, nogil=True, error_model="numpy")
+def _extra_unions(parent, p, q, owner, chord, cnt, by_cell, av, bv, eps, n_lines):
+    """Join lines through segments that end inside a cell, by exact tests (see :func:`lattice_labels`)."""
+    na1 = av.size - 1
+    nb1 = bv.size - 1
+    n_cells = na1 * nb1
     # other segments (an end inside a cell: domain boundary points): exact tests against the
     # chords and other such segments of every cell their box touches. Each cell's list is sorted
     # into groups by component (as after the chord scan); a group already joined to the tested
@@ -721,10 +749,7 @@ def lattice_labels(p, q, owner, n_lines, av, bv, eps, vkey, vorder):
         xj0[r] = min(max(np.searchsorted(bv, min(p[s, 1], q[s, 1]) - eps, side="right") - 1, 0), nb1 - 1)
         xj1[r] = min(max(np.searchsorted(bv, max(p[s, 1], q[s, 1]) + eps, side="right") - 1, 0), nb1 - 1)
     if n_x == 0:
-        label = np.empty(n_lines, dtype=np.int64)
-        for i in range(n_lines):
-            label[i] = _find(parent, i)
-        return label, cell, chord
+        return
     acnt = np.zeros(n_cells + 1, dtype=np.int64)
     for c in range(n_cells):
         acnt[c + 1] = cnt[c + 1] - cnt[c]
@@ -794,10 +819,6 @@ def lattice_labels(p, q, owner, n_lines, av, bv, eps, vkey, vorder):
                                 _union(parent, owner[s], owner[o])
                                 break  # the rest of the group is now joined too
                     t = t2
-    label = np.empty(n_lines, dtype=np.int64)
-    for i in range(n_lines):
-        label[i] = _find(parent, i)
-    return label, cell, chord
 
 
 @numba.njit(cache=True, nogil=True, error_model="numpy")
