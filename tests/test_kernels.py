@@ -14,8 +14,10 @@ import pytest
 from gridgen import random_grid
 
 from specmap.grids.model import Contour
+from specmap.special.compiled.components import lattice_labels
+from specmap.special.compiled.contours import FlatContours, ext_param, refine_edges
+from specmap.special.compiled.curves import chain_walk
 from specmap.special.evaluate import extended_parameter
-from specmap.special.kernels import FlatContours, chain_walk, ext_param, lattice_labels, refine_edges
 
 
 def _contours(seed: int) -> list[Contour]:

@@ -21,7 +21,7 @@ import shapely
 from shapely.geometry import mapping
 
 from specmap.io import to_plain
-from specmap.special.kernels import lattice_labels
+from specmap.special.compiled.components import lattice_labels
 from specmap.special.pairs import Tie, tie_from_json
 from specmap.strip import Window
 
@@ -292,7 +292,7 @@ def _lattice_links(lines: list, eps: float, lattice) -> tuple[np.ndarray, np.nda
     joined, and the few other segments (ends on the domain boundary) are tested
     with the exact segment test against the segments of other components in
     the cells their box touches (all compiled:
-    :func:`specmap.special.kernels.lattice_labels`).
+    :func:`specmap.special.compiled.components.lattice_labels`).
     """
     if not lines:
         z = np.zeros(0, np.int64)

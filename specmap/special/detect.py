@@ -29,8 +29,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from specmap.special.compiled.sweep import sweep_rows, tie_cells_met
 from specmap.special.evaluate import sample_contours
-from specmap.special.kernels import sweep_rows, tie_cells_met
 from specmap.special.lattice import Lattice
 from specmap.special.pairs import PairTable, all_tie_codes, equal_allowed, half_allowed
 from specmap.strip import push_scale

@@ -24,19 +24,17 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from specmap.special.detect import Samples, relevant_cells
-from specmap.special.kernels import (
+from specmap.special.compiled.contours import (
     FlatContours,
-    chain_walk,
     edge_endpoints,
     in_chunks,
-    march_cells,
     met_bisect,
-    neighbours,
     refine_edges,
     slot_params,
     slot_residuals,
 )
+from specmap.special.compiled.curves import chain_walk, march_cells, neighbours
+from specmap.special.detect import Samples, relevant_cells
 from specmap.special.pairs import PairTable
 
 
@@ -65,7 +63,7 @@ def refine(table: PairTable, samples: Samples, codes: np.ndarray, edges: np.ndar
            snap: float, rel: float = 1e-12) -> np.ndarray:
     """Zero of every crossing on its edge, to ``rel`` of the window diameter; points (K, 2) in (a, b).
 
-    ITP root finding on the edge (:func:`specmap.special.kernels.refine_edges`)
+    ITP root finding on the edge (:func:`specmap.special.compiled.contours.refine_edges`)
     with exact re-evaluation of the residual; the side convention is
     ``R >= -snap`` as in detection. Work is split over two threads.
     """
@@ -87,7 +85,7 @@ def segments(table: PairTable, samples: Samples, codes: np.ndarray, edges: np.nd
              *, snap: float) -> np.ndarray:
     """Marching squares per tie: pairs (u, v) of crossing indices joined inside a cell.
 
-    Compiled (:func:`specmap.special.kernels.march_cells`); ``codes`` and
+    Compiled (:func:`specmap.special.compiled.curves.march_cells`); ``codes`` and
     ``edges`` sorted by (code, edge) as :func:`find_crossings` returns them.
     """
     lat = samples.lattice
@@ -114,7 +112,7 @@ def segments(table: PairTable, samples: Samples, codes: np.ndarray, edges: np.nd
 def chain(n: int, segs: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Chain segments (vertex degree <= 2) into paths: (flat vertices, path lengths, closed flags).
 
-    The walk itself is compiled (:func:`specmap.special.kernels.chain_walk`).
+    The walk itself is compiled (:func:`specmap.special.compiled.curves.chain_walk`).
     """
     return chain_walk(*neighbours(n, np.ascontiguousarray(np.asarray(segs, dtype=np.int64).reshape(-1, 2))))
 

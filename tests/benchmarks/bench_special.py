@@ -68,7 +68,7 @@ def main() -> None:
               f"Hausdorff(refined crossings) = {hd:.2e} (cell {cell:.2e}); "
               f"item pairs examined: {out['naive'][1]['candidate_item_pairs'] / out['sweep'][1]['candidate_item_pairs']:.0f}x fewer",
               "",
-              "sweep = compiled loop over the edges of each row (numba, specmap/special/kernels.py); naive = the "
+              "sweep = compiled loop over the edges of each row (numba, specmap/special/compiled/sweep.py); naive = the "
               "reference, vectorised numpy over every allowed tie x every edge of a row.", ""]
     print("\n".join(lines), flush=True)
     lines += ["## (b) scaling at the default resolution 121 x 121 (sweep, pairs=all)", "",

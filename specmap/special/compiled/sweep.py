@@ -1,0 +1,204 @@
+"""The output-sensitive edge sweep of crossing detection, compiled.
+
+For each lattice edge, the pair differences and their doubles that are
+present are sorted by the low end of their value interval; each is compared
+only with the following ones while the intervals overlap, so the work follows
+the number of overlapping values, not the number of quadruples. The tie rules
+of :mod:`specmap.special.pairs` and the cell test of
+:func:`specmap.special.detect.relevant_cells` are applied inline.
+
+References
+----------
+.. [EFQT23] Ethier, Frosini, Quercioli, Tombari, J. Appl. Comput. Topol. (2023).
+"""
+
+from __future__ import annotations
+
+import numba
+import numpy as np
+
+
+@numba.njit(cache=True, nogil=True, error_model="numpy")
+def _grow(buf, n):
+    if n < buf.size:
+        return buf
+    out = np.empty(2 * buf.size + 16, dtype=buf.dtype)
+    out[:buf.size] = buf
+    return out
+
+
+@numba.njit(cache=True, nogil=True, error_model="numpy")
+def _tie_met(met, c0, c1, c2, c3, cj, ci):
+    """All four contours met at one corner of cell (cj, ci)."""
+    for dj in range(2):
+        for di in range(2):
+            j = cj + dj
+            i = ci + di
+            if met[c0, j, i] and met[c1, j, i] and met[c2, j, i] and met[c3, j, i]:
+                return True
+    return False
+
+
+@numba.njit(cache=True, nogil=True, error_model="numpy")
+def sweep_rows(s, met, cell_pair, first, second, cross, roles, mcol, j_start, j_stop, snap, tol):
+    """Order swaps of pair differences on the lattice edges of node rows ``j_start`` to ``j_stop - 1``.
+
+    Row j holds the horizontal edges (j, i)-(j, i+1) and the vertical edges
+    (j, i)-(j+1, i). Items are the pair differences |c_P| and their doubles
+    2|c_Q| (push units) present on an edge (pair met at a corner of a cell
+    beside it). Items are sorted by the lower end of their value interval on
+    the edge; each item is compared with the following ones while the
+    intervals overlap (within ``snap``), so the work is the number of
+    overlapping item pairs, not the number of ties. A crossing is an allowed
+    tie whose two items change order (sign convention ``>= -snap``, not both
+    ends within ``tol``) and that is met at a corner of a cell beside the edge.
+
+    Returns
+    -------
+    codes, edges : ndarray of int64
+        Tie codes ``(cond * n + P) * n + Q`` and edge ids (:class:`Lattice` numbering).
+    n_candidates : int
+        Overlapping item pairs examined.
+    """
+    n_p = first.size
+    nb = s.shape[1]
+    na = s.shape[2]
+    n_h = nb * (na - 1)
+    codes = np.empty(1024, dtype=np.int64)
+    edges = np.empty(1024, dtype=np.int64)
+    n_out = 0
+    n_cand = 0
+    M = 2 * n_p
+    lo = np.empty(M)
+    hi = np.empty(M)
+    v0 = np.empty(M)
+    v1 = np.empty(M)
+    ip = np.empty(M, dtype=np.int64)
+    fac = np.empty(M, dtype=np.int64)
+    cells = np.empty((2, 2), dtype=np.int64)
+    for j in range(j_start, j_stop):
+        n_edges_row = (na - 1) + (na if j < nb - 1 else 0)
+        for e in range(n_edges_row):
+            if e < na - 1:  # horizontal edge (j, e)-(j, e+1)
+                ja, ia, jb, ib = j, e, j, e + 1
+                eid = j * (na - 1) + e
+                cells[0, 0], cells[0, 1] = j - 1, e
+                cells[1, 0], cells[1, 1] = j, e
+                if j == 0:
+                    cells[0, 0] = -1
+                if j == nb - 1:
+                    cells[1, 0] = -1
+            else:  # vertical edge (j, i)-(j+1, i)
+                i = e - (na - 1)
+                ja, ia, jb, ib = j, i, j + 1, i
+                eid = n_h + j * na + i
+                cells[0, 0], cells[0, 1] = j, i - 1
+                cells[1, 0], cells[1, 1] = j, i
+                if i == 0:
+                    cells[0, 0] = -1
+                if i == na - 1:
+                    cells[1, 0] = -1
+            ma = mcol[ia]
+            mb = mcol[ib]
+            m = 0
+            for p in range(n_p):
+                pres = False
+                for side in range(2):
+                    cj = cells[side, 0]
+                    if cj >= 0 and cell_pair[p, cj, cells[side, 1]]:
+                        pres = True
+                if not pres:
+                    continue
+                x0 = abs(s[first[p], ja, ia] - s[second[p], ja, ia]) * ma
+                x1 = abs(s[first[p], jb, ib] - s[second[p], jb, ib]) * mb
+                v0[m] = x0
+                v1[m] = x1
+                ip[m] = p
+                fac[m] = 1
+                m += 1
+                if (not roles) or cross[p]:
+                    v0[m] = 2.0 * x0
+                    v1[m] = 2.0 * x1
+                    ip[m] = p
+                    fac[m] = 2
+                    m += 1
+            for q in range(m):
+                lo[q] = min(v0[q], v1[q])
+                hi[q] = max(v0[q], v1[q])
+            order = np.argsort(lo[:m], kind="mergesort")
+            for iu in range(m):
+                u = order[iu]
+                lim = hi[u] + snap + 1e-12 * hi[u]
+                for iv in range(iu + 1, m):
+                    v = order[iv]
+                    if lo[v] > lim:
+                        break
+                    n_cand += 1
+                    fu = fac[u]
+                    fv = fac[v]
+                    if fu == 2 and fv == 2:
+                        continue
+                    # equal: P is the smaller pair index; half: P is the plain (undoubled) item
+                    cond = 0 if fu == fv else 1
+                    if (ip[u] < ip[v]) if cond == 0 else (fu == 1):
+                        big, small = u, v
+                    else:
+                        big, small = v, u
+                    P = ip[big]
+                    Q = ip[small]
+                    if P == Q:
+                        continue
+                    if roles and ((cross[P] != cross[Q]) if cond == 0 else (cross[P] or not cross[Q])):
+                        continue
+                    f0 = v0[big] - v0[small]
+                    f1 = v1[big] - v1[small]
+                    if (f0 >= -snap) == (f1 >= -snap):
+                        continue
+                    if max(abs(f0), abs(f1)) <= tol:
+                        continue
+                    c0, c1, c2, c3 = first[P], second[P], first[Q], second[Q]
+                    ok = False
+                    for side in range(2):
+                        cj = cells[side, 0]
+                        if cj >= 0 and _tie_met(met, c0, c1, c2, c3, cj, cells[side, 1]):
+                            ok = True
+                    if not ok:
+                        continue
+                    codes = _grow(codes, n_out)
+                    edges = _grow(edges, n_out)
+                    codes[n_out] = (cond * n_p + P) * n_p + Q
+                    edges[n_out] = eid
+                    n_out += 1
+    return codes[:n_out].copy(), edges[:n_out].copy(), n_cand
+
+
+@numba.njit(cache=True, nogil=True, error_model="numpy")
+def tie_cells_met(met, slots, edges, n_a, n_b):
+    """For each (tie, edge): whether each of the two cells beside the edge sees the tie met.
+
+    A cell sees a tie when its four contours are met at one of the cell's
+    corners. ``met`` (C, n_b, n_a); ``slots`` (K, 4); ``edges`` (K,) in
+    :class:`specmap.special.lattice.Lattice` numbering. Returns bool (K, 2)
+    in the order of :meth:`~specmap.special.lattice.Lattice.edge_cells`.
+    """
+    K = edges.size
+    out = np.zeros((K, 2), dtype=np.bool_)
+    n_h = n_b * (n_a - 1)
+    for k in range(K):
+        e = edges[k]
+        c0, c1, c2, c3 = slots[k, 0], slots[k, 1], slots[k, 2], slots[k, 3]
+        if e < n_h:
+            j = e // (n_a - 1)
+            i = e - j * (n_a - 1)
+            if j > 0:
+                out[k, 0] = _tie_met(met, c0, c1, c2, c3, j - 1, i)
+            if j < n_b - 1:
+                out[k, 1] = _tie_met(met, c0, c1, c2, c3, j, i)
+        else:
+            j = (e - n_h) // n_a
+            i = (e - n_h) - j * n_a
+            if i > 0:
+                out[k, 0] = _tie_met(met, c0, c1, c2, c3, j, i - 1)
+            if i < n_a - 1:
+                out[k, 1] = _tie_met(met, c0, c1, c2, c3, j, i)
+    return out
