@@ -285,12 +285,12 @@ def _reduced_vs_dense(n, dense_resolution, atlas_resolution):
 
 
 @pytest.mark.slow
-@pytest.mark.xfail(strict=False, reason="measured: on a 250-vertex mesh with an atlas at resolution 61 the "
-                   "reduced search missed the dense max by 0.034 in degree 0 (the audit flags it); the PL grid "
-                   "and special set are too coarse there")
 def test_reduced_equals_dense_small():
     # main theorem [EFQT23, FMQT]: the dense maximum is reached by the reduced search (tolerance:
     # the dense sweep refines around its best node, the reduced one polishes its best candidate).
+    # History: this was an expected failure (the reduced search missed the dense max by 0.034 in
+    # degree 0 on this 250-vertex mesh) until the slope-one line was searched by a certified branch
+    # and bound; it has passed since.
     res = _reduced_vs_dense(250, 15, 61)
     assert res.dense["value"] <= res.value + res.tolerance
     assert res.audit["theorem_gap"] is False
