@@ -40,12 +40,14 @@ def own_parameter(c: Contour, a: float, b: float) -> float:
     return np.nan
 
 
-def test_points_on_curves_satisfy_their_tie():
+@pytest.mark.parametrize("resolution", [RES, (37, 23)])
+def test_points_on_curves_satisfy_their_tie(resolution):
     # math.md 5: each curve vertex must satisfy |s_a - s_b| = k |s_c - s_d| (k = 1, 2),
     # with s re-evaluated by our own formula; residual in push units min(a,1-a) * (...).
+    # A non-square lattice checks the index arithmetic of the compiled loops.
     f, g = random_pair(3, 6)
     w = default_window(f.bbox(), g.bbox())
-    atlas = special_set(f, g, w, resolution=RES)
+    atlas = special_set(f, g, w, resolution=resolution)
     by_id = {c.id: c for c in f.contours + g.contours}
     checked = 0
     for piece in atlas.pieces:
@@ -134,6 +136,26 @@ def test_sweep_and_naive_agree():
     assert {p.tie for p in s.pieces} == {p.tie for p in n.pieces}
     cell = np.hypot((w.a[1] - w.a[0]) / (RES - 1), (w.b[1] - w.b[0]) / (RES - 1))
     assert vertex_hausdorff(_vertices(s), _vertices(n)) <= cell
+
+
+@pytest.mark.parametrize("seed,pairs", [(3, "all"), (4, "roles"), (5, "all"), (6, "roles"), (7, "all")])
+def test_compiled_sweep_finds_exactly_the_naive_crossings(seed, pairs):
+    # the naive reference evaluates every allowed tie on every lattice edge (vectorised numpy); the
+    # compiled sweep must return the identical set of (tie, edge) crossings, in both pair modes
+    from specmap.special.compute import default_tolerance
+    from specmap.special.detect import find_crossings, sample
+    from specmap.special.lattice import Lattice
+    from specmap.special.pairs import pair_table
+
+    f, g = random_pair(seed, 9)
+    table = pair_table(f, g, pairs)
+    samples = sample(table, Lattice.of(default_window(f.bbox(), g.bbox()), 29, 23))
+    tol = default_tolerance(f, g)
+    cs, es, _ = find_crossings(table, samples, method="sweep", tol=tol, snap=1e-3 * tol)
+    cn, en, _ = find_crossings(table, samples, method="naive", tol=tol, snap=1e-3 * tol)
+    assert cs.size > 0
+    np.testing.assert_array_equal(cs, cn)
+    np.testing.assert_array_equal(es, en)
 
 
 def test_roles_is_a_subset_of_all():
