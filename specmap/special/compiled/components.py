@@ -63,7 +63,8 @@ def _perimeter(x, y, a0, a1, b0, b1, eps):
 
 
 @numba.njit(cache=True, nogil=True, error_model="numpy")
-def lattice_labels(p, q, owner, n_lines, av, bv, eps, vkey, vorder):
+def lattice_labels(p: np.ndarray, q: np.ndarray, owner: np.ndarray, n_lines: int, av: np.ndarray, bv: np.ndarray, eps: float, vkey: np.ndarray,
+                   vorder: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Components of lines linked by shared vertices and by crossing chords of lattice cells.
 
     ``p``, ``q`` (S, 2): segments, ``owner`` their line; ``vkey`` integer keys

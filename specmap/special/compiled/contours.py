@@ -97,7 +97,7 @@ def in_chunks(fn: Callable[[slice], np.ndarray], n: int, threads: int = THREADS,
 
 
 @numba.njit(cache=True, nogil=True, error_model="numpy")
-def ext_param(meta, geo, c, a, b):
+def ext_param(meta: np.ndarray, geo: np.ndarray, c: int, a: float, b: float) -> tuple[float, bool]:
     """Extended line parameter s̄ and ``met`` of contour ``c`` at the line (a, b).
 
     Scalar version of :func:`specmap.special.evaluate.extended_parameter`
@@ -172,7 +172,8 @@ def _residual(meta, geo, c0, c1, c2, c3, factor, a, b):
 
 
 @numba.njit(cache=True, nogil=True, error_model="numpy")
-def slot_residuals(meta, geo, slots, factor, a, b):
+def slot_residuals(meta: np.ndarray, geo: np.ndarray, slots: np.ndarray, factor: np.ndarray, a: np.ndarray, b: np.ndarray
+                   ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Residual R, tied value and ``all met`` of ties ``slots`` (K, 4) at lines (a[k], b[k])."""
     K = slots.shape[0]
     r = np.empty(K)
@@ -185,7 +186,7 @@ def slot_residuals(meta, geo, slots, factor, a, b):
 
 
 @numba.njit(cache=True, nogil=True, error_model="numpy")
-def slot_params(meta, geo, slots, a, b):
+def slot_params(meta: np.ndarray, geo: np.ndarray, slots: np.ndarray, a: np.ndarray, b: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """s̄ and met of every slot contour: arrays (K, m) at lines (a[k], b[k])."""
     K, M = slots.shape
     s = np.empty((K, M))
@@ -197,7 +198,8 @@ def slot_params(meta, geo, slots, a, b):
 
 
 @numba.njit(cache=True, nogil=True, error_model="numpy")
-def refine_edges(meta, geo, slots, factor, a0, b0, a1, b1, snap, eps):
+def refine_edges(meta: np.ndarray, geo: np.ndarray, slots: np.ndarray, factor: np.ndarray, a0: np.ndarray, b0: np.ndarray, a1: np.ndarray, b1: np.ndarray,
+                 snap: float, eps: float) -> np.ndarray:
     """Zero of R + snap on each segment (a0, b0)-(a1, b1), to a bracket below ``2 eps`` in t ∈ [0, 1].
 
     The sign convention is the detection's: a side is ``R >= -snap``. Each
@@ -259,7 +261,7 @@ def refine_edges(meta, geo, slots, factor, a0, b0, a1, b1, snap, eps):
 
 
 @numba.njit(cache=True, nogil=True, error_model="numpy")
-def met_bisect(meta, geo, slots, lo, hi, n_iter):
+def met_bisect(meta: np.ndarray, geo: np.ndarray, slots: np.ndarray, lo: np.ndarray, hi: np.ndarray, n_iter: int) -> tuple[np.ndarray, np.ndarray]:
     """Bisection on the chord lo-hi (K, 2 each) for where a tie stops being met.
 
     ``lo`` has all four contours met, ``hi`` not; after ``n_iter`` halvings
@@ -287,7 +289,7 @@ def met_bisect(meta, geo, slots, lo, hi, n_iter):
 
 
 @numba.njit(cache=True, nogil=True, error_model="numpy")
-def edge_endpoints(edges, av, bv):
+def edge_endpoints(edges: np.ndarray, av: np.ndarray, bv: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
     """(a0, b0, a1, b1) of lattice edges (:class:`specmap.special.lattice.Lattice` numbering)."""
     n_a = av.size
     n_h = bv.size * (n_a - 1)

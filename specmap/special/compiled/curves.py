@@ -21,7 +21,8 @@ def _find_sorted(arr, lo, hi, x):
 
 
 @numba.njit(cache=True, nogil=True, error_model="numpy")
-def march_cells(codes, edges, rel, n_a, n_b, av, bv, meta, geo, slots, factor, snap):
+def march_cells(codes: np.ndarray, edges: np.ndarray, rel: np.ndarray, n_a: int, n_b: int, av: np.ndarray, bv: np.ndarray, meta: np.ndarray,
+                geo: np.ndarray, slots: np.ndarray, factor: np.ndarray, snap: float) -> np.ndarray:
     """Marching squares per tie: segments (u, v) of crossing indices joined inside a cell.
 
     ``codes``, ``edges`` sorted by (code, edge); ``rel`` (K, 2) from
@@ -104,7 +105,7 @@ def march_cells(codes, edges, rel, n_a, n_b, av, bv, meta, geo, slots, factor, s
 
 
 @numba.njit(cache=True, nogil=True, error_model="numpy")
-def neighbours(n, segs):
+def neighbours(n: int, segs: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Degree and the first two neighbours (-1 = none) of each of ``n`` vertices.
 
     Half-edges are taken in the order u->v, v->u of each segment in turn;
@@ -127,7 +128,7 @@ def neighbours(n, segs):
 
 
 @numba.njit(cache=True, nogil=True, error_model="numpy")
-def chain_walk(nbr, deg):
+def chain_walk(nbr: np.ndarray, deg: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Walk a graph of maximum degree 2 (neighbours ``nbr`` (n, 2), -1 = none) into paths.
 
     Paths start at degree-1 vertices, then at unseen vertices of degree >= 2

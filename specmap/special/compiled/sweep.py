@@ -40,7 +40,8 @@ def _tie_met(met, c0, c1, c2, c3, cj, ci):
 
 
 @numba.njit(cache=True, nogil=True, error_model="numpy")
-def sweep_rows(s, met, cell_pair, first, second, cross, roles, mcol, j_start, j_stop, snap, tol):
+def sweep_rows(s: np.ndarray, met: np.ndarray, cell_pair: np.ndarray, first: np.ndarray, second: np.ndarray, cross: np.ndarray, roles: bool,
+               mcol: np.ndarray, j_start: int, j_stop: int, snap: float, tol: float) -> tuple[np.ndarray, np.ndarray, int]:
     """Order swaps of pair differences on the lattice edges of node rows ``j_start`` to ``j_stop - 1``.
 
     Row j holds the horizontal edges (j, i)-(j, i+1) and the vertical edges
@@ -173,7 +174,7 @@ def sweep_rows(s, met, cell_pair, first, second, cross, roles, mcol, j_start, j_
 
 
 @numba.njit(cache=True, nogil=True, error_model="numpy")
-def tie_cells_met(met, slots, edges, n_a, n_b):
+def tie_cells_met(met: np.ndarray, slots: np.ndarray, edges: np.ndarray, n_a: int, n_b: int) -> np.ndarray:
     """For each (tie, edge): whether each of the two cells beside the edge sees the tie met.
 
     A cell sees a tie when its four contours are met at one of the cell's
