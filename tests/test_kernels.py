@@ -136,3 +136,24 @@ def test_lattice_labels_join_shared_vertices():
                                      keys, np.argsort(keys))
     assert not chord.any()
     assert label.tolist() == [0, 0]
+
+
+def test_compiled_lattice_numbering_matches_the_lattice():
+    # reference: the array implementation of the numbering (specmap.special.lattice.Lattice)
+    from specmap.special.compiled.contours import edge_endpoints
+    from specmap.special.compiled.lattice import edge_side_cell, interval_of
+    from specmap.special.lattice import Lattice
+    from specmap.strip import Window
+
+    lat = Lattice.of(Window((0.1, 0.9), (-1.0, 2.0)), 7, 5)
+    edges = np.arange(lat.n_edges, dtype=np.int64)
+    n0, n1 = lat.edge_nodes(edges)
+    a0, b0 = lat.node_ab(n0)
+    a1, b1 = lat.node_ab(n1)
+    np.testing.assert_array_equal(np.stack(edge_endpoints(edges, lat.av, lat.bv)), np.stack([a0, b0, a1, b1]))
+    cells = lat.edge_cells(edges)
+    for k, e in enumerate(edges.tolist()):
+        for side in range(2):
+            cj, ci = edge_side_cell(e, side, lat.n_a, lat.n_b)
+            assert (cj * (lat.n_a - 1) + ci if cj >= 0 else -1) == cells[k, side]
+    assert [interval_of(lat.av, x) for x in (0.0, 0.1, 0.5, 0.9, 5.0)] == [0, 0, 3, 5, 5]

@@ -11,6 +11,8 @@ from __future__ import annotations
 import numba
 import numpy as np
 
+from specmap.special.compiled.lattice import interval_of
+
 
 @numba.njit(cache=True, nogil=True, error_model="numpy")
 def _find(parent, x):
@@ -111,7 +113,6 @@ def _cells_and_perimeter(p, q, av, bv, eps):
     """Cell of each segment (by its midpoint), whether it is a chord, and its ends' perimeter positions."""
     S = p.shape[0]
     na1 = av.size - 1
-    nb1 = bv.size - 1
     cell = np.empty(S, dtype=np.int64)
     chord = np.zeros(S, dtype=np.bool_)
     t0 = np.empty(S)
@@ -119,8 +120,8 @@ def _cells_and_perimeter(p, q, av, bv, eps):
     for s in range(S):
         mx = 0.5 * (p[s, 0] + q[s, 0])
         my = 0.5 * (p[s, 1] + q[s, 1])
-        ci = min(max(np.searchsorted(av, mx, side="right") - 1, 0), na1 - 1)
-        cj = min(max(np.searchsorted(bv, my, side="right") - 1, 0), nb1 - 1)
+        ci = interval_of(av, mx)
+        cj = interval_of(bv, my)
         cell[s] = cj * na1 + ci
         tp, onp = _perimeter(p[s, 0], p[s, 1], av[ci], av[ci + 1], bv[cj], bv[cj + 1], eps)
         tq, onq = _perimeter(q[s, 0], q[s, 1], av[ci], av[ci + 1], bv[cj], bv[cj + 1], eps)
@@ -190,10 +191,7 @@ def _chord_unions(parent, owner, cell, chord, t0, t1, n_cells):
                 top += 1
                 group[ch] = g
                 continue
-            g = group[ch]
-            while gpar[g] != g:
-                gpar[g] = gpar[gpar[g]]
-                g = gpar[g]
+            g = _find(gpar, group[ch])
             pg = gpos[g]
             if pg + 1 < top:
                 # g's chord closes: it crosses every chord opened after it and still open
@@ -207,10 +205,7 @@ def _chord_unions(parent, owner, cell, chord, t0, t1, n_cells):
                 top -= 1
         # every chord now knows its group root; lines of one group are one component
         for i in range(k):
-            g = group[i]
-            while gpar[g] != g:
-                g = gpar[g]
-            _union(parent, owner[by_cell[lo + i]], owner[by_cell[lo + gch[g]]])
+            _union(parent, owner[by_cell[lo + i]], owner[by_cell[lo + gch[_find(gpar, group[i])]]])
     return cnt, by_cell
 
 
@@ -232,10 +227,10 @@ def _extra_unions(parent, p, q, owner, chord, cnt, by_cell, av, bv, eps, n_lines
     xj1 = np.empty(n_x, dtype=np.int64)
     for r in range(n_x):
         s = extra[r]
-        xi0[r] = min(max(np.searchsorted(av, min(p[s, 0], q[s, 0]) - eps, side="right") - 1, 0), na1 - 1)
-        xi1[r] = min(max(np.searchsorted(av, max(p[s, 0], q[s, 0]) + eps, side="right") - 1, 0), na1 - 1)
-        xj0[r] = min(max(np.searchsorted(bv, min(p[s, 1], q[s, 1]) - eps, side="right") - 1, 0), nb1 - 1)
-        xj1[r] = min(max(np.searchsorted(bv, max(p[s, 1], q[s, 1]) + eps, side="right") - 1, 0), nb1 - 1)
+        xi0[r] = interval_of(av, min(p[s, 0], q[s, 0]) - eps)
+        xi1[r] = interval_of(av, max(p[s, 0], q[s, 0]) + eps)
+        xj0[r] = interval_of(bv, min(p[s, 1], q[s, 1]) - eps)
+        xj1[r] = interval_of(bv, max(p[s, 1], q[s, 1]) + eps)
     if n_x == 0:
         return
     acnt = np.zeros(n_cells + 1, dtype=np.int64)

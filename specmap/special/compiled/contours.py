@@ -24,6 +24,7 @@ import numba
 import numpy as np
 
 from specmap.grids.model import Contour
+from specmap.special.compiled.lattice import edge_position
 
 #: contour kinds in the flat form
 VERTICAL, HORIZONTAL, PROPER = 0, 1, 2
@@ -289,23 +290,18 @@ def met_bisect(meta: np.ndarray, geo: np.ndarray, slots: np.ndarray, lo: np.ndar
 
 
 @numba.njit(cache=True, nogil=True, error_model="numpy")
-def edge_endpoints(edges: np.ndarray, av: np.ndarray, bv: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+def edge_endpoints(edges: np.ndarray, av: np.ndarray, bv: np.ndarray
+                   ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
     """(a0, b0, a1, b1) of lattice edges (:class:`specmap.special.lattice.Lattice` numbering)."""
-    n_a = av.size
-    n_h = bv.size * (n_a - 1)
     K = edges.size
     a0 = np.empty(K)
     b0 = np.empty(K)
     a1 = np.empty(K)
     b1 = np.empty(K)
     for k in range(K):
-        e = edges[k]
-        if e < n_h:
-            j = e // (n_a - 1)
-            i = e - j * (n_a - 1)
+        horizontal, j, i = edge_position(edges[k], av.size, bv.size)
+        if horizontal:
             a0[k], b0[k], a1[k], b1[k] = av[i], bv[j], av[i + 1], bv[j]
         else:
-            j = (e - n_h) // n_a
-            i = (e - n_h) - j * n_a
             a0[k], b0[k], a1[k], b1[k] = av[i], bv[j], av[i], bv[j + 1]
     return a0, b0, a1, b1

@@ -6,6 +6,7 @@ import numba
 import numpy as np
 
 from specmap.special.compiled.contours import _residual
+from specmap.special.compiled.lattice import edge_side_cell
 
 
 @numba.njit(cache=True, nogil=True, error_model="numpy")
@@ -47,16 +48,7 @@ def march_cells(codes: np.ndarray, edges: np.ndarray, rel: np.ndarray, n_a: int,
             for side in range(2):
                 if not rel[k, side]:
                     continue
-                if e < n_h:
-                    j = e // (n_a - 1)
-                    i = e - j * (n_a - 1)
-                    cj = j - 1 + side
-                    ci = i
-                else:
-                    j = (e - n_h) // n_a
-                    i = (e - n_h) - j * n_a
-                    cj = j
-                    ci = i - 1 + side
+                cj, ci = edge_side_cell(e, side, n_a, n_b)  # a relevant side is inside the lattice
                 bottom = cj * (n_a - 1) + ci
                 left = n_h + cj * n_a + ci
                 idx[0] = _find_sorted(edges, b0, b1, bottom)

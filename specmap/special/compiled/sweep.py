@@ -17,6 +17,8 @@ from __future__ import annotations
 import numba
 import numpy as np
 
+from specmap.special.compiled.lattice import edge_side_cell
+
 
 @numba.njit(cache=True, nogil=True, error_model="numpy")
 def _grow(buf, n):
@@ -184,22 +186,9 @@ def tie_cells_met(met: np.ndarray, slots: np.ndarray, edges: np.ndarray, n_a: in
     """
     K = edges.size
     out = np.zeros((K, 2), dtype=np.bool_)
-    n_h = n_b * (n_a - 1)
     for k in range(K):
-        e = edges[k]
-        c0, c1, c2, c3 = slots[k, 0], slots[k, 1], slots[k, 2], slots[k, 3]
-        if e < n_h:
-            j = e // (n_a - 1)
-            i = e - j * (n_a - 1)
-            if j > 0:
-                out[k, 0] = _tie_met(met, c0, c1, c2, c3, j - 1, i)
-            if j < n_b - 1:
-                out[k, 1] = _tie_met(met, c0, c1, c2, c3, j, i)
-        else:
-            j = (e - n_h) // n_a
-            i = (e - n_h) - j * n_a
-            if i > 0:
-                out[k, 0] = _tie_met(met, c0, c1, c2, c3, j, i - 1)
-            if i < n_a - 1:
-                out[k, 1] = _tie_met(met, c0, c1, c2, c3, j, i)
+        for side in range(2):
+            cj, ci = edge_side_cell(edges[k], side, n_a, n_b)
+            if cj >= 0:
+                out[k, side] = _tie_met(met, slots[k, 0], slots[k, 1], slots[k, 2], slots[k, 3], cj, ci)
     return out
