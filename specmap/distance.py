@@ -510,6 +510,16 @@ def tie_costs(tie, contours_by_id: dict, a, b, *, roles: bool = True) -> tuple[n
     return _costs_from_differences(code, np.abs(s[0] - s[1]) * m, np.abs(s[2] - s[3]) * m)
 
 
+def _star(values: np.ndarray, a, b) -> np.ndarray:
+    """F*(a, b)(v) = max(r1 (f1(v) - b), r2 (f2(v) + b)) with r1 = 1, r2 = a/(1-a) for a <= 1/2 and
+    r1 = (1-a)/a, r2 = 1 otherwise (math.md section 2); ``a`` and ``b`` broadcast against values[..., 0]."""
+    a = np.asarray(a, float)
+    b = np.asarray(b, float)
+    r1 = np.where(a <= 0.5, 1.0, (1.0 - a) / a)
+    r2 = np.where(a <= 0.5, a / (1.0 - a), 1.0)
+    return np.maximum(r1 * (values[..., 0] - b), r2 * (values[..., 1] + b))
+
+
 def line_upper_bound(values_f: np.ndarray, values_g: np.ndarray, a, b, *, chunk: int = 256) -> np.ndarray:
     """||F*_f(a, b) - F*_g(a, b)||_inf over the vertices, per line: h_k(a, b) <= it for every k.
 
@@ -535,7 +545,7 @@ def line_upper_bound(values_f: np.ndarray, values_g: np.ndarray, a, b, *, chunk:
     Examples
     --------
     >>> v = np.array([[0.0, 1.0], [2.0, -1.0]])
-    >>> float(line_upper_bound(v, v + [0.3, 0.1], 0.5, 0.0))
+    >>> round(float(line_upper_bound(v, v + [0.3, 0.1], 0.5, 0.0)), 12)
     0.3
     """
     a, b = np.broadcast_arrays(np.asarray(a, float), np.asarray(b, float))
@@ -544,13 +554,7 @@ def line_upper_bound(values_f: np.ndarray, values_g: np.ndarray, a, b, *, chunk:
     out = np.empty(af.shape)
     for i in range(0, len(af), chunk):
         aa, bb = af[i:i + chunk], bf[i:i + chunk]
-        r1 = np.where(aa <= 0.5, 1.0, (1.0 - aa) / aa)
-        r2 = np.where(aa <= 0.5, aa / (1.0 - aa), 1.0)
-
-        def star(v, aa=aa, bb=bb, r1=r1, r2=r2):
-            return np.maximum(r1 * (v[:, :1] - bb), r2 * (v[:, 1:] + bb))
-
-        out[i:i + chunk] = np.abs(star(vf) - star(vg)).max(axis=0)
+        out[i:i + chunk] = np.abs(_star(vf[:, None, :], aa, bb) - _star(vg[:, None, :], aa, bb)).max(axis=0)
     return out.reshape(a.shape)
 
 
@@ -823,11 +827,7 @@ def _crossing_points(inter: np.ndarray, uv: np.ndarray) -> tuple[np.ndarray, np.
 
 def _star_values(values: np.ndarray, a: np.ndarray, b: np.ndarray) -> np.ndarray:
     """F*(a, b) at every vertex for many lines: shape (len(a), n) (math.md section 2)."""
-    a = np.asarray(a, float)[:, None]
-    b = np.asarray(b, float)[:, None]
-    r1 = np.where(a <= 0.5, 1.0, (1.0 - a) / a)
-    r2 = np.where(a <= 0.5, a / (1.0 - a), 1.0)
-    return np.maximum(r1 * (values[None, :, 0] - b), r2 * (values[None, :, 1] + b))
+    return _star(values[None, :, :], np.asarray(a, float)[:, None], np.asarray(b, float)[:, None])
 
 
 class _LocalBound:
@@ -920,8 +920,8 @@ def slope_one_sup_norm_max(values_f: np.ndarray, values_g: np.ndarray, lo: float
     """
     vf, vg = np.asarray(values_f, float), np.asarray(values_g, float)
 
-    def d(b):
-        return np.abs(np.maximum(vf[:, 0] - b, vf[:, 1] + b) - np.maximum(vg[:, 0] - b, vg[:, 1] + b))
+    def d(b):  # per vertex; b a scalar or one value per vertex
+        return np.abs(_star(vf, 0.5, b) - _star(vg, 0.5, b))
 
     m = max(float(d(lo).max(initial=0.0)), float(d(hi).max(initial=0.0)))
     for crease in ((vf[:, 0] - vf[:, 1]) / 2, (vg[:, 0] - vg[:, 1]) / 2):
