@@ -13,6 +13,7 @@ References
 
 from __future__ import annotations
 
+import itertools
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -181,25 +182,21 @@ def _dedupe_lines(lines: list, scale: float) -> list:
     cen = np.add.reduceat(coords, start, axis=0) / n[:, None]
     cell = np.floor(cen / h).astype(np.int64)
     buckets: dict[tuple[int, int, int], list[int]] = {}
+
+    def seen(i: int, cx: int, cy: int) -> bool:
+        c = coords[start[i]:start[i] + n[i]]
+        for dx, dy in itertools.product((-1, 0, 1), repeat=2):
+            for j in buckets.get((int(n[i]), cx + dx, cy + dy), ()):
+                d = coords[start[j]:start[j] + n[j]]
+                if np.abs(c - d).max() <= tol or np.abs(c - d[::-1]).max() <= tol:
+                    return True
+        return False
+
     out = []
     for i, (cx, cy) in enumerate(cell.tolist()):
-        c = coords[start[i]:start[i] + n[i]]
-        dup = False
-        for dx in (-1, 0, 1):
-            for dy in (-1, 0, 1):
-                for j in buckets.get((int(n[i]), cx + dx, cy + dy), ()):
-                    d = coords[start[j]:start[j] + n[j]]
-                    if np.abs(c - d).max() <= tol or np.abs(c - d[::-1]).max() <= tol:
-                        dup = True
-                        break
-                if dup:
-                    break
-            if dup:
-                break
-        if dup:
-            continue
-        buckets.setdefault((int(n[i]), cx, cy), []).append(i)
-        out.append(lines[i])
+        if not seen(i, cx, cy):
+            buckets.setdefault((int(n[i]), cx, cy), []).append(i)
+            out.append(lines[i])
     return out
 
 
@@ -388,14 +385,15 @@ def components(pieces: tuple[TiePiece, ...], window: Window, lattice: Any = None
     arr = np.array(parts, dtype=object)
     types = shapely.get_type_id(arr)
     line_idx = np.nonzero(types == 1)[0]
-    other_idx = np.nonzero(types != 1)[0]
     if lattice is not None:
         la, lb = _lattice_links(list(arr[line_idx]), eps, lattice)
     else:
         la, lb = _segment_links(list(arr[line_idx]), eps)
     ea, eb = [line_idx[la]], [line_idx[lb]]
     poly_idx = np.nonzero(types == 3)[0]
-    point_idx = other_idx[~np.isin(other_idx, poly_idx)]
+    point_idx = np.nonzero((types != 1) & (types != 3))[0]
+    rest = np.concatenate([line_idx, point_idx])  # everything but polygons
+    rest_tree = shapely.STRtree(arr[rest]) if rest.size and (poly_idx.size or point_idx.size) else None
     n = len(parts)
     n_nodes = n
     if poly_idx.size:
@@ -411,14 +409,12 @@ def components(pieces: tuple[TiePiece, ...], window: Window, lattice: Any = None
         qi, ti = rtree.query(regions, predicate="dwithin", distance=eps)
         ea.append(rnode[qi])
         eb.append(rnode[ti])
-        rest = np.concatenate([line_idx, point_idx])
-        if rest.size:
-            qi, ti = shapely.STRtree(arr[rest]).query(regions, predicate="dwithin", distance=eps)
+        if rest_tree is not None:
+            qi, ti = rest_tree.query(regions, predicate="dwithin", distance=eps)
             ea.append(rnode[qi])
             eb.append(rest[ti])
     if point_idx.size:
-        rest = np.concatenate([line_idx, point_idx])
-        qi, ti = shapely.STRtree(arr[rest]).query(arr[point_idx], predicate="dwithin", distance=eps)
+        qi, ti = rest_tree.query(arr[point_idx], predicate="dwithin", distance=eps)
         ea.append(point_idx[qi])
         eb.append(rest[ti])
     ea = np.concatenate(ea)
