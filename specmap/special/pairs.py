@@ -118,8 +118,7 @@ class PairTable:
         return (np.asarray(cond, np.int64) * n + np.asarray(p, np.int64)) * n + np.asarray(q, np.int64)
 
     def tie(self, code: int) -> Tie:
-        cond, p, q = (int(x[0]) for x in self.decode(np.array([code])))
-        return Tie.make(self.pair_ids(p), self.pair_ids(q), CONDITIONS[cond])
+        return self.ties(np.array([code]))[0]
 
     def ties(self, codes: np.ndarray) -> list[Tie]:
         """:meth:`tie` of many codes (one decode)."""
