@@ -465,6 +465,13 @@ def _parse(text: str, constants: Mapping[str, float], file: str | None, field: s
             field=field,
             fix="shorten the expression, e.g. by declaring constants",
         )
+    if "#" in text:
+        raise ExpressionError(
+            f"'#' is not allowed in expression '{_shown(text)}' (it would drop the rest of the text)",
+            file=file,
+            field=field,
+            fix="remove the '#' and anything meant as a comment; " + _GENERAL_FIX,
+        )
     source = text.strip()
     if not source:
         raise ExpressionError(
