@@ -7,6 +7,7 @@ are checked for the file and field they must name, not for exact wording.
 
 from __future__ import annotations
 
+import json
 import subprocess
 import sys
 from pathlib import Path
@@ -51,3 +52,51 @@ def test_hash_in_study_map_one_line_exit_2(tmp_path: Path) -> None:
     (tmp_path / "s.toml").write_text(HEAD + body)
     proc = run_cli(["grid", "s.toml"], tmp_path)
     assert_user_error(proc, "s.toml", "f.map", "#")
+
+
+# --------------------------------------------------------------------------- 2. grid files
+
+def _grid(**extra: object) -> dict:
+    g = {"format": "specmap-grid/1", "contours": [{"id": "p0", "kind": "proper", "points": [[0, 1], [1, 0]]}]}
+    g.update(extra)
+    return g
+
+
+def _run_grid_file(tmp_path: Path, text: str) -> subprocess.CompletedProcess:
+    (tmp_path / "g.json").write_text(text)
+    (tmp_path / "s.toml").write_text(HEAD + '[f]\ngrid = "g.json"\n[g]\ngrid = "g.json"\n')
+    return run_cli(["grid", "s.toml"], tmp_path)
+
+
+BIG = "1" + "0" * 399  # a 400-digit integer
+
+GRID_CASES = {
+    "tolerance_string": (json.dumps(_grid(tolerance="0.1")), ["tolerance"]),
+    "tolerance_list": (json.dumps(_grid(tolerance=[0.1])), ["tolerance"]),
+    "tolerance_huge_int": (json.dumps(_grid()).replace("{", '{"tolerance": ' + BIG + ", ", 1), ["tolerance"]),
+    "meta_list": (json.dumps(_grid(meta=[1, 2])), ["meta", "object"]),
+    "meta_string": (json.dumps(_grid(meta="x")), ["meta", "object"]),
+    "coordinate_400_digits": (json.dumps(_grid()).replace("[0, 1]", "[0, " + BIG + "]"), ["contours[0].points", "1e+12"]),
+    "coordinate_1e308": (json.dumps(_grid()).replace("[0, 1]", "[0, 1e308]"), ["contours[0].points", "1e+12"]),
+    # 1e308 made the tolerance infinite and so accepted an increasing contour (issue 14)
+    "increasing_with_1e308": (json.dumps({"format": "specmap-grid/1", "contours": [
+        {"id": "p0", "kind": "proper", "points": [[0, 0], [1, 1]]},
+        {"id": "v0", "kind": "vertical", "start": [1e308, 0]}]}), ["contours[1].start", "1e+12"]),
+    "nested_1e5": ('{"format": "specmap-grid/1", "contours": ' + "[" * 100_000 + "]" * 100_000 + "}",
+                   ["g.json", "nested"]),
+}
+
+
+@pytest.mark.parametrize("case", sorted(GRID_CASES))
+def test_bad_grid_file_one_line_exit_2(case: str, tmp_path: Path) -> None:
+    text, needles = GRID_CASES[case]
+    proc = _run_grid_file(tmp_path, text)
+    assert_user_error(proc, "g.json", *needles)
+    assert not (tmp_path / "results").exists()
+
+
+def test_grid_file_tolerance_number_accepted() -> None:
+    # A finite numeric tolerance and an object meta are kept as given (the specmap-grid/1 contract).
+    from specmap.grids.model import grid_from_json
+    g = grid_from_json(_grid(tolerance=0.25, meta={"a": 1}), file="g.json")
+    assert g.tolerance == 0.25 and g.meta == {"a": 1}

@@ -28,6 +28,8 @@ from specmap.errors import GridFileError
 
 GRID_FORMAT = "specmap-grid/1"
 KINDS = ("proper", "vertical", "horizontal")
+COORD_LIMIT = 1e12
+"""Largest accepted |coordinate| (and tolerance) in a grid file: keeps tolerances finite."""
 ContourKind = Literal["proper", "vertical", "horizontal"]
 
 
@@ -182,6 +184,10 @@ def validate_grid(grid: Grid, *, tol: float | None = None, file: str | None = No
     x0, y0, x1, y1 = grid.bbox()
     scale = max(math.hypot(x1 - x0, y1 - y0), 1.0)
     t = 1e-9 * scale if tol is None else tol
+    if not math.isfinite(t):
+        raise GridFileError(f"coordinates too large for a finite tolerance (bounding box {x0:g}..{x1:g}, "
+                            f"{y0:g}..{y1:g})", file=file, field="contours",
+                            fix=f"rescale the values so that every coordinate has |x| <= {COORD_LIMIT:g}")
     for i, c in enumerate(grid.contours):
         if c.kind != "proper" or len(c.points) < 2:
             continue
@@ -236,21 +242,58 @@ def grid_from_json(data: Any, *, file: str | None = None, prefix: str | None = N
         val = item.get(key)
         try:
             arr = np.asarray(val, dtype=float)
-        except (TypeError, ValueError):
+        except OverflowError:
+            raise GridFileError("a coordinate is too large to be a float", file=file,
+                                field=f"{where}.{key}",
+                                fix=f"use coordinates with |x| <= {COORD_LIMIT:g}") from None
+        except (TypeError, ValueError, RecursionError):
             arr = np.empty(0)
         ok = arr.ndim == 2 and arr.shape[1] == 2 and len(arr) >= 1 if kind == "proper" else arr.shape == (2,)
         if not ok:
             shape = "a list of [x, y] pairs" if kind == "proper" else "one [x, y] pair"
             raise GridFileError(f"'{key}' is not {shape}", file=file, field=f"{where}.{key}",
                                 fix=f"give '{key}' as {shape} of numbers")
+        finite = np.isfinite(arr)
+        if np.any(finite & (np.abs(np.where(finite, arr, 0.0)) > COORD_LIMIT)):
+            raise GridFileError(f"a coordinate is outside the supported range |x| <= {COORD_LIMIT:g}",
+                                file=file, field=f"{where}.{key}",
+                                fix=f"rescale the values so that every coordinate has |x| <= {COORD_LIMIT:g}")
         cid = str(cid)
         if prefix is not None:
             cid = f"{prefix}:{cid.split(':', 1)[-1]}"
         contours.append(Contour(cid, kind, arr))
     grid = Grid(tuple(contours), route=str(data.get("route", "file")),
-                tolerance=float(data.get("tolerance", 0.0) or 0.0),
-                meta=dict(data.get("meta", {}) or {}))
+                tolerance=_file_tolerance(data.get("tolerance"), file),
+                meta=_file_meta(data.get("meta"), file))
     return validate_grid(grid, file=file)
+
+
+def _file_tolerance(value: Any, file: str | None) -> float:
+    """The optional ``tolerance`` of a grid file: a finite number in [0, COORD_LIMIT]."""
+    if value is None:
+        return 0.0
+    fix = f"give 'tolerance' as a number between 0 and {COORD_LIMIT:g}, or leave it out"
+    if isinstance(value, bool) or not isinstance(value, int | float):
+        raise GridFileError(f"tolerance is a {type(value).__name__}, not a number", file=file,
+                            field="tolerance", fix=fix)
+    try:
+        number = float(value)
+    except OverflowError:
+        number = math.inf
+    if not (math.isfinite(number) and 0.0 <= number <= COORD_LIMIT):
+        raise GridFileError("tolerance is negative, too large or not finite", file=file,
+                            field="tolerance", fix=fix)
+    return number
+
+
+def _file_meta(value: Any, file: str | None) -> dict[str, Any]:
+    """The optional ``meta`` of a grid file: a JSON object."""
+    if value is None:
+        return {}
+    if not isinstance(value, dict):
+        raise GridFileError(f"meta is a {type(value).__name__}, not an object", file=file,
+                            field="meta", fix='give \'meta\' as a JSON object {...}, or leave it out')
+    return dict(value)
 
 
 def read_grid(path: str | Path, *, prefix: str | None = None) -> Grid:
@@ -261,7 +304,16 @@ def read_grid(path: str | Path, *, prefix: str | None = None) -> Grid:
                             fix="check the path (relative paths resolve against the study file)")
     try:
         data = json.loads(p.read_text())
+    except PermissionError:
+        raise GridFileError("file cannot be read (permission denied)", file=str(p), field="grid",
+                            fix="make the file readable or copy it somewhere readable") from None
     except (json.JSONDecodeError, UnicodeDecodeError) as exc:
         raise GridFileError(f"not valid JSON ({exc.msg if hasattr(exc, 'msg') else exc})",
                             file=str(p), field="(root)", fix="write valid JSON") from None
+    except (RecursionError, MemoryError):
+        raise GridFileError("JSON is nested too deeply", file=str(p), field="(root)",
+                            fix="write contours as flat lists of [x, y] pairs") from None
+    except ValueError as exc:  # e.g. an integer literal longer than Python's digit limit
+        raise GridFileError(f"not readable JSON ({str(exc):.80})", file=str(p), field="(root)",
+                            fix=f"write numbers as ordinary floats with |x| <= {COORD_LIMIT:g}") from None
     return grid_from_json(data, file=str(p), prefix=prefix)
