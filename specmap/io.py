@@ -48,11 +48,27 @@ def from_plain_float(x: Any) -> float:
     return float(x)
 
 
+def _current_umask() -> int:
+    """The process umask, read without changing it where the system allows (Linux /proc)."""
+    try:
+        with open("/proc/self/status", encoding="ascii") as fh:
+            for line in fh:
+                if line.startswith("Umask:"):
+                    return int(line.split()[1], 8)
+    except (OSError, ValueError, IndexError):
+        pass
+    mask = os.umask(0o022)
+    os.umask(mask)
+    return mask
+
+
 def _atomic_write_bytes(path: Path, data: bytes) -> None:
     path.parent.mkdir(parents=True, exist_ok=True)
     fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
     try:
         with os.fdopen(fd, "wb") as fh:
+            # mkstemp creates 0600; give the result the mode an ordinary open() would (umask honoured)
+            os.fchmod(fh.fileno(), 0o666 & ~_current_umask())
             fh.write(data)
             fh.flush()
             os.fsync(fh.fileno())
@@ -91,7 +107,7 @@ def append_jsonl(path: str | Path, record: dict[str, Any]) -> None:
     p = Path(path)
     p.parent.mkdir(parents=True, exist_ok=True)
     line = (json.dumps(to_plain(record), separators=(",", ":")) + "\n").encode()
-    fd = os.open(p, os.O_WRONLY | os.O_APPEND | os.O_CREAT, 0o644)
+    fd = os.open(p, os.O_WRONLY | os.O_APPEND | os.O_CREAT, 0o666)
     try:
         os.write(fd, line)
         os.fsync(fd)

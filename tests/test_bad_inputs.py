@@ -8,6 +8,8 @@ are checked for the file and field they must name, not for exact wording.
 from __future__ import annotations
 
 import json
+import os
+import stat
 import subprocess
 import sys
 from pathlib import Path
@@ -100,3 +102,22 @@ def test_grid_file_tolerance_number_accepted() -> None:
     from specmap.grids.model import grid_from_json
     g = grid_from_json(_grid(tolerance=0.25, meta={"a": 1}), file="g.json")
     assert g.tolerance == 0.25 and g.meta == {"a": 1}
+
+
+# --------------------------------------------------------------------------- 4. files: modes
+
+
+@pytest.mark.parametrize("mask", [0o022, 0o077, 0o002])
+def test_result_files_honour_umask(mask: int, tmp_path: Path) -> None:
+    # Expected mode: 0o666 & ~umask, what open(path, "w") gives (POSIX creat semantics).
+    from specmap.io import append_jsonl, write_json, write_text
+    old = os.umask(mask)
+    try:
+        paths = [write_json(tmp_path / "a.json", {"x": 1}), write_text(tmp_path / "b.txt", "t")]
+        append_jsonl(tmp_path / "c.jsonl", {"x": 1})
+        paths.append(tmp_path / "c.jsonl")
+    finally:
+        os.umask(old)
+    for p in paths:
+        assert stat.S_IMODE(p.stat().st_mode) == 0o666 & ~mask, p
+    assert [q.name for q in tmp_path.iterdir() if q.name.startswith(".")] == []
