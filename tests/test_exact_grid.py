@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from specmap.grids.exact import ellipsoid_linear_grid, is_exact_case
+from specmap.grids.exact import ellipsoid_linear_grid, is_dependent_linear, is_exact_case
 from specmap.shapes.surfaces import Ellipsoid, Torus
 
 RADII = np.array([2.0, 1.3, 0.7])
@@ -134,6 +134,11 @@ def test_is_exact_case_and_degenerate_maps():
     assert not is_exact_case(Torus((2, 1)), _Lin(L))
     assert not is_exact_case(E, _Lin([[1, 0, 0], [2, 0, 0]]))  # rank 1
     assert not is_exact_case(E, object())
+    # rank by hand: rows (1,0,0) and (2,0,0) are parallel; (1,0,0), (0,1,0) are not
+    assert is_dependent_linear(_Lin([[1, 0, 0], [2, 0, 0]]))
+    assert is_dependent_linear(_Lin([[0, 0, 0], [0, 0, 0]]))
+    assert not is_dependent_linear(_Lin(L))
+    assert not is_dependent_linear(_Lin([[1, 0, 0], [2, 0, 0]], linear=False))
     with pytest.raises(ValueError):
         ellipsoid_linear_grid(RADII, [[1, 0, 0], [2, 0, 0]])
     with pytest.raises(ValueError):

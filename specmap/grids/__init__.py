@@ -10,6 +10,7 @@ from __future__ import annotations
 from typing import TYPE_CHECKING
 
 from specmap.errors import StudyError
+from specmap.grids.exact import is_dependent_linear, is_exact_case
 from specmap.grids.model import Contour, Grid, grid_from_json, read_grid, validate_grid
 
 if TYPE_CHECKING:
@@ -24,9 +25,12 @@ def route_for(shape: Shape) -> str:
         return "file"
     if shape.source == "mesh":
         return "piecewise"
+    if shape.fmap is not None and is_dependent_linear(shape.fmap):
+        raise StudyError("the two components of the map are linearly dependent (rank < 2), "
+                         "so the map has no Pareto grid", field=f"{shape.label}.map",
+                         fix="give two independent functions")
     requested = shape.meta.get("route", "auto")
-    linear = shape.fmap is not None and shape.fmap.is_linear()
-    exact_ok = shape.surface is not None and shape.surface.kind == "ellipsoid" and linear
+    exact_ok = is_exact_case(shape.surface, shape.fmap)
     if requested == "exact" and not exact_ok:
         raise StudyError("route 'exact' needs an ellipsoid with a linear map",
                          field=f"{shape.label}.route", fix='use route = "auto" or "smooth"')

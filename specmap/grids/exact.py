@@ -26,7 +26,7 @@ import numpy as np
 
 from specmap.grids.model import Contour, Grid, validate_grid
 
-__all__ = ["ellipsoid_linear_grid", "is_exact_case", "support_point"]
+__all__ = ["ellipsoid_linear_grid", "is_exact_case", "is_dependent_linear", "support_point"]
 
 
 def support_point(Q: np.ndarray, offset: np.ndarray, phi: np.ndarray) -> np.ndarray:
@@ -125,8 +125,7 @@ def ellipsoid_linear_grid(
         raise ValueError("need 3 positive radii, a (2, 3) matrix and a (2,) offset")
     M = L * r[None, :]
     Q = M @ M.T
-    sv = np.linalg.svd(M, compute_uv=False)
-    if sv[-1] <= 1e-12 * max(sv[0], 1e-300):
+    if not _rank_two(M):
         raise ValueError("the map is degenerate on this ellipsoid (L D has rank < 2)")
     n = max(int(n_points), 2)
     third, e3 = _arc(Q, c, math.pi, n)
@@ -152,19 +151,38 @@ def ellipsoid_linear_grid(
     return validate_grid(grid, tol=1e-12 * max(scale, 1.0))
 
 
+def _rank_two(M: np.ndarray) -> bool:
+    """Whether the 2x3 matrix M has rank 2 (relative tolerance 1e-12 on singular values)."""
+    sv = np.linalg.svd(np.asarray(M, dtype=float), compute_uv=False)
+    return bool(sv[-1] > 1e-12 * max(sv[0], 1e-300))
+
+
+def _is_linear(fmap: Any) -> bool:
+    is_lin = getattr(fmap, "is_linear", None)
+    return is_lin is not None and bool(is_lin())
+
+
+def is_dependent_linear(fmap: Any) -> bool:
+    """Whether ``fmap`` is affine with a 2x3 matrix of rank < 2 (its components are dependent).
+
+    Such a map is functionally dependent on every surface (f2 = k f1 + c or a constant), so no
+    Pareto grid is defined for it. Positive radii do not change the rank, so this is also the
+    rank test of L D used by :func:`is_exact_case`.
+    """
+    return _is_linear(fmap) and not _rank_two(fmap.matrix())
+
+
 def is_exact_case(surface: Any, fmap: Any) -> bool:
     """Whether the closed form applies: an ellipsoid and an affine, non-degenerate map.
+
+    The one exact-route predicate: :func:`specmap.grids.route_for` routes to
+    :func:`ellipsoid_linear_grid` exactly when this is true.
 
     Parameters
     ----------
     surface : object with ``kind`` and ``radii``
     fmap : object with ``is_linear()`` and ``matrix()`` (e.g. :class:`specmap.expr.CompiledMap`)
     """
-    if getattr(surface, "kind", None) != "ellipsoid":
+    if getattr(surface, "kind", None) != "ellipsoid" or not _is_linear(fmap):
         return False
-    is_lin = getattr(fmap, "is_linear", None)
-    if is_lin is None or not is_lin():
-        return False
-    M = np.asarray(fmap.matrix(), dtype=float) * np.asarray(surface.radii, dtype=float)[None, :]
-    sv = np.linalg.svd(M, compute_uv=False)
-    return bool(sv[-1] > 1e-12 * max(sv[0], 1e-300))
+    return _rank_two(np.asarray(fmap.matrix(), dtype=float) * np.asarray(surface.radii, dtype=float)[None, :])
