@@ -161,7 +161,7 @@ def slice_diagrams(shape, a: float, b: float, degrees: Iterable[int] = DEGREES) 
     >>> from specmap.shapes.surfaces import Ellipsoid
     >>> V, T = Ellipsoid((2.0, 1.0, 1.0)).mesh(500)
     >>> d = slice_diagrams(Shape("f", "mesh", V, T, V[:, :2]), 0.5, 0.0)
-    >>> d[2].tolist()
+    >>> d[2].round(2).tolist()  # 2.0 on the smooth surface; the 500-vertex mesh gives 1.998
     [[2.0, inf]]
     """
     return SliceEngine.from_shape(shape).diagrams(a, b, degrees)
