@@ -121,3 +121,36 @@ def test_result_files_honour_umask(mask: int, tmp_path: Path) -> None:
     for p in paths:
         assert stat.S_IMODE(p.stat().st_mode) == 0o666 & ~mask, p
     assert [q.name for q in tmp_path.iterdir() if q.name.startswith(".")] == []
+
+
+# --------------------------------------------------------------------------- 5. report inputs
+
+STUDY_JSON = {"name": "t", "study_file": "s.toml", "seed": 1, "window": {"a": [0, 1], "b": [-1, 1]},
+              "commands": []}
+
+REPORT_CASES = {
+    # file, content, needles (the file and the field the report must name)
+    "special_list": ("special.json", "[]", ["special.json", "(root)", "list"]),
+    "special_no_counts": ("special.json", json.dumps({"components": [], "total_area": 0.0}),
+                          ["special.json", "counts"]),
+    "special_counts_list": ("special.json", json.dumps({"counts": [], "components": [], "total_area": 0.0}),
+                            ["special.json", "counts"]),
+    "distance_empty": ("distance.json", "{}", ["distance.json", "value"]),
+    "grid_no_contours": ("grid_f.json", json.dumps({"format": "specmap-grid/1"}), ["grid_f.json", "contours"]),
+    "summary_list": ("perturb/summary.json", "[1]", ["summary.json", "(root)"]),
+    "runs_line_list": ("perturb/runs.jsonl", "[1, 2]\n", ["runs.jsonl", "line 1"]),
+}
+
+
+@pytest.mark.parametrize("case", sorted(REPORT_CASES))
+def test_bad_result_file_report_one_line_exit_2(case: str, tmp_path: Path) -> None:
+    name, content, needles = REPORT_CASES[case]
+    root = tmp_path / "res"
+    (root / "perturb").mkdir(parents=True)
+    (root / "study.json").write_text(json.dumps(STUDY_JSON))
+    if name == "perturb/runs.jsonl":
+        (root / "perturb" / "summary.json").write_text(json.dumps({"runs": 1}))
+    (root / name).write_text(content)
+    proc = run_cli(["report", str(root)], tmp_path)
+    assert_user_error(proc, *needles)
+    assert not (root / "report.pdf").exists()

@@ -38,7 +38,13 @@ def _read(path: Path, *, required: bool = False, verb: str = "grid") -> Any:
             )
         return None
     try:
-        return read_json(path)
+        return _checked(read_json(path), path, verb)
+    except PermissionError:
+        raise ResultsError("file cannot be read (permission denied)", file=str(path), field="(root)",
+                           fix="make the file readable") from None
+    except (RecursionError, MemoryError):
+        raise ResultsError("JSON is nested too deeply", file=str(path), field="(root)",
+                           fix=f"rerun specmap {verb} to rewrite the file") from None
     except (json.JSONDecodeError, UnicodeDecodeError) as exc:
         raise ResultsError(
             f"not valid JSON ({getattr(exc, 'msg', exc)})",
@@ -46,6 +52,49 @@ def _read(path: Path, *, required: bool = False, verb: str = "grid") -> Any:
             field="(root)",
             fix=f"rerun specmap {verb} to rewrite the file",
         ) from None
+
+
+REQUIRED: dict[str, tuple[tuple[str, type | tuple[type, ...] | None], ...]] = {
+    "grid_f.json": (("contours", list),),
+    "grid_g.json": (("contours", list),),
+    "special.json": (("counts", dict), ("components", list), ("total_area", None)),
+    "special.geojson": (("features", list),),
+    "distance.json": (("value", None), ("tolerance", None)),
+    "summary.json": (("runs", None),),
+}
+"""Keys the report needs in each result file (``None``: any JSON value)."""
+
+
+def _kind(value: Any) -> str:
+    return {dict: "object", list: "list", str: "string", type(None): "null"}.get(type(value), type(value).__name__)
+
+
+def _checked(data: Any, path: Path, verb: str) -> Any:
+    """Refuse a result file that is not an object or lacks a key the report needs."""
+    if data is None:
+        return None
+    fix = f"rerun specmap {verb} to rewrite {path.name}"
+    if not isinstance(data, dict):
+        raise ResultsError(f"{path.name} is a JSON {_kind(data)}, not an object", file=str(path),
+                           field="(root)", fix=fix)
+    for key, typ in REQUIRED.get(path.name, ()):
+        if key not in data:
+            raise ResultsError(f"missing field '{key}'", file=str(path), field=key, fix=fix)
+        if typ is not None and not isinstance(data[key], typ):
+            raise ResultsError(f"field '{key}' is a {_kind(data[key])}, not a {_kind(typ())}",
+                               file=str(path), field=key, fix=fix)
+    return data
+
+
+def _runs(path: Path) -> list[dict[str, Any]]:
+    """The records of ``runs.jsonl``; every line must be a JSON object."""
+    runs = []
+    for n, rec in enumerate(read_jsonl(path), start=1):
+        if not isinstance(rec, dict):
+            raise ResultsError(f"record {n} is a JSON {_kind(rec)}, not an object", file=str(path),
+                               field=f"line {n}", fix="rerun specmap perturb to rewrite runs.jsonl")
+        runs.append(rec)
+    return runs
 
 
 def load_results(result_dir: str | Path) -> dict[str, Any]:
@@ -99,7 +148,7 @@ def load_results(result_dir: str | Path) -> dict[str, Any]:
     }
     summary = _read(root / "perturb" / "summary.json", verb="perturb")
     if summary is not None:
-        out["perturb"] = {"summary": summary, "runs": list(read_jsonl(root / "perturb" / "runs.jsonl"))}
+        out["perturb"] = {"summary": summary, "runs": _runs(root / "perturb" / "runs.jsonl")}
     out["stages"] = {
         "grids": out["grid_f"] is not None or out["grid_g"] is not None,
         "special": out["special"] is not None,
