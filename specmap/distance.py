@@ -1457,9 +1457,11 @@ def matching_distance(shape_f, shape_g, *, method: str = "both", degrees: Iterab
     top = by_degree[kmax]
 
     # audits
-    audit: dict[str, Any] = {"theorem_gap": False, "gap": 0.0, "line": None, "degree": None,
+    # theorem_gap / gap stay None ("not run") unless both computations ran
+    audit: dict[str, Any] = {"theorem_gap": None, "gap": None, "line": None, "degree": None,
                              "position": None, "upper_bound": upper, "upper_bound_kind": upper_kind}
     if dense is not None and red is not None:
+        audit.update(theorem_gap=False, gap=0.0)
         # certified degrees against their dense values, and the max over degrees
         gaps = [(dense["best"][j][0] - by_degree[k]["value"], dense["best"][j][1], k)
                 for j, k in enumerate(degrees) if by_degree[k]["certified"]]

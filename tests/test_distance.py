@@ -100,6 +100,14 @@ def test_shift_by_c_c_gives_c_on_slope_one():
     assert red.value == pytest.approx(c, abs=1e-9)
     assert red.reached_on == "slope-one"
     assert red.at[0] == 0.5
+    # only one computation ran, so the theorem audit did not run: null, read as "not run"
+    # (issue 14: it used to say theorem_gap false, gap 0.0)
+    assert red.audit["theorem_gap"] is None and red.audit["gap"] is None
+    from specmap.report.findings import theorem_audit_sentence
+
+    assert "not run" in theorem_audit_sentence(red.to_json())
+    dense = matching_distance(sf, sg, method="dense", degrees=(0,), dense_resolution=5)
+    assert dense.audit["theorem_gap"] is None
 
 
 def test_stability_on_random_perturbed_pairs():

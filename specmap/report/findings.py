@@ -100,6 +100,9 @@ def theorem_audit_sentence(d: dict[str, Any]) -> str | None:
         return (f"{WARNING} the dense sweep exceeds the reduced search by {fmt(audit.get('gap'))} at "
                 f"(a, b) = {at}: the computation disagrees with the theorem's reduction here"
                 f"{_tol(d.get('tolerance'))}.")
+    if "theorem_gap" in audit and audit["theorem_gap"] is None:
+        return ("Theorem audit: not run (it compares the dense sweep with the reduced search; "
+                "run specmap distance --method both).")
     if "theorem_gap" in audit:
         return (f"The dense sweep does not exceed the reduced search beyond the tolerance "
                 f"(gap {fmt(audit.get('gap'))}){_tol(d.get('tolerance'))}.")
