@@ -7,14 +7,25 @@ standard error and exit status 2; Ctrl-C exits 130 and keeps finished files.
 from __future__ import annotations
 
 import argparse
+import signal
 import sys
 from pathlib import Path
 
 from specmap import __version__
 from specmap.errors import SpecmapInputError, StudyError
+from specmap.report.fmt import plural
 
 EXIT_USER = 2
 EXIT_INTERRUPT = 130
+EXIT_TERMINATED = 143  # 128 + SIGTERM, the shell's convention
+
+
+class Terminated(KeyboardInterrupt):
+    """SIGTERM, handled like Ctrl-C: the same clean-up paths run (workers ended, files kept)."""
+
+
+def _on_sigterm(signum: int, frame: object) -> None:
+    raise Terminated()
 
 
 def _degrees(text: str) -> tuple[int, ...]:
@@ -117,7 +128,8 @@ def run(argv: list[str] | None = None) -> int:
         sr.write_grids()
         sr.record()
         c = js["counts"]
-        print(f"special set: {c['curve']} curves, {c['patch']} patches, {c['point']} points; "
+        kinds = ", ".join(plural(int(c[k]), k, "patches" if k == "patch" else None) for k in ("curve", "patch", "point"))
+        print(f"special set: {kinds} (connected components); "
               f"area fraction {js['area_fraction']:.4g} -> {sr.out / 'special.json'}")
     elif args.verb == "distance":
         if study.grid_only:
@@ -142,12 +154,18 @@ def run(argv: list[str] | None = None) -> int:
 
 
 def main(argv: list[str] | None = None) -> None:
+    previous = signal.signal(signal.SIGTERM, _on_sigterm)
     try:
         code = run(argv)
     except SpecmapInputError as exc:
         print(f"specmap: error: {exc.one_line()}", file=sys.stderr)
         code = EXIT_USER
+    except Terminated:
+        print("specmap: terminated (SIGTERM); finished results are kept", file=sys.stderr)
+        code = EXIT_TERMINATED
     except KeyboardInterrupt:
         print("specmap: interrupted; finished results are kept", file=sys.stderr)
         code = EXIT_INTERRUPT
+    finally:
+        signal.signal(signal.SIGTERM, previous)
     sys.exit(code)
