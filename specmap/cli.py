@@ -7,6 +7,7 @@ standard error and exit status 2; Ctrl-C exits 130 and keeps finished files.
 from __future__ import annotations
 
 import argparse
+import os
 import signal
 import sys
 from pathlib import Path
@@ -101,7 +102,7 @@ def demo_study_path() -> Path:
 def run(argv: list[str] | None = None) -> int:
     args = build_parser().parse_args(argv)
     from specmap.pipeline import StudyRun
-    from specmap.study import load_study
+    from specmap.study import check_flag, load_study
 
     show = not args.quiet
     if args.verb == "report":
@@ -118,6 +119,15 @@ def run(argv: list[str] | None = None) -> int:
         print(f"demo report: {pdf}")
         return 0
     study = load_study(args.study)
+    if args.verb == "map":
+        check_flag(str(study.path), "map.resolution", "--resolution", args.resolution)
+    if args.verb == "perturb":
+        check_flag(str(study.path), "perturb.runs", "--runs", args.runs)
+    cores = os.cpu_count() or 1
+    if getattr(args, "jobs", 1) > cores and not getattr(args, "cluster", None):
+        print(f"specmap: note: --jobs {args.jobs} is more than this machine's {cores} cores; using {cores}",
+              file=sys.stderr)
+        args.jobs = cores
     sr = StudyRun(study, args.out, show_progress=show)
     if args.verb == "grid":
         counts = sr.write_grids()

@@ -48,6 +48,27 @@ from specmap.strip import Window
 SURFACES = {"ellipsoid": 3, "torus": 2}
 MESH_SUFFIXES = (".ply", ".off", ".obj")
 TABLES = {"study", "constants", "f", "g", "window", "map", "distance", "perturb"}
+# Integer settings that a command-line flag can also set: one range for the file and the flag.
+LIMITS: dict[str, tuple[int, int]] = {"map.resolution": (5, 4001), "perturb.runs": (1, 100_000)}
+
+
+def check_flag(study_path: str, field: str, flag: str, value: int | None) -> int | None:
+    """Check a command-line override against the same range as the study-file field.
+
+    Raises
+    ------
+    StudyError
+        Naming the study file, the flag and the field, when ``value`` is out of range.
+    """
+    if value is None:
+        return None
+    lo, hi = LIMITS[field]
+    if not lo <= value <= hi:
+        raise StudyError(f"{flag} {value} is out of range", file=study_path, field=f"{flag} ({field})",
+                         fix=f"give an integer in [{lo}, {hi}]")
+    return value
+
+
 SHAPE_KEYS = {"surface", "radii", "map", "resolution", "mesh", "fields", "grid", "simplify", "route"}
 
 
@@ -304,7 +325,8 @@ def parse_study(data: dict[str, Any], path: Path) -> Study:
     mt = r.table(data, "map", False, {"pairs", "resolution", "method"})
     mspec = MapSpec(
         pairs=r.choice(mt, "map", "pairs", "all", ("all", "roles")),
-        resolution=r.integer(mt, "map", "resolution", 121, lo=5, hi=4001),
+        resolution=r.integer(mt, "map", "resolution", 121, lo=LIMITS["map.resolution"][0],
+                             hi=LIMITS["map.resolution"][1]),
         method=r.choice(mt, "map", "method", "sweep", ("sweep", "naive")),
     )
     dt = r.table(data, "distance", False, {"method", "degrees", "dense_resolution"})
@@ -338,7 +360,7 @@ def parse_study(data: dict[str, Any], path: Path) -> Study:
         pspec = PerturbSpec(
             model=model,
             size=r.number(pt, "perturb", "size", 1e-3, positive=True),
-            runs=r.integer(pt, "perturb", "runs", 20, lo=1, hi=100_000),
+            runs=r.integer(pt, "perturb", "runs", 20, lo=LIMITS["perturb.runs"][0], hi=LIMITS["perturb.runs"][1]),
             seed=r.integer(pt, "perturb", "seed", seed),
             sizes=sizes,
             distance=dist,

@@ -130,3 +130,27 @@ def test_rank_deficient_linear_map(route: str, tmp_path: Path) -> None:
     proc = run_cli(["grid", "s.toml"], tmp_path)
     assert_user_error(proc, "f.map", "independent")
     assert not (tmp_path / "results").exists()
+
+
+@pytest.mark.parametrize(
+    "args, field",
+    [
+        (["map", "--resolution", "2"], "--resolution"),  # the file's minimum is 5
+        (["map", "--resolution", "20000"], "--resolution"),  # above the file's maximum 4001
+    ],
+)
+def test_flags_obey_the_study_file_limits(tmp_path: Path, args: list[str], field: str) -> None:
+    # issue 14: one validation path for file and flag values (limits from specmap.study.LIMITS)
+    study = tmp_path / "s.toml"
+    study.write_text(HEAD + GOOD_F + GOOD_G)
+    proc = run_cli([args[0], str(study), *args[1:], "--out", str(tmp_path / "o")], tmp_path)
+    assert_user_error(proc, field)
+    assert not (tmp_path / "o").exists()
+
+
+def test_runs_flag_obeys_the_study_file_limit(tmp_path: Path) -> None:
+    # issue 14: --runs 1000000000 used to end in a MemoryError
+    study = tmp_path / "s.toml"
+    study.write_text(HEAD + GOOD_F + GOOD_G + "[perturb]\nsize = 0.01\nruns = 2\n")
+    proc = run_cli(["perturb", str(study), "--runs", "1000000000", "--out", str(tmp_path / "o")], tmp_path)
+    assert_user_error(proc, "--runs")
