@@ -59,8 +59,13 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--quiet", action="store_true", help="no progress bars")
     sub = p.add_subparsers(dest="verb", required=True, metavar="VERB")
 
+    def add_quiet(sp: argparse.ArgumentParser) -> None:
+        # accepted after the verb too; SUPPRESS keeps the global value when absent here
+        sp.add_argument("--quiet", action="store_true", default=argparse.SUPPRESS, help="no progress bars")
+
     def study_cmd(name: str, help_: str) -> argparse.ArgumentParser:
         sp = sub.add_parser(name, help=help_, description=help_)
+        add_quiet(sp)
         sp.add_argument("study", help="study file (.toml)")
         sp.add_argument("--out", help="result folder (default results/<study name>)")
         return sp
@@ -69,22 +74,32 @@ def build_parser() -> argparse.ArgumentParser:
     sp = study_cmd("map", "map the special set in the parameter strip")
     sp.add_argument("--pairs", choices=["all", "roles"], help="which ties to map (default: study's)")
     sp.add_argument("--resolution", type=_positive, help="sample nodes per side of the window")
-    sp.add_argument("--method", choices=["sweep", "naive"], help="detection method (naive = reference)")
+    sp.add_argument("--method", choices=["sweep", "naive"],
+                    help="detection method: sweep (fast) or naive (slow reference); default: study's")
     sp = study_cmd("distance", "compute the matching distance and where it is reached")
-    sp.add_argument("--method", choices=["reduced", "dense", "both"])
+    sp.add_argument("--method", choices=["reduced", "dense", "both"],
+                    help="reduced (search on the special set), dense (sweep of the window, the audit) "
+                    "or both; default: study's")
     sp.add_argument("--degrees", type=_degrees, help="homology degrees, e.g. 0,1,2")
-    sp.add_argument("--jobs", type=_positive, default=1, help="parallel slice workers")
+    sp.add_argument("--jobs", type=_positive, default=1,
+                    help="parallel slice workers (default 1; capped at the core count)")
     sp = study_cmd("perturb", "run a perturbation study of the special set")
-    sp.add_argument("--runs", type=_positive)
-    sp.add_argument("--jobs", type=_positive, default=1)
+    sp.add_argument("--runs", type=_positive,
+                    help="number of perturbed runs (default: study's perturb.runs, within its limits)")
+    sp.add_argument("--jobs", type=_positive, default=1,
+                    help="parallel run workers (default 1; capped at the core count unless --cluster)")
     sp.add_argument("--cluster", help="Dask scheduler address, e.g. tcp://127.0.0.1:8786")
     sp = sub.add_parser("report", help="build the PDF report of a result folder")
+    add_quiet(sp)
     sp.add_argument("dir", help="result folder")
-    sp.add_argument("--out", help="PDF path (default DIR/report.pdf)")
+    sp.add_argument("--out", help="PDF path (default DIR/report.pdf); an existing file needs --force")
+    sp.add_argument("--force", action="store_true", help="overwrite an existing file given as --out")
     sp = sub.add_parser("demo", help="run the shipped demo study end to end")
+    add_quiet(sp)
     sp.add_argument("--out", help="result folder (default results/demo)")
     sp.add_argument("--pdf", default="reports/demo.pdf", help="report path (default reports/demo.pdf)")
-    sp.add_argument("--jobs", type=_positive, default=2)
+    sp.add_argument("--jobs", type=_positive, default=2,
+                    help="parallel workers for the distance and perturbation stages (default 2)")
     sp.add_argument("--quick", action="store_true", help="smaller settings (for CI)")
     return p
 
@@ -99,6 +114,21 @@ def demo_study_path() -> Path:
                      fix="run from a clone of the specmap repository")
 
 
+def check_study_path(path: str) -> None:
+    """One line for a study path that is a folder or cannot be read (before the TOML is parsed)."""
+    p = Path(path)
+    if p.is_dir():
+        raise StudyError("is a folder, not a study file", file=str(p), field="(file)",
+                         fix="give the path of a .toml study file inside it (see studies/)")
+    if p.is_file():
+        try:
+            with p.open("rb"):
+                pass
+        except PermissionError:
+            raise StudyError("cannot be read (permission denied)", file=str(p), field="(file)",
+                             fix="make the file readable (chmod u+r) or copy it somewhere readable") from None
+
+
 def run(argv: list[str] | None = None) -> int:
     args = build_parser().parse_args(argv)
     from specmap.pipeline import StudyRun
@@ -108,7 +138,7 @@ def run(argv: list[str] | None = None) -> int:
     if args.verb == "report":
         from specmap.report.pdf import build_report
 
-        pdf = build_report(args.dir, args.out)
+        pdf = build_report(args.dir, args.out, overwrite=args.force or args.out is None)
         print(f"report: {pdf}")
         return 0
     if args.verb == "demo":
@@ -118,6 +148,7 @@ def run(argv: list[str] | None = None) -> int:
                        show_progress=show)
         print(f"demo report: {pdf}")
         return 0
+    check_study_path(args.study)
     study = load_study(args.study)
     if args.verb == "map":
         check_flag(str(study.path), "map.resolution", "--resolution", args.resolution)
@@ -129,6 +160,7 @@ def run(argv: list[str] | None = None) -> int:
               file=sys.stderr)
         args.jobs = cores
     sr = StudyRun(study, args.out, show_progress=show)
+    sr.check_out()
     if args.verb == "grid":
         counts = sr.write_grids()
         sr.record()

@@ -10,6 +10,7 @@ This is the I/O edge: the computations it calls are pure functions.
 from __future__ import annotations
 
 import datetime as _dt
+import os
 import shlex
 import sys
 from functools import cached_property
@@ -17,6 +18,7 @@ from pathlib import Path
 from typing import Any
 
 from specmap import __version__
+from specmap.errors import ResultsError
 from specmap.io import read_json, write_json
 from specmap.progress import Progress
 from specmap.strip import Window, default_window
@@ -25,6 +27,24 @@ from specmap.study import Study
 
 def default_out(study: Study) -> Path:
     return Path("results") / study.name
+
+
+def check_out_dir(out: Path, option: str = "--out") -> None:
+    """Create the folder ``out`` if needed; one-line :class:`ResultsError` if it cannot be used."""
+    fix = f"give {option} a folder you can write (a new path or an existing folder)"
+    if out.exists() and not out.is_dir():
+        raise ResultsError("is an existing file, not a folder", file=str(out), field=option, fix=fix)
+    for parent in out.parents:
+        if parent.exists() and not parent.is_dir():
+            raise ResultsError(f"lies under {parent}, which is a file, not a folder", file=str(out),
+                               field=option, fix=fix)
+    try:
+        out.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise ResultsError(f"cannot be created ({exc.strerror or exc})", file=str(out), field=option,
+                           fix=fix) from None
+    if not os.access(out, os.W_OK | os.X_OK):
+        raise ResultsError("is a folder you cannot write (read-only)", file=str(out), field=option, fix=fix)
 
 
 class StudyRun:
@@ -43,6 +63,16 @@ class StudyRun:
         self.study = study
         self.out = Path(out) if out is not None else default_out(study)
         self.show_progress = show_progress
+
+    def check_out(self) -> None:
+        """Make sure the result folder exists and can be written, before any work.
+
+        Raises
+        ------
+        ResultsError
+            ``--out`` is an existing file, lies under a file, or is not writable.
+        """
+        check_out_dir(self.out)
 
     def progress(self, label: str) -> Progress:
         return Progress(label, enabled=self.show_progress)

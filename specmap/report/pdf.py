@@ -17,6 +17,7 @@ Text pages flow onto continuation pages, so nothing is clipped or overlaps.
 from __future__ import annotations
 
 import datetime as _dt
+import os
 from collections.abc import Callable
 from pathlib import Path
 from typing import Any
@@ -364,7 +365,31 @@ def _methods_page(pg: Pager, res: dict[str, Any]) -> None:
 
 
 # -- entry point -------------------------------------------------------------------
-def build_report(result_dir: str | Path, out_pdf: str | Path | None = None) -> Path:
+def _check_out_pdf(out: Path, overwrite: bool) -> None:
+    """Refuse, in one line, a PDF path that is a folder, an existing file (unless ``overwrite``),
+    lies under a file, or sits in a folder that cannot be written."""
+    if out.is_dir():
+        raise ResultsError("is a folder, not a PDF file", file=str(out), field="--out",
+                           fix=f"give --out a file path, e.g. {out / 'report.pdf'}")
+    if out.exists() and not overwrite:
+        raise ResultsError("already exists", file=str(out), field="--out",
+                           fix="give --out a new path, or add --force to overwrite it")
+    for parent in out.parents:
+        if parent.exists() and not parent.is_dir():
+            raise ResultsError(f"lies under {parent}, which is a file, not a folder", file=str(out),
+                               field="--out", fix="give --out a path in a folder")
+    try:
+        out.parent.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise ResultsError(f"its folder cannot be created ({exc.strerror or exc})", file=str(out),
+                           field="--out", fix="give --out a path in a folder you can write") from None
+    if not os.access(out.parent, os.W_OK | os.X_OK):
+        raise ResultsError(f"its folder {out.parent} cannot be written (read-only)", file=str(out),
+                           field="--out", fix="give --out a path in a folder you can write")
+
+
+def build_report(result_dir: str | Path, out_pdf: str | Path | None = None, *,
+                 overwrite: bool = True) -> Path:
     """Build the PDF report and the PNG figures of a result folder.
 
     Parameters
@@ -373,6 +398,9 @@ def build_report(result_dir: str | Path, out_pdf: str | Path | None = None) -> P
         Folder with ``study.json`` and the result files of the stages run.
     out_pdf : str or Path, optional
         Output path; default ``<result_dir>/report.pdf``.
+    overwrite : bool
+        Replace an existing file at the output path (the CLI passes ``False`` for an
+        explicit ``--out`` without ``--force``).
 
     Returns
     -------
@@ -383,7 +411,9 @@ def build_report(result_dir: str | Path, out_pdf: str | Path | None = None) -> P
     Raises
     ------
     ResultsError
-        If the folder or ``study.json`` is missing, or a result file is malformed.
+        If the folder or ``study.json`` is missing, or a result file is malformed;
+        or the output path is a folder, lies under a file, is not writable, or exists
+        and ``overwrite`` is false.
 
     Examples
     --------
@@ -393,7 +423,7 @@ def build_report(result_dir: str | Path, out_pdf: str | Path | None = None) -> P
     res = load_results(result_dir)
     root: Path = res["dir"]
     out = Path(out_pdf) if out_pdf is not None else root / "report.pdf"
-    out.parent.mkdir(parents=True, exist_ok=True)
+    _check_out_pdf(out, overwrite)
     stages = res["stages"]
     figs = root / "figures"
     if stages["grids"]:
@@ -412,19 +442,23 @@ def build_report(result_dir: str | Path, out_pdf: str | Path | None = None) -> P
                  figs / "perturb.png")
     name = str(res["study"].get("name", root.name))
     tmp = out.with_name(f".{out.name}.tmp")
-    with PdfPages(tmp, metadata={"Title": f"specmap report: {name}", "Creator": "specmap"}) as pdf:
-        pg = Pager(pdf, name)
-        _cover(pg, res)
-        if stages["grids"]:
-            _grids_page(pg, res)
-        if stages["special"]:
-            _special_page(pg, res)
-        if stages["distance"]:
-            _distance_page(pg, res)
-        if stages["perturb"]:
-            _perturb_page(pg, res)
-        _findings_page(pg, res)
-        _methods_page(pg, res)
-        pg.close()
-    tmp.replace(out)
+    try:
+        with PdfPages(tmp, metadata={"Title": f"specmap report: {name}", "Creator": "specmap"}) as pdf:
+            pg = Pager(pdf, name)
+            _cover(pg, res)
+            if stages["grids"]:
+                _grids_page(pg, res)
+            if stages["special"]:
+                _special_page(pg, res)
+            if stages["distance"]:
+                _distance_page(pg, res)
+            if stages["perturb"]:
+                _perturb_page(pg, res)
+            _findings_page(pg, res)
+            _methods_page(pg, res)
+            pg.close()
+        tmp.replace(out)
+    except BaseException:
+        tmp.unlink(missing_ok=True)
+        raise
     return out

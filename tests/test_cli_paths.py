@@ -1,0 +1,153 @@
+"""Bad paths give one line, exit status 2, no traceback; ``--quiet`` after the verb; option help.
+
+Source of each expectation: the project's error contract, issue 14 section 2
+("--out that is a file, under a file, or read-only; an unreadable study ...;
+report --out a directory (and it leaves .NAME.tmp behind); report silently
+overwrites any existing file given as --out"; "a directory given as study is
+'file not found'"). Messages are checked for what they must name, not wording.
+"""
+
+from __future__ import annotations
+
+import importlib.util
+import os
+import subprocess
+import sys
+from pathlib import Path
+
+import pytest
+
+HERE = Path(__file__).resolve().parent
+
+
+def _load(name: str):
+    spec = importlib.util.spec_from_file_location(f"_specmap_{name}", HERE / f"{name}.py")
+    mod = importlib.util.module_from_spec(spec)
+    assert spec.loader is not None
+    spec.loader.exec_module(mod)
+    return mod
+
+
+_errors = _load("test_cli_errors")
+run_cli, assert_user_error = _errors.run_cli, _errors.assert_user_error
+STUDY_TEXT = _errors.HEAD + _errors.GOOD_F + _errors.GOOD_G
+make_folder = _load("test_report").make_folder
+
+
+def _study(tmp_path: Path) -> Path:
+    p = tmp_path / "s.toml"
+    p.write_text(STUDY_TEXT)
+    return p
+
+
+def _skip_if_root() -> None:
+    if hasattr(os, "geteuid") and os.geteuid() == 0:
+        pytest.skip("running as root: permissions do not stop root")
+
+
+# -- 1. --out of a study verb, and the study path ---------------------------------
+def test_out_is_existing_file(tmp_path: Path) -> None:
+    (tmp_path / "taken").write_text("x")
+    proc = run_cli(["grid", str(_study(tmp_path)), "--out", "taken"], tmp_path)
+    assert_user_error(proc, "--out", "taken", "folder")
+    assert (tmp_path / "taken").read_text() == "x"
+
+
+def test_out_under_a_file(tmp_path: Path) -> None:
+    (tmp_path / "afile").write_text("x")
+    proc = run_cli(["grid", str(_study(tmp_path)), "--out", "afile/res"], tmp_path)
+    assert_user_error(proc, "--out", "afile", "folder")
+
+
+def test_out_read_only_folder(tmp_path: Path) -> None:
+    _skip_if_root()
+    ro = tmp_path / "ro"
+    ro.mkdir()
+    ro.chmod(0o555)
+    try:
+        proc = run_cli(["grid", str(_study(tmp_path)), "--out", "ro"], tmp_path)
+        assert_user_error(proc, "--out", "ro", "read-only")
+        proc = run_cli(["grid", str(_study(tmp_path)), "--out", "ro/sub"], tmp_path)
+        assert_user_error(proc, "--out", "ro/sub")
+    finally:
+        ro.chmod(0o755)
+
+
+def test_study_is_a_folder(tmp_path: Path) -> None:
+    (tmp_path / "studydir").mkdir()
+    proc = run_cli(["grid", "studydir"], tmp_path)
+    assert_user_error(proc, "studydir", "folder")
+    assert "not found" not in proc.stderr
+
+
+def test_study_unreadable(tmp_path: Path) -> None:
+    _skip_if_root()
+    p = _study(tmp_path)
+    p.chmod(0o000)
+    try:
+        proc = run_cli(["grid", str(p)], tmp_path)
+        assert_user_error(proc, "s.toml", "permission denied")
+    finally:
+        p.chmod(0o644)
+
+
+# -- 2. report --out ----------------------------------------------------------------
+def test_report_out_is_a_folder_no_tmp_left(tmp_path: Path) -> None:
+    res = make_folder(tmp_path / "res")
+    target = tmp_path / "pdfdir"
+    target.mkdir()
+    proc = run_cli(["report", str(res), "--out", str(target)], tmp_path)
+    assert_user_error(proc, "--out", "folder")
+    assert not list(tmp_path.glob(".*.tmp")) and not list(target.glob(".*.tmp"))
+    assert list(target.iterdir()) == []
+
+
+def test_report_out_existing_file_needs_force(tmp_path: Path) -> None:
+    res = make_folder(tmp_path / "res")
+    target = tmp_path / "old.pdf"
+    target.write_text("keep me")
+    proc = run_cli(["report", str(res), "--out", str(target)], tmp_path)
+    assert_user_error(proc, "--out", "--force")
+    assert target.read_text() == "keep me"
+    proc = run_cli(["report", str(res), "--out", str(target), "--force"], tmp_path)
+    assert proc.returncode == 0, proc.stderr
+    assert target.read_bytes().startswith(b"%PDF")
+    assert not list(tmp_path.glob(".*.tmp"))
+
+
+def test_report_out_under_a_file(tmp_path: Path) -> None:
+    res = make_folder(tmp_path / "res")
+    (tmp_path / "afile").write_text("x")
+    proc = run_cli(["report", str(res), "--out", str(tmp_path / "afile" / "r.pdf")], tmp_path)
+    assert_user_error(proc, "--out", "afile")
+
+
+# -- 3. --quiet after the verb --------------------------------------------------------
+def test_quiet_after_verb(tmp_path: Path) -> None:
+    from specmap.cli import build_parser
+
+    p = build_parser()
+    for verb in (["grid", "s.toml"], ["map", "s.toml"], ["distance", "s.toml"], ["perturb", "s.toml"],
+                 ["report", "d"], ["demo"]):
+        assert p.parse_args([*verb, "--quiet"]).quiet is True, verb
+        assert p.parse_args(["--quiet", *verb]).quiet is True, verb
+        assert p.parse_args(verb).quiet is False, verb
+    res = make_folder(tmp_path / "res")
+    proc = subprocess.run([sys.executable, "-m", "specmap", "report", str(res), "--quiet"], cwd=tmp_path,
+                          capture_output=True, text=True, timeout=300)
+    assert proc.returncode == 0, proc.stderr
+
+
+# -- 4. help for --runs, --jobs, --method ---------------------------------------------
+def test_help_for_runs_jobs_method() -> None:
+    from specmap.cli import build_parser
+
+    p = build_parser()
+    sub = next(a for a in p._actions if a.dest == "verb")
+    seen = 0
+    for name, sp in sub.choices.items():
+        for act in sp._actions:
+            if act.dest in ("runs", "jobs", "method"):
+                seen += 1
+                assert act.help and act.help.strip(), (name, act.dest)
+    assert seen >= 5
