@@ -30,21 +30,22 @@ def default_out(study: Study) -> Path:
 
 
 def check_out_dir(out: Path, option: str = "--out") -> None:
-    """Create the folder ``out`` if needed; one-line :class:`ResultsError` if it cannot be used."""
+    """One-line :class:`ResultsError` if ``out`` cannot become a result folder (nothing is created)."""
     fix = f"give {option} a folder you can write (a new path or an existing folder)"
     if out.exists() and not out.is_dir():
         raise ResultsError("is an existing file, not a folder", file=str(out), field=option, fix=fix)
-    for parent in out.parents:
-        if parent.exists() and not parent.is_dir():
-            raise ResultsError(f"lies under {parent}, which is a file, not a folder", file=str(out),
-                               field=option, fix=fix)
-    try:
-        out.mkdir(parents=True, exist_ok=True)
-    except OSError as exc:
-        raise ResultsError(f"cannot be created ({exc.strerror or exc})", file=str(out), field=option,
-                           fix=fix) from None
-    if not os.access(out, os.W_OK | os.X_OK):
-        raise ResultsError("is a folder you cannot write (read-only)", file=str(out), field=option, fix=fix)
+    # the nearest existing folder must be writable: out itself, or the ancestor it will be made in
+    base = out
+    while not base.exists():
+        if base.parent == base:
+            break
+        base = base.parent
+    if base.exists() and not base.is_dir():
+        raise ResultsError(f"lies under {base}, which is a file, not a folder", file=str(out),
+                           field=option, fix=fix)
+    if base.exists() and not os.access(base, os.W_OK | os.X_OK):
+        where = "is a folder" if base == out else f"would be made in {base}, a folder"
+        raise ResultsError(f"{where} you cannot write (read-only)", file=str(out), field=option, fix=fix)
 
 
 class StudyRun:
@@ -65,7 +66,7 @@ class StudyRun:
         self.show_progress = show_progress
 
     def check_out(self) -> None:
-        """Make sure the result folder exists and can be written, before any work.
+        """Check, before any work, that the result folder can be made and written.
 
         Raises
         ------
