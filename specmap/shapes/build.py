@@ -53,12 +53,14 @@ def build_shape(spec, study) -> Shape:
                      meta={"resolution": spec.resolution, "vertices": len(V), "route": spec.route})
     from specmap.shapes.meshes import read_mesh
 
-    V, T, fields = read_mesh(spec.path, fields=spec.fields)
+    hygiene: dict = {}
+    V, T, fields = read_mesh(spec.path, fields=spec.fields, counts=hygiene)
     values = fmap.values(V) if fmap is not None else fields
     _check_values(values, str(spec.path) if fmap is None else file,
                   f"{label}.fields" if fmap is None else f"{label}.map")
     return Shape(label, "mesh", V, T, values, fmap=fmap, description=spec.describe(),
-                 meta={"path": str(spec.path), "vertices": len(V), "simplify": spec.simplify})
+                 meta={"path": str(spec.path), "vertices": len(V), "simplify": spec.simplify,
+                       "hygiene": hygiene})
 
 
 def _check_values(values: np.ndarray, file: str, field: str) -> None:

@@ -271,19 +271,113 @@ def _direction(T: np.ndarray, face: np.ndarray, u: np.ndarray, v: np.ndarray) ->
     return np.where((iu + 1) % 3 == iv, 1, -1)
 
 
+def clean_mesh(
+    V: np.ndarray, T: np.ndarray, values: np.ndarray | None = None
+) -> tuple[np.ndarray, np.ndarray, np.ndarray | None, dict]:
+    """Mesh hygiene: drop loose vertices, merge exact duplicates, drop collapsed triangles.
+
+    In order: vertices on no triangle are dropped; vertices with exactly the
+    same coordinates are merged into the first of them (triangles remapped);
+    triangles that then repeat a vertex index (collapsed, zero area) are
+    dropped, and vertices left on no triangle by that are dropped too.
+    Triangles with three distinct but collinear vertices (zero area) are
+    counted and kept: they do not change the topology, and specmap's grids
+    only use vertex values. Per-vertex ``values`` follow the vertices (a
+    merged vertex keeps the values of its first copy).
+
+    Parameters
+    ----------
+    V : ndarray (n, 3)
+    T : ndarray (m, 3) of int, indices in range
+    values : ndarray (n, k), optional
+
+    Returns
+    -------
+    V, T, values
+        The cleaned mesh (``values`` None when not given).
+    counts : dict
+        ``loose_vertices``, ``duplicate_vertices``, ``collapsed_triangles``
+        (dropped), ``zero_area_triangles`` (kept, collinear), ``components``.
+    """
+    V = np.asarray(V, dtype=float)
+    T = np.asarray(T, dtype=np.int64).reshape(-1, 3)
+    vals = None if values is None else np.asarray(values, dtype=float)
+    n0 = len(V)
+    used = np.zeros(n0, dtype=bool)
+    used[T.reshape(-1)] = True
+    loose = int((~used).sum())
+    # merge exact duplicates among the used vertices
+    idx_used = np.nonzero(used)[0]
+    _, first, inverse = np.unique(V[idx_used], axis=0, return_index=True, return_inverse=True)
+    inverse = np.asarray(inverse).reshape(-1)
+    duplicates = int(len(idx_used) - len(first))
+    target = np.arange(n0)
+    target[idx_used] = idx_used[first][inverse]
+    T = target[T]
+    collapsed = (T[:, 0] == T[:, 1]) | (T[:, 1] == T[:, 2]) | (T[:, 0] == T[:, 2])
+    n_collapsed = int(collapsed.sum())
+    T = T[~collapsed]
+    keep = np.zeros(n0, dtype=bool)
+    keep[T.reshape(-1)] = True
+    # vertices left loose only by dropping collapsed triangles count as loose too
+    loose += int((used & ~keep).sum()) - duplicates
+    new_index = np.full(n0, -1, dtype=np.int64)
+    new_index[keep] = np.arange(int(keep.sum()))
+    V = V[keep]
+    T = new_index[T]
+    if vals is not None:
+        vals = vals[keep]
+    zero_area = 0
+    ncomp = 0
+    if len(T):
+        cross = np.cross(V[T[:, 1]] - V[T[:, 0]], V[T[:, 2]] - V[T[:, 0]])
+        zero_area = int((np.linalg.norm(cross, axis=1) == 0).sum())
+        m = len(T)
+        ev = np.concatenate([T[:, 0], T[:, 1]]), np.concatenate([T[:, 1], T[:, 2]])
+        graph = coo_matrix((np.ones(2 * m), ev), shape=(len(V), len(V)))
+        ncomp = int(connected_components(graph, directed=False)[0])
+    counts = {"loose_vertices": max(loose, 0), "duplicate_vertices": duplicates,
+              "collapsed_triangles": n_collapsed, "zero_area_triangles": zero_area,
+              "components": ncomp}
+    return V, T, vals, counts
+
+
+def hygiene_note(counts: dict, file: str | None = None) -> str | None:
+    """One line describing what :func:`clean_mesh` changed, or None if nothing."""
+    parts = []
+    if counts.get("loose_vertices"):
+        parts.append(f"dropped {counts['loose_vertices']} vertices on no triangle")
+    if counts.get("duplicate_vertices"):
+        parts.append(f"merged {counts['duplicate_vertices']} duplicate vertices")
+    if counts.get("collapsed_triangles"):
+        parts.append(f"dropped {counts['collapsed_triangles']} collapsed triangles")
+    if counts.get("zero_area_triangles"):
+        parts.append(f"kept {counts['zero_area_triangles']} zero-area (collinear) triangles")
+    if not parts:
+        return None
+    where = f"{file}: " if file else ""
+    return f"note: {where}mesh cleaned: " + "; ".join(parts)
+
+
 def read_mesh(
-    path: str | Path, *, fields: tuple[str, str] | None = None
+    path: str | Path, *, fields: tuple[str, str] | None = None, counts: dict | None = None
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray | None]:
     """Read a closed triangle mesh (.ply, .off, .obj) and optionally two vertex fields.
 
-    The mesh is checked with :func:`check_closed_manifold`; an inconsistent
-    orientation of the triangles is repaired silently.
+    The mesh is first cleaned by :func:`clean_mesh` (loose vertices dropped,
+    exact duplicate vertices merged, collapsed triangles dropped; one note
+    line on stderr when anything changed), then checked with
+    :func:`check_closed_manifold`; an inconsistent orientation of the
+    triangles is repaired silently. Several components are accepted, each a
+    closed 2-manifold (a closed surface need not be connected).
 
     Parameters
     ----------
     path : str or Path
     fields : (str, str), optional
         Names of two per-vertex arrays (PLY vertex properties) used as f1, f2.
+    counts : dict, optional
+        Filled with the counts of :func:`clean_mesh`.
 
     Returns
     -------
@@ -354,7 +448,21 @@ def read_mesh(
                                 fix="give finite values at every vertex")
             cols.append(col)
         values = np.column_stack(cols)
+    if T.min() < 0 or T.max() >= len(V):
+        raise MeshError(f"triangle indices outside 0..{len(V) - 1}", file=file, field="mesh",
+                        fix="index existing vertices only")
+    V, T, values, found = clean_mesh(V, T, values)
+    if len(T) == 0:
+        raise MeshError("the mesh has no triangles of positive size", file=file, field="mesh",
+                        fix="give a closed surface made of triangles")
     check_closed_manifold(V, T, file=file, field="mesh")
+    if counts is not None:
+        counts.update(found)
+    note = hygiene_note(found, file)
+    if note:
+        import sys
+
+        print(note, file=sys.stderr)
     return V, orient_consistently(T), values
 
 
