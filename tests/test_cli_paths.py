@@ -151,3 +151,35 @@ def test_help_for_runs_jobs_method() -> None:
                 seen += 1
                 assert act.help and act.help.strip(), (name, act.dest)
     assert seen >= 5
+
+
+# -- the same checks in process, with denied permissions simulated (they run as root too) --
+def test_read_only_out_simulated(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    from specmap.errors import SpecmapInputError
+    from specmap.pipeline import check_out_dir
+    from specmap.report.pdf import _check_out_pdf
+
+    monkeypatch.setattr(os, "access", lambda *a, **k: False)
+    for path in (tmp_path, tmp_path / "new" / "sub"):
+        with pytest.raises(SpecmapInputError) as exc:
+            check_out_dir(path)
+        assert "--out" in exc.value.one_line() and "read-only" in exc.value.one_line()
+        assert not (tmp_path / "new").exists()
+    with pytest.raises(SpecmapInputError) as exc:
+        _check_out_pdf(tmp_path / "r.pdf", overwrite=False)
+    assert "--out" in exc.value.one_line() and "read-only" in exc.value.one_line()
+
+
+def test_unreadable_study_simulated(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    from specmap.cli import check_study_path
+    from specmap.errors import SpecmapInputError
+
+    p = _study(tmp_path)
+
+    def denied(self, *a, **k):
+        raise PermissionError(13, "Permission denied", str(self))
+
+    monkeypatch.setattr(Path, "open", denied)
+    with pytest.raises(SpecmapInputError) as exc:
+        check_study_path(str(p))
+    assert "s.toml" in exc.value.one_line() and "permission denied" in exc.value.one_line()
