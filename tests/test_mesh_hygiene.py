@@ -115,3 +115,25 @@ def test_open_and_nonmanifold_still_refused(tmp_path):
     write_mesh(path, V2, np.vstack([T1, T2]))
     with pytest.raises(MeshError, match="not a 2-manifold"):
         read_mesh(path)
+
+
+def test_hygiene_counts_reach_the_grid_json(tmp_path):
+    # issue 11 item 1: the counts of what was cleaned are kept in the grid's meta (grid_f.json)
+    import json
+    import subprocess
+    import sys
+
+    V, T = octahedron()
+    loose = np.array([[5.0, 5, 5], [6.0, 6, 6]])  # closed form: 2 loose vertices
+    V2 = np.vstack([V, loose])
+    for name in ("a", "b"):
+        values = np.c_[V2[:, 0] + 0.1 * V2[:, 2], V2[:, 1] - 0.2 * V2[:, 2] + (name == "b") * 0.3 * V2[:, 0]]
+        write_mesh(tmp_path / f"{name}.ply", V2, T, values)
+    study = tmp_path / "s.toml"
+    study.write_text('[study]\nname = "h"\nseed = 1\n[f]\nmesh = "a.ply"\nfields = ["f1", "f2"]\n'
+                     '[g]\nmesh = "b.ply"\nfields = ["f1", "f2"]\n')
+    proc = subprocess.run([sys.executable, "-m", "specmap", "--quiet", "grid", str(study), "--out",
+                           str(tmp_path / "o")], capture_output=True, text=True, timeout=300)
+    assert proc.returncode == 0, proc.stderr
+    meta = json.loads((tmp_path / "o" / "grid_f.json").read_text())["meta"]
+    assert meta["mesh_hygiene"]["loose_vertices"] == 2

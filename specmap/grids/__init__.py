@@ -7,6 +7,8 @@
 
 from __future__ import annotations
 
+import dataclasses
+
 from typing import TYPE_CHECKING
 
 from specmap.errors import StudyError
@@ -67,7 +69,11 @@ def pareto_grid(shape: Shape, *, simplify: float | None = None) -> Grid:
         from specmap.grids.piecewise import piecewise_grid
 
         s = shape.meta.get("simplify", 0.0) if simplify is None else simplify
-        return piecewise_grid(shape.vertices, shape.triangles, shape.values, label=label, simplify=s)
+        grid = piecewise_grid(shape.vertices, shape.triangles, shape.values, label=label, simplify=s)
+        hygiene = shape.meta.get("hygiene")
+        if hygiene:  # what reading the mesh cleaned (loose/duplicate vertices, collapsed triangles)
+            grid = dataclasses.replace(grid, meta={**grid.meta, "mesh_hygiene": dict(hygiene)})
+        return grid
     if route == "exact":
         from specmap.grids.exact import ellipsoid_linear_grid
 
