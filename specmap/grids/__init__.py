@@ -8,7 +8,6 @@
 from __future__ import annotations
 
 import dataclasses
-
 from typing import TYPE_CHECKING
 
 from specmap.errors import StudyError
