@@ -21,7 +21,7 @@ def to_plain(obj: Any) -> Any:
     """Convert numpy scalars/arrays and tuples to plain JSON types; inf/nan -> strings.
 
     JSON has no infinity: ``inf`` is written as the string ``"inf"`` (``"-inf"``,
-    ``"nan"``), and :func:`from_plain_float` reads it back.
+    ``"nan"``), and ``float()`` reads it back.
     """
     if isinstance(obj, dict):
         return {str(k): to_plain(v) for k, v in obj.items()}
@@ -41,11 +41,6 @@ def to_plain(obj: Any) -> Any:
     if isinstance(obj, Path):
         return str(obj)
     return obj
-
-
-def from_plain_float(x: Any) -> float:
-    """Inverse of :func:`to_plain` for one number (accepts "inf", "-inf", "nan")."""
-    return float(x)
 
 
 def _current_umask() -> int:

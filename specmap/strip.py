@@ -230,19 +230,3 @@ def _dense_polyline_parameter(pts: np.ndarray, a: np.ndarray, b: np.ndarray) -> 
         py = pts[k, 1] + t * (pts[k + 1, 1] - pts[k, 1])
     s = (a1 * (px - b1) + (1.0 - a1) * (py + b1)) / (a1 * a1 + (1.0 - a1) ** 2)
     return np.where(met, s, np.nan).reshape(shape)
-
-
-def line_parameters(contours: Sequence[Contour], a, b) -> np.ndarray:
-    """Stack of :func:`line_parameter` for many contours: shape (len(contours), *shape)."""
-    a = np.asarray(a, dtype=float)
-    b = np.asarray(b, dtype=float)
-    shape = np.broadcast_shapes(a.shape, b.shape)
-    out = np.empty((len(contours), *shape))
-    for i, c in enumerate(contours):
-        out[i] = line_parameter(c, a, b)
-    return out
-
-
-def push_coordinates(contours: Sequence[Contour], a, b) -> np.ndarray:
-    """Push coordinates min(a, 1-a) * s of every contour: shape (len(contours), *shape)."""
-    return line_parameters(contours, a, b) * push_scale(a)

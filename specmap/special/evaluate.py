@@ -99,11 +99,6 @@ def _extended(contour: Contour, a, b, kguess: np.ndarray | None = None):
     return out, met, k
 
 
-def _dense_rows(pts: np.ndarray, a: np.ndarray, b: np.ndarray) -> np.ndarray:
-    """:func:`specmap.strip.line_parameter` of a short proper polyline (same formulas, row by row)."""
-    return _rows(pts, a.reshape(-1), b.reshape(-1))[0].reshape(a.shape)
-
-
 def _finish(pts, a1, b1, k, g0, g1, met):
     xs, ys = pts[:, 0], pts[:, 1]
     with np.errstate(invalid="ignore", divide="ignore"):
