@@ -18,7 +18,7 @@ from pathlib import Path
 from typing import Any
 
 from specmap import __version__
-from specmap.errors import ResultsError
+from specmap.errors import ResultsError, SpecmapInputError
 from specmap.io import read_json, write_json
 from specmap.progress import Progress
 from specmap.strip import Window, default_window
@@ -90,7 +90,10 @@ class StudyRun:
         from specmap.grids import pareto_grid
 
         sf, sg = self.shapes
-        return pareto_grid(sf), pareto_grid(sg)
+        try:
+            return pareto_grid(sf), pareto_grid(sg)
+        except SpecmapInputError as exc:  # core errors name the field; the study file is known here
+            raise exc.located(file=str(self.study.path)) from None
 
     @cached_property
     def window(self) -> Window:

@@ -124,11 +124,11 @@ def test_rank_deficient_linear_map(route: str, tmp_path: Path) -> None:
     # map = ["x", "2*x"]: f2 = 2 f1, so the map is functionally dependent and outside the theory
     # (CEF19 needs independent components; the closed form of grids/exact.py needs rank(L D) = 2).
     # Whatever the route, the user gets one line naming f.map, not a ValueError traceback.
-    # TODO: the line should also name the study file once the pipeline attaches it.
+    # The pipeline attaches the study file to the core error.
     f = GOOD_F.replace('"y"]', '"2*x"]') + f'route = "{route}"\n'
     (tmp_path / "s.toml").write_text(HEAD + f + GOOD_G)
     proc = run_cli(["grid", "s.toml"], tmp_path)
-    assert_user_error(proc, "f.map", "independent")
+    assert_user_error(proc, "s.toml", "f.map", "independent")
     assert not (tmp_path / "results").exists()
 
 
