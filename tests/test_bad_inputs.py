@@ -11,30 +11,22 @@ import json
 import os
 import stat
 import subprocess
-import sys
 from pathlib import Path
 
 import pytest
 
 from specmap.errors import ExpressionError
 from specmap.expr import compile_expr
+from tests.test_cli_errors import assert_user_error as _one_line_error
+from tests.test_cli_errors import run_cli
 
 HEAD = '[study]\nname = "t"\nseed = 1\n'
 
 
-def run_cli(args: list[str], cwd: Path) -> subprocess.CompletedProcess:
-    return subprocess.run([sys.executable, "-m", "specmap", "--quiet", *args], cwd=cwd,
-                          capture_output=True, text=True, timeout=300)
-
-
 def assert_user_error(proc: subprocess.CompletedProcess, *needles: str) -> None:
-    assert proc.returncode == 2, proc.stderr
-    lines = [ln for ln in proc.stderr.splitlines() if ln.strip()]
-    assert len(lines) == 1, proc.stderr
-    assert "Traceback" not in proc.stderr
-    assert lines[0].startswith("specmap: error:"), lines[0]
-    for n in needles:
-        assert n in lines[0], (n, lines[0])
+    """The shared one-line check of tests/test_cli_errors.py, plus the line's prefix."""
+    _one_line_error(proc, *needles)
+    assert proc.stderr.strip().startswith("specmap: error:"), proc.stderr
 
 
 # --------------------------------------------------------------------------- 1. expressions
