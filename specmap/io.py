@@ -16,6 +16,8 @@ from typing import Any
 
 import numpy as np
 
+from specmap.errors import ResultsError
+
 
 def to_plain(obj: Any) -> Any:
     """Convert numpy scalars/arrays and tuples to plain JSON types; inf/nan -> strings.
@@ -123,3 +125,22 @@ def read_jsonl(path: str | Path) -> Iterator[dict[str, Any]]:
                 yield json.loads(raw)
             except json.JSONDecodeError:
                 continue
+
+
+def check_out_dir(out: Path, option: str = "--out") -> None:
+    """One-line :class:`ResultsError` if ``out`` cannot become a result folder (nothing is created)."""
+    fix = f"give {option} a folder you can write (a new path or an existing folder)"
+    if out.exists() and not out.is_dir():
+        raise ResultsError("is an existing file, not a folder", file=str(out), field=option, fix=fix)
+    # the nearest existing folder must be writable: out itself, or the ancestor it will be made in
+    base = out
+    while not base.exists():
+        if base.parent == base:
+            break
+        base = base.parent
+    if base.exists() and not base.is_dir():
+        raise ResultsError(f"lies under {base}, which is a file, not a folder", file=str(out),
+                           field=option, fix=fix)
+    if base.exists() and not os.access(base, os.W_OK | os.X_OK):
+        where = "is a folder" if base == out else f"would be made in {base}, a folder"
+        raise ResultsError(f"{where} you cannot write (read-only)", file=str(out), field=option, fix=fix)

@@ -10,7 +10,6 @@ This is the I/O edge: the computations it calls are pure functions.
 from __future__ import annotations
 
 import datetime as _dt
-import os
 import shlex
 import sys
 from functools import cached_property
@@ -18,8 +17,8 @@ from pathlib import Path
 from typing import Any
 
 from specmap import __version__
-from specmap.errors import ResultsError, SpecmapInputError
-from specmap.io import read_json, write_json
+from specmap.errors import SpecmapInputError
+from specmap.io import check_out_dir, read_json, write_json
 from specmap.progress import Progress
 from specmap.strip import Window, default_window
 from specmap.study import Study
@@ -27,25 +26,6 @@ from specmap.study import Study
 
 def default_out(study: Study) -> Path:
     return Path("results") / study.name
-
-
-def check_out_dir(out: Path, option: str = "--out") -> None:
-    """One-line :class:`ResultsError` if ``out`` cannot become a result folder (nothing is created)."""
-    fix = f"give {option} a folder you can write (a new path or an existing folder)"
-    if out.exists() and not out.is_dir():
-        raise ResultsError("is an existing file, not a folder", file=str(out), field=option, fix=fix)
-    # the nearest existing folder must be writable: out itself, or the ancestor it will be made in
-    base = out
-    while not base.exists():
-        if base.parent == base:
-            break
-        base = base.parent
-    if base.exists() and not base.is_dir():
-        raise ResultsError(f"lies under {base}, which is a file, not a folder", file=str(out),
-                           field=option, fix=fix)
-    if base.exists() and not os.access(base, os.W_OK | os.X_OK):
-        where = "is a folder" if base == out else f"would be made in {base}, a folder"
-        raise ResultsError(f"{where} you cannot write (read-only)", file=str(out), field=option, fix=fix)
 
 
 class StudyRun:

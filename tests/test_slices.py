@@ -320,12 +320,13 @@ def test_bottleneck_matches_brute_force_on_small_diagrams():
         assert bottleneck(d1, d2) == pytest.approx(brute_force_bottleneck(d1, d2), abs=1e-9)
 
 
-def test_bottleneck_matches_persim_on_finite_diagrams():
-    # persim: an independent bottleneck implementation.
-    rng = np.random.default_rng(4)
-    for _ in range(200):
-        d1 = random_diagram(rng, rng.integers(0, 12))
-        d2 = random_diagram(rng, rng.integers(0, 12))
+@pytest.mark.parametrize("seed, lo, hi, reps", [(4, 0, 12, 200), (5, 20, 60, 30)])
+def test_bottleneck_matches_persim_on_finite_diagrams(seed, lo, hi, reps):
+    # persim: an independent bottleneck implementation; the larger sizes are beyond brute force.
+    rng = np.random.default_rng(seed)
+    for _ in range(reps):
+        d1 = random_diagram(rng, rng.integers(lo, hi))
+        d2 = random_diagram(rng, rng.integers(lo, hi))
         assert bottleneck(d1, d2) == pytest.approx(persim.bottleneck(d1, d2), abs=1e-9)
 
 

@@ -17,7 +17,6 @@ Text pages flow onto continuation pages, so nothing is clipped or overlaps.
 from __future__ import annotations
 
 import datetime as _dt
-import os
 from collections.abc import Callable
 from pathlib import Path
 from typing import Any
@@ -26,6 +25,7 @@ from matplotlib.backends.backend_pdf import PdfPages
 from matplotlib.figure import FigureBase
 
 from specmap.errors import ResultsError
+from specmap.io import check_out_dir
 from specmap.report.figures import grids_figure, landscape_figure, perturb_figure, save_png, special_figure
 from specmap.report.findings import WARNING, audit_sentences, findings
 from specmap.report.fmt import fmt, fmt_interval, fmt_pct, fmt_point, fraction_interval, num, plural
@@ -374,18 +374,12 @@ def _check_out_pdf(out: Path, overwrite: bool) -> None:
     if out.exists() and not overwrite:
         raise ResultsError("already exists", file=str(out), field="--out",
                            fix="give --out a new path, or add --force to overwrite it")
-    for parent in out.parents:
-        if parent.exists() and not parent.is_dir():
-            raise ResultsError(f"lies under {parent}, which is a file, not a folder", file=str(out),
-                               field="--out", fix="give --out a path in a folder")
+    check_out_dir(out.parent, "--out")  # under a file, or a folder that cannot be written
     try:
         out.parent.mkdir(parents=True, exist_ok=True)
     except OSError as exc:
         raise ResultsError(f"its folder cannot be created ({exc.strerror or exc})", file=str(out),
                            field="--out", fix="give --out a path in a folder you can write") from None
-    if not os.access(out.parent, os.W_OK | os.X_OK):
-        raise ResultsError(f"its folder {out.parent} cannot be written (read-only)", file=str(out),
-                           field="--out", fix="give --out a path in a folder you can write")
 
 
 def build_report(result_dir: str | Path, out_pdf: str | Path | None = None, *,

@@ -17,6 +17,7 @@ from __future__ import annotations
 
 import contextlib
 import io
+import sys
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -460,8 +461,6 @@ def read_mesh(
         counts.update(found)
     note = hygiene_note(found, file)
     if note:
-        import sys
-
         print(note, file=sys.stderr)
     return V, orient_consistently(T), values
 
