@@ -110,3 +110,81 @@ def test_json_and_geojson_contract(cross_atlas):
 
     back = atlas_from_json(d)
     assert back.counts == d["counts"] and len(back.components) == len(d["components"])
+
+
+# ---------------------------------------------------------------------------------------------
+# role rules (specmap.special.pairs is their one home): checked against the cost kinds of
+# math.md section 5, written out here. A cross pair (one contour of each grid) stands for two
+# matched points and costs |c|; a same-grid pair for a point sent to the diagonal, |c| / 2.
+# An equal tie |c_P| = |c_Q| ties two costs iff both pairs have the same kind; a half tie
+# |c_big| = 2 |c_small| ties two costs iff |c_big| / 2 (same grid) = |c_small| (cross).
+# ---------------------------------------------------------------------------------------------
+def _cost_kinds_tie(condition, big_cross, small_cross):
+    if condition == "equal":
+        return big_cross == small_cross
+    return (not big_cross) and small_cross
+
+
+@pytest.mark.parametrize("mode", ["all", "roles"])
+def test_pair_rules_follow_the_cost_kinds(mode):
+    from specmap.special.pairs import doubled_pairs, equal_allowed, half_allowed, kernel_flags, pair_table
+
+    table = pair_table(verticals("f", [0, 1, 2]), verticals("g", [3, 4]), mode)
+    n = table.n_pairs
+    p, q = (x.ravel() for x in np.meshgrid(np.arange(n), np.arange(n), indexing="ij"))
+    cross = [table.pair_ids(k)[0][0] != table.pair_ids(k)[1][0] for k in range(n)]  # from the ids
+    for cond, rule in (("equal", equal_allowed), ("half", half_allowed)):
+        want = [pp != qq and (mode == "all" or _cost_kinds_tie(cond, cross[pp], cross[qq]))
+                for pp, qq in zip(p.tolist(), q.tolist(), strict=True)]
+        assert rule(table, p, q).tolist() == want
+    # doubled items: every pair under "all"; under "roles" exactly the cross pairs
+    assert doubled_pairs(table).tolist() == ([True] * n if mode == "all" else cross)
+    pair_class, equal_ok, half_ok, doubled = kernel_flags(table)
+    assert pair_class.tolist() == [int(c) for c in cross] and doubled.tolist() == doubled_pairs(table).tolist()
+    assert equal_ok.shape == half_ok.shape == (2, 2)
+
+
+def test_tie_code_and_grid_of_from_ids():
+    from specmap.special import pairs as pr
+
+    assert (pr.grid_of("f:p0"), pr.grid_of("g:2:v1"), pr.grid_of("v0")) == ("f", "g", None)
+    fg, ff, gg = ("f:v0", "g:v0"), ("f:v0", "f:v1"), ("g:v0", "g:v1")
+    # math.md 5 (see _cost_kinds_tie): equal ties of one kind; half ties same-grid over cross, read
+    # either way round (HALF_Q: the second pair is the same-grid one)
+    assert pr.tie_code(Tie(((fg), ("f:v1", "g:v1")), "equal")) == pr.EQUAL_CROSS
+    assert pr.tie_code(Tie((ff, gg), "equal")) == pr.EQUAL_SAME
+    assert pr.tie_code(Tie((ff, fg), "equal")) is None
+    assert pr.tie_code(Tie((ff, fg), "half")) == pr.HALF_P
+    assert pr.tie_code(Tie((fg, ff), "half")) == pr.HALF_Q
+    assert pr.tie_code(Tie((fg, ("f:v1", "g:v1")), "half")) is None
+    assert pr.tie_code(Tie((ff, gg), "half")) is None
+    assert pr.tie_code(Tie((ff, fg), "equal"), roles=False) == pr.ANY_EQUAL
+    assert pr.tie_code(Tie((("v0", "v1"), fg), "half")) == pr.ANY_HALF  # no grid prefix: roles unknown
+
+
+def test_costs_from_differences_closed_forms():
+    from specmap.special import pairs as pr
+
+    # math.md 5: cross pairs cost d, same-grid pairs d / 2; (lo, hi) bracket the two sides
+    codes = [pr.EQUAL_CROSS, pr.EQUAL_SAME, pr.ANY_EQUAL, pr.HALF_P, pr.HALF_Q, pr.ANY_HALF, pr.HALF_P]
+    dp = [1.0, 1.0, 1.0, 2.0, 0.9, 2.0, 0.5]
+    dq = [1.2, 1.2, 1.2, 0.9, 2.0, 0.9, 0.9]
+    lo, hi = pr.costs_from_differences(codes, dp, dq)
+    # half: min / max of d_big / 2 and d_small (2.0 / 2 = 1 against 0.9); HALF_P with d_P < d_Q: NaN
+    np.testing.assert_allclose(lo[:6], [1.0, 0.5, 0.5, 0.9, 0.9, 0.9])
+    np.testing.assert_allclose(hi[:6], [1.2, 0.6, 1.2, 1.0, 1.0, 1.0])
+    assert np.isnan(lo[6]) and np.isnan(hi[6])
+
+
+def test_tie_costs_on_vertical_lines():
+    from specmap.special.pairs import tie_costs
+
+    # push coordinates at a = 1/2, b = 0 are the abscissae (math.md 2): 0, 1 (f), 0.5, 1.5 (g)
+    C = {"f:v0": Contour("f:v0", "vertical", [0.0, -10.0]), "f:v1": Contour("f:v1", "vertical", [1.0, -10.0]),
+         "g:v0": Contour("g:v0", "vertical", [0.5, -10.0]), "g:v1": Contour("g:v1", "vertical", [1.5, -10.0])}
+    lo, hi = tie_costs(Tie((("f:v0", "g:v0"), ("f:v1", "g:v1")), "equal"), C, 0.5, 0.0)
+    assert (float(lo), float(hi)) == pytest.approx((0.5, 0.5))  # two matching costs 0.5
+    lo, hi = tie_costs(Tie((("f:v0", "f:v1"), ("f:v1", "g:v0")), "half"), C, 0.5, 0.0)
+    assert (float(lo), float(hi)) == pytest.approx((0.5, 0.5))  # diagonal 1 / 2 = matching 0.5
+    lo, hi = tie_costs(Tie((("f:v0", "f:v1"), ("f:v0", "g:v0")), "equal"), C, 0.5, 0.0)
+    assert np.isnan(lo) and np.isnan(hi)  # mixed equal tie: no tie of costs

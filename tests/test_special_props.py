@@ -146,13 +146,14 @@ def test_compiled_sweep_finds_exactly_the_naive_crossings(seed, pairs):
     from specmap.special.detect import find_crossings, sample
     from specmap.special.lattice import Lattice
     from specmap.special.pairs import pair_table
+    from specmap.special.reference import naive_crossings
 
     f, g = random_pair(seed, 9)
     table = pair_table(f, g, pairs)
     samples = sample(table, Lattice.of(default_window(f.bbox(), g.bbox()), 29, 23))
     tol = default_tolerance(f, g)
-    cs, es, _ = find_crossings(table, samples, method="sweep", tol=tol, snap=1e-3 * tol)
-    cn, en, _ = find_crossings(table, samples, method="naive", tol=tol, snap=1e-3 * tol)
+    cs, es, _ = find_crossings(table, samples, tol=tol, snap=1e-3 * tol)
+    cn, en, _ = naive_crossings(table, samples, tol=tol, snap=1e-3 * tol)
     assert cs.size > 0
     np.testing.assert_array_equal(cs, cn)
     np.testing.assert_array_equal(es, en)
@@ -206,12 +207,12 @@ def test_roles_keeps_only_diagonal_vs_matching_half_ties():
 @pytest.mark.parametrize("seed", [3, 4, 5])
 def test_lattice_components_match_generic_components(seed):
     """Components linked through the lattice (chord interleaving) equal the generic segment test."""
-    from specmap.special.atlas import components
+    from specmap.special.reference import reference_components
 
     f, g = random_pair(seed, 10)
     w = default_window(f.bbox(), g.bbox())
     at = special_set(f, g, w, resolution=RES + 6)
-    generic = components(at.pieces, w)
+    generic = reference_components(at.pieces, w)
 
     def key(cs):
         return sorted((tuple((t.condition, t.pairs) for t in c.ties), round(c.length, 9), round(c.area, 9))

@@ -16,11 +16,13 @@ import numpy as np
 import shapely
 
 from specmap.grids.model import Grid
-from specmap.special.atlas import Atlas, TiePiece, components
-from specmap.special.detect import find_crossings, sample
+from specmap.special.atlas import Atlas, TiePiece
+from specmap.special.components import components
+from specmap.special.detect import METHODS, find_crossings, sample
 from specmap.special.lattice import Lattice
 from specmap.special.pairs import pair_table
 from specmap.special.patches import patch_cells, patch_polygons
+from specmap.special.reference import naive_crossings
 from specmap.special.trace import refine, trace
 from specmap.strip import Window
 
@@ -56,7 +58,7 @@ def special_set(grid_f: Grid, grid_g: Grid, window: Window, *, pairs: str = "all
         Sample lattice nodes.
     method : {"sweep", "naive"}
         ``sweep``: output-sensitive detection of order swaps; ``naive``: every
-        tie on every edge (reference, same result).
+        tie on every edge (reference, same result, :mod:`specmap.special.reference`).
     tol : float, optional
         Residual tolerance in push units; default :func:`default_tolerance`.
     progress : callable (done, total), optional
@@ -87,6 +89,8 @@ def special_set(grid_f: Grid, grid_g: Grid, window: Window, *, pairs: str = "all
     t_start = time.perf_counter()
     n_a, n_b = (resolution, resolution) if isinstance(resolution, int) else tuple(resolution)
     table = pair_table(grid_f, grid_g, pairs)
+    if method not in METHODS:
+        raise ValueError(f"method must be one of {METHODS}, not {method!r}")
     tol = default_tolerance(grid_f, grid_g) if tol is None else float(tol)
     snap = 1e-3 * tol
     lat = Lattice.of(window, int(n_a), int(n_b))
@@ -96,8 +100,8 @@ def special_set(grid_f: Grid, grid_g: Grid, window: Window, *, pairs: str = "all
     samples = sample(table, lat)
     timings["sample_s"] = time.perf_counter() - t
     t = time.perf_counter()
-    codes, edges, dstats = find_crossings(table, samples, method=method, tol=tol, snap=snap,
-                                          progress=progress, progress_total=total)
+    detect = find_crossings if method == "sweep" else naive_crossings
+    codes, edges, dstats = detect(table, samples, tol=tol, snap=snap, progress=progress, progress_total=total)
     timings["detect_s"] = time.perf_counter() - t
     t = time.perf_counter()
     points = refine(table, samples, codes, edges, snap=snap)

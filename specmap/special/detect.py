@@ -1,4 +1,4 @@
-"""Where tie curves cross the sample lattice: the output-sensitive sweep and the naive reference.
+"""Where tie curves cross the sample lattice: the output-sensitive sweep.
 
 At every node the pair differences |c_P| (push units) and their doubles 2|c_Q|
 are *items*. A tie curve crosses a lattice edge where the order of two items
@@ -8,8 +8,9 @@ are *items*. A tie curve crosses a lattice edge where the order of two items
 two end values, sorts the interval starts of the edge and finds each
 interval's overlapping partners with one ``searchsorted``; only overlapping
 items can swap, and only actual swaps are kept. The work grows with the number
-of overlaps, not with the number of quadruples. ``naive`` evaluates every
-allowed tie on every edge; both return the same crossings.
+of overlaps, not with the number of quadruples. The reference method
+``naive`` (every allowed tie on every edge, the same crossings) lives in
+:mod:`specmap.special.reference`.
 
 Pairs appear and disappear where the line stops meeting a contour: an item
 takes part on an edge only if its pair is met at a corner of a cell beside the
@@ -32,10 +33,12 @@ import numpy as np
 from specmap.special.compiled.sweep import sweep_rows, tie_cells_met
 from specmap.special.evaluate import sample_contours
 from specmap.special.lattice import Lattice
-from specmap.special.pairs import PairTable, all_tie_codes, equal_allowed, half_allowed
+from specmap.special.pairs import PairTable, doubled_pairs, equal_allowed, half_allowed, kernel_flags
 from specmap.strip import push_scale
 
 METHODS = ("sweep", "naive")
+"""Crossing detection methods: :func:`find_crossings` and the reference
+:func:`specmap.special.reference.naive_crossings`."""
 
 
 @dataclass(frozen=True, eq=False)
@@ -85,42 +88,12 @@ class Items:
     @staticmethod
     def of(table: PairTable) -> Items:
         n = table.n_pairs
-        # "roles": only cross pairs are doubled (|c_same| = 2 |c_cross|, math.md 5)
-        dbl = np.arange(n) if table.mode == "all" else np.nonzero(table.cross)[0]
+        dbl = np.nonzero(doubled_pairs(table))[0]
         pair = np.concatenate([np.arange(n), dbl])
         factor = np.concatenate([np.ones(n), np.full(dbl.size, 2.0)])
         di = np.full(n, -1, dtype=np.int64)
         di[dbl] = n + np.arange(dbl.size)
         return Items(pair, factor, di)
-
-
-def _row_edges(lat: Lattice, samples: Samples, table: PairTable, j: int, items: Items,
-               dv: dict[int, np.ndarray]):
-    """Edges handled for node row j, their end values (E, M) and item presence (E, M)."""
-    na, nb = lat.n_a, lat.n_b
-    cp = samples.cell_pair
-    none = np.zeros((table.n_pairs, na - 1), dtype=bool)
-    below = cp[:, j - 1] if j > 0 else none
-    above = cp[:, j] if j < nb - 1 else none
-    h_pres = (below | above).T
-    vals = [np.concatenate([dv[j], 2.0 * dv[j][items.pair[table.n_pairs:]]])]
-    v0 = [vals[0][:, :-1].T]
-    v1 = [vals[0][:, 1:].T]
-    pres = [h_pres]
-    edges = [j * (na - 1) + np.arange(na - 1)]
-    if j < nb - 1:
-        up = np.concatenate([dv[j + 1], 2.0 * dv[j + 1][items.pair[table.n_pairs:]]])
-        pad = np.zeros((table.n_pairs, na + 1), dtype=bool)
-        pad[:, 1:-1] = cp[:, j]
-        v_pres = (pad[:, :-1] | pad[:, 1:]).T
-        v0.append(vals[0].T)
-        v1.append(up.T)
-        pres.append(v_pres)
-        edges.append(lat.n_h + j * na + np.arange(na))
-    V0 = np.concatenate(v0)
-    V1 = np.concatenate(v1)
-    P = np.concatenate(pres)[:, items.pair]
-    return np.concatenate(edges), V0, V1, P
 
 
 def _overlaps(lo: np.ndarray, hi: np.ndarray, present: np.ndarray, slack: float):
@@ -181,17 +154,15 @@ def sorted_unique(x: np.ndarray) -> np.ndarray:
     return x[np.concatenate([[True], x[1:] != x[:-1]])]
 
 
-def find_crossings(table: PairTable, samples: Samples, *, method: str = "sweep", tol: float,
-                   snap: float, progress: Callable[[int, int], None] | None = None,
-                   progress_offset: int = 0, progress_total: int | None = None
-                   ) -> tuple[np.ndarray, np.ndarray, dict]:
-    """Tie codes and edge ids of all lattice edges a tie curve crosses.
+def find_crossings(table: PairTable, samples: Samples, *, tol: float, snap: float,
+                   progress: Callable[[int, int], None] | None = None, progress_offset: int = 0,
+                   progress_total: int | None = None) -> tuple[np.ndarray, np.ndarray, dict]:
+    """Tie codes and edge ids of all lattice edges a tie curve crosses (compiled sweep).
 
     Parameters
     ----------
     table : PairTable
     samples : Samples
-    method : {"sweep", "naive"}
     tol : float
         Edges where the residual is within ``tol`` at both ends are not crossings
         (they lie in a patch).
@@ -206,67 +177,34 @@ def find_crossings(table: PairTable, samples: Samples, *, method: str = "sweep",
     stats : dict
         ``candidate_item_pairs`` (overlaps examined), ``swaps``, ``crossings``.
     """
-    if method not in METHODS:
-        raise ValueError(f"method must be one of {METHODS}, not {method!r}")
     lat = samples.lattice
-    items = Items.of(table)
     nb = lat.n_b
     total = progress_total or nb
     codes_out: list[np.ndarray] = []
     edges_out: list[np.ndarray] = []
     n_cand = 0
     n_swap = 0
-    dv: dict[int, np.ndarray] = {}
-    if method == "naive":
-        all_codes = all_tie_codes(table)
-        acond, aP, aQ = table.decode(all_codes)
-        abig = aP
-        asmall = np.where(acond == 1, items.doubled_index[aQ], aQ)
-    if method == "sweep":
-        m_col = push_scale(lat.av)
-        roles = table.mode == "roles"
-        step = max(1, nb // 40)
-        for j0 in range(0, nb, step):
-            j1 = min(nb, j0 + step)
-            code, ee, cand = sweep_rows(samples.s, samples.met, samples.cell_pair, table.first, table.second,
-                                        table.cross, roles, m_col, j0, j1, snap, tol)
-            n_cand += int(cand)
-            n_swap += code.size
-            codes_out.append(code)
-            edges_out.append(ee)
-            if progress is not None:
-                progress(progress_offset + j1, total)
-    for j in range(nb if method == "naive" else 0):
-        for k in (j, j + 1):
-            if k < nb and k not in dv:
-                dv[k] = samples.pair_values(table, k)
-        dv.pop(j - 1, None)
-        edges, V0, V1, pres = _row_edges(lat, samples, table, j, items, dv)
-        code_l, ee_l = [], []
-        step = max(1, 4_000_000 // max(len(edges), 1))
-        for t0 in range(0, all_codes.size, step):
-            sl = slice(t0, t0 + step)
-            b_i, s_i = abig[sl], asmall[sl]
-            n_cand += b_i.size * len(edges)
-            f0 = V0[:, b_i] - V0[:, s_i]
-            f1 = V1[:, b_i] - V1[:, s_i]
-            ok = pres[:, b_i] & pres[:, s_i]
-            sw = ok & ((f0 >= -snap) != (f1 >= -snap)) & (np.maximum(np.abs(f0), np.abs(f1)) > tol)
-            ei, ti = np.nonzero(sw)
-            code_l.append(all_codes[sl][ti])
-            ee_l.append(ei)
-        code = np.concatenate(code_l)
-        ee = np.concatenate(ee_l)
+    m_col = push_scale(lat.av)
+    flags = kernel_flags(table)
+    step = max(1, nb // 40)
+    for j0 in range(0, nb, step):
+        j1 = min(nb, j0 + step)
+        code, ee, cand = sweep_rows(samples.s, samples.met, samples.cell_pair, table.first, table.second,
+                                    *flags, m_col, j0, j1, snap, tol)
+        n_cand += int(cand)
         n_swap += code.size
         codes_out.append(code)
-        edges_out.append(edges[ee])
+        edges_out.append(ee)
         if progress is not None:
-            progress(progress_offset + j + 1, total)
+            progress(progress_offset + j1, total)
+    return unique_crossings(lat, codes_out, edges_out, n_cand, n_swap)
+
+
+def unique_crossings(lat: Lattice, codes_out: list[np.ndarray], edges_out: list[np.ndarray], n_cand: int,
+                     n_swap: int) -> tuple[np.ndarray, np.ndarray, dict]:
+    """Concatenated crossings sorted by (code, edge) without repeats, and the detection stats."""
     codes = np.concatenate(codes_out) if codes_out else np.zeros(0, np.int64)
     eids = np.concatenate(edges_out) if edges_out else np.zeros(0, np.int64)
-    if method == "naive":  # the sweep kernel tests the cells beside each edge itself
-        keep = relevant_cells(table, samples, codes, eids).any(axis=1)
-        codes, eids = codes[keep], eids[keep]
     key = sorted_unique(codes * lat.n_edges + eids)
     codes, eids = np.divmod(key, lat.n_edges)
     stats = {"candidate_item_pairs": int(n_cand), "swaps": int(n_swap), "crossings": int(codes.size)}

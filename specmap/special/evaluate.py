@@ -28,8 +28,6 @@ from specmap.grids.model import Contour
 from specmap.special.pairs import Tie
 from specmap.strip import BISECT_MIN_POINTS, line_parameter, push_scale
 
-#: proper contours with at least this many vertices are evaluated by binary search
-
 
 def extended_parameter(contour: Contour, a, b) -> tuple[np.ndarray, np.ndarray]:
     """Extended line parameter s̄ and the flag ``met`` of a contour.

@@ -11,6 +11,13 @@ where c_P is the difference of the push coordinates of the two contours of P.
 Internally a tie is the integer ``cond * n² + P * n + Q`` (n pairs, cond 0 for
 equal with P < Q, 1 for half with P the larger difference).
 
+This module is the one home of the role rules of math.md section 5: which ties
+a pair mode keeps (:func:`role_rules`, :func:`equal_allowed`,
+:func:`half_allowed`, the flags :func:`kernel_flags` hands the compiled sweep),
+which grid a contour id belongs to (:func:`grid_of`), and how the two
+differences of a tie give its tied cost (:func:`tie_code`,
+:func:`costs_from_differences`, :func:`tie_costs`).
+
 References
 ----------
 .. [EFQT23] Ethier, Frosini, Quercioli, Tombari, "Geometry of the matching
@@ -22,14 +29,64 @@ from __future__ import annotations
 
 import weakref
 from dataclasses import dataclass
+from functools import cached_property
 from typing import Any
 
 import numpy as np
 
 from specmap.grids.model import Contour, Grid
+from specmap.strip import line_parameter, push_scale
 
 PAIR_MODES = ("all", "roles")
 CONDITIONS = ("equal", "half")
+SAME, CROSS = 0, 1
+"""Pair classes: a same-grid pair (a point sent to the diagonal costs |c| / 2) and a cross pair
+(two matched points cost |c|), math.md section 5."""
+
+
+@dataclass(frozen=True, eq=False)
+class RoleRules:
+    """Which ties of two pair classes a pair mode keeps.
+
+    Attributes
+    ----------
+    equal_ok : ndarray of bool (2, 2)
+        ``equal_ok[class P, class Q]``: an equal tie |c_P| = |c_Q| is kept.
+    half_ok : ndarray of bool (2, 2)
+        ``half_ok[class big, class doubled]``: a half tie |c_big| = 2 |c_doubled| is kept.
+    """
+
+    equal_ok: np.ndarray
+    half_ok: np.ndarray
+
+    @property
+    def doubled_ok(self) -> np.ndarray:
+        """bool (2,): pairs of this class can be the doubled pair of a kept half tie."""
+        return self.half_ok.any(axis=0)
+
+
+def role_rules(mode: str) -> RoleRules:
+    """The tie rules of a pair mode.
+
+    ``all`` keeps every tie of two different pairs. ``roles`` keeps only ties of
+    two candidate bottleneck costs (math.md section 5, role-aware refinement):
+    equal ties of two cross pairs (two matching costs) or of two same-grid pairs
+    (two diagonal costs), and half ties whose larger difference is a same-grid
+    pair (diagonal cost |c_big| / 2) and whose doubled one is a cross pair
+    (matching cost |c_doubled|).
+
+    Raises
+    ------
+    ValueError
+        If ``mode`` is not ``"all"`` or ``"roles"``.
+    """
+    if mode not in PAIR_MODES:
+        raise ValueError(f"pairs must be one of {PAIR_MODES}, not {mode!r}")
+    if mode == "all":
+        return RoleRules(np.ones((2, 2), dtype=bool), np.ones((2, 2), dtype=bool))
+    half = np.zeros((2, 2), dtype=bool)
+    half[SAME, CROSS] = True
+    return RoleRules(np.eye(2, dtype=bool), half)
 
 
 @dataclass(frozen=True)
@@ -102,6 +159,15 @@ class PairTable:
     def ids(self) -> list[str]:
         return [c.id for c in self.contours]
 
+    @cached_property
+    def pair_class(self) -> np.ndarray:
+        """:data:`CROSS` or :data:`SAME` of every pair (int64)."""
+        return np.where(self.cross, CROSS, SAME).astype(np.int64)
+
+    @cached_property
+    def rules(self) -> RoleRules:
+        return role_rules(self.mode)
+
     def pair_ids(self, p: int) -> tuple[str, str]:
         return (self.contours[self.first[p]].id, self.contours[self.second[p]].id)
 
@@ -170,17 +236,15 @@ def pair_table(grid_f: Grid, grid_g: Grid, mode: str = "all") -> PairTable:
 
 
 def equal_allowed(table: PairTable, p: np.ndarray, q: np.ndarray) -> np.ndarray:
-    """Which equal ties (P, Q) the pair mode keeps.
+    """Which equal ties (P, Q) the pair mode keeps (:func:`role_rules`).
 
     ``roles``: both cross pairs (two matching costs) or both same-grid pairs
     (two diagonal costs) -- math.md section 5, role-aware refinement.
     """
     p = np.asarray(p)
     q = np.asarray(q)
-    ok = p != q
-    if table.mode == "roles":
-        ok &= table.cross[p] == table.cross[q]
-    return ok
+    cls = table.pair_class
+    return (p != q) & table.rules.equal_ok[cls[p], cls[q]]
 
 
 def half_allowed(table: PairTable, big: np.ndarray, doubled: np.ndarray) -> np.ndarray:
@@ -194,10 +258,29 @@ def half_allowed(table: PairTable, big: np.ndarray, doubled: np.ndarray) -> np.n
     """
     big = np.asarray(big)
     doubled = np.asarray(doubled)
-    ok = big != doubled
-    if table.mode == "roles":
-        ok &= ~table.cross[big] & table.cross[doubled]
-    return ok
+    cls = table.pair_class
+    return (big != doubled) & table.rules.half_ok[cls[big], cls[doubled]]
+
+
+def doubled_pairs(table: PairTable) -> np.ndarray:
+    """bool per pair: whether 2 |c_Q| of pair Q takes part in any half tie the mode keeps."""
+    return table.rules.doubled_ok[table.pair_class]
+
+
+def kernel_flags(table: PairTable) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """The role rules as arrays for the compiled sweep (which derives no role itself).
+
+    Returns
+    -------
+    pair_class : ndarray of int64 (n_pairs,)
+    equal_ok, half_ok : ndarray of bool (2, 2)
+        Indexed by pair classes, see :class:`RoleRules`.
+    doubled : ndarray of bool (n_pairs,)
+        :func:`doubled_pairs`.
+    """
+    r = table.rules
+    return (np.ascontiguousarray(table.pair_class), np.ascontiguousarray(r.equal_ok),
+            np.ascontiguousarray(r.half_ok), np.ascontiguousarray(doubled_pairs(table)))
 
 
 def all_tie_codes(table: PairTable) -> np.ndarray:
@@ -210,3 +293,112 @@ def all_tie_codes(table: PairTable) -> np.ndarray:
     hf = half_allowed(table, p, q)
     return np.concatenate([table.encode(np.zeros(eq.sum()), p[eq], q[eq]),
                            table.encode(np.ones(hf.sum()), p[hf], q[hf])])
+
+
+# ----------------------------------------------------------------------------------------------
+# roles of ties given by contour ids (ties read from an atlas), and their tied costs
+# ----------------------------------------------------------------------------------------------
+EQUAL_CROSS, EQUAL_SAME, HALF_P, HALF_Q, ANY_EQUAL, ANY_HALF = range(6)
+"""How the two differences d_P, d_Q of a tie give its tied cost (:func:`tie_code`)."""
+
+
+def grid_of(contour_id: str) -> str | None:
+    """The grid label of a contour id ``"<grid>:<rest>"`` (e.g. ``"f:p0"`` -> ``"f"``), else None.
+
+    Examples
+    --------
+    >>> grid_of("f:p0"), grid_of("g:3:v1"), grid_of("v0")
+    ('f', 'g', None)
+    """
+    return contour_id.split(":", 1)[0] if ":" in contour_id else None
+
+
+def tie_code(tie: Tie, *, roles: bool = True) -> int | None:
+    """How the tied cost of ``tie`` follows from its differences; ``None`` for a tie of no two costs.
+
+    With roles known (every id ``"<grid>:..."``, see :func:`grid_of`, and ``roles=True``) the
+    rules of :func:`role_rules` ``("roles")`` decide: an equal tie of two cross pairs is
+    :data:`EQUAL_CROSS`, of two same-grid pairs :data:`EQUAL_SAME`; a half tie whose first pair
+    is the same-grid one is :data:`HALF_P`, whose second pair is :data:`HALF_Q` (the tie read
+    the other way round); any other tie compares costs of different kinds and gives ``None``
+    (math.md section 5, role-aware refinement). Without roles: :data:`ANY_EQUAL` /
+    :data:`ANY_HALF`.
+    """
+    (p1, p2), (q1, q2) = tie.pairs
+    gp, gq = (grid_of(p1), grid_of(p2)), (grid_of(q1), grid_of(q2))
+    if not roles or None in gp + gq:
+        return ANY_EQUAL if tie.condition == "equal" else ANY_HALF
+    cp = CROSS if gp[0] != gp[1] else SAME
+    cq = CROSS if gq[0] != gq[1] else SAME
+    rules = role_rules("roles")
+    if tie.condition == "equal":
+        if rules.equal_ok[cp, cq]:
+            return EQUAL_CROSS if cp == CROSS else EQUAL_SAME
+        return None
+    if rules.half_ok[cp, cq]:
+        return HALF_P
+    if rules.half_ok[cq, cp]:
+        return HALF_Q
+    return None
+
+
+def costs_from_differences(code: Any, dp: Any, dq: Any) -> tuple[np.ndarray, np.ndarray]:
+    """(lo, hi) candidate bottleneck costs of ties from their :func:`tie_code` and differences.
+
+    ``dp``, ``dq`` are |c_P|, |c_Q| (value units, broadcast with ``code``). Equal ties of cross
+    pairs cost d, of same-grid pairs d / 2, without roles [d / 2, d]; half ties cost the smaller
+    of d_big / 2 and d_small on either side (``lo``/``hi`` bracket both sides off the curve);
+    a half tie whose same-grid pair has the smaller difference is NaN (math.md section 5).
+
+    References
+    ----------
+    .. [EFQT23] Ethier, Frosini, Quercioli, Tombari, J. Appl. Comput. Topol. (2023).
+    """
+    code, dp, dq = np.broadcast_arrays(np.asarray(code), np.asarray(dp, float), np.asarray(dq, float))
+    with np.errstate(invalid="ignore"):
+        lo_d, hi_d = np.minimum(dp, dq), np.maximum(dp, dq)
+        half_lo, half_hi = np.minimum(hi_d / 2, lo_d), np.maximum(hi_d / 2, lo_d)
+        conds = [code == EQUAL_CROSS, code == EQUAL_SAME, code == ANY_EQUAL]
+        lo = np.select(conds, [lo_d, lo_d / 2, lo_d / 2], half_lo)
+        hi = np.select(conds, [hi_d, hi_d / 2, hi_d], half_hi)
+        bad = ((code == HALF_P) & ~(dp >= dq)) | ((code == HALF_Q) & ~(dq >= dp))
+    return np.where(bad, np.nan, lo), np.where(bad, np.nan, hi)
+
+
+def tie_costs(tie: Tie, contours_by_id: dict, a: Any, b: Any, *, roles: bool = True
+              ) -> tuple[np.ndarray, np.ndarray]:
+    """Lower and upper candidate bottleneck cost of a tie at lines (a, b), in value units.
+
+    With the differences d_P = |c_a - c_b|, d_Q = |c_c - c_d| of push
+    coordinates (value units, min(a, 1-a) times the line-parameter difference):
+
+    - ``equal`` (d_P = d_Q = d): two matching costs tie at d when both pairs are
+      cross pairs (one contour of each grid), two diagonal costs tie at d/2
+      when both are same-grid pairs; a mixed equal tie compares d with d/2 and is
+      no tie of costs (math.md, role-aware refinement).
+    - ``half`` (d_big = 2 d_small): the diagonal cost d_big/2 of a same-grid pair
+      ties with the matching cost d_small of a cross pair: the tied cost is the
+      smaller difference, d_small [EFQT23].
+
+    Off the curve the two sides differ; ``lo`` and ``hi`` bracket both sides
+    (min and max); on the curve both equal the tied cost t. Where the roles make
+    the tie impossible, or a contour is not met, both are NaN. Without role
+    information (ids without a grid prefix, or ``roles=False``) an equal tie
+    brackets [d/2, d].
+
+    Returns
+    -------
+    lo, hi : ndarray of the broadcast shape of a and b.
+
+    References
+    ----------
+    .. [EFQT23] Ethier, Frosini, Quercioli, Tombari, J. Appl. Comput. Topol. (2023).
+    """
+    (p1, p2), (q1, q2) = tie.pairs
+    a, b = np.broadcast_arrays(np.asarray(a, float), np.asarray(b, float))
+    m = push_scale(a)
+    s = [line_parameter(contours_by_id[c], a, b) for c in (p1, p2, q1, q2)]
+    code = tie_code(tie, roles=roles)
+    if code is None:
+        return np.full(a.shape, np.nan), np.full(a.shape, np.nan)
+    return costs_from_differences(code, np.abs(s[0] - s[1]) * m, np.abs(s[2] - s[3]) * m)

@@ -29,6 +29,7 @@ from specmap.special.compute import default_tolerance  # noqa: E402
 from specmap.special.detect import find_crossings, sample  # noqa: E402
 from specmap.special.lattice import Lattice  # noqa: E402
 from specmap.special.pairs import pair_table  # noqa: E402
+from specmap.special.reference import naive_crossings  # noqa: E402
 from specmap.special.trace import refine  # noqa: E402
 from specmap.strip import default_window  # noqa: E402
 
@@ -51,7 +52,8 @@ def main() -> None:
     out = {}
     for method in ("naive", "sweep"):
         t = time.perf_counter()
-        codes, edges, st = find_crossings(table, samples, method=method, tol=tol, snap=1e-3 * tol)
+        detect = naive_crossings if method == "naive" else find_crossings
+        codes, edges, st = detect(table, samples, tol=tol, snap=1e-3 * tol)
         dt = time.perf_counter() - t
         pts = refine(table, samples, codes, edges, snap=1e-3 * tol)
         out[method] = (dt, st, pts)

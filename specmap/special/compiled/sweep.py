@@ -4,7 +4,7 @@ For each lattice edge, the pair differences and their doubles that are
 present are sorted by the low end of their value interval; each is compared
 only with the following ones while the intervals overlap, so the work follows
 the number of overlapping values, not the number of quadruples. The tie rules
-of :mod:`specmap.special.pairs` and the cell test of
+arrive as flags from :func:`specmap.special.pairs.kernel_flags`; they and the cell test of
 :func:`specmap.special.detect.relevant_cells` are applied inline.
 
 References
@@ -42,8 +42,10 @@ def _tie_met(met, c0, c1, c2, c3, cj, ci):
 
 
 @numba.njit(cache=True, nogil=True, error_model="numpy")
-def sweep_rows(s: np.ndarray, met: np.ndarray, cell_pair: np.ndarray, first: np.ndarray, second: np.ndarray, cross: np.ndarray, roles: bool,
-               mcol: np.ndarray, j_start: int, j_stop: int, snap: float, tol: float) -> tuple[np.ndarray, np.ndarray, int]:
+def sweep_rows(s: np.ndarray, met: np.ndarray, cell_pair: np.ndarray, first: np.ndarray, second: np.ndarray,
+               pair_class: np.ndarray, equal_ok: np.ndarray, half_ok: np.ndarray, doubled: np.ndarray,
+               mcol: np.ndarray, j_start: int, j_stop: int, snap: float, tol: float
+               ) -> tuple[np.ndarray, np.ndarray, int]:
     """Order swaps of pair differences on the lattice edges of node rows ``j_start`` to ``j_stop - 1``.
 
     Row j holds the horizontal edges (j, i)-(j, i+1) and the vertical edges
@@ -53,7 +55,9 @@ def sweep_rows(s: np.ndarray, met: np.ndarray, cell_pair: np.ndarray, first: np.
     the edge; each item is compared with the following ones while the
     intervals overlap (within ``snap``), so the work is the number of
     overlapping item pairs, not the number of ties. A crossing is an allowed
-    tie whose two items change order (sign convention ``>= -snap``, not both
+    tie (``equal_ok`` / ``half_ok`` indexed by the ``pair_class`` of P and Q;
+    only ``doubled`` pairs get a doubled item -- the flags of
+    :func:`specmap.special.pairs.kernel_flags`) whose two items change order (sign convention ``>= -snap``, not both
     ends within ``tol``) and that is met at a corner of a cell beside the edge.
 
     Returns
@@ -119,7 +123,7 @@ def sweep_rows(s: np.ndarray, met: np.ndarray, cell_pair: np.ndarray, first: np.
                 ip[m] = p
                 fac[m] = 1
                 m += 1
-                if (not roles) or cross[p]:
+                if doubled[p]:
                     v0[m] = 2.0 * x0
                     v1[m] = 2.0 * x1
                     ip[m] = p
@@ -151,7 +155,10 @@ def sweep_rows(s: np.ndarray, met: np.ndarray, cell_pair: np.ndarray, first: np.
                     Q = ip[small]
                     if P == Q:
                         continue
-                    if roles and ((cross[P] != cross[Q]) if cond == 0 else (cross[P] or not cross[Q])):
+                    if cond == 0:
+                        if not equal_ok[pair_class[P], pair_class[Q]]:
+                            continue
+                    elif not half_ok[pair_class[P], pair_class[Q]]:
                         continue
                     f0 = v0[big] - v0[small]
                     f1 = v1[big] - v1[small]
