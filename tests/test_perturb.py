@@ -29,8 +29,9 @@ from specmap.perturb import (
     run_seed,
     wilson_interval,
 )
+from specmap.perturb.geometry import set_hausdorff
 from specmap.perturb.models import PerturbedMap, sample_points
-from specmap.perturb.runs import load_runs, records_without_time, repair_tail, set_hausdorff
+from specmap.perturb.store import load_runs, records_without_time, repair_tail
 from specmap.perturb.summary import verdict
 from specmap.shapes.model import Shape
 from specmap.strip import Window
@@ -397,6 +398,30 @@ def test_kill_minus_nine_then_resume_gives_each_run_once(tmp_path):
 
 
 @needs_special
+def test_corrupt_middle_line_is_dropped_and_its_run_recomputed_once(tmp_path):
+    # construction (documented store): a line that is no record is dropped by an atomic rewrite,
+    # the other lines stay byte for byte, and the missing run is computed again and appended once;
+    # the resumed records equal an uninterrupted run set (same per-run seeds).
+    from specmap.perturb import run_study
+
+    base, settings = grid_base()
+    folder = tmp_path / "perturb"
+    run_study(base, settings, folder)
+    path = folder / "runs.jsonl"
+    clean = read_lines(path)
+    assert len(clean) == settings.runs
+    corrupt = [*clean[:2], b'{"run": 2, "seed": 7, "tot\n', b"[1, 2]\n", *clean[3:], clean[4]]
+    path.write_bytes(b"".join(corrupt))  # run 2 lost to a corrupt line, a list line, run 4 twice
+    run_study(base, settings, folder)
+    lines = read_lines(path)
+    recs = [json.loads(line) for line in lines]  # every line is JSON again
+    assert all(isinstance(r, dict) for r in recs)
+    assert sorted(r["run"] for r in recs) == list(range(settings.runs))  # each run once
+    assert lines[:2] == clean[:2] and lines[2:-1] == clean[3:]  # kept lines unchanged, run 2 appended
+    assert records_without_time(recs) == records_without_time([json.loads(x) for x in clean])
+
+
+@needs_special
 def test_dask_local_cluster_matches_joblib(tmp_path):
     # construction: the dask backend runs the same pure run_one with the same per-run seeds.
     distributed = pytest.importorskip("distributed", reason="dask.distributed is not installed")
@@ -415,7 +440,7 @@ def test_dask_local_cluster_matches_joblib(tmp_path):
 def test_cluster_without_dask_is_a_one_line_error(tmp_path, monkeypatch):
     # construction: dask is an optional extra; its absence is a StudyError with the fix.
     from specmap.errors import StudyError
-    from specmap.perturb.runs import _results
+    from specmap.perturb.execution import _results
 
     monkeypatch.setitem(sys.modules, "distributed", None)
     with pytest.raises(StudyError, match="dask") as info:
@@ -490,7 +515,7 @@ def test_stability_bound_holds_on_every_run(tmp_path):
 def test_stability_check_flags_violations():
     # [CDFFL13]: a change larger than the bound (plus tolerances) must be flagged; uncertified
     # degrees (lower bounds only) are not judged.
-    from specmap.perturb.runs import stability_check
+    from specmap.perturb.run import stability_check
 
     before = {"value": 1.0, "by_degree": {"0": 1.0, "1": 0.2}, "certified": ["0", "1"], "tolerance": 0.0}
     ok_after = {"value": 1.05, "by_degree": {"0": 1.05, "1": 0.25}, "certified": ["0", "1"], "tolerance": 0.0}

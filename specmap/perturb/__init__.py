@@ -8,27 +8,23 @@ to ``perturb/runs.jsonl`` as they finish, so an interrupted study resumes where 
 Public API: :func:`perturbation_study` (from a :class:`~specmap.study.Study`),
 :func:`run_study` (one run set from a :class:`PerturbBase`), :func:`perturb_shape`,
 :func:`perturb_grid`, :func:`wilson_interval`.
+
+Modules: ``models`` (the perturbations), ``run`` (settings, base, the pure run),
+``geometry`` (Hausdorff distance of special sets), ``store`` (run-set files, fingerprint,
+lock), ``execution`` (the joblib / Dask driver), ``summary`` (statistics and verdict).
 """
 
 from __future__ import annotations
 
-import dataclasses
 from collections.abc import Callable
 from pathlib import Path
 from typing import Any
 
-from specmap.io import write_json
+from specmap.perturb.execution import run_study
+from specmap.perturb.geometry import set_hausdorff
 from specmap.perturb.models import PerturbedMap, RandomField, perturb_grid, perturb_shape, random_field
-from specmap.perturb.runs import (
-    PerturbBase,
-    PerturbSettings,
-    make_base,
-    run_one,
-    run_seed,
-    run_study,
-    set_hausdorff,
-)
-from specmap.perturb.summary import sweep_row, wilson_interval
+from specmap.perturb.run import PerturbBase, PerturbSettings, make_base, run_one, run_seed
+from specmap.perturb.summary import wilson_interval
 
 __all__ = [
     "perturbation_study",
@@ -81,9 +77,10 @@ def _base_from(study: Any, base: Any, settings: PerturbSettings) -> PerturbBase:
     else:
         shapes = grids = atlas = distance = window = None
     if shapes is None and grids is None:
-        from specmap.shapes.build import build_shape
+        from specmap.pipeline import StudyRun  # the study's inputs: shapes (None for a grid file) and grids
 
-        shapes = (build_shape(study.f, study), build_shape(study.g, study))
+        run = StudyRun(study, show_progress=False)
+        shapes, grids = run.shapes, run.grids
     if grids is None:
         from specmap.grids import pareto_grid
 
@@ -91,20 +88,13 @@ def _base_from(study: Any, base: Any, settings: PerturbSettings) -> PerturbBase:
     if window is None:
         window = getattr(study, "window", None)
     if window is None:
-        from specmap.strip import default_window
+        from specmap.strip import window_for
 
-        sf, sg = shapes if shapes is not None else (None, None)
-        bf = sf.value_bounds() if sf is not None and sf.has_mesh else grids[0].bbox()
-        bg = sg.value_bounds() if sg is not None and sg.has_mesh else grids[1].bbox()
-        window = default_window(bf, bg)
+        window = window_for(shapes if shapes is not None else (None, None), grids)
     if shapes is not None and any(s is None or not s.has_mesh for s in shapes):
         shapes = None if settings.model == "grid" else shapes
     return make_base(tuple(grids), window, shapes=None if shapes is None else tuple(shapes), atlas=atlas,
                      distance=distance, settings=settings)
-
-
-def _size_tag(size: float) -> str:
-    return f"size-{size:.6g}"
 
 
 def perturbation_study(study: Any, *, out_dir: str | Path, runs: int | None = None, jobs: int = 1,
@@ -150,18 +140,5 @@ def perturbation_study(study: Any, *, out_dir: str | Path, runs: int | None = No
     """
     settings = settings_from_study(study, runs=runs)
     pbase = _base_from(study, base, settings)
-    folder = Path(out_dir) / "perturb"
-    summary = run_study(pbase, settings, folder, jobs=jobs, cluster=cluster, progress=progress)
-    sizes = getattr(study.perturb, "sizes", None)
-    if sizes:
-        rows = []
-        for s in sorted({float(x) for x in sizes} | {settings.size}):
-            if s == settings.size:
-                rows.append(sweep_row(summary))
-                continue
-            sub = run_study(pbase, dataclasses.replace(settings, size=s), folder / "sweep" / _size_tag(s),
-                            jobs=jobs, cluster=cluster, progress=progress)
-            rows.append(sweep_row(sub))
-        summary = {**summary, "sweep": rows}
-        write_json(folder / "summary.json", summary)
-    return summary
+    return run_study(pbase, settings, Path(out_dir) / "perturb", jobs=jobs, cluster=cluster, progress=progress,
+                     sizes=getattr(study.perturb, "sizes", None))

@@ -120,7 +120,7 @@ def summarize_runs(records: Sequence[dict[str, Any]], *, base: dict[str, Any], s
     Returns
     -------
     dict
-        JSON-ready; keys listed in :func:`specmap.perturb.runs.run_study`.
+        JSON-ready; keys listed in :func:`specmap.perturb.execution.run_study`.
     """
     recs = sorted(records, key=lambda r: int(r["run"]))
     n = len(recs)

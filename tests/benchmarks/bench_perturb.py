@@ -24,7 +24,7 @@ import numpy as np
 
 from specmap.grids.model import Contour, Grid
 from specmap.perturb import PerturbSettings, make_base, run_study
-from specmap.perturb.runs import load_runs, records_without_time
+from specmap.perturb.store import load_runs, records_without_time
 from specmap.shapes.model import Shape
 from specmap.strip import Window, default_window
 

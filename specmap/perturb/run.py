@@ -1,0 +1,294 @@
+"""One perturbation run as a pure function, and the values it reads and returns.
+
+:class:`PerturbSettings` decide a run set, :class:`PerturbBase` holds the unperturbed pair;
+:func:`run_one` perturbs the pair once (seeded by :func:`run_seed`), maps its special set again,
+compares it with the base (:func:`specmap.perturb.geometry.set_hausdorff`) and checks the
+stability bound of the matching distance (:func:`stability_check`).
+
+Seeds. Run ``i`` uses the seed ``SeedSequence(seed).spawn(i + 1)[i]`` (its first 32-bit word),
+which depends on ``(seed, i)`` only: results are identical for any number of jobs or workers,
+and the sizes of a sweep share their random directions (common random numbers).
+
+References
+----------
+.. [CDFFL13] Cerri, Di Fabio, Ferri, Frosini, Landi, Math. Methods Appl. Sci. 36 (2013):
+   D_k(f, g) <= ||f - g||_inf, hence |D(f', g') - D(f, g)| <= ||f - f'|| + ||g - g'||.
+"""
+
+from __future__ import annotations
+
+import math
+import time
+from dataclasses import asdict, dataclass
+from typing import Any
+
+import numpy as np
+import shapely
+
+from specmap.errors import StudyError
+from specmap.grids.model import Grid
+from specmap.io import to_plain
+from specmap.perturb.geometry import flat_parts, set_hausdorff
+from specmap.perturb.models import perturb_grid, perturb_shape
+from specmap.shapes.model import Shape
+from specmap.strip import Window
+
+STABILITY_SLACK = 1e-9
+"""Relative slack (times the value scale) allowed in the stability check, on top of reported
+distance tolerances."""
+
+TIME_FIELDS = ("time",)
+
+
+@dataclass(frozen=True)
+class PerturbSettings:
+    """Everything that decides the outcome of a run set (besides the base pair).
+
+    Attributes
+    ----------
+    model : {"function", "grid"}
+    size : float
+        Sup norm of the function change, or largest contour move.
+    runs : int
+        Number of runs wanted (not part of the fingerprint: a run set can be extended).
+    seed : int
+    pairs, resolution, method, tol
+        Passed to :func:`specmap.special.special_set`.
+    distance : bool
+        Recompute the matching distance in every run ("function" model only).
+    distance_method : str
+    degrees : tuple of int
+    dense_resolution : int
+    """
+
+    model: str = "function"
+    size: float = 1e-3
+    runs: int = 20
+    seed: int = 1
+    pairs: str = "all"
+    resolution: int = 121
+    method: str = "sweep"
+    tol: float | None = None
+    distance: bool = False
+    distance_method: str = "reduced"
+    degrees: tuple[int, ...] = (0, 1, 2)
+    dense_resolution: int = 41
+
+    def __post_init__(self) -> None:
+        if self.model not in ("function", "grid"):
+            raise StudyError(f"unknown perturbation model {self.model!r}", field="perturb.model",
+                             fix="use 'function' or 'grid'")
+        if not (self.size >= 0 and math.isfinite(self.size)):
+            raise StudyError(f"size {self.size!r} is not a finite number >= 0", field="perturb.size",
+                             fix="give size = 1e-3 (for example)")
+        if self.runs < 0:
+            raise StudyError("runs must be >= 0", field="perturb.runs", fix="give runs = 20 (for example)")
+        object.__setattr__(self, "degrees", tuple(int(d) for d in self.degrees))
+
+    def to_json(self) -> dict[str, Any]:
+        return to_plain(asdict(self))
+
+
+@dataclass(frozen=True, eq=False)
+class PerturbBase:
+    """The unperturbed pair and what runs are compared with.
+
+    Attributes
+    ----------
+    grid_f, grid_g : Grid
+    window : Window
+    shape_f, shape_g : Shape or None
+        Needed by the "function" model.
+    total_area : float
+        Patch area of the base special set.
+    counts : dict
+        Pieces of the base special set by kind.
+    geometry : shapely geometry
+        Union of the component geometries of the base special set, in (a, b).
+    distance : dict or None
+        ``{"value": float, "by_degree": {k: float}, "tolerance": float}`` of the base pair.
+    """
+
+    grid_f: Grid
+    grid_g: Grid
+    window: Window
+    shape_f: Shape | None = None
+    shape_g: Shape | None = None
+    total_area: float = 0.0
+    counts: Any = None
+    geometry: Any = None
+    distance: dict[str, Any] | None = None
+
+    def summary(self) -> dict[str, Any]:
+        return {"total_area": self.total_area, "counts": dict(self.counts or {}),
+                "distance": None if self.distance is None else self.distance["value"]}
+
+
+
+def atlas_digest(atlas: Any) -> tuple[float, dict[str, int], Any]:
+    """(total patch area, counts by kind, all component geometries in (a, b)) of an atlas.
+
+    The geometry is a flat :class:`shapely.GeometryCollection` of the components' parts (no
+    noding: only :func:`set_hausdorff` reads it).
+    """
+    js = atlas.to_json()
+    counts = {k: int(js["counts"].get(k, 0)) for k in ("curve", "patch", "point")}
+    geoms = [c.geometry for c in atlas.components if c.geometry is not None and not c.geometry.is_empty]
+    return float(js["total_area"]), counts, shapely.GeometryCollection(flat_parts(geoms))
+
+
+def _distance_digest(result: Any) -> dict[str, Any]:
+    """value, per-degree values, which degrees are certified, and the reported tolerance.
+
+    A degree whose entry says ``"certified": false`` is only a lower bound (the reduced search
+    certifies the max over degrees); the stability check skips such degrees.
+    """
+    js = result.to_json() if hasattr(result, "to_json") else dict(result)
+    by, certified = {}, []
+    for k, v in (js.get("by_degree") or {}).items():
+        by[str(k)] = float(v["value"] if isinstance(v, dict) else v)
+        if not isinstance(v, dict) or v.get("certified", True):
+            certified.append(str(k))
+    tol = js.get("tolerance", 0.0)
+    tol = float(tol) if isinstance(tol, (int, float)) else 0.0
+    return {"value": float(js["value"]), "by_degree": by, "certified": certified, "tolerance": tol}
+
+
+def _special(grid_f: Grid, grid_g: Grid, window: Window, settings: PerturbSettings) -> Any:
+    from specmap.special import special_set
+
+    return special_set(grid_f, grid_g, window, pairs=settings.pairs, resolution=settings.resolution,
+                       method=settings.method, tol=settings.tol)
+
+
+def _distance(shape_f: Shape, shape_g: Shape, grids: tuple[Grid, Grid], atlas: Any, window: Window,
+              settings: PerturbSettings) -> dict[str, Any]:
+    from specmap.distance import matching_distance
+
+    res = matching_distance(shape_f, shape_g, method=settings.distance_method, degrees=settings.degrees,
+                            window=window, atlas=atlas, grids=grids, dense_resolution=settings.dense_resolution)
+    return _distance_digest(res)
+
+
+def _pareto(shape: Shape) -> Grid:
+    from specmap.grids import pareto_grid
+
+    return pareto_grid(shape)
+
+
+def run_seed(seed: int, run_index: int) -> int:
+    """The seed of run ``run_index``: first 32-bit word of ``SeedSequence(seed).spawn(...)[run_index]``."""
+    child = np.random.SeedSequence(seed, spawn_key=(run_index,))
+    return int(child.generate_state(1, dtype=np.uint32)[0])
+
+
+def run_one(base: PerturbBase, run_index: int, seed: int, settings: PerturbSettings) -> dict[str, Any]:
+    """Perturb the base pair once, recompute its special set (and distance), compare.
+
+    Parameters
+    ----------
+    base : PerturbBase
+    run_index : int
+    seed : int
+        Seeds :func:`numpy.random.default_rng`; f and g get independent child streams.
+    settings : PerturbSettings
+
+    Returns
+    -------
+    dict
+        ``run``, ``seed``, ``size``, ``model``, ``applied`` ([f, g] sup norm of the change or
+        largest contour move), ``total_area``, ``counts``, ``has_patch``, ``hausdorff`` (to the
+        base special set, see :func:`set_hausdorff`), ``distance`` (``None`` unless
+        ``settings.distance`` and the "function" model: value, base, change, bound, by_degree
+        changes), ``stability_ok`` (``None`` without distance) and ``time`` (seconds).
+
+    References
+    ----------
+    .. [CDFFL13] stability: |D(f', g') - D(f, g)| <= ||f - f'||_inf + ||g - g'||_inf.
+    """
+    t0 = time.perf_counter()
+    ss_f, ss_g = np.random.SeedSequence(seed).spawn(2)
+    rng_f, rng_g = np.random.default_rng(ss_f), np.random.default_rng(ss_g)
+    shape_f = shape_g = None
+    if settings.model == "grid":
+        grid_f, moved_f = perturb_grid(base.grid_f, settings.size, rng_f)
+        grid_g, moved_g = perturb_grid(base.grid_g, settings.size, rng_g)
+    else:
+        if base.shape_f is None or base.shape_g is None:
+            raise StudyError("the 'function' model needs the shapes of f and g", field="perturb.model",
+                             fix="use model = 'grid' for grid-only studies")
+        shape_f, moved_f = perturb_shape(base.shape_f, settings.size, rng_f)
+        shape_g, moved_g = perturb_shape(base.shape_g, settings.size, rng_g)
+        grid_f, grid_g = _pareto(shape_f), _pareto(shape_g)
+    atlas = _special(grid_f, grid_g, base.window, settings)
+    area, counts, geometry = atlas_digest(atlas)
+    record: dict[str, Any] = {
+        "run": int(run_index),
+        "seed": int(seed),
+        "model": settings.model,
+        "size": float(settings.size),
+        "applied": [moved_f, moved_g],
+        "total_area": area,
+        "counts": counts,
+        "has_patch": counts["patch"] > 0,
+        "hausdorff": set_hausdorff(geometry, base.geometry, base.window),
+        "distance": None,
+        "stability_ok": None,
+    }
+    if settings.distance and settings.model == "function" and base.distance is not None:
+        new = _distance(shape_f, shape_g, (grid_f, grid_g), atlas, base.window, settings)
+        record["distance"], record["stability_ok"] = stability_check(base.distance, new, moved_f + moved_g)
+    record["time"] = time.perf_counter() - t0
+    return record
+
+
+def stability_check(before: dict[str, Any], after: dict[str, Any], bound: float) -> tuple[dict, bool]:
+    """Compare two distance digests against the stability bound [CDFFL13].
+
+    The allowed change is ``bound`` plus both reported tolerances plus
+    ``STABILITY_SLACK * max(1, |D|)`` for rounding; it is checked for the overall value and for
+    every degree certified in both (uncertified degrees are lower bounds only).
+
+    Returns
+    -------
+    (digest, ok) : (dict, bool)
+    """
+    slack = before["tolerance"] + after["tolerance"] + STABILITY_SLACK * max(1.0, abs(before["value"]))
+    change = after["value"] - before["value"]
+    by = {k: after["by_degree"][k] - v for k, v in before["by_degree"].items() if k in after["by_degree"]}
+    both = set(before.get("certified", by)) & set(after.get("certified", by))
+    ok = abs(change) <= bound + slack and all(abs(d) <= bound + slack for k, d in by.items() if k in both)
+    digest = {"value": after["value"], "base": before["value"], "change": change, "bound": bound,
+              "slack": slack, "by_degree_change": by, "certified_degrees": sorted(both)}
+    return digest, bool(ok)
+
+
+def make_base(grids: tuple[Grid, Grid], window: Window, *, shapes: tuple[Shape, Shape] | None = None,
+              atlas: Any = None, distance: Any = None, settings: PerturbSettings | None = None) -> PerturbBase:
+    """Assemble the base pair, computing its special set (and distance) when not given.
+
+    Parameters
+    ----------
+    grids : (Grid, Grid)
+    window : Window
+    shapes : (Shape, Shape), optional
+    atlas : Atlas, optional
+        Base special set; computed with ``settings`` when missing.
+    distance : DistanceResult or dict, optional
+        Base matching distance; computed when ``settings.distance`` asks for it and it is missing.
+    settings : PerturbSettings, optional
+    """
+    settings = settings or PerturbSettings()
+    if settings.model == "function" and (shapes is None or any(s is None or not s.has_mesh for s in shapes)):
+        raise StudyError("the 'function' model needs f and g as surfaces or meshes", field="perturb.model",
+                         fix="use model = 'grid' for studies given by grid files")
+    gf, gg = grids
+    if atlas is None:
+        atlas = _special(gf, gg, window, settings)
+    area, counts, geometry = atlas_digest(atlas)
+    sf, sg = shapes if shapes is not None else (None, None)
+    dist = None
+    if settings.distance and settings.model == "function" and sf is not None:
+        dist = _distance_digest(distance) if distance is not None else _distance(sf, sg, (gf, gg), atlas,
+                                                                                 window, settings)
+    return PerturbBase(gf, gg, window, sf, sg, area, counts, geometry, dist)
