@@ -18,14 +18,28 @@ from typing import Any
 
 from specmap import __version__
 from specmap.errors import SpecmapInputError
+from specmap.grids.model import Grid, read_grid
 from specmap.io import check_out_dir, read_json, write_json
 from specmap.progress import Progress
-from specmap.strip import Window, default_window
-from specmap.study import Study
+from specmap.shapes.model import Shape
+from specmap.strip import Window, window_for
+from specmap.study import ShapeSpec, Study
 
 
 def default_out(study: Study) -> Path:
     return Path("results") / study.name
+
+
+def load_input(spec: ShapeSpec, study: Study) -> Shape | Grid:
+    """What a study gives for f or g: a :class:`Shape` (surface or mesh), or the :class:`Grid` of a grid file.
+
+    A grid file's contour ids are prefixed with the spec's label (``"f"`` or ``"g"``).
+    """
+    if spec.source == "grid":
+        return read_grid(spec.path, prefix=spec.label)
+    from specmap.shapes.build import build_shape  # local: meshio, scipy and the expression compiler
+
+    return build_shape(spec, study)
 
 
 class StudyRun:
@@ -60,30 +74,31 @@ class StudyRun:
 
     # -- stages -----------------------------------------------------------
     @cached_property
-    def shapes(self):
-        from specmap.shapes.build import build_shape
-
-        return build_shape(self.study.f, self.study), build_shape(self.study.g, self.study)
+    def inputs(self) -> tuple[Shape | Grid, Shape | Grid]:
+        """f and g as the study gives them (see :func:`load_input`)."""
+        return load_input(self.study.f, self.study), load_input(self.study.g, self.study)
 
     @cached_property
-    def grids(self):
+    def shapes(self) -> tuple[Shape | None, Shape | None]:
+        """The shapes of f and g; None for a side given as a grid file."""
+        sf, sg = (x if isinstance(x, Shape) else None for x in self.inputs)
+        return sf, sg
+
+    @cached_property
+    def grids(self) -> tuple[Grid, Grid]:
         from specmap.grids import pareto_grid
 
-        sf, sg = self.shapes
         try:
-            return pareto_grid(sf), pareto_grid(sg)
+            gf, gg = (x if isinstance(x, Grid) else pareto_grid(x) for x in self.inputs)
         except SpecmapInputError as exc:  # core errors name the field; the study file is known here
             raise exc.located(file=str(self.study.path)) from None
+        return gf, gg
 
     @cached_property
     def window(self) -> Window:
         if self.study.window is not None:
             return self.study.window
-        sf, sg = self.shapes
-        gf, gg = self.grids
-        bf = sf.value_bounds() if sf.has_mesh else gf.bbox()
-        bg = sg.value_bounds() if sg.has_mesh else gg.bbox()
-        return default_window(bf, bg)
+        return window_for(self.shapes, self.grids)
 
     def atlas(self, *, pairs: str | None = None, resolution: int | None = None, method: str | None = None):
         key = (pairs or self.study.map.pairs, resolution or self.study.map.resolution,

@@ -27,7 +27,8 @@ import gudhi
 import numpy as np
 
 from specmap.bottleneck import exact_bottleneck
-from specmap.errors import StudyError
+from specmap.meshtable import mesh_edges as mesh_edges  # re-exported: the one edge table
+from specmap.shapes.model import require_mesh
 
 DEGREES = (0, 1, 2)
 
@@ -74,13 +75,6 @@ def normalised_values(values: np.ndarray, a: float, b: float) -> np.ndarray:
     return np.maximum(((1.0 - a) / a) * x, y)
 
 
-def mesh_edges(triangles: np.ndarray) -> np.ndarray:
-    """Unique edges (m, 2), each sorted, of a triangle array."""
-    t = np.asarray(triangles, dtype=np.int64)
-    e = np.concatenate([t[:, [0, 1]], t[:, [1, 2]], t[:, [0, 2]]])
-    return np.unique(np.sort(e, axis=1), axis=0)
-
-
 class SliceEngine:
     """Slice diagrams of one meshed map, the simplex tree built once.
 
@@ -122,13 +116,10 @@ class SliceEngine:
 
         Raises
         ------
-        StudyError
-            When the shape is a grid without a mesh.
+        MeshRequiredError
+            When given no shape with a mesh (e.g. a grid read from a file).
         """
-        if not getattr(shape, "has_mesh", False):
-            label = getattr(shape, "label", "the shape")
-            raise StudyError(f"{label} has no mesh, so no slice diagrams",
-                             fix="give a surface or mesh for f and g")
+        shape = require_mesh(shape, "slice diagrams")
         return cls(shape.triangles, shape.values)
 
     def filtration_values(self, a: float, b: float) -> np.ndarray:

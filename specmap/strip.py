@@ -22,10 +22,12 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 from dataclasses import dataclass
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 
-from specmap.grids.model import Contour
+if TYPE_CHECKING:  # annotations only: this module (and Window) does not import the grid model
+    from specmap.grids.model import Contour
 
 A_MARGIN = 0.02
 
@@ -86,6 +88,26 @@ def default_window(
     b_lo = min(f1lo, g1lo, -f2hi, -g2hi)
     b_hi = max(f1hi, g1hi, -f2lo, -g2lo)
     return Window((margin, 1.0 - margin), (b_lo, b_hi))
+
+
+def window_for(shapes: Sequence[Any], grids: Sequence[Any], margin: float = A_MARGIN) -> Window:
+    """The default window of a pair: :func:`default_window` of the value bounds of f and g.
+
+    The one rule for the bounds of each side: the vertex values of its shape when
+    it has a mesh, else the bounding box of its grid (a grid given by a file).
+
+    Parameters
+    ----------
+    shapes : (Shape or None, Shape or None)
+        The shapes of f and g (None for a side given as a grid file).
+    grids : (Grid, Grid)
+        Their extended Pareto grids.
+    margin : float
+        Distance of ``a`` from 0 and 1.
+    """
+    bounds = [s.value_bounds() if s is not None and getattr(s, "has_mesh", False) else g.bbox()
+              for s, g in zip(shapes, grids, strict=True)]
+    return default_window(bounds[0], bounds[1], margin)
 
 
 def push_scale(a: np.ndarray | float) -> np.ndarray:

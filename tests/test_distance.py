@@ -263,7 +263,7 @@ def test_grid_only_shapes_raise():
     grid = Grid((Contour("f:v0", "vertical", [0.0, 0.0]),))
     V, T, f = ellipsoid_pair(100)
     with pytest.raises(StudyError, match="no mesh"):
-        matching_distance(Shape("f", "grid", grid=grid), Shape("g", "mesh", V, T, f))
+        matching_distance(grid, Shape("g", "mesh", V, T, f))  # a grid file gives a Grid, not a Shape
     sf, sg = shapes(V, T, f, f)
     with pytest.raises(StudyError, match="grids"):
         matching_distance(sf, sg, method="reduced")

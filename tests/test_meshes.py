@@ -159,3 +159,27 @@ def test_orientation_repair():
     a, b, c = (V[To[:, k]] for k in range(3))
     vol = np.einsum("ij,ij->i", a, np.cross(b, c)).sum() / 6
     assert abs(abs(vol) - 2 * np.pi ** 2 * 2.0) < 0.25 * 2 * np.pi ** 2 * 2.0
+
+
+def test_edge_table_matches_brute_force():
+    # The one edge/face table (specmap.meshtable) against a dictionary built triangle by triangle
+    # in the test (brute force): edges, counts, the two faces, opposite vertices, per-triangle edge ids.
+    from specmap.meshtable import edges_and_faces as table_of
+    from specmap.meshtable import mesh_edges
+
+    V, T = torus_mesh(2.0, 0.7, 9, 6)
+    seen: dict[tuple[int, int], list[tuple[int, int]]] = {}
+    for t, tri in enumerate(T.tolist()):
+        for k in range(3):
+            u, v, w = tri[k], tri[(k + 1) % 3], tri[(k + 2) % 3]
+            seen.setdefault((min(u, v), max(u, v)), []).append((t, w))
+    keys = sorted(seen)
+    table = table_of(T)
+    assert table.edges.tolist() == [list(e) for e in keys]
+    assert mesh_edges(T).tolist() == table.edges.tolist()
+    assert table.counts.tolist() == [len(seen[e]) for e in keys]
+    assert table.faces.tolist() == [[f for f, _ in seen[e]] for e in keys]
+    assert table.opposite.tolist() == [[w for _, w in seen[e]] for e in keys]
+    for t, tri in enumerate(T.tolist()):
+        ends = [sorted((tri[k], tri[(k + 1) % 3])) for k in range(3)]
+        assert [table.edges[i].tolist() for i in table.triangle_edges[t]] == ends

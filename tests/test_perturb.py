@@ -191,10 +191,10 @@ def test_perturb_surface_gives_map_with_exact_jacobian():
 
 
 def test_perturb_shape_rejects_grid_only():
-    # construction: grid-only shapes have no values to perturb.
-    g, _ = four_verticals()
+    # construction: a shape without vertex values has nothing to perturb (grid files give a Grid,
+    # perturbed by perturb_grid).
     with pytest.raises(ValueError, match="grid"):
-        perturb_shape(Shape("f", "grid", grid=g), 0.1, np.random.default_rng(0))
+        perturb_shape(Shape("f", "mesh"), 0.1, np.random.default_rng(0))
 
 
 # --------------------------------------------------------------------------- pure helpers

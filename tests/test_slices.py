@@ -21,12 +21,12 @@ import pytest
 
 from specmap.errors import StudyError
 from specmap.grids.model import Contour, Grid
-from specmap.shapes.model import Shape
+from specmap.meshtable import mesh_edges
+from specmap.shapes.model import MeshRequiredError, Shape
 from specmap.shapes.surfaces import Ellipsoid, Torus
 from specmap.slices import (
     SliceEngine,
     bottleneck,
-    mesh_edges,
     normalised_values,
     slice_diagrams,
     split_infinite,
@@ -276,10 +276,13 @@ def test_refiltering_matches_fresh_tree():
             assert np.allclose(got[k][key(got[k].T[::-1])], ref[key(ref.T[::-1])])
 
 
-def test_grid_only_shape_has_no_slices():
+def test_grid_only_input_has_no_slices():
+    # A grid read from a file is a Grid, not a Shape: no mesh, so no slice diagrams (one-line error).
     grid = Grid((Contour("f:v0", "vertical", [[0.0, 0.0]]),))
     with pytest.raises(StudyError, match="no mesh"):
-        slice_diagrams(Shape("f", "grid", grid=grid), 0.5, 0.0)
+        slice_diagrams(grid, 0.5, 0.0)
+    with pytest.raises(MeshRequiredError, match="f has no mesh, so no slice diagrams"):
+        slice_diagrams(Shape("f", "mesh"), 0.5, 0.0)
 
 
 # -- bottleneck ------------------------------------------------------------------------------

@@ -3,6 +3,10 @@
 - ``exact``: closed form for linear maps on ellipsoids;
 - ``smooth``: Jacobi-set tracing on smooth implicit surfaces;
 - ``piecewise``: PL Pareto edges on triangle meshes.
+
+A grid given by a file is read with :func:`read_grid` and is already a
+:class:`Grid`; :func:`pareto_grid` computes the grid of a
+:class:`~specmap.shapes.model.Shape` (a surface or a mesh).
 """
 
 from __future__ import annotations
@@ -11,8 +15,10 @@ import dataclasses
 from typing import TYPE_CHECKING
 
 from specmap.errors import StudyError
-from specmap.grids.exact import is_dependent_linear, is_exact_case
+from specmap.grids.exact import ellipsoid_linear_grid, is_dependent_linear, is_exact_case
 from specmap.grids.model import Contour, Grid, grid_from_json, read_grid, validate_grid
+from specmap.grids.piecewise import piecewise_grid
+from specmap.grids.smooth import smooth_grid
 
 if TYPE_CHECKING:
     from specmap.shapes.model import Shape
@@ -21,9 +27,7 @@ __all__ = ["Contour", "Grid", "grid_from_json", "read_grid", "validate_grid", "p
 
 
 def route_for(shape: Shape) -> str:
-    """The route :func:`pareto_grid` takes for a shape."""
-    if shape.source == "grid":
-        return "file"
+    """The route :func:`pareto_grid` takes for a shape: ``"piecewise"``, ``"exact"`` or ``"smooth"``."""
     if shape.source == "mesh":
         return "piecewise"
     if shape.fmap is not None and is_dependent_linear(shape.fmap):
@@ -46,6 +50,7 @@ def pareto_grid(shape: Shape, *, simplify: float | None = None) -> Grid:
     Parameters
     ----------
     shape : Shape
+        A surface or a mesh (a grid file is read with :func:`read_grid` instead).
     simplify : float, optional
         PL route only: drop proper contours shorter than this (value units);
         default is the shape's own setting (off).
@@ -61,12 +66,7 @@ def pareto_grid(shape: Shape, *, simplify: float | None = None) -> Grid:
     """
     route = route_for(shape)
     label = shape.label
-    if route == "file":
-        assert shape.grid is not None
-        return shape.grid.relabelled(label)
     if route == "piecewise":
-        from specmap.grids.piecewise import piecewise_grid
-
         s = shape.meta.get("simplify", 0.0) if simplify is None else simplify
         grid = piecewise_grid(shape.vertices, shape.triangles, shape.values, label=label, simplify=s)
         hygiene = shape.meta.get("hygiene")
@@ -74,11 +74,7 @@ def pareto_grid(shape: Shape, *, simplify: float | None = None) -> Grid:
             grid = dataclasses.replace(grid, meta={**grid.meta, "mesh_hygiene": dict(hygiene)})
         return grid
     if route == "exact":
-        from specmap.grids.exact import ellipsoid_linear_grid
-
         return ellipsoid_linear_grid(shape.surface.radii, shape.fmap.matrix(), shape.fmap.offset(),
                                      label=label)
-    from specmap.grids.smooth import smooth_grid
-
     return smooth_grid(shape.surface, shape.fmap, label=label,
                        resolution=int(shape.meta.get("resolution", 4000)))

@@ -63,7 +63,7 @@ from scipy.sparse import coo_matrix
 from scipy.sparse.csgraph import connected_components
 
 from specmap.grids.model import Contour, Grid, validate_grid
-from specmap.shapes.meshes import EdgeTable, edges_and_faces
+from specmap.meshtable import EdgeTable, edges_and_faces
 
 
 @dataclass(frozen=True)

@@ -36,6 +36,7 @@ from typing import Any, Protocol
 import numpy as np
 
 from specmap.grids.model import Contour, Grid, validate_grid
+from specmap.meshtable import edges_and_faces
 
 __all__ = ["CriticalPoint", "critical_points", "smooth_grid", "jacobi_cycles"]
 
@@ -110,10 +111,8 @@ def _fd_hessian(fmap: SmoothMap, P: np.ndarray, which: int, h: float) -> np.ndar
 
 def _edges(T: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     """Unique undirected edges (m, 2) and, per triangle, the ids of its edges (bc, ca, ab)."""
-    half = np.concatenate([T[:, [1, 2]], T[:, [2, 0]], T[:, [0, 1]]])
-    key = np.sort(half, axis=1)
-    E, inv = np.unique(key, axis=0, return_inverse=True)
-    return E, inv.reshape(3, -1).T
+    table = edges_and_faces(T)
+    return table.edges, table.triangle_edges[:, [1, 2, 0]]
 
 
 def _mesh_spacing(V: np.ndarray, E: np.ndarray) -> float:

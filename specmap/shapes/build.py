@@ -1,7 +1,10 @@
-"""Turn a :class:`~specmap.study.ShapeSpec` into a :class:`~specmap.shapes.model.Shape`.
+"""Turn a surface or mesh :class:`~specmap.study.ShapeSpec` into a :class:`~specmap.shapes.model.Shape`.
 
-This is the I/O edge for shapes: it reads meshes and grid files, compiles
-expressions and meshes smooth surfaces at their resolution.
+This is the I/O edge for shapes: it reads meshes, compiles expressions and
+meshes smooth surfaces at their resolution. A grid file is not a shape: the
+pipeline reads it with :func:`specmap.grids.model.read_grid` (see
+:func:`specmap.pipeline.load_input`), so this package never imports
+:mod:`specmap.grids`.
 """
 
 from __future__ import annotations
@@ -9,32 +12,33 @@ from __future__ import annotations
 import numpy as np
 
 from specmap.errors import SpecmapInputError, StudyError
-from specmap.grids.model import read_grid
+from specmap.expr import compile_map
+from specmap.shapes.meshes import read_mesh
 from specmap.shapes.model import Shape
+from specmap.shapes.surfaces import make_surface
 
 
 def build_shape(spec, study) -> Shape:
-    """Load or construct the shape a study names for f or g.
+    """Load or construct the surface or mesh a study names for f or g.
 
     Parameters
     ----------
     spec : ShapeSpec
+        ``spec.source`` is ``"surface"`` or ``"mesh"``.
     study : Study
         For its file name (errors) and constants (expressions).
 
     Raises
     ------
     SpecmapInputError
-        Bad expression, unreadable mesh or grid file, non-finite values.
+        Bad expression, unreadable mesh file, non-finite values.
+    ValueError
+        For a grid-file spec (a grid is not a shape; read it with ``read_grid``).
     """
     file = str(study.path)
     label = spec.label
-    if spec.source == "grid":
-        grid = read_grid(spec.path, prefix=label)
-        return Shape(label, "grid", grid=grid, description=spec.describe(),
-                     meta={"path": str(spec.path)})
-    from specmap.expr import compile_map
-
+    if spec.source not in ("surface", "mesh"):
+        raise ValueError(f"{label}: a {spec.source!r} spec is not a shape (grid files are read with read_grid)")
     fmap = None
     if spec.map is not None:
         try:
@@ -42,8 +46,6 @@ def build_shape(spec, study) -> Shape:
         except SpecmapInputError as exc:
             raise exc.located(file=file, field=f"{label}.map") from None
     if spec.source == "surface":
-        from specmap.shapes.surfaces import make_surface
-
         surface = make_surface(spec.surface, spec.radii)
         V, T = surface.mesh(spec.resolution)
         values = fmap.values(V)
@@ -51,8 +53,6 @@ def build_shape(spec, study) -> Shape:
         return Shape(label, "surface", V, T, values, surface=surface, fmap=fmap,
                      description=spec.describe(),
                      meta={"resolution": spec.resolution, "vertices": len(V), "route": spec.route})
-    from specmap.shapes.meshes import read_mesh
-
     hygiene: dict = {}
     V, T, fields = read_mesh(spec.path, fields=spec.fields, counts=hygiene)
     values = fmap.values(V) if fmap is not None else fields

@@ -18,7 +18,6 @@ from __future__ import annotations
 import contextlib
 import io
 import sys
-from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
@@ -26,69 +25,9 @@ from scipy.sparse import coo_matrix
 from scipy.sparse.csgraph import breadth_first_order, connected_components
 
 from specmap.errors import MeshError
+from specmap.meshtable import EdgeTable, edges_and_faces
 
 FORMATS = {".ply": "ply", ".off": "off", ".obj": "obj"}
-
-
-@dataclass(frozen=True)
-class EdgeTable:
-    """The edges of a triangle mesh with their incident triangles.
-
-    Attributes
-    ----------
-    edges : ndarray (E, 2) of int
-        Vertex pairs with ``edges[:, 0] < edges[:, 1]``, sorted.
-    counts : ndarray (E,) of int
-        Number of triangles on each edge (2 on a closed 2-manifold).
-    faces : ndarray (E, 2) of int
-        For edges with ``counts == 2``: the two triangles; -1 elsewhere.
-    opposite : ndarray (E, 2) of int
-        For edges with ``counts == 2``: the vertex of each of those triangles
-        that is not on the edge; -1 elsewhere.
-    """
-
-    edges: np.ndarray
-    counts: np.ndarray
-    faces: np.ndarray
-    opposite: np.ndarray
-
-
-def edges_and_faces(T: np.ndarray) -> EdgeTable:
-    """Edge table of a triangle array: each edge, its triangles and opposite vertices.
-
-    Parameters
-    ----------
-    T : ndarray (m, 3) of int
-
-    Returns
-    -------
-    EdgeTable
-    """
-    T = np.asarray(T, dtype=np.int64).reshape(-1, 3)
-    m = len(T)
-    a = T[:, [0, 1, 2]].reshape(-1)
-    b = T[:, [1, 2, 0]].reshape(-1)
-    c = T[:, [2, 0, 1]].reshape(-1)
-    face = np.repeat(np.arange(m), 3)
-    lo = np.minimum(a, b)
-    hi = np.maximum(a, b)
-    order = np.lexsort((hi, lo))
-    lo, hi, c, face = lo[order], hi[order], c[order], face[order]
-    if len(lo) == 0:
-        empty = np.empty((0, 2), dtype=np.int64)
-        return EdgeTable(empty, np.empty(0, dtype=np.int64), empty, empty)
-    new = np.ones(len(lo), dtype=bool)
-    new[1:] = (lo[1:] != lo[:-1]) | (hi[1:] != hi[:-1])
-    starts = np.nonzero(new)[0]
-    counts = np.diff(np.append(starts, len(lo)))
-    edges = np.stack([lo[starts], hi[starts]], axis=1)
-    faces = np.full((len(starts), 2), -1, dtype=np.int64)
-    opposite = np.full((len(starts), 2), -1, dtype=np.int64)
-    two = counts == 2
-    s2 = starts[two]
-    faces[two] = np.stack([face[s2], face[s2 + 1]], axis=1)
-    opposite[two] = np.stack([c[s2], c[s2 + 1]], axis=1)
-    return EdgeTable(edges, counts, faces, opposite)
 
 
 def euler_characteristic(V: np.ndarray, T: np.ndarray) -> int:
