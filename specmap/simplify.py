@@ -1,0 +1,541 @@
+"""Persistence-sensitive simplification of PL functions on closed triangulated surfaces.
+
+Given vertex values f of a PL function on a closed surface (any genus, any
+number of components) and a threshold delta >= 0, :func:`simplify_function`
+returns f' with ||f - f'||_inf <= delta whose persistence diagram has no
+finite pair of persistence below delta, keeping every essential class
+[EMP06]_, [AGHLM09]_. It works in two passes over vertices, each a union-find
+sweep of the lower-star filtration (the 0-dimensional persistence of the
+sublevel sets, elder rule):
+
+1. **minima**: call a minimum *significant* when its 0-dimensional pair has
+   persistence >= delta (or it is essential). Then
+   f'(v) = min{t >= f(v) : the component of v in {f <= t} holds a significant
+   minimum}: every basin of an insignificant minimum is filled up to the
+   saddle where it joins a significant component. Following the chain of
+   merges, f'(v) - f(v) < delta;
+2. **maxima**: the same on -f', which removes the saddle-maximum pairs (on a
+   closed surface the finite 1-dimensional pairs of f are the finite
+   0-dimensional pairs of -f [CEH09]_). On a surface the two passes do not
+   undo each other [AGHLM09]_.
+
+Flat regions (the symbolic rule). The input is first made injective: ties
+are broken by (value, vertex index) and spread upward by less than the gap to
+the next distinct value. A filled basin B, attached at its saddle w, is laid
+just above f(w) in the order of the discrete harmonic function on B that is
+0 at w and 1 at every other neighbour of B (uniform weights); by the
+maximum principle no vertex of B is then a new extremum, so the only
+critical points left in the filled region are the saddles its topology
+forces. The values are f(w) + eta k / (|B| + 1), k = 1 .. |B| in that order,
+with eta below both the gap to the next value above f(w) and the slack to
+delta; f' is injective on vertices, and the offsets are part of the measured
+change ``sup_change``. If float ties in the harmonic order leave a short
+pair, the two passes are repeated (``rounds``), never beyond the delta budget
+of any vertex; ``short_pairs_left`` reports what (if anything) remained.
+
+Critical points are counted as PL critical vertices from the lower link
+[Ban67]_ (saddles with multiplicity), by
+:func:`specmap.grids.piecewise.pl_critical_vertices`.
+
+References
+----------
+.. [EMP06] Edelsbrunner, Morozov, Pascucci, "Persistence-sensitive
+   simplification of functions on 2-manifolds", Proc. 22nd ACM Symposium on
+   Computational Geometry (2006).
+.. [AGHLM09] Attali, Glisse, Hornus, Lazarus, Morozov, "Persistence-sensitive
+   simplification of functions on surfaces in linear time", TopoInVis (2009).
+.. [CEH09] Cohen-Steiner, Edelsbrunner, Harer, "Extending persistence using
+   Poincaré and Lefschetz duality", Found. Comput. Math. 9 (2009).
+.. [Ban67] Banchoff, "Critical points and curvature for embedded polyhedra",
+   J. Differential Geom. 1 (1967).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from dataclasses import dataclass
+
+import numba
+import numpy as np
+from scipy.sparse import coo_matrix, csr_matrix
+from scipy.sparse.linalg import spsolve
+
+MAX_ROUNDS = 4
+
+
+# --------------------------------------------------------------------------- compiled sweeps
+
+
+@numba.njit(cache=True, nogil=True)
+def _find(parent: np.ndarray, x: int) -> int:
+    root = x
+    while parent[root] != root:
+        root = parent[root]
+    while parent[x] != root:  # path compression
+        nxt = parent[x]
+        parent[x] = root
+        x = nxt
+    return root
+
+
+@numba.njit(cache=True, nogil=True)
+def _zero_pairs(order: np.ndarray, rank: np.ndarray, indptr: np.ndarray,
+                indices: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """0-dimensional lower-star persistence by union-find (elder rule).
+
+    Returns (birth vertices, death vertices) of the finite pairs and the essential minima.
+    """
+    n = len(order)
+    parent = np.arange(n)
+    oldest = np.arange(n)  # oldest minimum (vertex) of each root
+    births = np.empty(n, dtype=np.int64)
+    deaths = np.empty(n, dtype=np.int64)
+    npairs = 0
+    is_min = np.zeros(n, dtype=np.bool_)
+    for v in order:
+        rv = rank[v]
+        root = -1
+        for p in range(indptr[v], indptr[v + 1]):
+            u = indices[p]
+            if rank[u] > rv:
+                continue
+            ru = _find(parent, u)
+            if root == -1:
+                root = ru
+            elif ru != root:
+                # the younger of the two components dies at v
+                if rank[oldest[ru]] < rank[oldest[root]]:
+                    ru, root = root, ru
+                births[npairs] = oldest[ru]
+                deaths[npairs] = v
+                npairs += 1
+                parent[ru] = root
+        if root == -1:
+            is_min[v] = True
+        else:
+            parent[v] = root
+    alive = np.zeros(n, dtype=np.bool_)
+    for i in range(n):
+        if is_min[i]:
+            alive[i] = True
+    for k in range(npairs):
+        alive[births[k]] = False
+    return births[:npairs].copy(), deaths[:npairs].copy(), np.nonzero(alive)[0]
+
+
+@numba.njit(cache=True, nogil=True)
+def _settle(order: np.ndarray, rank: np.ndarray, indptr: np.ndarray, indices: np.ndarray,
+            significant: np.ndarray) -> np.ndarray:
+    """For each vertex v the vertex w at which v's component first holds a significant minimum.
+
+    ``settle[v] == v`` for vertices that keep their value; otherwise v lies in a basin of
+    insignificant minima filled up to the value of w.
+    """
+    n = len(order)
+    parent = np.arange(n)
+    flag = np.zeros(n, dtype=np.bool_)
+    head = np.full(n, -1, dtype=np.int64)  # pending members of an unflagged root (linked list)
+    tail = np.full(n, -1, dtype=np.int64)
+    nxt = np.full(n, -1, dtype=np.int64)
+    settle = np.arange(n)
+    roots = np.empty(64, dtype=np.int64)
+    for v in order:
+        rv = rank[v]
+        nr = 0
+        for p in range(indptr[v], indptr[v + 1]):
+            u = indices[p]
+            if rank[u] > rv:
+                continue
+            ru = _find(parent, u)
+            seen = False
+            for k in range(nr):
+                if roots[k] == ru:
+                    seen = True
+                    break
+            if not seen:
+                if nr == len(roots):
+                    bigger = np.empty(2 * nr, dtype=np.int64)
+                    bigger[:nr] = roots
+                    roots = bigger
+                roots[nr] = ru
+                nr += 1
+        flagged = significant[v] if nr == 0 else False
+        for k in range(nr):
+            if flag[roots[k]]:
+                flagged = True
+        if flagged:
+            for k in range(nr):
+                r = roots[k]
+                if not flag[r]:
+                    m = head[r]
+                    while m != -1:
+                        settle[m] = v
+                        m = nxt[m]
+                    head[r] = -1
+                    tail[r] = -1
+                parent[r] = v
+            flag[v] = True
+        else:
+            head[v] = v
+            tail[v] = v
+            for k in range(nr):
+                r = roots[k]
+                if head[r] != -1:
+                    nxt[tail[v]] = head[r]
+                    tail[v] = tail[r]
+                    head[r] = -1
+                    tail[r] = -1
+                parent[r] = v
+    return settle
+
+
+# --------------------------------------------------------------------------- helpers
+
+
+def adjacency(tri: np.ndarray, n: int) -> tuple[np.ndarray, np.ndarray]:
+    """CSR (indptr, indices) of the vertex graph of a triangle mesh (each edge once per end)."""
+    T = np.asarray(tri, dtype=np.int64)
+    e = np.concatenate([T[:, [0, 1]], T[:, [1, 2]], T[:, [2, 0]]])
+    e = np.concatenate([e, e[:, ::-1]])
+    A = csr_matrix((np.ones(len(e)), (e[:, 0], e[:, 1])), shape=(n, n))
+    A.sum_duplicates()
+    A.sort_indices()
+    return A.indptr.astype(np.int64), A.indices.astype(np.int64)
+
+
+def _ranks(f: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    order = np.lexsort((np.arange(len(f)), f)).astype(np.int64)
+    rank = np.empty(len(f), dtype=np.int64)
+    rank[order] = np.arange(len(f))
+    return order, rank
+
+
+def make_injective(values: np.ndarray, limit: float = np.inf) -> np.ndarray:
+    """Spread exact ties upward in (value, vertex index) order.
+
+    Each tied value moves up by less than a third of the gap to the next distinct value and
+    less than ``limit``, so the order by (value, index) is kept; a tie-free input is returned
+    unchanged (a copy).
+    """
+    f = np.array(values, dtype=float)
+    order, _ = _ranks(f)
+    s = f[order]
+    d = np.diff(s)
+    if len(s) < 2 or (d > 0).all():
+        return f
+    distinct = np.unique(s)
+    gaps = np.diff(distinct)
+    base = float(gaps.min()) if len(gaps) else max(abs(float(s[0])), 1.0)
+    start = np.r_[True, d > 0]
+    group = np.cumsum(start) - 1
+    first = np.nonzero(start)[0]
+    pos = np.arange(len(s)) - first[group]
+    size = np.bincount(group)[group]
+    s = s + min(base / 3.0, limit) * pos / size
+    out = np.empty_like(f)
+    out[order] = s
+    return out
+
+
+def _harmonic_key(members: np.ndarray, settle: np.ndarray, indptr: np.ndarray,
+                  indices: np.ndarray) -> np.ndarray:
+    """Discrete harmonic function on every filled region: 0 at its saddle, 1 on its other neighbours."""
+    n = len(settle)
+    local = np.full(n, -1, dtype=np.int64)
+    local[members] = np.arange(len(members))
+    deg = np.diff(indptr)
+    rows = np.repeat(members, deg[members])
+    counts = deg[members]
+    offsets = np.repeat(indptr[members] - np.r_[0, np.cumsum(counts)[:-1]], counts)
+    cols = indices[offsets + np.arange(int(counts.sum()))]
+    same = (local[cols] >= 0) & (settle[cols] == settle[rows])
+    at_saddle = cols == settle[rows]
+    rhs = np.bincount(local[rows], weights=(~same & ~at_saddle).astype(float), minlength=len(members))
+    m = len(members)
+    A = coo_matrix((np.r_[deg[members].astype(float), -np.ones(int(same.sum()))],
+                    (np.r_[np.arange(m), local[rows[same]]], np.r_[np.arange(m), local[cols[same]]])),
+                   shape=(m, m)).tocsc()
+    return np.atleast_1d(spsolve(A, rhs))
+
+
+def _one_pass(f: np.ndarray, delta: float, hi: np.ndarray, indptr: np.ndarray,
+              indices: np.ndarray) -> tuple[np.ndarray, int]:
+    """Fill the basins of the minima of persistence < delta, raising no vertex above ``hi``.
+
+    Returns the new values and the number of basins filled.
+    """
+    order, rank = _ranks(f)
+    births, deaths, _ = _zero_pairs(order, rank, indptr, indices)
+    pers = f[deaths] - f[births]
+    short = pers < delta
+    if not short.any():
+        return f, 0
+    significant = np.ones(len(f), dtype=bool)
+    significant[births[short]] = False
+    settle = _settle(order, rank, indptr, indices, significant)
+    members = np.nonzero(settle != np.arange(len(f)))[0]
+    level = f[settle[members]]
+    key = _harmonic_key(members, settle, indptr, indices)
+    # order inside each filled region: by (saddle, harmonic key, vertex index)
+    o = np.lexsort((members, key, settle[members]))
+    mem, lev, sad = members[o], level[o], settle[members][o]
+    start = np.r_[True, sad[1:] != sad[:-1]]
+    group = np.cumsum(start) - 1
+    first = np.nonzero(start)[0]
+    k = np.arange(len(mem)) - first[group] + 1
+    size = np.bincount(group)
+    # eta per region: below the gap to the next kept value above the level, and the budget slack
+    kept = np.sort(f[settle == np.arange(len(f))])
+    above = np.searchsorted(kept, lev[first], side="right")
+    gap = np.where(above < len(kept), kept[np.minimum(above, len(kept) - 1)] - lev[first], np.inf)
+    slack = np.minimum.reduceat(hi[mem] - lev, first)
+    ok = slack > 0
+    eta = 0.5 * np.minimum(gap, slack)
+    eta = np.where(np.isfinite(eta), eta, 1.0)
+    g = f.copy()
+    fill = ok[group]
+    g[mem[fill]] = lev[fill] + eta[group[fill]] * k[fill] / (size[group[fill]] + 1)
+    return g, int(ok.sum())
+
+
+def _short_pairs(f: np.ndarray, delta: float, indptr: np.ndarray, indices: np.ndarray) -> int:
+    """Finite pairs (minimum-saddle of f and of -f) with persistence < delta."""
+    total = 0
+    for h in (f, -f):
+        order, rank = _ranks(h)
+        b, d, _ = _zero_pairs(order, rank, indptr, indices)
+        total += int((h[d] - h[b] < delta).sum())
+    return total
+
+
+def persistence_values(tri: np.ndarray, values: np.ndarray) -> np.ndarray:
+    """Sorted persistences of the finite pairs of f (minimum-saddle pairs of f and of -f).
+
+    On a closed surface these are all finite pairs of the lower-star filtration
+    (the saddle-maximum pairs of f are the minimum-saddle pairs of -f [CEH09]_).
+    """
+    f = np.asarray(values, dtype=float)
+    indptr, indices = adjacency(tri, len(f))
+    out = []
+    for h in (f, -f):
+        order, rank = _ranks(h)
+        b, d, _ = _zero_pairs(order, rank, indptr, indices)
+        out.append(h[d] - h[b])
+    return np.sort(np.concatenate(out))
+
+
+# --------------------------------------------------------------------------- public API
+
+
+@dataclass(frozen=True)
+class Simplified:
+    """One simplified function.
+
+    Attributes
+    ----------
+    values : ndarray (n,)
+        f' at the vertices, injective (value units).
+    delta : float
+        The threshold asked for (value units).
+    sup_change : float
+        Measured max |f - f'| over the vertices, tie-breaking offsets included (<= delta).
+    critical_before, critical_after : dict
+        PL critical vertices {"min", "saddle", "max"} of f and f' (saddles with multiplicity).
+    rounds : int
+        Passes of (minima, maxima) run.
+    short_pairs_left : int
+        Finite pairs of f' with persistence < delta (0 unless float precision prevented a fill).
+    """
+
+    values: np.ndarray
+    delta: float
+    sup_change: float
+    critical_before: dict[str, int]
+    critical_after: dict[str, int]
+    rounds: int
+    short_pairs_left: int
+
+
+@dataclass(frozen=True)
+class SimplifiedPair:
+    """Both components of a mesh map, simplified with one delta."""
+
+    f1: Simplified
+    f2: Simplified
+
+    @property
+    def values(self) -> np.ndarray:
+        """(n, 2) array (f1', f2')."""
+        return np.column_stack([self.f1.values, self.f2.values])
+
+    @property
+    def delta(self) -> float:
+        return self.f1.delta
+
+    @property
+    def sup_change(self) -> tuple[float, float]:
+        """Measured sup-norm change of each component (value units)."""
+        return (self.f1.sup_change, self.f2.sup_change)
+
+
+def simplify_function(tri: np.ndarray, values: np.ndarray, delta: float) -> Simplified:
+    """Persistence-sensitive simplification of one PL function on a closed triangulated surface.
+
+    Parameters
+    ----------
+    tri : ndarray (m, 3) of int
+        Triangles of a closed 2-manifold (any genus, any number of components).
+    values : ndarray (n,)
+        f at the vertices (value units).
+    delta : float
+        Threshold >= 0 (value units): pairs of persistence < delta are removed.
+
+    Returns
+    -------
+    Simplified
+        f' with ||f - f'||_inf <= delta, no finite pair of persistence < delta, the same
+        essential classes (Betti numbers of the surface), injective on vertices.
+
+    References
+    ----------
+    .. [EMP06] Edelsbrunner, Morozov, Pascucci (2006).
+    .. [AGHLM09] Attali, Glisse, Hornus, Lazarus, Morozov (2009).
+    """
+    from specmap.grids.piecewise import pl_critical_vertices
+
+    T = np.asarray(tri, dtype=np.int64)
+    f = np.asarray(values, dtype=float)
+    if f.ndim != 1:
+        raise ValueError(f"values have shape {f.shape}, expected (n,)")
+    if not (delta >= 0 and np.isfinite(delta)):
+        raise ValueError(f"delta must be finite and >= 0, got {delta!r}")
+    delta = float(delta)
+    indptr, indices = adjacency(T, len(f))
+    if delta == 0:  # nothing to remove; ties stay, ordered by (value, vertex index)
+        crit = pl_critical_vertices(T, f).counts()
+        return Simplified(f.copy(), 0.0, 0.0, crit, dict(crit), 0, 0)
+    g = make_injective(f, 1e-6 * delta)
+    rounds = 0
+    for _ in range(MAX_ROUNDS):
+        rounds += 1
+        g, r1 = _one_pass(g, delta, f + delta, indptr, indices)
+        h, r2 = _one_pass(-g, delta, delta - f, indptr, indices)  # -g <= -(f - delta)
+        g = -h
+        if r1 + r2 == 0 or _short_pairs(g, delta, indptr, indices) == 0:
+            break
+    left = _short_pairs(g, delta, indptr, indices)
+    return Simplified(
+        values=g,
+        delta=delta,
+        sup_change=float(np.abs(g - f).max()) if len(f) else 0.0,
+        critical_before=pl_critical_vertices(T, f).counts(),
+        critical_after=pl_critical_vertices(T, g).counts(),
+        rounds=rounds,
+        short_pairs_left=left,
+    )
+
+
+def simplify_pair(tri: np.ndarray, f1: np.ndarray, f2: np.ndarray, delta: float) -> SimplifiedPair:
+    """Simplify both components of a mesh map with the same delta (see :func:`simplify_function`)."""
+    return SimplifiedPair(simplify_function(tri, f1, delta), simplify_function(tri, f2, delta))
+
+
+@dataclass(frozen=True)
+class AutoDelta:
+    """Result of :func:`auto_delta`.
+
+    Attributes
+    ----------
+    delta : float
+        The smallest candidate delta found that meets the budget (0 when the pair already does).
+    pair : SimplifiedPair or None
+        The simplified pair at ``delta`` (None when delta is 0).
+    count_before, count_after : int
+        ``count_fn`` on the input and on the result.
+    budget : int
+    met : bool
+        False when even removing every finite pair leaves the count above the budget.
+    evaluations : int
+        Calls of ``count_fn``.
+    """
+
+    delta: float
+    pair: SimplifiedPair | None
+    count_before: int
+    count_after: int
+    budget: int
+    met: bool
+    evaluations: int
+
+
+def candidate_deltas(tri: np.ndarray, f1: np.ndarray, f2: np.ndarray) -> np.ndarray:
+    """Thresholds just above each distinct persistence value of f1 and f2 (increasing).
+
+    The set of pairs removed changes only when delta passes a persistence value, so these are
+    the only deltas worth trying; each sits above its value by a small slack (1e-6 relative,
+    at least 1e-9 of the value range, at most half the way to the next value) so that the filled
+    basins can be laid out injectively in floating point.
+    """
+    p = np.concatenate([persistence_values(tri, f1), persistence_values(tri, f2)])
+    p = p[np.isfinite(p) & (p > 0)]
+    if not len(p):
+        return p
+    scale = max(float(np.ptp(f1)), float(np.ptp(f2)), 1e-300)
+    floor = 1e-9 * scale
+    p = np.unique(p)
+    keep = np.r_[True, np.diff(p) > floor]  # values closer than the floor act as one
+    p = p[keep]
+    nxt = np.r_[p[1:], np.inf]
+    return p + np.minimum(np.maximum(1e-6 * p, floor), 0.5 * (nxt - p))
+
+
+def auto_delta(tri: np.ndarray, f1: np.ndarray, f2: np.ndarray,
+               count_fn: Callable[[np.ndarray, np.ndarray], int], budget: int) -> AutoDelta:
+    """Smallest delta whose simplified pair brings ``count_fn`` to at most ``budget``.
+
+    Bisection over :func:`candidate_deltas` (the count is taken as non-increasing in delta).
+
+    Parameters
+    ----------
+    tri : ndarray (m, 3) of int
+    f1, f2 : ndarray (n,)
+        The two components at the vertices.
+    count_fn : callable (f1', f2') -> int
+        E.g. the number of contours of the extended Pareto grid of the pair.
+    budget : int
+
+    Returns
+    -------
+    AutoDelta
+    """
+    f1 = np.asarray(f1, dtype=float)
+    f2 = np.asarray(f2, dtype=float)
+    before = int(count_fn(f1, f2))
+    calls = 1
+    if before <= budget:
+        return AutoDelta(0.0, None, before, before, int(budget), True, calls)
+    cands = candidate_deltas(tri, f1, f2)
+    if not len(cands):
+        return AutoDelta(0.0, None, before, before, int(budget), False, calls)
+    cache: dict[int, tuple[SimplifiedPair, int]] = {}
+
+    def at(k: int) -> tuple[SimplifiedPair, int]:
+        nonlocal calls
+        if k not in cache:
+            pair = simplify_pair(tri, f1, f2, float(cands[k]))
+            calls += 1
+            cache[k] = (pair, int(count_fn(pair.f1.values, pair.f2.values)))
+        return cache[k]
+
+    lo, hi = -1, len(cands) - 1
+    top, top_count = at(hi)
+    if top_count > budget:
+        return AutoDelta(float(cands[hi]), top, before, top_count, int(budget), False, calls)
+    while hi - lo > 1:
+        mid = (lo + hi) // 2
+        if at(mid)[1] <= budget:
+            hi = mid
+        else:
+            lo = mid
+    pair, count = at(hi)
+    return AutoDelta(float(cands[hi]), pair, before, count, int(budget), True, calls)
