@@ -157,13 +157,20 @@ def pdf_pages(path: Path) -> list[str]:
     return [p.extract_text() for p in PdfReader(str(path)).pages]
 
 
+def pages_of(root: Path) -> list[str]:
+    return pdf_pages(root / "report.pdf")
+
+
 def page_titles(pages: list[str]) -> list[str]:
     """The page heading of each page (figure text may come first in the extraction order)."""
-    known = ("Methods appendix", "Findings", "specmap report", "Extended Pareto grids", "Special set",
+    known = ("Methods appendix", "Findings", "Study and provenance", "Extended Pareto grids", "Special set",
              "Matching distance", "Perturbation study")
     out = []
     for p in pages:
         lines = [ln.strip() for ln in p.splitlines()]
+        if any(ln.startswith("Summary: ") for ln in lines):
+            out.append("Summary")
+            continue
         out.append(next((t for t in known if t in lines), "?"))
     return out
 
@@ -181,18 +188,19 @@ def test_full_report_pages_numbers_and_pngs(tmp_path: Path) -> None:
     assert out == root / "report.pdf"
     pages = pdf_pages(out)
     heads = page_titles(pages)
-    for title in ("specmap report", "Extended Pareto grids", "Special set", "Matching distance",
+    assert heads[0] == "Summary" and heads[1] == "Study and provenance", heads
+    for title in ("Extended Pareto grids", "Special set", "Matching distance",
                   "Perturbation study", "Findings", "Methods appendix"):
         assert title in heads, (title, heads)
     text = _flat(" ".join(pages))
-    assert "not run" not in pages[0]
+    assert "not run" not in pages[0] and "not run" not in pages[1]
     assert "D = 0.3," in text  # distance value
     assert "3 curves, 2 patches, 1 point." in text  # component counts
     assert "Runs with a patch: 0 of 40" in text
     assert "0.2125" in text  # degree-1 value
     assert "arXiv:2312.04201" in text
     assert "fixture-torus-shift" in pages[0]
-    assert "specmap grid studies/fixture.toml" in _flat(pages[0])
+    assert "specmap grid studies/fixture.toml" in _flat(pages[1])
     for name in ("grids", "special", "landscape", "perturb"):
         png = root / "figures" / f"{name}.png"
         assert png.is_file() and png.stat().st_size > 5000
@@ -204,7 +212,7 @@ def test_partial_report_has_no_page_for_missing_stage(tmp_path: Path) -> None:
     heads = page_titles(pages)
     assert "Matching distance" not in heads and "Perturbation study" not in heads
     assert "Special set" in heads
-    cover = _flat(pages[0])
+    cover = _flat(pages[1])
     assert "Matching distance: not run" in cover
     assert "Perturbation study: not run" in cover
     assert not (root / "figures" / "landscape.png").exists()
@@ -214,7 +222,7 @@ def test_partial_report_has_no_page_for_missing_stage(tmp_path: Path) -> None:
 def test_cover_only_when_nothing_ran(tmp_path: Path) -> None:
     root = make_folder(tmp_path / "empty", stages=())
     pages = pdf_pages(build_report(root))
-    assert _flat(pages[0]).count("not run") == 4
+    assert _flat(pages[1]).count("not run") == 4
     assert "nothing to report" in _flat(" ".join(pages))
 
 
@@ -231,7 +239,8 @@ def test_theorem_gap_is_loud_in_pdf(tmp_path: Path) -> None:
     # the audit section uses the findings sentence (one source, specmap.report.findings)
     assert "WARNING: the dense sweep exceeds the reduced search by 0.0271" in text
     assert "disagrees with the theorem's reduction" in text
-    assert "1 warning about disagreement" in text  # repeated on the cover
+    # the summary's one box is the most severe note, with what to do
+    assert "Contradiction: Theorem audit failed" in _flat(pages_of(root)[0])
     assert "0.0271" in text
 
 
@@ -316,8 +325,9 @@ def test_findings_position_audit_and_stability_warnings() -> None:
     summary["stability_violations"] = 2
     out = findings({"distance": d, "perturb": {"summary": summary, "runs": runs}})
     loud = [s for s in out if s.startswith("WARNING")]
-    assert len(loud) == 2
-    assert "97%" in loud[0] and "2 perturbed runs" in loud[1]
+    # the position audit is a caveat (ranked in the summary), the stability violation stays loud
+    assert len(loud) == 1 and "2 perturbed runs" in loud[0]
+    assert any(s.startswith("Position audit (caveat): only 97%") for s in out)
 
 
 def test_findings_patch_survives_and_infinite_strings() -> None:
@@ -387,3 +397,49 @@ def test_number_helpers() -> None:
     assert math.isinf(num("inf")) and math.isnan(num("nan")) and math.isnan(num(None))
     assert fraction_interval([2.0, 10.0], 20) == (0.1, 0.5)
     assert fraction_interval([0.1, 0.5], 20) == (0.1, 0.5)
+
+
+# -- summary page --------------------------------------------------------------------
+
+
+def test_summary_page_answers_first(tmp_path: Path) -> None:
+    root = make_folder(tmp_path / "sum")
+    first = _flat(pdf_pages(build_report(root))[0])
+    # fixture values (_distance, _special, _perturb above)
+    assert "D = 0.3 (maximum over degrees" in first
+    assert "2 patches, 3 curve components and 1 point component (connected components)" in first
+    assert "4 tie curves" in first  # 3 + 1 ties of the curve components (no stats.tie_curves)
+    assert "Genericity: 0 of 40 perturbed runs" in first
+    assert "y = x - 0.26" in first  # r(1/2, 0.13): y = x - 2b (math.md section 2)
+    # no bounds recorded: the status says why, from the file
+    assert "not certified: no interval over the whole strip is recorded" in first
+    assert "D_1: not certified: a lower bound only" not in first  # fixture has no certified flags
+    assert first.count("What to do:") >= 1
+
+
+def test_summary_shows_certified_bounds_and_why_not_when_present() -> None:
+    from specmap.report.summary import degree_rows
+
+    d = _distance()
+    d["by_degree"]["0"].update(bounds=[0.3, 0.3008], certified=True, why_not=None)
+    d["by_degree"]["1"].update(bounds=[0.2125, 0.26], certified=False, why_not="line budget spent")
+    rows = {r.degree: r for r in degree_rows(d)}
+    assert rows["0"].status == "certified" and rows["0"].interval == (0.3, 0.3008)
+    assert rows["1"].status == "not certified: line budget spent" and rows["1"].interval == (0.2125, 0.26)
+
+
+def test_ranked_notes_put_contradictions_before_the_position_caveat() -> None:
+    from specmap.report.summary import ranked_notes
+
+    d = _distance(gap=True)
+    d["audit"]["position"]["fraction_explained"] = 0.6
+    notes = ranked_notes({"distance": d, "stages": {"grids": True, "special": True, "distance": True,
+                                                    "perturb": True}})
+    assert notes[0].title == "Theorem audit failed" and notes[0].severity == 1
+    assert [n.severity for n in notes] == sorted(n.severity for n in notes)
+    pos = next(n for n in notes if n.title.startswith("Position audit"))
+    assert pos.severity == 3 and pos.todo
+    # D below 3x the tolerance is flagged as not resolved (issue 13 item 3)
+    d = _distance()
+    d["tolerance"] = 0.2
+    assert any(n.title == "D not resolved" for n in ranked_notes({"distance": d}))

@@ -73,7 +73,8 @@ def _grid_points(grid: dict[str, Any]) -> np.ndarray:
 
 
 def grids_figure(grid_f: dict[str, Any] | None, grid_g: dict[str, Any] | None, *,
-                 fig: FigureBase | None = None) -> FigureBase:
+                 fig: FigureBase | None = None, line: Any = None, line_label: str | None = None,
+                 labels: bool = True) -> FigureBase:
     """Both extended Pareto grids in the plane of values.
 
     Proper contours are solid polylines; improper contours (half-lines) are
@@ -87,6 +88,13 @@ def grids_figure(grid_f: dict[str, Any] | None, grid_g: dict[str, Any] | None, *
         ``None`` if only one grid was written.
     fig : Figure or SubFigure, optional
         Draw into it instead of a new figure.
+    line : (a, b), optional
+        A filtering line r(a, b) = {s (a, 1 - a) + (b, -b)} to draw over both grids
+        (e.g. where the matching distance is reached).
+    line_label : str, optional
+        Its legend entry.
+    labels : bool
+        Write each contour's id beside it (placed without overlap).
 
     Returns
     -------
@@ -96,6 +104,7 @@ def grids_figure(grid_f: dict[str, Any] | None, grid_g: dict[str, Any] | None, *
     ----------
     .. [CEF19] Cerri, Ethier, Frosini, J. Appl. Comput. Topol. 3 (2019): the
        extended Pareto grid.
+    .. [CDFFL13] Cerri et al., Math. Methods Appl. Sci. 36 (2013): the lines r(a, b).
 
     Examples
     --------
@@ -146,14 +155,22 @@ def grids_figure(grid_f: dict[str, Any] | None, grid_g: dict[str, Any] | None, *
         n_half = counts["vertical"] + counts["horizontal"]
         handles.append(Line2D([], [], color=col, lw=1.2, ls=dash, marker="o", mfc="white",
                               label=f"{tag} half-lines ({n_half}), o = start"))
+    if line is not None and len(line) >= 2 and 0.0 < num(line[0]) < 1.0:
+        la, lb = num(line[0]), num(line[1])
+        xs = np.linspace(x0, x1, 2)
+        ax.plot(xs, (1.0 - la) / la * (xs - lb) - lb, color="#c2185b", lw=1.8, zorder=5)
+        handles.append(Line2D([], [], color="#c2185b", lw=1.8,
+                              label=line_label or f"line r(a, b), (a, b) = ({fmt(la, 3)}, {fmt(lb, 3)})"))
     ax.set_xlim(x0, x1)
     ax.set_ylim(y0, y1)
     ax.set_xlabel("f1 / g1")
     ax.set_ylabel("f2 / g2")
     ax.set_title("Extended Pareto grids (half-lines continue past the arrow heads)", fontsize=10)
     ax.grid(alpha=0.25)
-    ax.legend(handles=handles, fontsize=LEGEND_SIZE, loc="upper center", bbox_to_anchor=(0.5, -0.11),
-              ncol=2, frameon=False)
+    if line is not None and not labels:
+        ax.set_title("Where D is reached: the line r(a, b) over both grids", fontsize=10)
+    ax.legend(handles=handles, fontsize=LEGEND_SIZE, loc="upper center",
+              bbox_to_anchor=(0.5, -0.11 if labels else -0.2), ncol=2 if labels else 3, frameon=False)
     return fig
 
 

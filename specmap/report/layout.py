@@ -12,6 +12,7 @@ from typing import Any
 
 from matplotlib.backends.backend_pdf import PdfPages
 from matplotlib.figure import Figure, FigureBase
+from matplotlib.patches import Rectangle
 
 A4 = (8.27, 11.69)
 LEFT, TOP, BOTTOM = 0.08, 0.955, 0.055
@@ -93,3 +94,25 @@ class Pager:
 
     def warn(self, text: str) -> None:
         self.para(text, color=RED, weight="bold")
+
+    def _wrapped(self, text: str, size: float, indent: float) -> list[str]:
+        width_pt = (1.0 - 2 * LEFT - indent) * A4[0] * 72.0
+        return textwrap.wrap(text, max(20, int(width_pt / (0.56 * size)))) or [""]
+
+    def box(self, title: str, texts: list[str], *, edge: str = RED, face: str = "#fdecee") -> None:
+        """A framed block (title, then paragraphs), kept on one page."""
+        pad = 0.012
+        step = TEXT_PT * 1.45 / 72.0 / A4[1]
+        lines = [self._wrapped(t, TEXT_PT, 2 * pad) for t in texts]
+        height = step * (1 + sum(len(x) for x in lines)) + 2 * pad
+        self._room(height + step)
+        assert self.fig is not None
+        top = self.y
+        self.fig.add_artist(Rectangle((LEFT - pad, top - height), 1.0 - 2 * LEFT + 2 * pad, height,
+                                      transform=self.fig.transFigure, fc=face, ec=edge, lw=1.2, zorder=0))
+        self.y -= pad * 0.6
+        self._line(title, TEXT_PT + 1, weight="bold", color=edge, indent=pad)
+        for chunk in lines:
+            for i, line in enumerate(chunk):
+                self._line(line, TEXT_PT, indent=pad + (0.02 if i else 0.0))
+        self.y = top - height - step * 0.5

@@ -2,7 +2,10 @@
 
 Pages, each present only when its stage was run:
 
-1. cover -- study, shapes and maps, window, tolerances, version, date,
+1. summary -- D per degree with its certification status, where it is reached (the line
+   drawn on the grids), the special set's counts and patch share, the genericity verdict,
+   and one boxed note (the most severe) with what to do, then the other notes ranked;
+1b. study and provenance -- study, shapes and maps, window, tolerances, version, date,
    command lines, and which stages were run (a missing stage says "not run");
 2. grids -- both extended Pareto grids;
 3. special set -- the map and a component table;
@@ -29,8 +32,9 @@ from specmap.io import check_out_dir
 from specmap.report.figures import grids_figure, landscape_figure, perturb_figure, save_png, special_figure
 from specmap.report.findings import WARNING, audit_sentences, findings
 from specmap.report.fmt import fmt, fmt_interval, fmt_pct, fmt_point, fraction_interval, num, plural
-from specmap.report.layout import Pager
+from specmap.report.layout import RED, Pager
 from specmap.report.load import STAGE_VERB, load_results
+from specmap.report.summary import SEVERITY_NAMES, degree_rows, ranked_notes, special_lines, where_sentence
 
 MAX_TABLE_ROWS = 18
 
@@ -92,9 +96,57 @@ def _short_dict(d: Any, limit: int = 8) -> str:
 
 
 # -- pages -------------------------------------------------------------------------
+def _summary_page(pg: Pager, res: dict[str, Any]) -> None:
+    """Page 1: the answers (D and how sure, where, genericity, what to do next)."""
+    st = res["study"]
+    d = res.get("distance")
+    line = d.get("at") if d else None
+    have_grids = res["stages"]["grids"]
+    sub = pg.page(f"Summary: {st.get('name', 'n/a')}", 0.28 if have_grids else 0.0)
+    if sub is not None:
+        lbl = ("line r(a, b) where D is reached" if line is not None else None)
+        _draw("grids", "grid_f.json / grid_g.json",
+              lambda: grids_figure(res.get("grid_f"), res.get("grid_g"), fig=sub, line=line, line_label=lbl,
+                                   labels=False))
+    pg.heading("Matching distance")
+    if d:
+        pg.para(f"D = {fmt(d.get('value'))} (maximum over degrees; tolerance {fmt(d.get('tolerance'), 3)}).",
+                weight="bold")
+        pg.mono(f"{'degree':<8}{'D_k':>10}  {'interval':<20}{'at (a, b)':<20}status")
+        for row in degree_rows(d):
+            iv = fmt_interval(row.interval) if row.interval else "none recorded"
+            pg.mono(f"{row.degree:<8}{fmt(row.value):>10}  {iv:<20}{fmt_point(row.at):<20}"
+                    f"{'certified' if row.status == 'certified' else 'not certified'}")
+        reasons: dict[str, list[str]] = {}
+        for row in degree_rows(d):
+            if row.status != "certified":
+                reasons.setdefault(row.status, []).append(f"D_{row.degree}")
+        for status, who in reasons.items():
+            pg.para(f"{', '.join(who)}: {status}.", 8.5, color="0.25")
+        pg.para(where_sentence(d))
+    else:
+        pg.para("Not computed (run specmap distance).")
+    pg.heading("Special set and genericity")
+    lines = special_lines(res)
+    for text in lines or ["Not mapped (run specmap map)."]:
+        pg.para(text)
+    notes = ranked_notes(res)
+    pg.heading("What to do next")
+    if not notes:
+        pg.para("Nothing: every audit recorded passed and every stage was run.")
+        return
+    top, rest = notes[0], notes[1:]
+    edge = RED if top.severity <= 2 else "#8a6d00"
+    face = "#fdecee" if top.severity <= 2 else "#fff8e1"
+    pg.box(f"{SEVERITY_NAMES[top.severity].capitalize()}: {top.title}", [top.text, f"What to do: {top.todo}"],
+           edge=edge, face=face)
+    for i, n in enumerate(rest, 2):
+        pg.para(f"{i}. [{SEVERITY_NAMES[n.severity]}] {n.title}: {n.text} What to do: {n.todo}", 8)
+
+
 def _cover(pg: Pager, res: dict[str, Any]) -> None:
     st = res["study"]
-    pg.page("specmap report")
+    pg.page("Study and provenance")
     pg.para(f"Study: {st.get('name', 'n/a')}", 14, weight="bold")
     pg.field("Study file", st.get("study_file", "n/a"))
     pg.field("Seed", st.get("seed", "n/a"))
@@ -122,12 +174,6 @@ def _cover(pg: Pager, res: dict[str, Any]) -> None:
             pg.field(title, details[key])
         else:
             pg.field(title, f"not run (no result file; run specmap {STAGE_VERB[key]})")
-    loud = [s for s in findings(res) if s.startswith(WARNING)]
-    if loud:
-        pg.heading("Warnings")
-        pg.warn(f"{plural(len(loud), 'warning')} about disagreement with the theory; see the Findings page:")
-        for s in loud:
-            pg.warn(s)
     pg.heading("Tolerances")
     for label, src in (("grid f", gf), ("grid g", gg), ("special set", res.get("special")),
                        ("matching distance", res.get("distance"))):
@@ -439,6 +485,7 @@ def build_report(result_dir: str | Path, out_pdf: str | Path | None = None, *,
     try:
         with PdfPages(tmp, metadata={"Title": f"specmap report: {name}", "Creator": "specmap"}) as pdf:
             pg = Pager(pdf, name)
+            _summary_page(pg, res)
             _cover(pg, res)
             if stages["grids"]:
                 _grids_page(pg, res)

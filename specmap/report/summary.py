@@ -1,0 +1,312 @@
+"""What the first page of the report says: the answers, from the result files only.
+
+Four questions a reader opens the report with, each answered from the JSON:
+
+- what is D, degree by degree, and how sure are we (:func:`degree_rows`);
+- where is it reached (the line r(a, b), drawn on the grids by the summary figure);
+- is the special set generic, and what do the perturbed runs say (:func:`special_lines`);
+- what should I do next (:func:`ranked_notes`: one note per issue, ranked by severity, each
+  with what to do about it; the report boxes only the first).
+
+The fields ``bounds: [lo, hi]``, ``certified`` and ``why_not`` of ``distance.json``
+``by_degree[k]`` are shown when present; without ``bounds`` the status is derived from what
+the file records (the slope-one branch and bound, the dense sweep's error bound).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Any
+
+from specmap.report.fmt import fmt, fmt_interval, fmt_pct, fraction_interval, num, plural
+
+RESOLVED_FACTOR = 3.0
+"""D must exceed this multiple of the distance tolerance to count as resolved (issue 13, item 3)."""
+
+
+@dataclass(frozen=True)
+class DegreeRow:
+    """One line of the summary's distance table.
+
+    Attributes
+    ----------
+    degree : str
+    value : float
+    at : (a, b) or None
+    reached_on : str
+    certified : bool or None
+        ``None`` when the file records no status.
+    interval : (lo, hi) or None
+        ``bounds`` of the file, when present.
+    status : str
+        ``"certified"`` or ``"not certified: <reason>"``.
+    """
+
+    degree: str
+    value: float
+    at: tuple[float, float] | None
+    reached_on: str
+    certified: bool | None
+    interval: tuple[float, float] | None
+    status: str
+
+
+@dataclass(frozen=True)
+class Note:
+    """One issue of the result, ranked: severity 1 (the numbers contradict the theory) to 4 (missing work).
+
+    Attributes
+    ----------
+    severity : int
+    title : str
+    text : str
+    todo : str
+        What to do about it.
+    """
+
+    severity: int
+    title: str
+    text: str
+    todo: str
+
+
+SEVERITY_NAMES = {1: "contradiction", 2: "unsure value", 3: "caveat", 4: "missing"}
+
+
+def _pt(p: Any) -> tuple[float, float] | None:
+    if not isinstance(p, (list, tuple)) or len(p) < 2:
+        return None
+    return (num(p[0]), num(p[1]))
+
+
+def _slope_search(d: dict[str, Any]) -> dict[str, Any]:
+    return ((d.get("reduced") or {}).get("slope_search")) or {}
+
+
+def _derived_reason(d: dict[str, Any], k: str, v: dict[str, Any], vmax: float) -> str:
+    """Why a degree is not certified, from what distance.json records (no ``why_not`` field)."""
+    red = d.get("reduced") or {}
+    settings = red.get("settings") or {}
+    tol = num(d.get("tolerance"))
+    if v.get("certified") is False and num(v.get("value")) < vmax - (tol if math.isfinite(tol) else 0.0):
+        return (f"a lower bound only; the search certified the maximum over degrees "
+                f"(settings.certify = {settings.get('certify', 'max')})")
+    ss = _slope_search(d)
+    if ss and ss.get("certified") is False:
+        return (f"the slope-one search stopped at its line cap after {ss.get('lines', 'n/a')} lines "
+                f"(bound {fmt(_first(ss.get('bound')))} against best {fmt(_first(ss.get('best')))})")
+    parts = ["no interval over the whole strip is recorded"]
+    if ss and ss.get("certified"):
+        parts.append(f"the slope-one search bounds a = 1/2 only: max there in "
+                     f"{fmt_interval([_first(ss.get('best')), _first(ss.get('bound'))])}")
+    dense = d.get("dense") or {}
+    eb = num(dense.get("error_bound"))
+    if math.isfinite(eb) and eb > num(v.get("value")):
+        parts.append(f"the dense sweep's error bound {fmt(eb, 3)} exceeds the value")
+    return "; ".join(parts)
+
+
+def _first(x: Any) -> Any:
+    return x[0] if isinstance(x, list) and x else x
+
+
+def degree_rows(d: dict[str, Any] | None) -> list[DegreeRow]:
+    """One row per degree of ``distance.json`` (``by_degree``, else the top-level value).
+
+    Examples
+    --------
+    >>> rows = degree_rows({"value": 0.3, "tolerance": 1e-3, "by_degree": {"0": {"value": 0.3,
+    ...     "at": [0.5, 0.1], "reached_on": "slope-one", "certified": True, "bounds": [0.3, 0.3004]}}})
+    >>> rows[0].status, rows[0].interval
+    ('certified', (0.3, 0.3004))
+    """
+    if not d:
+        return []
+    by = d.get("by_degree") or {}
+    if not by:
+        by = {"max": {k: d.get(k) for k in ("value", "at", "reached_on", "certified", "bounds", "why_not")}}
+    vmax = max((num((v or {}).get("value")) for v in by.values()), default=math.nan)
+    rows = []
+    for k in sorted(by, key=lambda s: (not str(s).isdigit(), int(s) if str(s).isdigit() else 0)):
+        v = by[k] or {}
+        bounds = v.get("bounds")
+        interval = (num(bounds[0]), num(bounds[1])) if isinstance(bounds, list) and len(bounds) == 2 else None
+        cert = v.get("certified")
+        if cert is True and (interval is not None or "why_not" in v):
+            status = "certified"
+        elif cert is True:
+            status = "not certified: " + _derived_reason(d, str(k), v, vmax)
+        elif v.get("why_not"):
+            status = f"not certified: {v['why_not']}"
+        else:
+            status = "not certified: " + _derived_reason(d, str(k), v, vmax)
+        rows.append(DegreeRow(str(k), num(v.get("value")), _pt(v.get("at")), str(v.get("reached_on", "n/a")),
+                              cert if isinstance(cert, bool) else None, interval, status))
+    return rows
+
+
+def where_sentence(d: dict[str, Any]) -> str:
+    """Where D (max over degrees) is reached, with the line in the (f1, f2) plane."""
+    at = _pt(d.get("at"))
+    on = d.get("reached_on")
+    if at is None or not all(math.isfinite(x) for x in at):
+        return "Where D is reached is not recorded."
+    a, b = at
+    line = line_equation(a, b)
+    where = {"slope-one": "on the slope-one line a = 1/2",
+             "special": "on the special set" + (f" (component {d['component']})" if d.get("component") else ""),
+             "both": "on the slope-one line and on the special set alike (equal within the tolerance)",
+             "dense": "by the dense sweep (no reduced search)"}.get(str(on), f"on {on}")
+    return f"D is reached {where}, at (a, b) = ({fmt(a)}, {fmt(b)}): the filtering line {line}, drawn on the grids."
+
+
+def line_equation(a: float, b: float) -> str:
+    """The line r(a, b) as an equation in the (x, y) = (f1, f2) plane.
+
+    r(a, b) = {s (a, 1 - a) + (b, -b)}, so y = (1 - a)/a (x - b) - b (math.md section 2).
+
+    Examples
+    --------
+    >>> line_equation(0.5, 0.25)
+    'y = x - 0.5'
+    """
+    m = (1.0 - a) / a
+    c = -m * b - b
+    slope = "x" if abs(m - 1.0) < 1e-12 else f"{fmt(m, 3)} x"
+    if abs(c) < 1e-15:
+        return f"y = {slope}"
+    return f"y = {slope} {'+' if c > 0 else '-'} {fmt(abs(c), 3)}"
+
+
+def tie_curve_count(sp: dict[str, Any]) -> int:
+    """Number of tie curves: ``stats.tie_curves`` when recorded, else the ties of curve components."""
+    stats = sp.get("stats") or {}
+    if isinstance(stats.get("tie_curves"), (int, float)):
+        return int(stats["tie_curves"])
+    return sum(len(c.get("ties") or []) for c in sp.get("components") or [] if c.get("kind") == "curve")
+
+
+def component_counts(sp: dict[str, Any]) -> str:
+    """``"1 patch, 1 curve component and 0 point components"``."""
+    c = sp.get("counts") or {}
+    n = {k: int(num(c.get(k, 0))) for k in ("curve", "patch", "point")}
+    return (f"{plural(n['patch'], 'patch', 'patches')}, {plural(n['curve'], 'curve component')} and "
+            f"{plural(n['point'], 'point component')}")
+
+
+def special_lines(res: dict[str, Any]) -> list[str]:
+    """The special set and its genericity verdict, in sentences."""
+    sp = res.get("special")
+    out: list[str] = []
+    if sp:
+        stats = sp.get("stats") or {}
+        of = (f" of {plural(int(num(stats['ties_with_curves'])), 'tie')}"
+              if isinstance(stats.get("ties_with_curves"), (int, float)) else "")
+        holds = (f"; {plural(int(num(stats['ties_with_patches'])), 'tie')} hold identically on patches"
+                 if isinstance(stats.get("ties_with_patches"), (int, float)) else "")
+        out.append(f"Special set: {component_counts(sp)} (connected components); "
+                   f"{plural(tie_curve_count(sp), 'tie curve')}{of} in all{holds}. Patches cover "
+                   f"{fmt_pct(sp.get('area_fraction'))} of the window.")
+        reasons = [r for c in sp.get("components") or [] for r in (c.get("reasons") or [])]
+        if reasons:
+            kinds = sorted({str(r.get("kind")) for r in reasons if isinstance(r, dict)})
+            breaks = [num(r.get("breaks_at")) for r in reasons if isinstance(r, dict)]
+            br = [x for x in breaks if math.isfinite(x)]
+            out.append("Why the patches exist: " + ", ".join(k.replace("_", " ") for k in kinds)
+                       + (f"; the identities break at perturbations of size {fmt(min(br), 3)} or more." if br
+                          else "."))
+    pert = (res.get("perturb") or {}).get("summary")
+    if pert:
+        runs = int(num(pert.get("runs")) or 0)
+        k = pert.get("runs_with_patch")
+        if k is not None:
+            ci = fraction_interval(pert.get("runs_with_patch_ci95"), runs)
+            out.append(f"Genericity: {int(num(k))} of {runs} perturbed runs ({pert.get('model', 'n/a')} model, "
+                       f"size {fmt(pert.get('size'), 3)}) kept a patch (95% interval for the fraction "
+                       f"{fmt_interval(ci)})" + (
+                           ": the patches are an artefact of a non-generic input, not of the pair's geometry."
+                           if int(num(k)) == 0 and sp and int(num((sp.get('counts') or {}).get('patch', 0)))
+                           else "."))
+        if pert.get("verdict"):
+            out.append(f"Verdict: {pert['verdict']}")
+    elif sp and int(num((sp.get("counts") or {}).get("patch", 0))):
+        out.append("Genericity: not tested (no perturbation study): a patch means the pair is not generic, "
+                   "so the main theorem's reduction may not apply.")
+    return out
+
+
+def ranked_notes(res: dict[str, Any]) -> list[Note]:
+    """Every issue of the result with what to do about it, most severe first.
+
+    Severity 1: the numbers contradict a theorem (theorem gap, stability violations);
+    2: a value is not sure (uncertified maximum, D not resolved above the tolerance);
+    3: caveats (position audit below 100%, a patch without a perturbation study, tie
+    curves that cross the slope-one line only); 4: stages not run.
+
+    Examples
+    --------
+    >>> [n.severity for n in ranked_notes({"stages": {"grids": True, "special": False,
+    ...     "distance": False, "perturb": False}})]
+    [4, 4, 4]
+    """
+    notes: list[Note] = []
+    d = res.get("distance") or {}
+    audit = d.get("audit") or {}
+    tol = num(d.get("tolerance"))
+    if audit.get("theorem_gap"):
+        line = audit.get("line")
+        notes.append(Note(1, "Theorem audit failed",
+                          f"the dense sweep exceeds the reduced search by {fmt(audit.get('gap'))} at (a, b) = "
+                          f"{fmt_interval(line) if isinstance(line, list) else line}, more than the tolerance "
+                          f"{fmt(tol, 3)}.",
+                          "take the larger (dense) value as D; rerun specmap distance with a higher "
+                          "[distance] dense_resolution and check the grids (a missing contour shows here)."))
+    pert = (res.get("perturb") or {}).get("summary") or {}
+    viol = pert.get("stability_violations")
+    if viol is not None and num(viol) > 0:
+        notes.append(Note(1, "Stability violated",
+                          f"{int(num(viol))} perturbed runs changed D by more than the perturbation size allows.",
+                          "a numerical error: raise the mesh resolution of f and g and rerun specmap perturb."))
+    if d:
+        value = num(d.get("value"))
+        for row in degree_rows(d):
+            if not (math.isfinite(value) and abs(row.value - value) <= max(tol, 0.0)):
+                continue  # degrees below the maximum are reported in the table, not as notes
+            if row.status.startswith("not certified"):
+                sev = 2 if row.certified is False or row.interval is not None else 3
+                notes.append(Note(sev, f"D_{row.degree} not certified", row.status[len("not certified: "):] + ".",
+                                  "read D as the best value found; the dense sweep (specmap distance --method "
+                                  "both) gives an independent value, and a larger line budget may close the "
+                                  "search."))
+        grid_tol = max((num((res.get(g) or {}).get("tolerance")) for g in ("grid_f", "grid_g")), default=math.nan)
+        floor = max(x for x in (tol, grid_tol, 0.0) if math.isfinite(x))
+        if math.isfinite(value) and floor > 0 and value < RESOLVED_FACTOR * floor:
+            notes.append(Note(2, "D not resolved",
+                              f"D = {fmt(value)} is less than {fmt(RESOLVED_FACTOR, 2)} times the tolerance "
+                              f"{fmt(floor, 3)} (grid or distance): the value is not resolved.",
+                              "raise the mesh resolution of f and g ([f]/[g] resolution) or use an exact "
+                              "grid route, then rerun."))
+        pos = audit.get("position") or {}
+        frac = num(pos.get("fraction_explained"))
+        if math.isfinite(frac) and frac < 1.0:
+            notes.append(Note(3, "Position audit below 100%",
+                              f"{fmt_pct(frac)} of {pos.get('coordinates', 'the')} diagram coordinates on "
+                              f"{pos.get('lines', 'n/a')} lines are push coordinates of contours (worst deviation "
+                              f"{fmt(pos.get('max_deviation'), 3)}); the tolerance omits the mesh error, so "
+                              "surface studies fall short.",
+                              "rerun at a higher mesh resolution: the fraction should rise; if it does not, a "
+                              "contour is missing."))
+    sp = res.get("special") or {}
+    if sp and int(num((sp.get("counts") or {}).get("patch", 0))) and not pert:
+        notes.append(Note(3, "Patch not tested",
+                          "the special set has a patch and no perturbation study was run.",
+                          "add a [perturb] table and run specmap perturb: a patch that vanishes under small "
+                          "perturbations is non-generic."))
+    stages = res.get("stages") or {}
+    verbs = {"grids": "grid", "special": "map", "distance": "distance", "perturb": "perturb"}
+    for key, verb in verbs.items():
+        if key in stages and not stages[key]:
+            notes.append(Note(4, f"{key} not run", f"no {key} results in this folder.",
+                              f"run specmap {verb} on the study."))
+    return sorted(notes, key=lambda n: n.severity)
