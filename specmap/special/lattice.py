@@ -88,21 +88,6 @@ class Lattice:
         v1 = np.where(iv < na - 1, jv * (na - 1) + iv, -1)
         return np.stack([np.where(horiz, h0, v0), np.where(horiz, h1, v1)], axis=-1)
 
-    def cell_corners(self, cells: np.ndarray) -> np.ndarray:
-        """Corner node ids (C, 4) in the order 00, 10, 11, 01 (a first)."""
-        j, i = np.divmod(np.asarray(cells, np.int64), self.n_a - 1)
-        n00 = j * self.n_a + i
-        return np.stack([n00, n00 + 1, n00 + 1 + self.n_a, n00 + self.n_a], axis=-1)
-
-    def cell_edges(self, cells: np.ndarray) -> np.ndarray:
-        """Edge ids (C, 4): bottom, right, top, left."""
-        j, i = np.divmod(np.asarray(cells, np.int64), self.n_a - 1)
-        na = self.n_a
-        bottom = j * (na - 1) + i
-        top = (j + 1) * (na - 1) + i
-        left = self.n_h + j * na + i
-        return np.stack([bottom, left + 1, top, left], axis=-1)
-
     def cell_box(self, cells: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
         """(a0, b0, a1, b1) of cells."""
         j, i = np.divmod(np.asarray(cells, np.int64), self.n_a - 1)
