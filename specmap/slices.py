@@ -29,18 +29,16 @@ import numpy as np
 from specmap.bottleneck import exact_bottleneck
 from specmap.meshtable import mesh_edges as mesh_edges  # re-exported: the one edge table
 from specmap.shapes.model import require_mesh
+from specmap.strip import star_values
 
 DEGREES = (0, 1, 2)
 
 
 def normalised_values(values: np.ndarray, a: float, b: float) -> np.ndarray:
-    """F*(a, b) at every vertex.
+    """F*(a, b) at every vertex, for one line (:func:`specmap.strip.star_values`, checked a in [0, 1]).
 
-    Uses the explicit forms of math.md section 2, which also give the limit
-    lines: ``a = 0`` yields max(f1 - b, 0) and ``a = 1`` yields max(0, f2 + b).
-
-        a <= 1/2:  F* = max(f1 - b, a / (1 - a) * (f2 + b))
-        a >= 1/2:  F* = max((1 - a) / a * (f1 - b), f2 + b)
+    The explicit forms of math.md section 2 also give the limit lines: ``a = 0``
+    yields max(f1 - b, 0) and ``a = 1`` yields max(0, f2 + b).
 
     Parameters
     ----------
@@ -63,16 +61,10 @@ def normalised_values(values: np.ndarray, a: float, b: float) -> np.ndarray:
     >>> normalised_values(np.array([[1.0, 2.0]]), 0.5, 0.0)
     array([2.])
     """
-    v = np.asarray(values, dtype=float)
     a = float(a)
-    b = float(b)
     if not 0.0 <= a <= 1.0:
         raise ValueError(f"a must lie in [0, 1], got {a}")
-    x = v[:, 0] - b
-    y = v[:, 1] + b
-    if a <= 0.5:
-        return np.maximum(x, (a / (1.0 - a)) * y)
-    return np.maximum(((1.0 - a) / a) * x, y)
+    return star_values(np.asarray(values, dtype=float), a, float(b))
 
 
 class SliceEngine:

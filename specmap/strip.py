@@ -252,3 +252,48 @@ def _dense_polyline_parameter(pts: np.ndarray, a: np.ndarray, b: np.ndarray) -> 
         py = pts[k, 1] + t * (pts[k + 1, 1] - pts[k, 1])
     s = (a1 * (px - b1) + (1.0 - a1) * (py + b1)) / (a1 * a1 + (1.0 - a1) ** 2)
     return np.where(met, s, np.nan).reshape(shape)
+
+
+def star_values(values: np.ndarray, a, b) -> np.ndarray:
+    """F*(a, b), the normalised function of a map on the line r(a, b), at its vertices.
+
+    The explicit forms of math.md section 2 (they also give the limit lines:
+    ``a = 0`` yields max(f1 - b, 0), ``a = 1`` yields max(0, f2 + b)):
+
+        a <= 1/2:  F* = max(f1 - b, a / (1 - a) * (f2 + b))
+        a >= 1/2:  F* = max((1 - a) / a * (f1 - b), f2 + b)
+
+    written as max(r1 (f1 - b), r2 (f2 + b)) with r1 = 1, r2 = a / (1 - a) for
+    a <= 1/2 and r1 = (1 - a) / a, r2 = 1 otherwise (value units).
+
+    Parameters
+    ----------
+    values : ndarray (..., 2)
+        (f1, f2) per vertex.
+    a, b : array_like
+        Line parameters, a in [0, 1]; broadcast against ``values[..., 0]`` (e.g.
+        ``values[None]`` with ``a[:, None]`` gives one row per line).
+
+    Returns
+    -------
+    ndarray of the broadcast shape of ``values[..., 0]``, a and b.
+
+    References
+    ----------
+    .. [CDFFL13] Cerri et al., Math. Methods Appl. Sci. 36 (2013), the foliation method.
+
+    Examples
+    --------
+    >>> star_values(np.array([[1.0, 2.0]]), 0.5, 0.0)
+    array([2.])
+    >>> star_values(np.array([[1.0, 2.0]])[None], np.array([[0.25], [0.75]]), np.array([[0.0], [1.0]]))
+    array([[1.],
+           [3.]])
+    """
+    v = np.asarray(values, dtype=float)
+    a = np.asarray(a, dtype=float)
+    b = np.asarray(b, dtype=float)
+    with np.errstate(divide="ignore", invalid="ignore"):  # a = 0 or 1: the branch not taken divides by 0
+        r1 = np.where(a <= 0.5, 1.0, (1.0 - a) / a)
+        r2 = np.where(a <= 0.5, a / (1.0 - a), 1.0)
+    return np.maximum(r1 * (v[..., 0] - b), r2 * (v[..., 1] + b))

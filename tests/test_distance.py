@@ -23,6 +23,7 @@ from shapely.geometry import LineString
 
 from specmap.distance import (
     LineEvaluator,
+    ReducedSettings,
     cell_error_bound,
     distance_upper_bound,
     h_values,
@@ -388,12 +389,12 @@ def test_reduced_search_early_stop():
               FakePiece(tie(2), "curve", LineString([(0.25, -0.05), (0.35, -0.05)])))
     w = Window((0.02, 0.98), (-1.0, 1.0))
     red = reduced_search(_AnalyticEvaluator(), w, FakeAtlas(pieces, ()), C, tolerance=1e-6, upper=1.0,
-                         polish=False)
-    pr = red["pruned"]
-    assert red["slope"][0].value == pytest.approx(0.1)  # max of h on a = 1/2
-    assert red["special"][0].value == pytest.approx(0.3)
-    assert red["special"][0].at == pytest.approx((0.3, 0.0))
-    assert pr["early_stop"] is True and red["stop"]["t"] == pytest.approx(0.3)
+                         settings=ReducedSettings(polish=False))
+    pr = red.pruned
+    assert red.slope[0].value == pytest.approx(0.1)  # max of h on a = 1/2
+    assert red.special[0].value == pytest.approx(0.3)
+    assert red.special[0].at == pytest.approx((0.3, 0.0))
+    assert pr["early_stop"] is True and red.stop["t"] == pytest.approx(0.3)
     # constant costs: every sample of a flat curve may count as a local maximum, so count ties
     assert pr["ties_evaluated"] == 2  # A and B, never C
     assert pr["candidates_evaluated"] + pr["below_best"] == pr["candidates_total"]
@@ -414,15 +415,15 @@ def test_candidate_floor_only_drops_below_best_candidates():
     atlas = special_set(gf, gg, w, resolution=61)
     C = {c.id: c for grid in (gf, gg) for c in grid.contours}
     full = special_candidates(atlas, C, w)
-    assert full["below_floor"] == 0 and full["pruned"]["crossing_pairs_below_floor"] == 0
+    assert full.below_floor == 0 and full.pruned["crossing_pairs_below_floor"] == 0
     tol = 1e-3
-    for floor in np.quantile(full["hi"], [0.2, 0.6, 0.9]):
+    for floor in np.quantile(full.hi, [0.2, 0.6, 0.9]):
         cut = special_candidates(atlas, C, w, floor=float(floor), tolerance=tol)
-        keep = full["hi"] > floor + tol
+        keep = full.hi > floor + tol
         for key in ("a", "b", "lo", "hi", "piece", "origin"):
-            np.testing.assert_array_equal(cut[key], full[key][keep])
-        assert 0 < cut["below_floor"] <= len(full["hi"]) - keep.sum()
-        assert cut["live"] == full["live"]
+            np.testing.assert_array_equal(getattr(cut, key), getattr(full, key)[keep])
+        assert 0 < cut.below_floor <= len(full.hi) - keep.sum()
+        assert cut.live == full.live
 
 
 def test_candidate_floor_skips_crossings_of_low_ties():
@@ -441,9 +442,9 @@ def test_candidate_floor_skips_crossings_of_low_ties():
     w = Window((0.02, 0.98), (-1.0, 1.0))
     full = special_candidates(FakeAtlas(pieces, ()), C, w)
     cut = special_candidates(FakeAtlas(pieces, ()), C, w, floor=0.3, tolerance=1e-6)
-    assert full["crossings"] == 3 and full["pruned"]["crossing_pairs_below_floor"] == 0
-    assert cut["crossings"] == 2 and cut["pruned"]["crossing_pairs_below_floor"] == 1  # (C, D) skipped
-    np.testing.assert_array_equal(cut["hi"], full["hi"][full["hi"] > 0.3 + 1e-6])
+    assert full.crossings == 3 and full.pruned["crossing_pairs_below_floor"] == 0
+    assert cut.crossings == 2 and cut.pruned["crossing_pairs_below_floor"] == 1  # (C, D) skipped
+    np.testing.assert_array_equal(cut.hi, full.hi[full.hi > 0.3 + 1e-6])
 
 
 class _SlopeOneEvaluator(_ClosedFormEvaluator):
@@ -473,17 +474,17 @@ def test_slope_one_branch_and_bound_keeps_the_true_maximum(batch):
     tol = 1e-3
     ev = _SlopeOneEvaluator()
     out = slope_one_search(ev, w, [[0, 1]], tolerance=tol, samples=17, batch=batch)
-    assert out["certified"] is True
-    assert out["bound"][0] >= 0.4 - 1e-12
-    assert 0.4 - tol <= out["best"][0] <= 0.4 + 1e-12
-    assert out["bound"][0] <= out["best"][0] + tol
-    assert out["lines"] == ev.lines < 200  # each line once
+    assert out.certified is True
+    assert out.bound[0] >= 0.4 - 1e-12
+    assert 0.4 - tol <= out.best[0] <= 0.4 + 1e-12
+    assert out.bound[0] <= out.best[0] + tol
+    assert out.lines == ev.lines < 200  # each line once
     # per degree (certify="each"): both maxima certified, the decoy's 0.3 included
     ev = _SlopeOneEvaluator()
     out = slope_one_search(ev, w, [[0], [1]], tolerance=tol, samples=17, batch=batch)
-    assert out["certified"] is True
-    assert out["best"][0] == pytest.approx(0.3, abs=tol) and out["best"][1] == pytest.approx(0.4, abs=tol)
-    assert out["bound"][0] >= 0.3 - 1e-12 and out["bound"][1] >= 0.4 - 1e-12
+    assert out.certified is True
+    assert out.best[0] == pytest.approx(0.3, abs=tol) and out.best[1] == pytest.approx(0.4, abs=tol)
+    assert out.bound[0] >= 0.3 - 1e-12 and out.bound[1] >= 0.4 - 1e-12
 
 
 def test_slope_one_branch_and_bound_on_a_mesh_against_a_fine_scan():
@@ -497,10 +498,10 @@ def test_slope_one_branch_and_bound_on_a_mesh_against_a_fine_scan():
     ev = LineEvaluator(sf, sg)
     out = slope_one_search(ev, w, [[0, 1, 2]], tolerance=tol, values=(f, g))
     scan = h_values(sf, sg, 0.5, np.linspace(*w.b, 801)).max(axis=0)
-    assert out["certified"] is True
-    assert scan.max() <= out["bound"][0] + 1e-12
-    assert out["best"][0] >= out["bound"][0] - tol
-    assert out["lines"] < 801
+    assert out.certified is True
+    assert scan.max() <= out.bound[0] + 1e-12
+    assert out.best[0] >= out.bound[0] - tol
+    assert out.lines < 801
 
 
 def test_slope_one_sup_norm_bound_closes_the_flat_shift():
@@ -513,10 +514,10 @@ def test_slope_one_sup_norm_bound_closes_the_flat_shift():
     w = default_window(sf.value_bounds(), sg.value_bounds())
     assert slope_one_sup_norm_max(f, f + c, *w.b) == pytest.approx(c, abs=1e-12)
     out = slope_one_search(LineEvaluator(sf, sg, (0,)), w, [[0]], tolerance=1e-9, samples=9, values=(f, f + c))
-    assert out["certified"] is True and out["lines"] == 9
-    assert out["best"][0] == pytest.approx(c, abs=1e-12) and out["bound"][0] == pytest.approx(c, abs=1e-12)
+    assert out.certified is True and out.lines == 9
+    assert out.best[0] == pytest.approx(c, abs=1e-12) and out.bound[0] == pytest.approx(c, abs=1e-12)
     cone = slope_one_search(LineEvaluator(sf, sg, (0,)), w, [[0]], tolerance=1e-9, samples=9, max_lines=30)
-    assert cone["certified"] is False and cone["lines"] == 30 and cone["bound"][0] >= c
+    assert cone.certified is False and cone.lines == 30 and cone.bound[0] >= c
     # the sup-norm bound is the exact max over the interval: a fine scan never exceeds it
     g = f + 0.1 * np.c_[np.sin(3 * V[:, 2]), np.cos(2 * V[:, 0])]
     bs = np.linspace(-0.4, 0.3, 2001)

@@ -1,0 +1,227 @@
+"""Upper bounds of h_k and D_k without diagrams: Lipschitz constants, sup norms, value ranges.
+
+Every bound here rests on stability of persistence under sup-norm changes of
+the filtration [CDFFL13] and on the explicit forms of F* (math.md section 2,
+:func:`specmap.strip.star_values`).
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+
+import numpy as np
+
+from specmap.distance.paths import normalise
+from specmap.strip import Window, star_values
+
+SLOPE_ONE_LIPSCHITZ = 2.0
+"""|h_k(1/2, b) - h_k(1/2, b')| <= 2 |b - b'| for every k (:func:`lipschitz_constants`, L_b = 1 per map)."""
+
+
+def lipschitz_constants(bounds_f: Sequence[float], bounds_g: Sequence[float],
+                        window: Window) -> tuple[float, float]:
+    """Constants (L_a, L_b) with ||F*(a, b) - F*(a', b')||_inf <= L_a |a - a'| + L_b |b - b'|.
+
+    Derivation (math.md section 2, explicit forms). For a <= 1/2,
+    F* = max(f1 - b, t (f2 + b)) with t = a / (1 - a) in [0, 1]:
+    |d/db| <= max(1, t) = 1 and |d/da| <= |f2 + b| / (1 - a)^2 <= 4 |f2 + b|.
+    For a >= 1/2, F* = max((1 - a)/a (f1 - b), f2 + b): |d/db| <= 1 and
+    |d/da| = |f1 - b| / a^2 <= 4 |f1 - b|. A max of Lipschitz functions keeps
+    the largest constant, so L_b = 1 and L_a = 4 M with
+    M = max over both maps and b in the window of max(|f1 - b|, |f2 + b|).
+
+    Since d_B is 1-Lipschitz in the sup norm of the filtration (stability,
+    also for lower-star filtrations of one mesh) and both F*_f and F*_g move,
+    |h_k(a, b) - h_k(a', b')| <= 2 (L_a |a - a'| + L_b |b - b'|).
+
+    Parameters
+    ----------
+    bounds_f, bounds_g : (min f1, min f2, max f1, max f2)
+    window : Window
+
+    Returns
+    -------
+    (L_a, L_b) : tuple of float
+
+    References
+    ----------
+    .. [CDFFL13] Cerri et al. (2013): stability of d_B under sup-norm perturbations.
+    """
+    b_lo, b_hi = window.b
+    m = 0.0
+    for lo1, lo2, hi1, hi2 in (bounds_f, bounds_g):
+        m = max(m, abs(hi1 - b_lo), abs(lo1 - b_hi), abs(hi2 + b_hi), abs(lo2 + b_lo),
+                abs(hi1 - b_hi), abs(lo1 - b_lo), abs(hi2 + b_lo), abs(lo2 + b_hi))
+    return 4.0 * m, 1.0
+
+
+def distance_upper_bound(shape_f, shape_g) -> tuple[float, str]:
+    """An upper bound U >= D_k(f, g) for every k, and how it was obtained.
+
+    - Same triangles (so the same simplicial complex): U = ||f - g||_inf over the
+      vertices [CDFFL13] (|F*_f - F*_g| <= max(|f1 - g1|, |f2 - g2|) vertex-wise).
+    - Otherwise, from the value ranges [D]: on a line with a <= 1/2,
+      F* = max(f1 - b, t (f2 + b)), t in [0, 1], so
+      max F*_f - min F*_g <= max(max f1 - min g1, t (max f2 - min g2)); every
+      bottleneck cost (|u - u'|, or a half persistence) is at most the largest of
+      max f1 - min g1, max g1 - min f1, max f2 - min g2, max g2 - min f2
+      (the same for a >= 1/2 with the roles of f1, f2 exchanged).
+    """
+    vf, vg = shape_f.values, shape_g.values
+    same = (vf.shape == vg.shape and shape_f.triangles is not None and shape_g.triangles is not None
+            and np.array_equal(shape_f.triangles, shape_g.triangles))
+    if same:
+        return float(np.abs(vf - vg).max()), "sup_norm"
+    f1lo, f2lo, f1hi, f2hi = shape_f.value_bounds()
+    g1lo, g2lo, g1hi, g2hi = shape_g.value_bounds()
+    return float(max(f1hi - g1lo, g1hi - f1lo, f2hi - g2lo, g2hi - f2lo, 0.0)), "value_ranges"
+
+
+def value_range(shape_f, shape_g) -> float:
+    """Largest extent of f1, f2, g1, g2 (value units); scales default tolerances."""
+    f1lo, f2lo, f1hi, f2hi = shape_f.value_bounds()
+    g1lo, g2lo, g1hi, g2hi = shape_g.value_bounds()
+    return float(max(f1hi - f1lo, f2hi - f2lo, g1hi - g1lo, g2hi - g2lo, 1e-12))
+
+
+def cell_error_bound(H: np.ndarray, av: np.ndarray, bv: np.ndarray, bounds_f: Sequence[float],
+                     bounds_g: Sequence[float]) -> float:
+    """Sampling error of a node grid: sup of h over the window minus max of h over the nodes (upper bound).
+
+    Cell by cell, with the local constants of :func:`lipschitz_constants`
+    (|dF*/da| <= |f2 + b| / (1 - a)^2 for a <= 1/2 and |f1 - b| / a^2 for
+    a >= 1/2, maximised over the cell; |dF*/db| <= 1): a line of the cell is within
+    (h_a/2, h_b/2) of a corner, so h there is at most
+    max over corners of h + 2 (L_a h_a/2 + L_b h_b/2).
+
+    Returns
+    -------
+    float
+        max over cells of that quantity, minus the node maximum (>= 0); ``inf`` if
+        any node value is infinite.
+    """
+    Hm = np.where(np.isnan(H), -math.inf, H)
+    if not np.all(np.isfinite(Hm)):
+        return math.inf
+    lo1, lo2 = min(bounds_f[0], bounds_g[0]), min(bounds_f[1], bounds_g[1])
+    hi1, hi2 = max(bounds_f[2], bounds_g[2]), max(bounds_f[3], bounds_g[3])
+    a0, a1 = av[:-1], av[1:]
+    b0, b1 = bv[:-1], bv[1:]
+    m2 = np.maximum.reduce([np.abs(hi2 + b0), np.abs(hi2 + b1), np.abs(lo2 + b0), np.abs(lo2 + b1)])
+    m1 = np.maximum.reduce([np.abs(hi1 - b0), np.abs(hi1 - b1), np.abs(lo1 - b0), np.abs(lo1 - b1)])
+    left = np.where(a0 <= 0.5, 1.0 / (1.0 - np.minimum(a1, 0.5)) ** 2, 0.0)  # (n_a - 1,)
+    right = np.where(a1 >= 0.5, 1.0 / np.maximum(a0, 0.5) ** 2, 0.0)
+    La = np.maximum(left[None, :] * m2[:, None], right[None, :] * m1[:, None])  # (n_b - 1, n_a - 1)
+    ha, hb = np.diff(av)[None, :], np.diff(bv)[:, None]
+    corner = np.maximum.reduce([Hm[..., :-1, :-1], Hm[..., 1:, :-1], Hm[..., :-1, 1:], Hm[..., 1:, 1:]])
+    top = corner + (La * ha + 1.0 * hb)
+    return float(max(0.0, top.max() - Hm.max()))
+
+
+def star_rows(values: np.ndarray, a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """F*(a, b) at every vertex for many lines: shape (len(a), n) (:func:`specmap.strip.star_values`)."""
+    return star_values(values[None, :, :], np.asarray(a, float)[:, None], np.asarray(b, float)[:, None])
+
+
+def line_upper_bound(values_f: np.ndarray, values_g: np.ndarray, a, b, *, chunk: int = 256) -> np.ndarray:
+    """||F*_f(a, b) - F*_g(a, b)||_inf over the vertices, per line: h_k(a, b) <= it for every k.
+
+    For two maps on the same triangulation the lower-star filtrations of one
+    line differ on every simplex by at most their largest vertex difference, so
+    by stability of persistence (points at infinity included)
+    h_k(a, b) <= max_v |F*_f(a, b)(v) - F*_g(a, b)(v)| [CDFFL13]. No diagram is
+    needed: O(n) per line (math.md section 2, explicit forms of F*).
+
+    Parameters
+    ----------
+    values_f, values_g : ndarray (n, 2)
+        Values at the same vertices (same triangles).
+    a, b : array_like
+        Lines, broadcast together.
+    chunk : int
+        Lines per vectorised block.
+
+    Returns
+    -------
+    ndarray of the broadcast shape of a and b.
+
+    Examples
+    --------
+    >>> v = np.array([[0.0, 1.0], [2.0, -1.0]])
+    >>> round(float(line_upper_bound(v, v + [0.3, 0.1], 0.5, 0.0)), 12)
+    0.3
+    """
+    a, b = np.broadcast_arrays(np.asarray(a, float), np.asarray(b, float))
+    af, bf = a.ravel(), b.ravel()
+    vf, vg = np.asarray(values_f, float), np.asarray(values_g, float)
+    out = np.empty(af.shape)
+    for i in range(0, len(af), chunk):
+        aa, bb = af[i:i + chunk], bf[i:i + chunk]
+        out[i:i + chunk] = np.abs(star_values(vf[:, None, :], aa, bb)
+                                  - star_values(vg[:, None, :], aa, bb)).max(axis=0)
+    return out.reshape(a.shape)
+
+
+def slope_one_sup_norm_max(values_f: np.ndarray, values_g: np.ndarray, lo: float, hi: float) -> float:
+    """max over b in [lo, hi] of ||F*_f(1/2, b) - F*_g(1/2, b)||_inf, exactly (maps on one mesh).
+
+    On a = 1/2, F*(v) = max(v1 - b, v2 + b), so d_v(b) = F*_f(v) - F*_g(v) is
+    piecewise linear in b with breakpoints only at the creases (f1 - f2)(v) / 2
+    and (g1 - g2)(v) / 2; |d_v| on [lo, hi] is largest at lo, hi or a crease
+    inside. By stability (:func:`line_upper_bound`) the result bounds h_k(1/2, b)
+    for every k and every b in [lo, hi].
+    """
+    vf, vg = np.asarray(values_f, float), np.asarray(values_g, float)
+
+    def d(b):  # per vertex; b a scalar or one value per vertex
+        return np.abs(star_values(vf, 0.5, b) - star_values(vg, 0.5, b))
+
+    m = max(float(d(lo).max(initial=0.0)), float(d(hi).max(initial=0.0)))
+    for crease in ((vf[:, 0] - vf[:, 1]) / 2, (vg[:, 0] - vg[:, 1]) / 2):
+        inside = (crease > lo) & (crease < hi)
+        if inside.any():
+            m = max(m, float(d(crease)[inside].max()))
+    return m
+
+
+class LocalBound:
+    """h at a line from h at evaluated lines: h(p) <= h(q) + ||F*_f(p) - F*_f(q)|| + ||F*_g(p) - F*_g(q)||.
+
+    Stability [CDFFL13] applied to each map between the lines p and q (both
+    filtrations on one mesh), plus the triangle inequality for d_B. Exact
+    vertex-wise sup norms, no Lipschitz constant; only the ``near`` evaluated
+    lines closest to p (normalised window distance) are used, which keeps it an
+    upper bound.
+    """
+
+    def __init__(self, values_f: np.ndarray, values_g: np.ndarray, window: Window, near: int = 16) -> None:
+        self.vf, self.vg = values_f, values_g
+        self.window = window
+        self.near = near
+        self.pts: list[np.ndarray] = []
+        self.h: list[np.ndarray] = []
+        self.Ff: list[np.ndarray] = []
+        self.Fg: list[np.ndarray] = []
+
+    def add(self, a: np.ndarray, b: np.ndarray, H: np.ndarray) -> None:
+        """Record lines (a, b) with h values H (n_lines, n_groups)."""
+        a, b = np.atleast_1d(a).astype(float), np.atleast_1d(b).astype(float)
+        self.pts.append(normalise(np.c_[a, b], self.window))
+        self.h.append(np.asarray(H, float).reshape(len(a), -1))
+        self.Ff.append(star_rows(self.vf, a, b))
+        self.Fg.append(star_rows(self.vg, a, b))
+        self.pts, self.h = [np.concatenate(self.pts)], [np.concatenate(self.h)]
+        self.Ff, self.Fg = [np.concatenate(self.Ff)], [np.concatenate(self.Fg)]
+
+    def __call__(self, a: float, b: float) -> np.ndarray:
+        """Upper bound of h (per group) at the line (a, b); ``inf`` before any line is recorded."""
+        if not self.pts:
+            return np.array([math.inf])
+        P, H = self.pts[0], self.h[0]
+        d = np.linalg.norm(P - normalise(np.array([a, b]), self.window), axis=1)
+        idx = np.argsort(d)[:self.near]
+        ff = star_rows(self.vf, np.array([a]), np.array([b]))[0]
+        fg = star_rows(self.vg, np.array([a]), np.array([b]))[0]
+        move = np.abs(self.Ff[0][idx] - ff).max(axis=1) + np.abs(self.Fg[0][idx] - fg).max(axis=1)
+        return (H[idx] + move[:, None]).min(axis=0)

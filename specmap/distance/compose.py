@@ -1,0 +1,181 @@
+"""matching_distance: the stages of the package composed into one :class:`DistanceResult`."""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Iterable, Sequence
+from typing import Any
+
+from specmap.distance.audit import position_audit, theorem_audit
+from specmap.distance.bounds import distance_upper_bound, lipschitz_constants, value_range
+from specmap.distance.dense import dense_sweep
+from specmap.distance.evaluator import LineEvaluator, Progress
+from specmap.distance.reduced import ReducedSettings, reduced_search
+from specmap.distance.result import (
+    DenseSweep,
+    DistanceResult,
+    ReducedSearch,
+    dense_json,
+    landscape_json,
+    reduced_json,
+)
+from specmap.errors import StudyError
+from specmap.slices import DEGREES
+from specmap.strip import Window, default_window
+
+METHODS = ("both", "dense", "reduced")
+TOLERANCE_FRACTION = 1e-3
+"""Default tolerance: this fraction of the largest value range of f and g."""
+
+
+def _grids_pair(grids) -> tuple | None:
+    if grids is None:
+        return None
+    if isinstance(grids, dict):
+        return (grids["f"], grids["g"])
+    g = tuple(grids)
+    if len(g) != 2:
+        raise ValueError("grids must be (grid_f, grid_g)")
+    return g
+
+
+def _check_inputs(shape_f, shape_g, method: str) -> None:
+    if method not in METHODS:
+        raise ValueError(f"method must be one of {METHODS}, not {method!r}")
+    for s in (shape_f, shape_g):
+        if not getattr(s, "has_mesh", False):
+            raise StudyError(f"{getattr(s, 'label', 'a shape')} has no mesh, so no slice diagrams",
+                             fix="give a surface or mesh for f and g")
+
+
+def _reduced_stage(ev: LineEvaluator, window: Window, pair: tuple | None, atlas, *, tolerance: float,
+                   upper: float, settings: ReducedSettings) -> ReducedSearch:
+    """The reduced search, with the atlas computed from the grids when not given."""
+    if pair is None:
+        raise StudyError("the reduced search needs the extended Pareto grids of f and g",
+                         field="grids", fix="pass grids=(grid_f, grid_g) or use method='dense'")
+    if atlas is None:
+        from specmap.special import special_set
+
+        atlas = special_set(pair[0], pair[1], window)
+    contours = {c.id: c for g in pair for c in g.contours}
+    return reduced_search(ev, window, atlas, contours, tolerance=tolerance, upper=upper, settings=settings)
+
+
+def _by_degree(red: ReducedSearch | None, dense: DenseSweep | None, degrees: Sequence[int],
+               tolerance: float, certify: str) -> dict[int, dict[str, Any]]:
+    """Per degree: value, line, where reached (slope-one / special / both / dense), certified or a lower bound."""
+    out: dict[int, dict[str, Any]] = {}
+    for j, k in enumerate(degrees):
+        if red is not None:
+            s, p = red.slope[j], red.special[j]
+            if p.value > s.value + tolerance:
+                entry = {"value": p.value, "at": p.at, "reached_on": "special", "component": p.component}
+            elif s.value > p.value + tolerance or not math.isfinite(p.value):
+                entry = {"value": s.value, "at": s.at, "reached_on": "slope-one", "component": None}
+            else:
+                top = p if p.value > s.value else s
+                entry = {"value": top.value, "at": top.at, "reached_on": "both", "component": p.component}
+        else:
+            v, at = dense.best[j]
+            entry = {"value": v, "at": at, "reached_on": "dense", "component": None}
+        out[k] = entry
+    vmax = max(out[k]["value"] for k in degrees)
+    for k in degrees:
+        out[k]["certified"] = bool(red is None or certify == "each" or out[k]["value"] >= vmax - tolerance)
+    return out
+
+
+def matching_distance(shape_f, shape_g, *, method: str = "both", degrees: Iterable[int] = DEGREES,
+                      window: Window | None = None, atlas=None, grids=None, jobs: int = 1,
+                      dense_resolution: int = 41, progress: Progress | None = None,
+                      tolerance: float | None = None, slope_samples: int = 17,
+                      spacing: float = 1 / 200, roles: bool = True, certify: str = "max",
+                      position_lines: int = 20) -> DistanceResult:
+    """Matching distance D_k(f, g) of two meshed maps, dense, reduced or both.
+
+    Parameters
+    ----------
+    shape_f, shape_g : Shape
+        Must carry a mesh (vertices, triangles, values).
+    method : {"both", "dense", "reduced"}
+    degrees : iterable of int
+    window : Window, optional
+        Default: :func:`specmap.strip.default_window` of the value bounds.
+    atlas : object, optional
+        Special-set atlas with ``pieces`` (tie, kind, geometry) and ``components``;
+        computed with :func:`specmap.special.special_set` from ``grids`` when omitted.
+    grids : (Grid, Grid), optional
+        Extended Pareto grids of f and g; needed by the reduced search and the position audit.
+    jobs : int
+        Worker processes for the slices.
+    dense_resolution : int
+        Nodes per side of the dense sweep.
+    progress : callable(done, total), optional
+    tolerance : float, optional
+        Default: 1e-3 times the largest value range of f and g.
+    slope_samples, spacing, roles, certify
+        Reduced search settings (:class:`~specmap.distance.reduced.ReducedSettings`). With
+        ``certify="max"`` the max over degrees is certified and ``by_degree`` values below
+        it are lower bounds (``"certified": false``); ``"each"`` certifies every degree.
+    position_lines : int
+        Lines of the position audit (0 to skip).
+
+    Returns
+    -------
+    DistanceResult
+
+    Raises
+    ------
+    StudyError
+        A shape without a mesh; the reduced search without grids.
+
+    Warns
+    -----
+    UserWarning
+        When the dense sweep exceeds the reduced search by more than the tolerance
+        (``audit.theorem_gap``).
+
+    References
+    ----------
+    .. [CDFFL13] Cerri et al. (2013); [EFQT23] Ethier et al. (2023); [FMQT] arXiv:2312.04201.
+    """
+    _check_inputs(shape_f, shape_g, method)
+    degrees = tuple(int(k) for k in degrees)
+    bf, bg = shape_f.value_bounds(), shape_g.value_bounds()
+    window = window or default_window(bf, bg)
+    pair = _grids_pair(grids)
+    tol = TOLERANCE_FRACTION * value_range(shape_f, shape_g) if tolerance is None else tolerance
+    lip = lipschitz_constants(bf, bg, window)
+    upper, upper_kind = distance_upper_bound(shape_f, shape_g)
+    ev = LineEvaluator(shape_f, shape_g, degrees, jobs=jobs, progress=progress)
+    settings = ReducedSettings(slope_samples=slope_samples, spacing=spacing, roles=roles, certify=certify)
+
+    dense = red = None
+    if method in ("dense", "both"):
+        dense = dense_sweep(ev, window, resolution=dense_resolution, bounds=(bf, bg))
+    if method in ("reduced", "both"):
+        red = _reduced_stage(ev, window, pair, atlas, tolerance=tol, upper=upper, settings=settings)
+
+    by_degree = _by_degree(red, dense, degrees, tol, certify)
+    vmax = max(by_degree[k]["value"] for k in degrees)
+    kmax = max(degrees, key=lambda k: by_degree[k]["value"])
+    top = by_degree[kmax]
+
+    # theorem_gap / gap stay None ("not run") unless both computations ran
+    audit: dict[str, Any] = {"theorem_gap": None, "gap": None, "line": None, "degree": None,
+                             "position": None, "upper_bound": upper, "upper_bound_kind": upper_kind}
+    if dense is not None and red is not None:
+        audit.update(theorem_audit(dense, by_degree, degrees, vmax, tol))
+    if pair is not None and position_lines > 0:
+        audit["position"] = position_audit(shape_f, shape_g, pair, window, tolerance=tol, lines=position_lines)
+
+    return DistanceResult(
+        value=float(top["value"]), at=top["at"], reached_on=top["reached_on"], component=top["component"],
+        by_degree=by_degree, dense=None if dense is None else dense_json(dense, degrees),
+        reduced=None if red is None else reduced_json(red, degrees, top, kmax), audit=audit,
+        tolerance=float(tol), infinite=list(ev.infinite),
+        landscape=None if dense is None else landscape_json(dense, degrees), window=window,
+        meta={"degrees": list(degrees), "lines_total": ev.lines, "jobs": int(jobs),
+              "lipschitz": {"a": lip[0], "b": lip[1]}},
+    )

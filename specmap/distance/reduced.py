@@ -1,0 +1,330 @@
+"""The reduced search: D_k from the slope-one line and a short candidate list on the special set.
+
+By the main theorem [EFQT23, FMQT] D_k is reached on the slope-one line
+a = 1/2 or at a special value, so h_k is evaluated on a = 1/2
+(:mod:`specmap.distance.slope_one`) and at candidates of the special set
+(:mod:`specmap.distance.candidates`) in descending order of their tied cost,
+skipping those that provably cannot be the maximum.
+"""
+
+from __future__ import annotations
+
+import math
+import time
+from collections.abc import Sequence
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+
+from specmap.distance.bounds import LocalBound, line_upper_bound
+from specmap.distance.candidates import ORIGINS, special_candidates
+from specmap.distance.evaluator import LineEvaluator
+from specmap.distance.paths import normalise
+from specmap.distance.refine import polish_along
+from specmap.distance.result import Best, Candidates, ReducedSearch, SlopeOneSearch
+from specmap.distance.slope_one import slope_one_search
+from specmap.strip import Window
+
+
+@dataclass(frozen=True)
+class ReducedSettings:
+    """Settings of :func:`reduced_search` (defaults as used by :func:`specmap.distance.matching_distance`).
+
+    Attributes
+    ----------
+    slope_samples : int
+        Initial equally spaced lines on a = 1/2.
+    slope_max_lines : int
+        Lines after which the slope-one search stops uncertified.
+    spacing : float
+        Candidate sampling step along special curves, as a fraction of the window.
+    roles : bool
+        Use the f/g roles of contours to skip ties of no two costs (math.md section 5).
+    certify : {"max", "each"}
+        Certify the max over degrees, or each degree.
+    polish : bool
+        Refine the best special candidate along its curve.
+    batch : int or None
+        Candidates per evaluation round (default 1 for one job, else 2 per job).
+    local_bound : bool
+        Use the stability bound between evaluated lines (same mesh only).
+    polish_iters : int
+        Golden-section steps of the polish.
+    """
+
+    slope_samples: int = 17
+    slope_max_lines: int = 200
+    spacing: float = 1 / 200
+    roles: bool = True
+    certify: str = "max"
+    polish: bool = True
+    batch: int | None = None
+    local_bound: bool = True
+    polish_iters: int = 6
+
+
+def _same_mesh(ev: LineEvaluator) -> bool:
+    return ev.val_f.shape == ev.val_g.shape and np.array_equal(ev.tri_f, ev.tri_g)
+
+
+def _slope_one_phase(ev: LineEvaluator, window: Window, groups: list[list[int]], tolerance: float,
+                     settings: ReducedSettings, step: int,
+                     same_mesh: bool) -> tuple[list[Best], SlopeOneSearch | None]:
+    """Branch and bound on a = 1/2 to tolerance / 2, then the best evaluated line of a = 1/2 per degree."""
+    nd = len(ev.degrees)
+    slope = [Best() for _ in range(nd)]
+    if not window.a[0] <= 0.5 <= window.a[1]:
+        return slope, None
+    info = slope_one_search(ev, window, groups, tolerance=tolerance / 2, samples=settings.slope_samples,
+                            max_lines=settings.slope_max_lines, batch=step,
+                            values=(ev.val_f, ev.val_g) if same_mesh else None)
+    for (a, b), v in list(ev.memo.items()):
+        if a == 0.5:
+            for j in range(nd):
+                slope[j].offer(v[j], (a, b), "slope-one")
+    return slope, info
+
+
+def _seeded_local_bound(ev: LineEvaluator, window: Window, groups: list[list[int]]) -> LocalBound:
+    """A :class:`LocalBound` holding every line evaluated so far."""
+    local = LocalBound(ev.val_f, ev.val_g, window)
+    known = [(p, v) for p, v in ev.memo.items()]
+    if known:
+        P = np.array([p for p, _ in known])
+        V = np.array([[np.max(v[g]) for g in groups] for _, v in known])
+        local.add(P[:, 0], P[:, 1], V)
+    return local
+
+
+@dataclass
+class _Descent:
+    """The descending pass over the candidates (step 2 of :func:`reduced_search`), its state and counters."""
+
+    ev: LineEvaluator
+    cand: Candidates
+    groups: list[list[int]]
+    best: np.ndarray  # per group
+    tolerance: float
+    upper: float
+    step: int
+    same_mesh: bool
+    local: LocalBound | None
+    special: list[Best] = field(default_factory=list)
+    counts: dict[str, int] = field(default_factory=dict)
+    evaluated: list[int] = field(default_factory=list)
+    stop: dict[str, Any] | None = None
+
+    def __post_init__(self) -> None:
+        n = len(self.cand.a)
+        self.special = [Best() for _ in self.ev.degrees]
+        self.counts = {"below_best": int(self.cand.below_floor), "above_bound": 0, "line_bound": 0,
+                       "local_bound": 0}
+        self.order = np.argsort(-self.cand.hi, kind="stable")
+        self.line_b = np.full(n, np.nan)
+        self.open_g = np.ones(len(self.groups), dtype=bool)
+        self.pos = 0
+
+    def run(self) -> None:
+        n = len(self.cand.a)
+        while self.pos < n and self.open_g.any():
+            take = self._next_batch()
+            if take:
+                self._evaluate(take)
+        self.counts["below_best"] += n - self.pos  # after an early stop every later t is <= best + tol
+
+    def _pruned(self, i: int) -> str | None:
+        """Why candidate i cannot beat the best line (a counter name), or None."""
+        c, tol = self.cand, self.tolerance
+        if c.lo[i] > self.upper + tol:
+            return "above_bound"
+        if self.same_mesh:
+            if math.isnan(self.line_b[i]):
+                chunk = self.order[self.pos - 1:self.pos - 1 + 256]
+                self.line_b[chunk] = line_upper_bound(self.ev.val_f, self.ev.val_g, c.a[chunk], c.b[chunk])
+            if c.lo[i] > self.line_b[i] + tol:
+                return "line_bound"
+        if self.local is not None and c.lo[i] > float(self.local(c.a[i], c.b[i]).max()) + tol:
+            return "local_bound"
+        return None
+
+    def _next_batch(self) -> list[int]:
+        """Up to ``step`` candidates, in descending order of ``hi``, that survive the pruning rules."""
+        n = len(self.cand.a)
+        thr = float(self.best[self.open_g].min())
+        take: list[int] = []
+        while self.pos < n and len(take) < self.step:
+            i = int(self.order[self.pos])
+            if not self.cand.hi[i] > thr + self.tolerance:
+                self.counts["below_best"] += n - self.pos
+                self.pos = n
+                break
+            self.pos += 1
+            why = self._pruned(i)
+            if why is not None:
+                self.counts[why] += 1
+                continue
+            take.append(i)
+        return take
+
+    def _evaluate(self, take: list[int]) -> None:
+        """h at the candidates ``take``: update the bests, the local bound and the early stop."""
+        c, tol = self.cand, self.tolerance
+        self.ev.plan(len(take))
+        H = self.ev(c.a[take], c.b[take])
+        self.evaluated.extend(take)
+        G = np.array([[np.max(H[g, k]) for g in self.groups] for k in range(len(take))])
+        if self.local is not None:
+            self.local.add(c.a[take], c.b[take], G)
+        for k, i in enumerate(take):
+            for j in range(len(self.ev.degrees)):
+                if self.special[j].offer(H[j, k], (c.a[i], c.b[i]), "special"):
+                    self.special[j].tag = (int(c.piece[i]), i)
+            self.best = np.maximum(self.best, G[k])
+            hit = self.open_g & (G[k] >= c.hi[i] - tol)
+            if hit.any() and self.stop is None:
+                self.stop = {"a": float(c.a[i]), "b": float(c.b[i]), "t": float(c.hi[i]), "h": float(G[k].max()),
+                             "origin": ORIGINS[int(c.origin[i])],
+                             "rank": len(self.evaluated) - len(take) + k + 1}
+            self.open_g &= ~hit
+
+
+def _polish(ev: LineEvaluator, special: list[Best], slope: list[Best], cand: Candidates, window: Window,
+            tolerance: float, settings: ReducedSettings) -> None:
+    """Refine the best special candidate of each certified degree along its curve (golden section)."""
+    top = max(max(s.value, p.value) for s, p in zip(slope, special, strict=True))
+    for j, rec in enumerate(special):
+        if not (settings.polish and rec.tag is not None and math.isfinite(rec.value)):
+            continue
+        if rec.value < slope[j].value - tolerance or (settings.certify == "max" and rec.value < top - tolerance):
+            continue
+        ip, _ = rec.tag
+        paths = cand.paths_of.get(ip, [])
+        if not paths:
+            continue
+        norm = normalise(np.array(rec.at), window)
+        k = min(paths, key=lambda p: float(np.min(np.linalg.norm(cand.paths[p] - norm, axis=1))))
+        ev.plan(settings.polish_iters + 2)
+        v, at = polish_along(ev, [j], cand.paths[k], rec.at, window, settings.spacing, settings.polish_iters)
+        if v > rec.value:
+            rec.offer(v, at, "special")
+
+
+def _component_of(piece, point: tuple[float, float], components: Sequence) -> str | None:
+    """Id of the atlas component nearest to ``point`` among those holding the piece's tie (else all)."""
+    if not components:
+        return None
+    from shapely.geometry import Point
+
+    p = Point(point)
+    same = [c for c in components if piece.tie in tuple(getattr(c, "ties", ()))]
+    pool = [c for c in (same or list(components)) if c.geometry is not None]
+    if not pool:
+        return None
+    return str(min(pool, key=lambda c: c.geometry.distance(p)).id)
+
+
+def reduced_search(ev: LineEvaluator, window: Window, atlas, contours_by_id: dict, *, tolerance: float,
+                   upper: float, settings: ReducedSettings = ReducedSettings()) -> ReducedSearch:
+    """D_k = max(max_b h_k(1/2, b), sup of h_k over the special set) [EFQT23, FMQT].
+
+    Write t(p) for the tied cost of a tie at p (value units,
+    :func:`~specmap.distance.ties.tie_costs`): |d| for an equal tie of two cross pairs
+    (matching costs), |d|/2 for one of two same-grid pairs (diagonal costs), the
+    smaller difference for a half tie of a same-grid pair (larger difference) against
+    a cross pair. Other ties compare costs of different kinds and carry no maximum
+    (math.md 5, role-aware refinement): they are skipped (``pruned["roles"]``).
+
+    Why a short list suffices. If D is not reached on a = 1/2 it is reached at
+    a special point p* where the active cost ties with another, so
+    h(p*) = t(p*) = D for a tie through p*; along that curve h = t while the
+    tie stays active, so p* is a local maximum of t along the curve, an end of
+    the active arc (a crossing with a tie sharing a pair) or an end of the curve
+    (:func:`~specmap.distance.candidates.special_candidates`). Every candidate c has
+    h(c) <= D, so a candidate with t(c) > D has h(c) < t(c).
+
+    1. Slope-one line: :func:`~specmap.distance.slope_one.slope_one_search`, a branch
+       and bound in b with the Lipschitz constant 2 of h along a = 1/2, from
+       ``slope_samples`` equally spaced lines until max_b h <= best + tolerance / 2
+       is certified (at most ``slope_max_lines`` lines); ``best`` is its value.
+    2. Candidates in descending order of t (sort key ``hi``, the larger side
+       off the curve); a candidate is dropped when
+       - ``below_best``: t <= best + tol (then so is every later one);
+       - ``above_bound``: ``lo`` > U + tol, U an upper bound of D (``upper``);
+       - ``line_bound``: ``lo`` > ||F*_f - F*_g||_inf on its line + tol
+         (:func:`~specmap.distance.bounds.line_upper_bound`, same mesh only): then h(c) < t(c);
+       - ``local_bound``: ``lo`` > h(q) + ||F*_f(c) - F*_f(q)|| + ||F*_g(c) - F*_g(q)|| + tol
+         for an evaluated line q (stability between lines, same mesh only).
+       The others are evaluated in batches (``batch``, default 1 for one job,
+       else 2 jobs) and ``best`` grows. **Early stop**: the first evaluated c
+       with h(c) >= t(c) - tol gives D = max(best, h(c)) up to tol: any
+       candidate with t > D has h < t, so the first one with h = t has t = D,
+       and every later one has t <= t(c) <= h(c) + tol (it is then
+       ``below_best``).
+    3. Polish: the best special candidate of each certified degree is refined by
+       a golden-section search of h along its curve (``polish_iters``).
+
+    On meshes the grid, hence the special set, is approximate; nothing above is
+    used to *hide* a larger value: :func:`~specmap.distance.matching_distance` audits
+    the result against the dense sweep (``theorem_gap``).
+
+    ``certify="max"`` works with the max over degrees (the max over degrees is
+    certified; single degrees below it are lower bounds), ``"each"`` with each
+    degree on its own.
+
+    Parameters
+    ----------
+    ev : LineEvaluator
+    window : Window
+    atlas : object
+        ``pieces`` (tie, kind, geometry) and ``components`` (id, geometry, ties).
+    contours_by_id : dict
+        Contours of both grids by id.
+    tolerance, upper : float
+        Value units; ``upper`` is an upper bound of D.
+    settings : ReducedSettings
+
+    Returns
+    -------
+    ReducedSearch
+        ``pruned`` holds ties (``roles``, ``unknown_contour``, ``not_met``,
+        ``outside_window``), candidates (``below_best``, ``above_bound``,
+        ``line_bound``, ``local_bound``), ``candidates_total``, ``candidates_evaluated``,
+        ``crossings``, ``early_stop``; ``stop`` the stopping candidate or None.
+    """
+    s = settings
+    if s.certify not in ("max", "each"):
+        raise ValueError("certify must be 'max' or 'each'")
+    t0 = time.perf_counter()
+    n0 = ev.lines
+    nd = len(ev.degrees)
+    groups = [[j] for j in range(nd)] if s.certify == "each" else [list(range(nd))]
+    step = s.batch or (1 if ev.jobs == 1 else 2 * ev.jobs)
+    same_mesh = _same_mesh(ev)
+    slope, slope_info = _slope_one_phase(ev, window, groups, tolerance, s, step, same_mesh)
+    best = np.array([max(slope[j].value for j in g) for g in groups])
+    t1 = time.perf_counter()
+    # every threshold of the descending pass is >= min(best): candidates under it are below_best anyway
+    floor = float(best.min()) if len(best) and np.isfinite(best).all() else -math.inf
+    cand = special_candidates(atlas, contours_by_id, window, spacing=s.spacing, roles=s.roles, floor=floor,
+                              tolerance=tolerance)
+    cand_seconds = time.perf_counter() - t1
+    pieces = tuple(getattr(atlas, "pieces", ()) or ())
+    components = tuple(getattr(atlas, "components", ()) or ())
+    local = _seeded_local_bound(ev, window, groups) if (same_mesh and s.local_bound) else None
+    walk = _Descent(ev, cand, groups, best, tolerance, upper, step, same_mesh, local)
+    walk.run()
+    special = walk.special
+    _polish(ev, special, slope, cand, window, tolerance, s)
+    for rec in special:
+        if rec.tag is not None:
+            rec.component = _component_of(pieces[rec.tag[0]], rec.at, components) or f"piece:{rec.tag[0]}"
+    n = len(cand.a)
+    pruned = {**cand.pruned, **walk.counts, "ties_total": len(pieces), "ties_live": len(cand.live),
+              "ties_evaluated": len({int(cand.piece[i]) for i in walk.evaluated}),
+              "candidates_total": n + int(cand.below_floor),
+              "candidates_evaluated": len(walk.evaluated), "crossings": cand.crossings,
+              "early_stop": walk.stop is not None}
+    return ReducedSearch(slope=slope, special=special, lines=ev.lines - n0, seconds=time.perf_counter() - t0,
+                         pruned=pruned, stop=walk.stop, candidate_seconds=cand_seconds,
+                         slope_search=slope_info, settings=s)

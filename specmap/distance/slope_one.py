@@ -1,0 +1,147 @@
+"""max over b of h on the slope-one line a = 1/2, by a certified branch and bound (Piyavskii-Shubert)."""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable, Sequence
+
+import numpy as np
+
+from specmap.distance.bounds import SLOPE_ONE_LIPSCHITZ, slope_one_sup_norm_max
+from specmap.distance.evaluator import LineEvaluator
+from specmap.distance.result import SlopeOneSearch
+from specmap.strip import Window
+
+
+def _group_values(ev: LineEvaluator, groups: Sequence[Sequence[int]], b: np.ndarray) -> np.ndarray:
+    """G(b): max of h over each group of degree indices on the lines (1/2, b), shape (len(b), n_groups)."""
+    H = ev(np.full(b.shape, 0.5), b)  # (n_deg, n)
+    G = [[float(np.max(H[list(g), i])) for g in groups] for i in range(len(b))]
+    return np.array(G).reshape(-1, len(groups))
+
+
+def _sup_norm_cap(values: tuple[np.ndarray, np.ndarray]) -> Callable[[float, float], float]:
+    """Memoised :func:`slope_one_sup_norm_max` of the two maps over [lo, hi]."""
+    cache: dict[tuple[float, float], float] = {}
+
+    def cap(lo: float, hi: float) -> float:
+        key = (lo, hi)
+        if key not in cache:
+            cache[key] = slope_one_sup_norm_max(values[0], values[1], lo, hi)
+        return cache[key]
+
+    return cap
+
+
+def _split_points(xs: np.ndarray, G: np.ndarray, gap: np.ndarray, idx: np.ndarray, lipschitz: float) -> np.ndarray:
+    """Where the intervals ``idx`` are split: the apex x* of the group with the largest gap, 5% off the ends."""
+    new = []
+    for i in idx:
+        g = int(np.argmax(np.where(np.isnan(gap[i]), -np.inf, gap[i])))
+        lo, hi = xs[i], xs[i + 1]
+        x = (lo + hi) / 2 + (G[i + 1, g] - G[i, g]) / (2 * lipschitz)
+        x = min(max(x, lo + 0.05 * (hi - lo)), hi - 0.05 * (hi - lo))
+        new.append(x)
+    return np.array(new)
+
+
+def slope_one_search(ev: LineEvaluator, window: Window, groups: Sequence[Sequence[int]], *, tolerance: float,
+                     samples: int = 17, max_lines: int = 200, batch: int = 1,
+                     lipschitz: float = SLOPE_ONE_LIPSCHITZ,
+                     values: tuple[np.ndarray, np.ndarray] | None = None) -> SlopeOneSearch:
+    """max over b of h on the slope-one line a = 1/2, by branch and bound, certified to ``tolerance``.
+
+    Bound. On a = 1/2, F* = max(f1 - b, f2 + b) moves by at most |b - b'| at every
+    vertex, so by stability for each map and the triangle inequality for d_B,
+    G(b) = max over a group of degrees of h_k(1/2, b) is L-Lipschitz in b with
+    L = 2 (the L_b = 1 of :func:`~specmap.distance.bounds.lipschitz_constants`,
+    doubled as in the dense sweep's error bound). Between two evaluated lines l < r,
+    G <= min(G(l) + L (x - l), G(r) + L (r - x)), whose largest value is
+
+        UB(l, r) = (G(l) + G(r)) / 2 + L (r - l) / 2,
+
+    reached at x* = (l + r) / 2 + (G(r) - G(l)) / (2 L). For two maps on one mesh
+    (``values``) the interval bound is min(UB, S(l, r)) with S the exact max over
+    [l, r] of ||F*_f - F*_g||_inf (:func:`~specmap.distance.bounds.slope_one_sup_norm_max`,
+    no diagram): stability closes intervals where h cannot exceed best + tolerance
+    whatever its slope, e.g. the flat h = |c| of g = f + (c, c).
+
+    Search (Piyavskii-Shubert). ``samples`` equally spaced values of b over the
+    window, then repeatedly: the interval with the largest UB - best is split
+    at its x* (kept at least 5% of the interval away from its ends), ``batch``
+    intervals per round (one slice each); an interval is dropped for good once
+    UB <= best + tolerance for every group. Every line is evaluated once
+    (:class:`~specmap.distance.evaluator.LineEvaluator` keeps a memo by (a, b)). When
+    no interval is left, max_b G <= best + tolerance: the slope-one part of D is
+    certified. The search stops uncertified after ``max_lines`` lines (``certified``
+    False, ``bound`` still a valid upper bound).
+
+    Parameters
+    ----------
+    ev : LineEvaluator
+    window : Window
+        Its b range is searched.
+    groups : sequence of sequences of int
+        Degree indices whose max is bounded together (one group per certified value).
+    tolerance : float
+    samples, max_lines, batch : int
+    lipschitz : float
+        L above; only a larger value keeps the bound valid.
+    values : (ndarray (n, 2), ndarray (n, 2)), optional
+        Vertex values of f and g on one mesh (same triangles), for the sup-norm bound.
+
+    Returns
+    -------
+    SlopeOneSearch
+        ``best`` (per group), ``bound`` (per group: best + the largest remaining
+        UB - best, an upper bound of max_b G over the window), ``certified``, ``lines``
+        (distinct lines evaluated here), ``rounds``.
+
+    References
+    ----------
+    .. [CDFFL13] Cerri et al. (2013): stability; Piyavskii (1972), Shubert (1972):
+       sequential search for the global maximum of a Lipschitz function.
+    """
+    b_lo, b_hi = (float(x) for x in window.b)
+    n0 = ev.lines
+    xs = np.linspace(b_lo, b_hi, max(2, int(samples)))
+    ev.plan(len(xs))
+    G = _group_values(ev, groups, xs)
+    best = np.where(np.isnan(G), -np.inf, G).max(axis=0)
+    min_len = 1e-12 * max(1.0, b_hi - b_lo)
+    cap = _sup_norm_cap(values) if values is not None else None
+    rounds = 0
+    certified = False
+    ub_top = best.copy()
+    while True:
+        length = np.diff(xs)
+        ub = (G[:-1] + G[1:]) / 2 + lipschitz * length[:, None] / 2  # (n - 1, ng)
+        if cap is not None:
+            caps = np.array([cap(float(lo), float(hi)) for lo, hi in zip(xs[:-1], xs[1:], strict=True)])
+            ub = np.minimum(ub, caps[:, None])
+        with np.errstate(invalid="ignore"):
+            gap = ub - (best + tolerance)[None, :]
+            score = np.where(np.isnan(gap), -np.inf, gap).max(axis=1)
+        ub_top = np.maximum(best, np.where(np.isnan(ub), -np.inf, ub).max(axis=0)) if len(ub) else best
+        live = (score > 0) & (length > min_len)
+        if not live.any():
+            # a NaN value bounds nothing, an open interval below min_len is not closed: no certificate then
+            certified = not (score > 0).any() and not np.isnan(G).any()
+            break
+        if ev.lines - n0 >= max_lines:
+            break
+        idx = np.nonzero(live)[0]
+        idx = idx[np.argsort(-score[idx], kind="stable")][:max(1, int(batch))]
+        new = _split_points(xs, G, gap, idx, lipschitz)
+        ev.plan(len(new))
+        Gn = _group_values(ev, groups, new)
+        best = np.maximum(best, np.where(np.isnan(Gn), -np.inf, Gn).max(axis=0))
+        at = np.searchsorted(xs, new)
+        xs = np.insert(xs, at, new)
+        G = np.insert(G, at, Gn, axis=0)
+        order = np.argsort(xs, kind="stable")  # several splits in one round: keep xs sorted
+        xs, G = xs[order], G[order]
+        rounds += 1
+    ub_top = np.where(np.isnan(G).any(axis=0), math.inf, ub_top)
+    return SlopeOneSearch(best=best.tolist(), bound=ub_top.tolist(), certified=certified,
+                          lines=ev.lines - n0, rounds=rounds)
