@@ -8,7 +8,10 @@ Sources:
   0-dimensional class, every maximum ends a 1-dimensional class or starts the 2-dimensional one,
   every saddle (with multiplicity) ends a 0-dimensional class or starts a 1-dimensional one;
 - stability of persistence diagrams [Cohen-Steiner, Edelsbrunner, Harer 2007]:
-  bottleneck(Dgm f, Dgm f') <= ||f - f'||_inf.
+  bottleneck(Dgm f, Dgm f') <= ||f - f'||_inf;
+- closed forms for the noisy-scan generator (tests/scangen.py): points on the ellipsoid, the Euler
+  characteristic of the sphere, one PL minimum and maximum of a linear function on a convex polyhedron,
+  the sampling error of a standard deviation.
 """
 
 from __future__ import annotations
@@ -19,6 +22,7 @@ import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 from meshgen import ellipsoid_mesh, torus_mesh
+from scangen import noisy_scan
 
 from specmap.grids.piecewise import piecewise_grid, pl_critical_vertices
 from specmap.simplify import (
@@ -220,3 +224,56 @@ def test_pareto_contours_drop() -> None:
     before = len(piecewise_grid(V, T, np.c_[f1, f2]).contours)
     after = len(piecewise_grid(V, T, simplify_pair(T, f1, f2, 0.2).values).contours)
     assert after < before
+
+
+# --------------------------------------------------------------------------- the noisy-scan generator
+
+
+def test_scan_is_seeded() -> None:
+    a, b, c = noisy_scan(amplitude=0.01, seed=3), noisy_scan(amplitude=0.01, seed=3), noisy_scan(seed=4)
+    assert np.array_equal(a.vertices, b.vertices) and np.array_equal(a.triangles, b.triangles)
+    assert not np.array_equal(a.vertices, c.vertices)
+
+
+def test_scan_without_noise_is_the_smooth_surface() -> None:
+    s = noisy_scan(radii=(2.0, 1.2, 1.0), level=8, amplitude=0.0, seed=1)
+    # on the ellipsoid sum (x_i / r_i)^2 = 1 (closed form)
+    np.testing.assert_allclose(((s.vertices / np.array(s.radii)) ** 2).sum(axis=1), 1.0, atol=1e-12)
+    n, m = len(s.vertices), len(s.triangles)
+    edges = np.unique(np.sort(np.concatenate([s.triangles[:, [0, 1]], s.triangles[:, [1, 2]],
+                                              s.triangles[:, [0, 2]]]), axis=1), axis=0)
+    assert n - len(edges) + m == 2  # Euler characteristic of the sphere
+    a, b, c = (s.vertices[s.triangles[:, k]] for k in range(3))
+    assert ((np.cross(b - a, c - a) * (a + b + c)).sum(axis=1) > 0).all()  # outward oriented
+    # a linear function on a convex polyhedron: one PL minimum, one maximum [Banchoff 1967]
+    for k in range(2):
+        assert pl_critical_vertices(s.triangles, s.values[:, k]).counts() == {"min": 1, "saddle": 0, "max": 1}
+    assert s.noise_sup == 0.0
+
+
+def test_scan_noise_amplitude() -> None:
+    s = noisy_scan(level=14, amplitude=0.02, seed=5)
+    d = s.vertices - s.smooth_vertices
+    # sample standard deviation of 3n = 5886 normal draws: relative error ~ 1/sqrt(2 * 5886) = 0.9 %
+    assert abs(d.std() / 0.02 - 1.0) < 0.05
+    assert abs(d.mean()) < 5 * 0.02 / np.sqrt(d.size)
+    assert np.array_equal(s.values, s.vertices[:, [0, 1]])
+
+
+@pytest.mark.parametrize("amplitude", [0.02, 0.05, 0.1])
+def test_scan_simplifies_to_the_smooth_topology(amplitude: float) -> None:
+    s = noisy_scan(level=12, amplitude=amplitude, seed=2)
+    T = s.triangles
+    bound = 2.0 * s.noise_sup  # stability [CEH07]: the smooth pair has no finite pair at all
+    for k in range(2):
+        D = diagrams(T, s.values[:, k])
+        pers = np.concatenate([finite(d)[:, 1] - finite(d)[:, 0] for d in D])
+        assert len(pers) > 0 and pers.max() <= bound
+    delta = bound * (1 + 1e-9)
+    p = simplify_pair(T, s.values[:, 0], s.values[:, 1], delta)
+    for part in (p.f1, p.f2):
+        assert part.critical_before["min"] > 1
+        assert part.critical_after == {"min": 1, "saddle": 0, "max": 1}  # the smooth function's counts
+        assert part.sup_change <= delta
+    # triangle inequality: the simplified pair is within delta + noise of the smooth pair
+    assert np.abs(p.values - s.smooth_values).max() <= delta + s.noise_sup
