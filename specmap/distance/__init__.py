@@ -23,7 +23,7 @@ Modules, one idea each (data flow top to bottom):
 - :mod:`~specmap.distance.refine` -- compass search and golden-section polish;
 - :mod:`~specmap.distance.dense` -- :func:`dense_sweep` -> :class:`DenseSweep`;
 - :mod:`~specmap.distance.slope_one` -- :func:`slope_one_search` -> :class:`SlopeOneSearch`;
-- :mod:`~specmap.distance.ties` -- :func:`tie_costs`, the tied cost of a tie;
+- :mod:`~specmap.distance.ties` -- tied costs at many candidates (the rules: :mod:`specmap.special.pairs`);
 - :mod:`~specmap.distance.paths`, :mod:`~specmap.distance.candidates` --
   :func:`special_candidates` -> :class:`Candidates`;
 - :mod:`~specmap.distance.reduced` -- :func:`reduced_search` -> :class:`ReducedSearch`;
