@@ -302,6 +302,9 @@ def parse_study(data: dict[str, Any], path: Path) -> Study:
     if not isinstance(name, str) or not name or any(c in name for c in "/\\") or name.startswith("."):
         raise r.fail("study.name", f"{name!r} is not a usable name",
                      'set name = "my-study" (letters, digits, - and _)')
+    if not name.isprintable():  # newlines, tabs, control and other non-printing characters (str.isprintable)
+        raise r.fail("study.name", f"{name!r} holds a newline, tab or other non-printing character",
+                     'set name = "my-study" on one line (letters, digits, - and _)')
     seed = r.integer(st, "study", "seed", 0)
     consts_t = data.get("constants", {})
     if not isinstance(consts_t, dict):

@@ -26,6 +26,7 @@ from scipy.sparse.csgraph import breadth_first_order, connected_components
 
 from specmap.errors import MeshError
 from specmap.meshtable import EdgeTable, edges_and_faces
+from specmap.shapes.formats import obj_triangles, ply_header_problem
 
 FORMATS = {".ply": "ply", ".off": "off", ".obj": "obj"}
 
@@ -343,11 +344,17 @@ def read_mesh(
                         fix=f"use one of {', '.join(FORMATS)}")
     import meshio  # local: meshio is slow to import
 
+    try:
+        p.open("rb").close()
+    except PermissionError:
+        raise MeshError(f"the {fmt.upper()} file cannot be read (permission denied)", file=file,
+                        field="mesh", fix="make the file readable or copy it somewhere readable") from None
     chatter = io.StringIO()
     try:
         with contextlib.redirect_stdout(chatter), contextlib.redirect_stderr(chatter):
             mesh = meshio.read(p, file_format=fmt)
     except (Exception, SystemExit) as exc:  # meshio exits on some parse errors
+        _check_ply_header(p, fmt)
         said = " ".join(chatter.getvalue().split()) or str(exc) or type(exc).__name__
         fix = f"write a valid {fmt.upper()} file of triangles"
         if "triangular" in said:
@@ -357,16 +364,24 @@ def read_mesh(
     blocks = [b for b in mesh.cells if len(b.data)]
     others = sorted({b.type for b in blocks if b.type not in ("triangle", "vertex", "line")})
     if others:
+        _check_ply_header(p, fmt)  # a header that lies about a count turns vertex bytes into "polygons"
         raise MeshError(f"faces that are not triangles ({', '.join(others)})", file=file, field="mesh",
                         fix="triangulate the faces first (split every polygon into triangles)")
     tris = [b.data for b in blocks if b.type == "triangle"]
     if not tris:
+        _check_ply_header(p, fmt)
         raise MeshError("the mesh has no triangles", file=file, field="mesh",
                         fix="give a closed surface made of triangles")
     V = np.asarray(mesh.points, dtype=float)
     if V.ndim == 2 and V.shape[1] == 2:
         V = np.column_stack([V, np.zeros(len(V))])
     T = np.concatenate(tris).astype(np.int64)
+    if fmt == "obj" and T.min() < 0:  # relative indices (valid OBJ); meshio leaves them negative
+        try:
+            T = obj_triangles(p)
+        except ValueError as exc:
+            raise MeshError(f"bad OBJ face index ({exc})", file=file, field="mesh",
+                            fix="use indices 1..n, or -1..-k for the k vertices defined so far") from None
     values = None
     if fields is not None:
         available = sorted(mesh.point_data)
@@ -389,6 +404,7 @@ def read_mesh(
             cols.append(col)
         values = np.column_stack(cols)
     if T.min() < 0 or T.max() >= len(V):
+        _check_ply_header(p, fmt)
         raise MeshError(f"triangle indices outside 0..{len(V) - 1}", file=file, field="mesh",
                         fix="index existing vertices only")
     V, T, values, found = clean_mesh(V, T, values)
@@ -402,6 +418,19 @@ def read_mesh(
     if note:
         print(note, file=sys.stderr)
     return V, orient_consistently(T), values
+
+
+def _check_ply_header(p: Path, fmt: str) -> None:
+    """Raise the real problem when a binary PLY file's data do not match its header."""
+    if fmt != "ply":
+        return
+    try:
+        problem = ply_header_problem(p)
+    except OSError:
+        return
+    if problem:
+        raise MeshError(f"inconsistent PLY file: {problem}", file=str(p), field="mesh",
+                        fix="export the mesh again (the element counts of the header must match the data)")
 
 
 def write_mesh(
