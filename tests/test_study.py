@@ -43,3 +43,33 @@ def test_default_window_closed_form() -> None:
     w = default_window((-2, -1, 2, 1), (0, -3, 5, 0.5))
     assert w.b == (min(-2, 0, -1, -0.5), max(2, 5, 1, 3))
     assert w.a == (0.02, 0.98)
+
+
+def test_grid_file_side_is_a_grid_and_sets_the_window(tmp_path: Path) -> None:
+    # A grid file gives a Grid, not a Shape: StudyRun.shapes holds None for it, StudyRun.grids the
+    # file's contours (ids prefixed "f:"/"g:"). The default window uses the contour points of a grid
+    # side and the vertex values of a mesh side, by the formula of math.md section 3 written here.
+    import json
+
+    import numpy as np
+
+    from specmap.grids.model import Grid
+    from specmap.pipeline import StudyRun
+    from specmap.shapes.model import Shape
+
+    pts = [[-0.5, 2.0], [0.25, 1.0], [1.5, -0.75]]
+    (tmp_path / "f.json").write_text(json.dumps({"format": "specmap-grid/1", "contours": [
+        {"id": "p0", "kind": "proper", "points": pts}, {"id": "v0", "kind": "vertical", "start": [3.0, 0.5]}]}))
+    p = write(tmp_path, '[study]\nname = "x"\n[f]\ngrid = "f.json"\n'
+                        '[g]\nsurface = "ellipsoid"\nradii = [2, 1, 1]\nmap = ["x", "y"]\nresolution = 300\n')
+    run = StudyRun(load_study(p), tmp_path / "out", show_progress=False)
+    sf, sg = run.shapes
+    assert sf is None and isinstance(sg, Shape) and sg.has_mesh
+    gf, gg = run.grids
+    assert isinstance(gf, Grid) and [c.id for c in gf.contours] == ["f:p0", "f:v0"]
+    f = np.array(pts + [[3.0, 0.5]])
+    g = sg.values
+    b_lo = min(f[:, 0].min(), g[:, 0].min(), -f[:, 1].max(), -g[:, 1].max())
+    b_hi = max(f[:, 0].max(), g[:, 0].max(), -f[:, 1].min(), -g[:, 1].min())
+    assert run.window.b == (b_lo, b_hi) and run.window.a == (0.02, 0.98)
+    assert not (tmp_path / "out").exists()  # computing stages writes nothing
