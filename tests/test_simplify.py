@@ -16,6 +16,8 @@ Sources:
 
 from __future__ import annotations
 
+from pathlib import Path
+
 import gudhi
 import numpy as np
 import pytest
@@ -32,6 +34,7 @@ from specmap.simplify import (
     persistence_values,
     simplify_function,
     simplify_pair,
+    smooth_within,
 )
 
 SPHERE = ellipsoid_mesh((1.0, 1.0, 1.0), 9)
@@ -277,3 +280,34 @@ def test_scan_simplifies_to_the_smooth_topology(amplitude: float) -> None:
         assert part.sup_change <= delta
     # triangle inequality: the simplified pair is within delta + noise of the smooth pair
     assert np.abs(p.values - s.smooth_values).max() <= delta + s.noise_sup
+
+
+def test_smooth_within_tube() -> None:
+    s = noisy_scan(level=12, amplitude=0.05, seed=6)
+    f = s.values[:, 0]
+    tau = s.noise_sup  # the smooth coordinate function lies in this tube
+    g = smooth_within(s.triangles, f, tau)
+    assert np.abs(g - f).max() <= tau  # clipped into the tube after every sweep
+    assert np.array_equal(smooth_within(s.triangles, f, 0.0), f)  # an empty tube changes nothing
+    before = sum(pl_critical_vertices(s.triangles, f).counts().values())
+    after = sum(pl_critical_vertices(s.triangles, g).counts().values())
+    assert after < before / 2
+    # a constant is a fixed point of neighbour averaging (up to rounding of the weights 1/deg)
+    np.testing.assert_allclose(smooth_within(s.triangles, np.full(len(f), 2.5), 1.0), 2.5, rtol=0, atol=1e-12)
+
+
+SCANS = Path(__file__).resolve().parents[1] / "studies" / "data" / "scans"
+
+
+@pytest.mark.parametrize("name", ["cow.ply", "bone.ply"])
+def test_real_scans(name: str) -> None:
+    # fetched by studies/data/fetch_scans.py; skipped where they were not fetched
+    if not (SCANS / name).is_file():
+        pytest.skip(f"{name} not fetched (python3 studies/data/fetch_scans.py)")
+    from specmap.shapes.meshes import read_mesh
+
+    V, T, _ = read_mesh(SCANS / name)
+    for k in range(2):
+        f = V[:, k]
+        delta = 0.05 * float(np.ptp(f))
+        check_simplified(T, f, delta, [1, 0, 1])  # both scans are closed genus-0 surfaces
