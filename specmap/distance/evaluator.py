@@ -80,7 +80,7 @@ class LineEvaluator:
         if isinstance(source_f, SliceEngine) and isinstance(source_g, SliceEngine):
             self._engines = (source_f, source_g)
         self._key = _content_key(self.tri_f, self.val_f, self.tri_g, self.val_g)
-        self._pool = None
+        self._pool: Any = None  # joblib.Parallel, built on first parallel call
 
     def plan(self, n: int) -> None:
         """Announce n more lines (for the progress total)."""

@@ -110,20 +110,22 @@ class _Descent:
     step: int
     same_mesh: bool
     local: LocalBound | None
-    special: list[Best] = field(default_factory=list)
-    counts: dict[str, int] = field(default_factory=dict)
-    evaluated: list[int] = field(default_factory=list)
-    stop: dict[str, Any] | None = None
+    special: list[Best] = field(init=False)  # per degree index
+    counts: dict[str, int] = field(init=False)  # candidates pruned, by rule
+    evaluated: list[int] = field(init=False, default_factory=list)
+    stop: dict[str, Any] | None = field(init=False, default=None)
+    order: np.ndarray = field(init=False)  # candidates by descending hi
+    line_b: np.ndarray = field(init=False)  # line_upper_bound per candidate, NaN until computed
+    open_g: np.ndarray = field(init=False)  # groups not yet stopped early
+    pos: int = field(init=False, default=0)  # next position in ``order``
 
     def __post_init__(self) -> None:
-        n = len(self.cand.a)
         self.special = [Best() for _ in self.ev.degrees]
         self.counts = {"below_best": int(self.cand.below_floor), "above_bound": 0, "line_bound": 0,
                        "local_bound": 0}
         self.order = np.argsort(-self.cand.hi, kind="stable")
-        self.line_b = np.full(n, np.nan)
+        self.line_b = np.full(len(self.cand.a), np.nan)
         self.open_g = np.ones(len(self.groups), dtype=bool)
-        self.pos = 0
 
     def run(self) -> None:
         n = len(self.cand.a)
@@ -224,6 +226,7 @@ def _component_of(piece, point: tuple[float, float], components: Sequence) -> st
     return str(min(pool, key=lambda c: c.geometry.distance(p)).id)
 
 
+# long by its docstring only (why the short candidate list suffices); the body is about 35 lines
 def reduced_search(ev: LineEvaluator, window: Window, atlas, contours_by_id: dict, *, tolerance: float,
                    upper: float, settings: ReducedSettings = ReducedSettings()) -> ReducedSearch:
     """D_k = max(max_b h_k(1/2, b), sup of h_k over the special set) [EFQT23, FMQT].

@@ -45,6 +45,7 @@ def _split_points(xs: np.ndarray, G: np.ndarray, gap: np.ndarray, idx: np.ndarra
     return np.array(new)
 
 
+# long by its docstring (the bound and the search); the body is about 40 lines
 def slope_one_search(ev: LineEvaluator, window: Window, groups: Sequence[Sequence[int]], *, tolerance: float,
                      samples: int = 17, max_lines: int = 200, batch: int = 1,
                      lipschitz: float = SLOPE_ONE_LIPSCHITZ,
