@@ -491,8 +491,7 @@ class AutoDelta:
     budget : int
     met : bool
         False when even removing every finite pair leaves the count above the budget; then
-        ``delta`` is the evaluated candidate with the smallest count, or 0 when none lowers it
-        (filling basins can add Pareto pieces: the count is not monotone in delta).
+        ``delta`` is the scanned candidate with the smallest count, or 0 when none lowers it.
     evaluations : int
         Calls of ``count_fn``.
     """
@@ -528,11 +527,14 @@ def candidate_deltas(tri: np.ndarray, f1: np.ndarray, f2: np.ndarray) -> np.ndar
 
 
 def auto_delta(tri: np.ndarray, f1: np.ndarray, f2: np.ndarray,
-               count_fn: Callable[[np.ndarray, np.ndarray], int], budget: int) -> AutoDelta:
+               count_fn: Callable[[np.ndarray, np.ndarray], int], budget: int, *,
+               scan: int = 12) -> AutoDelta:
     """Smallest delta whose simplified pair brings ``count_fn`` to at most ``budget``.
 
-    Bisection over :func:`candidate_deltas`, taking the count as non-increasing in delta (it
-    mostly is; when the largest candidate misses the budget the search stops there).
+    Bisection over :func:`candidate_deltas`, taking the count as non-increasing in delta. When
+    even the largest candidate misses the budget, ``scan`` candidates spread evenly over the list
+    are counted and the one with the fewest is returned (filling basins can add Pareto pieces,
+    so there the count is not monotone).
 
     Parameters
     ----------
@@ -542,6 +544,8 @@ def auto_delta(tri: np.ndarray, f1: np.ndarray, f2: np.ndarray,
     count_fn : callable (f1', f2') -> int
         E.g. the number of contours of the extended Pareto grid of the pair.
     budget : int
+    scan : int
+        Candidates counted when the budget is out of reach.
 
     Returns
     -------
@@ -568,7 +572,9 @@ def auto_delta(tri: np.ndarray, f1: np.ndarray, f2: np.ndarray,
 
     lo, hi = -1, len(cands) - 1
     top, top_count = at(hi)
-    if top_count > budget:  # unreachable: the evaluated delta with the fewest (0 when none helps)
+    if top_count > budget:  # out of reach: the fewest over a spread of candidates (0 when none helps)
+        for k in np.unique(np.linspace(0, hi, min(scan, hi + 1)).round().astype(int)):
+            at(int(k))
         best = min(cache, key=lambda k: (cache[k][1], k))
         if cache[best][1] >= before:
             return AutoDelta(0.0, None, before, before, int(budget), False, calls)

@@ -217,7 +217,7 @@ def test_auto_delta_budget_already_met_and_unreachable() -> None:
     assert res.met and res.delta == 0.0 and res.pair is None
     g1 = noisy_field(V, 3, 0.05)
     res = auto_delta(T, g1, f2, _critical_total(T), 3)  # a sphere needs >= 2 critical points per function
-    assert not res.met and res.count_after == 4
+    assert not res.met and res.count_after == 4  # the fewest possible: 1 minimum + 1 maximum each
 
 
 def test_pareto_contours_drop() -> None:
