@@ -195,7 +195,7 @@ def test_full_report_pages_numbers_and_pngs(tmp_path: Path) -> None:
     text = _flat(" ".join(pages))
     assert "not run" not in pages[0] and "not run" not in pages[1]
     assert "D = 0.3," in text  # distance value
-    assert "3 curves, 2 patches, 1 point." in text  # component counts
+    assert "2 patches, 3 curve components and 1 point component (connected components)" in text
     assert "Runs with a patch: 0 of 40" in text
     assert "0.2125" in text  # degree-1 value
     assert "arXiv:2312.04201" in text
@@ -354,11 +354,13 @@ def test_figures_from_dicts() -> None:
     assert ax.get_xlabel() == "f1 / g1" and ax.get_ylabel() == "f2 / g2"
     assert len(ax.get_legend().get_texts()) == 4
     sp, geo = _special()
-    fig = special_figure(sp, geo)
+    fig = special_figure(sp, geo, grid_f=GRID_F, grid_g=GRID_G, distance=_distance())
     labels = [t.get_text() for t in fig.axes[0].get_legend().get_texts()]
-    assert any("half difference" in s for s in labels) and any("equal and half" in s for s in labels)
+    # fixture curves are not real tie curves (no tie vanishes on them): coloured by their condition
+    assert any("condition: half" in s for s in labels) and any("condition: both" in s for s in labels)
     assert sum("patch p" in s and "area 0.15" in s for s in labels) == 2
-    assert "3 curves, 2 patches, 1 point" in fig.axes[0].get_title()
+    assert "components 2 patches, 3 curves, 1 point; 4 tie curves" in fig.axes[0].get_title()
+    assert any(s.startswith("isolated special point (1)") for s in labels)
     fig = landscape_figure(_distance(), geo)
     assert len(fig.axes) == 2  # heat map + colour bar
     summary, runs = _perturb()
@@ -383,7 +385,15 @@ def test_figures_edge_cases() -> None:
                                                                 [0.15, 2.5], [0.15, 2.2]]]]}}]}
     labels = [t.get_text() for t in special_figure(sp, mixed).axes[0].get_legend().get_texts()]
     assert "patch x1: area not recorded" in labels
-    assert "curve: equal difference" in labels and "curve: half difference" in labels
+    assert any(s.startswith("condition: equal (3)") for s in labels)  # c0 of the fixture: equal ties
+    # a point inside a patch component is not an isolated point of the special set
+    inside = {"type": "FeatureCollection", "features": [
+        {"type": "Feature", "properties": {"id": "p0", "kind": "patch"},
+         "geometry": {"type": "GeometryCollection", "geometries": [
+             {"type": "Polygon", "coordinates": [[[0.1, 0], [0.4, 0], [0.4, 1], [0.1, 1], [0.1, 0]]]},
+             {"type": "Point", "coordinates": [0.2, 0.5]}]}}]}
+    labels = [t.get_text() for t in special_figure(sp, inside).axes[0].get_legend().get_texts()]
+    assert not any("isolated" in s for s in labels)
     d = _distance()
     d["landscape"] = None
     fig = landscape_figure(d, geo, window=STUDY["window"])
@@ -443,3 +453,50 @@ def test_ranked_notes_put_contradictions_before_the_position_caveat() -> None:
     d = _distance()
     d["tolerance"] = 0.2
     assert any(n.title == "D not resolved" for n in ranked_notes({"distance": d}))
+
+
+# -- curves labelled by tie ----------------------------------------------------------
+
+
+def _ladder_grids() -> tuple[dict[str, Any], dict[str, Any]]:
+    """Vertical half-lines x = 0, 1 (f) and horizontal y = 0, 1 plus vertical x = 0.3, 1.3 (g)."""
+    far = -100.0  # starts far away, so every line of the window meets every half-line
+    gf = {"format": "specmap-grid/1", "route": "exact", "tolerance": 1e-9, "contours": [
+        {"id": "f:v0", "kind": "vertical", "start": [0.0, far]},
+        {"id": "f:v1", "kind": "vertical", "start": [1.0, far]}]}
+    gg = {"format": "specmap-grid/1", "route": "exact", "tolerance": 1e-9, "contours": [
+        {"id": "g:h0", "kind": "horizontal", "start": [far, 0.0]},
+        {"id": "g:h1", "kind": "horizontal", "start": [far, 1.0]},
+        {"id": "g:v0", "kind": "vertical", "start": [0.3, far]},
+        {"id": "g:v1", "kind": "vertical", "start": [1.3, far]}]}
+    return gf, gg
+
+
+def test_curves_are_labelled_by_the_tie_that_vanishes_on_them() -> None:
+    from specmap.report.ties import index_ties
+
+    # math.md section 5, exact small cases (closed form): half-lines x = 0, 1 against y = 0, 1 tie
+    # equal on a = 1/2 and half (|x1 - x0| = 2 |y1 - y0| in line parameters) on a = 1/3; the
+    # tied value on a = 1/2 is the abscissa difference 1, on a = 1/3 the smaller side min(1/2, 1/2).
+    # g's verticals x = 0.3, 1.3 tie with f's identically: |0.3 - 0| = |1.3 - 1| on every line.
+    gf, gg = _ladder_grids()
+    ties = [{"pairs": [["f:v0", "f:v1"], ["g:h0", "g:h1"]], "condition": "equal"},
+            {"pairs": [["f:v0", "f:v1"], ["g:h0", "g:h1"]], "condition": "half"},
+            {"pairs": [["f:v0", "g:v0"], ["f:v1", "g:v1"]], "condition": "equal"}]
+    b = np.linspace(-0.9, 0.9, 7)
+    geom = {"type": "GeometryCollection", "geometries": [
+        {"type": "Polygon", "coordinates": [[[0.6, -0.5], [0.9, -0.5], [0.9, 0.5], [0.6, 0.5], [0.6, -0.5]]]},
+        {"type": "MultiLineString", "coordinates": [[[1 / 3, x] for x in b], [[0.5, x] for x in b]]}]}
+    special = {"window": {"a": [0.02, 0.98], "b": [-1.0, 1.0]}, "tolerance": 1e-9,
+               "components": [{"id": "c0", "kind": "patch", "area": 0.3, "ties": ties}]}
+    geo = {"type": "FeatureCollection", "features": [{"type": "Feature", "geometry": geom,
+                                                      "properties": {"id": "c0", "kind": "patch"}}]}
+    ix = index_ties(special, geo, gf, gg)
+    assert ix.labelled and ix.patch_ties == {"c0": [2]}
+    by_a = {round(float(c.xy[0, 0]), 4): c for c in ix.curves}
+    assert by_a[0.3333].ties == (1,) and by_a[0.3333].family == "half ff=2gg"
+    assert by_a[0.5].ties == (0,) and by_a[0.5].family == "equal ff=gg"
+    np.testing.assert_allclose(by_a[0.5].tied_value, 1.0, rtol=1e-12)
+    np.testing.assert_allclose(by_a[0.3333].tied_value, 0.5, rtol=1e-12)
+    # without grids nothing is labelled, and the figure still draws (by condition)
+    assert not index_ties(special, geo).labelled

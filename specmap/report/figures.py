@@ -25,6 +25,8 @@ from shapely.geometry import shape as geo_shape
 from shapely.geometry.base import BaseGeometry
 
 from specmap.report.fmt import fmt, fraction_interval, num, nums, plural
+from specmap.report.summary import tie_curve_count
+from specmap.report.ties import TieIndex, index_ties
 
 GRID_COLOURS = {"f": "#1f5fa8", "g": "#d9730d"}
 CONDITION_STYLE = {
@@ -303,23 +305,55 @@ def _draw_special(ax: Any, feats: list[dict[str, Any]], *, thin: bool = False,
     return list(handles.values())
 
 
+FAMILY_COLOURS = ("#1f77b4", "#d62728", "#2ca02c", "#9467bd", "#ff7f0e", "#17becf", "#8c564b", "#e377c2",
+                  "#7f7f7f", "#bcbd22", "#393b79", "#637939", "#8c6d31", "#843c39", "#7b4173")
+PATCH_FILL, PATCH_EDGE = "#9fd8b5", "#1b6e3c"
+MAX_FAMILIES = 8
+REACH_FRACTION = 0.05
+"""Tie curves whose tied value is within max(3 tolerance, 5% of D) of D are emphasised."""
+
+
+def reach_of(distance: dict[str, Any] | None) -> tuple[float, float] | None:
+    """(D, reach): a tied value v is within reach of D when |v - D| <= reach; None without D."""
+    if not distance:
+        return None
+    value, tol = num(distance.get("value")), num(distance.get("tolerance"))
+    if not math.isfinite(value):
+        return None
+    return value, max(3.0 * tol if math.isfinite(tol) else 0.0, REACH_FRACTION * value)
+
+
+def _curve_alpha(n: int) -> float:
+    """Alpha for n overplotted curves: opaque for a few, a density rendering for thousands."""
+    return float(min(1.0, max(0.06, 25.0 / max(n, 1))))
+
+
 def special_figure(special: dict[str, Any], geojson: dict[str, Any] | None, *,
-                   fig: FigureBase | None = None) -> FigureBase:
+                   fig: FigureBase | None = None, grid_f: dict[str, Any] | None = None,
+                   grid_g: dict[str, Any] | None = None, distance: dict[str, Any] | None = None,
+                   index: TieIndex | None = None) -> FigureBase:
     """The special set in the parameter strip (a horizontal, b vertical).
 
-    Curves are coloured by their tie condition (equal difference, half
-    difference, or a third style when a component carries both); patches are
-    shaded with their area in the legend; isolated points are markers; the
-    slope-one line a = 1/2 is dotted.
+    Patches are filled regions with an outline. Tie curves are coloured by family
+    (condition and the grids of the four contours, :func:`specmap.report.ties.family`;
+    this needs the grid files) and drawn with an alpha that falls with their number,
+    rasterised, so thousands of overplotted curves read as a density. Curves whose tied
+    value is within reach of D (:func:`reach_of`) are drawn black on top. Markers only
+    for components of kind ``point``. The slope-one line a = 1/2 is dotted.
 
     Parameters
     ----------
     special : dict
         Parsed ``special.json``.
     geojson : dict or None
-        Parsed ``special.geojson``. Per-part colours are used when a feature's
-        properties carry ``"conditions"``, one per part of its geometry.
+        Parsed ``special.geojson``.
     fig : Figure or SubFigure, optional
+    grid_f, grid_g : dict, optional
+        Parsed grid files: curves are labelled by tie (else coloured by condition of their component).
+    distance : dict, optional
+        Parsed ``distance.json``: for the emphasis of ties within reach of D.
+    index : TieIndex, optional
+        A precomputed :func:`specmap.report.ties.index_ties`.
 
     Returns
     -------
@@ -330,33 +364,117 @@ def special_figure(special: dict[str, Any], geojson: dict[str, Any] | None, *,
     .. [EFQT23] Ethier, Frosini, Quercioli, Tombari, J. Appl. Comput. Topol.
        (2023): special values.
     """
-    fig = _new_figure(fig, (7.0, 5.6))
+    fig = _new_figure(fig, (7.0, 6.0))
     ax = fig.add_subplot()
     win = special.get("window") or {}
     a_lo, a_hi = nums(win.get("a", [0.0, 1.0]))[:2]
     b_lo, b_hi = nums(win.get("b", [0.0, 1.0]))[:2]
-    handles = _draw_special(ax, _features(special, geojson))
+    ix = index if index is not None else index_ties(special, geojson, grid_f, grid_g)
+    comps = {str(c.get("id")): c for c in special.get("components") or []}
+    handles: list[Any] = []
+    win_area = max((a_hi - a_lo) * (b_hi - b_lo), 1e-300)
+    for n, (cid, polys) in enumerate(ix.polygons.items()):
+        for poly in polys:
+            ax.add_patch(PathPatch(_polygon_path(poly), fc=PATCH_FILL, ec=PATCH_EDGE, lw=1.2, alpha=0.55,
+                                   zorder=1))
+            ax.add_patch(PathPatch(_polygon_path(poly), fc="none", ec=PATCH_EDGE, lw=1.2, zorder=4))
+        if n < MAX_PATCH_LABELS:
+            area = num(comps.get(cid, {}).get("area"))
+            held = ix.patch_ties.get(cid)
+            txt = (f"patch {cid}: area {fmt(area, 3)} ({100 * area / win_area:.3g}%)"
+                   if math.isfinite(area) else f"patch {cid}: area not recorded")
+            if held is not None:
+                txt += f", {plural(len(held), 'tie')} hold"
+            handles.append(Patch(fc=PATCH_FILL, ec=PATCH_EDGE, alpha=0.8, label=txt))
+    if len(ix.polygons) > MAX_PATCH_LABELS:
+        handles.append(Patch(fc=PATCH_FILL, ec=PATCH_EDGE, label=f"{len(ix.polygons) - MAX_PATCH_LABELS} more patches"))
+    # tie curves by family (or by their component's condition without grids)
+    groups: dict[str, list[np.ndarray]] = {}
+    for c in ix.curves:
+        key = c.family if ix.labelled and c.family != "unknown" else \
+            "condition: " + _condition_of(comps.get(c.component, {}).get("ties"), {})
+        groups.setdefault(key, []).append(c.xy)
+    order = sorted(groups, key=lambda k: -len(groups[k]))
+    if len(order) > MAX_FAMILIES:  # the rarest families share one grey style
+        rest = [xy for k in order[MAX_FAMILIES - 1:] for xy in groups[k]]
+        n_rest = len(order) - MAX_FAMILIES + 1
+        order = order[:MAX_FAMILIES - 1] + [f"{n_rest} other families"]
+        groups[order[-1]] = rest
+    for i, key in enumerate(order):
+        segs = groups[key]
+        col = "#8a8a8a" if key.endswith("other families") else FAMILY_COLOURS[i % len(FAMILY_COLOURS)]
+        ax.add_collection(LineCollection(segs, colors=col, linewidths=0.9, alpha=_curve_alpha(len(segs)),
+                                         zorder=2, rasterized=True))
+        handles.append(Line2D([], [], color=col, lw=1.6, label=f"{key} ({len(segs)})"))
+    reach = reach_of(distance)
+    if reach is not None and ix.labelled:
+        d_val, r = reach
+        near = []
+        for c in ix.curves:
+            with np.errstate(invalid="ignore"):
+                ok = np.abs(c.tied_value - d_val) <= r
+            if ok.any() and len(c.xy) > 1:
+                seg_ok = ok[:-1] & ok[1:]
+                near.extend(np.stack([c.xy[:-1][seg_ok], c.xy[1:][seg_ok]], axis=1))
+        if near:
+            ax.add_collection(LineCollection(near, colors="black", linewidths=1.8, zorder=5))
+        handles.append(Line2D([], [], color="black", lw=1.8,
+                              label=f"tied value D ± {fmt(r, 2)}" + ("" if near else " (none)")))
+    pts = [p for p in ix.points.values()]
+    if pts:
+        xy = np.concatenate(pts)
+        ax.plot(xy[:, 0], xy[:, 1], "o", color="#333333", mec="black", ms=6, zorder=6, ls="")
+        handles.append(Line2D([], [], marker="o", color="#333333", mec="black", ls="",
+                              label=f"isolated special point ({len(xy)})"))
+    if geojson is None:
+        for comp in special.get("components") or []:
+            bb = clip_bbox(comp.get("bbox"), (a_lo, b_lo, a_hi, b_hi))
+            if bb is not None:
+                a0, b0, a1, b1 = bb
+                ax.add_patch(Rectangle((a0, b0), a1 - a0, b1 - b0, fill=False, ls=":", lw=0.8, ec="0.4"))
+        if special.get("components"):
+            handles.append(Line2D([], [], color="0.4", ls=":", label="component box (no geometry stored)"))
     if a_lo <= 0.5 <= a_hi:
-        ax.axvline(0.5, color="0.35", ls=":", lw=1.0)
+        ax.axvline(0.5, color="0.35", ls=":", lw=1.0, zorder=3)
         handles.append(Line2D([], [], color="0.35", ls=":", label="a = 1/2 (slope-one lines)"))
     ax.set_xlim(a_lo, a_hi)
     ax.set_ylim(b_lo, b_hi)
     ax.set_xlabel("a   (line direction: slope (1-a)/a)")
     ax.set_ylabel("b   (line offset)")
     counts = special.get("counts") or {}
+    n_curves = tie_curve_count(special)
+    drawn = (f"; {len(ix.curves)} drawn (coincident ones merged)" if ix.curves and len(ix.curves) != n_curves
+             else "")
     ax.set_title(
-        "Special set: " + ", ".join([
-            plural(int(counts.get("curve", 0)), "curve"),
-            plural(int(counts.get("patch", 0)), "patch", "patches"),
-            plural(int(counts.get("point", 0)), "point"),
-        ]) + f"  (tolerance {fmt(special.get('tolerance'), 3)})",
-        fontsize=10,
-    )
+        "Special set: components " + ", ".join([
+            plural(int(num(counts.get("patch", 0))), "patch", "patches"),
+            plural(int(num(counts.get("curve", 0))), "curve"),
+            plural(int(num(counts.get("point", 0))), "point"),
+        ]) + f"; {plural(n_curves, 'tie curve')}", fontsize=10)
     ax.grid(alpha=0.2)
     if handles:
-        ax.legend(handles=handles, fontsize=LEGEND_SIZE, loc="upper center", bbox_to_anchor=(0.5, -0.13),
-                  ncol=2, frameon=False)
+        ax.legend(handles=handles, fontsize=7.5, loc="upper center", bbox_to_anchor=(0.5, -0.11),
+                  ncol=2 if len(handles) < 7 else 3, frameon=False, title=f"tie curves by family (count{drawn}); "
+                  "the darker, the denser", title_fontsize=7.5)
     return fig
+
+
+def clip_bbox(bb: Any, window: tuple[float, float, float, float]) -> tuple[float, float, float, float] | None:
+    """A component box [a0, b0, a1, b1] clipped to the window; None if absent or outside.
+
+    Examples
+    --------
+    >>> clip_bbox([1e-12, -3.0, 0.5, 0.2], (0.02, -2.0, 0.98, 2.0))
+    (0.02, -2.0, 0.5, 0.2)
+    """
+    if not bb or len(bb) != 4:
+        return None
+    a0, b0, a1, b1 = (float(x) for x in nums(bb))
+    a0, b0 = max(a0, window[0]), max(b0, window[1])
+    a1, b1 = min(a1, window[2]), min(b1, window[3])
+    if not (a0 <= a1 and b0 <= b1):
+        return None
+    return (a0, b0, a1, b1)
 
 
 # -- landscape ----------------------------------------------------------------

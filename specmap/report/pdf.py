@@ -29,12 +29,28 @@ from matplotlib.figure import FigureBase
 
 from specmap.errors import ResultsError
 from specmap.io import check_out_dir
-from specmap.report.figures import grids_figure, landscape_figure, perturb_figure, save_png, special_figure
+from specmap.report.figures import (
+    clip_bbox,
+    grids_figure,
+    landscape_figure,
+    perturb_figure,
+    save_png,
+    special_figure,
+)
 from specmap.report.findings import WARNING, audit_sentences, findings
-from specmap.report.fmt import fmt, fmt_interval, fmt_pct, fmt_point, fraction_interval, num, plural
+from specmap.report.fmt import fmt, fmt_interval, fmt_pct, fmt_point, fraction_interval, num, nums, plural
 from specmap.report.layout import RED, Pager
 from specmap.report.load import STAGE_VERB, load_results
-from specmap.report.summary import SEVERITY_NAMES, degree_rows, ranked_notes, special_lines, where_sentence
+from specmap.report.summary import (
+    SEVERITY_NAMES,
+    component_counts,
+    degree_rows,
+    ranked_notes,
+    special_lines,
+    tie_curve_count,
+    where_sentence,
+)
+from specmap.report.ties import TieIndex, family, index_ties
 
 MAX_TABLE_ROWS = 18
 
@@ -216,37 +232,68 @@ def _component_rows(comps: list[dict[str, Any]]) -> list[dict[str, Any]]:
                                         -num(c.get("length") or 0)))
 
 
+def _tie_index(res: dict[str, Any]) -> TieIndex:
+    """The curves of special.geojson labelled by tie (computed once per report)."""
+    if "_tie_index" not in res:
+        res["_tie_index"] = index_ties(res.get("special"), res.get("geojson"), res.get("grid_f"),
+                                       res.get("grid_g"))
+    return res["_tie_index"]
+
+
+def _special_figure(res: dict[str, Any], fig: FigureBase | None = None) -> FigureBase:
+    return special_figure(res["special"], res.get("geojson"), fig=fig, grid_f=res.get("grid_f"),
+                          grid_g=res.get("grid_g"), distance=res.get("distance"), index=_tie_index(res))
+
+
+def _family_counts(ties: list[dict[str, Any]], only: list[int] | None = None) -> str:
+    fams: dict[str, int] = {}
+    for i, t in enumerate(ties):
+        if only is None or i in only:
+            fams[family(t)] = fams.get(family(t), 0) + 1
+    top = sorted(fams.items(), key=lambda kv: -kv[1])
+    text = ", ".join(f"{k} {v}" for k, v in top[:4])
+    return text + (f", {len(top) - 4} more families" if len(top) > 4 else "")
+
+
 def _special_page(pg: Pager, res: dict[str, Any]) -> None:
     sp = res["special"]
-    sub = pg.page("Special set", 0.52)
-    _draw("special", "special.json", lambda: special_figure(sp, res.get("geojson"), fig=sub))
-    c = sp.get("counts") or {}
-    counts = ", ".join(plural(int(num(c.get(k, 0))), w, m) for k, w, m in
-                       (("curve", "curve", None), ("patch", "patch", "patches"), ("point", "point", None)))
-    pg.para(f"Components: {counts}. "
+    sub = pg.page("Special set", 0.55)
+    _draw("special", "special.json", lambda: _special_figure(res, sub))
+    ix = _tie_index(res)
+    pg.para(f"{component_counts(sp).capitalize()} (connected components); "
+            f"{plural(len(ix.curves) or tie_curve_count(sp), 'tie curve')} drawn. "
             f"Total patch area {fmt(sp.get('total_area'))} = {fmt_pct(sp.get('area_fraction'))} of the window. "
             f"Method {sp.get('method', 'n/a')}, resolution {sp.get('resolution', 'n/a')}, pairs "
-            f"{sp.get('pairs', 'n/a')}, tolerance {fmt(sp.get('tolerance'), 3)}.")
-    if sp.get("stats"):
-        pg.para(f"Statistics: {_short_dict(sp.get('stats'), 10)}.", 8.5)
+            f"{sp.get('pairs', 'n/a')}, tolerance {fmt(sp.get('tolerance'), 3)}; search statistics in the "
+            "appendix.")
+    pg.para("Families name the condition and the grids of the two pairs: 'equal fg=fg' ties two differences "
+            "between an f and a g contour (two matching costs); 'half ff=2fg' a same-grid difference twice a "
+            "cross one (a diagonal cost against a matching cost). Curve colours are faint where thousands "
+            "overlap (the darker, the denser). Each curve's tie is the one whose residual vanishes on it, "
+            "evaluated from the grid files.", 8.5, color="0.3")
     if res.get("geojson") is None:
         pg.warn("special.geojson is missing: components are drawn as their bounding boxes.")
     comps = _component_rows(list(sp.get("components") or []))
+    win = sp.get("window") or {}
+    wa, wb = nums(win.get("a", [0.0, 1.0]))[:2], nums(win.get("b", [0.0, 1.0]))[:2]
     pg.heading("Components")
     shown = comps[:MAX_TABLE_ROWS]
     if len(comps) > len(shown):
         pg.para(f"Table truncated: the first {len(shown)} of {len(comps)} components are listed "
                 "(patches, then points, then curves; larger first). All are in special.json.", 8.5)
-    pg.mono(f"{'id':<10}{'kind':<7}{'area':>11}{'length':>11}  bbox [a_min, b_min, a_max, b_max]")
+    pg.mono(f"{'id':<10}{'kind':<7}{'area':>11}{'length':>11}{'ties':>7}  box in the window [a0, b0, a1, b1]")
     for comp in shown:
-        bbox = comp.get("bbox") or []
+        bbox = clip_bbox(comp.get("bbox"), (wa[0], wb[0], wa[1], wb[1]))
         bb = "[" + ", ".join(fmt(x, 3) for x in bbox) + "]" if bbox else "n/a"
-        pg.mono(f"{str(comp.get('id')):<10}{str(comp.get('kind')):<7}{fmt(comp.get('area'), 3):>11}"
-                f"{fmt(comp.get('length'), 3):>11}  {bb}")
         ties = comp.get("ties") or []
+        pg.mono(f"{str(comp.get('id')):<10}{str(comp.get('kind')):<7}{fmt(comp.get('area'), 3):>11}"
+                f"{fmt(comp.get('length'), 3):>11}{len(ties):>7}  {bb}")
+        held = ix.patch_ties.get(str(comp.get("id")))
+        if held:
+            pg.mono("    holds on the patch: " + "; ".join(_tie_text(ties[i]) for i in held[:3])
+                    + (f" (+{len(held) - 3} more)" if len(held) > 3 else ""), color="0.3")
         if ties:
-            more = f"  (+{len(ties) - 2} more ties)" if len(ties) > 2 else ""
-            pg.mono("    ties: " + "; ".join(_tie_text(t) for t in ties[:2]) + more, color="0.3")
+            pg.mono(f"    tie families: {_family_counts(ties)}", color="0.3")
     if len(comps) > len(shown):
         pg.mono(f"... and {len(comps) - len(shown)} more components (not listed)")
 
@@ -471,7 +518,7 @@ def build_report(result_dir: str | Path, out_pdf: str | Path | None = None, *,
                        lambda: grids_figure(res.get("grid_f"), res.get("grid_g"))), figs / "grids.png")
     if stages["special"]:
         save_png(_draw("special", str(root / "special.json"),
-                       lambda: special_figure(res["special"], res.get("geojson"))), figs / "special.png")
+                       lambda: _special_figure(res)), figs / "special.png")
     if stages["distance"]:
         save_png(_draw("distance", str(root / "distance.json"),
                        lambda: landscape_figure(res["distance"], res.get("geojson"),
