@@ -258,11 +258,49 @@ def _harmonic_key(members: np.ndarray, settle: np.ndarray, indptr: np.ndarray,
     return np.atleast_1d(spsolve(A, rhs))
 
 
+def _aligned_key(members: np.ndarray, settle: np.ndarray, aux: np.ndarray, indptr: np.ndarray,
+                 indices: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Order of every filled region that follows ``aux`` and still has no minimum.
+
+    In each region B with saddle w, ``aux`` restricted to B is itself filled with w as the only
+    significant minimum (a sweep on the graph of B and w, w first), and the sub-regions this
+    fills are laid out by the harmonic rule from their own saddle. Returns (level, harmonic)
+    per member, compared in this order.
+    """
+    n = len(settle)
+    is_mem = settle != np.arange(n)
+    rows = np.repeat(np.arange(n), np.diff(indptr))
+    cols = indices
+    same = is_mem[rows] & is_mem[cols] & (settle[rows] == settle[cols])
+    to_saddle = (is_mem[rows] & (cols == settle[rows])) | (is_mem[cols] & (rows == settle[cols]))
+    keep = same | to_saddle
+    A = csr_matrix((np.ones(int(keep.sum())), (rows[keep], cols[keep])), shape=(n, n))
+    A.sum_duplicates()
+    A.sort_indices()
+    ip2, ix2 = A.indptr.astype(np.int64), A.indices.astype(np.int64)
+    a = np.full(n, np.inf)
+    a[members] = aux[members]
+    saddles = np.unique(settle[members])
+    a[saddles] = -np.inf
+    order, rank = _ranks(a)
+    significant = np.zeros(n, dtype=bool)
+    significant[saddles] = True
+    s2 = _settle(order, rank, ip2, ix2, significant)
+    sub = members[s2[members] != members]
+    level = a.copy()
+    level[sub] = a[s2[sub]]
+    h = np.zeros(n)
+    if len(sub):
+        h[sub] = 1.0 + _harmonic_key(sub, s2, indptr, indices)
+    return level[members], h[members]
+
+
 def _one_pass(f: np.ndarray, delta: float, hi: np.ndarray, indptr: np.ndarray,
-              indices: np.ndarray) -> tuple[np.ndarray, int]:
+              indices: np.ndarray, aux: np.ndarray | None = None) -> tuple[np.ndarray, int]:
     """Fill the basins of the minima of persistence < delta, raising no vertex above ``hi``.
 
-    Returns the new values and the number of basins filled.
+    Filled regions are laid out by the harmonic rule, or following ``aux`` when given
+    (:func:`_aligned_key`). Returns the new values and the number of basins filled.
     """
     order, rank = _ranks(f)
     births, deaths, _ = _zero_pairs(order, rank, indptr, indices)
@@ -275,9 +313,12 @@ def _one_pass(f: np.ndarray, delta: float, hi: np.ndarray, indptr: np.ndarray,
     settle = _settle(order, rank, indptr, indices, significant)
     members = np.nonzero(settle != np.arange(len(f)))[0]
     level = f[settle[members]]
-    key = _harmonic_key(members, settle, indptr, indices)
-    # order inside each filled region: by (saddle, harmonic key, vertex index)
-    o = np.lexsort((members, key, settle[members]))
+    if aux is None:
+        key, second = _harmonic_key(members, settle, indptr, indices), np.zeros(len(members))
+    else:
+        key, second = _aligned_key(members, settle, aux, indptr, indices)
+    # order inside each filled region: by (saddle, key, second key, vertex index)
+    o = np.lexsort((members, second, key, settle[members]))
     mem, lev, sad = members[o], level[o], settle[members][o]
     start = np.r_[True, sad[1:] != sad[:-1]]
     group = np.cumsum(start) - 1
@@ -381,6 +422,8 @@ class Simplified:
         Passes of (minima, maxima) run.
     short_pairs_left : int
         Finite pairs of f' with persistence < delta (0 unless float precision prevented a fill).
+    layout : str
+        How filled regions were ordered: ``"harmonic"`` or ``"aligned"`` (with a companion).
     """
 
     values: np.ndarray
@@ -390,6 +433,7 @@ class Simplified:
     critical_after: dict[str, int]
     rounds: int
     short_pairs_left: int
+    layout: str = "harmonic"
 
 
 @dataclass(frozen=True)
@@ -414,7 +458,8 @@ class SimplifiedPair:
         return (self.f1.sup_change, self.f2.sup_change)
 
 
-def simplify_function(tri: np.ndarray, values: np.ndarray, delta: float) -> Simplified:
+def simplify_function(tri: np.ndarray, values: np.ndarray, delta: float, *,
+                      align: np.ndarray | None = None) -> Simplified:
     """Persistence-sensitive simplification of one PL function on a closed triangulated surface.
 
     Parameters
@@ -425,6 +470,11 @@ def simplify_function(tri: np.ndarray, values: np.ndarray, delta: float) -> Simp
         f at the vertices (value units).
     delta : float
         Threshold >= 0 (value units): pairs of persistence < delta are removed.
+    align : ndarray (n,), optional
+        A companion function (the other component of the map): filled regions are then laid
+        out in its order as far as that creates no extremum, so that their edges are not PL
+        Pareto edges of the pair (same order in both). If this leaves a short pair, the
+        harmonic layout is used instead (``layout`` says which).
 
     Returns
     -------
@@ -450,16 +500,14 @@ def simplify_function(tri: np.ndarray, values: np.ndarray, delta: float) -> Simp
     if delta == 0:  # nothing to remove; ties stay, ordered by (value, vertex index)
         crit = pl_critical_vertices(T, f).counts()
         return Simplified(f.copy(), 0.0, 0.0, crit, dict(crit), 0, 0)
-    g = make_injective(f, 1e-6 * delta)
-    rounds = 0
-    for _ in range(MAX_ROUNDS):
-        rounds += 1
-        g, r1 = _one_pass(g, delta, f + delta, indptr, indices)
-        h, r2 = _one_pass(-g, delta, delta - f, indptr, indices)  # -g <= -(f - delta)
-        g = -h
-        if r1 + r2 == 0 or _short_pairs(g, delta, indptr, indices) == 0:
-            break
-    left = _short_pairs(g, delta, indptr, indices)
+    aux = None if align is None else np.asarray(align, dtype=float)
+    if aux is not None and aux.shape != f.shape:
+        raise ValueError(f"align has shape {aux.shape}, expected {f.shape}")
+    g, rounds, left = _passes(f, delta, indptr, indices, aux)
+    layout = "harmonic" if aux is None else "aligned"
+    if left and aux is not None:
+        g, rounds, left = _passes(f, delta, indptr, indices, None)
+        layout = "harmonic"
     return Simplified(
         values=g,
         delta=delta,
@@ -468,12 +516,36 @@ def simplify_function(tri: np.ndarray, values: np.ndarray, delta: float) -> Simp
         critical_after=pl_critical_vertices(T, g).counts(),
         rounds=rounds,
         short_pairs_left=left,
+        layout=layout,
     )
 
 
-def simplify_pair(tri: np.ndarray, f1: np.ndarray, f2: np.ndarray, delta: float) -> SimplifiedPair:
-    """Simplify both components of a mesh map with the same delta (see :func:`simplify_function`)."""
-    return SimplifiedPair(simplify_function(tri, f1, delta), simplify_function(tri, f2, delta))
+def _passes(f: np.ndarray, delta: float, indptr: np.ndarray, indices: np.ndarray,
+            aux: np.ndarray | None) -> tuple[np.ndarray, int, int]:
+    """Rounds of (minima, maxima) passes until no short pair is left: (values, rounds, left)."""
+    g = make_injective(f, 1e-6 * delta)
+    rounds = 0
+    for _ in range(MAX_ROUNDS):
+        rounds += 1
+        g, r1 = _one_pass(g, delta, f + delta, indptr, indices, aux)
+        h, r2 = _one_pass(-g, delta, delta - f, indptr, indices,  # -g <= -(f - delta)
+                          None if aux is None else -aux)
+        g = -h
+        if r1 + r2 == 0 or _short_pairs(g, delta, indptr, indices) == 0:
+            break
+    return g, rounds, _short_pairs(g, delta, indptr, indices)
+
+
+def simplify_pair(tri: np.ndarray, f1: np.ndarray, f2: np.ndarray, delta: float, *,
+                  align: bool = True) -> SimplifiedPair:
+    """Simplify both components of a mesh map with the same delta (see :func:`simplify_function`).
+
+    With ``align`` (default) the filled regions of f1 follow f2 and those of f2 follow the
+    simplified f1, which keeps the filling from adding PL Pareto edges.
+    """
+    s1 = simplify_function(tri, f1, delta, align=f2 if align else None)
+    s2 = simplify_function(tri, f2, delta, align=s1.values if align else None)
+    return SimplifiedPair(s1, s2)
 
 
 @dataclass(frozen=True)
