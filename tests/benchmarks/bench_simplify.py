@@ -8,7 +8,8 @@ contours of the PL grid (grids.piecewise, proper / half-lines) of the smooth, th
 simplified pair, delta, the measured sup change and the time of three treatments:
 
 - ``persistence``: simplify_pair at delta = 2 ||noise||_inf (by stability every finite pair of a
-  noisy coordinate function is shorter than that; the smooth one has none);
+  noisy coordinate function is shorter than that; the smooth one has none), with the aligned
+  layout of filled regions (default) and with the harmonic one;
 - ``auto``: auto_delta with a budget of 60 contours per grid;
 - ``tube+persistence``: smooth_within at tau = ||noise||_inf, then simplify_pair at ||noise||_inf.
 
@@ -60,7 +61,10 @@ def treatments(V: np.ndarray, T: np.ndarray, F: np.ndarray, noise: float | None,
     t = time.perf_counter()
     d = 2.0 * noise * (1 + 1e-9) if noise is not None else delta0
     p = simplify_pair(T, F[:, 0], F[:, 1], d)
-    out.append(("persistence", p.values, d, p.sup_change, time.perf_counter() - t, ""))
+    out.append(("persistence", p.values, d, p.sup_change, time.perf_counter() - t, "aligned layout"))
+    t = time.perf_counter()
+    p = simplify_pair(T, F[:, 0], F[:, 1], d, align=False)
+    out.append(("persistence", p.values, d, p.sup_change, time.perf_counter() - t, "harmonic layout"))
 
     def count(a: np.ndarray, b: np.ndarray) -> int:
         return sum(contours(V, T, np.c_[a, b]))
@@ -116,7 +120,8 @@ def noisy_section() -> list[str]:
                             f"{sup[0]:.4f}, {sup[1]:.4f} | {after} | {sec:.2f} | {note} |")
         d0 = sampled_distance(fs.triangles, fs.smooth_values, gs.triangles, gs.smooth_values)
         dn = sampled_distance(fs.triangles, fs.values, gs.triangles, gs.values)
-        for (name, vf, _, supf, _, _), (_, vg, _, supg, _, _) in zip(res["f"], res["g"], strict=True):
+        for (name, vf, _, supf, _, note), (_, vg, _, supg, _, _) in zip(res["f"], res["g"], strict=True):
+            name = f"{name} ({note})" if "layout" in note else name
             d1 = sampled_distance(fs.triangles, vf, gs.triangles, vg)
             w = max(supf) + max(supg)
             holds = "yes" if d1 - w <= d0 <= d1 + w else "no"
