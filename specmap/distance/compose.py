@@ -20,6 +20,7 @@ from specmap.distance.result import (
     reduced_json,
 )
 from specmap.errors import StudyError
+from specmap.shapes.model import require_mesh
 from specmap.slices import DEGREES
 from specmap.strip import Window, default_window
 
@@ -43,9 +44,7 @@ def _check_inputs(shape_f, shape_g, method: str) -> None:
     if method not in METHODS:
         raise ValueError(f"method must be one of {METHODS}, not {method!r}")
     for s in (shape_f, shape_g):
-        if not getattr(s, "has_mesh", False):
-            raise StudyError(f"{getattr(s, 'label', 'a shape')} has no mesh, so no slice diagrams",
-                             fix="give a surface or mesh for f and g")
+        require_mesh(s, "slice diagrams")
 
 
 def _reduced_stage(ev: LineEvaluator, window: Window, pair: tuple | None, atlas, *, tolerance: float,

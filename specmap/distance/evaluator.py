@@ -12,7 +12,7 @@ from typing import Any
 
 import numpy as np
 
-from specmap.errors import StudyError
+from specmap.shapes.model import require_mesh
 from specmap.slices import DEGREES, SliceEngine, bottleneck
 
 Progress = Callable[[int, int], None]
@@ -23,10 +23,8 @@ _WORKER_ENGINES: dict[tuple, tuple[SliceEngine, SliceEngine]] = {}
 def _mesh_parts(source) -> tuple[np.ndarray, np.ndarray]:
     if isinstance(source, SliceEngine):
         return source.triangles, source.values
-    if not getattr(source, "has_mesh", False):
-        label = getattr(source, "label", "a shape")
-        raise StudyError(f"{label} has no mesh, so no slice diagrams", fix="give a surface or mesh for f and g")
-    return np.asarray(source.triangles), np.asarray(source.values, dtype=float)
+    shape = require_mesh(source, "slice diagrams")
+    return np.asarray(shape.triangles), np.asarray(shape.values, dtype=float)
 
 
 def _h_lines(engine_f: SliceEngine, engine_g: SliceEngine, lines: np.ndarray,
