@@ -33,6 +33,15 @@ change ``sup_change``. If float ties in the harmonic order leave a short
 pair, the two passes are repeated (``rounds``), never beyond the delta budget
 of any vertex; ``short_pairs_left`` reports what (if anything) remained.
 
+Aligned layout. For a map (f1, f2) an edge is a PL Pareto edge only if f1 and
+f2 order its ends oppositely, so a filled region of f1 laid out in the order of
+f2 adds no Pareto edge inside it. With a companion function (``align``, used
+by :func:`simplify_pair`), each region B is laid out by the companion filled on
+B with the region's saddle as its only minimum (so still no new minimum), and
+the sub-regions this fills by the harmonic rule. New maxima it may create have
+persistence below eta and go in the maxima pass; if a short pair were left
+after the rounds, the harmonic layout is used instead (``layout``).
+
 Critical points are counted as PL critical vertices from the lower link
 [Ban67]_ (saddles with multiplicity), by
 :func:`specmap.grids.piecewise.pl_critical_vertices`.
@@ -486,6 +495,21 @@ def simplify_function(tri: np.ndarray, values: np.ndarray, delta: float, *,
     ----------
     .. [EMP06] Edelsbrunner, Morozov, Pascucci (2006).
     .. [AGHLM09] Attali, Glisse, Hornus, Lazarus, Morozov (2009).
+
+    Examples
+    --------
+    An octahedron (vertices +x, -x, +y, -y, +z, -z): minima at +x and -x, saddles at +y and
+    -y, maxima at +z and -z. The pair (-x, +y) has persistence 0.5 and goes at delta = 0.6;
+    the pair (-y, +z), persistence 1.5, stays:
+
+    >>> T = np.array([[0, 2, 4], [2, 1, 4], [1, 3, 4], [3, 0, 4],
+    ...               [2, 0, 5], [1, 2, 5], [3, 1, 5], [0, 3, 5]])
+    >>> f = np.array([0.0, 0.5, 1.0, 1.5, 3.0, 4.0])
+    >>> s = simplify_function(T, f, 0.6)
+    >>> s.critical_before, s.critical_after
+    ({'min': 2, 'saddle': 2, 'max': 2}, {'min': 1, 'saddle': 1, 'max': 2})
+    >>> round(s.sup_change, 3)  # 0.5 to fill the basin, 0.025 of tie-breaking offset
+    0.525
     """
     from specmap.grids.piecewise import pl_critical_vertices
 
