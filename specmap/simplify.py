@@ -684,3 +684,71 @@ def auto_delta(tri: np.ndarray, f1: np.ndarray, f2: np.ndarray,
             lo = mid
     pair, count = at(hi)
     return AutoDelta(float(cands[hi]), pair, before, count, int(budget), True, calls)
+
+
+def simplify_values(tri: np.ndarray, values: np.ndarray, setting: float | str,
+                    count_fn: Callable[[np.ndarray, np.ndarray], int], *,
+                    budget: int = 60) -> tuple[np.ndarray, dict]:
+    """Simplify a mesh map as a study's ``simplify = delta | "auto"`` asks, with the record to keep.
+
+    Parameters
+    ----------
+    tri : ndarray (m, 3) of int
+    values : ndarray (n, 2)
+        (f1, f2) at the vertices.
+    setting : float or "auto"
+        delta >= 0 (value units), or ``"auto"`` for :func:`auto_delta` under ``budget``.
+    count_fn : callable (f1, f2) -> int
+        The count to report (and for ``"auto"`` to bring under the budget), e.g. the number of
+        contours of the pair's extended Pareto grid.
+    budget : int
+        For ``"auto"``.
+
+    Returns
+    -------
+    values : ndarray (n, 2)
+        The simplified pair (the input itself when nothing changes).
+    meta : dict
+        JSON-ready: ``delta``, ``sup_change`` [f1, f2] (measured), ``contours_before``,
+        ``contours_after``, ``setting``, ``budget`` and ``met`` (``"auto"`` only, else None),
+        ``critical_before`` / ``critical_after`` {"f1"|"f2": {"min", "saddle", "max"}},
+        ``layout``.
+    """
+    F = np.asarray(values, dtype=float)
+    if F.ndim != 2 or F.shape[1] != 2:
+        raise ValueError(f"values have shape {F.shape}, expected (n, 2)")
+    f1, f2 = F[:, 0], F[:, 1]
+    if setting == "auto":
+        res = auto_delta(tri, f1, f2, count_fn, int(budget))
+        pair, before, after = res.pair, res.count_before, res.count_after
+        delta, met, used_budget = res.delta, res.met, int(budget)
+    elif isinstance(setting, (int, float)) and not isinstance(setting, bool):
+        delta, met, used_budget = float(setting), None, None
+        before = int(count_fn(f1, f2))
+        pair = simplify_pair(tri, f1, f2, delta) if delta > 0 else None
+        after = int(count_fn(pair.f1.values, pair.f2.values)) if pair is not None else before
+    else:
+        raise ValueError(f"setting must be a number >= 0 or 'auto', got {setting!r}")
+    if pair is None:
+        from specmap.grids.piecewise import pl_critical_vertices
+
+        crit = {k: pl_critical_vertices(tri, F[:, i]).counts() for i, k in enumerate(("f1", "f2"))}
+        out, sup, after_crit, layout = F, [0.0, 0.0], crit, None
+    else:
+        out, sup = pair.values, [pair.f1.sup_change, pair.f2.sup_change]
+        crit = {"f1": pair.f1.critical_before, "f2": pair.f2.critical_before}
+        after_crit = {"f1": pair.f1.critical_after, "f2": pair.f2.critical_after}
+        layout = pair.f1.layout
+    meta = {
+        "setting": setting if setting == "auto" else float(setting),
+        "delta": float(delta),
+        "sup_change": [float(x) for x in sup],
+        "contours_before": int(before),
+        "contours_after": int(after),
+        "budget": used_budget,
+        "met": met,
+        "critical_before": crit,
+        "critical_after": after_crit,
+        "layout": layout,
+    }
+    return out, meta

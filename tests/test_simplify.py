@@ -34,6 +34,7 @@ from specmap.simplify import (
     persistence_values,
     simplify_function,
     simplify_pair,
+    simplify_values,
     smooth_within,
 )
 
@@ -321,3 +322,28 @@ def test_real_scans(name: str) -> None:
         f = V[:, k]
         delta = 0.05 * float(np.ptp(f))
         check_simplified(T, f, delta, [1, 0, 1])  # both scans are closed genus-0 surfaces
+
+
+def test_simplify_values_record() -> None:
+    V, T = SPHERE
+    F = np.c_[noisy_field(V, 1, 0.05), noisy_field(V[:, [1, 2, 0]], 2, 0.05)]
+
+    def count(a: np.ndarray, b: np.ndarray) -> int:
+        return len(piecewise_grid(V, T, np.c_[a, b]).contours)
+
+    out, meta = simplify_values(T, F, 0.1, count)
+    pair = simplify_pair(T, F[:, 0], F[:, 1], 0.1)
+    assert np.array_equal(out, pair.values)
+    assert meta["delta"] == 0.1 and meta["sup_change"] == list(pair.sup_change)
+    assert meta["contours_before"] == count(*F.T) and meta["contours_after"] == count(*out.T)
+    assert meta["budget"] is None and meta["met"] is None
+    assert max(meta["sup_change"]) == float(np.abs(out - F).max()) <= 0.1  # measured, within delta
+    out0, meta0 = simplify_values(T, F, 0.0, count)
+    assert out0 is F or np.array_equal(out0, F)
+    assert meta0["contours_after"] == meta0["contours_before"] and meta0["sup_change"] == [0.0, 0.0]
+    budget = meta["contours_after"]  # reachable: met at some delta <= 0.1's count
+    outa, metaa = simplify_values(T, F, "auto", count, budget=budget)
+    assert metaa["met"] and metaa["contours_after"] <= budget and metaa["budget"] == budget
+    assert metaa["contours_after"] == count(*outa.T)
+    with pytest.raises(ValueError):
+        simplify_values(T, F, "fast", count)
