@@ -14,7 +14,13 @@ from pathlib import Path
 
 from specmap import __version__
 from specmap.errors import SpecmapInputError, StudyError
-from specmap.report.fmt import plural
+from specmap.report.fmt import fmt, fmt_pct, fmt_point, plural
+
+REACHED = {"slope-one": "reached on the slope-one line a = 1/2",
+           "special": "reached on the special set",
+           "both": "reached on the slope-one line and on the special set alike (equal within the tolerance)",
+           "dense": "found by the dense sweep"}
+"""What distance.json's ``reached_on`` means, in words."""
 
 EXIT_USER = 2
 EXIT_INTERRUPT = 130
@@ -97,7 +103,9 @@ def build_parser() -> argparse.ArgumentParser:
     sp = sub.add_parser("demo", help="run the shipped demo study end to end")
     add_quiet(sp)
     sp.add_argument("--out", help="result folder (default results/demo)")
-    sp.add_argument("--pdf", default="reports/demo.pdf", help="report path (default reports/demo.pdf)")
+    sp.add_argument("--pdf", default="reports/demo.pdf",
+                    help="where the report is copied (default reports/demo.pdf, the tracked copy; the demo says "
+                    "when it replaced it)")
     sp.add_argument("--jobs", type=_positive, default=2,
                     help="parallel workers for the distance and perturbation stages (default 2)")
     sp.add_argument("--quick", action="store_true", help="smaller settings (for CI)")
@@ -129,6 +137,36 @@ def check_study_path(path: str) -> None:
                              fix="make the file readable (chmod u+r) or copy it somewhere readable") from None
 
 
+KERNEL_VERBS = ("map", "distance", "perturb", "demo")
+"""Verbs that call the compiled (numba) loops of the special-set search."""
+
+
+def kernels_cached() -> bool:
+    """Whether numba's cache holds an index for every compiled module (so nothing compiles now)."""
+    from specmap.special import compiled
+
+    pkg = Path(compiled.__file__).resolve().parent
+    modules = [p.stem for p in pkg.glob("*.py") if p.stem != "__init__"]
+    roots = [pkg / "__pycache__"]
+    if os.environ.get("NUMBA_CACHE_DIR"):
+        roots.append(Path(os.environ["NUMBA_CACHE_DIR"]))
+    found = {p.name.split(".", 1)[0] for r in roots if r.is_dir() for p in r.rglob("*.nbi")}
+    return all(m in found for m in modules)
+
+
+def compile_notice(verb: str, show: bool) -> None:
+    """One line before the first compilation of the kernels, which is otherwise a silent pause."""
+    if show and verb in KERNEL_VERBS and not kernels_cached():
+        print("specmap: compiling the numba kernels (about 10 s, once; cached afterwards)", file=sys.stderr)
+
+
+def command_line(argv: list[str] | None) -> str:
+    """The command as typed, for study.json (``specmap demo --quick --jobs 2``)."""
+    import shlex
+
+    return " ".join(shlex.quote(a) for a in ["specmap", *(sys.argv[1:] if argv is None else argv)])
+
+
 def run(argv: list[str] | None = None) -> int:
     args = build_parser().parse_args(argv)
     from specmap.pipeline import StudyRun
@@ -141,12 +179,14 @@ def run(argv: list[str] | None = None) -> int:
         pdf = build_report(args.dir, args.out, overwrite=args.force or args.out is None)
         print(f"report: {pdf}")
         return 0
+    compile_notice(args.verb, show)
     if args.verb == "demo":
-        from specmap.demo import run_demo
+        from specmap.demo import run_demo, summary_lines
 
-        pdf = run_demo(demo_study_path(), out=args.out, pdf=args.pdf, jobs=args.jobs, quick=args.quick,
-                       show_progress=show)
-        print(f"demo report: {pdf}")
+        outcome = run_demo(demo_study_path(), out=args.out, pdf=args.pdf, jobs=args.jobs, quick=args.quick,
+                           show_progress=show, command=command_line(argv))
+        for line in summary_lines(outcome):
+            print(line)
         return 0
     check_study_path(args.study)
     study = load_study(args.study)
@@ -164,15 +204,17 @@ def run(argv: list[str] | None = None) -> int:
     if args.verb == "grid":
         counts = sr.write_grids()
         sr.record()
-        print(f"grids: f {counts['f']} contours, g {counts['g']} contours -> {sr.out}")
+        print(f"grids: f {plural(counts['f'], 'contour')}, g {plural(counts['g'], 'contour')} -> {sr.out}")
     elif args.verb == "map":
         js = sr.write_map(pairs=args.pairs, resolution=args.resolution, method=args.method)
         sr.write_grids()
         sr.record()
         c = js["counts"]
         kinds = ", ".join(plural(int(c[k]), k, "patches" if k == "patch" else None) for k in ("curve", "patch", "point"))
-        print(f"special set: {kinds} (connected components); "
-              f"area fraction {js['area_fraction']:.4g} -> {sr.out / 'special.json'}")
+        curves = (js.get("stats") or {}).get("tie_curves")
+        ties = f"; {plural(int(curves), 'tie curve')}" if isinstance(curves, (int, float)) else ""
+        print(f"special set: {kinds} (connected components){ties}; "
+              f"patches cover {fmt_pct(js['area_fraction'])} of the window -> {sr.out / 'special.json'}")
     elif args.verb == "distance":
         if study.grid_only:
             raise StudyError("this study gives a grid file, which has no mesh, so no slice diagrams",
@@ -180,7 +222,8 @@ def run(argv: list[str] | None = None) -> int:
                              fix="give a surface or mesh for both f and g to compute distances")
         js = sr.write_distance(method=args.method, degrees=args.degrees, jobs=args.jobs)
         sr.record()
-        print(f"matching distance: {js['value']} at (a, b) = {js['at']}, reached on {js['reached_on']} "
+        print(f"matching distance: D = {fmt(js['value'])} at (a, b) = {fmt_point(js['at'])}, "
+              f"{REACHED.get(js['reached_on'], 'reached on ' + str(js['reached_on']))} "
               f"-> {sr.out / 'distance.json'}")
         if js.get("audit", {}).get("theorem_gap"):
             print("WARNING: the dense sweep exceeds the reduced search (see distance.json audit)",

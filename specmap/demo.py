@@ -4,15 +4,54 @@ from __future__ import annotations
 
 import dataclasses
 import shutil
+from dataclasses import dataclass
 from pathlib import Path
+from typing import Any
 
+from specmap.io import read_json
 from specmap.pipeline import StudyRun
 from specmap.study import load_study
 
 
+@dataclass(frozen=True)
+class DemoOutcome:
+    """What the demo wrote and found.
+
+    Attributes
+    ----------
+    out : Path
+        The result folder.
+    report : Path
+        The PDF built in the result folder.
+    pdf : Path
+        Where it was copied (the same path when no copy was needed).
+    replaced : bool
+        Whether an existing file at ``pdf`` was overwritten.
+    distance : dict
+        ``distance.json``.
+    special : dict
+        ``special.json``.
+    verdict : str or None
+        The perturbation study's verdict.
+    """
+
+    out: Path
+    report: Path
+    pdf: Path
+    replaced: bool
+    distance: dict[str, Any]
+    special: dict[str, Any]
+    verdict: str | None
+
+
 def run_demo(study_path: str | Path, *, out: str | Path | None = None, pdf: str | Path = "reports/demo.pdf",
-             jobs: int = 2, quick: bool = False, show_progress: bool = True) -> Path:
+             jobs: int = 2, quick: bool = False, show_progress: bool = True,
+             command: str | None = None) -> DemoOutcome:
     """Run every stage of the demo study and write its PDF report.
+
+    The report is built in the result folder and copied to ``pdf``; when that
+    replaces an existing file (by default the tracked ``reports/demo.pdf``) the
+    outcome says so and the CLI prints it.
 
     Parameters
     ----------
@@ -26,11 +65,12 @@ def run_demo(study_path: str | Path, *, out: str | Path | None = None, pdf: str 
         Parallel workers for slices and perturbation runs.
     quick : bool
         Smaller settings (coarser sampling, fewer runs), for CI.
+    command : str, optional
+        The command line recorded once in ``study.json`` (default ``specmap demo`` and the options).
 
     Returns
     -------
-    Path
-        The PDF written.
+    DemoOutcome
     """
     from specmap.report.pdf import build_report
 
@@ -46,15 +86,36 @@ def run_demo(study_path: str | Path, *, out: str | Path | None = None, pdf: str 
         )
     sr = StudyRun(study, out, show_progress=show_progress)
     sr.write_grids()
-    sr.record("specmap demo" + (" --quick" if quick else ""))
     sr.write_map()
-    sr.write_distance(jobs=jobs)
-    if study.perturb is not None:
-        sr.write_perturb(jobs=jobs)
-    sr.record("specmap demo" + (" --quick" if quick else ""))
-    built = build_report(sr.out)
+    distance = sr.write_distance(jobs=jobs)
+    summary = sr.write_perturb(jobs=jobs) if study.perturb is not None else {}
+    sr.record(command or "specmap demo" + (" --quick" if quick else "") + f" --jobs {jobs}")
+    built = Path(build_report(sr.out))
     target = Path(pdf)
-    target.parent.mkdir(parents=True, exist_ok=True)
-    if target.resolve() != Path(built).resolve():
+    replaced = False
+    if target.resolve() != built.resolve():
+        target.parent.mkdir(parents=True, exist_ok=True)
+        replaced = target.exists()
         shutil.copyfile(built, target)
-    return target
+    special = read_json(sr.out / "special.json")
+    return DemoOutcome(sr.out, built, target, replaced, distance, special, summary.get("verdict"))
+
+
+def summary_lines(o: DemoOutcome) -> list[str]:
+    """What the demo prints: D, where, the special set, the verdict, and where the report went."""
+    from specmap.cli import REACHED
+    from specmap.report.fmt import fmt, fmt_point
+    from specmap.report.summary import component_counts
+
+    d = o.distance
+    lines = [f"matching distance: D = {fmt(d.get('value'))} at (a, b) = {fmt_point(d.get('at'))}, "
+             f"{REACHED.get(d.get('reached_on'), 'reached on ' + str(d.get('reached_on')))}",
+             f"special set: {component_counts(o.special)} (connected components)"]
+    if o.verdict:
+        lines.append(f"verdict: {o.verdict}")
+    lines.append(f"results: {o.out}; report: {o.report}")
+    if o.pdf.resolve() != o.report.resolve():
+        lines.append(f"report copied to {o.pdf}" + (" (replaced the previous file there; in a clone that is the "
+                                                      "tracked copy, so git diff shows the change)"
+                                                      if o.replaced else ""))
+    return lines

@@ -156,7 +156,7 @@ class StudyRun:
     def write_distance(self, *, method: str | None = None, degrees: tuple[int, ...] | None = None,
                        jobs: int = 1) -> dict[str, Any]:
         from specmap.distance import matching_distance
-        from specmap.report.figures import landscape_figure, save_png
+        from specmap.report.figures import distance_map_figure, save_png
 
         method = method or self.study.distance.method
         sf, sg = self.shapes
@@ -170,7 +170,7 @@ class StudyRun:
         write_json(self.out / "distance.json", js)
         geo = atlas.to_geojson() if atlas is not None else None
         if js.get("landscape"):
-            save_png(landscape_figure(js, geo), self.out / "figures" / "landscape.png")
+            save_png(distance_map_figure(js, geo), self.out / "figures" / "distance_map.png")
         return js
 
     def write_perturb(self, *, runs: int | None = None, jobs: int = 1, cluster: str | None = None) -> dict:

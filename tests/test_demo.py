@@ -36,8 +36,17 @@ def test_grid_works_on_every_shipped_study(study: Path, tmp_path: Path) -> None:
 def test_demo_quick_end_to_end(tmp_path: Path) -> None:
     out = tmp_path / "results"
     pdf = tmp_path / "demo.pdf"
+    pdf.write_bytes(b"an older report")  # the demo must say that it replaced it
     proc = run_cli(["demo", "--quick", "--out", str(out), "--pdf", str(pdf), "--jobs", "2"], tmp_path)
     assert proc.returncode == 0, proc.stderr
+    lines = proc.stdout.splitlines()
+    assert any(ln.startswith("matching distance: D = ") for ln in lines), proc.stdout
+    assert any(ln.startswith("verdict: ") for ln in lines), proc.stdout
+    assert any(ln.startswith(f"report copied to {pdf} (replaced the previous file") for ln in lines), proc.stdout
+    assert not any("0000000" in ln for ln in lines)  # numbers are rounded, not 16 digits
+    # the command is recorded once, with its options
+    cmds = json.loads((out / "study.json").read_text())["commands"]
+    assert len(cmds) == 1 and "--quick" in cmds[0]["command"] and "--jobs 2" in cmds[0]["command"]
     for name in ("grid_f.json", "special.json", "special.geojson", "distance.json",
                  "perturb/runs.jsonl", "perturb/summary.json", "report.pdf"):
         assert (out / name).is_file(), name
@@ -52,8 +61,32 @@ def test_demo_quick_end_to_end(tmp_path: Path) -> None:
     dist = json.loads((out / "distance.json").read_text())
     summary = json.loads((out / "perturb" / "summary.json").read_text())
     assert f"{dist['value']:.4g}" in flat
+    assert f"D = {dist['value']:.4g}" in proc.stdout
     counts = special["counts"]
     assert f"{counts['patch']} patch" in flat
     assert f"{summary['runs_with_patch']} of {summary['runs']}" in flat
     runs = [json.loads(line) for line in (out / "perturb" / "runs.jsonl").read_text().splitlines()]
     assert len({r["run"] for r in runs}) == summary["runs"]
+
+
+def test_compile_notice_only_when_the_kernels_are_not_cached(monkeypatch, capsys) -> None:
+    from specmap import cli
+
+    monkeypatch.setattr(cli, "kernels_cached", lambda: False)
+    cli.compile_notice("map", True)
+    assert "compiling the numba kernels" in capsys.readouterr().err
+    cli.compile_notice("grid", True)  # grid calls no compiled loop
+    cli.compile_notice("map", False)  # --quiet
+    assert capsys.readouterr().err == ""
+    monkeypatch.setattr(cli, "kernels_cached", lambda: True)
+    cli.compile_notice("map", True)
+    assert capsys.readouterr().err == ""
+
+
+def test_terminal_lines_pluralise_and_round(tmp_path: Path) -> None:
+    study = ROOT / "studies" / "ladder.toml"
+    proc = run_cli(["grid", str(study), "--out", str(tmp_path / "o")], tmp_path)
+    assert proc.returncode == 0, proc.stderr
+    grid = json.loads((tmp_path / "o" / "grid_f.json").read_text())
+    n = len(grid["contours"])
+    assert f"f {n} contour{'s' if n != 1 else ''}," in proc.stdout

@@ -13,7 +13,7 @@ from pypdf import PdfReader
 
 from specmap.errors import ResultsError
 from specmap.report import build_report, findings, load_results
-from specmap.report.figures import grids_figure, landscape_figure, perturb_figure, special_figure
+from specmap.report.figures import distance_map_figure, grids_figure, perturb_figure, special_figure
 from specmap.report.findings import audit_sentences
 from specmap.report.fmt import fraction_interval, num
 
@@ -201,7 +201,7 @@ def test_full_report_pages_numbers_and_pngs(tmp_path: Path) -> None:
     assert "arXiv:2312.04201" in text
     assert "fixture-torus-shift" in pages[0]
     assert "specmap grid studies/fixture.toml" in _flat(pages[1])
-    for name in ("grids", "special", "landscape", "perturb"):
+    for name in ("grids", "special", "distance_map", "perturb"):
         png = root / "figures" / f"{name}.png"
         assert png.is_file() and png.stat().st_size > 5000
 
@@ -215,7 +215,7 @@ def test_partial_report_has_no_page_for_missing_stage(tmp_path: Path) -> None:
     cover = _flat(pages[1])
     assert "Matching distance: not run" in cover
     assert "Perturbation study: not run" in cover
-    assert not (root / "figures" / "landscape.png").exists()
+    assert not (root / "figures" / "distance_map.png").exists()
     assert not (root / "figures" / "perturb.png").exists()
 
 
@@ -361,7 +361,7 @@ def test_figures_from_dicts() -> None:
     assert sum("patch p" in s and "area 0.15" in s for s in labels) == 2
     assert "components 2 patches, 3 curves, 1 point; 4 tie curves" in fig.axes[0].get_title()
     assert any(s.startswith("isolated special point (1)") for s in labels)
-    fig = landscape_figure(_distance(), geo)
+    fig = distance_map_figure(_distance(), geo)
     assert len(fig.axes) == 2  # heat map + colour bar
     summary, runs = _perturb()
     assert fig.axes[1].get_ylabel().startswith("h(a, b)")
@@ -396,8 +396,17 @@ def test_figures_edge_cases() -> None:
     assert not any("isolated" in s for s in labels)
     d = _distance()
     d["landscape"] = None
-    fig = landscape_figure(d, geo, window=STUDY["window"])
-    assert len(fig.axes) == 1 and "no landscape stored" in fig.axes[0].get_title()
+    fig = distance_map_figure(d, geo, window=STUDY["window"])
+    assert len(fig.axes) == 1 and "no samples stored" in fig.axes[0].get_title()
+    # the newer key distance_map is read too; the legend is dark text on white
+    d = _distance()
+    d["distance_map"] = d.pop("landscape")
+    fig = distance_map_figure(d, _special(n_patch=1)[1])
+    assert fig.axes[0].get_title().startswith("h over the strip")
+    leg = fig.axes[0].get_legend()
+    texts = [t.get_text() for t in leg.get_texts()]
+    assert "patch (hatched outline)" in texts and "a = 1/2 (slope-one lines)" in texts
+    assert all(t.get_color() != "white" for t in leg.get_texts())
     summary, _ = _perturb()
     fig = perturb_figure(summary, [])
     assert any(t.get_text() == "no run records" for t in fig.axes[0].texts)

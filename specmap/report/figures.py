@@ -16,11 +16,13 @@ from pathlib import Path
 from typing import Any
 
 import numpy as np
+from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.collections import LineCollection
 from matplotlib.figure import Figure, FigureBase
 from matplotlib.lines import Line2D
 from matplotlib.patches import Patch, PathPatch, Rectangle
 from matplotlib.path import Path as MplPath
+from matplotlib.ticker import MaxNLocator
 from shapely.geometry import shape as geo_shape
 from shapely.geometry.base import BaseGeometry
 
@@ -130,6 +132,7 @@ def grids_figure(grid_f: dict[str, Any] | None, grid_g: dict[str, Any] | None, *
     x0, y0 = lo - 0.08 * span
     x1, y1 = hi + 0.12 * span
     handles: list[Any] = []
+    label_items: list[tuple[str, str, np.ndarray]] = []
     for name, grid in present.items():
         col = GRID_COLOURS[name]
         # f and g dashes are out of phase, so coinciding half-lines show both colours
@@ -143,10 +146,15 @@ def grids_figure(grid_f: dict[str, Any] | None, grid_g: dict[str, Any] | None, *
                     ax.plot(p[:, 0], p[:, 1], "D", color=col, ms=4)
                 else:
                     ax.plot(p[:, 0], p[:, 1], "-", color=col, lw=1.6)
+                if len(p):
+                    idx = [int(f * (len(p) - 1)) for f in LABEL_FRACTIONS]
+                    label_items.append((str(c.get("id")), col, p[idx]))
             elif kind in ("vertical", "horizontal"):
                 sx, sy = nums(c.get("start", [math.nan, math.nan]))[:2]
                 ex, ey = (sx, y1) if kind == "vertical" else (x1, sy)
                 ax.plot([sx, ex], [sy, ey], ls=dash, color=col, lw=1.2)
+                along = np.array([[sx + f * (ex - sx), sy + f * (ey - sy)] for f in (0.0, *LABEL_FRACTIONS)])
+                label_items.append((str(c.get("id")), col, along))
                 ax.plot([sx], [sy], "o", color=col, mfc="white", ms=5, mew=1.3)
                 ax.plot([ex], [ey], "^" if kind == "vertical" else ">", color=col, ms=6, clip_on=False)
             else:
@@ -171,9 +179,69 @@ def grids_figure(grid_f: dict[str, Any] | None, grid_g: dict[str, Any] | None, *
     ax.grid(alpha=0.25)
     if line is not None and not labels:
         ax.set_title("Where D is reached: the line r(a, b) over both grids", fontsize=10)
+    if labels and label_items:
+        hidden = place_labels(ax, label_items)
+        if hidden:
+            handles.append(Line2D([], [], ls="", label=f"{plural(hidden, 'contour id')} not shown (no room)"))
     ax.legend(handles=handles, fontsize=LEGEND_SIZE, loc="upper center",
               bbox_to_anchor=(0.5, -0.11 if labels else -0.2), ncol=2 if labels else 3, frameon=False)
     return fig
+
+
+LABEL_FRACTIONS = (0.5, 0.3, 0.7, 0.15, 0.85)
+"""Where along a contour its id may go (fractions of its points / of the visible half-line)."""
+LABEL_OFFSETS = ((4, 3), (4, -11), (-4, 3), (-4, -11), (6, -4), (-6, -4), (0, 8), (0, -14))
+"""Offsets (points) from an anchor tried in turn; negative x puts the text to the left."""
+
+
+def place_labels(ax: Any, items: list[tuple[str, str, np.ndarray]], *, fontsize: float = 7.0) -> int:
+    """Write each item's text near one of its anchor points without overlapping another label.
+
+    Greedy placement with a collision test: for every item, the anchors (data
+    coordinates) and offsets are tried in order and the first text box that stays
+    inside the axes and meets no box placed before is kept.
+
+    Parameters
+    ----------
+    ax : Axes
+    items : list of (text, colour, anchors (n, 2))
+    fontsize : float
+
+    Returns
+    -------
+    int
+        Number of items that found no room (not drawn).
+    """
+    root = ax.figure.figure  # the Figure (ax.figure may be a SubFigure)
+    if not hasattr(root.canvas, "get_renderer"):
+        FigureCanvasAgg(root)  # figures made without pyplot have no renderer until a canvas is attached
+    root.canvas.draw()  # lay the figure out so that the data-to-pixel transform is final
+    renderer = root.canvas.get_renderer()
+    frame = ax.get_window_extent(renderer)
+    placed: list[Any] = []
+    hidden = 0
+    for text, col, anchors in items:
+        done = False
+        for x, y in anchors:
+            if not (math.isfinite(x) and math.isfinite(y)):
+                continue
+            for dx, dy in LABEL_OFFSETS:
+                t = ax.annotate(text, (x, y), xytext=(dx, dy), textcoords="offset points", fontsize=fontsize,
+                                color=col, ha="left" if dx >= 0 else "right", va="bottom",
+                                annotation_clip=True, zorder=7,
+                                bbox={"boxstyle": "square,pad=0.1", "fc": "white", "ec": "none", "alpha": 0.8})
+                t.set_in_layout(False)
+                box = t.get_window_extent(renderer)
+                inside = (box.x0 >= frame.x0 and box.x1 <= frame.x1 and box.y0 >= frame.y0 and box.y1 <= frame.y1)
+                if inside and not any(box.overlaps(b) for b in placed):
+                    placed.append(box)
+                    done = True
+                    break
+                t.remove()
+            if done:
+                break
+        hidden += not done
+    return hidden
 
 
 # -- special set geometry -----------------------------------------------------
@@ -477,23 +545,31 @@ def clip_bbox(bb: Any, window: tuple[float, float, float, float]) -> tuple[float
     return (a0, b0, a1, b1)
 
 
-# -- landscape ----------------------------------------------------------------
-def landscape_figure(distance: dict[str, Any], geojson: dict[str, Any] | None = None, *,
-                     window: dict[str, Any] | None = None, degree: int | str | None = None,
-                     fig: FigureBase | None = None) -> FigureBase:
-    """Heat map of h(a, b) with the special set drawn over it and the maximum starred.
+# -- distance map ---------------------------------------------------------------
+def distance_map_samples(distance: dict[str, Any]) -> dict[str, Any] | None:
+    """The sampled h(a, b) of ``distance.json``: key ``distance_map``, or the older ``landscape``."""
+    return distance.get("distance_map") or distance.get("landscape") or None
+
+
+def distance_map_figure(distance: dict[str, Any], geojson: dict[str, Any] | None = None, *,
+                        window: dict[str, Any] | None = None, degree: int | str | None = None,
+                        fig: FigureBase | None = None) -> FigureBase:
+    """h over the strip: a heat map of h(a, b) with the special set over it and the maximum starred.
+
+    Patches are hatched outlines, curves thin dark lines, a = 1/2 dotted; all are in
+    the legend, which is dark text on white.
 
     Parameters
     ----------
     distance : dict
-        Parsed ``distance.json``. ``landscape.h`` has one row per value of
-        ``landscape.b``; non-finite entries are left blank.
+        Parsed ``distance.json``. ``distance_map`` (or ``landscape``) ``.h`` has one row
+        per value of ``.b``; non-finite entries are left blank.
     geojson : dict, optional
-        Parsed ``special.geojson``; drawn as thin white lines.
+        Parsed ``special.geojson``.
     window : dict, optional
-        ``{"a": [lo, hi], "b": [lo, hi]}``, used when no landscape is stored.
+        ``{"a": [lo, hi], "b": [lo, hi]}``, used when no samples are stored.
     degree : int or str, optional
-        Show ``landscape.by_degree[degree]`` instead of the max over degrees.
+        Show ``by_degree[degree]`` instead of the max over degrees.
     fig : Figure or SubFigure, optional
 
     Returns
@@ -507,21 +583,20 @@ def landscape_figure(distance: dict[str, Any], geojson: dict[str, Any] | None = 
     """
     fig = _new_figure(fig, (7.0, 5.6))
     ax = fig.add_subplot()
-    land = distance.get("landscape") or None
-    title = "h(a, b): bottleneck distance on the line r(a, b)"
+    land = distance_map_samples(distance)
+    title = "h over the strip: bottleneck distance h(a, b) on each line r(a, b)"
     if land:
         a = nums(land.get("a", []))
         b = nums(land.get("b", []))
         h_raw = land.get("h") if degree is None else (land.get("by_degree") or {}).get(str(degree))
         if h_raw is None:
-            raise ValueError(f"landscape has no values for degree {degree}")
+            raise ValueError(f"distance map has no values for degree {degree}")
         h = nums(h_raw)
         if h.shape != (len(b), len(a)):
-            raise ValueError(f"landscape h has shape {h.shape}, expected (len(b), len(a)) = "
+            raise ValueError(f"distance map h has shape {h.shape}, expected (len(b), len(a)) = "
                              f"({len(b)}, {len(a)})")
         masked = np.ma.masked_invalid(h)
-        mesh = ax.pcolormesh(a, b, masked, shading="nearest", cmap="viridis",
-                             rasterized=True)
+        mesh = ax.pcolormesh(a, b, masked, shading="nearest", cmap="viridis", rasterized=True)
         label = "h(a, b)" + (" (max over degrees)" if degree is None else f" (degree {degree})")
         fig.colorbar(mesh, ax=ax, label=label, shrink=0.9)
         ax.set_xlim(a.min(), a.max())
@@ -530,15 +605,19 @@ def landscape_figure(distance: dict[str, Any], geojson: dict[str, Any] | None = 
         if n_bad:
             title += f"; {plural(n_bad, 'non-finite cell')} left blank"
     else:
-        title += " (no landscape stored)"
+        title += " (no samples stored)"
         if window:
             ax.set_xlim(*nums(window.get("a", [0, 1]))[:2])
             ax.set_ylim(*nums(window.get("b", [0, 1]))[:2])
     handles: list[Any] = []
     over = "white" if land else "0.25"
     if geojson:
-        _draw_special(ax, _features(None, geojson), thin=True, mono=over)
-        handles.append(Line2D([], [], color=over, lw=0.8, label="special set"))
+        feats = _features(None, geojson)
+        _draw_special(ax, feats, thin=True, mono=over)
+        if any(f["kind"] == "patch" for f in feats):
+            handles.append(Patch(fc="0.55", ec=over, hatch="//", label="patch (hatched outline)"))
+        if any(f["kind"] != "patch" for f in feats) or feats:
+            handles.append(Line2D([], [], color="0.55", lw=0.8, label="special set: tie curves"))
     at = distance.get("at")
     if at is not None and len(at) >= 2:
         value = distance.get("value")
@@ -548,36 +627,55 @@ def landscape_figure(distance: dict[str, Any], geojson: dict[str, Any] | None = 
         ax.plot([num(at[0])], [num(at[1])], "*", ms=16, color="#ff3b3b", mec="black", mew=0.8, zorder=6)
         handles.append(Line2D([], [], marker="*", ls="", ms=12, color="#ff3b3b", mec="black",
                               label=f"maximum {fmt(value)} at (a, b) = ({fmt(at[0], 3)}, {fmt(at[1], 3)})"))
-    ax.axvline(0.5, color="0.85", ls=":", lw=0.8)
+    ax.axvline(0.5, color="0.85" if land else "0.35", ls=":", lw=1.0)
+    handles.append(Line2D([], [], color="0.45", ls=":", lw=1.0, label="a = 1/2 (slope-one lines)"))
     ax.set_xlabel("a")
     ax.set_ylabel("b")
     ax.set_title(title, fontsize=10)
-    if handles:
-        leg = ax.legend(handles=handles, fontsize=LEGEND_SIZE, loc="upper center", bbox_to_anchor=(0.5, -0.12),
-                        ncol=2, frameon=True, facecolor="0.55" if land else "white")
-        for t in leg.get_texts():
-            t.set_color("white" if land else "black")
+    ax.legend(handles=handles, fontsize=LEGEND_SIZE, loc="upper center", bbox_to_anchor=(0.5, -0.12),
+              ncol=2, frameon=True, facecolor="white", edgecolor="0.7")
     return fig
 
 
 # -- perturbations ------------------------------------------------------------
+STRIP_MAX = 40
+"""Up to this many runs a distribution is drawn as a strip of dots (one per run), not a histogram."""
+
+
 def _hist(ax: Any, values: np.ndarray, xlabel: str, base: float | None = None) -> None:
+    """One distribution over runs: a sentence when all runs agree, dots for a few runs, else a histogram."""
     finite = values[np.isfinite(values)]
     n_bad = len(values) - len(finite)
     notes = [f"{n_bad} non-finite omitted"] if n_bad else []
-    if len(finite):
+    if len(finite) and np.ptp(finite) == 0:
+        ax.text(0.5, 0.5, f"all {plural(len(finite), 'run')}: {fmt(finite[0], 3)}", ha="center", va="center",
+                transform=ax.transAxes, fontsize=10)
+        ax.set_yticks([])
+        ax.set_xticks([])
+        ax.set_xlabel(xlabel + (f"\n({'; '.join(notes)})" if notes else ""))
+        if base is not None and math.isfinite(base):
+            ax.text(0.5, 0.3, f"unperturbed: {fmt(base, 3)}", ha="center", va="center", transform=ax.transAxes,
+                    fontsize=9, color="#c0392b")
+        return
+    if len(finite) and len(finite) <= STRIP_MAX:
+        jitter = np.random.default_rng(0).uniform(-0.25, 0.25, len(finite))
+        ax.plot(finite, jitter, "o", color="#4a7fb5", ms=5, alpha=0.8, ls="")
+        ax.set_ylim(-1, 1)
+        ax.set_yticks([])
+        ax.set_ylabel(f"{plural(len(finite), 'run')} (one dot each)")
+    elif len(finite):
         bins = min(30, max(5, int(np.sqrt(len(finite)))))
         ax.hist(finite, bins=bins, color="#4a7fb5", edgecolor="white")
-        if np.ptp(finite) == 0:
-            notes.append(f"all {len(finite)} values are {fmt(finite[0], 3)}")
+        ax.yaxis.set_major_locator(MaxNLocator(integer=True))
+        ax.set_ylabel("runs")
     else:
         ax.text(0.5, 0.5, "no finite values recorded" if len(values) else "no run records", ha="center",
                 va="center", transform=ax.transAxes, fontsize=9, bbox={"fc": "white", "ec": "none"}, zorder=5)
+        ax.set_ylabel("runs")
     if base is not None and math.isfinite(base):
         ax.axvline(base, color="#c0392b", ls="--", lw=1.2, label=f"unperturbed: {fmt(base, 3)}")
         ax.legend(fontsize=LEGEND_SIZE, loc="upper right")
     ax.set_xlabel(xlabel + (f"\n({'; '.join(notes)})" if notes else ""))
-    ax.set_ylabel("runs")
 
 
 def perturb_figure(summary: dict[str, Any], runs: list[dict[str, Any]], *,
@@ -611,8 +709,8 @@ def perturb_figure(summary: dict[str, Any], runs: list[dict[str, Any]], *,
     base = summary.get("base") or {}
     _hist(ax_area, area, "total patch area", num(base.get("total_area")))
     ax_area.set_title(f"Patch area over {plural(len(runs), 'run')}", fontsize=10)
-    _hist(ax_haus, haus, "Hausdorff distance to the unperturbed set")
-    ax_haus.set_title(f"Movement of the special set (size {fmt(summary.get('size'), 3)})", fontsize=10)
+    _hist(ax_haus, haus, "Hausdorff distance to the unperturbed set\n(includes a patch that vanished)")
+    ax_haus.set_title(f"Hausdorff distance to the base set (size {fmt(summary.get('size'), 3)})", fontsize=10)
     if sweep:
         ax = fig.add_subplot(gs[1, :])
         size = nums([s.get("size") for s in sweep])

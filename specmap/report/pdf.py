@@ -9,7 +9,7 @@ Pages, each present only when its stage was run:
    command lines, and which stages were run (a missing stage says "not run");
 2. grids -- both extended Pareto grids;
 3. special set -- the map and a component table;
-4. matching distance -- landscape, value per degree, where it is reached, audits;
+4. matching distance -- h over the strip (distance_map.png), value per degree, where it is reached, audits;
 5. perturbations -- distributions, runs with a patch, size sweep, verdict;
 6. findings -- plain sentences (:func:`specmap.report.findings.findings`);
 7. methods appendix -- definitions, references, tolerances, caution.
@@ -31,8 +31,8 @@ from specmap.errors import ResultsError
 from specmap.io import check_out_dir
 from specmap.report.figures import (
     clip_bbox,
+    distance_map_figure,
     grids_figure,
-    landscape_figure,
     perturb_figure,
     save_png,
     special_figure,
@@ -95,12 +95,68 @@ def _short_value(v: Any) -> str:
     """One value of a free-form dict, kept short (nested values are only counted)."""
     if isinstance(v, bool) or v is None:
         return str(v)
-    if isinstance(v, (int, float)):
+    if isinstance(v, int):
+        return str(v)
+    if isinstance(v, float):
         return fmt(v)
     if isinstance(v, (dict, list)):
         return f"({len(v)} {'entries' if isinstance(v, dict) else 'items'})"
     text = str(v)
     return text if len(text) <= 40 else text[:37] + "..."
+
+
+INDEX_NAMES = {0: "min", 1: "saddle", 2: "max"}
+
+
+def _count_phrase(counts: dict[str, Any]) -> str:
+    return ", ".join(f"{k} {_short_value(v)}" for k, v in counts.items())
+
+
+def summarise_meta(meta: Any) -> str:
+    """A grid's ``meta`` in words: critical points by index, hygiene counts, notes in full.
+
+    Examples
+    --------
+    >>> summarise_meta({"critical_points": {"f1": [{"index": 0}, {"index": 2}]}, "note": "two half-lines"})
+    'critical points: f1 min 1, max 1; note: two half-lines'
+    >>> summarise_meta({"mesh_hygiene": {"loose_vertices": 0, "components": 1}, "vertices": 2562})
+    'mesh hygiene: nothing to repair, 1 component; vertices 2562'
+    """
+    if not isinstance(meta, dict) or not meta:
+        return "none"
+    parts = []
+    for key, v in meta.items():
+        name = key.replace("_", " ")
+        if key == "critical_points" and isinstance(v, dict):
+            per = []
+            for fn, pts in v.items():
+                if isinstance(pts, list):
+                    idx: dict[str, int] = {}
+                    for p in pts:
+                        i = p.get("index") if isinstance(p, dict) else None
+                        label = INDEX_NAMES.get(i, f"index {i}") if isinstance(i, int) else "unknown index"
+                        idx[label] = idx.get(label, 0) + 1
+                    per.append(f"{fn} " + (", ".join(f"{k} {n}" for k, n in idx.items()) if idx else "none"))
+            parts.append(f"{name}: " + "; ".join(per))
+        elif key == "mesh_hygiene" and isinstance(v, dict):
+            comps = v.get("components")
+            repairs = {k: n for k, n in v.items() if k != "components" and isinstance(n, (int, float)) and n}
+            text = ("repaired " + _count_phrase({k.replace("_", " "): n for k, n in repairs.items()})
+                    if repairs else "nothing to repair")
+            if comps is not None:
+                text += f", {plural(int(num(comps)), 'component')}"
+            parts.append(f"{name}: {text}")
+        elif isinstance(v, dict) and all(isinstance(x, dict) for x in v.values()):
+            parts.append(f"{name}: " + "; ".join(f"{k} {_count_phrase(x)}" for k, x in v.items()))
+        elif isinstance(v, dict):
+            parts.append(f"{name}: {_count_phrase(v)}")
+        elif isinstance(v, list):
+            parts.append(f"{name}: {plural(len(v), 'item')}")
+        elif isinstance(v, str):
+            parts.append(f"{name}: {v}")  # notes in full; the paragraph wraps them
+        else:
+            parts.append(f"{name} {_short_value(v)}")
+    return "; ".join(parts)
 
 
 def _short_dict(d: Any, limit: int = 8) -> str:
@@ -169,6 +225,9 @@ def _cover(pg: Pager, res: dict[str, Any]) -> None:
     pg.heading("Shapes and maps")
     pg.field("f", _describe_shape(st.get("f")))
     pg.field("g", _describe_shape(st.get("g")))
+    consts = st.get("constants") or {}
+    if isinstance(consts, dict) and consts:
+        pg.field("Constants", ", ".join(f"{k} = {_short_value(v)}" for k, v in consts.items()))
     win = st.get("window") or {}
     pg.field("Window", f"a in {fmt_interval(win.get('a'))}, b in {fmt_interval(win.get('b'))}")
     pg.heading("Stages")
@@ -209,8 +268,10 @@ def _cover(pg: Pager, res: dict[str, Any]) -> None:
 
 def _grids_page(pg: Pager, res: dict[str, Any]) -> None:
     sub = pg.page("Extended Pareto grids", 0.6)
-    _draw("grids", "grid_f.json / grid_g.json", lambda: grids_figure(res.get("grid_f"), res.get("grid_g"),
-                                                                        fig=sub))
+    at = (res.get("distance") or {}).get("at")
+    _draw("grids", "grid_f.json / grid_g.json",
+          lambda: grids_figure(res.get("grid_f"), res.get("grid_g"), fig=sub, line=at,
+                               line_label="line r(a, b) where D is reached" if at else None))
     for name in ("f", "g"):
         grid = res.get(f"grid_{name}")
         if grid is None:
@@ -220,10 +281,11 @@ def _grids_page(pg: Pager, res: dict[str, Any]) -> None:
         pg.para(f"Grid {name}: {len(kinds)} contours ({kinds.count('proper')} proper, "
                 f"{kinds.count('vertical')} vertical, {kinds.count('horizontal')} horizontal); route "
                 f"{grid.get('route', 'n/a')}; tolerance {fmt(grid.get('tolerance'), 3)}; "
-                f"meta: {_short_dict(grid.get('meta'))}.")
+                f"{summarise_meta(grid.get('meta'))}.")
     pg.para("Solid: proper contours (images of the Pareto critical set). Dashed: improper contours, "
-            "half-lines from a critical value, drawn from their start (o) to the plot edge (arrow head).",
-            8.5, color="0.3")
+            "half-lines from a critical value, drawn from their start (o) to the plot edge (arrow head). "
+            "Labels are the contour ids used in the special set's tie lists (f:p0 = proper contour 0 of f, "
+            "v vertical, h horizontal).", 8.5, color="0.3")
 
 
 def _component_rows(comps: list[dict[str, Any]]) -> list[dict[str, Any]]:
@@ -303,7 +365,7 @@ def _distance_page(pg: Pager, res: dict[str, Any]) -> None:
     st = res["study"]
     sub = pg.page("Matching distance", 0.5)
     _draw("distance", "distance.json",
-          lambda: landscape_figure(d, res.get("geojson"), window=st.get("window"), fig=sub))
+          lambda: distance_map_figure(d, res.get("geojson"), window=st.get("window"), fig=sub))
     pg.para(f"Matching distance D = {fmt(d.get('value'))}, reached on {d.get('reached_on', 'n/a')} at "
             f"(a, b) = {fmt_point(d.get('at'))}"
             + (f", component {d['component']}" if d.get("component") is not None else "")
@@ -326,8 +388,8 @@ def _distance_page(pg: Pager, res: dict[str, Any]) -> None:
         pg.para("Dense sweep: not run.")
     if red:
         pg.para(f"Reduced search: {fmt(red.get('value'))} at {fmt_point(red.get('at'))}; "
-                f"{red.get('lines', 'n/a')} lines in {fmt(red.get('seconds'), 3)} s; pruned: "
-                f"{_short_dict(red.get('pruned'))}.")
+                f"{red.get('lines', 'n/a')} lines in {fmt(red.get('seconds'), 3)} s (its pruning counters are "
+                "in the appendix table of search statistics).")
     else:
         pg.para("Reduced search: not run.")
     pg.heading("Audits")
@@ -384,6 +446,38 @@ def _findings_page(pg: Pager, res: dict[str, Any]) -> None:
         else:
             pg.para(f"{i}. {sentence}")
         pg.gap(0.4)
+
+
+def _stat_rows(d: Any, prefix: str = "") -> list[tuple[str, str]]:
+    rows: list[tuple[str, str]] = []
+    for k, v in (d or {}).items():
+        if isinstance(v, dict):
+            rows.extend(_stat_rows(v, f"{prefix}{k}."))
+        elif isinstance(v, list):
+            rows.append((prefix + k, ", ".join(_short_value(x) for x in v[:4]) + (" ..." if len(v) > 4 else "")))
+        else:
+            rows.append((prefix + k, _short_value(v)))
+    return rows
+
+
+def _statistics_page(pg: Pager, res: dict[str, Any]) -> None:
+    """Appendix: the search counters (developer detail, kept out of the result pages)."""
+    sp, d = res.get("special"), res.get("distance")
+    red = (d or {}).get("reduced") or {}
+    tables = [("Special-set search (special.json stats)", (sp or {}).get("stats")),
+              ("Reduced search: pruning counters (distance.json reduced.pruned)", red.get("pruned")),
+              ("Reduced search: slope-one branch and bound (reduced.slope_search)", red.get("slope_search")),
+              ("Reduced search: settings (reduced.settings)", red.get("settings"))]
+    tables = [(t, v) for t, v in tables if v]
+    if not tables:
+        return
+    pg.page("Appendix: search statistics")
+    pg.para("Counters of the searches, for whoever checks or tunes them; the result pages do not need them.",
+            8.5, color="0.3")
+    for title, data in tables:
+        pg.heading(title)
+        for key, value in _stat_rows(data):
+            pg.mono(f"{key:<42}{value:>20}")
 
 
 METHODS = [
@@ -493,7 +587,7 @@ def build_report(result_dir: str | Path, out_pdf: str | Path | None = None, *,
     -------
     Path
         The PDF written. PNG figures go to ``<result_dir>/figures/`` (``grids.png``,
-        ``special.png``, ``landscape.png``, ``perturb.png``, one per stage run).
+        ``special.png``, ``distance_map.png``, ``perturb.png``, one per stage run).
 
     Raises
     ------
@@ -521,8 +615,8 @@ def build_report(result_dir: str | Path, out_pdf: str | Path | None = None, *,
                        lambda: _special_figure(res)), figs / "special.png")
     if stages["distance"]:
         save_png(_draw("distance", str(root / "distance.json"),
-                       lambda: landscape_figure(res["distance"], res.get("geojson"),
-                                                window=res["study"].get("window"))), figs / "landscape.png")
+                       lambda: distance_map_figure(res["distance"], res.get("geojson"),
+                                                window=res["study"].get("window"))), figs / "distance_map.png")
     if stages["perturb"]:
         save_png(_draw("perturb", str(root / "perturb" / "summary.json"),
                        lambda: perturb_figure(res["perturb"]["summary"], res["perturb"]["runs"])),
@@ -544,6 +638,7 @@ def build_report(result_dir: str | Path, out_pdf: str | Path | None = None, *,
                 _perturb_page(pg, res)
             _findings_page(pg, res)
             _methods_page(pg, res)
+            _statistics_page(pg, res)
             pg.close()
         tmp.replace(out)
     except BaseException:
