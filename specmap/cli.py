@@ -1,4 +1,4 @@
-"""Command line: ``specmap grid|map|distance|perturb|report|demo``.
+"""Command line: ``specmap grid|map|distance|perturb|report|explore|demo``.
 
 The CLI only loads, calls and writes. User mistakes become one line on
 standard error and exit status 2; Ctrl-C exits 130 and keeps finished files.
@@ -100,6 +100,12 @@ def build_parser() -> argparse.ArgumentParser:
     sp.add_argument("dir", help="result folder")
     sp.add_argument("--out", help="PDF path (default DIR/report.pdf); an existing file needs --force")
     sp.add_argument("--force", action="store_true", help="overwrite an existing file given as --out")
+    sp = sub.add_parser("explore", help="write DIR/explore.html, an offline page to explore a result folder",
+                        description="write one self-contained HTML page (no server, no network) showing the "
+                        "special set, the grids and h(a, b) of a result folder")
+    add_quiet(sp)
+    sp.add_argument("dir", help="result folder (with special.json; grid files and distance.json add to the page)")
+    sp.add_argument("--out", help="HTML path (default DIR/explore.html)")
     sp = sub.add_parser("demo", help="run the shipped demo study end to end")
     add_quiet(sp)
     sp.add_argument("--out", help="result folder (default results/demo)")
@@ -178,6 +184,12 @@ def run(argv: list[str] | None = None) -> int:
 
         pdf = build_report(args.dir, args.out, overwrite=args.force or args.out is None)
         print(f"report: {pdf}")
+        return 0
+    if args.verb == "explore":
+        from specmap.explore import build_explorer
+
+        page = build_explorer(args.dir, args.out)
+        print(f"explorer: {page} ({page.stat().st_size / 1e6:.1f} MB, opens from disk with no network)")
         return 0
     compile_notice(args.verb, show)
     if args.verb == "demo":

@@ -1,0 +1,135 @@
+"""The explorer's data: the result files of a folder, thinned and labelled for the page.
+
+Everything comes from the result files (grid_f.json, grid_g.json, special.json,
+special.geojson, distance.json); nothing is recomputed except which tie each curve
+belongs to (:func:`specmap.report.ties.index_ties`, evaluated from the grid files).
+Polylines are thinned to a point budget so that the page stays small and fast; the
+thinning keeps end points and takes every k-th vertex.
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Any
+
+import numpy as np
+
+from specmap.report.figures import distance_map_samples
+from specmap.report.fmt import num, nums
+from specmap.report.ties import TieIndex, family, index_ties
+
+CURVE_POINTS = 120_000
+"""Budget of curve vertices over the whole special set."""
+CONTOUR_POINTS = 600
+"""Most vertices kept per proper contour."""
+PATCH_POINTS = 4_000
+"""Most vertices kept per patch ring."""
+DIGITS = 6
+"""Significant digits written for coordinates."""
+
+
+def _thin(xy: np.ndarray, most: int) -> np.ndarray:
+    """Every k-th vertex (ends kept) so that at most ``most`` remain."""
+    if len(xy) <= most or most < 2:
+        return xy
+    idx = np.unique(np.concatenate([np.linspace(0, len(xy) - 1, most).round().astype(int), [len(xy) - 1]]))
+    return xy[idx]
+
+
+def _round(x: Any) -> Any:
+    """Plain floats with DIGITS significant digits (None for non-finite values)."""
+    arr = np.asarray(x, dtype=float)
+    out = np.where(np.isfinite(arr), arr, np.nan)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        mag = np.where(out != 0, np.floor(np.log10(np.abs(out))), 0)
+    dec = np.clip(DIGITS - 1 - np.nan_to_num(mag), 0, 15).astype(int)
+    flat = [None if not math.isfinite(v) else round(float(v), int(d)) for v, d in zip(out.ravel(), dec.ravel(),
+                                                                                      strict=True)]
+    return np.array(flat, dtype=object).reshape(arr.shape).tolist()
+
+
+def _grid(grid: dict[str, Any] | None) -> list[dict[str, Any]]:
+    out = []
+    for c in (grid or {}).get("contours", []):
+        kind = c.get("kind")
+        if kind == "proper":
+            pts = nums(c.get("points", [])).reshape(-1, 2)
+            out.append({"id": str(c.get("id")), "kind": kind, "points": _round(_thin(pts, CONTOUR_POINTS))})
+        elif kind in ("vertical", "horizontal"):
+            out.append({"id": str(c.get("id")), "kind": kind, "start": _round(nums(c.get("start"))[:2])})
+    return out
+
+
+def _tie_json(t: dict[str, Any]) -> dict[str, Any]:
+    return {"pairs": [[str(x) for x in p] for p in t.get("pairs") or []], "condition": t.get("condition"),
+            "family": family(t)}
+
+
+def explorer_data(res: dict[str, Any], index: TieIndex | None = None) -> dict[str, Any]:
+    """The JSON payload of the explorer page.
+
+    Parameters
+    ----------
+    res : dict
+        :func:`specmap.report.load.load_results` of a result folder.
+    index : TieIndex, optional
+        A precomputed :func:`specmap.report.ties.index_ties`.
+
+    Returns
+    -------
+    dict
+        ``study``, ``window``, ``grids`` {f, g: contours}, ``components`` (id, kind, area,
+        ties, patch_ties), ``patches`` (component, ring, ties), ``curves`` (component,
+        family, ties, xy), ``families``, ``distance`` (value, at, reached_on, tolerance,
+        by_degree, samples {a, b, h, by_degree} or None), ``tolerance`` (special set).
+    """
+    sp = res.get("special") or {}
+    st = res.get("study") or {}
+    win = sp.get("window") or st.get("window") or {"a": [0.02, 0.98], "b": [-1.0, 1.0]}
+    ix = index if index is not None else index_ties(sp, res.get("geojson"), res.get("grid_f"), res.get("grid_g"))
+    comps = []
+    for c in sp.get("components") or []:
+        cid = str(c.get("id"))
+        comps.append({"id": cid, "kind": c.get("kind"), "area": num(c.get("area")),
+                      "ties": [_tie_json(t) for t in c.get("ties") or [] if isinstance(t, dict)],
+                      "patch_ties": ix.patch_ties.get(cid, [])})
+    patches = []
+    for cid, polys in ix.polygons.items():
+        per = ix.polygon_ties.get(cid, [[] for _ in polys])
+        for poly, ties in zip(polys, per, strict=False):
+            ring = _thin(np.asarray(poly.exterior.coords)[:, :2], PATCH_POINTS)
+            patches.append({"component": cid, "ring": _round(ring), "ties": ties})
+    total = sum(len(c.xy) for c in ix.curves) or 1
+    keep = max(2, int(CURVE_POINTS * 1.0 / max(len(ix.curves), 1))) if total > CURVE_POINTS else None
+    curves = [{"component": c.component, "family": c.family, "ties": list(c.ties),
+               "xy": _round(_thin(c.xy, keep) if keep else c.xy)} for c in ix.curves]
+    fams: dict[str, int] = {}
+    for c in ix.curves:
+        fams[c.family] = fams.get(c.family, 0) + 1
+    d = res.get("distance")
+    dist = None
+    if d:
+        samples = distance_map_samples(d)
+        dist = {"value": num(d.get("value")), "at": _round(nums(d.get("at"))[:2]) if d.get("at") else None,
+                "reached_on": d.get("reached_on"), "tolerance": num(d.get("tolerance")),
+                "by_degree": {str(k): {"value": num((v or {}).get("value")),
+                                       "at": _round(nums((v or {}).get("at"))[:2]) if (v or {}).get("at") else None}
+                              for k, v in (d.get("by_degree") or {}).items()},
+                "samples": None}
+        if samples:
+            dist["samples"] = {"a": _round(nums(samples.get("a"))), "b": _round(nums(samples.get("b"))),
+                               "h": _round(nums(samples.get("h"))),
+                               "by_degree": {str(k): _round(nums(v))
+                                             for k, v in (samples.get("by_degree") or {}).items()}}
+    return {
+        "study": str(st.get("name", "")),
+        "window": {"a": _round(nums(win.get("a"))[:2]), "b": _round(nums(win.get("b"))[:2])},
+        "tolerance": num(sp.get("tolerance")),
+        "grids": {"f": _grid(res.get("grid_f")), "g": _grid(res.get("grid_g"))},
+        "components": comps,
+        "patches": patches,
+        "curves": curves,
+        "families": sorted(fams, key=lambda k: -fams[k]),
+        "labelled": ix.labelled,
+        "distance": dist,
+    }

@@ -1,0 +1,279 @@
+"""The explorer page: HTML, a little CSS and the DOM glue around plotly.js (inlined).
+
+The charts (zoom, pan, traces) are plotly.js, the minified bundle the ``plotly``
+Python package ships, inlined into the page so that it opens from disk with no
+network. The glue below only converts pointer pixels to (a, b) with plotly's own
+axis functions, interpolates h, intersects the line r(a, b) with the contours
+(push coordinates, math.md section 2) and writes the panels.
+
+Element ids the tests read: ``here-ab``, ``here-h``, ``here-line``, ``here-ties``,
+``comp-ties``; ``window.explorerReady`` is true once both charts are drawn, and
+``window.explorer`` exposes ``update(a, b)``, ``select(a, b)`` and ``toClient(a, b)``.
+"""
+
+from __future__ import annotations
+
+TEMPLATE = """<!DOCTYPE html>
+<html lang="en">
+<head>
+<meta charset="utf-8">
+<title>specmap explorer: __TITLE__</title>
+<style>
+  body { font-family: "DejaVu Sans", Arial, sans-serif; margin: 12px 16px; color: #222; font-size: 14px; }
+  h1 { font-size: 19px; margin: 0 0 4px 0; }
+  .sub { color: #555; margin-bottom: 8px; }
+  #charts { display: flex; gap: 10px; }
+  #strip { flex: 58; height: 640px; border: 1px solid #ddd; position: relative; }
+  #grids { flex: 42; height: 640px; border: 1px solid #ddd; }
+  #cross { position: absolute; width: 13px; height: 13px; margin: -8px 0 0 -8px; border: 2px solid #c2185b;
+           border-radius: 50%; pointer-events: none; display: none; z-index: 10; }
+  #panels { display: flex; gap: 14px; margin-top: 10px; }
+  section { flex: 1; border: 1px solid #ddd; padding: 8px 10px; min-height: 130px; }
+  section h2 { font-size: 15px; margin: 0 0 6px 0; }
+  .mono { font-family: "DejaVu Sans Mono", monospace; font-size: 12.5px; }
+  .tie { margin: 2px 0; }
+  .held { color: #1b6e3c; }
+  .muted { color: #666; }
+  #comp-ties { max-height: 260px; overflow-y: auto; }
+</style>
+<script>__PLOTLY__</script>
+</head>
+<body>
+<h1>specmap explorer: __TITLE__</h1>
+<div class="sub" id="headline"></div>
+<div id="charts"><div id="strip"></div><div id="grids"></div></div>
+<div id="panels">
+  <section><h2>At the pointer</h2>
+    <div id="here-ab" class="mono">move the pointer over the strip</div>
+    <div id="here-h" class="mono"></div>
+    <div id="here-line" class="mono"></div>
+    <div id="here-ties"></div>
+  </section>
+  <section><h2>Clicked component</h2><div id="comp-ties" class="muted">click the strip to list the ties of
+    the component there (a patch containing the point, else the nearest tie curve)</div></section>
+  <section><h2>Not in this page</h2><div class="muted" id="notes">Slice diagrams and the optimal matching on a
+    line need the meshes of f and g, which the result folder does not hold; compute them with specmap
+    distance. h(a, b) here is interpolated from the dense sweep's samples in distance.json.</div></section>
+</div>
+<script type="application/json" id="data">__DATA__</script>
+<script>
+"use strict";
+const DATA = JSON.parse(document.getElementById("data").textContent);
+const COLOURS = ["#1f77b4", "#d62728", "#2ca02c", "#9467bd", "#ff7f0e", "#17becf", "#8c564b"];
+const GRID_COLOURS = {f: "#1f5fa8", g: "#d9730d"};
+const W = DATA.window;
+const fmt = (x, d) => (x === null || x === undefined || !isFinite(x)) ? "n/a" : Number(x).toPrecision(d || 4)
+  .replace(/(\\.\\d*?)0+(e|$)/, "$1$2").replace(/\\.(e|$)/, "$1");
+const esc = s => String(s).replace(/[&<>]/g, c => ({"&": "&amp;", "<": "&lt;", ">": "&gt;"}[c]));
+function famColour(f) { const i = DATA.families.indexOf(f); return (i >= 0 && i < COLOURS.length) ? COLOURS[i] : "#8a8a8a"; }
+function tieText(t) {
+  const p = t.pairs.map(q => q.join(" - "));
+  return t.condition === "half" ? "|" + p[0] + "| = 2 |" + p[1] + "|" : "|" + p[0] + "| = |" + p[1] + "|";
+}
+const contours = {};
+for (const g of ["f", "g"]) for (const c of DATA.grids[g]) contours[c.id] = Object.assign({grid: g}, c);
+const comps = {};
+for (const c of DATA.components) comps[c.id] = c;
+
+// -- value-plane extent (for half-lines) ------------------------------------------------------
+let lo = [Infinity, Infinity], hi = [-Infinity, -Infinity];
+for (const id in contours) {
+  const c = contours[id], pts = c.kind === "proper" ? c.points : [c.start];
+  for (const p of pts) for (const k of [0, 1]) { lo[k] = Math.min(lo[k], p[k]); hi[k] = Math.max(hi[k], p[k]); }
+}
+if (!isFinite(lo[0])) { lo = [0, 0]; hi = [1, 1]; }
+const span = [Math.max(hi[0] - lo[0], 1e-9), Math.max(hi[1] - lo[1], 1e-9)];
+const X0 = lo[0] - 0.08 * span[0], X1 = hi[0] + 0.12 * span[0], Y0 = lo[1] - 0.08 * span[1], Y1 = hi[1] + 0.12 * span[1];
+function contourXY(c) {
+  if (c.kind === "proper") return [c.points.map(p => p[0]), c.points.map(p => p[1])];
+  if (c.kind === "vertical") return [[c.start[0], c.start[0]], [c.start[1], Y1]];
+  return [[c.start[0], X1], [c.start[1], c.start[1]]];
+}
+
+// -- the strip ----------------------------------------------------------------------------------
+const stripTraces = [];
+DATA.patches.forEach((p, i) => stripTraces.push({type: "scatter", mode: "lines", x: p.ring.map(q => q[0]),
+  y: p.ring.map(q => q[1]), fill: "toself", fillcolor: "rgba(159,216,181,0.55)", line: {color: "#1b6e3c", width: 1.2},
+  name: "patches", legendgroup: "patch", showlegend: i === 0, hoverinfo: "skip"}));
+const byFam = {};
+for (const c of DATA.curves) { (byFam[c.family] = byFam[c.family] || []).push(c); }
+for (const f of DATA.families) {
+  const x = [], y = [];
+  for (const c of byFam[f] || []) { for (const q of c.xy) { x.push(q[0]); y.push(q[1]); } x.push(null); y.push(null); }
+  const n = (byFam[f] || []).length;
+  stripTraces.push({type: "scatter", mode: "lines", x: x, y: y, name: f + " (" + n + ")", hoverinfo: "skip",
+    line: {color: famColour(f), width: 1}, opacity: Math.min(1, Math.max(0.12, 25 / Math.max(n, 1)))});
+}
+stripTraces.push({type: "scatter", mode: "lines", x: [0.5, 0.5], y: W.b, name: "a = 1/2", hoverinfo: "skip",
+  line: {color: "#555", width: 1, dash: "dot"}});
+const D = DATA.distance;
+if (D && D.at) stripTraces.push({type: "scatter", mode: "markers", x: [D.at[0]], y: [D.at[1]], hoverinfo: "skip",
+  name: "D = " + fmt(D.value) + " reached here", marker: {symbol: "star", size: 16, color: "#ff3b3b",
+  line: {color: "black", width: 1}}});
+const stripLayout = {margin: {l: 55, r: 10, t: 30, b: 40}, title: {text: "special set in the strip (scroll to zoom, drag to pan)", font: {size: 13}, x: 0.01, xanchor: "left"},
+  xaxis: {range: W.a, title: {text: "a"}, zeroline: false}, yaxis: {range: W.b, title: {text: "b"}, zeroline: false},
+  dragmode: "pan", hovermode: false, showlegend: true,
+  legend: {font: {size: 10}, orientation: "h", x: 0, y: -0.12, yanchor: "top", bgcolor: "rgba(255,255,255,0.8)"}};
+
+// -- the grids ----------------------------------------------------------------------------------
+const gridTraces = [];
+const seen = {f: {}, g: {}};
+for (const id in contours) {
+  const c = contours[id], xy = contourXY(c), g = c.grid, key = c.kind === "proper" ? "proper" : "half-lines";
+  gridTraces.push({type: "scatter", mode: "lines", x: xy[0], y: xy[1], name: "grid " + g + " " + key,
+    legendgroup: g + key, showlegend: !seen[g][key], hoverinfo: "text", text: id,
+    line: {color: GRID_COLOURS[g], width: c.kind === "proper" ? 1.8 : 1.2, dash: c.kind === "proper" ? "solid" : "dash"}});
+  seen[g][key] = true;
+}
+const HL = gridTraces.length, LINE = HL + 1, MEET = HL + 2;
+gridTraces.push({type: "scatter", mode: "lines", x: [], y: [], name: "contours of the ties here",
+  line: {color: "#111", width: 4}, opacity: 0.55, hoverinfo: "skip"});
+gridTraces.push({type: "scatter", mode: "lines", x: [], y: [], name: "line r(a, b)", line: {color: "#c2185b", width: 2},
+  hoverinfo: "skip"});
+gridTraces.push({type: "scatter", mode: "markers+text", x: [], y: [], text: [], textposition: "top right",
+  name: "where r(a, b) meets a contour", marker: {color: "#c2185b", size: 7}, textfont: {size: 10}, hoverinfo: "skip"});
+const gridLayout = {margin: {l: 55, r: 10, t: 30, b: 40}, title: {text: "extended Pareto grids and the line r(a, b)", font: {size: 13}, x: 0.01, xanchor: "left"},
+  xaxis: {range: [X0, X1], title: {text: "f1 / g1"}, zeroline: false}, yaxis: {range: [Y0, Y1], title: {text: "f2 / g2"},
+  zeroline: false}, dragmode: "pan", showlegend: true,
+  legend: {font: {size: 10}, orientation: "h", x: 0, y: -0.12, yanchor: "top", bgcolor: "rgba(255,255,255,0.8)"}};
+
+// -- geometry helpers ---------------------------------------------------------------------------
+function lineParameter(c, a, b) {
+  // s where r(a, b) = {s (a, 1 - a) + (b, -b)} meets contour c, or null (math.md sections 2 and 4)
+  if (c.kind === "vertical") { const s = (c.start[0] - b) / a; return ((1 - a) * s - b >= c.start[1]) ? s : null; }
+  if (c.kind === "horizontal") { const s = (c.start[1] + b) / (1 - a); return (a * s + b >= c.start[0]) ? s : null; }
+  const P = c.points, G = p => (1 - a) * (p[0] - b) - a * (p[1] + b);
+  for (let i = 0; i + 1 < P.length; i++) {
+    const g0 = G(P[i]), g1 = G(P[i + 1]);
+    if (g0 === 0) return (P[i][0] - b) / a;
+    if (g0 * g1 < 0 || g1 === 0) { const t = g0 / (g0 - g1), x = P[i][0] + t * (P[i + 1][0] - P[i][0]); return (x - b) / a; }
+  }
+  return null;
+}
+function inRing(ring, a, b) {
+  let inside = false;
+  for (let i = 0, j = ring.length - 1; i < ring.length; j = i++) {
+    const xi = ring[i][0], yi = ring[i][1], xj = ring[j][0], yj = ring[j][1];
+    if (((yi > b) !== (yj > b)) && (a < (xj - xi) * (b - yi) / (yj - yi) + xi)) inside = !inside;
+  }
+  return inside;
+}
+// bucket grid over curve vertices, for the nearest tie curve
+const NB = 64, bucket = new Map(), sa = W.a[1] - W.a[0], sb = W.b[1] - W.b[0];
+const cellOf = (a, b) => [Math.floor((a - W.a[0]) / sa * NB), Math.floor((b - W.b[0]) / sb * NB)];
+DATA.curves.forEach((c, ci) => c.xy.forEach(q => { const k = cellOf(q[0], q[1]).join(","); if (!bucket.has(k)) bucket.set(k, []);
+  bucket.get(k).push(ci, q[0], q[1]); }));
+function nearestCurve(a, b, radius) {
+  const [i0, j0] = cellOf(a, b), r = Math.ceil(radius * NB) + 1;
+  let best = null, bd = Infinity;
+  for (let i = i0 - r; i <= i0 + r; i++) for (let j = j0 - r; j <= j0 + r; j++) {
+    const arr = bucket.get(i + "," + j); if (!arr) continue;
+    for (let k = 0; k < arr.length; k += 3) {
+      const d = Math.hypot((arr[k + 1] - a) / sa, (arr[k + 2] - b) / sb);
+      if (d < bd) { bd = d; best = arr[k]; }
+    }
+  }
+  return bd <= radius ? {curve: best, distance: bd} : null;
+}
+function interpolate(S, H, a, b) {
+  // bilinear interpolation of samples H[j][i] at (A[i], B[j])
+  if (!S || !H) return null;
+  const A = S.a, B = S.b;
+  const find = (v, x) => { if (x < v[0] || x > v[v.length - 1]) return -1; let i = 0; while (i + 2 < v.length && v[i + 1] < x) i++; return i; };
+  const i = find(A, a), j = find(B, b);
+  if (i < 0 || j < 0) return null;
+  const ta = A.length > 1 ? (a - A[i]) / (A[i + 1] - A[i]) : 0, tb = B.length > 1 ? (b - B[j]) / (B[j + 1] - B[j]) : 0;
+  const v = [[H[j][i], H[j][i + 1]], [H[j + 1] ? H[j + 1][i] : null, H[j + 1] ? H[j + 1][i + 1] : null]];
+  if (v.flat().some(x => x === null || x === undefined)) return null;
+  return (1 - tb) * ((1 - ta) * v[0][0] + ta * v[0][1]) + tb * ((1 - ta) * v[1][0] + ta * v[1][1]);
+}
+function tieValues(t, a, b) {
+  // |c_P|, |c_Q| (push coordinates) and the residual |c_P| - k |c_Q| on the line r(a, b)
+  const m = Math.min(a, 1 - a), s = t.pairs.flat().map(id => contours[id] ? lineParameter(contours[id], a, b) : null);
+  if (s.some(x => x === null)) return null;
+  const dp = m * Math.abs(s[0] - s[1]), dq = m * Math.abs(s[2] - s[3]), k = t.condition === "half" ? 2 : 1;
+  return {dp: dp, dq: dq, residual: dp - k * dq};
+}
+
+// -- panels ----------------------------------------------------------------------------------
+const $ = id => document.getElementById(id);
+function tiesHere(a, b) {
+  const out = [];
+  DATA.patches.forEach(p => { if (inRing(p.ring, a, b)) for (const i of p.ties) out.push({component: p.component, index: i, held: true}); });
+  const near = nearestCurve(a, b, 0.012);
+  if (near) { const c = DATA.curves[near.curve]; for (const i of c.ties) out.push({component: c.component, index: i, held: false, distance: near.distance}); }
+  return out;
+}
+function update(a, b) {
+  if (!(a > 0 && a < 1)) return;
+  const gd = $("strip"), fl = gd._fullLayout, cross = $("cross");
+  cross.style.left = (fl.xaxis._offset + fl.xaxis.l2p(a)) + "px";
+  cross.style.top = (fl.yaxis._offset + fl.yaxis.l2p(b)) + "px";
+  cross.style.display = "block";
+  $("here-ab").textContent = "(a, b) = (" + fmt(a) + ", " + fmt(b) + ")";
+  if (D && D.samples) {
+    const h = interpolate(D.samples, D.samples.h, a, b);
+    const per = Object.keys(D.samples.by_degree || {}).map(k => "h_" + k + " " + fmt(interpolate(D.samples, D.samples.by_degree[k], a, b))).join(", ");
+    $("here-h").textContent = "h(a, b) = " + fmt(h) + " (interpolated; max over degrees" + (per ? "; " + per : "") + ")";
+  } else { $("here-h").textContent = "h(a, b): no distance-map samples in distance.json"; }
+  const m = (1 - a) / a, c0 = -m * b - b;
+  $("here-line").textContent = "line r(a, b): y = " + fmt(m, 3) + " x " + (c0 < 0 ? "- " : "+ ") + fmt(Math.abs(c0), 3);
+  const ties = tiesHere(a, b), ids = new Set(), rows = [];
+  for (const t of ties.slice(0, 12)) {
+    const tie = comps[t.component].ties[t.index]; tie.pairs.flat().forEach(id => ids.add(id));
+    const v = tieValues(tie, a, b);
+    rows.push("<div class='tie" + (t.held ? " held" : "") + "'><span class='mono'>" + esc(tieText(tie)) + "</span> (" + esc(tie.family) + ", "
+      + (t.held ? "holds on patch " + esc(t.component) : "tie curve of " + esc(t.component) + " at " + fmt(t.distance, 2) + " of the window")
+      + (v ? "; |c_P| = " + fmt(v.dp) + ", |c_Q| = " + fmt(v.dq) + ", residual " + fmt(v.residual, 2) : "") + ")</div>");
+  }
+  $("here-ties").innerHTML = rows.length ? "<b>" + ties.length + " tie(s) here</b>" + rows.join("") + (ties.length > 12 ? "<div class='muted'>and " + (ties.length - 12) + " more</div>" : "")
+    : "<span class='muted'>no tie here (not in a patch, no tie curve within 1.2% of the window)</span>";
+  const hx = [], hy = [];
+  for (const id of ids) { const xy = contourXY(contours[id]); hx.push(...xy[0], null); hy.push(...xy[1], null); }
+  const mx = [], my = [], mt = [], mm = Math.min(a, 1 - a);
+  for (const id in contours) { const s = lineParameter(contours[id], a, b); if (s === null) continue;
+    mx.push(a * s + b); my.push((1 - a) * s - b); mt.push(ids.has(id) ? id + " c=" + fmt(mm * s, 3) : ""); }
+  Plotly.restyle("grids", {x: [hx, [X0, X1], mx], y: [hy, [m * (X0 - b) - b, m * (X1 - b) - b], my], text: [null, null, mt]}, [HL, LINE, MEET]);
+}
+function select(a, b) {
+  let cid = null;
+  for (const p of DATA.patches) if (inRing(p.ring, a, b)) { cid = p.component; break; }
+  if (cid === null) { const near = nearestCurve(a, b, 0.03); if (near) cid = DATA.curves[near.curve].component; }
+  if (cid === null) { $("comp-ties").innerHTML = "<span class='muted'>no component at (" + fmt(a) + ", " + fmt(b) + ")</span>"; return; }
+  const c = comps[cid], held = new Set(c.patch_ties);
+  $("comp-ties").innerHTML = "<b>component " + esc(cid) + "</b> (" + esc(c.kind) + (c.kind === "patch" ? ", area " + fmt(c.area, 3) : "")
+    + "): " + c.ties.length + " ties" + (held.size ? ", " + held.size + " hold identically on its patches (green)" : "")
+    + c.ties.map((t, i) => "<div class='tie mono" + (held.has(i) ? " held" : "") + "'>" + esc(tieText(t)) + "  <span class='muted'>" + esc(t.family) + "</span></div>").join("");
+}
+function toData(gd, ev) {
+  const fl = gd._fullLayout, bb = gd.getBoundingClientRect(), xa = fl.xaxis, ya = fl.yaxis;
+  const px = ev.clientX - bb.left - xa._offset, py = ev.clientY - bb.top - ya._offset;
+  if (px < 0 || py < 0 || px > xa._length || py > ya._length) return null;
+  return {a: xa.p2l(px), b: ya.p2l(py)};
+}
+function toClient(a, b) {
+  const gd = $("strip"), fl = gd._fullLayout, bb = gd.getBoundingClientRect();
+  return {x: bb.left + fl.xaxis._offset + fl.xaxis.l2p(a), y: bb.top + fl.yaxis._offset + fl.yaxis.l2p(b)};
+}
+const REACHED = {"slope-one": "on the slope-one line a = 1/2", "special": "on the special set",
+  "both": "on the slope-one line and on the special set alike", "dense": "by the dense sweep"};
+const hl = D ? "D = " + fmt(D.value) + " (tolerance " + fmt(D.tolerance, 3) + "), reached " + (REACHED[D.reached_on] || "on " + D.reached_on)
+  + (D.at ? " at (a, b) = (" + fmt(D.at[0]) + ", " + fmt(D.at[1]) + ")" : "") : "no distance computed";
+$("headline").textContent = hl + "; " + DATA.components.length + " components, " + DATA.curves.length + " tie curves drawn"
+  + (DATA.labelled ? "" : " (unlabelled: the grid files are missing)") + ". Point at the strip to see the line and the ties there; click to list a component's ties.";
+const config = {scrollZoom: true, displaylogo: false, responsive: true, displayModeBar: "hover"};
+Promise.all([Plotly.newPlot("strip", stripTraces, stripLayout, config), Plotly.newPlot("grids", gridTraces, gridLayout, config)])
+  .then(() => {
+    const cross = document.createElement("div"); cross.id = "cross"; $("strip").appendChild(cross);
+    let pending = null;
+    $("strip").addEventListener("mousemove", ev => { const p = toData($("strip"), ev); if (!p) return;
+      if (pending) cancelAnimationFrame(pending); pending = requestAnimationFrame(() => update(p.a, p.b)); });
+    $("strip").addEventListener("click", ev => { const p = toData($("strip"), ev); if (p) select(p.a, p.b); });
+    window.explorer = {update: update, select: select, toClient: toClient};
+    window.explorerReady = true;
+  });
+</script>
+</body>
+</html>
+"""
+"""The page; ``__TITLE__``, ``__PLOTLY__`` and ``__DATA__`` are filled in by :func:`specmap.explore.build_explorer`."""

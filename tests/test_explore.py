@@ -1,0 +1,297 @@
+"""The offline explorer (issue 15): the page built from a result folder, tested in headless Chromium.
+
+The browser is Debian's chromium, driven through the DevTools protocol over
+``--remote-debugging-pipe`` (JSON messages separated by NUL bytes on file descriptors
+3 and 4; no port, no websocket). The result folder is a closed-form case built here:
+vertical half-lines x = 0, 1 (f) and horizontal y = 0, 1 (g) tie equal on a = 1/2 and
+half on a = 1/3 (math.md section 5, exact small cases); g's verticals x = 0.3, 1.3 tie
+with f's on every line, so a patch of that tie is drawn.
+"""
+
+from __future__ import annotations
+
+import base64
+import json
+import os
+import re
+import shutil
+import subprocess
+import sys
+import time
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pytest
+
+from specmap.explore import build_explorer
+from specmap.explore.data import explorer_data
+from specmap.report.load import load_results
+
+FLAGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
+         "--disable-background-networking", "--disable-component-update", "--disable-sync",
+         "--remote-debugging-pipe", "--window-size=1400,1000", "--hide-scrollbars", "--mute-audio"]
+
+
+def chromium() -> str | None:
+    """Path of Debian's chromium (or a chromium-browser), or None."""
+    for name in ("chromium", "chromium-browser"):
+        found = shutil.which(name)
+        if found:
+            return found
+    return None
+
+
+class Browser:
+    """One headless Chromium with one page; ``send`` a command, collect events (a test helper)."""
+
+    def __init__(self, profile: Path) -> None:
+        exe = chromium()
+        if exe is None:
+            raise RuntimeError("chromium is not installed")
+        to_r, self._to_w = os.pipe()  # we write commands, chromium reads fd 3
+        self._from_r, from_w = os.pipe()  # chromium writes fd 4, we read
+
+        def remap() -> None:
+            os.dup2(to_r, 3)
+            os.dup2(from_w, 4)
+
+        self.proc = subprocess.Popen([exe, *FLAGS, f"--user-data-dir={profile}", "about:blank"],
+                                     preexec_fn=remap, pass_fds=(3, 4), stdout=subprocess.DEVNULL,
+                                     stderr=subprocess.DEVNULL)
+        os.close(to_r)
+        os.close(from_w)
+        os.set_blocking(self._from_r, False)
+        self._buf = b""
+        self._id = 0
+        self.events: list[dict[str, Any]] = []
+        self.session: str | None = None
+
+    def _read(self, timeout: float) -> dict[str, Any] | None:
+        end = time.monotonic() + timeout
+        while b"\0" not in self._buf:
+            try:
+                chunk = os.read(self._from_r, 1 << 20)
+            except BlockingIOError:
+                chunk = None
+            if chunk == b"":
+                raise RuntimeError("chromium closed the pipe")
+            if chunk:
+                self._buf += chunk
+                continue
+            if time.monotonic() > end:
+                return None
+            time.sleep(0.01)
+        msg, self._buf = self._buf.split(b"\0", 1)
+        return json.loads(msg)
+
+    def send(self, method: str, params: dict[str, Any] | None = None, *, timeout: float = 30.0,
+             browser: bool = False) -> dict[str, Any]:
+        """Send a command (to the page's session unless ``browser``) and return its result."""
+        self._id += 1
+        msg: dict[str, Any] = {"id": self._id, "method": method, "params": params or {}}
+        if self.session and not browser:
+            msg["sessionId"] = self.session
+        os.write(self._to_w, json.dumps(msg).encode() + b"\0")
+        end = time.monotonic() + timeout
+        while time.monotonic() < end:
+            reply = self._read(end - time.monotonic())
+            if reply is None:
+                break
+            if reply.get("id") == self._id:
+                if "error" in reply:
+                    raise RuntimeError(f"{method}: {reply['error']}")
+                return reply.get("result", {})
+            self.events.append(reply)
+        raise TimeoutError(f"no reply to {method} within {timeout} s")
+
+    def open_page(self) -> None:
+        target = self.send("Target.createTarget", {"url": "about:blank"}, browser=True)["targetId"]
+        self.session = self.send("Target.attachToTarget", {"targetId": target, "flatten": True},
+                                 browser=True)["sessionId"]
+        for domain in ("Runtime", "Log", "Page"):
+            self.send(f"{domain}.enable")
+
+    def pump(self, seconds: float) -> None:
+        """Collect events for a while."""
+        end = time.monotonic() + seconds
+        while time.monotonic() < end:
+            msg = self._read(max(0.0, end - time.monotonic()))
+            if msg is not None:
+                self.events.append(msg)
+
+    def evaluate(self, expression: str) -> Any:
+        res = self.send("Runtime.evaluate", {"expression": expression, "returnByValue": True,
+                                             "awaitPromise": True})
+        if "exceptionDetails" in res:
+            raise RuntimeError(f"page script failed: {res['exceptionDetails']}")
+        return res.get("result", {}).get("value")
+
+    def wait_for(self, expression: str, timeout: float = 60.0) -> Any:
+        end = time.monotonic() + timeout
+        while time.monotonic() < end:
+            value = self.evaluate(expression)
+            if value:
+                return value
+            self.pump(0.1)
+        raise TimeoutError(f"{expression} stayed false for {timeout} s")
+
+    def errors(self) -> list[str]:
+        """Console errors, uncaught exceptions and error log entries seen so far."""
+        out = []
+        for e in self.events:
+            m, p = e.get("method"), e.get("params") or {}
+            if m == "Runtime.exceptionThrown":
+                out.append(json.dumps(p.get("exceptionDetails"))[:500])
+            elif m == "Runtime.consoleAPICalled" and p.get("type") in ("error", "assert"):
+                out.append(json.dumps(p.get("args"))[:500])
+            elif m == "Log.entryAdded" and (p.get("entry") or {}).get("level") == "error":
+                out.append(json.dumps(p.get("entry"))[:500])
+        return out
+
+    def close(self) -> None:
+        try:
+            self.send("Browser.close", browser=True, timeout=5.0)
+        except (RuntimeError, TimeoutError, OSError):
+            pass
+        try:
+            self.proc.wait(timeout=10)
+        except subprocess.TimeoutExpired:
+            self.proc.kill()
+            self.proc.wait()
+        for fd in (self._to_w, self._from_r):
+            try:
+                os.close(fd)
+            except OSError:
+                pass
+
+
+# -- the result folder ------------------------------------------------------------------------
+
+FAR = -100.0  # half-lines start far away, so every line of the window meets all of them
+TIES = [{"pairs": [["f:v0", "f:v1"], ["g:h0", "g:h1"]], "condition": "equal"},
+        {"pairs": [["f:v0", "f:v1"], ["g:h0", "g:h1"]], "condition": "half"},
+        {"pairs": [["f:v0", "g:v0"], ["f:v1", "g:v1"]], "condition": "equal"}]
+PATCH = [[0.6, -0.5], [0.9, -0.5], [0.9, 0.5], [0.6, 0.5], [0.6, -0.5]]
+
+
+def make_folder(root: Path) -> Path:
+    root.mkdir(parents=True)
+    window = {"a": [0.02, 0.98], "b": [-1.0, 1.0]}
+    grid_f = {"format": "specmap-grid/1", "route": "exact", "tolerance": 1e-9, "contours": [
+        {"id": "f:v0", "kind": "vertical", "start": [0.0, FAR]},
+        {"id": "f:v1", "kind": "vertical", "start": [1.0, FAR]},
+        {"id": "f:p0", "kind": "proper", "points": [[-1.0, 1.0], [-0.5, 0.2], [0.0, -1.0]]}]}
+    grid_g = {"format": "specmap-grid/1", "route": "exact", "tolerance": 1e-9, "contours": [
+        {"id": "g:h0", "kind": "horizontal", "start": [FAR, 0.0]},
+        {"id": "g:h1", "kind": "horizontal", "start": [FAR, 1.0]},
+        {"id": "g:v0", "kind": "vertical", "start": [0.3, FAR]},
+        {"id": "g:v1", "kind": "vertical", "start": [1.3, FAR]}]}
+    b = np.linspace(-0.95, 0.95, 40).tolist()
+    geo = {"type": "FeatureCollection", "features": [{"type": "Feature", "id": "c0", "properties": {"id": "c0",
+           "kind": "patch"}, "geometry": {"type": "GeometryCollection", "geometries": [
+               {"type": "Polygon", "coordinates": [PATCH]},
+               {"type": "MultiLineString", "coordinates": [[[1 / 3, x] for x in b], [[0.5, x] for x in b]]}]}}]}
+    special = {"window": window, "tolerance": 1e-9, "pairs": "all", "method": "sweep", "resolution": [41, 41],
+               "components": [{"id": "c0", "kind": "patch", "area": 0.3, "length": 3.8,
+                               "bbox": [1 / 3, -0.95, 0.9, 0.95], "ties": TIES}],
+               "total_area": 0.3, "area_fraction": 0.3 / 1.92, "counts": {"curve": 0, "patch": 1, "point": 0}}
+    a_s, b_s = np.linspace(0.02, 0.98, 25), np.linspace(-1.0, 1.0, 21)
+    h = (a_s[None, :] + b_s[:, None]).tolist()  # h = a + b: bilinear interpolation is exact on it
+    distance = {"value": 1.98, "at": [0.98, 1.0], "reached_on": "special", "tolerance": 1e-3,
+                "by_degree": {"0": {"value": 1.98, "at": [0.98, 1.0]}},
+                "landscape": {"a": a_s.tolist(), "b": b_s.tolist(), "h": h, "by_degree": {"0": h}}}
+    study = {"name": "explore-fixture", "window": window, "commands": []}
+    for name, obj in (("study.json", study), ("grid_f.json", grid_f), ("grid_g.json", grid_g),
+                      ("special.json", special), ("special.geojson", geo), ("distance.json", distance)):
+        (root / name).write_text(json.dumps(obj))
+    return root
+
+
+def test_payload_labels_curves_and_patches(tmp_path: Path) -> None:
+    data = explorer_data(load_results(make_folder(tmp_path / "r")))
+    by_a = {round(c["xy"][0][0], 4): c for c in data["curves"]}
+    assert by_a[0.3333]["ties"] == [1] and by_a[0.5]["ties"] == [0]  # closed form, see the module docstring
+    assert data["patches"][0]["ties"] == [2] and data["components"][0]["patch_ties"] == [2]
+    assert data["distance"]["samples"]["h"][0][0] == pytest.approx(0.02 - 1.0)
+
+
+def test_page_is_self_contained(tmp_path: Path) -> None:
+    page = build_explorer(make_folder(tmp_path / "r"))
+    html = page.read_text(encoding="utf-8")
+    assert page == tmp_path / "r" / "explore.html"
+    assert not re.search(r"<script[^>]+src=|<link[^>]+href=|<img[^>]+src=", html)  # nothing fetched
+    assert "plotly.js v" in html  # the chart library is inlined
+
+
+def test_explore_cli_needs_the_special_set(tmp_path: Path) -> None:
+    root = make_folder(tmp_path / "r")
+    (root / "special.json").unlink()
+    proc = subprocess.run([sys.executable, "-m", "specmap", "explore", str(root)], capture_output=True, text=True,
+                          timeout=120, env={**os.environ, "PYTHONPATH": str(Path(__file__).resolve().parents[1])})
+    assert proc.returncode == 2 and proc.stderr.startswith("specmap: error:") and "specmap map" in proc.stderr
+    assert "Traceback" not in proc.stderr
+
+
+# -- in a real browser ----------------------------------------------------------------------
+
+
+def _pointer(br: Browser, a: float, b: float, kind: str = "mouseMoved") -> None:
+    p = json.loads(br.evaluate(f"JSON.stringify(window.explorer.toClient({a}, {b}))"))
+    if kind == "click":
+        for t in ("mousePressed", "mouseReleased"):
+            br.send("Input.dispatchMouseEvent", {"type": t, "x": p["x"], "y": p["y"], "button": "left",
+                                                 "clickCount": 1})
+    else:
+        br.send("Input.dispatchMouseEvent", {"type": "mouseMoved", "x": p["x"], "y": p["y"]})
+
+
+def _text(br: Browser, element: str) -> str:
+    return br.evaluate(f"document.getElementById('{element}').innerText") or ""
+
+
+@pytest.mark.skipif(shutil.which("chromium") is None and shutil.which("chromium-browser") is None,
+                    reason="chromium is not installed (apt-get install -y chromium; .ci/run installs it)")
+def test_explorer_in_headless_chromium(tmp_path: Path) -> None:
+    page = build_explorer(make_folder(tmp_path / "r"))
+    br = Browser(tmp_path / "profile")
+    try:
+        br.open_page()
+        br.send("Page.navigate", {"url": page.resolve().as_uri()})
+        assert br.wait_for("window.explorerReady === true", 90)
+        br.pump(0.5)
+        assert br.errors() == []
+        before = _text(br, "here-ab")
+        # on the half tie's curve a = 1/3: |c_P| = min(a, 1-a) |x1 - x0| / a = 1 and |c_Q| = 1/2 (closed form)
+        _pointer(br, 1 / 3, 0.2)
+        br.wait_for("!document.getElementById('here-ab').innerText.startsWith('move')", 10)
+        ab = _text(br, "here-ab")
+        assert ab != before
+        a, b = (float(x) for x in re.findall(r"-?\d+\.?\d*(?:e-?\d+)?", ab)[:2])
+        assert abs(a - 1 / 3) < 0.01 and abs(b - 0.2) < 0.02
+        h = float(re.search(r"h\(a, b\) = (-?[\d.]+)", _text(br, "here-h")).group(1))
+        assert h == pytest.approx(a + b, abs=2e-3)  # h = a + b in the fixture, interpolated exactly
+        ties = _text(br, "here-ties")
+        assert "|f:v0 - f:v1| = 2 |g:h0 - g:h1|" in ties and "|c_P| = 1, |c_Q| = 0.5" in ties
+        assert "|f:v0 - f:v1| = |g:h0 - g:h1|" not in ties  # the equal tie's curve is a = 1/2, far away
+        assert "y = 2 x - 0.6" in _text(br, "here-line")  # r(1/3, 0.2): y = (1-a)/a (x - b) - b
+        # the line is drawn over the grids and the tie's four contours are highlighted
+        drawn = json.loads(br.evaluate("JSON.stringify(document.getElementById('grids').data"
+                                       ".slice(-3).map(t => (t.x || []).length))"))
+        assert drawn[0] > 0 and drawn[1] == 2 and drawn[2] >= 4
+        # inside the patch the tie that holds identically is listed
+        _pointer(br, 0.75, 0.0)
+        br.pump(0.3)
+        assert "|f:v0 - g:v0| = |f:v1 - g:v1|" in _text(br, "here-ties")
+        assert "holds on patch c0" in _text(br, "here-ties")
+        _pointer(br, 0.5, -0.6, "click")
+        br.pump(0.3)
+        comp = _text(br, "comp-ties")
+        assert "component c0" in comp and "3 ties" in comp
+        shot = br.send("Page.captureScreenshot", {"format": "png"})
+        png = tmp_path / "explore.png"
+        png.write_bytes(base64.b64decode(shot["data"]))
+        assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n" and png.stat().st_size > 10_000
+        assert br.errors() == []
+    finally:
+        br.close()
