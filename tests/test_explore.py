@@ -263,18 +263,19 @@ def test_explorer_in_headless_chromium(tmp_path: Path) -> None:
         assert br.errors() == []
         before = _text(br, "here-ab")
         # on the half tie's curve a = 1/3: |c_P| = min(a, 1-a) |x1 - x0| / a = 1 and |c_Q| = 1/2 (closed form)
-        _pointer(br, 1 / 3, 0.2)
+        _pointer(br, 1 / 3, 0.23)  # between sample rows, so the interpolation is exercised
         br.wait_for("!document.getElementById('here-ab').innerText.startsWith('move')", 10)
         ab = _text(br, "here-ab")
         assert ab != before
         a, b = (float(x) for x in re.findall(r"-?\d+\.?\d*(?:e-?\d+)?", ab)[:2])
-        assert abs(a - 1 / 3) < 0.01 and abs(b - 0.2) < 0.02
+        assert abs(a - 1 / 3) < 0.01 and abs(b - 0.23) < 0.02
         h = float(re.search(r"h\(a, b\) = (-?[\d.]+)", _text(br, "here-h")).group(1))
         assert h == pytest.approx(a + b, abs=2e-3)  # h = a + b in the fixture, interpolated exactly
         ties = _text(br, "here-ties")
         assert "|f:v0 - f:v1| = 2 |g:h0 - g:h1|" in ties and "|c_P| = 1, |c_Q| = 0.5" in ties
         assert "|f:v0 - f:v1| = |g:h0 - g:h1|" not in ties  # the equal tie's curve is a = 1/2, far away
-        assert "y = 2 x - 0.6" in _text(br, "here-line")  # r(1/3, 0.2): y = (1-a)/a (x - b) - b
+        m = (1 - a) / a  # r(a, b): y = (1-a)/a (x - b) - b, math.md section 2
+        assert f"y = {m:.3g} x - {m * b + b:.3g}" in _text(br, "here-line")
         # the line is drawn over the grids and the tie's four contours are highlighted
         drawn = json.loads(br.evaluate("JSON.stringify(document.getElementById('grids').data"
                                        ".slice(-3).map(t => (t.x || []).length))"))
