@@ -366,7 +366,9 @@ def _distance_page(pg: Pager, res: dict[str, Any]) -> None:
     sub = pg.page("Matching distance", 0.5)
     _draw("distance", "distance.json",
           lambda: distance_map_figure(d, res.get("geojson"), window=st.get("window"), fig=sub))
-    pg.para(f"Matching distance D = {fmt(d.get('value'))}, reached on {d.get('reached_on', 'n/a')} at "
+    on = {"slope-one": "the slope-one line a = 1/2", "special": "the special set",
+          "both": "the slope-one line and the special set alike"}.get(str(d.get("reached_on")), d.get("reached_on"))
+    pg.para(f"Matching distance D = {fmt(d.get('value'))}, reached on {on or 'n/a'} at "
             f"(a, b) = {fmt_point(d.get('at'))}"
             + (f", component {d['component']}" if d.get("component") is not None else "")
             + f"; tolerance {fmt(d.get('tolerance'), 3)}.")
