@@ -509,3 +509,14 @@ def test_curves_are_labelled_by_the_tie_that_vanishes_on_them() -> None:
     np.testing.assert_allclose(by_a[0.3333].tied_value, 0.5, rtol=1e-12)
     # without grids nothing is labelled, and the figure still draws (by condition)
     assert not index_ties(special, geo).labelled
+
+
+def test_grid_file_studies_are_told_why_there_is_no_distance() -> None:
+    from specmap.report.summary import ranked_notes
+
+    stages = {"grids": True, "special": True, "distance": False, "perturb": True}
+    grid = {"study": {"f": {"source": "grid"}, "g": {"source": "grid"}}, "stages": stages}
+    titles = [n.title for n in ranked_notes(grid)]
+    assert "distance not available" in titles and "distance not run" not in titles
+    surface = {"study": {"f": {"source": "surface"}, "g": {"source": "surface"}}, "stages": stages}
+    assert "distance not run" in [n.title for n in ranked_notes(surface)]

@@ -45,6 +45,7 @@ from specmap.report.summary import (
     SEVERITY_NAMES,
     component_counts,
     degree_rows,
+    grid_only,
     ranked_notes,
     special_lines,
     tie_curve_count,
@@ -196,6 +197,8 @@ def _summary_page(pg: Pager, res: dict[str, Any]) -> None:
         for status, who in reasons.items():
             pg.para(f"{', '.join(who)}: {status}.", 8.5, color="0.25")
         pg.para(where_sentence(d))
+    elif grid_only(res):
+        pg.para("Not available: f and g are given as grid files, which have no mesh, so no slice diagrams.")
     else:
         pg.para("Not computed (run specmap distance).")
     pg.heading("Special set and genericity")

@@ -236,6 +236,12 @@ def special_lines(res: dict[str, Any]) -> list[str]:
     return out
 
 
+def grid_only(res: dict[str, Any]) -> bool:
+    """Whether f or g is a grid file (``study.json`` source ``grid``): no mesh, so no distance."""
+    st = res.get("study") or {}
+    return any(isinstance(st.get(k), dict) and st[k].get("source") == "grid" for k in ("f", "g"))
+
+
 def ranked_notes(res: dict[str, Any]) -> list[Note]:
     """Every issue of the result with what to do about it, most severe first.
 
@@ -307,6 +313,11 @@ def ranked_notes(res: dict[str, Any]) -> list[Note]:
     verbs = {"grids": "grid", "special": "map", "distance": "distance", "perturb": "perturb"}
     for key, verb in verbs.items():
         if key in stages and not stages[key]:
+            if key == "distance" and grid_only(res):
+                notes.append(Note(4, "distance not available", "f and g are given as grid files, which have no "
+                                  "mesh, so there are no slice diagrams and no matching distance.",
+                                  "give a surface or a mesh for f and g ([f]/[g] in the study file) to compute D."))
+                continue
             notes.append(Note(4, f"{key} not run", f"no {key} results in this folder.",
                               f"run specmap {verb} on the study."))
     return sorted(notes, key=lambda n: n.severity)
