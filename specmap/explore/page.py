@@ -197,9 +197,17 @@ function tieValues(t, a, b) {
 
 // -- panels ----------------------------------------------------------------------------------
 const $ = id => document.getElementById(id);
+const HOLDS = 1e-3;  // relative residual under which a patch's tie holds at the pointer (contours are thinned)
+let elsewhere = 0;
 function tiesHere(a, b) {
   const out = [];
-  DATA.patches.forEach(p => { if (inRing(p.ring, a, b)) for (const i of p.ties) out.push({component: p.component, index: i, held: true}); });
+  elsewhere = 0;
+  DATA.patches.forEach(p => { if (!inRing(p.ring, a, b)) return;
+    for (const i of p.ties) {
+      const v = tieValues(comps[p.component].ties[i], a, b);
+      if (v && Math.abs(v.residual) <= HOLDS * (v.dp + v.dq + 1e-12)) out.push({component: p.component, index: i, held: true});
+      else elsewhere += 1;
+    } });
   const near = nearestCurve(a, b, 0.012);
   if (near) { const c = DATA.curves[near.curve]; for (const i of c.ties) out.push({component: c.component, index: i, held: false, distance: near.distance}); }
   return out;
@@ -215,7 +223,8 @@ function update(a, b) {
     const h = interpolate(D.samples, D.samples.h, a, b);
     const per = Object.keys(D.samples.by_degree || {}).map(k => "h_" + k + " " + fmt(interpolate(D.samples, D.samples.by_degree[k], a, b))).join(", ");
     $("here-h").textContent = "h(a, b) = " + fmt(h) + " (interpolated; max over degrees" + (per ? "; " + per : "") + ")";
-  } else { $("here-h").textContent = "h(a, b): no distance-map samples in distance.json"; }
+  } else { $("here-h").textContent = D ? "h(a, b): distance.json has no distance-map samples (run specmap distance --method both)"
+    : "h(a, b): no distance.json in this folder"; }
   const m = (1 - a) / a, c0 = -m * b - b;
   $("here-line").textContent = "line r(a, b): y = " + fmt(m, 3) + " x " + (c0 < 0 ? "- " : "+ ") + fmt(Math.abs(c0), 3);
   const ties = tiesHere(a, b), ids = new Set(), rows = [];
@@ -228,6 +237,7 @@ function update(a, b) {
   }
   $("here-ties").innerHTML = rows.length ? "<b>" + ties.length + " tie(s) here</b>" + rows.join("") + (ties.length > 12 ? "<div class='muted'>and " + (ties.length - 12) + " more</div>" : "")
     : "<span class='muted'>no tie here (not in a patch, no tie curve within 1.2% of the window)</span>";
+  if (elsewhere) $("here-ties").innerHTML += "<div class='muted'>" + elsewhere + " more tie(s) of this patch hold elsewhere on it</div>";
   const hx = [], hy = [];
   for (const id of ids) { const xy = contourXY(contours[id]); hx.push(...xy[0], null); hy.push(...xy[1], null); }
   const mx = [], my = [], mt = [], mm = Math.min(a, 1 - a);
