@@ -126,6 +126,41 @@ def test_lattice_labels_join_exactly_the_crossing_chords():
         assert sorted(got.values()) == expected
 
 
+def test_lattice_labels_many_chords_and_ends_match_all_pairs_intersections():
+    # brute force (written here): in general position two segments touch iff shapely says they
+    # intersect; the components must be those of the all-pairs intersection graph. Many chords
+    # and many segments ending inside one cell exercise the run bookkeeping of _cell_tests.
+    import networkx as nx
+    import shapely
+
+    rng = np.random.default_rng(11)
+    av = np.array([0.0, 1.0])
+    bv = np.array([0.0, 1.0])
+    for n_chord, n_end in ((60, 40), (300, 200)):
+        # chords cutting a corner (ends on two adjacent sides: general position, many components)
+        t0 = np.floor(rng.random(n_chord) * 4.0) + rng.uniform(0.7, 0.98, n_chord)
+        p = [_on_perimeter(t) for t in t0]
+        q = [_on_perimeter(t) for t in (np.floor(t0) + 1 + rng.uniform(0.02, 0.3, n_chord)) % 4.0]
+        # segments from the perimeter towards the centre, ending inside (a tie's domain ends there)
+        start = np.array([_on_perimeter(t) for t in rng.random(n_end) * 4.0])
+        end = 0.5 + (start - 0.5) * rng.uniform(0.5, 0.95, (n_end, 1))
+        p, q = np.vstack([p, start]), np.vstack([q, end])
+        k = len(p)
+        keys = np.arange(2 * k, dtype=np.int64)  # no shared vertices
+        label, _, chord = lattice_labels(p, q, np.arange(k), k, av, bv, 1e-12, keys, np.argsort(keys))
+        assert chord.sum() == n_chord
+        segs = [shapely.LineString([a, b]) for a, b in zip(p, q, strict=True)]
+        g = nx.Graph()
+        g.add_nodes_from(range(k))
+        g.add_edges_from((i, j) for i in range(k) for j in range(i + 1, k) if segs[i].intersects(segs[j]))
+        expected = sorted(sorted(c) for c in nx.connected_components(g))
+        got = {}
+        for i, lab in enumerate(label.tolist()):
+            got.setdefault(lab, []).append(i)
+        assert sorted(got.values()) == expected
+        assert len(expected) > 10  # not a trivial single component
+
+
 def test_lattice_labels_join_shared_vertices():
     # two segments that only share an end point inside the cell are one component
     p = np.array([[0.2, 0.2], [0.5, 0.5]])

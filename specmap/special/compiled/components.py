@@ -210,17 +210,41 @@ def _chord_unions(parent, owner, cell, chord, t0, t1, n_cells):
 
 
 @numba.njit(cache=True, nogil=True, error_model="numpy")
+def _test_pair(parent, p, q, owner, s, o, eps):
+    """Join the lines of segments s and o if they are in different components, their boxes meet
+    (widened by 2 eps) and they cross or come within ``eps``; True if joined."""
+    if _find(parent, owner[o]) == _find(parent, owner[s]):
+        return False
+    sx0 = min(p[s, 0], q[s, 0]) - 2 * eps
+    sx1 = max(p[s, 0], q[s, 0]) + 2 * eps
+    sy0 = min(p[s, 1], q[s, 1]) - 2 * eps
+    sy1 = max(p[s, 1], q[s, 1]) + 2 * eps
+    if (min(p[o, 0], q[o, 0]) > sx1 or max(p[o, 0], q[o, 0]) < sx0
+            or min(p[o, 1], q[o, 1]) > sy1 or max(p[o, 1], q[o, 1]) < sy0):
+        return False
+    if _segments_close(p[s, 0], p[s, 1], q[s, 0], q[s, 1], p[o, 0], p[o, 1], q[o, 0], q[o, 1], eps):
+        _union(parent, owner[s], owner[o])
+        return True
+    return False
+
+
+@numba.njit(cache=True, nogil=True, error_model="numpy")
 def _extra_unions(parent, p, q, owner, chord, cnt, by_cell, av, bv, eps, n_lines):
-    """Join lines through segments that end inside a cell, by exact tests (see :func:`lattice_labels`)."""
+    """Join lines through segments that end inside a cell, by exact tests (see :func:`lattice_labels`).
+
+    Every segment that is not a chord (an end inside a cell: a domain boundary point) is tested
+    against the chords and such segments of every cell its box (widened by ``eps``) touches, group
+    by group of one component (:func:`_cell_tests`: one check per current component of the cell).
+    Pairs already in one component are skipped (whole groups at once). The components do not
+    depend on the order of the tests.
+    """
     na1 = av.size - 1
     nb1 = bv.size - 1
     n_cells = na1 * nb1
-    # other segments (an end inside a cell: domain boundary points): exact tests against the
-    # chords and other such segments of every cell their box touches. Each cell's list is sorted
-    # into groups by component (as after the chord scan); a group already joined to the tested
-    # segment is skipped at once, and a group is left at its first contact.
     extra = np.nonzero(~chord)[0]
     n_x = extra.size
+    if n_x == 0:
+        return
     xi0 = np.empty(n_x, dtype=np.int64)
     xi1 = np.empty(n_x, dtype=np.int64)
     xj0 = np.empty(n_x, dtype=np.int64)
@@ -231,19 +255,23 @@ def _extra_unions(parent, p, q, owner, chord, cnt, by_cell, av, bv, eps, n_lines
         xi1[r] = interval_of(av, max(p[s, 0], q[s, 0]) + eps)
         xj0[r] = interval_of(bv, min(p[s, 1], q[s, 1]) - eps)
         xj1[r] = interval_of(bv, max(p[s, 1], q[s, 1]) + eps)
-    if n_x == 0:
-        return
+    # per cell: its chords, then the non-chord segments whose box touches it
     acnt = np.zeros(n_cells + 1, dtype=np.int64)
+    xcnt = np.zeros(n_cells + 1, dtype=np.int64)
     for c in range(n_cells):
         acnt[c + 1] = cnt[c + 1] - cnt[c]
     for r in range(n_x):
         for cj in range(xj0[r], xj1[r] + 1):
             for ci in range(xi0[r], xi1[r] + 1):
                 acnt[cj * na1 + ci + 1] += 1
+                xcnt[cj * na1 + ci + 1] += 1
     for c in range(n_cells):
         acnt[c + 1] += acnt[c]
+        xcnt[c + 1] += xcnt[c]
     afill = acnt[:-1].copy()
+    xfill = xcnt[:-1].copy()
     a_seg = np.empty(acnt[-1], dtype=np.int64)
+    x_seg = np.empty(xcnt[-1], dtype=np.int64)
     for c in range(n_cells):
         for t in range(cnt[c], cnt[c + 1]):
             a_seg[afill[c]] = by_cell[t]
@@ -254,54 +282,97 @@ def _extra_unions(parent, p, q, owner, chord, cnt, by_cell, av, bv, eps, n_lines
                 c = cj * na1 + ci
                 a_seg[afill[c]] = extra[r]
                 afill[c] += 1
+                x_seg[xfill[c]] = extra[r]
+                xfill[c] += 1
+    # components after the chord scan: each cell's list is sorted into groups of one component; a
+    # group already joined to the tested segment is skipped at once and left at its first contact
     snap_lab = np.empty(n_lines, dtype=np.int64)
     for i in range(n_lines):
         snap_lab[i] = _find(parent, i)
-    a_lab = np.empty(a_seg.size, dtype=np.int64)
-    g_end = np.empty(a_seg.size, dtype=np.int64)  # end of the run of equal labels at each position
     for c in range(n_cells):
         lo = acnt[c]
         hi = acnt[c + 1]
-        if hi - lo < 1:
+        if xcnt[c + 1] == xcnt[c]:
             continue
         keys = np.empty(hi - lo, dtype=np.int64)
         for t in range(lo, hi):
             keys[t - lo] = snap_lab[owner[a_seg[t]]]
         order = np.argsort(keys, kind="mergesort")
-        segs = a_seg[lo:hi].copy()
-        for t in range(hi - lo):
-            a_seg[lo + t] = segs[order[t]]
-            a_lab[lo + t] = keys[order[t]]
-        end = hi
-        for t in range(hi - 1, lo - 1, -1):
-            if t < hi - 1 and a_lab[t] != a_lab[t + 1]:
-                end = t + 1
-            g_end[t] = end
-    for r in range(n_x):
-        s = extra[r]
-        sx0 = min(p[s, 0], q[s, 0]) - 2 * eps
-        sx1 = max(p[s, 0], q[s, 0]) + 2 * eps
-        sy0 = min(p[s, 1], q[s, 1]) - 2 * eps
-        sy1 = max(p[s, 1], q[s, 1]) + 2 * eps
-        for cj in range(xj0[r], xj1[r] + 1):
-            for ci in range(xi0[r], xi1[r] + 1):
-                c = cj * na1 + ci
-                t = acnt[c]
-                hi = acnt[c + 1]
-                while t < hi:
-                    t2 = g_end[t]
-                    # a whole group already in this segment's component: skip it at once
-                    if _find(parent, a_lab[t]) != _find(parent, owner[s]):
-                        for u in range(t, t2):
-                            o = a_seg[u]
-                            if (min(p[o, 0], q[o, 0]) > sx1 or max(p[o, 0], q[o, 0]) < sx0
-                                    or min(p[o, 1], q[o, 1]) > sy1 or max(p[o, 1], q[o, 1]) < sy0):
-                                continue
-                            if _segments_close(p[s, 0], p[s, 1], q[s, 0], q[s, 1],
-                                               p[o, 0], p[o, 1], q[o, 0], q[o, 1], eps):
-                                _union(parent, owner[s], owner[o])
-                                break  # the rest of the group is now joined too
-                    t = t2
+        segs = a_seg[lo:hi][order]
+        keys = keys[order]
+        n_g = 1
+        for t in range(1, segs.size):
+            if keys[t] != keys[t - 1]:
+                n_g += 1
+        g_start = np.empty(n_g + 1, dtype=np.int64)
+        g_start[0] = 0
+        g = 1
+        for t in range(1, segs.size):
+            if keys[t] != keys[t - 1]:
+                g_start[g] = t
+                g += 1
+        g_start[n_g] = segs.size
+        _cell_tests(parent, p, q, owner, segs, keys, g_start, x_seg[xcnt[c]:xcnt[c + 1]], eps)
+
+
+@numba.njit(cache=True, nogil=True, error_model="numpy")
+def _cell_tests(parent, p, q, owner, segs, keys, g_start, queries, eps):
+    """Exact tests of a cell's query segments against its groups (runs of one component in ``segs``).
+
+    Groups are kept in *runs* of one current component (linked lists of groups): a query skips a
+    run of its own component with one ``find`` and tests the groups of any other run until the
+    first contact, which joins the whole run. The runs are merged again (by their current roots)
+    before the next query whenever a query joined something. A query thus costs one check per
+    current component of the cell instead of one per group: the components merge quickly, while
+    a cell of a coarse lattice can hold thousands of groups and tens of thousands of queries.
+    """
+    n_g = g_start.size - 1
+    if n_g == 0:
+        return
+    gnext = np.full(n_g, -1, dtype=np.int64)
+    run_root = np.empty(n_g, dtype=np.int64)
+    run_head = np.arange(n_g)
+    run_tail = np.arange(n_g)
+    for g in range(n_g):
+        run_root[g] = keys[g_start[g]]
+    n_run = n_g
+    dirty = True
+    for u in range(queries.size):
+        s = queries[u]
+        if dirty:  # merge the runs that now share a component
+            for r in range(n_run):
+                run_root[r] = _find(parent, run_root[r])
+            order = np.argsort(run_root[:n_run], kind="mergesort")
+            nr = run_root[order]
+            nh = run_head[order]
+            nt = run_tail[order]
+            w = 0
+            for r in range(n_run):
+                if r > 0 and nr[r] == nr[r - 1]:
+                    gnext[run_tail[w - 1]] = nh[r]
+                    run_tail[w - 1] = nt[r]
+                    continue
+                run_root[w] = nr[r]
+                run_head[w] = nh[r]
+                run_tail[w] = nt[r]
+                w += 1
+            n_run = w
+            dirty = False
+        rs = _find(parent, owner[s])
+        for r in range(n_run):
+            if _find(parent, run_root[r]) == rs:
+                continue
+            g = run_head[r]
+            hit = False
+            while g >= 0 and not hit:
+                for v in range(g_start[g], g_start[g + 1]):
+                    if _test_pair(parent, p, q, owner, s, segs[v], eps):
+                        hit = True  # the rest of the run is now joined too
+                        break
+                g = gnext[g]
+            if hit:
+                dirty = True
+                rs = _find(parent, owner[s])
 
 
 @numba.njit(cache=True, nogil=True, error_model="numpy")
