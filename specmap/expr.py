@@ -145,7 +145,7 @@ def _evaluate(node: Node, env: Mapping[str, np.ndarray], memo: dict[int, np.ndar
             stack.pop()
             continue
         if isinstance(top, Const):
-            memo[id(top)] = np.float64(top.value)
+            memo[id(top)] = np.asarray(top.value, dtype=np.float64)
         elif isinstance(top, Var):
             memo[id(top)] = env[top.name]
         else:
