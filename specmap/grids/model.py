@@ -76,9 +76,8 @@ class Contour:
 
     def swapped(self, new_id: str | None = None) -> Contour:
         """The contour after exchanging the coordinates (f1, f2) -> (f2, f1)."""
-        kind: ContourKind = {"proper": "proper", "vertical": "horizontal", "horizontal": "vertical"}[
-            self.kind
-        ]
+        swap: dict[str, ContourKind] = {"proper": "proper", "vertical": "horizontal", "horizontal": "vertical"}
+        kind = swap[self.kind]
         pts = self.points[:, ::-1]
         if self.kind == "proper":
             pts = pts[::-1]

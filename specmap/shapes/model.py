@@ -63,6 +63,7 @@ class Shape:
         if self.values is None:
             require_mesh(self, "value bounds")  # raises: no values
         v = self.values
+        assert v is not None
         return (float(v[:, 0].min()), float(v[:, 1].min()),
                 float(v[:, 0].max()), float(v[:, 1].max()))
 

@@ -165,12 +165,13 @@ def components_with(pieces: tuple[TiePiece, ...], window: Window, line_links: Li
             ea.append(rnode[qi])
             eb.append(rest[ti])
     if point_idx.size:
+        assert rest_tree is not None  # points are in ``rest``, so the tree exists
         qi, ti = rest_tree.query(arr[point_idx], predicate="dwithin", distance=eps)
         ea.append(point_idx[qi])
         eb.append(rest[ti])
-    ea = np.concatenate(ea)
-    eb = np.concatenate(eb)
-    graph = coo_matrix((np.ones(ea.size), (ea, eb)), shape=(n_nodes, n_nodes))
+    ia = np.concatenate(ea)
+    ib = np.concatenate(eb)
+    graph = coo_matrix((np.ones(ia.size), (ia, ib)), shape=(n_nodes, n_nodes))
     _, label = connected_components(graph, directed=False)
     label = label[:n]
     order = np.argsort(label, kind="stable")
@@ -194,5 +195,6 @@ def components_with(pieces: tuple[TiePiece, ...], window: Window, line_links: Li
         comps.append((geom.bounds, kind, float(area_geom.area) if area_geom is not None else 0.0,
                       length, tuple(ties), geom))
     comps.sort(key=lambda c: (c[0][0], c[0][1], c[0][2], c[0][3]))
-    return tuple(Component(f"c{k}", kind, area, length, tuple(float(x) for x in bb), ties, geom)
+    return tuple(Component(f"c{k}", kind, area, length,
+                           (float(bb[0]), float(bb[1]), float(bb[2]), float(bb[3])), ties, geom)
                  for k, (bb, kind, area, length, ties, geom) in enumerate(comps))

@@ -62,7 +62,7 @@ class RoleRules:
     @property
     def doubled_ok(self) -> np.ndarray:
         """bool (2,): pairs of this class can be the doubled pair of a kept half tie."""
-        return self.half_ok.any(axis=0)
+        return np.asarray(self.half_ok.any(axis=0))
 
 
 def role_rules(mode: str) -> RoleRules:
@@ -117,7 +117,7 @@ class Tie:
         q = tuple(sorted(q))  # type: ignore[assignment]
         if condition == "equal" and q < p:
             p, q = q, p
-        return Tie((p, q), condition)  # type: ignore[arg-type]
+        return Tie((p, q), condition)
 
 
 def tie_from_json(d: dict[str, Any]) -> Tie:
@@ -286,9 +286,9 @@ def kernel_flags(table: PairTable) -> tuple[np.ndarray, np.ndarray, np.ndarray, 
 def all_tie_codes(table: PairTable) -> np.ndarray:
     """Every tie code the pair mode allows (the naive method's candidate list)."""
     n = table.n_pairs
-    p, q = np.meshgrid(np.arange(n), np.arange(n), indexing="ij")
-    p = p.ravel()
-    q = q.ravel()
+    pg, qg = np.meshgrid(np.arange(n), np.arange(n), indexing="ij")
+    p = pg.ravel()
+    q = qg.ravel()
     eq = (p < q) & equal_allowed(table, p, q)
     hf = half_allowed(table, p, q)
     return np.concatenate([table.encode(np.zeros(eq.sum()), p[eq], q[eq]),

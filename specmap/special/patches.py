@@ -101,7 +101,7 @@ def _row_boxes(lat, cells: np.ndarray) -> list:
 
 
 def patch_polygons(table: PairTable, samples: Samples, codes: np.ndarray, cells: np.ndarray, tol: float,
-                   *, sub: int = 8) -> dict[int, object]:
+                   *, sub: int = 8) -> dict[int, shapely.Geometry]:
     """Polygon (shapely) of every tie with patch cells, boundary refined by sub-cells."""
     lat = samples.lattice
     out: dict[int, object] = {}

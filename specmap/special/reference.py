@@ -154,10 +154,8 @@ def segment_links(lines: list, eps: float) -> tuple[np.ndarray, np.ndarray]:
     sid = np.repeat(np.arange(len(p)), tot)
     k = np.arange(int(tot.sum())) - np.repeat(np.cumsum(tot) - tot, tot)
     dy, dx = np.divmod(k, nx_[sid])
-    segs = [sid]
-    bins = [(c0[sid, 1] + dy) * width + c0[sid, 0] + dx]
-    segs = np.concatenate(segs)
-    bins = np.concatenate(bins)
+    segs = sid
+    bins = (c0[sid, 1] + dy) * width + c0[sid, 0] + dx
     n_lines = len(lines)
     # round 1: lines sharing an end point or vertex (to eps) are linked without tests
     key = np.round(np.vstack([p, q]) / eps).astype(np.int64)

@@ -42,4 +42,5 @@ def edge_side_cell(e: int, side: int, n_a: int, n_b: int) -> tuple[int, int]:
 @numba.njit(cache=True, nogil=True, error_model="numpy")
 def interval_of(nodes: np.ndarray, x: float) -> int:
     """Index k of the interval [nodes[k], nodes[k+1]] holding x, clipped to the first and last."""
-    return min(max(np.searchsorted(nodes, x, side="right") - 1, 0), nodes.size - 2)
+    k = int(np.searchsorted(nodes, x, side="right")) - 1
+    return min(max(k, 0), nodes.size - 2)
