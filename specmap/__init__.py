@@ -13,7 +13,7 @@ Python entry points (each a pure computation; I/O stays in the CLI):
 
 from __future__ import annotations
 
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 __version__ = "0.1.0"
 
@@ -28,13 +28,29 @@ _LAZY = {
     "pareto_grid": ("specmap.grids", "pareto_grid"),
     "Window": ("specmap.strip", "Window"),
     "special_set": ("specmap.special", "special_set"),
+    "Atlas": ("specmap.special.atlas", "Atlas"),
     "slice_diagrams": ("specmap.slices", "slice_diagrams"),
     "matching_distance": ("specmap.distance", "matching_distance"),
+    "DistanceResult": ("specmap.distance", "DistanceResult"),
     "perturbation_study": ("specmap.perturb", "perturbation_study"),
     "build_report": ("specmap.report.pdf", "build_report"),
 }
 
 __all__ = ["__version__", *_LAZY]
+
+if TYPE_CHECKING:  # editors and type checkers see the lazy names; at run time __getattr__ imports them
+    from specmap.distance import DistanceResult, matching_distance
+    from specmap.grids import pareto_grid
+    from specmap.grids.model import Contour, Grid, read_grid
+    from specmap.perturb import perturbation_study
+    from specmap.report.pdf import build_report
+    from specmap.shapes.build import build_shape
+    from specmap.shapes.model import Shape
+    from specmap.slices import slice_diagrams
+    from specmap.special import special_set
+    from specmap.special.atlas import Atlas
+    from specmap.strip import Window
+    from specmap.study import Study, load_study
 
 
 def __getattr__(name: str) -> Any:
