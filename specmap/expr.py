@@ -682,6 +682,88 @@ class CompiledMap:
         return np.array([e.linear_coefficients()[1] for e in self.exprs], dtype=np.float64)
 
 
+# --------------------------------------------------------------------------- domain on a surface
+
+
+def _guards(node: Node) -> list[tuple[str, Node]]:
+    """Sub-expressions that must keep one strict sign on a connected surface for ``node`` to be finite.
+
+    ``a / b`` and ``a ** c`` with ``c < 0`` need ``b`` (``a``) != 0; ``tan(u)`` needs ``cos(u)`` != 0;
+    ``log(u)`` needs ``u > 0``; ``sqrt(u)`` needs ``u >= 0`` (a sign change of ``u`` along an edge
+    means ``u < 0`` somewhere on it).
+    """
+    out: list[tuple[str, Node]] = []
+    stack: list[Node] = [node]
+    seen: set[int] = set()
+    while stack:
+        top = stack.pop()
+        if id(top) in seen:
+            continue
+        seen.add(id(top))
+        if isinstance(top, Binary):
+            if top.op == "/":
+                out.append(("a division by an expression that vanishes", top.right))
+            elif top.op == "**" and isinstance(top.right, Const) and top.right.value < 0:
+                out.append(("a negative power of an expression that vanishes", top.left))
+        elif isinstance(top, Call):
+            if top.func == "tan":
+                out.append(("tan at an odd multiple of pi/2", Call("cos", top.arg)))
+            elif top.func == "log":
+                out.append(("log of an expression that reaches 0", top.arg))
+            elif top.func == "sqrt":
+                out.append(("sqrt of an expression that turns negative", top.arg))
+        stack.extend(_children(top))
+    return out
+
+
+def domain_break(expr: Expr, P: np.ndarray, edges: np.ndarray) -> tuple[str, np.ndarray] | None:
+    """Where ``expr`` is certainly not finite on a surface sampled by a mesh, or None.
+
+    Vertex values alone miss a pole between vertices (``1/x`` on a sphere whose vertices avoid
+    x = 0). Every guard of :func:`_guards` is continuous where defined, so when it takes values of
+    opposite signs (or 0) at the two ends of a mesh edge it vanishes on the surface near that edge
+    (intermediate value theorem): the map has a pole or leaves its domain there.
+    A guard that only touches 0 without changing sign between two vertices (``log(x + 1)`` on
+    the unit sphere, zero at one point) is not seen: the check is certain when it fires, not
+    complete.
+
+    Parameters
+    ----------
+    expr : Expr
+    P : ndarray (n, 3)
+        Mesh vertices on the surface.
+    edges : ndarray (E, 2) of int
+        Mesh edges (vertex index pairs).
+
+    Returns
+    -------
+    (what, point) or None
+        A description of the singularity and the midpoint (3,) of the first edge where it lies.
+
+    Examples
+    --------
+    >>> P = np.array([[-1.0, 0, 0], [1.0, 0, 0]])
+    >>> domain_break(compile_expr("1/x"), P, np.array([[0, 1]]))[0]
+    'a division by an expression that vanishes'
+    >>> domain_break(compile_expr("1/(x*x + 1)"), P, np.array([[0, 1]])) is None
+    True
+    """
+    pts = _points(P)
+    env, _ = _inputs(pts[:, 0], pts[:, 1], pts[:, 2])
+    e = np.asarray(edges, dtype=np.int64).reshape(-1, 2)
+    for what, guard in _guards(expr._tree):
+        with np.errstate(all="ignore"):
+            g = np.broadcast_to(_evaluate(guard, env, {}), (len(pts),))
+        bad = ~np.isfinite(g[e[:, 0]]) | ~np.isfinite(g[e[:, 1]]) | (np.sign(g[e[:, 0]]) * np.sign(g[e[:, 1]]) <= 0)
+        if what.startswith("sqrt"):  # sqrt(0) is finite: only a strict sign change leaves the domain
+            bad = (np.sign(g[e[:, 0]]) * np.sign(g[e[:, 1]]) < 0) | ~np.isfinite(g[e[:, 0]] + g[e[:, 1]])
+        hit = np.nonzero(bad)[0]
+        if hit.size:
+            k = int(hit[0])
+            return what, 0.5 * (pts[e[k, 0]] + pts[e[k, 1]])
+    return None
+
+
 def _points(P: np.ndarray) -> np.ndarray:
     pts = np.asarray(P, dtype=np.float64)
     if pts.ndim != 2 or pts.shape[1] != 3:

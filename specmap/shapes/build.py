@@ -12,7 +12,8 @@ from __future__ import annotations
 import numpy as np
 
 from specmap.errors import SpecmapInputError, StudyError
-from specmap.expr import compile_map
+from specmap.expr import CompiledMap, compile_map, domain_break
+from specmap.meshtable import mesh_edges
 from specmap.shapes.meshes import read_mesh
 from specmap.shapes.model import Shape
 from specmap.shapes.surfaces import make_surface
@@ -50,6 +51,7 @@ def build_shape(spec, study) -> Shape:
         V, T = surface.mesh(spec.resolution)
         values = fmap.values(V)
         _check_values(values, file, f"{label}.map")
+        _check_domain(fmap, V, T, file, f"{label}.map")
         return Shape(label, "surface", V, T, values, surface=surface, fmap=fmap,
                      description=spec.describe(),
                      meta={"resolution": spec.resolution, "vertices": len(V), "route": spec.route})
@@ -58,9 +60,24 @@ def build_shape(spec, study) -> Shape:
     values = fmap.values(V) if fmap is not None else fields
     _check_values(values, str(spec.path) if fmap is None else file,
                   f"{label}.fields" if fmap is None else f"{label}.map")
+    if fmap is not None:
+        _check_domain(fmap, V, T, file, f"{label}.map")
     return Shape(label, "mesh", V, T, values, fmap=fmap, description=spec.describe(),
                  meta={"path": str(spec.path), "vertices": len(V), "simplify": spec.simplify,
                        "hygiene": hygiene})
+
+
+def _check_domain(fmap: CompiledMap, V: np.ndarray, T: np.ndarray, file: str, field: str) -> None:
+    """Refuse a map with a pole or a domain boundary on the surface (between vertices too)."""
+    edges = mesh_edges(T)
+    for i, e in enumerate(fmap.exprs):
+        hit = domain_break(e, V, edges)
+        if hit is not None:
+            what, at = hit
+            where = ", ".join(f"{c:.4g}" for c in at)
+            raise StudyError(f"{e.text!r} is not finite on the whole surface: {what} near ({where})",
+                             file=file, field=f"{field}[{i}]",
+                             fix="use a map that is finite and smooth on the whole shape")
 
 
 def _check_values(values: np.ndarray, file: str, field: str) -> None:
