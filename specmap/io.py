@@ -10,7 +10,7 @@ import json
 import math
 import os
 import tempfile
-from collections.abc import Iterator
+from collections.abc import Iterable, Iterator
 from pathlib import Path
 from typing import Any
 
@@ -82,6 +82,68 @@ def write_json(path: str | Path, obj: Any) -> Path:
     """Write JSON atomically (indent 2, plain floats, inf as "inf")."""
     p = Path(path)
     _atomic_write_bytes(p, (json.dumps(to_plain(obj), indent=2) + "\n").encode())
+    return p
+
+
+def _indented(text: str, pad: str) -> str:
+    return text.replace("\n", "\n" + pad)
+
+
+def write_json_streamed(path: str | Path, head: dict[str, Any], key: str, items: Iterable[Any]) -> Path:
+    """Write ``{**head, key: list(items)}`` atomically, one item at a time.
+
+    The bytes are those :func:`write_json` would write for the whole object (indent 2, with
+    ``key`` at its place in ``head``'s order), but the list is never held as one string: each
+    item is serialised and written as it comes, so output larger than memory is fine.
+
+    Parameters
+    ----------
+    head : dict
+        The other keys; ``head[key]`` (any value, e.g. None) marks where the list goes.
+    key : str
+    items : iterable
+        JSON-serialisable items (e.g. GeoJSON features), consumed once.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> d = pathlib.Path(tempfile.mkdtemp())
+    >>> _ = write_json_streamed(d / "a.json", {"type": "T", "features": None, "n": 2}, "features",
+    ...                         iter([{"id": 1}, {"id": 2}]))
+    >>> _ = write_json(d / "b.json", {"type": "T", "features": [{"id": 1}, {"id": 2}], "n": 2})
+    >>> (d / "a.json").read_bytes() == (d / "b.json").read_bytes()
+    True
+    """
+    p = Path(path)
+    if key not in head:
+        raise ValueError(f"head has no key {key!r} to place the streamed list")
+    p.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(prefix=f".{p.name}.", suffix=".tmp", dir=p.parent)
+    try:
+        with os.fdopen(fd, "w", encoding="utf-8") as fh:
+            os.fchmod(fh.fileno(), 0o666 & ~_current_umask())
+            fh.write("{")
+            for i, (k, v) in enumerate(head.items()):
+                fh.write(("," if i else "") + "\n  " + json.dumps(k) + ": ")
+                if k != key:
+                    fh.write(_indented(json.dumps(to_plain(v), indent=2), "  "))
+                    continue
+                fh.write("[")
+                n = 0
+                for item in items:
+                    fh.write(("," if n else "") + "\n    " + _indented(json.dumps(to_plain(item), indent=2), "    "))
+                    n += 1
+                fh.write("\n  ]" if n else "]")
+            fh.write("\n}\n" if head else "}\n")
+            fh.flush()
+            os.fsync(fh.fileno())
+        os.replace(tmp, p)
+    except BaseException:
+        try:
+            os.unlink(tmp)
+        except FileNotFoundError:
+            pass
+        raise
     return p
 
 

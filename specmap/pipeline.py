@@ -19,7 +19,7 @@ from typing import Any
 from specmap import __version__
 from specmap.errors import SpecmapInputError
 from specmap.grids.model import Grid, read_grid
-from specmap.io import check_out_dir, read_json, write_json
+from specmap.io import check_out_dir, read_json, write_json, write_json_streamed
 from specmap.progress import Progress
 from specmap.shapes.model import Shape
 from specmap.strip import Window, window_for
@@ -147,10 +147,11 @@ class StudyRun:
         from specmap.report.figures import save_png, special_figure
 
         atlas = self.atlas(**kw)
-        js, geo = atlas.to_json(), atlas.to_geojson()
+        js = atlas.to_json()
         write_json(self.out / "special.json", js)
-        write_json(self.out / "special.geojson", geo)
-        save_png(special_figure(js, geo), self.out / "figures" / "special.png")
+        # streamed feature by feature: the GeoJSON text is never held whole in memory (issue 14 item 3)
+        write_json_streamed(self.out / "special.geojson", atlas.geojson_head(), "features", atlas.iter_features())
+        save_png(special_figure(js, atlas.to_geojson()), self.out / "figures" / "special.png")
         return js
 
     def write_distance(self, *, method: str | None = None, degrees: tuple[int, ...] | None = None,

@@ -11,6 +11,7 @@ References
 
 from __future__ import annotations
 
+from collections.abc import Iterator
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -112,15 +113,20 @@ class Atlas:
             "stats": self.stats,
         })
 
-    def to_geojson(self) -> dict[str, Any]:
-        """FeatureCollection, one feature per component, coordinates (a, b)."""
-        feats = []
+    def iter_features(self) -> Iterator[dict[str, Any]]:
+        """The GeoJSON features, one per component, made one at a time (for streamed writing)."""
         for c in self.components:
             geom = mapping(c.geometry) if c.geometry is not None else None
-            feats.append({"type": "Feature", "id": c.id, "geometry": to_plain(geom),
-                          "properties": c.summary()})
-        return {"type": "FeatureCollection", "features": feats,
+            yield {"type": "Feature", "id": c.id, "geometry": to_plain(geom), "properties": c.summary()}
+
+    def geojson_head(self) -> dict[str, Any]:
+        """The FeatureCollection without its features (``"features": None`` marks their place)."""
+        return {"type": "FeatureCollection", "features": None,
                 "properties": {k: v for k, v in self.to_json().items() if k != "components"}}
+
+    def to_geojson(self) -> dict[str, Any]:
+        """FeatureCollection, one feature per component, coordinates (a, b)."""
+        return {**self.geojson_head(), "features": list(self.iter_features())}
 
 
 @dataclass(frozen=True)
