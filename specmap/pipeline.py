@@ -30,16 +30,71 @@ def default_out(study: Study) -> Path:
     return Path("results") / study.name
 
 
-def load_input(spec: ShapeSpec, study: Study) -> Shape | Grid:
-    """What a study gives for f or g: a :class:`Shape` (surface or mesh), or the :class:`Grid` of a grid file.
+def load_input(spec: ShapeSpec, study: Study) -> tuple[Shape | Grid, dict[str, Any] | None]:
+    """What a study gives for f or g, and the record of its simplification (None when not simplified).
 
-    A grid file's contour ids are prefixed with the spec's label (``"f"`` or ``"g"``).
+    The first item is a :class:`Shape` (surface or mesh) or the :class:`Grid` of a grid file
+    (contour ids prefixed with the spec's label, ``"f"`` or ``"g"``). A mesh with ``simplify = δ``
+    or ``"auto"`` gets its values replaced by the simplified pair of
+    :func:`specmap.simplify.simplify_values` (counting the contours of the PL grid, budget
+    ``[map] max_contours``); grids, map, distance and perturbations then all use that pair.
     """
     if spec.source == "grid":
-        return read_grid(spec.path, prefix=spec.label)
+        return read_grid(spec.path, prefix=spec.label), None
     from specmap.shapes.build import build_shape  # local: meshio, scipy and the expression compiler
 
-    return build_shape(spec, study)
+    shape = build_shape(spec, study)
+    if spec.source != "mesh" or not spec.simplify:
+        return shape, None
+    import numpy as np
+
+    from specmap.grids.piecewise import piecewise_grid
+    from specmap.simplify import simplify_values
+
+    V, T = shape.vertices, shape.triangles
+
+    def contours(f1: np.ndarray, f2: np.ndarray) -> int:
+        return len(piecewise_grid(V, T, np.column_stack([f1, f2]), label=spec.label))
+
+    values, record = simplify_values(T, shape.values, spec.simplify, contours, budget=study.map.max_contours)
+    if record["met"] is False:
+        print(f"specmap: note: {spec.label}: simplify=auto: {record['contours_after']} contours left, budget "
+              f"{record['budget']} not met (delta {record['delta']:.3g}); the simplified pair is used; give "
+              "simplify = <larger delta>, raise [map] max_contours, or use a coarser mesh", file=sys.stderr)
+    return shape.with_values(values), record
+
+
+def with_simplified_bounds(js: dict[str, Any], rec_f: dict | None, rec_g: dict | None) -> dict[str, Any]:
+    """Add ``simplified_bounds`` per degree to a ``distance.json`` of a simplified pair.
+
+    With s_f, s_g the measured sup-norm changes of f and g (the larger over their two
+    components), the stability theorem [CDFFL13]_ gives |D(f, g) - D(f', g')| <= s_f + s_g for
+    the matching distance in each degree. So the distance of the original pair lies in
+    ``[lower - (s_f + s_g), upper + (s_f + s_g)]``, where [lower, upper] is the certified
+    interval of the simplified pair (``bounds`` of the degree) if there is one, else [D', D'];
+    the lower end is clipped at 0 (a distance). Unchanged when neither side was simplified.
+
+    References
+    ----------
+    .. [CDFFL13] Cerri, Di Fabio, Ferri, Frosini, Landi, "Betti numbers in multidimensional
+       persistent homology are stable functions", Math. Methods Appl. Sci. 36 (2013).
+    """
+    if rec_f is None and rec_g is None:
+        return js
+    s_f, s_g = (max(rec["sup_change"]) if rec else 0.0 for rec in (rec_f, rec_g))
+    margin = float(s_f + s_g)
+    for entry in (js.get("by_degree") or {}).values():
+        bounds = entry.get("bounds")
+        lower, upper = bounds if isinstance(bounds, (list, tuple)) and len(bounds) == 2 else (
+            entry.get("value"), entry.get("value"))
+        if isinstance(lower, (int, float)) and isinstance(upper, (int, float)):
+            entry["simplified_bounds"] = [max(0.0, float(lower) - margin), float(upper) + margin]
+        else:  # no finite value in this degree
+            entry["simplified_bounds"] = None
+    js["simplification"] = {"sup_change_f": float(s_f), "sup_change_g": float(s_g), "margin": margin,
+                            "note": "values are those of the simplified pair; simplified_bounds hold the "
+                                    "distance of the original pair (stability theorem [CDFFL13])"}
+    return js
 
 
 class StudyRun:
@@ -74,9 +129,18 @@ class StudyRun:
 
     # -- stages -----------------------------------------------------------
     @cached_property
-    def inputs(self) -> tuple[Shape | Grid, Shape | Grid]:
-        """f and g as the study gives them (see :func:`load_input`)."""
+    def _loaded(self) -> tuple[tuple[Shape | Grid, dict | None], tuple[Shape | Grid, dict | None]]:
         return load_input(self.study.f, self.study), load_input(self.study.g, self.study)
+
+    @property
+    def inputs(self) -> tuple[Shape | Grid, Shape | Grid]:
+        """f and g as the study gives them, simplified where it asks (see :func:`load_input`)."""
+        return self._loaded[0][0], self._loaded[1][0]
+
+    @property
+    def simplification(self) -> tuple[dict | None, dict | None]:
+        """The simplification records of f and g (None for a side not simplified)."""
+        return self._loaded[0][1], self._loaded[1][1]
 
     @cached_property
     def shapes(self) -> tuple[Shape | None, Shape | None]:
@@ -89,7 +153,8 @@ class StudyRun:
         from specmap.grids import pareto_grid
 
         try:
-            gf, gg = (x if isinstance(x, Grid) else pareto_grid(x) for x in self.inputs)
+            gf, gg = (x if isinstance(x, Grid) else pareto_grid(x, simplification=rec)
+                      for x, rec in self._loaded)
         except SpecmapInputError as exc:  # core errors name the field; the study file is known here
             raise exc.located(file=str(self.study.path)) from None
         return gf, gg
@@ -129,6 +194,7 @@ class StudyRun:
             "g": s.g.to_json(),
             "constants": s.constants,
             "window": self.window.to_json(),
+            "simplification": {"f": self.simplification[0], "g": self.simplification[1]},
             "specmap_version": __version__,
             "commands": commands[-50:],
         })
@@ -167,7 +233,7 @@ class StudyRun:
             atlas=atlas, grids=self.grids, jobs=jobs,
             dense_resolution=self.study.distance.dense_resolution, progress=self.progress("distance"),
         )
-        js = result.to_json()
+        js = with_simplified_bounds(result.to_json(), *self.simplification)
         write_json(self.out / "distance.json", js)
         geo = atlas.to_geojson() if atlas is not None else None
         if js.get("landscape"):

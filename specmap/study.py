@@ -28,7 +28,8 @@ Format (all tables but ``[study]``, ``[f]``, ``[g]`` optional)::
     a = [0.02, 0.98]
     b = [-3.0, 3.0]
 
-    [map]      pairs = "all" | "roles", resolution = 121, method = "sweep" | "naive"
+    [map]      pairs = "all" | "roles", resolution = 121, method = "sweep" | "naive",
+               max_contours = 60     # budget per grid for a mesh's simplify = "auto"
     [distance] method = "both", degrees = [0, 1, 2], dense_resolution = 41
     [perturb]  model = "function" | "grid", size = 1e-3, runs = 20, seed = 1,
                sizes = [1e-3, 1e-2], distance = false
@@ -84,7 +85,7 @@ class ShapeSpec:
     map: tuple[str, str] | None = None
     fields: tuple[str, str] | None = None
     resolution: int = 3000
-    simplify: float = 0.0
+    simplify: float | str = 0.0  # mesh: delta >= 0 (value units, 0 = off) or "auto" (see specmap.simplify)
     route: str = "auto"
 
     def describe(self) -> str:
@@ -106,6 +107,7 @@ class ShapeSpec:
             "map": list(self.map) if self.map else None,
             "fields": list(self.fields) if self.fields else None,
             "resolution": self.resolution,
+            "simplify": self.simplify,
             "description": self.describe(),
         }
 
@@ -115,6 +117,7 @@ class MapSpec:
     pairs: str = "all"
     resolution: int = 121
     method: str = "sweep"
+    max_contours: int = 60  # contour budget per grid for simplify = "auto"
 
 
 @dataclass(frozen=True)
@@ -270,9 +273,14 @@ def _shape(r: _Reader, data: dict, label: str, base: Path) -> ShapeSpec:
         route = r.choice(t, label, "route", "auto", ("auto", "smooth", "exact", "piecewise"))
         return ShapeSpec(label, "surface", surface=kind, radii=radii, map=fmap, resolution=res, route=route)
     path = _path(r, t, label, "mesh", base, MESH_SUFFIXES)
-    simplify = r.number(t, label, "simplify", 0.0)
-    if simplify < 0:
-        raise r.fail(f"{label}.simplify", "is negative", "set simplify >= 0 (0 = off)")
+    simplify: float | str = "auto"
+    fix = 'set simplify = <number >= 0> (value units, 0 = off) or "auto"'
+    if t.get("simplify") != "auto":
+        if isinstance(t.get("simplify"), str):
+            raise r.fail(f"{label}.simplify", f"unknown value {t['simplify']!r}", fix)
+        simplify = r.number(t, label, "simplify", 0.0)
+        if simplify < 0:
+            raise r.fail(f"{label}.simplify", f"{simplify:g} is negative", fix)
     return ShapeSpec(label, "mesh", path=path, map=fmap, fields=fields, simplify=simplify)
 
 
@@ -325,12 +333,13 @@ def parse_study(data: dict[str, Any], path: Path) -> Study:
         if not b[0] < b[1]:
             raise r.fail("window.b", f"{list(b)} is empty", "give b = [lo, hi] with lo < hi")
         window = Window(a, b)
-    mt = r.table(data, "map", False, {"pairs", "resolution", "method"})
+    mt = r.table(data, "map", False, {"pairs", "resolution", "method", "max_contours"})
     mspec = MapSpec(
         pairs=r.choice(mt, "map", "pairs", "all", ("all", "roles")),
         resolution=r.integer(mt, "map", "resolution", 121, lo=LIMITS["map.resolution"][0],
                              hi=LIMITS["map.resolution"][1]),
         method=r.choice(mt, "map", "method", "sweep", ("sweep", "naive")),
+        max_contours=r.integer(mt, "map", "max_contours", 60, lo=1),
     )
     dt = r.table(data, "distance", False, {"method", "degrees", "dense_resolution"})
     degrees = (0, 1, 2)

@@ -181,22 +181,6 @@ def test_ties_are_broken_consistently():
         assert c["min"] - c["saddle"] + c["max"] == 0
 
 
-def test_simplify_drops_and_merges():
-    V, T = ellipsoid_mesh(RADII, 16, seed=7)
-    F = V @ LMAP.T
-    full = piecewise_grid(V, T, F)
-    s = 0.05
-    simple = piecewise_grid(V, T, F, simplify=s, label="g")
-    assert simple.meta["simplify"] == s
-    assert all(c.id.startswith("g:") for c in simple.contours)
-    n_full = sum(len(c.points) for c in full.by_kind("proper"))
-    n_simple = sum(len(c.points) for c in simple.by_kind("proper"))
-    assert n_simple < n_full
-    # Douglas-Peucker keeps every dropped vertex within s of the simplified polyline
-    d = cKDTree(densify(simple, s / 20)).query(densify(full, 1.0))[0]
-    assert d.max() <= s * 1.05
-
-
 def test_speed_20k(capsys):
     V, T = ellipsoid_mesh(RADII, 45, seed=2)  # 20252 vertices
     F = random_smooth_map(V, 11)

@@ -44,16 +44,17 @@ def route_for(shape: Shape) -> str:
     return "exact" if exact_ok else "smooth"
 
 
-def pareto_grid(shape: Shape, *, simplify: float | None = None) -> Grid:
+def pareto_grid(shape: Shape, *, simplification: dict | None = None) -> Grid:
     """The extended Pareto grid of a shape [CEF19].
 
     Parameters
     ----------
     shape : Shape
         A surface or a mesh (a grid file is read with :func:`read_grid` instead).
-    simplify : float, optional
-        PL route only: drop proper contours shorter than this (value units);
-        default is the shape's own setting (off).
+    simplification : dict, optional
+        PL route only: the record of :func:`specmap.simplify.simplify_values` when the
+        shape's values were simplified; copied into ``meta["simplification"]`` (``delta``,
+        ``sup_change``, ``contours_before``, ``contours_after``, ...).
 
     Returns
     -------
@@ -67,11 +68,12 @@ def pareto_grid(shape: Shape, *, simplify: float | None = None) -> Grid:
     route = route_for(shape)
     label = shape.label
     if route == "piecewise":
-        s = shape.meta.get("simplify", 0.0) if simplify is None else simplify
-        grid = piecewise_grid(shape.vertices, shape.triangles, shape.values, label=label, simplify=s)
+        grid = piecewise_grid(shape.vertices, shape.triangles, shape.values, label=label)
         hygiene = shape.meta.get("hygiene")
         if hygiene:  # what reading the mesh cleaned (loose/duplicate vertices, collapsed triangles)
             grid = dataclasses.replace(grid, meta={**grid.meta, "mesh_hygiene": dict(hygiene)})
+        if simplification:  # the values were simplified before the grid (specmap.simplify)
+            grid = dataclasses.replace(grid, meta={**grid.meta, "simplification": dict(simplification)})
         return grid
     if route == "exact":
         return ellipsoid_linear_grid(shape.surface.radii, shape.fmap.matrix(), shape.fmap.offset(),

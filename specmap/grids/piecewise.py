@@ -55,7 +55,6 @@ References
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
 
 import numpy as np
@@ -226,40 +225,12 @@ def _pieces(edges: np.ndarray, cut: np.ndarray, r1: np.ndarray) -> list[np.ndarr
     return np.split(verts, splits)
 
 
-def _douglas_peucker(points: np.ndarray, tol: float) -> np.ndarray:
-    """Indices kept by Douglas-Peucker simplification at distance ``tol``."""
-    n = len(points)
-    if n <= 2 or tol <= 0:
-        return np.arange(n)
-    keep = np.zeros(n, dtype=bool)
-    keep[0] = keep[-1] = True
-    stack = [(0, n - 1)]
-    while stack:
-        i, j = stack.pop()
-        if j - i < 2:
-            continue
-        seg = points[j] - points[i]
-        rel = points[i + 1:j] - points[i]
-        length = math.hypot(*seg)
-        if length == 0.0:
-            dist = np.hypot(rel[:, 0], rel[:, 1])
-        else:
-            dist = np.abs(seg[0] * rel[:, 1] - seg[1] * rel[:, 0]) / length
-        k = int(np.argmax(dist))
-        if dist[k] > tol:
-            keep[i + 1 + k] = True
-            stack.append((i, i + 1 + k))
-            stack.append((i + 1 + k, j))
-    return np.nonzero(keep)[0]
-
-
 def piecewise_grid(
     V: np.ndarray,
     T: np.ndarray,
     values: np.ndarray,
     *,
     label: str = "f",
-    simplify: float = 0.0,
 ) -> Grid:
     """Extended Pareto grid of the PL map given by vertex values on a closed triangle mesh.
 
@@ -274,19 +245,16 @@ def piecewise_grid(
         (f1, f2) at the vertices, value units.
     label : str
         Prefix of the contour ids: ``"<label>:p<k>"`` proper, ``"<label>:v<k>"``
-        vertical, ``"<label>:h<k>"`` horizontal.
-    simplify : float
-        Value units; 0 (default) keeps every piece. When positive, proper
-        contours shorter than ``simplify`` are dropped and the others are
-        simplified by Douglas-Peucker at that tolerance (a subsequence of a
-        non-increasing polyline stays non-increasing).
+        vertical, ``"<label>:h<k>"`` horizontal. Every Pareto piece is kept; to
+        remove short-lived critical pairs, simplify the values first
+        (:func:`specmap.simplify.simplify_values`).
 
     Returns
     -------
     Grid
         ``route="piecewise"``, ``tolerance`` = largest edge variation
         max |f(u) - f(v)| (Euclidean, value units), and ``meta`` with
-        ``vertices``, ``simplify``, ``pareto_edges``, ``dropped`` and
+        ``vertices``, ``pareto_edges`` and
         ``critical_vertices`` {"f1"|"f2": {"min", "saddle", "max"}} (saddles
         with multiplicity). One half-line per critical vertex (a monkey saddle
         of multiplicity k still gives one half-line).
@@ -313,18 +281,7 @@ def piecewise_grid(
     cut[crit2.vertices] = True
     pieces = _pieces(pe, cut, r1)
 
-    contours: list[Contour] = []
-    dropped = 0
-    k = 0
-    for verts in pieces:
-        pts = F[verts]
-        if simplify > 0:
-            if float(np.hypot(*np.diff(pts, axis=0).T).sum()) < simplify:
-                dropped += 1
-                continue
-            pts = pts[_douglas_peucker(pts, simplify)]
-        contours.append(Contour(f"{label}:p{k}", "proper", pts))
-        k += 1
+    contours = [Contour(f"{label}:p{k}", "proper", F[verts]) for k, verts in enumerate(pieces)]
     for j, p in enumerate(crit1.vertices):
         contours.append(Contour(f"{label}:v{j}", "vertical", F[p]))
     for j, q in enumerate(crit2.vertices):
@@ -334,9 +291,7 @@ def piecewise_grid(
     tolerance = float(np.hypot(diffs[:, 0], diffs[:, 1]).max()) if len(diffs) else 0.0
     meta = {
         "vertices": int(n),
-        "simplify": float(simplify),
         "pareto_edges": int(mask.sum()),
-        "dropped": int(dropped),
         "critical_vertices": {"f1": crit1.counts(), "f2": crit2.counts()},
     }
     grid = Grid(tuple(contours), route="piecewise", tolerance=tolerance, meta=meta)

@@ -32,6 +32,14 @@ def _grid_sentences(res: dict[str, Any]) -> list[str]:
             f"{kinds.count('horizontal')} horizontal half-lines (route {grid.get('route', 'n/a')}, "
             f"tolerance {fmt(grid.get('tolerance'), 3)})."
         )
+    simp = {n: (res.get(f"grid_{n}") or {}).get("meta", {}).get("simplification") for n in ("f", "g")}
+    if any(simp.values()):
+        said = "; ".join(f"{n}: delta {fmt(r.get('delta'), 3)}, sup change {fmt(max(r.get('sup_change') or [0]), 3)}"
+                         f", {r.get('contours_before')} -> {r.get('contours_after')} contours"
+                         for n, r in simp.items() if r)
+        out.append(f"The values were simplified ({said}): the grids, the special set and the distance shown are "
+                   "those of the simplified pair; the original pair's distance lies in the simplified_bounds "
+                   "of distance.json (stability theorem).")
     return out
 
 
