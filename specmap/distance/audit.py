@@ -14,38 +14,86 @@ from specmap.slices import SliceEngine
 from specmap.strip import Window, line_parameter, push_scale
 
 
-def theorem_audit(dense: DenseSweep, by_degree: dict[int, dict[str, Any]], degrees: Sequence[int],
-                  vmax: float, tolerance: float) -> dict[str, Any]:
-    """How far the dense sweep exceeds the reduced search (main theorem [EFQT23, FMQT]: it should not).
+def _line(at) -> list[float] | None:
+    return point_json(at) if all(math.isfinite(x) for x in at) else None
 
-    Compares each certified degree with its dense value, and the max over degrees
-    ``vmax`` with the dense maximum; warns when the largest gap exceeds ``tolerance``.
+
+def theorem_audit(dense: DenseSweep | None, by_degree: dict[int, dict[str, Any]], degrees: Sequence[int],
+                  tolerance: float, *, upper: float) -> dict[str, Any]:
+    """The reduced search against two independent checks, both ways, per degree [EFQT23, FMQT].
+
+    For each degree k with reduced value R_k:
+
+    (a) ``reduced_above_upper``: R_k > U_k + tol, U_k the smallest *rigorous* upper bound
+        (the a-priori ``upper`` of :func:`~specmap.distance.bounds.distance_upper_bound`,
+        and the dense sweep's node max plus cell error bound when it ran). R_k is a value
+        of h_k, so this flags an evaluation or bound error;
+    (b) ``dense_above_reduced``: the dense sweep's best D^dense_k > R_k + tol: the
+        reduced search missed a larger value (the theorem's hypotheses fail on the
+        grids, or a search stopped early). Not run (None) without a dense sweep.
+
+    The two computations share the evaluator's memo, not their decisions (the
+    reduced search takes only its own lines as its values).
 
     Returns
     -------
-    dict ``{"theorem_gap", "gap", "degree", "line"}`` (``degree`` and ``line`` None when
-    no gap is finite or NaN-free).
+    dict
+        ``theorem_gap`` (any flag; None when (b) did not run), ``gap`` (largest
+        D^dense_k - R_k), ``degree``, ``line`` (where the worst flag, else the
+        largest gap, happens), and ``theorem`` with ``reduced_above_upper``,
+        ``dense_above_reduced`` and ``by_degree[k]`` (the two differences, flags, lines).
 
     Warns
     -----
     UserWarning
-        When the gap exceeds the tolerance.
+        For each flag.
     """
-    out: dict[str, Any] = {"theorem_gap": False, "gap": 0.0}
-    # certified degrees against their dense values, and the max over degrees
-    gaps = [(dense.best[j][0] - by_degree[k]["value"], dense.best[j][1], k)
-            for j, k in enumerate(degrees) if by_degree[k]["certified"]]
-    dbest = max(range(len(degrees)), key=lambda j: dense.best[j][0])
-    gaps.append((dense.best[dbest][0] - vmax, dense.best[dbest][1], degrees[dbest]))
-    gaps = [g for g in gaps if not math.isnan(g[0])]  # inf: the reduced search found nothing
+    rows: dict[str, dict[str, Any]] = {}
+    flags: list[tuple[float, str, int, Any]] = []
+    gaps: list[tuple[float, int, Any]] = []
+    for j, k in enumerate(degrees):
+        r, r_at = by_degree[k]["value"], by_degree[k]["at"]
+        u = min(upper, dense.upper(j)) if dense is not None else upper
+        row: dict[str, Any] = {"reduced_minus_upper": None, "reduced_above_upper": None,
+                               "dense_minus_reduced": None, "dense_above_reduced": None, "line": None}
+        if math.isfinite(r) and math.isfinite(u):
+            row["reduced_minus_upper"] = float(r - u)
+            row["reduced_above_upper"] = bool(r - u > tolerance)
+            if row["reduced_above_upper"]:
+                flags.append((r - u, "reduced above the certified upper bound", k, r_at))
+                row["line"] = _line(r_at)
+        elif math.isfinite(r) or math.isfinite(u):
+            row["reduced_above_upper"] = bool(r > u)  # inf against a finite bound: a contradiction
+        if dense is not None:
+            d, d_at = dense.best[j]
+            with np.errstate(invalid="ignore"):
+                diff = float(d - r) if not (math.isinf(d) and math.isinf(r)) else 0.0
+            if not math.isnan(diff):
+                row["dense_minus_reduced"] = diff
+                row["dense_above_reduced"] = bool(diff > tolerance)
+                gaps.append((diff, k, d_at))
+                if diff > tolerance:
+                    flags.append((diff, "dense sweep exceeds the reduced search", k, d_at))
+                    row["line"] = _line(d_at)
+        rows[str(k)] = row
+    above = [r["reduced_above_upper"] for r in rows.values() if r["reduced_above_upper"] is not None]
+    below = [r["dense_above_reduced"] for r in rows.values() if r["dense_above_reduced"] is not None]
+    out: dict[str, Any] = {"theorem_gap": None, "gap": None, "degree": None, "line": None,
+                           "theorem": {"reduced_above_upper": any(above) if above else None,
+                                       "dense_above_reduced": any(below) if below else None,
+                                       "by_degree": rows}}
     if gaps:
-        gap, line, k = max(gaps, key=lambda g: g[0])
-        out.update(gap=float(gap), degree=k, line=point_json(line))
-        if gap > tolerance:
-            out["theorem_gap"] = True
+        gap, k, at = max(gaps, key=lambda g: g[0])
+        out.update(gap=float(gap), degree=k, line=_line(at))
+    if dense is not None or flags:
+        out["theorem_gap"] = bool(flags)
+    if flags:
+        size, what, k, at = max(flags, key=lambda f: f[0])
+        out.update(degree=k, line=_line(at))
+        for size, what, k, at in flags:
             # stacklevel 3: the caller of matching_distance
-            warnings.warn(f"dense sweep exceeds the reduced search by {gap:.4g} > tolerance {tolerance:.3g} "
-                          f"in degree {k} at (a, b) = ({line[0]:.4g}, {line[1]:.4g})", stacklevel=3)
+            warnings.warn(f"{what} by {size:.4g} > tolerance {tolerance:.3g} in degree {k} at (a, b) = "
+                          f"({at[0]:.4g}, {at[1]:.4g})", stacklevel=3)
     return out
 
 

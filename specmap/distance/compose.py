@@ -8,6 +8,7 @@ from typing import Any
 
 from specmap.distance.audit import position_audit, theorem_audit
 from specmap.distance.bounds import distance_upper_bound, lipschitz_constants, value_range
+from specmap.distance.certify import degree_certificate, mesh_tolerance, resolution_check
 from specmap.distance.dense import dense_sweep
 from specmap.distance.evaluator import LineEvaluator, Progress
 from specmap.distance.reduced import ReducedSettings, reduced_search
@@ -62,8 +63,8 @@ def _reduced_stage(ev: LineEvaluator, window: Window, pair: tuple | None, atlas,
 
 
 def _by_degree(red: ReducedSearch | None, dense: DenseSweep | None, degrees: Sequence[int],
-               tolerance: float, certify: str) -> dict[int, dict[str, Any]]:
-    """Per degree: value, line, where reached (slope-one / special / both / dense), certified or a lower bound."""
+               tolerance: float) -> dict[int, dict[str, Any]]:
+    """Per degree: value, line, where reached (slope-one / special / both / dense); certificates come later."""
     out: dict[int, dict[str, Any]] = {}
     for j, k in enumerate(degrees):
         if red is not None:
@@ -80,10 +81,19 @@ def _by_degree(red: ReducedSearch | None, dense: DenseSweep | None, degrees: Seq
             v, at = dense.best[j]
             entry = {"value": v, "at": at, "reached_on": "dense", "component": None}
         out[k] = entry
-    vmax = max(out[k]["value"] for k in degrees)
-    for k in degrees:
-        out[k]["certified"] = bool(red is None or certify == "each" or out[k]["value"] >= vmax - tolerance)
     return out
+
+
+def _certify_degrees(by_degree: dict[int, dict[str, Any]], degrees: Sequence[int], dense: DenseSweep | None,
+                     red: ReducedSearch | None, *, tolerance: float, upper: float, upper_kind: str,
+                     floors: tuple[float, float], max_lines: int) -> None:
+    """Add ``bounds``, ``certified``, ``why_not``, ``upper_kind``, ``resolved``, ``resolved_why`` per degree."""
+    for j, k in enumerate(degrees):
+        e = by_degree[k]
+        e.update(degree_certificate(j, e["value"], dense, red, tolerance=tolerance, upper=upper,
+                                    upper_kind=upper_kind, max_lines=max_lines))
+        e.update(resolution_check(e["value"], tolerance=tolerance, grid_tolerance=floors[0],
+                                  mesh_tol=floors[1]))
 
 
 # long by its docstring and public keyword signature only; the body composes the stages in about 40 lines
@@ -116,9 +126,9 @@ def matching_distance(shape_f, shape_g, *, method: str = "both", degrees: Iterab
     tolerance : float, optional
         Default: 1e-3 times the largest value range of f and g.
     slope_samples, spacing, roles, certify
-        Reduced search settings (:class:`~specmap.distance.reduced.ReducedSettings`). With
-        ``certify="max"`` the max over degrees is certified and ``by_degree`` values below
-        it are lower bounds (``"certified": false``); ``"each"`` certifies every degree.
+        Reduced search settings (:class:`~specmap.distance.reduced.ReducedSettings`). Every
+        degree is certified on its own (``by_degree[k]``: ``bounds``, ``certified``,
+        ``why_not``); ``certify="max"`` only limits the polish to degrees near the top value.
     position_lines : int
         Lines of the position audit (0 to skip).
 
@@ -158,16 +168,19 @@ def matching_distance(shape_f, shape_g, *, method: str = "both", degrees: Iterab
     if method in ("reduced", "both"):
         red = _reduced_stage(ev, window, pair, atlas, tolerance=tol, upper=upper, settings=settings)
 
-    by_degree = _by_degree(red, dense, degrees, tol, certify)
-    vmax = max(by_degree[k]["value"] for k in degrees)
+    by_degree = _by_degree(red, dense, degrees, tol)
+    grid_tol = max((float(g.tolerance) for g in pair), default=0.0) if pair is not None else 0.0
+    floors = (grid_tol, max(mesh_tolerance(shape_f), mesh_tolerance(shape_g)))
+    _certify_degrees(by_degree, degrees, dense, red, tolerance=tol, upper=upper, upper_kind=upper_kind,
+                     floors=floors, max_lines=settings.slope_max_lines)
     kmax = max(degrees, key=lambda k: by_degree[k]["value"])
     top = by_degree[kmax]
 
     # theorem_gap / gap stay None ("not run") unless both computations ran
     audit: dict[str, Any] = {"theorem_gap": None, "gap": None, "line": None, "degree": None,
                              "position": None, "upper_bound": upper, "upper_bound_kind": upper_kind}
-    if dense is not None and red is not None:
-        audit.update(theorem_audit(dense, by_degree, degrees, vmax, tol))
+    if red is not None:
+        audit.update(theorem_audit(dense, by_degree, degrees, tol, upper=upper))
     if pair is not None and position_lines > 0:
         audit["position"] = position_audit(shape_f, shape_g, pair, window, tolerance=tol, lines=position_lines)
 
@@ -178,5 +191,6 @@ def matching_distance(shape_f, shape_g, *, method: str = "both", degrees: Iterab
         tolerance=float(tol), infinite=list(ev.infinite),
         landscape=None if dense is None else landscape_json(dense, degrees), window=window,
         meta={"degrees": list(degrees), "lines_total": ev.lines, "jobs": int(jobs),
-              "lipschitz": {"a": lip[0], "b": lip[1]}},
+              "lipschitz": {"a": lip[0], "b": lip[1]},
+              "resolution_floor": {"distance": float(tol), "grid": floors[0], "mesh": floors[1]}},
     )

@@ -20,7 +20,7 @@ def dense_sweep(ev: LineEvaluator, window: Window, *, resolution: int = 41, refi
     """h_k on a ``resolution`` x ``resolution`` node grid, maxima refined by pattern search.
 
     The sampling-error bound (:func:`~specmap.distance.bounds.cell_error_bound`, per
-    degree, the largest reported): D_k <= max over nodes of h_k + error_bound,
+    degree in ``error_bounds``, the largest in ``error_bound``): D_k <= max over nodes of h_k + error_bound,
     rigorously for the meshed maps, by stability [CDFFL13] and the Lipschitz
     constants of :func:`~specmap.distance.bounds.lipschitz_constants` taken cell by cell.
 
@@ -59,8 +59,10 @@ def dense_sweep(ev: LineEvaluator, window: Window, *, resolution: int = 41, refi
             ev.plan(60)
             val, start = pattern_search(ev, j, start, (ha / 2, hb / 2), window)
         best.append((val, start))
-    err = math.inf
+    errs = [math.inf] * len(ev.degrees)
     if bounds is not None:
-        err = max(cell_error_bound(H[j], av, bv, *bounds) for j in range(len(ev.degrees)))
+        errs = [cell_error_bound(H[j], av, bv, *bounds) for j in range(len(ev.degrees))]
+    err = max(errs, default=math.inf)
     return DenseSweep(grid=H, a=av, b=bv, best=best, node_best=node_best, error_bound=err,
-                      lines=ev.lines - n0, seconds=time.perf_counter() - t0, resolution=int(resolution))
+                      lines=ev.lines - n0, seconds=time.perf_counter() - t0, resolution=int(resolution),
+                      error_bounds=errs)

@@ -42,7 +42,8 @@ class ReducedSettings:
     roles : bool
         Use the f/g roles of contours to skip ties of no two costs (math.md section 5).
     certify : {"max", "each"}
-        Certify the max over degrees, or each degree.
+        Every degree is certified on its own either way (issue 16); with ``"max"`` only the
+        degrees within the tolerance of the top one are polished.
     polish : bool
         Refine the best special candidate along its curve.
     batch : int or None
@@ -71,7 +72,12 @@ def _same_mesh(ev: LineEvaluator) -> bool:
 def _slope_one_phase(ev: LineEvaluator, window: Window, groups: list[list[int]], tolerance: float,
                      settings: ReducedSettings, step: int,
                      same_mesh: bool) -> tuple[list[Best], SlopeOneSearch | None]:
-    """Branch and bound on a = 1/2 to tolerance / 2, then the best evaluated line of a = 1/2 per degree."""
+    """Branch and bound on a = 1/2 to tolerance / 2, then the best line *of that search* per degree.
+
+    Lines of a = 1/2 evaluated by another stage (the dense sweep) share the
+    evaluator's memo but are not taken as slope-one values: the theorem audit
+    compares two computations that share no decision.
+    """
     nd = len(ev.degrees)
     slope = [Best() for _ in range(nd)]
     if not window.a[0] <= 0.5 <= window.a[1]:
@@ -79,17 +85,17 @@ def _slope_one_phase(ev: LineEvaluator, window: Window, groups: list[list[int]],
     info = slope_one_search(ev, window, groups, tolerance=tolerance / 2, samples=settings.slope_samples,
                             max_lines=settings.slope_max_lines, batch=step,
                             values=(ev.val_f, ev.val_g) if same_mesh else None)
-    for (a, b), v in list(ev.memo.items()):
-        if a == 0.5:
-            for j in range(nd):
-                slope[j].offer(v[j], (a, b), "slope-one")
+    for g, (v, b) in enumerate(zip(info.best, info.at, strict=True)):
+        for j in groups[g]:  # one degree per group
+            slope[j].offer(v, (0.5, b), "slope-one")
     return slope, info
 
 
-def _seeded_local_bound(ev: LineEvaluator, window: Window, groups: list[list[int]]) -> LocalBound:
-    """A :class:`LocalBound` holding every line evaluated so far."""
+def _seeded_local_bound(ev: LineEvaluator, window: Window, groups: list[list[int]],
+                        lines: list[tuple[float, float]]) -> LocalBound:
+    """A :class:`LocalBound` holding the ``lines`` this search evaluated (not the dense sweep's)."""
     local = LocalBound(ev.val_f, ev.val_g, window)
-    known = [(p, v) for p, v in ev.memo.items()]
+    known = [(p, ev.memo[p]) for p in lines if p in ev.memo]
     if known:
         P = np.array([p for p, _ in known])
         V = np.array([[np.max(v[g]) for g in groups] for _, v in known])
@@ -125,7 +131,7 @@ class _Descent:
                        "local_bound": 0}
         self.order = np.argsort(-self.cand.hi, kind="stable")
         self.line_b = np.full(len(self.cand.a), np.nan)
-        self.open_g = np.ones(len(self.groups), dtype=bool)
+        self.open_g = ~np.isposinf(self.best)  # an infinite degree is exact: nothing to look for
 
     def run(self) -> None:
         n = len(self.cand.a)
@@ -269,11 +275,12 @@ def reduced_search(ev: LineEvaluator, window: Window, atlas, contours_by_id: dic
 
     On meshes the grid, hence the special set, is approximate; nothing above is
     used to *hide* a larger value: :func:`~specmap.distance.matching_distance` audits
-    the result against the dense sweep (``theorem_gap``).
+    the result against the dense sweep both ways (``theorem_gap``).
 
-    ``certify="max"`` works with the max over degrees (the max over degrees is
-    certified; single degrees below it are lower bounds), ``"each"`` with each
-    degree on its own.
+    Every degree is searched and certified on its own (one group per degree in both
+    steps; an infinite degree, exact, is closed at once). Lines evaluated by other
+    stages share the memo but never count as values of this search.
+    ``certify="max"`` only restricts the polish to degrees near the top value.
 
     Parameters
     ----------
@@ -301,20 +308,25 @@ def reduced_search(ev: LineEvaluator, window: Window, atlas, contours_by_id: dic
     t0 = time.perf_counter()
     n0 = ev.lines
     nd = len(ev.degrees)
-    groups = [[j] for j in range(nd)] if s.certify == "each" else [list(range(nd))]
+    # every degree is certified on its own (issue 16 item 6); ``certify`` only limits the polish
+    groups = [[j] for j in range(nd)]
     step = s.batch or (1 if ev.jobs == 1 else 2 * ev.jobs)
     same_mesh = _same_mesh(ev)
+    before = set(ev.memo)
     slope, slope_info = _slope_one_phase(ev, window, groups, tolerance, s, step, same_mesh)
+    own = [p for p in ev.memo if p not in before] + [(0.5, float(b)) for b in (slope_info.at if slope_info else [])]
     best = np.array([max(slope[j].value for j in g) for g in groups])
     t1 = time.perf_counter()
-    # every threshold of the descending pass is >= min(best): candidates under it are below_best anyway
-    floor = float(best.min()) if len(best) and np.isfinite(best).all() else -math.inf
+    # every threshold of the descending pass is >= min(best) over the finite degrees (an infinite
+    # degree is exact and closed at once): candidates under it are below_best anyway
+    rest = best[~np.isposinf(best)]
+    floor = float(rest.min()) if len(rest) and np.isfinite(rest).all() else -math.inf
     cand = special_candidates(atlas, contours_by_id, window, spacing=s.spacing, roles=s.roles, floor=floor,
                               tolerance=tolerance)
     cand_seconds = time.perf_counter() - t1
     pieces = tuple(getattr(atlas, "pieces", ()) or ())
     components = tuple(getattr(atlas, "components", ()) or ())
-    local = _seeded_local_bound(ev, window, groups) if (same_mesh and s.local_bound) else None
+    local = _seeded_local_bound(ev, window, groups, own) if (same_mesh and s.local_bound) else None
     walk = _Descent(ev, cand, groups, best, tolerance, upper, step, same_mesh, local)
     walk.run()
     special = walk.special

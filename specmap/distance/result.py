@@ -59,11 +59,14 @@ class DenseSweep:
     best, node_best : list of (value, (a, b))
         Per degree index: after refinement, and the best node.
     error_bound : float
-        Sampling error of the node grid (:func:`specmap.distance.bounds.cell_error_bound`).
+        Sampling error of the node grid (:func:`specmap.distance.bounds.cell_error_bound`),
+        the largest over degrees.
     lines : int
     seconds : float
     resolution : int
         Nodes per side as requested.
+    error_bounds : list of float
+        The same per degree index: D_k <= node max of h_k + error_bounds[j], rigorously.
     """
 
     grid: np.ndarray
@@ -75,14 +78,22 @@ class DenseSweep:
     lines: int
     seconds: float
     resolution: int
+    error_bounds: list[float] = field(default_factory=list)
+
+    def upper(self, j: int) -> float:
+        """Rigorous upper bound of D_k over the window for degree index j (``inf`` when unknown)."""
+        if j >= len(self.error_bounds):
+            return math.inf
+        return float(self.node_best[j][0] + self.error_bounds[j])
 
 
 @dataclass(frozen=True)
 class SlopeOneSearch:
     """Branch and bound on a = 1/2 (:func:`specmap.distance.slope_one.slope_one_search`).
 
-    ``best`` and ``bound`` hold one value per group of degrees; ``bound`` is an upper
-    bound of max_b of the group's h over the window.
+    ``best``, ``at`` (b), ``bound`` and ``certified_groups`` hold one value per group of
+    degrees; ``bound`` is an upper bound of max_b of the group's h over the window;
+    ``certified`` is True when every group is.
     """
 
     best: list[float]
@@ -90,10 +101,14 @@ class SlopeOneSearch:
     certified: bool
     lines: int
     rounds: int
+    at: list[float] = field(default_factory=list)
+    certified_groups: list[bool] = field(default_factory=list)
+    max_lines: int = 0
 
     def to_json(self) -> dict[str, Any]:
         return {"best": self.best, "bound": self.bound, "certified": self.certified, "lines": self.lines,
-                "rounds": self.rounds}
+                "rounds": self.rounds, "at": self.at, "certified_by_group": self.certified_groups,
+                "max_lines": self.max_lines}
 
 
 @dataclass(frozen=True)
@@ -186,6 +201,8 @@ def dense_json(dense: DenseSweep, degrees: Sequence[int]) -> dict[str, Any]:
     return {"value": dense.best[jbest][0], "at": point_json(dense.best[jbest][1]),
             "degree": degrees[jbest], "lines": dense.lines, "seconds": dense.seconds,
             "error_bound": dense.error_bound, "resolution": int(dense.resolution),
+            "error_bounds": {str(k): dense.error_bounds[j] for j, k in enumerate(degrees)
+                             if j < len(dense.error_bounds)},
             "node_value": max(v for v, _ in dense.node_best),
             "by_degree": {str(k): {"value": dense.best[j][0], "at": point_json(dense.best[j][1])}
                           for j, k in enumerate(degrees)}}

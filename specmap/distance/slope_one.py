@@ -74,8 +74,12 @@ def slope_one_search(ev: LineEvaluator, window: Window, groups: Sequence[Sequenc
     UB <= best + tolerance for every group. Every line is evaluated once
     (:class:`~specmap.distance.evaluator.LineEvaluator` keeps a memo by (a, b)). When
     no interval is left, max_b G <= best + tolerance: the slope-one part of D is
-    certified. The search stops uncertified after ``max_lines`` lines (``certified``
-    False, ``bound`` still a valid upper bound).
+    certified. The search stops after ``max_lines`` lines per group, counted over its own
+    lines whether or not another stage evaluated them before (a group still open
+    is then uncertified, its ``bound`` still a valid upper bound). Each group is
+    certified on its own (``certified_groups``). A group whose h is ``inf`` on a line is
+    exactly ``inf`` on every line (the numbers of essential classes are the Betti numbers
+    of the two complexes): it is certified at once and takes no part in the stopping rule.
 
     Parameters
     ----------
@@ -94,9 +98,10 @@ def slope_one_search(ev: LineEvaluator, window: Window, groups: Sequence[Sequenc
     Returns
     -------
     SlopeOneSearch
-        ``best`` (per group), ``bound`` (per group: best + the largest remaining
-        UB - best, an upper bound of max_b G over the window), ``certified``, ``lines``
-        (distinct lines evaluated here), ``rounds``.
+        ``best`` and ``at`` (b of the best line searched here, per group), ``bound`` (per
+        group: best + the largest remaining UB - best, an upper bound of max_b G over the
+        window), ``certified_groups`` and ``certified`` (all of them), ``lines`` (distinct
+        lines new to the evaluator), ``rounds``, ``max_lines`` (the budget).
 
     References
     ----------
@@ -109,11 +114,13 @@ def slope_one_search(ev: LineEvaluator, window: Window, groups: Sequence[Sequenc
     ev.plan(len(xs))
     G = _group_values(ev, groups, xs)
     best = np.where(np.isnan(G), -np.inf, G).max(axis=0)
+    # h_k = inf on one line means different numbers of essential classes (Betti numbers of the
+    # complexes, the same on every line): the group's max is exactly inf, nothing to search
+    infinite = np.isposinf(best)
+    budget = max(1, int(max_lines)) * max(1, int((~infinite).sum()))
     min_len = 1e-12 * max(1.0, b_hi - b_lo)
     cap = _sup_norm_cap(values) if values is not None else None
     rounds = 0
-    certified = False
-    ub_top = best.copy()
     while True:
         length = np.diff(xs)
         ub = (G[:-1] + G[1:]) / 2 + lipschitz * length[:, None] / 2  # (n - 1, ng)
@@ -122,14 +129,10 @@ def slope_one_search(ev: LineEvaluator, window: Window, groups: Sequence[Sequenc
             ub = np.minimum(ub, caps[:, None])
         with np.errstate(invalid="ignore"):
             gap = ub - (best + tolerance)[None, :]
-            score = np.where(np.isnan(gap), -np.inf, gap).max(axis=1)
-        ub_top = np.maximum(best, np.where(np.isnan(ub), -np.inf, ub).max(axis=0)) if len(ub) else best
+        gap = np.where(np.isnan(gap) | infinite[None, :], -np.inf, gap)  # the stopping rule never uses inf
+        score = gap.max(axis=1) if gap.shape[1] else np.full(len(length), -np.inf)
         live = (score > 0) & (length > min_len)
-        if not live.any():
-            # a NaN value bounds nothing, an open interval below min_len is not closed: no certificate then
-            certified = not (score > 0).any() and not np.isnan(G).any()
-            break
-        if ev.lines - n0 >= max_lines:
+        if not live.any() or len(xs) >= budget:  # its own lines, memo hits included
             break
         idx = np.nonzero(live)[0]
         idx = idx[np.argsort(-score[idx], kind="stable")][:max(1, int(batch))]
@@ -143,6 +146,13 @@ def slope_one_search(ev: LineEvaluator, window: Window, groups: Sequence[Sequenc
         order = np.argsort(xs, kind="stable")  # several splits in one round: keep xs sorted
         xs, G = xs[order], G[order]
         rounds += 1
-    ub_top = np.where(np.isnan(G).any(axis=0), math.inf, ub_top)
-    return SlopeOneSearch(best=best.tolist(), bound=ub_top.tolist(), certified=certified,
-                          lines=ev.lines - n0, rounds=rounds)
+    # per group: a NaN value bounds nothing, an open interval (even one below min_len) is not closed
+    nan_g = np.isnan(G).any(axis=0)
+    cert = infinite | (~(gap > 0).any(axis=0) & ~nan_g)
+    ub_top = np.maximum(best, np.where(np.isnan(ub), -np.inf, ub).max(axis=0)) if len(ub) else best
+    ub_top = np.where(infinite, math.inf, np.where(nan_g, math.inf, ub_top))
+    Gm = np.where(np.isnan(G), -np.inf, G)
+    at_b = xs[np.argmax(Gm, axis=0)]
+    return SlopeOneSearch(best=best.tolist(), bound=ub_top.tolist(), certified=bool(cert.all()),
+                          lines=ev.lines - n0, rounds=rounds, at=[float(x) for x in at_b],
+                          certified_groups=[bool(c) for c in cert], max_lines=budget)
