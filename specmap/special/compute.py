@@ -22,6 +22,7 @@ from specmap.special.detect import METHODS, find_crossings, sample
 from specmap.special.lattice import Lattice
 from specmap.special.pairs import pair_table
 from specmap.special.patches import patch_cells, patch_polygons
+from specmap.special.reading import READINGS, points_reading
 from specmap.special.reference import naive_crossings
 from specmap.special.trace import refine, trace
 from specmap.strip import Window
@@ -37,7 +38,8 @@ def default_tolerance(grid_f: Grid, grid_g: Grid) -> float:
 
 def special_set(grid_f: Grid, grid_g: Grid, window: Window, *, pairs: str = "all",
                 resolution: int | tuple[int, int] = 121, method: str = "sweep", tol: float | None = None,
-                progress: Callable[[int, int], None] | None = None, sub: int = 8, seed: int = 0) -> Atlas:
+                progress: Callable[[int, int], None] | None = None, sub: int = 8, seed: int = 0,
+                reading: str = "points") -> Atlas:
     """The special set of (Γ(f), Γ(g)) in a window of the strip, as an :class:`Atlas`.
 
     (a, b) is special when two different pairs of contours met by r(a, b) tie:
@@ -66,6 +68,11 @@ def special_set(grid_f: Grid, grid_g: Grid, window: Window, *, pairs: str = "all
         Patch boundary refinement (sub-cells per cell side).
     seed : int
         Seed of the random interior checks of patch cells.
+    reading : {"points", "contours"}
+        ``points`` ([EFQT23], default): pairs of meeting *points* must differ, so the lines
+        through a crossing or junction of two contours (where a per-contour tie holds
+        trivially) are not special; ``contours``: every per-contour tie counts
+        (:mod:`specmap.special.reading`).
 
     Returns
     -------
@@ -91,6 +98,8 @@ def special_set(grid_f: Grid, grid_g: Grid, window: Window, *, pairs: str = "all
     table = pair_table(grid_f, grid_g, pairs)
     if method not in METHODS:
         raise ValueError(f"method must be one of {METHODS}, not {method!r}")
+    if reading not in READINGS:
+        raise ValueError(f"reading must be one of {READINGS}, not {reading!r}")
     tol = default_tolerance(grid_f, grid_g) if tol is None else float(tol)
     snap = 1e-3 * tol
     lat = Lattice.of(window, int(n_a), int(n_b))
@@ -115,15 +124,20 @@ def special_set(grid_f: Grid, grid_g: Grid, window: Window, *, pairs: str = "all
     timings["patch_s"] = time.perf_counter() - t
     if progress is not None:
         progress(2 * lat.n_b + 1, total)
-    pieces = []
-    for tt, tie in zip(traced, table.ties(np.array([tt.code for tt in traced], dtype=np.int64)), strict=True):
+    items: list[tuple[int, str, object]] = []
+    for tt in traced:
         if tt.lines:
-            pieces.append(TiePiece(tie, "curve", shapely.MultiLineString(list(tt.lines))))
+            items.append((tt.code, "curve", shapely.MultiLineString(list(tt.lines))))
         if tt.points:
-            pieces.append(TiePiece(tie, "point", shapely.MultiPoint(np.array(tt.points))))
+            items.append((tt.code, "point", shapely.MultiPoint(np.array(tt.points))))
     for code, poly in sorted(polys.items()):
         if not poly.is_empty:
-            pieces.append(TiePiece(table.tie(code), "patch", poly))
+            items.append((code, "patch", poly))
+    removed = {"curves": 0, "points": 0, "patches": 0}
+    if reading == "points":
+        items, removed = points_reading(table, items)
+    ties = table.ties(np.array([c for c, _, _ in items], dtype=np.int64)) if items else []
+    pieces = [TiePiece(tie, kind, geom) for tie, (_, kind, geom) in zip(ties, items, strict=True)]
     t = time.perf_counter()
     comps = components(tuple(pieces), window, lat)
     timings["components_s"] = time.perf_counter() - t
@@ -138,6 +152,8 @@ def special_set(grid_f: Grid, grid_g: Grid, window: Window, *, pairs: str = "all
         "ties_with_curves": sum(1 for tt in traced if tt.lines),
         "ties_with_patches": len(polys),
         "pieces": len(pieces),
+        "reading": reading,
+        **{f"coincident_{k}_removed": v for k, v in removed.items()},
         "snap": snap,
         **{k: round(v, 4) for k, v in timings.items()},
         "seconds": round(time.perf_counter() - t_start, 4),

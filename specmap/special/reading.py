@@ -1,0 +1,129 @@
+"""Which ties count: the reading of "special" by pairs of points or by pairs of contours.
+
+[EFQT23] define a special value through the points where the line r(a, b) meets
+Γ(f) ∪ Γ(g): two *different* pairs of those points whose coordinate differences tie. Ties
+are computed per contour, so where two contours β, δ meet r(a, b) in the same point (a
+crossing of β and δ, a proper contour's end that is a half-line's start, or two coincident
+contours) the tie |s_α − s_β| = |s_α − s_δ| holds trivially: the two pairs of contours
+{α, β}, {α, δ} are one pair of points. Every line through such a point then looks special,
+and the pencil of those lines is a curve of the strip (a patch for coincident contours)
+that carries no change of the matching cost.
+
+The **points** reading (the default, [EFQT23]) removes exactly these coincidences: an equal
+tie of two pairs sharing a contour α holds on two branches, s_β = s_δ (β and δ meet r at one
+point) and s_β + s_δ = 2 s_α (β and δ on either side of α at equal distance); only the second
+is special. A half tie with s_β = s_δ would need a zero difference, excluded by "> 0". Four
+distinct contours tie as pairs of points only if two coincidences happen at once, which
+has codimension two in the strip (isolated points). The **contours** reading keeps every
+per-contour tie (specmap's behaviour before this module).
+
+References
+----------
+.. [EFQT23] Ethier, Frosini, Quercioli, Tombari, "Geometry of the matching distance for 2D
+   filtering functions", J. Appl. Comput. Topol. (2023).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import shapely
+
+from specmap.special.compiled.contours import FlatContours, slot_params
+from specmap.special.pairs import PairTable
+
+READINGS = ("points", "contours")
+
+
+def shared_slots(table: PairTable, codes: np.ndarray) -> np.ndarray:
+    """(k, 3) contour indices (α, β, δ) of equal ties {α, β} ~ {α, δ}; -1 rows for other ties."""
+    slots, factor = table.tie_contours(np.asarray(codes, np.int64))
+    out = np.full((len(slots), 3), -1, dtype=np.int64)
+    for k, (c0, c1, c2, c3) in enumerate(slots.tolist()):
+        if factor[k] != 1.0:
+            continue
+        for alpha, beta in ((c0, c1), (c1, c0)):
+            if alpha in (c2, c3):
+                delta = c3 if c2 == alpha else c2
+                if delta != beta:
+                    out[k] = (alpha, beta, delta)
+                break
+    return out
+
+
+def coincident(table: PairTable, triples: np.ndarray, a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """Whether each line (a[k], b[k]) lies on the branch s_β = s_δ of its triple (α, β, δ).
+
+    Of the two branches of |s_α − s_β| = |s_α − s_δ| the nearer one is taken: the residuals
+    |s_β − s_δ| and |s_β + s_δ − 2 s_α| are compared at the line.
+    """
+    slots = np.ascontiguousarray(triples, dtype=np.int64)
+    s, _ = slot_params(*FlatContours.of(table.contours).args, slots,
+                       np.ascontiguousarray(a, dtype=float), np.ascontiguousarray(b, dtype=float))
+    return np.abs(s[:, 1] - s[:, 2]) <= np.abs(s[:, 1] + s[:, 2] - 2.0 * s[:, 0])
+
+
+def _probe(geom) -> list[tuple[float, float]]:
+    """One point per part: a curve's middle vertex (or its middle), a point, a patch's inner point."""
+    out = []
+    for part in shapely.get_parts(geom):
+        if part.geom_type == "LineString":
+            c = np.asarray(part.coords)
+            out.append(tuple(c[len(c) // 2]) if len(c) > 2 else tuple(c.mean(axis=0)))
+        elif part.geom_type == "Point":
+            out.append((part.x, part.y))
+        else:
+            p = part.representative_point()
+            out.append((p.x, p.y))
+    return out
+
+
+def points_reading(table: PairTable, items: list[tuple[int, str, object]]) -> tuple[list, dict[str, int]]:
+    """Drop the parts of tie pieces that lie on a coincidence branch (see the module text).
+
+    Parameters
+    ----------
+    table : PairTable
+    items : list of (code, kind, geometry)
+        Traced pieces: kind ``"curve"`` (MultiLineString), ``"point"`` (MultiPoint) or
+        ``"patch"`` (polygonal).
+
+    Returns
+    -------
+    (kept items, counts)
+        Items with their coincident parts removed (empty ones dropped), and the numbers of
+        curves, points and patches removed.
+    """
+    removed = {"curves": 0, "points": 0, "patches": 0}
+    codes = np.array([c for c, _, _ in items], dtype=np.int64)
+    triples = shared_slots(table, codes) if len(items) else np.empty((0, 3), np.int64)
+    probes, owner = [], []
+    for k, (_, _, geom) in enumerate(items):
+        if triples[k, 0] >= 0:
+            pts = _probe(geom)
+            probes.extend(pts)
+            owner.extend([k] * len(pts))
+    if not probes:
+        return list(items), removed
+    P = np.array(probes, dtype=float)
+    own = np.array(owner, dtype=np.int64)
+    same = coincident(table, triples[own], P[:, 0], P[:, 1])
+    drop_of: dict[int, np.ndarray] = {}
+    for k in np.unique(own):
+        drop_of[int(k)] = same[own == k]
+    kept = []
+    for k, (code, kind, geom) in enumerate(items):
+        if k not in drop_of or not drop_of[k].any():
+            kept.append((code, kind, geom))
+            continue
+        parts = shapely.get_parts(geom)
+        keep = [g for g, d in zip(parts, drop_of[k], strict=True) if not d]
+        removed[{"curve": "curves", "point": "points"}.get(kind, "patches")] += int(drop_of[k].sum())
+        if not keep:
+            continue
+        if kind == "curve":
+            kept.append((code, kind, shapely.MultiLineString(keep)))
+        elif kind == "point":
+            kept.append((code, kind, shapely.MultiPoint(keep)))
+        else:
+            kept.append((code, kind, shapely.union_all(keep)))
+    return kept, removed
