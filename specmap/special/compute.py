@@ -148,9 +148,10 @@ def special_set(grid_f: Grid, grid_g: Grid, window: Window, *, pairs: str = "all
         "pairs_total": table.n_pairs,
         **dstats,
         **pstats,
-        "tie_curves": sum(len(tt.lines) for tt in traced),
-        "ties_with_curves": sum(1 for tt in traced if tt.lines),
-        "ties_with_patches": len(polys),
+        # counted after the reading's removals (what the atlas holds)
+        "tie_curves": sum(len(shapely.get_parts(g)) for _, k, g in items if k == "curve"),
+        "ties_with_curves": sum(1 for _, k, _ in items if k == "curve"),
+        "ties_with_patches": sum(1 for _, k, _ in items if k == "patch"),
         "pieces": len(pieces),
         "reading": reading,
         **{f"coincident_{k}_removed": v for k, v in removed.items()},
