@@ -49,6 +49,9 @@ class Component:
     bbox : (a_min, b_min, a_max, b_max)
     ties : tuple of Tie
     geometry : shapely geometry or None (None when read back from a summary)
+    reasons : tuple of dict
+        For a patch: why each of its identically held ties holds
+        (:func:`specmap.special.reasons.tie_reason`).
     """
 
     id: str
@@ -58,10 +61,14 @@ class Component:
     bbox: tuple[float, float, float, float]
     ties: tuple[Tie, ...]
     geometry: Any = None
+    reasons: tuple[dict[str, Any], ...] = ()
 
     def summary(self) -> dict[str, Any]:
-        return {"id": self.id, "kind": self.kind, "area": float(self.area), "length": float(self.length),
-                "bbox": [float(x) for x in self.bbox], "ties": [t.to_json() for t in self.ties]}
+        out = {"id": self.id, "kind": self.kind, "area": float(self.area), "length": float(self.length),
+               "bbox": [float(x) for x in self.bbox], "ties": [t.to_json() for t in self.ties]}
+        if self.kind == "patch":
+            out["reasons"] = [dict(r) for r in self.reasons]
+        return out
 
 
 @dataclass(frozen=True)

@@ -8,6 +8,7 @@ References
 
 from __future__ import annotations
 
+import dataclasses
 import math
 import time
 from collections.abc import Callable
@@ -16,13 +17,14 @@ import numpy as np
 import shapely
 
 from specmap.grids.model import Grid
-from specmap.special.atlas import Atlas, TiePiece
+from specmap.special.atlas import Atlas, Component, TiePiece
 from specmap.special.components import components
 from specmap.special.detect import METHODS, find_crossings, sample
 from specmap.special.lattice import Lattice
 from specmap.special.pairs import pair_table
 from specmap.special.patches import patch_cells, patch_polygons
 from specmap.special.reading import READINGS, points_reading
+from specmap.special.reasons import patch_reasons
 from specmap.special.reference import naive_crossings
 from specmap.special.trace import refine, trace
 from specmap.strip import Window
@@ -34,6 +36,22 @@ def default_tolerance(grid_f: Grid, grid_g: Grid) -> float:
     g = grid_g.bbox()
     diag = math.hypot(max(f[2], g[2]) - min(f[0], g[0]), max(f[3], g[3]) - min(f[1], g[1]))
     return 1e-9 * (diag if diag > 0 else 1.0)
+
+
+def with_reasons(comps: tuple[Component, ...], pieces: list[TiePiece], table, tol: float) -> tuple[Component, ...]:
+    """Patch components with the reasons of the ties whose patches they hold."""
+    patches = [p for p in pieces if p.kind == "patch"]
+    if not patches:
+        return comps
+    by_id = {c.id: c for c in table.contours}
+    out = []
+    for c in comps:
+        if c.kind != "patch" or c.geometry is None:
+            out.append(c)
+            continue
+        ties = [p.tie for p in patches if c.geometry.intersects(p.geometry.representative_point())]
+        out.append(dataclasses.replace(c, reasons=tuple(patch_reasons(ties, by_id, tol))))
+    return tuple(out)
 
 
 def special_set(grid_f: Grid, grid_g: Grid, window: Window, *, pairs: str = "all",
@@ -139,7 +157,7 @@ def special_set(grid_f: Grid, grid_g: Grid, window: Window, *, pairs: str = "all
     ties = table.ties(np.array([c for c, _, _ in items], dtype=np.int64)) if items else []
     pieces = [TiePiece(tie, kind, geom) for tie, (_, kind, geom) in zip(ties, items, strict=True)]
     t = time.perf_counter()
-    comps = components(tuple(pieces), window, lat)
+    comps = with_reasons(components(tuple(pieces), window, lat), pieces, table, tol)
     timings["components_s"] = time.perf_counter() - t
     if progress is not None:
         progress(total, total)

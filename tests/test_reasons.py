@@ -1,0 +1,71 @@
+"""Every patch says why it is there (issue 13 item 4): reasons from the grids, tested on grids built for them.
+
+Source: closed forms derived in the test (math.md section 5): a vertical half-line at x0 is met by
+r(a, b) at line parameter s = (x0 - b)/a, so two vertical pairs differ by Δx/a and Δx'/a and a tie
+|Δx| = k |Δx'| holds on the whole region where the four are met (a patch). For cross pairs the
+branch x_f + x_f' = x_g + x_g' (a common midpoint) is the central-symmetry reason, the other
+branch equal spacing. A generic pair has no patch (its special set has measure zero, [EFQT23]).
+"""
+
+from __future__ import annotations
+
+import pytest
+
+from specmap.grids.model import Contour, Grid
+from specmap.special import special_set
+from specmap.strip import Window
+from tests.gridgen import random_pair
+
+WINDOW = Window((0.1, 0.9), (-3.0, 3.0))
+
+
+def _verticals(prefix: str, xs: list[float]) -> Grid:
+    return Grid(tuple(Contour(f"{prefix}:v{i}", "vertical", [x, -50.0]) for i, x in enumerate(xs)))
+
+
+def _reasons(atlas) -> list[dict]:
+    return [r for c in atlas.components if c.kind == "patch" for r in c.reasons]
+
+
+def test_common_centre_is_central_symmetry():
+    # f's extremes -1, 1 and g's -2, 2 share the centre 0: |(-1) - (-2)| = |1 - 2| identically
+    atlas = special_set(_verticals("f", [-1.0, 1.0]), _verticals("g", [-2.0, 2.0]), WINDOW, resolution=31)
+    rs = _reasons(atlas)
+    assert atlas.counts()["patch"] >= 1
+    sym = [r for r in rs if r["kind"] == "central_symmetry"]
+    assert sym and all(r["component"] == "first" for r in sym)
+    assert {"f:v0", "f:v1", "g:v0", "g:v1"} == set(sym[0]["contours"])
+    # the half tie |Δx_g| = 4 = 2 |Δx_f| is equal spacing (same-grid pairs)
+    assert any(r["kind"] == "equal_spacing" for r in rs)
+    assert not any(r["kind"] == "unexplained" for r in rs)
+
+
+def test_translated_spacing_is_equal_spacing():
+    # f at 0, 1 and g at 3, 4: equal gaps, different midpoints (0.5 against 3.5): no symmetry
+    atlas = special_set(_verticals("f", [0.0, 1.0]), _verticals("g", [3.0, 4.0]), WINDOW, resolution=31)
+    rs = _reasons(atlas)
+    assert rs and all(r["kind"] == "equal_spacing" for r in rs)
+    assert all(r["breaks_at"] >= atlas.tolerance for r in rs)
+
+
+def test_breaking_the_spacing_removes_the_patch():
+    base = special_set(_verticals("f", [0.0, 1.0]), _verticals("g", [3.0, 4.0]), WINDOW, resolution=31)
+    eps = 1e3 * max(r["breaks_at"] for r in _reasons(base))  # far above the predicted threshold
+    moved = special_set(_verticals("f", [0.0, 1.0]), _verticals("g", [3.0, 4.0 + eps]), WINDOW, resolution=31)
+    # every identity involving g:v1 is broken; the one among f:v0, f:v1, g:v0 (|1 - 3| = 2 |0 - 1|) stays
+    assert any("g:v1" in r["contours"] for r in _reasons(base))
+    assert not any("g:v1" in r["contours"] for r in _reasons(moved))
+    assert any(set(r["contours"]) == {"f:v0", "f:v1", "g:v0"} for r in _reasons(moved))
+
+
+@pytest.mark.parametrize("seed", [1, 2])
+def test_generic_pair_has_no_patch(seed):
+    gf, gg = random_pair(seed, 8)
+    atlas = special_set(gf, gg, Window((0.05, 0.95), (-1.0, 1.0)), resolution=41)
+    assert atlas.counts()["patch"] == 0 and _reasons(atlas) == []
+
+
+def test_reasons_are_in_the_json():
+    atlas = special_set(_verticals("f", [-1.0, 1.0]), _verticals("g", [-2.0, 2.0]), WINDOW, resolution=31)
+    comp = next(c for c in atlas.to_json()["components"] if c["kind"] == "patch")
+    assert {"kind", "contours", "component", "breaks_at"} <= set(comp["reasons"][0])
