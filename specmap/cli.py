@@ -238,8 +238,13 @@ def run(argv: list[str] | None = None) -> int:
               f"{REACHED.get(js['reached_on'], 'reached on ' + str(js['reached_on']))} "
               f"-> {sr.out / 'distance.json'}")
         if js.get("audit", {}).get("theorem_gap"):
-            print("WARNING: the dense sweep exceeds the reduced search (see distance.json audit)",
+            print("WARNING: the theorem audit failed (see distance.json audit.theorem)",
                   file=sys.stderr)
+        for k, v in (js.get("by_degree") or {}).items():
+            if v.get("resolved") is False:
+                print(f"D_{k} not resolved: {v.get('resolved_why')}", file=sys.stderr)
+            if v.get("certified") is False and v.get("why_not"):
+                print(f"D_{k} not certified: {v['why_not']}", file=sys.stderr)
     elif args.verb == "perturb":
         if study.perturb is None:
             raise StudyError("no [perturb] table", file=str(study.path), field="[perturb]",

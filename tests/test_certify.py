@@ -190,3 +190,17 @@ def test_resolution_check_names_what_to_raise():
     sf, sg = shapes(V, T, f, f + 0.01)
     e = _run(sf, sg, (0,)).by_degree[0]
     assert e["resolved"] is False and "raise the mesh resolution" in e["resolved_why"]
+
+
+def test_report_reads_resolved_and_why_not():
+    # the summary page shows what distance.json says (issue 13 item 3): brute force in the test, a
+    # distance.json written by matching_distance for a case below 3 x its mesh tolerance.
+    from specmap.report.summary import degree_rows, ranked_notes
+
+    V, T, f = ellipsoid_pair(300)
+    sf, sg = shapes(V, T, f, f + 0.01)
+    js = _run(sf, sg, (0,)).to_json()
+    notes = [n for n in ranked_notes({"distance": js}) if n.title == "D not resolved"]
+    assert len(notes) == 1 and "mesh tolerance" in notes[0].text and "mesh resolution" in notes[0].todo
+    row = degree_rows(js)[0]
+    assert row.interval == tuple(js["by_degree"]["0"]["bounds"]) and row.status == "certified"

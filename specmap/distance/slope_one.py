@@ -74,10 +74,11 @@ def slope_one_search(ev: LineEvaluator, window: Window, groups: Sequence[Sequenc
     UB <= best + tolerance for every group. Every line is evaluated once
     (:class:`~specmap.distance.evaluator.LineEvaluator` keeps a memo by (a, b)). When
     no interval is left, max_b G <= best + tolerance: the slope-one part of D is
-    certified. The search stops after ``max_lines`` lines per group, counted over its own
-    lines whether or not another stage evaluated them before (a group still open
-    is then uncertified, its ``bound`` still a valid upper bound). Each group is
-    certified on its own (``certified_groups``). A group whose h is ``inf`` on a line is
+    certified. Each group is searched and certified on its own (``certified_groups``),
+    one after the other from the same ``samples`` starting lines (lines of other groups
+    are shared through the memo, never their decisions); a group stops after
+    ``max_lines`` lines of its own, memo hits included (it is then uncertified, its
+    ``bound`` still a valid upper bound). A group whose h is ``inf`` on a line is
     exactly ``inf`` on every line (the numbers of essential classes are the Betti numbers
     of the two complexes): it is certified at once and takes no part in the stopping rule.
 
@@ -112,47 +113,53 @@ def slope_one_search(ev: LineEvaluator, window: Window, groups: Sequence[Sequenc
     n0 = ev.lines
     xs = np.linspace(b_lo, b_hi, max(2, int(samples)))
     ev.plan(len(xs))
-    G = _group_values(ev, groups, xs)
-    best = np.where(np.isnan(G), -np.inf, G).max(axis=0)
-    # h_k = inf on one line means different numbers of essential classes (Betti numbers of the
-    # complexes, the same on every line): the group's max is exactly inf, nothing to search
-    infinite = np.isposinf(best)
-    budget = max(1, int(max_lines)) * max(1, int((~infinite).sum()))
-    min_len = 1e-12 * max(1.0, b_hi - b_lo)
     cap = _sup_norm_cap(values) if values is not None else None
+    out = [_search_group(ev, g, xs, b_lo, b_hi, tolerance=tolerance, max_lines=max_lines, batch=batch,
+                         lipschitz=lipschitz, cap=cap) for g in groups]
+    cert = [o[2] for o in out]
+    return SlopeOneSearch(best=[o[0] for o in out], bound=[o[1] for o in out], certified=all(cert),
+                          lines=ev.lines - n0, rounds=sum(o[4] for o in out), at=[o[3] for o in out],
+                          certified_groups=cert, max_lines=int(max_lines))
+
+
+def _search_group(ev: LineEvaluator, group: Sequence[int], xs: np.ndarray, b_lo: float, b_hi: float, *,
+                  tolerance: float, max_lines: int, batch: int, lipschitz: float,
+                  cap: Callable[[float, float], float] | None) -> tuple[float, float, bool, float, int]:
+    """The branch and bound of one group from the lines ``xs``: (best, bound, certified, b of best, rounds)."""
+    G = _group_values(ev, [group], xs)[:, 0]
+    best = float(np.where(np.isnan(G), -np.inf, G).max())
+    if math.isinf(best) and best > 0:
+        # h_k = inf on one line means different numbers of essential classes (Betti numbers of the
+        # complexes, the same on every line): the max is exactly inf, nothing to search
+        return math.inf, math.inf, True, float(xs[int(np.argmax(G))]), 0
+    budget = max(int(max_lines), len(xs))
+    min_len = 1e-12 * max(1.0, b_hi - b_lo)
     rounds = 0
     while True:
         length = np.diff(xs)
-        ub = (G[:-1] + G[1:]) / 2 + lipschitz * length[:, None] / 2  # (n - 1, ng)
+        ub = (G[:-1] + G[1:]) / 2 + lipschitz * length / 2
         if cap is not None:
-            caps = np.array([cap(float(lo), float(hi)) for lo, hi in zip(xs[:-1], xs[1:], strict=True)])
-            ub = np.minimum(ub, caps[:, None])
+            ub = np.minimum(ub, [cap(float(lo), float(hi)) for lo, hi in zip(xs[:-1], xs[1:], strict=True)])
         with np.errstate(invalid="ignore"):
-            gap = ub - (best + tolerance)[None, :]
-        gap = np.where(np.isnan(gap) | infinite[None, :], -np.inf, gap)  # the stopping rule never uses inf
-        score = gap.max(axis=1) if gap.shape[1] else np.full(len(length), -np.inf)
-        live = (score > 0) & (length > min_len)
+            gap = np.where(np.isnan(ub), -np.inf, ub - (best + tolerance))
+        live = (gap > 0) & (length > min_len)
         if not live.any() or len(xs) >= budget:  # its own lines, memo hits included
             break
         idx = np.nonzero(live)[0]
-        idx = idx[np.argsort(-score[idx], kind="stable")][:max(1, int(batch))]
-        new = _split_points(xs, G, gap, idx, lipschitz)
+        idx = idx[np.argsort(-gap[idx], kind="stable")][:max(1, int(batch))]
+        new = _split_points(xs, G[:, None], gap[:, None], idx, lipschitz)
         ev.plan(len(new))
-        Gn = _group_values(ev, groups, new)
-        best = np.maximum(best, np.where(np.isnan(Gn), -np.inf, Gn).max(axis=0))
+        Gn = _group_values(ev, [group], new)[:, 0]
+        best = max(best, float(np.where(np.isnan(Gn), -np.inf, Gn).max()))
         at = np.searchsorted(xs, new)
         xs = np.insert(xs, at, new)
-        G = np.insert(G, at, Gn, axis=0)
+        G = np.insert(G, at, Gn)
         order = np.argsort(xs, kind="stable")  # several splits in one round: keep xs sorted
         xs, G = xs[order], G[order]
         rounds += 1
-    # per group: a NaN value bounds nothing, an open interval (even one below min_len) is not closed
-    nan_g = np.isnan(G).any(axis=0)
-    cert = infinite | (~(gap > 0).any(axis=0) & ~nan_g)
-    ub_top = np.maximum(best, np.where(np.isnan(ub), -np.inf, ub).max(axis=0)) if len(ub) else best
-    ub_top = np.where(infinite, math.inf, np.where(nan_g, math.inf, ub_top))
-    Gm = np.where(np.isnan(G), -np.inf, G)
-    at_b = xs[np.argmax(Gm, axis=0)]
-    return SlopeOneSearch(best=best.tolist(), bound=ub_top.tolist(), certified=bool(cert.all()),
-                          lines=ev.lines - n0, rounds=rounds, at=[float(x) for x in at_b],
-                          certified_groups=[bool(c) for c in cert], max_lines=budget)
+    # a NaN value bounds nothing, an open interval (even one below min_len) is not closed
+    nan = bool(np.isnan(G).any())
+    certified = not (gap > 0).any() and not nan
+    bound = math.inf if nan else max(best, float(np.where(np.isnan(ub), -np.inf, ub).max()) if len(ub) else best)
+    at_b = float(xs[int(np.argmax(np.where(np.isnan(G), -np.inf, G)))])
+    return best, bound, certified, at_b, rounds

@@ -105,6 +105,10 @@ def theorem_audit_sentence(d: dict[str, Any]) -> str | None:
     if audit.get("theorem_gap"):
         line = audit.get("line")
         at = fmt_point(line) if isinstance(line, list) else str(line)
+        th = audit.get("theorem") or {}
+        if th.get("reduced_above_upper") and not th.get("dense_above_reduced"):
+            return (f"{WARNING} the reduced search's value lies above a certified upper bound of D at "
+                    f"(a, b) = {at}: an evaluation or a bound is wrong{_tol(d.get('tolerance'))}.")
         return (f"{WARNING} the dense sweep exceeds the reduced search by {fmt(audit.get('gap'))} at "
                 f"(a, b) = {at}: the computation disagrees with the theorem's reduction here"
                 f"{_tol(d.get('tolerance'))}.")

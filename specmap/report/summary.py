@@ -260,7 +260,13 @@ def ranked_notes(res: dict[str, Any]) -> list[Note]:
     d = res.get("distance") or {}
     audit = d.get("audit") or {}
     tol = num(d.get("tolerance"))
-    if audit.get("theorem_gap"):
+    if audit.get("theorem_gap") and (audit.get("theorem") or {}).get("reduced_above_upper") \
+            and not (audit.get("theorem") or {}).get("dense_above_reduced"):
+        notes.append(Note(1, "Theorem audit failed",
+                          f"the reduced search's value lies above a certified upper bound of D (line "
+                          f"{fmt_interval(audit.get('line')) if isinstance(audit.get('line'), list) else 'n/a'}).",
+                          "an evaluation or a bound is wrong: report it with distance.json."))
+    elif audit.get("theorem_gap"):
         line = audit.get("line")
         notes.append(Note(1, "Theorem audit failed",
                           f"the dense sweep exceeds the reduced search by {fmt(audit.get('gap'))} at (a, b) = "
@@ -287,7 +293,14 @@ def ranked_notes(res: dict[str, Any]) -> list[Note]:
                                   "search."))
         grid_tol = max((num((res.get(g) or {}).get("tolerance")) for g in ("grid_f", "grid_g")), default=math.nan)
         floor = max(x for x in (tol, grid_tol, 0.0) if math.isfinite(x))
-        if math.isfinite(value) and floor > 0 and value < RESOLVED_FACTOR * floor:
+        top = next((v for v in (d.get("by_degree") or {}).values()
+                    if isinstance(v, dict) and "resolved" in v and num(v.get("value")) == value), None)
+        if top is not None:  # distance.json says it (grid, mesh and distance tolerances)
+            if top["resolved"] is False:
+                why, _, fix = str(top.get("resolved_why") or "the value is not resolved").partition(": ")
+                notes.append(Note(2, "D not resolved", f"{why}: the value is not resolved.",
+                                  (fix or "raise the mesh resolution or use an exact grid route, then rerun") + "."))
+        elif math.isfinite(value) and floor > 0 and value < RESOLVED_FACTOR * floor:
             notes.append(Note(2, "D not resolved",
                               f"D = {fmt(value)} is less than {fmt(RESOLVED_FACTOR, 2)} times the tolerance "
                               f"{fmt(floor, 3)} (grid or distance): the value is not resolved.",
