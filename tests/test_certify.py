@@ -204,3 +204,20 @@ def test_report_reads_resolved_and_why_not():
     assert len(notes) == 1 and "mesh tolerance" in notes[0].text and "mesh resolution" in notes[0].todo
     row = degree_rows(js)[0]
     assert row.interval == tuple(js["by_degree"]["0"]["bounds"]) and row.status == "certified"
+
+
+def test_max_certifies_the_top_degree_and_each_every_degree():
+    # the special-set pass with certify="max" bounds the max over degrees only, so a lower degree's
+    # interval is [D_k, max + tol] and says so; certify="each" closes it (interval width <= tol).
+    sf, sg = _rough_pair()
+    tol = 0.01
+    top = _run(sf, sg, (0, 1), tolerance=tol, certify="max").by_degree
+    low = min((0, 1), key=lambda k: top[k]["value"])
+    assert top[1 - low]["certified"] is True
+    assert top[1 - low]["value"] - top[low]["value"] > tol  # the case is built with a lower degree
+    assert top[low]["certified"] is False and 'certify = "each"' in top[low]["why_not"]
+    each = _run(sf, sg, (0, 1), tolerance=tol, certify="each").by_degree
+    assert each[low]["certified"] is True and each[low]["why_not"] is None
+    lo, hi = each[low]["bounds"]
+    assert hi - lo <= tol * (1 + 1e-9)
+    assert top[low]["bounds"][1] >= top[1 - low]["value"]  # the group's bound

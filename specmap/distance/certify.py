@@ -9,9 +9,10 @@ Every degree is judged on its own (issue 13 item 1, issue 16 item 6):
     (sup norm on one mesh, else value ranges; stability [CDFFL13], rigorous);
   - the dense sweep's node maximum plus its cell error bound
     (:func:`~specmap.distance.bounds.cell_error_bound`, rigorous);
-  - the reduced search's bound max(B_k, R_k + tol): B_k the slope-one branch and
-    bound's bound on a = 1/2, R_k + tol what the descending pass over the special
-    candidates guarantees (every candidate with tied cost above R_k + tol was evaluated
+  - the reduced search's bound max(B_k, R_g + tol): B_k the slope-one branch and
+    bound's bound on a = 1/2, R_g + tol what the descending pass over the special
+    candidates guarantees for the group g of degrees it bounded together (k alone with
+    ``certify="each"``, the finite degrees with ``"max"``) (every candidate with tied cost above R_k + tol was evaluated
     or provably below its cost). This one rests on the main theorem [EFQT23, FMQT]
     applied to the computed grids; it is dropped when the dense sweep found a value
     above it by more than the tolerance (the theorem audit flags that case).
@@ -81,7 +82,8 @@ def degree_certificate(j: int, value: float, dense: DenseSweep | None, red: Redu
         why = "the window leaves out the slope-one line a = 1/2, so the theorem's bound is not available"
     else:
         ss = red.slope_search
-        r = max(red.slope[j].value, red.special[j].value)
+        group = next((g for g in red.groups if j in g), [j])
+        r = max(max(red.slope[i].value, red.special[i].value) for i in group)
         theorem = max(float(ss.bound[j]), r + tolerance)
         if lower > theorem + tolerance:
             a, b = dense.best[j][1] if dense is not None else (math.nan, math.nan)
@@ -92,6 +94,9 @@ def degree_certificate(j: int, value: float, dense: DenseSweep | None, red: Redu
             cap = f"its {max_lines}-line cap" if max_lines else "its line budget"
             why = (f"slope-one search stopped at {cap}: bound {ss.bound[j]:.4g} against best "
                    f"{ss.best[j]:.4g}")
+        elif theorem - lower > slack:
+            why = (f"the special-set pass bounds the maximum over degrees only ([distance] certify = "
+                   f"\"{red.settings.certify}\"): D_k <= {theorem:.4g}; certify = \"each\" closes every degree")
     ups = [u for u in rigorous if math.isfinite(u[0])]
     if theorem is not None and math.isfinite(theorem):
         ups.append((theorem, "slope-one+special"))

@@ -42,8 +42,8 @@ class ReducedSettings:
     roles : bool
         Use the f/g roles of contours to skip ties of no two costs (math.md section 5).
     certify : {"max", "each"}
-        Every degree is certified on its own either way (issue 16); with ``"max"`` only the
-        degrees within the tolerance of the top one are polished.
+        The slope-one line is certified per degree either way (issue 16); on the special set
+        ``"each"`` certifies every degree, ``"max"`` the max over the finite degrees.
     polish : bool
         Refine the best special candidate along its curve.
     batch : int or None
@@ -277,10 +277,12 @@ def reduced_search(ev: LineEvaluator, window: Window, atlas, contours_by_id: dic
     used to *hide* a larger value: :func:`~specmap.distance.matching_distance` audits
     the result against the dense sweep both ways (``theorem_gap``).
 
-    Every degree is searched and certified on its own (one group per degree in both
-    steps; an infinite degree, exact, is closed at once). Lines evaluated by other
-    stages share the memo but never count as values of this search.
-    ``certify="max"`` only restricts the polish to degrees near the top value.
+    On a = 1/2 every degree is searched and certified on its own. On the special set
+    ``certify="each"`` runs one group per degree (each D_k certified, more candidates
+    evaluated), ``"max"`` one group of the finite degrees (the max over degrees is
+    certified; a lower degree gets the group's bound, see ``groups``). An infinite degree
+    is exact and closed at once. Lines evaluated by other stages share the memo but
+    never count as values of this search.
 
     Parameters
     ----------
@@ -308,13 +310,18 @@ def reduced_search(ev: LineEvaluator, window: Window, atlas, contours_by_id: dic
     t0 = time.perf_counter()
     n0 = ev.lines
     nd = len(ev.degrees)
-    # every degree is certified on its own (issue 16 item 6); ``certify`` only limits the polish
-    groups = [[j] for j in range(nd)]
+    # the slope-one line: every degree searched and certified on its own (issue 16 item 6)
+    per_degree = [[j] for j in range(nd)]
     step = s.batch or (1 if ev.jobs == 1 else 2 * ev.jobs)
     same_mesh = _same_mesh(ev)
     before = set(ev.memo)
-    slope, slope_info = _slope_one_phase(ev, window, groups, tolerance, s, step, same_mesh)
+    slope, slope_info = _slope_one_phase(ev, window, per_degree, tolerance, s, step, same_mesh)
     own = [p for p in ev.memo if p not in before] + [(0.5, float(b)) for b in (slope_info.at if slope_info else [])]
+    # the special set: one group per degree ("each"), or the finite degrees together ("max", cheaper:
+    # lower degrees then get the group's bound); an infinite degree is exact, a group of its own
+    infinite = [j for j in range(nd) if math.isinf(slope[j].value) and slope[j].value > 0]
+    finite = [j for j in range(nd) if j not in infinite]
+    groups = per_degree if s.certify == "each" else ([finite] if finite else []) + [[j] for j in infinite]
     best = np.array([max(slope[j].value for j in g) for g in groups])
     t1 = time.perf_counter()
     # every threshold of the descending pass is >= min(best) over the finite degrees (an infinite
@@ -342,4 +349,4 @@ def reduced_search(ev: LineEvaluator, window: Window, atlas, contours_by_id: dic
               "early_stop": walk.stop is not None}
     return ReducedSearch(slope=slope, special=special, lines=ev.lines - n0, seconds=time.perf_counter() - t0,
                          pruned=pruned, stop=walk.stop, candidate_seconds=cand_seconds,
-                         slope_search=slope_info, settings=s)
+                         slope_search=slope_info, settings=s, groups=[list(g) for g in groups])

@@ -170,6 +170,9 @@ class ReducedSearch:
     slope_search : SlopeOneSearch or None
         None when the window leaves out a = 1/2.
     settings : ReducedSettings
+    groups : list of list of int
+        Degree indices bounded together by the special-set pass (one per degree with
+        ``certify="each"``).
     """
 
     slope: list[Best]
@@ -181,6 +184,7 @@ class ReducedSearch:
     candidate_seconds: float
     slope_search: SlopeOneSearch | None
     settings: ReducedSettings
+    groups: list[list[int]] = field(default_factory=list)
 
     @property
     def certify(self) -> str:
@@ -222,6 +226,7 @@ def reduced_json(red: ReducedSearch, degrees: Sequence[int], top: dict[str, Any]
             "slope_search": None if red.slope_search is None else red.slope_search.to_json(),
             "settings": {"slope_samples": s.slope_samples, "spacing": s.spacing, "roles": s.roles,
                          "certify": s.certify},
+            "special_groups": [[degrees[j] for j in g] for g in red.groups],
             "degree": kmax}
 
 
