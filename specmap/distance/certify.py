@@ -96,7 +96,7 @@ def degree_certificate(j: int, value: float, dense: DenseSweep | None, red: Redu
                    f"{ss.best[j]:.4g}")
         elif theorem - lower > slack:
             why = (f"the special-set pass bounds the maximum over degrees only ([distance] certify = "
-                   f"\"{red.settings.certify}\"): D_k <= {theorem:.4g}; certify = \"each\" closes every degree")
+                   f"\"{red.settings.certify}\"), here by {theorem:.4g}; certify = \"each\" closes every degree")
     ups = [u for u in rigorous if math.isfinite(u[0])]
     if theorem is not None and math.isfinite(theorem):
         ups.append((theorem, "slope-one+special"))
