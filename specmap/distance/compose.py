@@ -144,8 +144,9 @@ def matching_distance(shape_f, shape_g, *, method: str = "both", degrees: Iterab
     Warns
     -----
     UserWarning
-        When the dense sweep exceeds the reduced search by more than the tolerance
-        (``audit.theorem_gap``).
+        When the theorem audit fails either way by more than the tolerance: the dense sweep
+        above the reduced search, or the reduced value above a rigorous upper bound
+        (``audit.theorem_gap``, per degree in ``audit.theorem``).
 
     References
     ----------
@@ -176,7 +177,7 @@ def matching_distance(shape_f, shape_g, *, method: str = "both", degrees: Iterab
     kmax = max(degrees, key=lambda k: by_degree[k]["value"])
     top = by_degree[kmax]
 
-    # theorem_gap / gap stay None ("not run") unless both computations ran
+    # theorem_gap / gap stay None ("not run") unless the dense sweep ran (or a flag was raised)
     audit: dict[str, Any] = {"theorem_gap": None, "gap": None, "line": None, "degree": None,
                              "position": None, "upper_bound": upper, "upper_bound_kind": upper_kind}
     if red is not None:
