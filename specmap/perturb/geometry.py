@@ -83,3 +83,37 @@ def set_hausdorff(first: Any, second: Any, window: Window) -> float:
     P, p_area = _sample_set(first, step)
     Q, q_area = _sample_set(second, step)
     return max(_directed(P, Q, q_area), _directed(Q, P, p_area))
+
+
+def _curves_only(geom: Any) -> Any:
+    parts = [p for p in flat_parts([geom]) if shapely.get_type_id(p) != 3] if geom is not None else []
+    return shapely.GeometryCollection(parts) if parts else None
+
+
+def _patches_only(geom: Any) -> Any:
+    parts = [p for p in flat_parts([geom]) if shapely.get_type_id(p) == 3] if geom is not None else []
+    return unary_union(parts) if parts else None
+
+
+def curve_movement(first: Any, second: Any, window: Window) -> float | None:
+    """Hausdorff distance between the *curve and point* parts of two special sets, patches left out.
+
+    The movement of the thin part of the special set under a perturbation, measured as
+    :func:`set_hausdorff` on the curves and isolated points only, so that a patch that
+    vanishes does not read as curves moving (its change is :func:`patch_change`). None when
+    either set has no curve or point.
+    """
+    a, b = _curves_only(first), _curves_only(second)
+    if a is None or b is None:
+        return None
+    return set_hausdorff(a, b, window)
+
+
+def patch_change(first: Any, second: Any, window: Window) -> float:
+    """Area of the symmetric difference of the two sets' patches, as a fraction of the window area."""
+    a, b = _patches_only(first), _patches_only(second)
+    if a is None and b is None:
+        return 0.0
+    if a is None or b is None:
+        return float((a if a is not None else b).area) / window.area
+    return float(a.symmetric_difference(b).area) / window.area

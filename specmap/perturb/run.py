@@ -28,7 +28,7 @@ import shapely
 from specmap.errors import StudyError
 from specmap.grids.model import Grid
 from specmap.io import to_plain
-from specmap.perturb.geometry import flat_parts, set_hausdorff
+from specmap.perturb.geometry import curve_movement, flat_parts, patch_change, set_hausdorff
 from specmap.perturb.models import perturb_grid, perturb_shape
 from specmap.shapes.model import Shape
 from specmap.strip import Window
@@ -232,6 +232,8 @@ def run_one(base: PerturbBase, run_index: int, seed: int, settings: PerturbSetti
         "counts": counts,
         "has_patch": counts["patch"] > 0,
         "hausdorff": set_hausdorff(geometry, base.geometry, base.window),
+        "curve_movement": curve_movement(geometry, base.geometry, base.window),
+        "patch_change": patch_change(geometry, base.geometry, base.window),
         "distance": None,
         "stability_ok": None,
     }

@@ -136,7 +136,8 @@ def summarize_runs(records: Sequence[dict[str, Any]], *, base: dict[str, Any], s
             "bound": _mean_max([float(d["bound"]) for d in dist_recs]),
             "runs": len(dist_recs),
         }
-    violations = sum(1 for r in recs if r.get("stability_ok") is False)
+    # null when the distance was not tracked: "0 violations" would claim a check that did not run
+    violations = sum(1 for r in recs if r.get("stability_ok") is False) if dist_recs else None
     return {
         "runs": n,
         "size": float(size),
@@ -146,6 +147,9 @@ def summarize_runs(records: Sequence[dict[str, Any]], *, base: dict[str, Any], s
         "runs_with_patch_ci95": [ci[0], ci[1]],
         "total_area": _mean_max([r["total_area"] for r in recs]),
         "hausdorff": _mean_max([r["hausdorff"] for r in recs]),
+        # curves and points only (a vanishing patch is not curve movement), and the patch change
+        "curve_movement": _mean_max([r.get("curve_movement") for r in recs]),
+        "patch_change": _mean_max([r.get("patch_change") for r in recs]),
         "distance": distance,
         "stability_violations": violations,
         "verdict": verdict(base, n, with_patch, ci, size, window_area),
@@ -166,6 +170,8 @@ def sweep_row(summary: dict[str, Any]) -> dict[str, Any]:
         "total_area_mean": summary["total_area"]["mean"],
         "hausdorff_mean": summary["hausdorff"]["mean"],
         "hausdorff_max": summary["hausdorff"]["max"],
+        "curve_movement_mean": (summary.get("curve_movement") or {}).get("mean"),
+        "patch_change_mean": (summary.get("patch_change") or {}).get("mean"),
         "distance_change_max": dist["abs_change"]["max"] if dist else None,
         "stability_violations": summary["stability_violations"],
     }

@@ -421,13 +421,19 @@ def _perturb_page(pg: Pager, res: dict[str, Any]) -> None:
     ta, hd = s.get("total_area") or {}, s.get("hausdorff") or {}
     pg.para(f"Total patch area: mean {fmt(ta.get('mean'), 3)}, max {fmt(ta.get('max'), 3)}. Hausdorff "
             f"distance to the unperturbed special set: mean {fmt(hd.get('mean'), 3)}, max {fmt(hd.get('max'), 3)}.")
+    cm, pc = s.get("curve_movement") or {}, s.get("patch_change") or {}
+    if cm or pc:
+        pg.para(f"Curves alone (patches left out) moved by mean {fmt(cm.get('mean'), 3)}, max "
+                f"{fmt(cm.get('max'), 3)} (Hausdorff, (a, b) units); patches changed by mean "
+                f"{fmt(pc.get('mean'), 3)}, max {fmt(pc.get('max'), 3)} of the window area.")
     if s.get("distance"):
         pg.para(f"Matching distance under perturbation: {_short_dict(s.get('distance'))}.")
     viol = s.get("stability_violations")
     if viol is not None and num(viol) > 0:
         pg.warn(f"{WARNING} {viol} runs violate the stability bound of the matching distance.")
     else:
-        pg.para(f"Stability violations: {viol if viol is not None else 'n/a'}.")
+        pg.para(f"Stability violations: {viol}." if viol is not None
+                else "Stability of the distance: not tracked (set distance = true in [perturb] to check it).")
     if s.get("runs_per_minute") is not None:
         pg.para(f"Throughput: {fmt(s.get('runs_per_minute'), 3)} runs per minute.")
     sweep = s.get("sweep") or []
