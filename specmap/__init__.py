@@ -33,6 +33,9 @@ _LAZY = {
     "matching_distance": ("specmap.distance", "matching_distance"),
     "DistanceResult": ("specmap.distance", "DistanceResult"),
     "perturbation_study": ("specmap.perturb", "perturbation_study"),
+    "MapSettings": ("specmap.settings", "MapSettings"),
+    "DistanceSettings": ("specmap.settings", "DistanceSettings"),
+    "PerturbSettings": ("specmap.settings", "PerturbSettings"),
     "build_report": ("specmap.report.pdf", "build_report"),
 }
 
@@ -44,6 +47,7 @@ if TYPE_CHECKING:  # editors and type checkers see the lazy names; at run time _
     from specmap.grids.model import Contour, Grid, read_grid
     from specmap.perturb import perturbation_study
     from specmap.report.pdf import build_report
+    from specmap.settings import DistanceSettings, MapSettings, PerturbSettings
     from specmap.shapes.build import build_shape
     from specmap.shapes.model import Shape
     from specmap.slices import slice_diagrams

@@ -54,8 +54,54 @@ class SpecmapInputError(Exception):
         )
 
 
+class CoreInputError(SpecmapInputError):
+    """A computation refuses its input, in the computation's own words.
+
+    Core modules (grids, distance, perturbation runs, settings) know values, not files:
+    they say which input is wrong (``subject``, e.g. ``"map"``, ``"route"``, ``"model"``),
+    the value and what it should be. The pipeline and the CLI, which know the study file,
+    attach ``file`` and ``field`` with :meth:`located` (typically ``field`` = the study key
+    that gave ``subject``).
+
+    Parameters
+    ----------
+    problem : str
+        What is wrong: the value and the range or kind it should have.
+    subject : str, optional
+        The input of the computation that holds it (a parameter or setting name).
+    file, field, fix : str, optional
+        As for :class:`SpecmapInputError`.
+    """
+
+    def __init__(self, problem: str, *, subject: str | None = None, file: str | None = None,
+                 field: str | None = None, fix: str | None = None) -> None:
+        self.subject = subject
+        super().__init__(problem, file=file, field=field, fix=fix)
+
+    def located(self, *, file: str | None = None, field: str | None = None) -> CoreInputError:
+        """A copy of the same kind with missing file/field filled in (the subject is kept)."""
+        return type(self)(self.problem, subject=self.subject, file=self.file or file,
+                          field=self.field or field, fix=self.fix)
+
+
+class InputValueError(CoreInputError, ValueError):
+    """A value outside its range or not among its options (also a :class:`ValueError`)."""
+
+
+class UnsupportedInputError(CoreInputError):
+    """A well-formed input that this computation cannot handle (e.g. a rank-deficient map)."""
+
+
 class StudyError(SpecmapInputError):
     """A study file is missing, malformed or inconsistent."""
+
+
+class MissingInputError(UnsupportedInputError, StudyError):
+    """A computation was not given an input it needs (a mesh, the grids of f and g).
+
+    Also a :class:`StudyError`, the class these checks raised before they were core errors,
+    so callers that catch it keep working.
+    """
 
 
 class ExpressionError(SpecmapInputError):

@@ -9,6 +9,7 @@ This is the I/O edge: the computations it calls are pure functions.
 
 from __future__ import annotations
 
+import dataclasses
 import datetime as _dt
 import shlex
 import sys
@@ -17,10 +18,11 @@ from pathlib import Path
 from typing import Any
 
 from specmap import __version__
-from specmap.errors import SpecmapInputError
+from specmap.errors import CoreInputError, SpecmapInputError
 from specmap.grids.model import Grid, read_grid
 from specmap.io import check_out_dir, read_json, write_json, write_json_streamed
 from specmap.progress import Progress
+from specmap.settings import DistanceSettings, MapSettings
 from specmap.shapes.model import Shape
 from specmap.strip import Window, window_for
 from specmap.study import ShapeSpec, Study
@@ -152,12 +154,33 @@ class StudyRun:
     def grids(self) -> tuple[Grid, Grid]:
         from specmap.grids import pareto_grid
 
-        try:
-            gf, gg = (x if isinstance(x, Grid) else pareto_grid(x, simplification=rec)
-                      for x, rec in self._loaded)
-        except SpecmapInputError as exc:  # core errors name the field; the study file is known here
-            raise exc.located(file=str(self.study.path)) from None
-        return gf, gg
+        out = []
+        for spec, (x, rec) in zip((self.study.f, self.study.g), self._loaded, strict=True):
+            if isinstance(x, Grid):
+                out.append(x)
+                continue
+            try:
+                out.append(pareto_grid(x, spec.grid_settings, simplification=rec))
+            except SpecmapInputError as exc:  # core words; the study file and its key are known here
+                raise self.located(exc, spec.label) from None
+        return out[0], out[1]
+
+    def located(self, exc: SpecmapInputError, table: str) -> SpecmapInputError:
+        """``exc`` with the study file and, for a core error, the key of ``table`` that gave its subject."""
+        subject = getattr(exc, "subject", None) if isinstance(exc, CoreInputError) else None
+        return exc.located(file=str(self.study.path), field=f"{table}.{subject}" if subject else None)
+
+    def map_settings(self, *, pairs: str | None = None, resolution: int | None = None,
+                     method: str | None = None) -> MapSettings:
+        """The study's ``[map]`` settings with the command line's overrides."""
+        given = {"pairs": pairs, "resolution": resolution, "method": method}
+        return dataclasses.replace(self.study.map, **{k: v for k, v in given.items() if v is not None})
+
+    def distance_settings(self, *, method: str | None = None,
+                          degrees: tuple[int, ...] | None = None) -> DistanceSettings:
+        """The study's ``[distance]`` settings with the command line's overrides."""
+        given = {"method": method, "degrees": degrees}
+        return dataclasses.replace(self.study.distance, **{k: v for k, v in given.items() if v is not None})
 
     @cached_property
     def window(self) -> Window:
@@ -166,15 +189,36 @@ class StudyRun:
         return window_for(self.shapes, self.grids)
 
     def atlas(self, *, pairs: str | None = None, resolution: int | None = None, method: str | None = None):
-        key = (pairs or self.study.map.pairs, resolution or self.study.map.resolution,
-               method or self.study.map.method)
+        """The special-set atlas of the study's map settings (overrides given), computed once per settings."""
+        ms = self.map_settings(pairs=pairs, resolution=resolution, method=method)
         cache = self.__dict__.setdefault("_atlases", {})
-        if key not in cache:
+        if ms not in cache:
             from specmap.special import special_set
+            from specmap.special.preflight import check_atlas_size
 
             gf, gg = self.grids
-            cache[key] = special_set(gf, gg, self.window, pairs=key[0], resolution=key[1], method=key[2],
-                                     progress=self.progress("map"))
+            check_atlas_size(len(gf), len(gg), ms.resolution, file=str(self.study.path))  # one line, not MemoryError
+            cache[ms] = special_set(gf, gg, self.window, pairs=ms.pairs, resolution=ms.resolution,
+                                    method=ms.method, tol=ms.tol, progress=self.progress("map"))
+        return cache[ms]
+
+    def distance(self, settings: DistanceSettings, *, jobs: int = 1):
+        """The :class:`~specmap.distance.DistanceResult` of ``settings`` (with the study's atlas), once per process.
+
+        Keyed by the settings and ``jobs`` (the reduced search batches candidates by job count).
+        """
+        key = (settings, int(jobs))
+        cache = self.__dict__.setdefault("_distances", {})
+        if key not in cache:
+            from specmap.distance import matching_distance
+
+            sf, sg = self.shapes
+            atlas = self.atlas() if settings.method in ("both", "reduced") else None
+            try:
+                cache[key] = matching_distance(sf, sg, settings=settings, window=self.window, atlas=atlas,
+                                               grids=self.grids, jobs=jobs, progress=self.progress("distance"))
+            except CoreInputError as exc:  # core words ("method", no mesh, ...); the file is known here
+                raise self.located(exc, "distance") from None
         return cache[key]
 
     # -- writers ----------------------------------------------------------
@@ -222,17 +266,11 @@ class StudyRun:
 
     def write_distance(self, *, method: str | None = None, degrees: tuple[int, ...] | None = None,
                        jobs: int = 1) -> dict[str, Any]:
-        from specmap.distance import matching_distance
         from specmap.report.figures import distance_map_figure, save_png
 
-        method = method or self.study.distance.method
-        sf, sg = self.shapes
-        atlas = self.atlas() if method in ("both", "reduced") else None
-        result = matching_distance(
-            sf, sg, method=method, degrees=degrees or self.study.distance.degrees, window=self.window,
-            atlas=atlas, grids=self.grids, jobs=jobs,
-            dense_resolution=self.study.distance.dense_resolution, progress=self.progress("distance"),
-        )
+        settings = self.distance_settings(method=method, degrees=degrees)
+        atlas = self.atlas() if settings.method in ("both", "reduced") else None
+        result = self.distance(settings, jobs=jobs)
         js = with_simplified_bounds(result.to_json(), *self.simplification)
         write_json(self.out / "distance.json", js)
         geo = atlas.to_geojson() if atlas is not None else None
@@ -242,12 +280,25 @@ class StudyRun:
 
     def write_perturb(self, *, runs: int | None = None, jobs: int = 1, cluster: str | None = None) -> dict:
         from specmap.io import read_jsonl
-        from specmap.perturb import perturbation_study
+        from specmap.perturb import make_base, perturbation_study
         from specmap.report.figures import perturb_figure, save_png
 
-        base = {"shapes": self.shapes, "grids": self.grids, "window": self.window, "atlas": self.atlas()}
-        summary = perturbation_study(self.study, out_dir=self.out, runs=runs, jobs=jobs, cluster=cluster,
-                                     progress=self.progress("perturb"), base=base)
+        settings = self.study.perturb_settings(runs=runs)
+        shapes: tuple | None = self.shapes
+        if any(s is None or not s.has_mesh for s in self.shapes):
+            shapes = None if settings.model == "grid" else self.shapes
+        distance = None
+        if settings.distance and settings.model == "function" and shapes is not None:
+            # the base distance of the runs' own settings, with one job as in every run
+            distance = self.distance(settings.distance_settings, jobs=1)
+        try:
+            base = make_base(self.grids, self.window, shapes=shapes, atlas=self.atlas(), distance=distance,
+                             settings=settings, grid_settings=(self.study.f.grid_settings,
+                                                               self.study.g.grid_settings))
+            summary = perturbation_study(base, settings, self.out / "perturb", sizes=self.study.perturb.sizes,
+                                         jobs=jobs, cluster=cluster, progress=self.progress("perturb"))
+        except CoreInputError as exc:  # core words ("model", ...); the study file and its key are known here
+            raise self.located(exc, "perturb") from None
         rows = list(read_jsonl(self.out / "perturb" / "runs.jsonl"))
         save_png(perturb_figure(summary, rows), self.out / "figures" / "perturb.png")
         return summary

@@ -28,11 +28,15 @@ Format (all tables but ``[study]``, ``[f]``, ``[g]`` optional)::
     a = [0.02, 0.98]
     b = [-3.0, 3.0]
 
-    [map]      pairs = "all" | "roles", resolution = 121, method = "sweep" | "naive",
-               max_contours = 60     # budget per grid for a mesh's simplify = "auto"
-    [distance] method = "both", degrees = [0, 1, 2], dense_resolution = 41
-    [perturb]  model = "function" | "grid", size = 1e-3, runs = 20, seed = 1,
+    [map]      pairs = "all" | "roles", resolution = <nodes per side>, method = "sweep" | "naive",
+               max_contours = <budget per grid for a mesh's simplify = "auto">
+    [distance] method = "both" | "dense" | "reduced", degrees = [0, 1, 2], dense_resolution = <nodes>
+    [perturb]  model = "function" | "grid", size = <sup norm>, runs = <count>, seed = <int>,
                sizes = [1e-3, 1e-2], distance = false
+
+Every default is that of :mod:`specmap.settings` (``MapSettings``, ``DistanceSettings``,
+``PerturbSettings``, ``GridSettings``); the ``[map]`` and ``[distance]`` tables *are*
+``MapSettings`` and ``DistanceSettings`` values.
 """
 
 from __future__ import annotations
@@ -44,6 +48,17 @@ from pathlib import Path
 from typing import Any
 
 from specmap.errors import StudyError
+from specmap.settings import (
+    DISTANCE_METHODS,
+    MAP_METHODS,
+    MODELS,
+    PAIRS,
+    ROUTES,
+    DistanceSettings,
+    GridSettings,
+    MapSettings,
+    PerturbSettings,
+)
 from specmap.strip import Window
 
 SURFACES = {"ellipsoid": 3, "torus": 2}
@@ -86,7 +101,12 @@ class ShapeSpec:
     fields: tuple[str, str] | None = None
     resolution: int = 3000
     simplify: float | str = 0.0  # mesh: delta >= 0 (value units, 0 = off) or "auto" (see specmap.simplify)
-    route: str = "auto"
+    route: str = GridSettings.route
+
+    @property
+    def grid_settings(self) -> GridSettings:
+        """How this shape's grid is computed: its route, and its resolution for the smooth route."""
+        return GridSettings(route=self.route, resolution=self.resolution if self.source == "surface" else None)
 
     def describe(self) -> str:
         """One human line, e.g. ``ellipsoid radii (2, 1, 1), map (x, y)``."""
@@ -112,29 +132,23 @@ class ShapeSpec:
         }
 
 
-@dataclass(frozen=True)
-class MapSpec:
-    pairs: str = "all"
-    resolution: int = 121
-    method: str = "sweep"
-    max_contours: int = 60  # contour budget per grid for simplify = "auto"
-
-
-@dataclass(frozen=True)
-class DistanceSpec:
-    method: str = "both"
-    degrees: tuple[int, ...] = (0, 1, 2)
-    dense_resolution: int = 41
+MapSpec = MapSettings
+"""The ``[map]`` table: :class:`~specmap.settings.MapSettings` (old name kept for imports)."""
+DistanceSpec = DistanceSettings
+"""The ``[distance]`` table: :class:`~specmap.settings.DistanceSettings` (old name kept for imports)."""
+_MAP, _DISTANCE, _PERTURB = MapSettings(), DistanceSettings(), PerturbSettings()
 
 
 @dataclass(frozen=True)
 class PerturbSpec:
-    model: str = "function"
-    size: float = 1e-3
-    runs: int = 20
-    seed: int = 1
+    """The ``[perturb]`` table; :meth:`Study.perturb_settings` joins it with ``[map]`` and ``[distance]``."""
+
+    model: str = _PERTURB.model
+    size: float = _PERTURB.size
+    runs: int = _PERTURB.runs
+    seed: int = _PERTURB.seed
     sizes: tuple[float, ...] | None = None
-    distance: bool = False
+    distance: bool = _PERTURB.distance
 
 
 @dataclass(frozen=True)
@@ -148,13 +162,33 @@ class Study:
     g: ShapeSpec
     constants: dict[str, float] = field(default_factory=dict)
     window: Window | None = None
-    map: MapSpec = MapSpec()
-    distance: DistanceSpec = DistanceSpec()
+    map: MapSettings = _MAP
+    distance: DistanceSettings = _DISTANCE
     perturb: PerturbSpec | None = None
 
     @property
     def grid_only(self) -> bool:
         return self.f.source == "grid" or self.g.source == "grid"
+
+    def perturb_settings(self, *, runs: int | None = None) -> PerturbSettings:
+        """The :class:`~specmap.settings.PerturbSettings` of ``[perturb]``, ``[map]`` and ``[distance]``.
+
+        Parameters
+        ----------
+        runs : int, optional
+            Overrides ``perturb.runs`` (the ``--runs`` flag, checked by :func:`check_flag`).
+
+        Raises
+        ------
+        StudyError
+            The study has no ``[perturb]`` table.
+        """
+        p = self.perturb
+        if p is None:
+            raise StudyError("no [perturb] table", file=str(self.path), field="[perturb]",
+                             fix="add [perturb] with size = ..., runs = ...")
+        return PerturbSettings.of(model=p.model, size=p.size, runs=p.runs if runs is None else runs, seed=p.seed,
+                                  distance=p.distance, map=self.map, dist=self.distance)
 
 
 class _Reader:
@@ -270,7 +304,7 @@ def _shape(r: _Reader, data: dict, label: str, base: Path) -> ShapeSpec:
             raise r.fail(f"{label}.radii", f"torus needs R > r, got R={radii[0]:g}, r={radii[1]:g}",
                          "give radii = [R, r] with R > r > 0")
         res = r.integer(t, label, "resolution", 3000, lo=100, hi=2_000_000)
-        route = r.choice(t, label, "route", "auto", ("auto", "smooth", "exact", "piecewise"))
+        route = r.choice(t, label, "route", GridSettings.route, ROUTES)
         return ShapeSpec(label, "surface", surface=kind, radii=radii, map=fmap, resolution=res, route=route)
     path = _path(r, t, label, "mesh", base, MESH_SUFFIXES)
     simplify: float | str = "auto"
@@ -335,29 +369,29 @@ def parse_study(data: dict[str, Any], path: Path) -> Study:
         window = Window(a, b)
     mt = r.table(data, "map", False, {"pairs", "resolution", "method", "max_contours"})
     mspec = MapSpec(
-        pairs=r.choice(mt, "map", "pairs", "all", ("all", "roles")),
-        resolution=r.integer(mt, "map", "resolution", 121, lo=LIMITS["map.resolution"][0],
+        pairs=r.choice(mt, "map", "pairs", _MAP.pairs, PAIRS),
+        resolution=r.integer(mt, "map", "resolution", _MAP.resolution, lo=LIMITS["map.resolution"][0],
                              hi=LIMITS["map.resolution"][1]),
-        method=r.choice(mt, "map", "method", "sweep", ("sweep", "naive")),
-        max_contours=r.integer(mt, "map", "max_contours", 60, lo=1),
+        method=r.choice(mt, "map", "method", _MAP.method, MAP_METHODS),
+        max_contours=r.integer(mt, "map", "max_contours", _MAP.max_contours, lo=1),
     )
     dt = r.table(data, "distance", False, {"method", "degrees", "dense_resolution"})
-    degrees = (0, 1, 2)
+    degrees = _DISTANCE.degrees
     if "degrees" in dt:
         dv = dt["degrees"]
         if not isinstance(dv, list) or not dv or not all(x in (0, 1, 2) and not isinstance(x, bool) for x in dv):
             raise r.fail("distance.degrees", f"{dv!r} is not a list of degrees", "give degrees among [0, 1, 2]")
         degrees = tuple(sorted(set(dv)))
     dspec = DistanceSpec(
-        method=r.choice(dt, "distance", "method", "both", ("both", "dense", "reduced")),
+        method=r.choice(dt, "distance", "method", _DISTANCE.method, DISTANCE_METHODS),
         degrees=degrees,
-        dense_resolution=r.integer(dt, "distance", "dense_resolution", 41, lo=3, hi=1001),
+        dense_resolution=r.integer(dt, "distance", "dense_resolution", _DISTANCE.dense_resolution, lo=3, hi=1001),
     )
     pspec = None
     if "perturb" in data:
         pt = r.table(data, "perturb", False, {"model", "size", "runs", "seed", "sizes", "distance"})
         default_model = "grid" if (f.source == "grid" or g.source == "grid") else "function"
-        model = r.choice(pt, "perturb", "model", default_model, ("function", "grid"))
+        model = r.choice(pt, "perturb", "model", default_model, MODELS)
         if model == "function" and (f.source == "grid" or g.source == "grid"):
             raise r.fail("perturb.model", "'function' needs surfaces or meshes, this study has a grid file",
                          "use model = \"grid\"")
@@ -366,13 +400,14 @@ def parse_study(data: dict[str, Any], path: Path) -> Study:
             sizes = r.numbers(pt, "perturb", "sizes")
             if not sizes or any(s <= 0 for s in sizes):
                 raise r.fail("perturb.sizes", "needs positive sizes", "give sizes = [1e-3, 1e-2, ...]")
-        dist = pt.get("distance", False)
+        dist = pt.get("distance", _PERTURB.distance)
         if not isinstance(dist, bool):
             raise r.fail("perturb.distance", f"{dist!r} is not true/false", "set distance = true or false")
         pspec = PerturbSpec(
             model=model,
-            size=r.number(pt, "perturb", "size", 1e-3, positive=True),
-            runs=r.integer(pt, "perturb", "runs", 20, lo=LIMITS["perturb.runs"][0], hi=LIMITS["perturb.runs"][1]),
+            size=r.number(pt, "perturb", "size", _PERTURB.size, positive=True),
+            runs=r.integer(pt, "perturb", "runs", _PERTURB.runs, lo=LIMITS["perturb.runs"][0],
+                           hi=LIMITS["perturb.runs"][1]),
             seed=r.integer(pt, "perturb", "seed", seed),
             sizes=sizes,
             distance=dist,

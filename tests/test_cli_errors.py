@@ -132,6 +132,45 @@ def test_rank_deficient_linear_map(route: str, tmp_path: Path) -> None:
     assert not (tmp_path / "results").exists()
 
 
+def test_rank_deficient_exact_route_core_error_then_located(tmp_path: Path) -> None:
+    # The same map (f2 = 2 f1, rank 1: construction) asked for the exact route, given to the core
+    # directly (the study loader refuses it earlier, above). The core raises in its own words
+    # (which input, what is wrong; no file, no study key); the pipeline adds the study file and
+    # the key "f.map", which the CLI prints as one line.
+    from specmap.errors import UnsupportedInputError
+    from specmap.expr import compile_map
+    from specmap.grids import pareto_grid
+    from specmap.pipeline import StudyRun
+    from specmap.settings import GridSettings
+    from specmap.shapes.model import Shape
+    from specmap.shapes.surfaces import make_surface
+    from specmap.study import load_study
+
+    surface = make_surface("ellipsoid", (2.0, 1.0, 1.0))
+    V, T = surface.mesh(200)
+    fmap = compile_map(["x", "2*x"])
+    shape = Shape("f", "surface", V, T, fmap.values(V), surface=surface, fmap=fmap)
+    with pytest.raises(UnsupportedInputError) as core:
+        pareto_grid(shape, GridSettings(route="exact"))
+    assert core.value.subject == "map" and core.value.file is None and core.value.field is None
+    assert "toml" not in str(core.value) and "f.map" not in str(core.value)
+    (tmp_path / "s.toml").write_text(HEAD + GOOD_F + GOOD_G)
+    located = StudyRun(load_study(tmp_path / "s.toml"), show_progress=False).located(core.value, "f")
+    assert isinstance(located, UnsupportedInputError)
+    line = located.one_line()
+    assert line.startswith(f"{tmp_path / 's.toml'}: f.map: the two components") and "\n" not in line
+
+
+def test_exact_route_needs_a_linear_map(tmp_path: Path) -> None:
+    # route = "exact" is the closed form for linear maps on ellipsoids (grids/exact.py); a
+    # quadratic component is outside it: one line naming the file and f.route.
+    f = GOOD_F.replace('"y"]', '"y*y"]') + 'route = "exact"\n'
+    (tmp_path / "s.toml").write_text(HEAD + f + GOOD_G)
+    proc = run_cli(["grid", "s.toml"], tmp_path)
+    assert_user_error(proc, "s.toml", "f.route", "linear map")
+    assert not (tmp_path / "results").exists()
+
+
 @pytest.mark.parametrize(
     "args, field",
     [

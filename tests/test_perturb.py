@@ -171,10 +171,16 @@ def test_perturb_surface_gives_map_with_exact_jacobian():
     surface = make_surface("ellipsoid", (2.0, 1.0, 1.0))
     V, T = surface.mesh(200)
     fmap = compile_map(["x", "y"])
-    shape = Shape("f", "surface", V, T, fmap.values(V), surface=surface, fmap=fmap, meta={"route": "exact"})
+    shape = Shape("f", "surface", V, T, fmap.values(V), surface=surface, fmap=fmap)
     new, applied = perturb_shape(shape, 0.05, np.random.default_rng(5))
     assert isinstance(new.fmap, PerturbedMap)
-    assert new.fmap.is_linear() is False and new.meta["route"] == "auto"
+    # the closed form needs a linear map: a run asks for the perturbed grid with route "auto"
+    from specmap.perturb.run import perturbed_grid_settings
+    from specmap.settings import GridSettings
+
+    assert new.fmap.is_linear() is False
+    assert perturbed_grid_settings(GridSettings(route="exact", resolution=500)) == GridSettings("auto", 500)
+    assert perturbed_grid_settings(GridSettings(route="smooth")).route == "smooth"
     assert np.allclose(new.fmap.values(V), new.values, atol=1e-14)
     P = V[:30]
     eps = 1e-6
@@ -239,13 +245,17 @@ def test_repair_tail_and_load_runs(tmp_path):
 
 
 def test_settings_validation():
-    # construction: user-facing errors for impossible settings.
-    from specmap.errors import StudyError
+    # construction: impossible settings are core errors (value and what it should be, no study
+    # vocabulary) that also are ValueErrors; the pipeline attaches file and field.
+    from specmap.errors import InputValueError
 
-    with pytest.raises(StudyError):
+    with pytest.raises(InputValueError, match="'noise'") as info:
         PerturbSettings(model="noise")
-    with pytest.raises(StudyError):
+    assert info.value.subject == "model" and info.value.file is None and "perturb." not in str(info.value)
+    with pytest.raises(ValueError, match="-1.0"):
         PerturbSettings(size=-1.0)
+    where = info.value.located(file="s.toml", field="perturb.model")
+    assert isinstance(where, InputValueError) and where.one_line().startswith("s.toml: perturb.model: model")
 
 
 # --------------------------------------------------------------------------- run sets (need special_set)
@@ -451,18 +461,14 @@ def test_cluster_without_dask_is_a_one_line_error(tmp_path, monkeypatch):
 @needs_special
 def test_perturbation_study_sweep_from_a_study(tmp_path):
     # construction: each size of a sweep is its own run set; the main size is reused.
-    from types import SimpleNamespace
-
-    from specmap.perturb import perturbation_study
-    from specmap.study import PerturbSpec
+    from specmap.perturb import make_base, perturbation_study
+    from specmap.settings import DistanceSettings, MapSettings
 
     gf, gg = four_verticals()
-    study = SimpleNamespace(
-        name="sweep", seed=1, window=WINDOW, perturb=PerturbSpec(model="grid", size=1e-3, runs=3, seed=2,
-                                                                sizes=(1e-3, 1e-2), distance=False),
-        map=SimpleNamespace(pairs="all", resolution=RESOLUTION, method="sweep"),
-    )
-    summary = perturbation_study(study, out_dir=tmp_path, base={"grids": (gf, gg), "window": WINDOW})
+    settings = PerturbSettings.of(model="grid", size=1e-3, runs=3, seed=2, distance=False,
+                                  map=MapSettings(resolution=RESOLUTION), dist=DistanceSettings())
+    base = make_base((gf, gg), WINDOW, settings=settings)
+    summary = perturbation_study(base, settings, tmp_path / "perturb", sizes=(1e-3, 1e-2))
     assert [row["size"] for row in summary["sweep"]] == [1e-3, 1e-2]
     assert all(row["runs"] == 3 for row in summary["sweep"])
     assert (tmp_path / "perturb" / "sweep" / "size-0.01" / "runs.jsonl").exists()

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from collections.abc import Iterable, Sequence
 from typing import Any
@@ -20,9 +21,9 @@ from specmap.distance.result import (
     landscape_json,
     reduced_json,
 )
-from specmap.errors import StudyError
+from specmap.errors import MissingInputError
+from specmap.settings import DistanceSettings
 from specmap.shapes.model import require_mesh
-from specmap.slices import DEGREES
 from specmap.strip import Window, default_window
 
 METHODS = ("both", "dense", "reduced")
@@ -52,8 +53,8 @@ def _reduced_stage(ev: LineEvaluator, window: Window, pair: tuple | None, atlas,
                    upper: float, settings: ReducedSettings) -> ReducedSearch:
     """The reduced search, with the atlas computed from the grids when not given."""
     if pair is None:
-        raise StudyError("the reduced search needs the extended Pareto grids of f and g",
-                         field="grids", fix="pass grids=(grid_f, grid_g) or use method='dense'")
+        raise MissingInputError("the reduced search needs the extended Pareto grids of f and g",
+                                fix="pass grids=(grid_f, grid_g) or use method 'dense'")
     if atlas is None:
         from specmap.special import special_set
 
@@ -97,18 +98,21 @@ def _certify_degrees(by_degree: dict[int, dict[str, Any]], degrees: Sequence[int
 
 
 # long by its docstring and public keyword signature only; the body composes the stages in about 40 lines
-def matching_distance(shape_f, shape_g, *, method: str = "both", degrees: Iterable[int] = DEGREES,
-                      window: Window | None = None, atlas=None, grids=None, jobs: int = 1,
-                      dense_resolution: int = 41, progress: Progress | None = None,
-                      tolerance: float | None = None, slope_samples: int = 17,
-                      spacing: float = 1 / 200, roles: bool = True, certify: str = "max",
-                      position_lines: int = 20) -> DistanceResult:
+def matching_distance(shape_f, shape_g, *, settings: DistanceSettings | None = None, method: str | None = None,
+                      degrees: Iterable[int] | None = None, window: Window | None = None, atlas=None,
+                      grids=None, jobs: int = 1, dense_resolution: int | None = None,
+                      progress: Progress | None = None, tolerance: float | None = None,
+                      slope_samples: int | None = None, spacing: float | None = None, roles: bool | None = None,
+                      certify: str | None = None, position_lines: int | None = None) -> DistanceResult:
     """Matching distance D_k(f, g) of two meshed maps, dense, reduced or both.
 
     Parameters
     ----------
     shape_f, shape_g : Shape
         Must carry a mesh (vertices, triangles, values).
+    settings : DistanceSettings, optional
+        All settings at once (default :class:`~specmap.settings.DistanceSettings`, where every
+        default lives); a keyword below that is given (not None) overrides its field.
     method : {"both", "dense", "reduced"}
     degrees : iterable of int
     window : Window, optional
@@ -138,8 +142,9 @@ def matching_distance(shape_f, shape_g, *, method: str = "both", degrees: Iterab
 
     Raises
     ------
-    StudyError
-        A shape without a mesh; the reduced search without grids.
+    MissingInputError
+        A shape without a mesh (:class:`~specmap.shapes.model.MeshRequiredError`); the reduced
+        search without grids.
 
     Warns
     -----
@@ -152,8 +157,13 @@ def matching_distance(shape_f, shape_g, *, method: str = "both", degrees: Iterab
     ----------
     .. [CDFFL13] Cerri et al. (2013); [EFQT23] Ethier et al. (2023); [FMQT] arXiv:2312.04201.
     """
+    given = {"method": method, "degrees": None if degrees is None else tuple(degrees),
+             "dense_resolution": dense_resolution, "tolerance": tolerance, "slope_samples": slope_samples,
+             "spacing": spacing, "roles": roles, "certify": certify, "position_lines": position_lines}
+    s = dataclasses.replace(settings or DistanceSettings(), **{k: v for k, v in given.items() if v is not None})
+    method, degrees, dense_resolution, tolerance = s.method, s.degrees, s.dense_resolution, s.tolerance
+    certify, position_lines = s.certify, s.position_lines
     _check_inputs(shape_f, shape_g, method)
-    degrees = tuple(int(k) for k in degrees)
     bf, bg = shape_f.value_bounds(), shape_g.value_bounds()
     window = window or default_window(bf, bg)
     pair = _grids_pair(grids)
@@ -161,19 +171,19 @@ def matching_distance(shape_f, shape_g, *, method: str = "both", degrees: Iterab
     lip = lipschitz_constants(bf, bg, window)
     upper, upper_kind = distance_upper_bound(shape_f, shape_g)
     ev = LineEvaluator(shape_f, shape_g, degrees, jobs=jobs, progress=progress)
-    settings = ReducedSettings(slope_samples=slope_samples, spacing=spacing, roles=roles, certify=certify)
+    reduced_settings = ReducedSettings.of(s)
 
     dense = red = None
     if method in ("dense", "both"):
         dense = dense_sweep(ev, window, resolution=dense_resolution, bounds=(bf, bg))
     if method in ("reduced", "both"):
-        red = _reduced_stage(ev, window, pair, atlas, tolerance=tol, upper=upper, settings=settings)
+        red = _reduced_stage(ev, window, pair, atlas, tolerance=tol, upper=upper, settings=reduced_settings)
 
     by_degree = _by_degree(red, dense, degrees, tol)
     grid_tol = max((float(g.tolerance) for g in pair), default=0.0) if pair is not None else 0.0
     floors = (grid_tol, max(mesh_tolerance(shape_f), mesh_tolerance(shape_g)))
     _certify_degrees(by_degree, degrees, dense, red, tolerance=tol, upper=upper, upper_kind=upper_kind,
-                     floors=floors, max_lines=settings.slope_max_lines)
+                     floors=floors, max_lines=reduced_settings.slope_max_lines)
     kmax = max(degrees, key=lambda k: by_degree[k]["value"])
     top = by_degree[kmax]
 

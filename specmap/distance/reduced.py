@@ -12,7 +12,7 @@ from __future__ import annotations
 import math
 import time
 from collections.abc import Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, fields
 from typing import Any
 
 import numpy as np
@@ -24,12 +24,15 @@ from specmap.distance.paths import normalise
 from specmap.distance.refine import polish_along
 from specmap.distance.result import Best, Candidates, ReducedSearch, SlopeOneSearch
 from specmap.distance.slope_one import slope_one_search
+from specmap.settings import DistanceSettings
 from specmap.strip import Window
+
+_DEFAULTS = DistanceSettings()
 
 
 @dataclass(frozen=True)
 class ReducedSettings:
-    """Settings of :func:`reduced_search` (defaults as used by :func:`specmap.distance.matching_distance`).
+    """Settings of :func:`reduced_search` (defaults from :class:`~specmap.settings.DistanceSettings`).
 
     Attributes
     ----------
@@ -54,15 +57,20 @@ class ReducedSettings:
         Golden-section steps of the polish.
     """
 
-    slope_samples: int = 17
-    slope_max_lines: int = 200
-    spacing: float = 1 / 200
-    roles: bool = True
-    certify: str = "max"
-    polish: bool = True
-    batch: int | None = None
-    local_bound: bool = True
-    polish_iters: int = 6
+    slope_samples: int = _DEFAULTS.slope_samples
+    slope_max_lines: int = _DEFAULTS.slope_max_lines
+    spacing: float = _DEFAULTS.spacing
+    roles: bool = _DEFAULTS.roles
+    certify: str = _DEFAULTS.certify
+    polish: bool = _DEFAULTS.polish
+    batch: int | None = _DEFAULTS.batch
+    local_bound: bool = _DEFAULTS.local_bound
+    polish_iters: int = _DEFAULTS.polish_iters
+
+    @classmethod
+    def of(cls, settings: DistanceSettings) -> ReducedSettings:
+        """The reduced-search part of a :class:`~specmap.settings.DistanceSettings`."""
+        return cls(**{f.name: getattr(settings, f.name) for f in fields(cls)})
 
 
 def _same_mesh(ev: LineEvaluator) -> bool:

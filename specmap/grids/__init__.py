@@ -14,43 +14,62 @@ from __future__ import annotations
 import dataclasses
 from typing import TYPE_CHECKING
 
-from specmap.errors import StudyError
+from specmap.errors import UnsupportedInputError
 from specmap.grids.exact import ellipsoid_linear_grid, is_dependent_linear, is_exact_case
 from specmap.grids.model import Contour, Grid, grid_from_json, read_grid, validate_grid
 from specmap.grids.piecewise import piecewise_grid
 from specmap.grids.smooth import smooth_grid
+from specmap.settings import GridSettings
 
 if TYPE_CHECKING:
     from specmap.shapes.model import Shape
 
-__all__ = ["Contour", "Grid", "grid_from_json", "read_grid", "validate_grid", "pareto_grid", "route_for"]
+__all__ = ["Contour", "Grid", "GridSettings", "grid_from_json", "read_grid", "validate_grid", "pareto_grid",
+           "route_for"]
 
 
-def route_for(shape: Shape) -> str:
-    """The route :func:`pareto_grid` takes for a shape: ``"piecewise"``, ``"exact"`` or ``"smooth"``."""
+def route_for(shape: Shape, route: str = "auto") -> str:
+    """The route :func:`pareto_grid` takes for a shape: ``"piecewise"``, ``"exact"`` or ``"smooth"``.
+
+    Parameters
+    ----------
+    shape : Shape
+    route : {"auto", "smooth", "exact", "piecewise"}
+        The route asked for (:attr:`specmap.settings.GridSettings.route`); ``"auto"`` picks the
+        closed form when it applies, else Jacobi-set tracing (a mesh always takes the PL route).
+
+    Raises
+    ------
+    UnsupportedInputError
+        ``subject="map"``: the two components of a linear map are dependent (rank < 2);
+        ``subject="route"``: ``"exact"`` asked for a shape outside the closed form.
+    """
     if shape.source == "mesh":
         return "piecewise"
     if shape.fmap is not None and is_dependent_linear(shape.fmap):
-        raise StudyError("the two components of the map are linearly dependent (rank < 2), "
-                         "so the map has no Pareto grid", field=f"{shape.label}.map",
-                         fix="give two independent functions")
-    requested = shape.meta.get("route", "auto")
+        raise UnsupportedInputError("the two components of the map are linearly dependent (rank < 2), "
+                                    "so the map has no Pareto grid", subject="map",
+                                    fix="give two independent functions")
     exact_ok = is_exact_case(shape.surface, shape.fmap)
-    if requested == "exact" and not exact_ok:
-        raise StudyError("route 'exact' needs an ellipsoid with a linear map",
-                         field=f"{shape.label}.route", fix='use route = "auto" or "smooth"')
-    if requested != "auto":
-        return requested
+    if route == "exact" and not exact_ok:
+        raise UnsupportedInputError("route 'exact' needs an ellipsoid with a linear map", subject="route",
+                                    fix="use route 'auto' or 'smooth'")
+    if route != "auto":
+        return route
     return "exact" if exact_ok else "smooth"
 
 
-def pareto_grid(shape: Shape, *, simplification: dict | None = None) -> Grid:
+def pareto_grid(shape: Shape, settings: GridSettings | None = None, *,
+                simplification: dict | None = None) -> Grid:
     """The extended Pareto grid of a shape [CEF19].
 
     Parameters
     ----------
     shape : Shape
         A surface or a mesh (a grid file is read with :func:`read_grid` instead).
+    settings : GridSettings, optional
+        Route and smooth-route resolution (default :class:`~specmap.settings.GridSettings`:
+        route ``"auto"``, the smooth route's own resolution).
     simplification : dict, optional
         PL route only: the record of :func:`specmap.simplify.simplify_values` when the
         shape's values were simplified; copied into ``meta["simplification"]`` (``delta``,
@@ -65,7 +84,8 @@ def pareto_grid(shape: Shape, *, simplification: dict | None = None) -> Grid:
     ----------
     .. [CEF19] Cerri, Ethier, Frosini, J. Appl. Comput. Topol. 3 (2019).
     """
-    route = route_for(shape)
+    settings = settings or GridSettings()
+    route = route_for(shape, settings.route)
     label = shape.label
     if route == "piecewise":
         grid = piecewise_grid(shape.vertices, shape.triangles, shape.values, label=label)
@@ -78,5 +98,6 @@ def pareto_grid(shape: Shape, *, simplification: dict | None = None) -> Grid:
     if route == "exact":
         return ellipsoid_linear_grid(shape.surface.radii, shape.fmap.matrix(), shape.fmap.offset(),
                                      label=label)
-    return smooth_grid(shape.surface, shape.fmap, label=label,
-                       resolution=int(shape.meta.get("resolution", 4000)))
+    if settings.resolution is None:
+        return smooth_grid(shape.surface, shape.fmap, label=label)
+    return smooth_grid(shape.surface, shape.fmap, label=label, resolution=int(settings.resolution))

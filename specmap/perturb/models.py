@@ -240,10 +240,9 @@ def perturb_shape(shape: Shape, size: float, rng: np.random.Generator) -> tuple[
     meta = {"perturbation": {"model": "function", "size": float(size), "applied": applied}}
     new = shape.with_values(np.asarray(shape.values, dtype=float) + delta, **meta)
     if shape.source == "surface" and shape.fmap is not None:
-        # A perturbed map is not linear: the closed-form route no longer applies.
-        route = "auto" if shape.meta.get("route") == "exact" else shape.meta.get("route", "auto")
-        new = dataclasses.replace(new, fmap=PerturbedMap(shape.fmap, fields, float(size)),
-                                  meta={**new.meta, "route": route})
+        # A perturbed map is not linear: the closed-form route no longer applies (the run asks for
+        # its grid with specmap.perturb.run.perturbed_grid_settings).
+        new = dataclasses.replace(new, fmap=PerturbedMap(shape.fmap, fields, float(size)))
     return new, applied
 
 

@@ -1,6 +1,7 @@
 """One perturbation run as a pure function, and the values it reads and returns.
 
-:class:`PerturbSettings` decide a run set, :class:`PerturbBase` holds the unperturbed pair;
+:class:`~specmap.settings.PerturbSettings` decide a run set (defined in :mod:`specmap.settings`,
+importable from here), :class:`PerturbBase` holds the unperturbed pair;
 :func:`run_one` perturbs the pair once (seeded by :func:`run_seed`), maps its special set again,
 compares it with the base (:func:`specmap.perturb.geometry.set_hausdorff`) and checks the
 stability bound of the matching distance (:func:`stability_check`).
@@ -17,19 +18,19 @@ References
 
 from __future__ import annotations
 
-import math
+import dataclasses
 import time
-from dataclasses import asdict, dataclass
+from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
 import shapely
 
-from specmap.errors import StudyError
+from specmap.errors import UnsupportedInputError
 from specmap.grids.model import Grid
-from specmap.io import to_plain
 from specmap.perturb.geometry import curve_movement, flat_parts, patch_change, set_hausdorff
 from specmap.perturb.models import perturb_grid, perturb_shape
+from specmap.settings import GridSettings, PerturbSettings
 from specmap.shapes.model import Shape
 from specmap.strip import Window
 
@@ -38,55 +39,6 @@ STABILITY_SLACK = 1e-9
 distance tolerances."""
 
 TIME_FIELDS = ("time",)
-
-
-@dataclass(frozen=True)
-class PerturbSettings:
-    """Everything that decides the outcome of a run set (besides the base pair).
-
-    Attributes
-    ----------
-    model : {"function", "grid"}
-    size : float
-        Sup norm of the function change, or largest contour move.
-    runs : int
-        Number of runs wanted (not part of the fingerprint: a run set can be extended).
-    seed : int
-    pairs, resolution, method, tol
-        Passed to :func:`specmap.special.special_set`.
-    distance : bool
-        Recompute the matching distance in every run ("function" model only).
-    distance_method : str
-    degrees : tuple of int
-    dense_resolution : int
-    """
-
-    model: str = "function"
-    size: float = 1e-3
-    runs: int = 20
-    seed: int = 1
-    pairs: str = "all"
-    resolution: int = 121
-    method: str = "sweep"
-    tol: float | None = None
-    distance: bool = False
-    distance_method: str = "reduced"
-    degrees: tuple[int, ...] = (0, 1, 2)
-    dense_resolution: int = 41
-
-    def __post_init__(self) -> None:
-        if self.model not in ("function", "grid"):
-            raise StudyError(f"unknown perturbation model {self.model!r}", field="perturb.model",
-                             fix="use 'function' or 'grid'")
-        if not (self.size >= 0 and math.isfinite(self.size)):
-            raise StudyError(f"size {self.size!r} is not a finite number >= 0", field="perturb.size",
-                             fix="give size = 1e-3 (for example)")
-        if self.runs < 0:
-            raise StudyError("runs must be >= 0", field="perturb.runs", fix="give runs = 20 (for example)")
-        object.__setattr__(self, "degrees", tuple(int(d) for d in self.degrees))
-
-    def to_json(self) -> dict[str, Any]:
-        return to_plain(asdict(self))
 
 
 @dataclass(frozen=True, eq=False)
@@ -107,6 +59,8 @@ class PerturbBase:
         Union of the component geometries of the base special set, in (a, b).
     distance : dict or None
         ``{"value": float, "by_degree": {k: float}, "tolerance": float}`` of the base pair.
+    grid_settings : (GridSettings, GridSettings)
+        How the grids of perturbed shapes are computed ("function" model).
     """
 
     grid_f: Grid
@@ -118,6 +72,7 @@ class PerturbBase:
     counts: Any = None
     geometry: Any = None
     distance: dict[str, Any] | None = None
+    grid_settings: tuple[GridSettings, GridSettings] = (GridSettings(), GridSettings())
 
     def summary(self) -> dict[str, Any]:
         return {"total_area": self.total_area, "counts": dict(self.counts or {}),
@@ -157,23 +112,29 @@ def _distance_digest(result: Any) -> dict[str, Any]:
 def _special(grid_f: Grid, grid_g: Grid, window: Window, settings: PerturbSettings) -> Any:
     from specmap.special import special_set
 
-    return special_set(grid_f, grid_g, window, pairs=settings.pairs, resolution=settings.resolution,
-                       method=settings.method, tol=settings.tol)
+    ms = settings.map_settings
+    return special_set(grid_f, grid_g, window, pairs=ms.pairs, resolution=ms.resolution, method=ms.method,
+                       tol=ms.tol)
 
 
 def _distance(shape_f: Shape, shape_g: Shape, grids: tuple[Grid, Grid], atlas: Any, window: Window,
               settings: PerturbSettings) -> dict[str, Any]:
     from specmap.distance import matching_distance
 
-    res = matching_distance(shape_f, shape_g, method=settings.distance_method, degrees=settings.degrees,
-                            window=window, atlas=atlas, grids=grids, dense_resolution=settings.dense_resolution)
+    res = matching_distance(shape_f, shape_g, settings=settings.distance_settings, window=window, atlas=atlas,
+                            grids=grids)
     return _distance_digest(res)
 
 
-def _pareto(shape: Shape) -> Grid:
+def perturbed_grid_settings(settings: GridSettings) -> GridSettings:
+    """The grid settings of a perturbed shape: a perturbed map is not linear, so "exact" becomes "auto"."""
+    return dataclasses.replace(settings, route="auto") if settings.route == "exact" else settings
+
+
+def _pareto(shape: Shape, settings: GridSettings) -> Grid:
     from specmap.grids import pareto_grid
 
-    return pareto_grid(shape)
+    return pareto_grid(shape, perturbed_grid_settings(settings))
 
 
 def run_seed(seed: int, run_index: int) -> int:
@@ -215,11 +176,11 @@ def run_one(base: PerturbBase, run_index: int, seed: int, settings: PerturbSetti
         grid_g, moved_g = perturb_grid(base.grid_g, settings.size, rng_g)
     else:
         if base.shape_f is None or base.shape_g is None:
-            raise StudyError("the 'function' model needs the shapes of f and g", field="perturb.model",
-                             fix="use model = 'grid' for grid-only studies")
+            raise UnsupportedInputError("the 'function' model needs the shapes of f and g", subject="model",
+                                        fix="use the 'grid' model for pairs given by grids")
         shape_f, moved_f = perturb_shape(base.shape_f, settings.size, rng_f)
         shape_g, moved_g = perturb_shape(base.shape_g, settings.size, rng_g)
-        grid_f, grid_g = _pareto(shape_f), _pareto(shape_g)
+        grid_f, grid_g = _pareto(shape_f, base.grid_settings[0]), _pareto(shape_g, base.grid_settings[1])
     atlas = _special(grid_f, grid_g, base.window, settings)
     area, counts, geometry = atlas_digest(atlas)
     record: dict[str, Any] = {
@@ -266,7 +227,8 @@ def stability_check(before: dict[str, Any], after: dict[str, Any], bound: float)
 
 
 def make_base(grids: tuple[Grid, Grid], window: Window, *, shapes: tuple[Shape, Shape] | None = None,
-              atlas: Any = None, distance: Any = None, settings: PerturbSettings | None = None) -> PerturbBase:
+              atlas: Any = None, distance: Any = None, settings: PerturbSettings | None = None,
+              grid_settings: tuple[GridSettings, GridSettings] | None = None) -> PerturbBase:
     """Assemble the base pair, computing its special set (and distance) when not given.
 
     Parameters
@@ -279,11 +241,14 @@ def make_base(grids: tuple[Grid, Grid], window: Window, *, shapes: tuple[Shape, 
     distance : DistanceResult or dict, optional
         Base matching distance; computed when ``settings.distance`` asks for it and it is missing.
     settings : PerturbSettings, optional
+    grid_settings : (GridSettings, GridSettings), optional
+        How the grids of f and g were computed (default :class:`~specmap.settings.GridSettings`);
+        the "function" model computes the grids of perturbed shapes the same way.
     """
     settings = settings or PerturbSettings()
     if settings.model == "function" and (shapes is None or any(s is None or not s.has_mesh for s in shapes)):
-        raise StudyError("the 'function' model needs f and g as surfaces or meshes", field="perturb.model",
-                         fix="use model = 'grid' for studies given by grid files")
+        raise UnsupportedInputError("the 'function' model needs f and g as surfaces or meshes", subject="model",
+                                    fix="use the 'grid' model for pairs given by grids")
     gf, gg = grids
     if atlas is None:
         atlas = _special(gf, gg, window, settings)
@@ -293,4 +258,5 @@ def make_base(grids: tuple[Grid, Grid], window: Window, *, shapes: tuple[Shape, 
     if settings.distance and settings.model == "function" and sf is not None:
         dist = _distance_digest(distance) if distance is not None else _distance(sf, sg, (gf, gg), atlas,
                                                                                  window, settings)
-    return PerturbBase(gf, gg, window, sf, sg, area, counts, geometry, dist)
+    return PerturbBase(gf, gg, window, sf, sg, area, counts, geometry, dist,
+                       grid_settings or (GridSettings(), GridSettings()))

@@ -54,7 +54,7 @@ def build_shape(spec, study) -> Shape:
         _check_domain(fmap, V, T, file, f"{label}.map")
         return Shape(label, "surface", V, T, values, surface=surface, fmap=fmap,
                      description=spec.describe(),
-                     meta={"resolution": spec.resolution, "vertices": len(V), "route": spec.route})
+                     meta={"vertices": len(V)})  # settings (route, resolution) travel in GridSettings
     hygiene: dict = {}
     V, T, fields = read_mesh(spec.path, fields=spec.fields, counts=hygiene)
     values = fmap.values(V) if fmap is not None else fields
@@ -63,8 +63,7 @@ def build_shape(spec, study) -> Shape:
     if fmap is not None:
         _check_domain(fmap, V, T, file, f"{label}.map")
     return Shape(label, "mesh", V, T, values, fmap=fmap, description=spec.describe(),
-                 meta={"path": str(spec.path), "vertices": len(V), "simplify": spec.simplify,
-                       "hygiene": hygiene})
+                 meta={"path": str(spec.path), "vertices": len(V), "hygiene": hygiene})
 
 
 def _check_domain(fmap: CompiledMap, V: np.ndarray, T: np.ndarray, file: str, field: str) -> None:

@@ -13,7 +13,7 @@ from typing import Any, Literal
 
 import numpy as np
 
-from specmap.errors import MeshError, StudyError
+from specmap.errors import MeshError, MissingInputError
 
 Source = Literal["surface", "mesh"]
 
@@ -74,11 +74,11 @@ class Shape:
                      self.description, {**self.meta, **meta})
 
 
-class MeshRequiredError(MeshError, StudyError):
+class MeshRequiredError(MissingInputError, MeshError):
     """A computation that needs a mesh (slice diagrams, distances) was given none.
 
-    A :class:`~specmap.errors.MeshError`; also a :class:`~specmap.errors.StudyError`,
-    the class this check raised before it had one home.
+    A core error (:class:`~specmap.errors.MissingInputError`, also a
+    :class:`~specmap.errors.StudyError` for old callers) and a :class:`~specmap.errors.MeshError`.
     """
 
 

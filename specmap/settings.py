@@ -1,0 +1,226 @@
+"""The settings of each stage, defined once: small frozen values with their defaults.
+
+Every default a stage uses lives here and only here; the study loader
+(:mod:`specmap.study`) builds these values from a study file, the pipeline
+(:mod:`specmap.pipeline`) passes them explicitly, and the computations read them.
+This module is a leaf: it imports nothing from specmap but the two leaves
+:mod:`specmap.errors` and :mod:`specmap.io` (for plain JSON).
+
+- :class:`GridSettings`: how :func:`specmap.grids.pareto_grid` computes a grid (route, resolution);
+- :class:`MapSettings`: the special-set atlas (:func:`specmap.special.special_set`);
+- :class:`DistanceSettings`: the matching distance and its searches
+  (:func:`specmap.distance.matching_distance`);
+- :class:`PerturbSettings`: everything that decides a perturbation run set.
+
+Invalid values raise :class:`~specmap.errors.InputValueError` in core words (the
+value, what it should be); the study loader and the pipeline add the file and field.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import asdict, dataclass
+from typing import Any
+
+from specmap.errors import InputValueError
+from specmap.io import to_plain
+
+ROUTES = ("auto", "smooth", "exact", "piecewise")
+PAIRS = ("all", "roles")
+MAP_METHODS = ("sweep", "naive")
+DISTANCE_METHODS = ("both", "dense", "reduced")
+CERTIFY = ("max", "each")
+MODELS = ("function", "grid")
+
+
+def _choice(subject: str, value: Any, options: tuple[str, ...]) -> None:
+    if value not in options:
+        raise InputValueError(f"{subject} {value!r} is not one of {', '.join(repr(o) for o in options)}",
+                              subject=subject, fix=f"use one of: {', '.join(repr(o) for o in options)}")
+
+
+@dataclass(frozen=True)
+class GridSettings:
+    """How the extended Pareto grid of one shape is computed.
+
+    Attributes
+    ----------
+    route : {"auto", "smooth", "exact", "piecewise"}
+        ``"auto"``: the closed form for a linear map on an ellipsoid, else Jacobi-set tracing on
+        a surface, the PL route on a mesh.
+    resolution : int or None
+        Smooth route: the mesh resolution the tracing starts from; None for the route's own default.
+    """
+
+    route: str = "auto"
+    resolution: int | None = None
+
+    def __post_init__(self) -> None:
+        _choice("route", self.route, ROUTES)
+
+
+@dataclass(frozen=True)
+class MapSettings:
+    """Settings of the special-set atlas.
+
+    Attributes
+    ----------
+    pairs : {"all", "roles"}
+        Which ties to map: every tie, or only those the f/g roles allow (math.md section 5).
+    resolution : int
+        Lattice nodes per side of the window.
+    method : {"sweep", "naive"}
+        Output-sensitive detection, or the naive reference.
+    tol : float or None
+        Tie tolerance (value units); None for the scale-aware default of the atlas.
+    max_contours : int
+        Contour budget per grid when a mesh's values are simplified with ``"auto"``.
+    """
+
+    pairs: str = "all"
+    resolution: int = 121
+    method: str = "sweep"
+    tol: float | None = None
+    max_contours: int = 60
+
+    def __post_init__(self) -> None:
+        _choice("pairs", self.pairs, PAIRS)
+        _choice("method", self.method, MAP_METHODS)
+
+
+@dataclass(frozen=True)
+class DistanceSettings:
+    """Settings of the matching distance: which computations, and the limits of its searches.
+
+    Attributes
+    ----------
+    method : {"both", "dense", "reduced"}
+        The reduced search, the dense sweep (the audit) or both.
+    degrees : tuple of int
+        Homology degrees.
+    dense_resolution : int
+        Nodes per side of the dense sweep.
+    tolerance : float or None
+        Value units; None for 1e-3 times the largest value range of f and g.
+    slope_samples : int
+        Initial equally spaced lines of the slope-one search on a = 1/2.
+    slope_max_lines : int
+        Lines after which the slope-one search stops uncertified.
+    spacing : float
+        Candidate sampling step along special curves, as a fraction of the window.
+    roles : bool
+        Use the f/g roles of contours to skip ties of no two costs (math.md section 5).
+    certify : {"max", "each"}
+        Certify the max over degrees, or each degree.
+    polish : bool
+        Refine the best special candidate along its curve.
+    batch : int or None
+        Candidates per evaluation round (None: 1 for one job, else 2 per job).
+    local_bound : bool
+        Use the stability bound between evaluated lines (same mesh only).
+    polish_iters : int
+        Golden-section steps of the polish.
+    position_lines : int
+        Lines of the position audit (0 to skip).
+    """
+
+    method: str = "both"
+    degrees: tuple[int, ...] = (0, 1, 2)
+    dense_resolution: int = 41
+    tolerance: float | None = None
+    slope_samples: int = 17
+    slope_max_lines: int = 200
+    spacing: float = 1 / 200
+    roles: bool = True
+    certify: str = "max"
+    polish: bool = True
+    batch: int | None = None
+    local_bound: bool = True
+    polish_iters: int = 6
+    position_lines: int = 20
+
+    def __post_init__(self) -> None:
+        _choice("method", self.method, DISTANCE_METHODS)
+        _choice("certify", self.certify, CERTIFY)
+        object.__setattr__(self, "degrees", tuple(int(d) for d in self.degrees))
+
+
+_MAP = MapSettings()
+_DISTANCE = DistanceSettings()
+
+
+@dataclass(frozen=True)
+class PerturbSettings:
+    """Everything that decides the outcome of a run set (besides the base pair).
+
+    The fields are flat (their JSON is the run set's fingerprint); :attr:`map_settings` and
+    :attr:`distance_settings` give the settings each run passes on.
+
+    Attributes
+    ----------
+    model : {"function", "grid"}
+    size : float
+        Sup norm of the function change, or largest contour move.
+    runs : int
+        Number of runs wanted (not part of the fingerprint: a run set can be extended).
+    seed : int
+    pairs, resolution, method, tol
+        The :class:`MapSettings` of every run.
+    distance : bool
+        Recompute the matching distance in every run ("function" model only).
+    distance_method : {"reduced", "dense"}
+    degrees : tuple of int
+    dense_resolution : int
+        The :class:`DistanceSettings` of every run (method, degrees, dense resolution).
+    """
+
+    model: str = "function"
+    size: float = 1e-3
+    runs: int = 20
+    seed: int = 1
+    pairs: str = _MAP.pairs
+    resolution: int = _MAP.resolution
+    method: str = _MAP.method
+    tol: float | None = _MAP.tol
+    distance: bool = False
+    distance_method: str = "reduced"
+    degrees: tuple[int, ...] = _DISTANCE.degrees
+    dense_resolution: int = _DISTANCE.dense_resolution
+
+    def __post_init__(self) -> None:
+        _choice("model", self.model, MODELS)
+        if not (self.size >= 0 and math.isfinite(self.size)):
+            raise InputValueError(f"size {self.size!r} is not a finite number >= 0", subject="size",
+                                  fix="give a size like 1e-3")
+        if self.runs < 0:
+            raise InputValueError(f"runs {self.runs!r} is negative", subject="runs",
+                                  fix="give a number of runs >= 0, like 20")
+        object.__setattr__(self, "degrees", tuple(int(d) for d in self.degrees))
+
+    @classmethod
+    def of(cls, *, model: str, size: float, runs: int, seed: int, distance: bool,
+           map: MapSettings, dist: DistanceSettings) -> PerturbSettings:
+        """A run set's settings from its own values and the study's map and distance settings.
+
+        A run recomputes the distance with the dense sweep when the study asks for ``"dense"``,
+        else with the reduced search.
+        """
+        return cls(model=model, size=float(size), runs=int(runs), seed=int(seed), pairs=map.pairs,
+                   resolution=int(map.resolution), method=map.method, tol=map.tol, distance=bool(distance),
+                   distance_method="dense" if dist.method == "dense" else "reduced",
+                   degrees=tuple(dist.degrees), dense_resolution=int(dist.dense_resolution))
+
+    @property
+    def map_settings(self) -> MapSettings:
+        """The atlas settings of every run."""
+        return MapSettings(pairs=self.pairs, resolution=self.resolution, method=self.method, tol=self.tol)
+
+    @property
+    def distance_settings(self) -> DistanceSettings:
+        """The distance settings of every run (and of the base distance)."""
+        return DistanceSettings(method=self.distance_method, degrees=self.degrees,
+                                dense_resolution=self.dense_resolution)
+
+    def to_json(self) -> dict[str, Any]:
+        """Plain JSON of the fields (tuples as lists): the run set's ``settings``."""
+        return to_plain(asdict(self))
