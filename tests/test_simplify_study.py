@@ -169,3 +169,27 @@ def test_bad_max_contours(scans) -> None:
     path.write_text(study_text("bad3", "f.ply", "g.ply", '"auto"', "[map]\nmax_contours = 0\n"))
     with pytest.raises(StudyError, match="map.max_contours"):
         load_study(path)
+
+
+def test_map_refuses_a_grid_pair_too_large_in_one_line(tmp_path, capsys) -> None:
+    # 300 + 300 random contours: P = 179 700 pairs, so the atlas (N^4 work) is far over any
+    # machine's memory by the measured model of specmap.special.preflight (16 P^2 crossings at 41^2)
+    import time
+
+    from gridgen import random_pair
+
+    from specmap.io import write_json
+
+    gf, gg = random_pair(5, 600)
+    write_json(tmp_path / "f.json", gf.to_json())
+    write_json(tmp_path / "g.json", gg.to_json())
+    path = tmp_path / "big.toml"
+    path.write_text('[study]\nname = "big"\n[f]\ngrid = "f.json"\n[g]\ngrid = "g.json"\n'
+                    '[window]\na = [0.1, 0.9]\nb = [-1.0, 1.0]\n')
+    t = time.perf_counter()
+    with pytest.raises(SystemExit) as exc:
+        main(["map", str(path), "--out", str(tmp_path / "out")])
+    assert exc.value.code == 2
+    assert time.perf_counter() - t < 30  # before any lattice work
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and "memory" in err[0] and "simplify" in err[0] and "--pairs roles" in err[0]
