@@ -513,22 +513,29 @@ def test_stability_bound_holds_on_every_run(tmp_path):
         assert r["applied"] == pytest.approx([0.05, 0.05])
         assert r["stability_ok"] is True
         assert abs(r["distance"]["change"]) <= 0.1 + r["distance"]["slack"]
-        assert r["distance"]["certified_degrees"] == ["0", "1"]
+        assert r["distance"]["checked_degrees"] == ["0", "1"]  # every degree with a finite interval
     assert summary["stability_violations"] == 0
     assert summary["distance"]["runs"] == 3
 
 
 def test_stability_check_flags_violations():
-    # [CDFFL13]: a change larger than the bound (plus tolerances) must be flagged; uncertified
-    # degrees (lower bounds only) are not judged.
+    # [CDFFL13]: |D_k(after) - D_k(before)| <= bound. With intervals containing each D_k, a change is
+    # a certain violation only when the intervals are further apart than the bound (closed form:
+    # the gap between [lo_a, hi_a] and [lo_b, hi_b] is max(lo_a - hi_b, lo_b - hi_a)).
     from specmap.perturb.run import stability_check
 
-    before = {"value": 1.0, "by_degree": {"0": 1.0, "1": 0.2}, "certified": ["0", "1"], "tolerance": 0.0}
-    ok_after = {"value": 1.05, "by_degree": {"0": 1.05, "1": 0.25}, "certified": ["0", "1"], "tolerance": 0.0}
-    bad_after = {"value": 1.3, "by_degree": {"0": 1.3, "1": 0.2}, "certified": ["0", "1"], "tolerance": 0.0}
-    deg_after = {"value": 1.0, "by_degree": {"0": 1.0, "1": 0.9}, "certified": ["0"], "tolerance": 0.0}
-    assert stability_check(before, ok_after, 0.1)[1] is True
-    digest, ok = stability_check(before, bad_after, 0.1)
-    assert ok is False and digest["change"] == pytest.approx(0.3)
-    assert stability_check(before, deg_after, 0.1)[1] is True
-    assert stability_check(before, {**deg_after, "certified": ["0", "1"]}, 0.1)[1] is False
+    def dig(v0, v1, w1=0.0):
+        return {"value": max(v0, v1), "by_degree": {"0": v0, "1": v1},
+                "bounds": {"0": [v0, v0], "1": [v1, v1 + w1]}, "tolerance": 0.0}
+
+    before = dig(1.0, 0.2)
+    assert stability_check(before, dig(1.05, 0.25), 0.1)[1] is True
+    digest, ok = stability_check(before, dig(1.3, 0.2), 0.1)
+    assert ok is False and digest["change"] == pytest.approx(0.3) and digest["checked_degrees"] == ["0", "1"]
+    # degree 1 moved 0.7 by its best value, but its interval after is [0.25, 0.95]: within 0.1 of 0.2
+    # only if the lower end is; 0.25 - 0.2 = 0.05 <= 0.1, so no certain violation
+    assert stability_check(before, dig(1.0, 0.25, w1=0.7), 0.1)[1] is True
+    assert stability_check(before, dig(1.0, 0.9), 0.1)[1] is False
+    # a degree without an interval on one side is not judged
+    no_b = {**dig(1.0, 0.9), "bounds": {"0": [1.0, 1.0]}}
+    assert stability_check(before, no_b, 0.1)[1] is True and stability_check(before, no_b, 0.1)[0]["checked_degrees"] == ["0"]

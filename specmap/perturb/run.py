@@ -19,6 +19,7 @@ References
 from __future__ import annotations
 
 import dataclasses
+import math
 import time
 from dataclasses import dataclass
 from typing import Any
@@ -93,20 +94,27 @@ def atlas_digest(atlas: Any) -> tuple[float, dict[str, int], Any]:
 
 
 def _distance_digest(result: Any) -> dict[str, Any]:
-    """value, per-degree values, which degrees are certified, and the reported tolerance.
+    """value, per-degree values and certified intervals [lower, upper], and the reported tolerance.
 
-    A degree whose entry says ``"certified": false`` is only a lower bound (the reduced search
-    certifies the max over degrees); the stability check skips such degrees.
+    A degree without a finite interval (an old result, an infinite degree) is left out of the
+    stability check; a degree with one is checked whether or not it is certified to tolerance.
     """
     js = result.to_json() if hasattr(result, "to_json") else dict(result)
-    by, certified = {}, []
+    by: dict[str, float] = {}
+    bounds: dict[str, list[float]] = {}
     for k, v in (js.get("by_degree") or {}).items():
         by[str(k)] = float(v["value"] if isinstance(v, dict) else v)
-        if not isinstance(v, dict) or v.get("certified", True):
-            certified.append(str(k))
+        b = v.get("bounds") if isinstance(v, dict) else None
+        if isinstance(b, (list, tuple)) and len(b) == 2:
+            try:
+                lo, hi = float(b[0]), float(b[1])
+            except (TypeError, ValueError):
+                continue
+            if math.isfinite(lo) and math.isfinite(hi):
+                bounds[str(k)] = [lo, hi]
     tol = js.get("tolerance", 0.0)
     tol = float(tol) if isinstance(tol, (int, float)) else 0.0
-    return {"value": float(js["value"]), "by_degree": by, "certified": certified, "tolerance": tol}
+    return {"value": float(js["value"]), "by_degree": by, "bounds": bounds, "tolerance": tol}
 
 
 def _special(grid_f: Grid, grid_g: Grid, window: Window, settings: PerturbSettings) -> Any:
@@ -208,9 +216,12 @@ def run_one(base: PerturbBase, run_index: int, seed: int, settings: PerturbSetti
 def stability_check(before: dict[str, Any], after: dict[str, Any], bound: float) -> tuple[dict, bool]:
     """Compare two distance digests against the stability bound [CDFFL13].
 
-    The allowed change is ``bound`` plus both reported tolerances plus
-    ``STABILITY_SLACK * max(1, |D|)`` for rounding; it is checked for the overall value and for
-    every degree certified in both (uncertified degrees are lower bounds only).
+    |D_k(f', g') - D_k(f, g)| <= ||(f', g') - (f, g)||_inf = ``bound`` for every degree k. With the
+    intervals [lo, hi] that contain each D_k before and after, a violation is *certain* when
+    lo_after - hi_before or lo_before - hi_after exceeds the bound plus both tolerances plus
+    ``STABILITY_SLACK * max(1, |D|)`` for rounding. Every degree with finite intervals on both
+    sides is checked, certified to tolerance or not (a wide interval makes the check weaker,
+    never wrong).
 
     Returns
     -------
@@ -219,10 +230,11 @@ def stability_check(before: dict[str, Any], after: dict[str, Any], bound: float)
     slack = before["tolerance"] + after["tolerance"] + STABILITY_SLACK * max(1.0, abs(before["value"]))
     change = after["value"] - before["value"]
     by = {k: after["by_degree"][k] - v for k, v in before["by_degree"].items() if k in after["by_degree"]}
-    both = set(before.get("certified", by)) & set(after.get("certified", by))
-    ok = abs(change) <= bound + slack and all(abs(d) <= bound + slack for k, d in by.items() if k in both)
+    bb, ba = before.get("bounds") or {}, after.get("bounds") or {}
+    checked = sorted(k for k in by if k in bb and k in ba)
+    ok = all(ba[k][0] - bb[k][1] <= bound + slack and bb[k][0] - ba[k][1] <= bound + slack for k in checked)
     digest = {"value": after["value"], "base": before["value"], "change": change, "bound": bound,
-              "slack": slack, "by_degree_change": by, "certified_degrees": sorted(both)}
+              "slack": slack, "by_degree_change": by, "checked_degrees": checked}
     return digest, bool(ok)
 
 

@@ -16,6 +16,7 @@ from specmap.expr import CompiledMap, compile_map, domain_break
 from specmap.meshtable import mesh_edges
 from specmap.shapes.meshes import read_mesh
 from specmap.shapes.model import Shape
+from specmap.shapes.normality import degeneracy
 from specmap.shapes.surfaces import make_surface
 
 
@@ -52,6 +53,7 @@ def build_shape(spec, study) -> Shape:
         values = fmap.values(V)
         _check_values(values, file, f"{label}.map")
         _check_domain(fmap, V, T, file, f"{label}.map")
+        _check_normal(V, T, values, fmap.jacobian(V), file, f"{label}.map")
         return Shape(label, "surface", V, T, values, surface=surface, fmap=fmap,
                      description=spec.describe(),
                      meta={"vertices": len(V)})  # settings (route, resolution) travel in GridSettings
@@ -62,6 +64,8 @@ def build_shape(spec, study) -> Shape:
                   f"{label}.fields" if fmap is None else f"{label}.map")
     if fmap is not None:
         _check_domain(fmap, V, T, file, f"{label}.map")
+    _check_normal(V, T, values, fmap.jacobian(V) if fmap is not None else None,
+                  file if fmap is not None else str(spec.path), f"{label}.map" if fmap is not None else f"{label}.fields")
     return Shape(label, "mesh", V, T, values, fmap=fmap, description=spec.describe(),
                  meta={"path": str(spec.path), "vertices": len(V), "hygiene": hygiene})
 
@@ -77,6 +81,16 @@ def _check_domain(fmap: CompiledMap, V: np.ndarray, T: np.ndarray, file: str, fi
             raise StudyError(f"{e.text!r} is not finite on the whole surface: {what} near ({where})",
                              file=file, field=f"{field}[{i}]",
                              fix="use a map that is finite and smooth on the whole shape")
+
+
+def _check_normal(V: np.ndarray, T: np.ndarray, values: np.ndarray, jac: np.ndarray | None, file: str,
+                  field: str) -> None:
+    """Refuse a constant component or a functionally dependent pair (outside the theory)."""
+    why = degeneracy(V, T, values, jac)
+    if why is not None:
+        raise StudyError(f"{why}: the pair is not normal, so its grids and special set mean nothing",
+                         file=file, field=field,
+                         fix="give two functionally independent, non-constant measurements (math.md section 4)")
 
 
 def _check_values(values: np.ndarray, file: str, field: str) -> None:
