@@ -157,7 +157,7 @@ def matching_distance(shape_f, shape_g, *, settings: DistanceSettings | None = N
     ----------
     .. [CDFFL13] Cerri et al. (2013); [EFQT23] Ethier et al. (2023); [FMQT] arXiv:2312.04201.
     """
-    given = {"method": method, "degrees": None if degrees is None else tuple(degrees),
+    given: dict[str, Any] = {"method": method, "degrees": None if degrees is None else tuple(degrees),
              "dense_resolution": dense_resolution, "tolerance": tolerance, "slope_samples": slope_samples,
              "spacing": spacing, "roles": roles, "certify": certify, "position_lines": position_lines}
     s = dataclasses.replace(settings or DistanceSettings(), **{k: v for k, v in given.items() if v is not None})

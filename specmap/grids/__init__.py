@@ -88,7 +88,9 @@ def pareto_grid(shape: Shape, settings: GridSettings | None = None, *,
     route = route_for(shape, settings.route)
     label = shape.label
     if route == "piecewise":
-        grid = piecewise_grid(shape.vertices, shape.triangles, shape.values, label=label)
+        V, T, vals = shape.vertices, shape.triangles, shape.values
+        assert V is not None and T is not None and vals is not None  # route_for gives piecewise to meshes only
+        grid = piecewise_grid(V, T, vals, label=label)
         hygiene = shape.meta.get("hygiene")
         if hygiene:  # what reading the mesh cleaned (loose/duplicate vertices, collapsed triangles)
             grid = dataclasses.replace(grid, meta={**grid.meta, "mesh_hygiene": dict(hygiene)})

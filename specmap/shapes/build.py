@@ -50,6 +50,7 @@ def build_shape(spec, study) -> Shape:
     if spec.source == "surface":
         surface = make_surface(spec.surface, spec.radii)
         V, T = surface.mesh(spec.resolution)
+        assert fmap is not None  # the study loader requires a map for a surface
         values = fmap.values(V)
         _check_values(values, file, f"{label}.map")
         _check_domain(fmap, V, T, file, f"{label}.map")
@@ -59,7 +60,11 @@ def build_shape(spec, study) -> Shape:
                      meta={"vertices": len(V)})  # settings (route, resolution) travel in GridSettings
     hygiene: dict = {}
     V, T, fields = read_mesh(spec.path, fields=spec.fields, counts=hygiene)
-    values = fmap.values(V) if fmap is not None else fields
+    mesh_values = fmap.values(V) if fmap is not None else fields
+    if mesh_values is None:
+        raise StudyError("a mesh needs a map or two vertex fields", file=file, field=label,
+                         fix='add map = ["x", "y"] or fields = ["name1", "name2"]')
+    values = mesh_values
     _check_values(values, str(spec.path) if fmap is None else file,
                   f"{label}.fields" if fmap is None else f"{label}.map")
     if fmap is not None:
