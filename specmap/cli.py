@@ -16,10 +16,12 @@ from specmap import __version__
 from specmap.errors import SpecmapInputError, StudyError
 from specmap.report.fmt import fmt, fmt_pct, fmt_point, plural
 
-REACHED = {"slope-one": "reached on the slope-one line a = 1/2",
-           "special": "reached on the special set",
-           "both": "reached on the slope-one line and on the special set alike (equal within the tolerance)",
-           "dense": "found by the dense sweep"}
+REACHED = {
+    "slope-one": "reached on the slope-one line a = 1/2",
+    "special": "reached on the special set",
+    "both": "reached on the slope-one line and on the special set alike (equal within the tolerance)",
+    "dense": "found by the dense sweep",
+}
 """What distance.json's ``reached_on`` means, in words."""
 
 EXIT_USER = 2
@@ -80,67 +82,110 @@ def build_parser() -> argparse.ArgumentParser:
     sp = study_cmd("map", "map the special set in the parameter strip")
     sp.add_argument("--pairs", choices=["all", "roles"], help="which ties to map (default: study's)")
     sp.add_argument("--resolution", type=_positive, help="sample nodes per side of the window")
-    sp.add_argument("--method", choices=["sweep", "naive"],
-                    help="detection method: sweep (fast) or naive (slow reference); default: study's")
+    sp.add_argument(
+        "--method",
+        choices=["sweep", "naive"],
+        help="detection method: sweep (fast) or naive (slow reference); default: study's",
+    )
     sp = study_cmd("distance", "compute the matching distance and where it is reached")
-    sp.add_argument("--method", choices=["reduced", "dense", "both"],
-                    help="reduced (search on the special set), dense (sweep of the window, the audit) "
-                    "or both; default: study's")
+    sp.add_argument(
+        "--method",
+        choices=["reduced", "dense", "both"],
+        help="reduced (search on the special set), dense (sweep of the window, the audit) "
+        "or both; default: study's",
+    )
     sp.add_argument("--degrees", type=_degrees, help="homology degrees, e.g. 0,1,2")
-    sp.add_argument("--jobs", type=_positive, default=1,
-                    help="parallel slice workers (default 1; capped at the core count)")
+    sp.add_argument(
+        "--jobs",
+        type=_positive,
+        default=1,
+        help="parallel slice workers (default 1; capped at the core count)",
+    )
     sp = study_cmd("perturb", "run a perturbation study of the special set")
-    sp.add_argument("--runs", type=_positive,
-                    help="number of perturbed runs (default: study's perturb.runs, within its limits)")
-    sp.add_argument("--jobs", type=_positive, default=1,
-                    help="parallel run workers (default 1; capped at the core count unless --cluster)")
+    sp.add_argument(
+        "--runs",
+        type=_positive,
+        help="number of perturbed runs (default: study's perturb.runs, within its limits)",
+    )
+    sp.add_argument(
+        "--jobs",
+        type=_positive,
+        default=1,
+        help="parallel run workers (default 1; capped at the core count unless --cluster)",
+    )
     sp.add_argument("--cluster", help="Dask scheduler address, e.g. tcp://127.0.0.1:8786")
     sp = sub.add_parser("report", help="build the PDF report of a result folder")
     add_quiet(sp)
     sp.add_argument("dir", help="result folder")
     sp.add_argument("--out", help="PDF path (default DIR/report.pdf); an existing file needs --force")
     sp.add_argument("--force", action="store_true", help="overwrite an existing file given as --out")
-    sp = sub.add_parser("explore", help="write DIR/explore.html, an offline page to explore a result folder",
-                        description="write one self-contained HTML page (no server, no network) showing the "
-                        "special set, the grids and h(a, b) of a result folder")
+    sp = sub.add_parser(
+        "explore",
+        help="write DIR/explore.html, an offline page to explore a result folder",
+        description="write one self-contained HTML page (no server, no network) showing the "
+        "special set, the grids and h(a, b) of a result folder",
+    )
     add_quiet(sp)
-    sp.add_argument("dir", help="result folder (with special.json; grid files and distance.json add to the page)")
+    sp.add_argument(
+        "dir", help="result folder (with special.json; grid files and distance.json add to the page)"
+    )
     sp.add_argument("--out", help="HTML path (default DIR/explore.html)")
     sp = sub.add_parser("demo", help="run the shipped demo study end to end")
     add_quiet(sp)
     sp.add_argument("--out", help="result folder (default results/demo)")
-    sp.add_argument("--pdf", default="reports/demo.pdf",
-                    help="where the report is copied (default reports/demo.pdf, the tracked copy; the demo says "
-                    "when it replaced it)")
-    sp.add_argument("--jobs", type=_positive, default=2,
-                    help="parallel workers for the distance and perturbation stages (default 2)")
+    sp.add_argument(
+        "--pdf",
+        default="reports/demo.pdf",
+        help="where the report is copied (default reports/demo.pdf, the tracked copy; the demo says "
+        "when it replaced it)",
+    )
+    sp.add_argument(
+        "--jobs",
+        type=_positive,
+        default=2,
+        help="parallel workers for the distance and perturbation stages (default 2)",
+    )
     sp.add_argument("--quick", action="store_true", help="smaller settings (for CI)")
     return p
 
 
 def demo_study_path() -> Path:
     """The shipped demo study (studies/demo.toml next to the package, or in the working folder)."""
-    for cand in (Path(__file__).resolve().parents[1] / "studies" / "demo.toml",
-                 Path.cwd() / "studies" / "demo.toml"):
+    for cand in (
+        Path(__file__).resolve().parents[1] / "studies" / "demo.toml",
+        Path.cwd() / "studies" / "demo.toml",
+    ):
         if cand.is_file():
             return cand
-    raise StudyError("demo study not found", file="studies/demo.toml", field="(file)",
-                     fix="run from a clone of the specmap repository")
+    raise StudyError(
+        "demo study not found",
+        file="studies/demo.toml",
+        field="(file)",
+        fix="run from a clone of the specmap repository",
+    )
 
 
 def check_study_path(path: str) -> None:
     """One line for a study path that is a folder or cannot be read (before the TOML is parsed)."""
     p = Path(path)
     if p.is_dir():
-        raise StudyError("is a folder, not a study file", file=str(p), field="(file)",
-                         fix="give the path of a .toml study file inside it (see studies/)")
+        raise StudyError(
+            "is a folder, not a study file",
+            file=str(p),
+            field="(file)",
+            fix="give the path of a .toml study file inside it (see studies/)",
+        )
     if p.is_file():
         try:
             with p.open("rb"):
                 pass
         except PermissionError:
-            raise StudyError("cannot be read (permission denied)", file=str(p), field="(file)",
-                             fix="make the file readable (chmod u+r) or copy it somewhere readable") from None
+            raise StudyError(
+                "cannot be read (permission denied)",
+                file=str(p),
+                field="(file)",
+                fix="make the file readable (chmod u+r) or copy it somewhere readable",
+            ) from None
 
 
 KERNEL_VERBS = ("map", "distance", "perturb", "demo")
@@ -195,8 +240,15 @@ def run(argv: list[str] | None = None) -> int:
     if args.verb == "demo":
         from specmap.demo import run_demo, summary_lines
 
-        outcome = run_demo(demo_study_path(), out=args.out, pdf=args.pdf, jobs=args.jobs, quick=args.quick,
-                           show_progress=show, command=command_line(argv))
+        outcome = run_demo(
+            demo_study_path(),
+            out=args.out,
+            pdf=args.pdf,
+            jobs=args.jobs,
+            quick=args.quick,
+            show_progress=show,
+            command=command_line(argv),
+        )
         for line in summary_lines(outcome):
             print(line)
         return 0
@@ -208,8 +260,10 @@ def run(argv: list[str] | None = None) -> int:
         check_flag(str(study.path), "perturb.runs", "--runs", args.runs)
     cores = os.cpu_count() or 1
     if getattr(args, "jobs", 1) > cores and not getattr(args, "cluster", None):
-        print(f"specmap: note: --jobs {args.jobs} is more than this machine's {cores} cores; using {cores}",
-              file=sys.stderr)
+        print(
+            f"specmap: note: --jobs {args.jobs} is more than this machine's {cores} cores; using {cores}",
+            file=sys.stderr,
+        )
         args.jobs = cores
     sr = StudyRun(study, args.out, show_progress=show)
     sr.check_out()
@@ -222,24 +276,32 @@ def run(argv: list[str] | None = None) -> int:
         sr.write_grids()
         sr.record()
         c = js["counts"]
-        kinds = ", ".join(plural(int(c[k]), k, "patches" if k == "patch" else None) for k in ("curve", "patch", "point"))
+        kinds = ", ".join(
+            plural(int(c[k]), k, "patches" if k == "patch" else None) for k in ("curve", "patch", "point")
+        )
         curves = (js.get("stats") or {}).get("tie_curves")
         ties = f"; {plural(int(curves), 'tie curve')}" if isinstance(curves, (int, float)) else ""
-        print(f"special set: {kinds} (connected components){ties}; "
-              f"patches cover {fmt_pct(js['area_fraction'])} of the window -> {sr.out / 'special.json'}")
+        print(
+            f"special set: {kinds} (connected components){ties}; "
+            f"patches cover {fmt_pct(js['area_fraction'])} of the window -> {sr.out / 'special.json'}"
+        )
     elif args.verb == "distance":
         if study.grid_only:
-            raise StudyError("this study gives a grid file, which has no mesh, so no slice diagrams",
-                             file=str(study.path), field="[f]/[g]",
-                             fix="give a surface or mesh for both f and g to compute distances")
+            raise StudyError(
+                "this study gives a grid file, which has no mesh, so no slice diagrams",
+                file=str(study.path),
+                field="[f]/[g]",
+                fix="give a surface or mesh for both f and g to compute distances",
+            )
         js = sr.write_distance(method=args.method, degrees=args.degrees, jobs=args.jobs)
         sr.record()
-        print(f"matching distance: D = {fmt(js['value'])} at (a, b) = {fmt_point(js['at'])}, "
-              f"{REACHED.get(js['reached_on'], 'reached on ' + str(js['reached_on']))} "
-              f"-> {sr.out / 'distance.json'}")
+        print(
+            f"matching distance: D = {fmt(js['value'])} at (a, b) = {fmt_point(js['at'])}, "
+            f"{REACHED.get(js['reached_on'], 'reached on ' + str(js['reached_on']))} "
+            f"-> {sr.out / 'distance.json'}"
+        )
         if js.get("audit", {}).get("theorem_gap"):
-            print("WARNING: the theorem audit failed (see distance.json audit.theorem)",
-                  file=sys.stderr)
+            print("WARNING: the theorem audit failed (see distance.json audit.theorem)", file=sys.stderr)
         for k, v in (js.get("by_degree") or {}).items():
             if v.get("resolved") is False:
                 print(f"D_{k} not resolved: {v.get('resolved_why')}", file=sys.stderr)
@@ -247,8 +309,12 @@ def run(argv: list[str] | None = None) -> int:
                 print(f"D_{k} not certified: {v['why_not']}", file=sys.stderr)
     elif args.verb == "perturb":
         if study.perturb is None:
-            raise StudyError("no [perturb] table", file=str(study.path), field="[perturb]",
-                             fix="add [perturb] with size = ..., runs = ...")
+            raise StudyError(
+                "no [perturb] table",
+                file=str(study.path),
+                field="[perturb]",
+                fix="add [perturb] with size = ..., runs = ...",
+            )
         summary = sr.write_perturb(runs=args.runs, jobs=args.jobs, cluster=args.cluster)
         sr.record()
         print(summary.get("verdict", ""))

@@ -44,9 +44,16 @@ class DemoOutcome:
     verdict: str | None
 
 
-def run_demo(study_path: str | Path, *, out: str | Path | None = None, pdf: str | Path = "reports/demo.pdf",
-             jobs: int = 2, quick: bool = False, show_progress: bool = True,
-             command: str | None = None) -> DemoOutcome:
+def run_demo(
+    study_path: str | Path,
+    *,
+    out: str | Path | None = None,
+    pdf: str | Path = "reports/demo.pdf",
+    jobs: int = 2,
+    quick: bool = False,
+    show_progress: bool = True,
+    command: str | None = None,
+) -> DemoOutcome:
     """Run every stage of the demo study and write its PDF report.
 
     The report is built in the result folder and copied to ``pdf``; when that
@@ -79,8 +86,12 @@ def run_demo(study_path: str | Path, *, out: str | Path | None = None, pdf: str 
         study = dataclasses.replace(
             study,
             map=dataclasses.replace(study.map, resolution=min(study.map.resolution, 61)),
-            distance=dataclasses.replace(study.distance, dense_resolution=min(study.distance.dense_resolution, 15)),
-            perturb=dataclasses.replace(study.perturb, runs=min(study.perturb.runs, 4)) if study.perturb else None,
+            distance=dataclasses.replace(
+                study.distance, dense_resolution=min(study.distance.dense_resolution, 15)
+            ),
+            perturb=dataclasses.replace(study.perturb, runs=min(study.perturb.runs, 4))
+            if study.perturb
+            else None,
             f=dataclasses.replace(study.f, resolution=min(study.f.resolution, 800)),
             g=dataclasses.replace(study.g, resolution=min(study.g.resolution, 800)),
         )
@@ -108,14 +119,22 @@ def summary_lines(o: DemoOutcome) -> list[str]:
     from specmap.report.summary import component_counts
 
     d = o.distance
-    lines = [f"matching distance: D = {fmt(d.get('value'))} at (a, b) = {fmt_point(d.get('at'))}, "
-             f"{REACHED.get(d.get('reached_on'), 'reached on ' + str(d.get('reached_on')))}",
-             f"special set: {component_counts(o.special)} (connected components)"]
+    lines = [
+        f"matching distance: D = {fmt(d.get('value'))} at (a, b) = {fmt_point(d.get('at'))}, "
+        f"{REACHED.get(d.get('reached_on'), 'reached on ' + str(d.get('reached_on')))}",
+        f"special set: {component_counts(o.special)} (connected components)",
+    ]
     if o.verdict:
         lines.append(f"verdict: {o.verdict}")
     lines.append(f"results: {o.out}; report: {o.report}")
     if o.pdf.resolve() != o.report.resolve():
-        lines.append(f"report copied to {o.pdf}" + (" (replaced the previous file there; in a clone that is the "
-                                                      "tracked copy, so git diff shows the change)"
-                                                      if o.replaced else ""))
+        lines.append(
+            f"report copied to {o.pdf}"
+            + (
+                " (replaced the previous file there; in a clone that is the "
+                "tracked copy, so git diff shows the change)"
+                if o.replaced
+                else ""
+            )
+        )
     return lines

@@ -73,15 +73,27 @@ class CoreInputError(SpecmapInputError):
         As for :class:`SpecmapInputError`.
     """
 
-    def __init__(self, problem: str, *, subject: str | None = None, file: str | None = None,
-                 field: str | None = None, fix: str | None = None) -> None:
+    def __init__(
+        self,
+        problem: str,
+        *,
+        subject: str | None = None,
+        file: str | None = None,
+        field: str | None = None,
+        fix: str | None = None,
+    ) -> None:
         self.subject = subject
         super().__init__(problem, file=file, field=field, fix=fix)
 
     def located(self, *, file: str | None = None, field: str | None = None) -> CoreInputError:
         """A copy of the same kind with missing file/field filled in (the subject is kept)."""
-        return type(self)(self.problem, subject=self.subject, file=self.file or file,
-                          field=self.field or field, fix=self.fix)
+        return type(self)(
+            self.problem,
+            subject=self.subject,
+            file=self.file or file,
+            field=self.field or field,
+            fix=self.fix,
+        )
 
 
 class InputValueError(CoreInputError, ValueError):

@@ -754,7 +754,11 @@ def domain_break(expr: Expr, P: np.ndarray, edges: np.ndarray) -> tuple[str, np.
     for what, guard in _guards(expr._tree):
         with np.errstate(all="ignore"):
             g = np.broadcast_to(_evaluate(guard, env, {}), (len(pts),))
-        bad = ~np.isfinite(g[e[:, 0]]) | ~np.isfinite(g[e[:, 1]]) | (np.sign(g[e[:, 0]]) * np.sign(g[e[:, 1]]) <= 0)
+        bad = (
+            ~np.isfinite(g[e[:, 0]])
+            | ~np.isfinite(g[e[:, 1]])
+            | (np.sign(g[e[:, 0]]) * np.sign(g[e[:, 1]]) <= 0)
+        )
         if what.startswith("sqrt"):  # sqrt(0) is finite: only a strict sign change leaves the domain
             bad = (np.sign(g[e[:, 0]]) * np.sign(g[e[:, 1]]) < 0) | ~np.isfinite(g[e[:, 0]] + g[e[:, 1]])
         hit = np.nonzero(bad)[0]

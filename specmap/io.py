@@ -131,7 +131,11 @@ def write_json_streamed(path: str | Path, head: dict[str, Any], key: str, items:
                 fh.write("[")
                 n = 0
                 for item in items:
-                    fh.write(("," if n else "") + "\n    " + _indented(json.dumps(to_plain(item), indent=2), "    "))
+                    fh.write(
+                        ("," if n else "")
+                        + "\n    "
+                        + _indented(json.dumps(to_plain(item), indent=2), "    ")
+                    )
                     n += 1
                 fh.write("\n  ]" if n else "]")
             fh.write("\n}\n" if head else "}\n")
@@ -201,8 +205,9 @@ def check_out_dir(out: Path, option: str = "--out") -> None:
             break
         base = base.parent
     if base.exists() and not base.is_dir():
-        raise ResultsError(f"lies under {base}, which is a file, not a folder", file=str(out),
-                           field=option, fix=fix)
+        raise ResultsError(
+            f"lies under {base}, which is a file, not a folder", file=str(out), field=option, fix=fix
+        )
     if base.exists() and not os.access(base, os.W_OK | os.X_OK):
         where = "is a folder" if base == out else f"would be made in {base}, a folder"
         raise ResultsError(f"{where} you cannot write (read-only)", file=str(out), field=option, fix=fix)

@@ -60,9 +60,12 @@ def load_input(spec: ShapeSpec, study: Study) -> tuple[Shape | Grid, dict[str, A
 
     values, record = simplify_values(T, shape.values, spec.simplify, contours, budget=study.map.max_contours)
     if record["met"] is False:
-        print(f"specmap: note: {spec.label}: simplify=auto: {record['contours_after']} contours left, budget "
-              f"{record['budget']} not met (delta {record['delta']:.3g}); the simplified pair is used; give "
-              "simplify = <larger delta>, raise [map] max_contours, or use a coarser mesh", file=sys.stderr)
+        print(
+            f"specmap: note: {spec.label}: simplify=auto: {record['contours_after']} contours left, budget "
+            f"{record['budget']} not met (delta {record['delta']:.3g}); the simplified pair is used; give "
+            "simplify = <larger delta>, raise [map] max_contours, or use a coarser mesh",
+            file=sys.stderr,
+        )
     return shape.with_values(values), record
 
 
@@ -87,15 +90,22 @@ def with_simplified_bounds(js: dict[str, Any], rec_f: dict | None, rec_g: dict |
     margin = float(s_f + s_g)
     for entry in (js.get("by_degree") or {}).values():
         bounds = entry.get("bounds")
-        lower, upper = bounds if isinstance(bounds, (list, tuple)) and len(bounds) == 2 else (
-            entry.get("value"), entry.get("value"))
+        lower, upper = (
+            bounds
+            if isinstance(bounds, (list, tuple)) and len(bounds) == 2
+            else (entry.get("value"), entry.get("value"))
+        )
         if isinstance(lower, (int, float)) and isinstance(upper, (int, float)):
             entry["simplified_bounds"] = [max(0.0, float(lower) - margin), float(upper) + margin]
         else:  # no finite value in this degree
             entry["simplified_bounds"] = None
-    js["simplification"] = {"sup_change_f": float(s_f), "sup_change_g": float(s_g), "margin": margin,
-                            "note": "values are those of the simplified pair; simplified_bounds hold the "
-                                    "distance of the original pair (stability theorem [CDFFL13])"}
+    js["simplification"] = {
+        "sup_change_f": float(s_f),
+        "sup_change_g": float(s_g),
+        "margin": margin,
+        "note": "values are those of the simplified pair; simplified_bounds hold the "
+        "distance of the original pair (stability theorem [CDFFL13])",
+    }
     return js
 
 
@@ -170,14 +180,16 @@ class StudyRun:
         subject = getattr(exc, "subject", None) if isinstance(exc, CoreInputError) else None
         return exc.located(file=str(self.study.path), field=f"{table}.{subject}" if subject else None)
 
-    def map_settings(self, *, pairs: str | None = None, resolution: int | None = None,
-                     method: str | None = None) -> MapSettings:
+    def map_settings(
+        self, *, pairs: str | None = None, resolution: int | None = None, method: str | None = None
+    ) -> MapSettings:
         """The study's ``[map]`` settings with the command line's overrides."""
         given = {"pairs": pairs, "resolution": resolution, "method": method}
         return dataclasses.replace(self.study.map, **{k: v for k, v in given.items() if v is not None})
 
-    def distance_settings(self, *, method: str | None = None,
-                          degrees: tuple[int, ...] | None = None) -> DistanceSettings:
+    def distance_settings(
+        self, *, method: str | None = None, degrees: tuple[int, ...] | None = None
+    ) -> DistanceSettings:
         """The study's ``[distance]`` settings with the command line's overrides."""
         given = {"method": method, "degrees": degrees}
         return dataclasses.replace(self.study.distance, **{k: v for k, v in given.items() if v is not None})
@@ -197,9 +209,19 @@ class StudyRun:
             from specmap.special.preflight import check_atlas_size
 
             gf, gg = self.grids
-            check_atlas_size(len(gf), len(gg), ms.resolution, file=str(self.study.path))  # one line, not MemoryError
-            cache[ms] = special_set(gf, gg, self.window, pairs=ms.pairs, resolution=ms.resolution,
-                                    method=ms.method, tol=ms.tol, progress=self.progress("map"))
+            check_atlas_size(
+                len(gf), len(gg), ms.resolution, file=str(self.study.path)
+            )  # one line, not MemoryError
+            cache[ms] = special_set(
+                gf,
+                gg,
+                self.window,
+                pairs=ms.pairs,
+                resolution=ms.resolution,
+                method=ms.method,
+                tol=ms.tol,
+                progress=self.progress("map"),
+            )
         return cache[ms]
 
     def distance(self, settings: DistanceSettings, *, jobs: int = 1):
@@ -215,8 +237,16 @@ class StudyRun:
             sf, sg = self.shapes
             atlas = self.atlas() if settings.method in ("both", "reduced") else None
             try:
-                cache[key] = matching_distance(sf, sg, settings=settings, window=self.window, atlas=atlas,
-                                               grids=self.grids, jobs=jobs, progress=self.progress("distance"))
+                cache[key] = matching_distance(
+                    sf,
+                    sg,
+                    settings=settings,
+                    window=self.window,
+                    atlas=atlas,
+                    grids=self.grids,
+                    jobs=jobs,
+                    progress=self.progress("distance"),
+                )
             except CoreInputError as exc:  # core words ("method", no mesh, ...); the file is known here
                 raise self.located(exc, "distance") from None
         return cache[key]
@@ -230,18 +260,21 @@ class StudyRun:
         line = command or " ".join(shlex.quote(a) for a in ["specmap", *sys.argv[1:]])
         commands.append({"command": line, "date": _dt.datetime.now().isoformat(timespec="seconds")})
         s = self.study
-        write_json(path, {
-            "name": s.name,
-            "study_file": str(s.path),
-            "seed": s.seed,
-            "f": s.f.to_json(),
-            "g": s.g.to_json(),
-            "constants": s.constants,
-            "window": self.window.to_json(),
-            "simplification": {"f": self.simplification[0], "g": self.simplification[1]},
-            "specmap_version": __version__,
-            "commands": commands[-50:],
-        })
+        write_json(
+            path,
+            {
+                "name": s.name,
+                "study_file": str(s.path),
+                "seed": s.seed,
+                "f": s.f.to_json(),
+                "g": s.g.to_json(),
+                "constants": s.constants,
+                "window": self.window.to_json(),
+                "simplification": {"f": self.simplification[0], "g": self.simplification[1]},
+                "specmap_version": __version__,
+                "commands": commands[-50:],
+            },
+        )
 
     def write_grids(self) -> dict[str, Any]:
         from specmap.report.figures import grids_figure, save_png
@@ -260,12 +293,15 @@ class StudyRun:
         js = atlas.to_json()
         write_json(self.out / "special.json", js)
         # streamed feature by feature: the GeoJSON text is never held whole in memory (issue 14 item 3)
-        write_json_streamed(self.out / "special.geojson", atlas.geojson_head(), "features", atlas.iter_features())
+        write_json_streamed(
+            self.out / "special.geojson", atlas.geojson_head(), "features", atlas.iter_features()
+        )
         save_png(special_figure(js, atlas.to_geojson()), self.out / "figures" / "special.png")
         return js
 
-    def write_distance(self, *, method: str | None = None, degrees: tuple[int, ...] | None = None,
-                       jobs: int = 1) -> dict[str, Any]:
+    def write_distance(
+        self, *, method: str | None = None, degrees: tuple[int, ...] | None = None, jobs: int = 1
+    ) -> dict[str, Any]:
         from specmap.report.figures import distance_map_figure, save_png
 
         settings = self.distance_settings(method=method, degrees=degrees)
@@ -292,11 +328,24 @@ class StudyRun:
             # the base distance of the runs' own settings, with one job as in every run
             distance = self.distance(settings.distance_settings, jobs=1)
         try:
-            base = make_base(self.grids, self.window, shapes=shapes, atlas=self.atlas(), distance=distance,
-                             settings=settings, grid_settings=(self.study.f.grid_settings,
-                                                               self.study.g.grid_settings))
-            summary = perturbation_study(base, settings, self.out / "perturb", sizes=self.study.perturb.sizes,
-                                         jobs=jobs, cluster=cluster, progress=self.progress("perturb"))
+            base = make_base(
+                self.grids,
+                self.window,
+                shapes=shapes,
+                atlas=self.atlas(),
+                distance=distance,
+                settings=settings,
+                grid_settings=(self.study.f.grid_settings, self.study.g.grid_settings),
+            )
+            summary = perturbation_study(
+                base,
+                settings,
+                self.out / "perturb",
+                sizes=self.study.perturb.sizes,
+                jobs=jobs,
+                cluster=cluster,
+                progress=self.progress("perturb"),
+            )
         except CoreInputError as exc:  # core words ("model", ...); the study file and its key are known here
             raise self.located(exc, "perturb") from None
         rows = list(read_jsonl(self.out / "perturb" / "runs.jsonl"))

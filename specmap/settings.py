@@ -35,8 +35,11 @@ MODELS = ("function", "grid")
 
 def _choice(subject: str, value: Any, options: tuple[str, ...]) -> None:
     if value not in options:
-        raise InputValueError(f"{subject} {value!r} is not one of {', '.join(repr(o) for o in options)}",
-                              subject=subject, fix=f"use one of: {', '.join(repr(o) for o in options)}")
+        raise InputValueError(
+            f"{subject} {value!r} is not one of {', '.join(repr(o) for o in options)}",
+            subject=subject,
+            fix=f"use one of: {', '.join(repr(o) for o in options)}",
+        )
 
 
 @dataclass(frozen=True)
@@ -190,25 +193,46 @@ class PerturbSettings:
     def __post_init__(self) -> None:
         _choice("model", self.model, MODELS)
         if not (self.size >= 0 and math.isfinite(self.size)):
-            raise InputValueError(f"size {self.size!r} is not a finite number >= 0", subject="size",
-                                  fix="give a size like 1e-3")
+            raise InputValueError(
+                f"size {self.size!r} is not a finite number >= 0", subject="size", fix="give a size like 1e-3"
+            )
         if self.runs < 0:
-            raise InputValueError(f"runs {self.runs!r} is negative", subject="runs",
-                                  fix="give a number of runs >= 0, like 20")
+            raise InputValueError(
+                f"runs {self.runs!r} is negative", subject="runs", fix="give a number of runs >= 0, like 20"
+            )
         object.__setattr__(self, "degrees", tuple(int(d) for d in self.degrees))
 
     @classmethod
-    def of(cls, *, model: str, size: float, runs: int, seed: int, distance: bool,
-           map: MapSettings, dist: DistanceSettings) -> PerturbSettings:
+    def of(
+        cls,
+        *,
+        model: str,
+        size: float,
+        runs: int,
+        seed: int,
+        distance: bool,
+        map: MapSettings,
+        dist: DistanceSettings,
+    ) -> PerturbSettings:
         """A run set's settings from its own values and the study's map and distance settings.
 
         A run recomputes the distance with the dense sweep when the study asks for ``"dense"``,
         else with the reduced search.
         """
-        return cls(model=model, size=float(size), runs=int(runs), seed=int(seed), pairs=map.pairs,
-                   resolution=int(map.resolution), method=map.method, tol=map.tol, distance=bool(distance),
-                   distance_method="dense" if dist.method == "dense" else "reduced",
-                   degrees=tuple(dist.degrees), dense_resolution=int(dist.dense_resolution))
+        return cls(
+            model=model,
+            size=float(size),
+            runs=int(runs),
+            seed=int(seed),
+            pairs=map.pairs,
+            resolution=int(map.resolution),
+            method=map.method,
+            tol=map.tol,
+            distance=bool(distance),
+            distance_method="dense" if dist.method == "dense" else "reduced",
+            degrees=tuple(dist.degrees),
+            dense_resolution=int(dist.dense_resolution),
+        )
 
     @property
     def map_settings(self) -> MapSettings:
@@ -218,8 +242,9 @@ class PerturbSettings:
     @property
     def distance_settings(self) -> DistanceSettings:
         """The distance settings of every run (and of the base distance)."""
-        return DistanceSettings(method=self.distance_method, degrees=self.degrees,
-                                dense_resolution=self.dense_resolution)
+        return DistanceSettings(
+            method=self.distance_method, degrees=self.degrees, dense_resolution=self.dense_resolution
+        )
 
     def to_json(self) -> dict[str, Any]:
         """Plain JSON of the fields (tuples as lists): the run set's ``settings``."""

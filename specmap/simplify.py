@@ -88,8 +88,9 @@ def _find(parent: np.ndarray, x: int) -> int:
 
 
 @numba.njit(cache=True, nogil=True)
-def _zero_pairs(order: np.ndarray, rank: np.ndarray, indptr: np.ndarray,
-                indices: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+def _zero_pairs(
+    order: np.ndarray, rank: np.ndarray, indptr: np.ndarray, indices: np.ndarray
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """0-dimensional lower-star persistence by union-find (elder rule).
 
     Returns (birth vertices, death vertices) of the finite pairs and the essential minima.
@@ -133,8 +134,9 @@ def _zero_pairs(order: np.ndarray, rank: np.ndarray, indptr: np.ndarray,
 
 
 @numba.njit(cache=True, nogil=True)
-def _settle(order: np.ndarray, rank: np.ndarray, indptr: np.ndarray, indices: np.ndarray,
-            significant: np.ndarray) -> np.ndarray:
+def _settle(
+    order: np.ndarray, rank: np.ndarray, indptr: np.ndarray, indices: np.ndarray, significant: np.ndarray
+) -> np.ndarray:
     """For each vertex v the vertex w at which v's component first holds a significant minimum.
 
     ``settle[v] == v`` for vertices that keep their value; otherwise v lies in a basin of
@@ -246,8 +248,9 @@ def make_injective(values: np.ndarray, limit: float = np.inf) -> np.ndarray:
     return out
 
 
-def _harmonic_key(members: np.ndarray, settle: np.ndarray, indptr: np.ndarray,
-                  indices: np.ndarray) -> np.ndarray:
+def _harmonic_key(
+    members: np.ndarray, settle: np.ndarray, indptr: np.ndarray, indices: np.ndarray
+) -> np.ndarray:
     """Discrete harmonic function on every filled region: 0 at its saddle, 1 on its other neighbours."""
     n = len(settle)
     local = np.full(n, -1, dtype=np.int64)
@@ -261,14 +264,19 @@ def _harmonic_key(members: np.ndarray, settle: np.ndarray, indptr: np.ndarray,
     at_saddle = cols == settle[rows]
     rhs = np.bincount(local[rows], weights=(~same & ~at_saddle).astype(float), minlength=len(members))
     m = len(members)
-    A = coo_matrix((np.r_[deg[members].astype(float), -np.ones(int(same.sum()))],
-                    (np.r_[np.arange(m), local[rows[same]]], np.r_[np.arange(m), local[cols[same]]])),
-                   shape=(m, m)).tocsc()
+    A = coo_matrix(
+        (
+            np.r_[deg[members].astype(float), -np.ones(int(same.sum()))],
+            (np.r_[np.arange(m), local[rows[same]]], np.r_[np.arange(m), local[cols[same]]]),
+        ),
+        shape=(m, m),
+    ).tocsc()
     return np.atleast_1d(spsolve(A, rhs))
 
 
-def _aligned_key(members: np.ndarray, settle: np.ndarray, aux: np.ndarray, indptr: np.ndarray,
-                 indices: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+def _aligned_key(
+    members: np.ndarray, settle: np.ndarray, aux: np.ndarray, indptr: np.ndarray, indices: np.ndarray
+) -> tuple[np.ndarray, np.ndarray]:
     """Order of every filled region that follows ``aux`` and still has no minimum.
 
     In each region B with saddle w, ``aux`` restricted to B is itself filled with w as the only
@@ -304,8 +312,14 @@ def _aligned_key(members: np.ndarray, settle: np.ndarray, aux: np.ndarray, indpt
     return level[members], h[members]
 
 
-def _one_pass(f: np.ndarray, delta: float, hi: np.ndarray, indptr: np.ndarray,
-              indices: np.ndarray, aux: np.ndarray | None = None) -> tuple[np.ndarray, int]:
+def _one_pass(
+    f: np.ndarray,
+    delta: float,
+    hi: np.ndarray,
+    indptr: np.ndarray,
+    indices: np.ndarray,
+    aux: np.ndarray | None = None,
+) -> tuple[np.ndarray, int]:
     """Fill the basins of the minima of persistence < delta, raising no vertex above ``hi``.
 
     Filled regions are laid out by the harmonic rule, or following ``aux`` when given
@@ -467,8 +481,9 @@ class SimplifiedPair:
         return (self.f1.sup_change, self.f2.sup_change)
 
 
-def simplify_function(tri: np.ndarray, values: np.ndarray, delta: float, *,
-                      align: np.ndarray | None = None) -> Simplified:
+def simplify_function(
+    tri: np.ndarray, values: np.ndarray, delta: float, *, align: np.ndarray | None = None
+) -> Simplified:
     """Persistence-sensitive simplification of one PL function on a closed triangulated surface.
 
     Parameters
@@ -544,24 +559,32 @@ def simplify_function(tri: np.ndarray, values: np.ndarray, delta: float, *,
     )
 
 
-def _passes(f: np.ndarray, delta: float, indptr: np.ndarray, indices: np.ndarray,
-            aux: np.ndarray | None) -> tuple[np.ndarray, int, int]:
+def _passes(
+    f: np.ndarray, delta: float, indptr: np.ndarray, indices: np.ndarray, aux: np.ndarray | None
+) -> tuple[np.ndarray, int, int]:
     """Rounds of (minima, maxima) passes until no short pair is left: (values, rounds, left)."""
     g = make_injective(f, 1e-6 * delta)
     rounds = 0
     for _ in range(MAX_ROUNDS):
         rounds += 1
         g, r1 = _one_pass(g, delta, f + delta, indptr, indices, aux)
-        h, r2 = _one_pass(-g, delta, delta - f, indptr, indices,  # -g <= -(f - delta)
-                          None if aux is None else -aux)
+        h, r2 = _one_pass(
+            -g,
+            delta,
+            delta - f,
+            indptr,
+            indices,  # -g <= -(f - delta)
+            None if aux is None else -aux,
+        )
         g = -h
         if r1 + r2 == 0 or _short_pairs(g, delta, indptr, indices) == 0:
             break
     return g, rounds, _short_pairs(g, delta, indptr, indices)
 
 
-def simplify_pair(tri: np.ndarray, f1: np.ndarray, f2: np.ndarray, delta: float, *,
-                  align: bool = True) -> SimplifiedPair:
+def simplify_pair(
+    tri: np.ndarray, f1: np.ndarray, f2: np.ndarray, delta: float, *, align: bool = True
+) -> SimplifiedPair:
     """Simplify both components of a mesh map with the same delta (see :func:`simplify_function`).
 
     With ``align`` (default) the filled regions of f1 follow f2 and those of f2 follow the
@@ -622,9 +645,15 @@ def candidate_deltas(tri: np.ndarray, f1: np.ndarray, f2: np.ndarray) -> np.ndar
     return p + np.minimum(np.maximum(1e-6 * p, floor), 0.5 * (nxt - p))
 
 
-def auto_delta(tri: np.ndarray, f1: np.ndarray, f2: np.ndarray,
-               count_fn: Callable[[np.ndarray, np.ndarray], int], budget: int, *,
-               scan: int = 12) -> AutoDelta:
+def auto_delta(
+    tri: np.ndarray,
+    f1: np.ndarray,
+    f2: np.ndarray,
+    count_fn: Callable[[np.ndarray, np.ndarray], int],
+    budget: int,
+    *,
+    scan: int = 12,
+) -> AutoDelta:
     """Smallest delta whose simplified pair brings ``count_fn`` to at most ``budget``.
 
     Bisection over :func:`candidate_deltas`, taking the count as non-increasing in delta. When
@@ -674,8 +703,9 @@ def auto_delta(tri: np.ndarray, f1: np.ndarray, f2: np.ndarray,
         best = min(cache, key=lambda k: (cache[k][1], k))
         if cache[best][1] >= before:
             return AutoDelta(0.0, None, before, before, int(budget), False, calls)
-        return AutoDelta(float(cands[best]), cache[best][0], before, cache[best][1], int(budget), False,
-                         calls)
+        return AutoDelta(
+            float(cands[best]), cache[best][0], before, cache[best][1], int(budget), False, calls
+        )
     while hi - lo > 1:
         mid = (lo + hi) // 2
         if at(mid)[1] <= budget:
@@ -686,9 +716,14 @@ def auto_delta(tri: np.ndarray, f1: np.ndarray, f2: np.ndarray,
     return AutoDelta(float(cands[hi]), pair, before, count, int(budget), True, calls)
 
 
-def simplify_values(tri: np.ndarray, values: np.ndarray, setting: float | str,
-                    count_fn: Callable[[np.ndarray, np.ndarray], int], *,
-                    budget: int = 60) -> tuple[np.ndarray, dict]:
+def simplify_values(
+    tri: np.ndarray,
+    values: np.ndarray,
+    setting: float | str,
+    count_fn: Callable[[np.ndarray, np.ndarray], int],
+    *,
+    budget: int = 60,
+) -> tuple[np.ndarray, dict]:
     """Simplify a mesh map as a study's ``simplify = delta | "auto"`` asks, with the record to keep.
 
     Parameters

@@ -71,9 +71,7 @@ def value_bounds(values: np.ndarray) -> tuple[float, float, float, float]:
     return (float(v[:, 0].min()), float(v[:, 1].min()), float(v[:, 0].max()), float(v[:, 1].max()))
 
 
-def default_window(
-    bounds_f: Sequence[float], bounds_g: Sequence[float], margin: float = A_MARGIN
-) -> Window:
+def default_window(bounds_f: Sequence[float], bounds_g: Sequence[float], margin: float = A_MARGIN) -> Window:
     """The compact window of math.md section 3.
 
     b- = min(min f1, min g1, -max f2, -max g2), b+ = max(max f1, max g1, -min f2, -min g2);
@@ -105,8 +103,10 @@ def window_for(shapes: Sequence[Any], grids: Sequence[Any], margin: float = A_MA
     margin : float
         Distance of ``a`` from 0 and 1.
     """
-    bounds = [s.value_bounds() if s is not None and getattr(s, "has_mesh", False) else g.bbox()
-              for s, g in zip(shapes, grids, strict=True)]
+    bounds = [
+        s.value_bounds() if s is not None and getattr(s, "has_mesh", False) else g.bbox()
+        for s, g in zip(shapes, grids, strict=True)
+    ]
     return default_window(bounds[0], bounds[1], margin)
 
 

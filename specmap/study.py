@@ -80,8 +80,12 @@ def check_flag(study_path: str, field: str, flag: str, value: int | None) -> int
         return None
     lo, hi = LIMITS[field]
     if not lo <= value <= hi:
-        raise StudyError(f"{flag} {value} is out of range", file=study_path, field=f"{flag} ({field})",
-                         fix=f"give an integer in [{lo}, {hi}]")
+        raise StudyError(
+            f"{flag} {value} is out of range",
+            file=study_path,
+            field=f"{flag} ({field})",
+            fix=f"give an integer in [{lo}, {hi}]",
+        )
     return value
 
 
@@ -106,7 +110,9 @@ class ShapeSpec:
     @property
     def grid_settings(self) -> GridSettings:
         """How this shape's grid is computed: its route, and its resolution for the smooth route."""
-        return GridSettings(route=self.route, resolution=self.resolution if self.source == "surface" else None)
+        return GridSettings(
+            route=self.route, resolution=self.resolution if self.source == "surface" else None
+        )
 
     def describe(self) -> str:
         """One human line, e.g. ``ellipsoid radii (2, 1, 1), map (x, y)``."""
@@ -185,10 +191,21 @@ class Study:
         """
         p = self.perturb
         if p is None:
-            raise StudyError("no [perturb] table", file=str(self.path), field="[perturb]",
-                             fix="add [perturb] with size = ..., runs = ...")
-        return PerturbSettings.of(model=p.model, size=p.size, runs=p.runs if runs is None else runs, seed=p.seed,
-                                  distance=p.distance, map=self.map, dist=self.distance)
+            raise StudyError(
+                "no [perturb] table",
+                file=str(self.path),
+                field="[perturb]",
+                fix="add [perturb] with size = ..., runs = ...",
+            )
+        return PerturbSettings.of(
+            model=p.model,
+            size=p.size,
+            runs=p.runs if runs is None else runs,
+            seed=p.seed,
+            distance=p.distance,
+            map=self.map,
+            dist=self.distance,
+        )
 
 
 class _Reader:
@@ -210,12 +227,12 @@ class _Reader:
             raise self.fail(name, "is not a table", f"write it as [{name}] with keys below it")
         for key in t:
             if key not in allowed:
-                raise self.fail(f"{name}.{key}", "unknown key",
-                                f"use one of: {', '.join(sorted(allowed))}")
+                raise self.fail(f"{name}.{key}", "unknown key", f"use one of: {', '.join(sorted(allowed))}")
         return t
 
-    def number(self, t: dict, name: str, key: str, default: float | None = None, *,
-               positive: bool = False) -> float:
+    def number(
+        self, t: dict, name: str, key: str, default: float | None = None, *, positive: bool = False
+    ) -> float:
         v = t.get(key, default)
         where = f"{name}.{key}"
         if v is None:
@@ -226,7 +243,9 @@ class _Reader:
             raise self.fail(where, f"{v!r} is not positive", f"set {key} to a number > 0")
         return float(v)
 
-    def integer(self, t: dict, name: str, key: str, default: int, *, lo: int = 0, hi: int | None = None) -> int:
+    def integer(
+        self, t: dict, name: str, key: str, default: int, *, lo: int = 0, hi: int | None = None
+    ) -> int:
         v = t.get(key, default)
         where = f"{name}.{key}"
         if isinstance(v, bool) or not isinstance(v, int):
@@ -239,8 +258,9 @@ class _Reader:
     def choice(self, t: dict, name: str, key: str, default: str, options: tuple[str, ...]) -> str:
         v = t.get(key, default)
         if v not in options:
-            raise self.fail(f"{name}.{key}", f"unknown value {v!r}",
-                            f"use one of: {', '.join(repr(o) for o in options)}")
+            raise self.fail(
+                f"{name}.{key}", f"unknown value {v!r}", f"use one of: {', '.join(repr(o) for o in options)}"
+            )
         return v
 
     def numbers(self, t: dict, name: str, key: str, count: int | None = None) -> tuple[float, ...]:
@@ -249,18 +269,21 @@ class _Reader:
         if not isinstance(v, list) or not all(
             isinstance(x, (int, float)) and not isinstance(x, bool) and math.isfinite(x) for x in v
         ):
-            raise self.fail(where, f"{v!r} is not a list of finite numbers",
-                            f"write {key} = [n1, n2{', ...' if count is None or count > 2 else ''}]")
+            raise self.fail(
+                where,
+                f"{v!r} is not a list of finite numbers",
+                f"write {key} = [n1, n2{', ...' if count is None or count > 2 else ''}]",
+            )
         if count is not None and len(v) != count:
-            raise self.fail(where, f"has {len(v)} numbers, expected {count}",
-                            f"give exactly {count} numbers")
+            raise self.fail(where, f"has {len(v)} numbers, expected {count}", f"give exactly {count} numbers")
         return tuple(float(x) for x in v)
 
     def strings(self, t: dict, name: str, key: str, count: int) -> tuple[str, ...]:
         v = t.get(key)
         if not isinstance(v, list) or len(v) != count or not all(isinstance(x, str) for x in v):
-            raise self.fail(f"{name}.{key}", f"{v!r} is not a list of {count} strings",
-                            f'write {key} = ["...", "..."]')
+            raise self.fail(
+                f"{name}.{key}", f"{v!r} is not a list of {count} strings", f'write {key} = ["...", "..."]'
+            )
         return tuple(v)
 
 
@@ -269,16 +292,24 @@ def _shape(r: _Reader, data: dict, label: str, base: Path) -> ShapeSpec:
     given = [k for k in ("surface", "mesh", "grid") if k in t]
     if len(given) != 1:
         problem = "gives none of" if not given else f"gives {', '.join(given)}; exactly one of"
-        raise r.fail(f"[{label}]", f"{problem} surface, mesh, grid",
-                     "give exactly one of surface = ..., mesh = ..., grid = ...")
+        raise r.fail(
+            f"[{label}]",
+            f"{problem} surface, mesh, grid",
+            "give exactly one of surface = ..., mesh = ..., grid = ...",
+        )
     source = given[0]
-    allowed = {"surface": {"surface", "radii", "map", "resolution", "route"},
-               "mesh": {"mesh", "map", "fields", "simplify"},
-               "grid": {"grid"}}[source]
+    allowed = {
+        "surface": {"surface", "radii", "map", "resolution", "route"},
+        "mesh": {"mesh", "map", "fields", "simplify"},
+        "grid": {"grid"},
+    }[source]
     for key in t:
         if key not in allowed:
-            raise r.fail(f"{label}.{key}", f"does not apply to a {source} shape",
-                         f"remove it; a {source} shape takes {', '.join(sorted(allowed))}")
+            raise r.fail(
+                f"{label}.{key}",
+                f"does not apply to a {source} shape",
+                f"remove it; a {source} shape takes {', '.join(sorted(allowed))}",
+            )
     if source == "grid":
         path = _path(r, t, label, "grid", base, (".json",))
         return ShapeSpec(label, "grid", path=path)
@@ -295,14 +326,20 @@ def _shape(r: _Reader, data: dict, label: str, base: Path) -> ShapeSpec:
     if source == "surface":
         kind = t["surface"]
         if kind not in SURFACES:
-            raise r.fail(f"{label}.surface", f"unknown surface {kind!r}",
-                         f"use one of: {', '.join(repr(s) for s in SURFACES)}")
+            raise r.fail(
+                f"{label}.surface",
+                f"unknown surface {kind!r}",
+                f"use one of: {', '.join(repr(s) for s in SURFACES)}",
+            )
         radii = r.numbers(t, label, "radii", SURFACES[kind])
         if any(x <= 0 for x in radii):
             raise r.fail(f"{label}.radii", f"radii {list(radii)} must be positive", "give radii > 0")
         if kind == "torus" and radii[0] <= radii[1]:
-            raise r.fail(f"{label}.radii", f"torus needs R > r, got R={radii[0]:g}, r={radii[1]:g}",
-                         "give radii = [R, r] with R > r > 0")
+            raise r.fail(
+                f"{label}.radii",
+                f"torus needs R > r, got R={radii[0]:g}, r={radii[1]:g}",
+                "give radii = [R, r] with R > r > 0",
+            )
         res = r.integer(t, label, "resolution", 3000, lo=100, hi=2_000_000)
         route = r.choice(t, label, "route", GridSettings.route, ROUTES)
         return ShapeSpec(label, "surface", surface=kind, radii=radii, map=fmap, resolution=res, route=route)
@@ -325,11 +362,17 @@ def _path(r: _Reader, t: dict, label: str, key: str, base: Path, suffixes: tuple
     p = Path(v)
     p = p if p.is_absolute() else (base / p)
     if p.suffix.lower() not in suffixes:
-        raise r.fail(f"{label}.{key}", f"unsupported file type {p.suffix or '(none)'!r}",
-                     f"give a {' / '.join(suffixes)} file")
+        raise r.fail(
+            f"{label}.{key}",
+            f"unsupported file type {p.suffix or '(none)'!r}",
+            f"give a {' / '.join(suffixes)} file",
+        )
     if not p.is_file():
-        raise r.fail(f"{label}.{key}", f"file not found: {p}",
-                     "check the path; relative paths resolve against the study file's folder")
+        raise r.fail(
+            f"{label}.{key}",
+            f"file not found: {p}",
+            "check the path; relative paths resolve against the study file's folder",
+        )
     return p.resolve()
 
 
@@ -342,11 +385,15 @@ def parse_study(data: dict[str, Any], path: Path) -> Study:
     st = r.table(data, "study", True, {"name", "seed"})
     name = st.get("name")
     if not isinstance(name, str) or not name or any(c in name for c in "/\\") or name.startswith("."):
-        raise r.fail("study.name", f"{name!r} is not a usable name",
-                     'set name = "my-study" (letters, digits, - and _)')
+        raise r.fail(
+            "study.name", f"{name!r} is not a usable name", 'set name = "my-study" (letters, digits, - and _)'
+        )
     if not name.isprintable():  # newlines, tabs, control and other non-printing characters (str.isprintable)
-        raise r.fail("study.name", f"{name!r} holds a newline, tab or other non-printing character",
-                     'set name = "my-study" on one line (letters, digits, - and _)')
+        raise r.fail(
+            "study.name",
+            f"{name!r} holds a newline, tab or other non-printing character",
+            'set name = "my-study" on one line (letters, digits, - and _)',
+        )
     seed = r.integer(st, "study", "seed", 0)
     consts_t = data.get("constants", {})
     if not isinstance(consts_t, dict):
@@ -360,7 +407,9 @@ def parse_study(data: dict[str, Any], path: Path) -> Study:
         wt = r.table(data, "window", False, {"a", "b"})
         a = r.numbers(wt, "window", "a", 2) if "a" in wt else (0.02, 0.98)
         if not (0 < a[0] < a[1] < 1):
-            raise r.fail("window.a", f"{list(a)} is not inside ]0, 1[", "give a = [lo, hi] with 0 < lo < hi < 1")
+            raise r.fail(
+                "window.a", f"{list(a)} is not inside ]0, 1[", "give a = [lo, hi] with 0 < lo < hi < 1"
+            )
         if "b" not in wt:
             raise r.fail("window.b", "missing", "give b = [lo, hi], or drop [window] for the default")
         b = r.numbers(wt, "window", "b", 2)
@@ -370,8 +419,14 @@ def parse_study(data: dict[str, Any], path: Path) -> Study:
     mt = r.table(data, "map", False, {"pairs", "resolution", "method", "max_contours"})
     mspec = MapSpec(
         pairs=r.choice(mt, "map", "pairs", _MAP.pairs, PAIRS),
-        resolution=r.integer(mt, "map", "resolution", _MAP.resolution, lo=LIMITS["map.resolution"][0],
-                             hi=LIMITS["map.resolution"][1]),
+        resolution=r.integer(
+            mt,
+            "map",
+            "resolution",
+            _MAP.resolution,
+            lo=LIMITS["map.resolution"][0],
+            hi=LIMITS["map.resolution"][1],
+        ),
         method=r.choice(mt, "map", "method", _MAP.method, MAP_METHODS),
         max_contours=r.integer(mt, "map", "max_contours", _MAP.max_contours, lo=1),
     )
@@ -379,13 +434,21 @@ def parse_study(data: dict[str, Any], path: Path) -> Study:
     degrees = _DISTANCE.degrees
     if "degrees" in dt:
         dv = dt["degrees"]
-        if not isinstance(dv, list) or not dv or not all(x in (0, 1, 2) and not isinstance(x, bool) for x in dv):
-            raise r.fail("distance.degrees", f"{dv!r} is not a list of degrees", "give degrees among [0, 1, 2]")
+        if (
+            not isinstance(dv, list)
+            or not dv
+            or not all(x in (0, 1, 2) and not isinstance(x, bool) for x in dv)
+        ):
+            raise r.fail(
+                "distance.degrees", f"{dv!r} is not a list of degrees", "give degrees among [0, 1, 2]"
+            )
         degrees = tuple(sorted(set(dv)))
     dspec = DistanceSpec(
         method=r.choice(dt, "distance", "method", _DISTANCE.method, DISTANCE_METHODS),
         degrees=degrees,
-        dense_resolution=r.integer(dt, "distance", "dense_resolution", _DISTANCE.dense_resolution, lo=3, hi=1001),
+        dense_resolution=r.integer(
+            dt, "distance", "dense_resolution", _DISTANCE.dense_resolution, lo=3, hi=1001
+        ),
     )
     pspec = None
     if "perturb" in data:
@@ -393,8 +456,11 @@ def parse_study(data: dict[str, Any], path: Path) -> Study:
         default_model = "grid" if (f.source == "grid" or g.source == "grid") else "function"
         model = r.choice(pt, "perturb", "model", default_model, MODELS)
         if model == "function" and (f.source == "grid" or g.source == "grid"):
-            raise r.fail("perturb.model", "'function' needs surfaces or meshes, this study has a grid file",
-                         "use model = \"grid\"")
+            raise r.fail(
+                "perturb.model",
+                "'function' needs surfaces or meshes, this study has a grid file",
+                'use model = "grid"',
+            )
         sizes = None
         if "sizes" in pt:
             sizes = r.numbers(pt, "perturb", "sizes")
@@ -406,8 +472,14 @@ def parse_study(data: dict[str, Any], path: Path) -> Study:
         pspec = PerturbSpec(
             model=model,
             size=r.number(pt, "perturb", "size", _PERTURB.size, positive=True),
-            runs=r.integer(pt, "perturb", "runs", _PERTURB.runs, lo=LIMITS["perturb.runs"][0],
-                           hi=LIMITS["perturb.runs"][1]),
+            runs=r.integer(
+                pt,
+                "perturb",
+                "runs",
+                _PERTURB.runs,
+                lo=LIMITS["perturb.runs"][0],
+                hi=LIMITS["perturb.runs"][1],
+            ),
             seed=r.integer(pt, "perturb", "seed", seed),
             sizes=sizes,
             distance=dist,
@@ -425,14 +497,23 @@ def load_study(path: str | Path) -> Study:
     """
     p = Path(path)
     if not p.is_file():
-        raise StudyError("file not found", file=str(p), field="(file)",
-                         fix="give the path of a .toml study file (see studies/)")
+        raise StudyError(
+            "file not found",
+            file=str(p),
+            field="(file)",
+            fix="give the path of a .toml study file (see studies/)",
+        )
     try:
         data = tomllib.loads(p.read_text())
     except tomllib.TOMLDecodeError as exc:
-        raise StudyError(f"malformed TOML ({exc})", file=str(p), field="(syntax)",
-                         fix="fix the TOML syntax at the position given") from None
+        raise StudyError(
+            f"malformed TOML ({exc})",
+            file=str(p),
+            field="(syntax)",
+            fix="fix the TOML syntax at the position given",
+        ) from None
     except UnicodeDecodeError:
-        raise StudyError("not a text file", file=str(p), field="(file)",
-                         fix="give a UTF-8 TOML study file") from None
+        raise StudyError(
+            "not a text file", file=str(p), field="(file)", fix="give a UTF-8 TOML study file"
+        ) from None
     return parse_study(data, p.resolve())

@@ -21,8 +21,9 @@ def random_polyline(rng: np.random.Generator, size: float = 1.0, max_points: int
     return np.vstack([start, start + np.cumsum(steps, axis=0)])
 
 
-def random_grid(seed: int, n: int, prefix: str = "f", *, size: float = 1.0,
-                proper_fraction: float = 0.5) -> Grid:
+def random_grid(
+    seed: int, n: int, prefix: str = "f", *, size: float = 1.0, proper_fraction: float = 0.5
+) -> Grid:
     """A random grid of ``n`` contours with ids ``"<prefix>:<kind letter><k>"``."""
     rng = np.random.default_rng(seed)
     out = []

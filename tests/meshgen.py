@@ -16,9 +16,24 @@ from scipy.spatial import ConvexHull
 
 def sphere_points(level: int) -> np.ndarray:
     """Vertices of the icosahedron with every face split into level**2 triangles, on the unit sphere."""
-    t = (1 + 5 ** 0.5) / 2
-    ico = np.array([[-1, t, 0], [1, t, 0], [-1, -t, 0], [1, -t, 0], [0, -1, t], [0, 1, t],
-                    [0, -1, -t], [0, 1, -t], [t, 0, -1], [t, 0, 1], [-t, 0, -1], [-t, 0, 1]], float)
+    t = (1 + 5**0.5) / 2
+    ico = np.array(
+        [
+            [-1, t, 0],
+            [1, t, 0],
+            [-1, -t, 0],
+            [1, -t, 0],
+            [0, -1, t],
+            [0, 1, t],
+            [0, -1, -t],
+            [0, 1, -t],
+            [t, 0, -1],
+            [t, 0, 1],
+            [-t, 0, -1],
+            [-t, 0, 1],
+        ],
+        float,
+    )
     faces = ConvexHull(ico).simplices
     pts = [ico]
     k = max(int(level), 1)

@@ -64,8 +64,13 @@ def _outward(V: np.ndarray, T: np.ndarray) -> np.ndarray:
     return T
 
 
-def noisy_scan(radii: tuple[float, float, float] = (2.0, 1.2, 1.0), level: int = 12,
-               amplitude: float = 0.01, seed: int = 0, axes: tuple[int, int] = (0, 1)) -> NoisyScan:
+def noisy_scan(
+    radii: tuple[float, float, float] = (2.0, 1.2, 1.0),
+    level: int = 12,
+    amplitude: float = 0.01,
+    seed: int = 0,
+    axes: tuple[int, int] = (0, 1),
+) -> NoisyScan:
     """A seeded noisy scan of an ellipsoid with coordinate functions as (f1, f2).
 
     Parameters
@@ -88,8 +93,17 @@ def noisy_scan(radii: tuple[float, float, float] = (2.0, 1.2, 1.0), level: int =
     rng = np.random.default_rng([seed, 1])
     V = V0 + amplitude * rng.normal(size=V0.shape)
     ax = list(axes)
-    return NoisyScan(V, V0, T, V[:, ax].copy(), V0[:, ax].copy(), tuple(float(r) for r in radii),
-                     float(amplitude), int(seed), (int(axes[0]), int(axes[1])))
+    return NoisyScan(
+        V,
+        V0,
+        T,
+        V[:, ax].copy(),
+        V0[:, ax].copy(),
+        tuple(float(r) for r in radii),
+        float(amplitude),
+        int(seed),
+        (int(axes[0]), int(axes[1])),
+    )
 
 
 def write_scan(path: str | Path, scan: NoisyScan) -> Path:

@@ -41,14 +41,17 @@ def test_hash_in_expression_is_rejected(text: str) -> None:
 
 
 def test_hash_in_study_map_one_line_exit_2(tmp_path: Path) -> None:
-    body = ('[f]\nsurface = "ellipsoid"\nradii = [2, 1, 1]\nmap = ["x", "y # + 100*z"]\n'
-            '[g]\nsurface = "ellipsoid"\nradii = [2, 1, 1]\nmap = ["x", "y"]\n')
+    body = (
+        '[f]\nsurface = "ellipsoid"\nradii = [2, 1, 1]\nmap = ["x", "y # + 100*z"]\n'
+        '[g]\nsurface = "ellipsoid"\nradii = [2, 1, 1]\nmap = ["x", "y"]\n'
+    )
     (tmp_path / "s.toml").write_text(HEAD + body)
     proc = run_cli(["grid", "s.toml"], tmp_path)
     assert_user_error(proc, "s.toml", "f.map", "#")
 
 
 # --------------------------------------------------------------------------- 2. grid files
+
 
 def _grid(**extra: object) -> dict:
     g = {"format": "specmap-grid/1", "contours": [{"id": "p0", "kind": "proper", "points": [[0, 1], [1, 0]]}]}
@@ -70,14 +73,31 @@ GRID_CASES = {
     "tolerance_huge_int": (json.dumps(_grid()).replace("{", '{"tolerance": ' + BIG + ", ", 1), ["tolerance"]),
     "meta_list": (json.dumps(_grid(meta=[1, 2])), ["meta", "object"]),
     "meta_string": (json.dumps(_grid(meta="x")), ["meta", "object"]),
-    "coordinate_400_digits": (json.dumps(_grid()).replace("[0, 1]", "[0, " + BIG + "]"), ["contours[0].points", "1e+12"]),
-    "coordinate_1e308": (json.dumps(_grid()).replace("[0, 1]", "[0, 1e308]"), ["contours[0].points", "1e+12"]),
+    "coordinate_400_digits": (
+        json.dumps(_grid()).replace("[0, 1]", "[0, " + BIG + "]"),
+        ["contours[0].points", "1e+12"],
+    ),
+    "coordinate_1e308": (
+        json.dumps(_grid()).replace("[0, 1]", "[0, 1e308]"),
+        ["contours[0].points", "1e+12"],
+    ),
     # 1e308 made the tolerance infinite and so accepted an increasing contour (issue 14)
-    "increasing_with_1e308": (json.dumps({"format": "specmap-grid/1", "contours": [
-        {"id": "p0", "kind": "proper", "points": [[0, 0], [1, 1]]},
-        {"id": "v0", "kind": "vertical", "start": [1e308, 0]}]}), ["contours[1].start", "1e+12"]),
-    "nested_1e5": ('{"format": "specmap-grid/1", "contours": ' + "[" * 100_000 + "]" * 100_000 + "}",
-                   ["g.json", "nested"]),
+    "increasing_with_1e308": (
+        json.dumps(
+            {
+                "format": "specmap-grid/1",
+                "contours": [
+                    {"id": "p0", "kind": "proper", "points": [[0, 0], [1, 1]]},
+                    {"id": "v0", "kind": "vertical", "start": [1e308, 0]},
+                ],
+            }
+        ),
+        ["contours[1].start", "1e+12"],
+    ),
+    "nested_1e5": (
+        '{"format": "specmap-grid/1", "contours": ' + "[" * 100_000 + "]" * 100_000 + "}",
+        ["g.json", "nested"],
+    ),
 }
 
 
@@ -92,6 +112,7 @@ def test_bad_grid_file_one_line_exit_2(case: str, tmp_path: Path) -> None:
 def test_grid_file_tolerance_number_accepted() -> None:
     # A finite numeric tolerance and an object meta are kept as given (the specmap-grid/1 contract).
     from specmap.grids.model import grid_from_json
+
     g = grid_from_json(_grid(tolerance=0.25, meta={"a": 1}), file="g.json")
     assert g.tolerance == 0.25 and g.meta == {"a": 1}
 
@@ -103,6 +124,7 @@ def test_grid_file_tolerance_number_accepted() -> None:
 def test_result_files_honour_umask(mask: int, tmp_path: Path) -> None:
     # Expected mode: 0o666 & ~umask, what open(path, "w") gives (POSIX creat semantics).
     from specmap.io import append_jsonl, write_json, write_text
+
     old = os.umask(mask)
     try:
         paths = [write_json(tmp_path / "a.json", {"x": 1}), write_text(tmp_path / "b.txt", "t")]
@@ -117,18 +139,33 @@ def test_result_files_honour_umask(mask: int, tmp_path: Path) -> None:
 
 # --------------------------------------------------------------------------- 5. report inputs
 
-STUDY_JSON = {"name": "t", "study_file": "s.toml", "seed": 1, "window": {"a": [0, 1], "b": [-1, 1]},
-              "commands": []}
+STUDY_JSON = {
+    "name": "t",
+    "study_file": "s.toml",
+    "seed": 1,
+    "window": {"a": [0, 1], "b": [-1, 1]},
+    "commands": [],
+}
 
 REPORT_CASES = {
     # file, content, needles (the file and the field the report must name)
     "special_list": ("special.json", "[]", ["special.json", "(root)", "list"]),
-    "special_no_counts": ("special.json", json.dumps({"components": [], "total_area": 0.0}),
-                          ["special.json", "counts"]),
-    "special_counts_list": ("special.json", json.dumps({"counts": [], "components": [], "total_area": 0.0}),
-                            ["special.json", "counts"]),
+    "special_no_counts": (
+        "special.json",
+        json.dumps({"components": [], "total_area": 0.0}),
+        ["special.json", "counts"],
+    ),
+    "special_counts_list": (
+        "special.json",
+        json.dumps({"counts": [], "components": [], "total_area": 0.0}),
+        ["special.json", "counts"],
+    ),
     "distance_empty": ("distance.json", "{}", ["distance.json", "value"]),
-    "grid_no_contours": ("grid_f.json", json.dumps({"format": "specmap-grid/1"}), ["grid_f.json", "contours"]),
+    "grid_no_contours": (
+        "grid_f.json",
+        json.dumps({"format": "specmap-grid/1"}),
+        ["grid_f.json", "contours"],
+    ),
     "summary_list": ("perturb/summary.json", "[1]", ["summary.json", "(root)"]),
     "runs_line_list": ("perturb/runs.jsonl", "[1, 2]\n", ["runs.jsonl", "line 1"]),
 }

@@ -36,8 +36,9 @@ GRIDS = (GRID, GRID.relabelled("g"))
 
 def _run(sf, sg, degrees, **kw):
     kw.setdefault("dense_resolution", 9)
-    return matching_distance(sf, sg, method="both", degrees=degrees, atlas=FakeAtlas((), ()), grids=GRIDS,
-                             position_lines=0, **kw)
+    return matching_distance(
+        sf, sg, method="both", degrees=degrees, atlas=FakeAtlas((), ()), grids=GRIDS, position_lines=0, **kw
+    )
 
 
 def _torus_ellipsoid(n=300):
@@ -109,7 +110,9 @@ def test_two_ellipsoids_slope_one_closed_form_below_the_upper_bound():
     lo, hi = out.by_degree[0]["bounds"]
     bs = np.linspace(*out.window.b, 41)
     closed = max(abs(_ellipse_min_star(rf[0], rf[1], b) - _ellipse_min_star(rg[0], rg[1], b)) for b in bs)
-    edge = max(float(np.abs(s.values[s.triangles[:, 0]] - s.values[s.triangles[:, 1]]).max()) for s in (sf, sg))
+    edge = max(
+        float(np.abs(s.values[s.triangles[:, 0]] - s.values[s.triangles[:, 1]]).max()) for s in (sf, sg)
+    )
     assert closed <= hi + 2 * edge
     assert lo <= hi
 
@@ -132,8 +135,15 @@ def test_audit_flags_a_reduced_search_built_to_fail():
     dense = dense_sweep(ev, w, resolution=9, bounds=(sf.value_bounds(), sg.value_bounds()))
     assert any(a == 0.5 for a, _ in ev.memo)  # the dense grid holds lines of a = 1/2
     upper, _ = distance_upper_bound(sf, sg)
-    red = reduced_search(ev, w, FakeAtlas((), ()), {}, tolerance=tol, upper=upper,
-                         settings=ReducedSettings(slope_samples=3, slope_max_lines=0, polish=False))
+    red = reduced_search(
+        ev,
+        w,
+        FakeAtlas((), ()),
+        {},
+        tolerance=tol,
+        upper=upper,
+        settings=ReducedSettings(slope_samples=3, slope_max_lines=0, polish=False),
+    )
     own = np.linspace(*w.b, 3)
     fresh = LineEvaluator(sf, sg, (0,))(0.5, own)[0]
     assert red.slope[0].value == pytest.approx(float(fresh.max()), abs=1e-12)
@@ -161,10 +171,18 @@ def test_uncertified_degree_says_why():
     w = default_window(sf.value_bounds(), sg.value_bounds())
     ev = LineEvaluator(sf, sg, (0,))
     upper, kind = distance_upper_bound(sf, sg)
-    red = reduced_search(ev, w, FakeAtlas((), ()), {}, tolerance=1e-6, upper=upper,
-                         settings=ReducedSettings(slope_samples=3, slope_max_lines=3, polish=False))
-    cert = degree_certificate(0, red.slope[0].value, None, red, tolerance=1e-6, upper=upper, upper_kind=kind,
-                              max_lines=3)
+    red = reduced_search(
+        ev,
+        w,
+        FakeAtlas((), ()),
+        {},
+        tolerance=1e-6,
+        upper=upper,
+        settings=ReducedSettings(slope_samples=3, slope_max_lines=3, polish=False),
+    )
+    cert = degree_certificate(
+        0, red.slope[0].value, None, red, tolerance=1e-6, upper=upper, upper_kind=kind, max_lines=3
+    )
     assert cert["certified"] is False
     assert cert["why_not"].startswith("slope-one search stopped at its 3-line cap: bound ")
     lo, hi = cert["bounds"]

@@ -21,8 +21,13 @@ HEAD = '[study]\nname = "t"\nseed = 1\n'
 
 
 def run_cli(args: list[str], cwd: Path) -> subprocess.CompletedProcess:
-    return subprocess.run([sys.executable, "-m", "specmap", "--quiet", *args], cwd=cwd,
-                          capture_output=True, text=True, timeout=300)
+    return subprocess.run(
+        [sys.executable, "-m", "specmap", "--quiet", *args],
+        cwd=cwd,
+        capture_output=True,
+        text=True,
+        timeout=300,
+    )
 
 
 def assert_user_error(proc: subprocess.CompletedProcess, *needles: str) -> None:
@@ -37,16 +42,25 @@ def assert_user_error(proc: subprocess.CompletedProcess, *needles: str) -> None:
 CASES = {
     "malformed_toml": (HEAD + "[f\n", ["(syntax)"]),
     "unknown_table": (HEAD + GOOD_F + GOOD_G + "[extra]\nx = 1\n", ["[extra]", "unknown table"]),
-    "unknown_key": (HEAD + GOOD_F.replace("resolution", "resolutoin") + GOOD_G, ["f.resolutoin", "use one of"]),
+    "unknown_key": (
+        HEAD + GOOD_F.replace("resolution", "resolutoin") + GOOD_G,
+        ["f.resolutoin", "use one of"],
+    ),
     "unknown_surface": (HEAD + GOOD_F.replace("ellipsoid", "klein") + GOOD_G, ["f.surface", "klein"]),
     "radii_count": (HEAD + GOOD_F.replace("[2, 1, 1]", "[2, 1]") + GOOD_G, ["f.radii", "expected 3"]),
     "radii_sign": (HEAD + GOOD_F.replace("[2, 1, 1]", "[2, -1, 1]") + GOOD_G, ["f.radii", "positive"]),
-    "torus_order": (HEAD + '[f]\nsurface = "torus"\nradii = [1, 2]\nmap = ["x", "y"]\n' + GOOD_G, ["f.radii", "R > r"]),
-    "two_sources": (HEAD + GOOD_F.replace('[f]\n', '[f]\ngrid = "x.json"\n') + GOOD_G, ["[f]", "exactly one"]),
+    "torus_order": (
+        HEAD + '[f]\nsurface = "torus"\nradii = [1, 2]\nmap = ["x", "y"]\n' + GOOD_G,
+        ["f.radii", "R > r"],
+    ),
+    "two_sources": (
+        HEAD + GOOD_F.replace("[f]\n", '[f]\ngrid = "x.json"\n') + GOOD_G,
+        ["[f]", "exactly one"],
+    ),
     "missing_g": (HEAD + GOOD_F, ["[g]", "missing table"]),
     "unknown_name": (HEAD + GOOD_F.replace('"y"]', '"y + q"]') + GOOD_G, ["f.map", "q"]),
     "attribute": (HEAD + GOOD_F.replace('"y"]', '"x.__class__"]') + GOOD_G, ["f.map"]),
-    "import": (HEAD + GOOD_F.replace('"y"]', '"__import__(\'os\')"]') + GOOD_G, ["f.map"]),
+    "import": (HEAD + GOOD_F.replace('"y"]', "\"__import__('os')\"]") + GOOD_G, ["f.map"]),
     "subscript": (HEAD + GOOD_F.replace('"y"]', '"x[0]"]') + GOOD_G, ["f.map"]),
     "call_outside": (HEAD + GOOD_F.replace('"y"]', '"open(x)"]') + GOOD_G, ["f.map"]),
     "nan_values": (HEAD + GOOD_F.replace('"y"]', '"log(x - 10)"]') + GOOD_G, ["f.map", "NaN"]),
@@ -72,7 +86,10 @@ def test_missing_study_file(tmp_path: Path) -> None:
 
 def test_grid_file_increasing_proper_contour(tmp_path: Path) -> None:
     # A proper contour must be non-increasing (CEF19: Pareto contours are monotone).
-    grid = {"format": "specmap-grid/1", "contours": [{"id": "p0", "kind": "proper", "points": [[0, 0], [1, 1]]}]}
+    grid = {
+        "format": "specmap-grid/1",
+        "contours": [{"id": "p0", "kind": "proper", "points": [[0, 0], [1, 1]]}],
+    }
     (tmp_path / "g.json").write_text(json.dumps(grid))
     (tmp_path / "s.toml").write_text(HEAD + '[f]\ngrid = "g.json"\n[g]\ngrid = "g.json"\n')
     proc = run_cli(["grid", "s.toml"], tmp_path)
@@ -81,8 +98,9 @@ def test_grid_file_increasing_proper_contour(tmp_path: Path) -> None:
 
 
 def test_grid_file_nan(tmp_path: Path) -> None:
-    (tmp_path / "g.json").write_text('{"format": "specmap-grid/1", "contours": '
-                                     '[{"id": "v0", "kind": "vertical", "start": [NaN, 0]}]}')
+    (tmp_path / "g.json").write_text(
+        '{"format": "specmap-grid/1", "contours": [{"id": "v0", "kind": "vertical", "start": [NaN, 0]}]}'
+    )
     (tmp_path / "s.toml").write_text(HEAD + '[f]\ngrid = "g.json"\n[g]\ngrid = "g.json"\n')
     proc = run_cli(["grid", "s.toml"], tmp_path)
     assert_user_error(proc, "g.json", "non-finite")

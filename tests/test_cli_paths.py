@@ -127,14 +127,25 @@ def test_quiet_after_verb(tmp_path: Path) -> None:
     from specmap.cli import build_parser
 
     p = build_parser()
-    for verb in (["grid", "s.toml"], ["map", "s.toml"], ["distance", "s.toml"], ["perturb", "s.toml"],
-                 ["report", "d"], ["demo"]):
+    for verb in (
+        ["grid", "s.toml"],
+        ["map", "s.toml"],
+        ["distance", "s.toml"],
+        ["perturb", "s.toml"],
+        ["report", "d"],
+        ["demo"],
+    ):
         assert p.parse_args([*verb, "--quiet"]).quiet is True, verb
         assert p.parse_args(["--quiet", *verb]).quiet is True, verb
         assert p.parse_args(verb).quiet is False, verb
     res = make_folder(tmp_path / "res")
-    proc = subprocess.run([sys.executable, "-m", "specmap", "report", str(res), "--quiet"], cwd=tmp_path,
-                          capture_output=True, text=True, timeout=300)
+    proc = subprocess.run(
+        [sys.executable, "-m", "specmap", "report", str(res), "--quiet"],
+        cwd=tmp_path,
+        capture_output=True,
+        text=True,
+        timeout=300,
+    )
     assert proc.returncode == 0, proc.stderr
 
 

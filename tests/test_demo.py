@@ -19,8 +19,13 @@ STUDIES = sorted((ROOT / "studies").glob("*.toml"))
 
 
 def run_cli(args: list[str], cwd: Path) -> subprocess.CompletedProcess:
-    return subprocess.run([sys.executable, "-m", "specmap", "--quiet", *args], cwd=cwd,
-                          capture_output=True, text=True, timeout=900)
+    return subprocess.run(
+        [sys.executable, "-m", "specmap", "--quiet", *args],
+        cwd=cwd,
+        capture_output=True,
+        text=True,
+        timeout=900,
+    )
 
 
 @pytest.mark.parametrize("study", STUDIES, ids=[s.stem for s in STUDIES])
@@ -42,13 +47,22 @@ def test_demo_quick_end_to_end(tmp_path: Path) -> None:
     lines = proc.stdout.splitlines()
     assert any(ln.startswith("matching distance: D = ") for ln in lines), proc.stdout
     assert any(ln.startswith("verdict: ") for ln in lines), proc.stdout
-    assert any(ln.startswith(f"report copied to {pdf} (replaced the previous file") for ln in lines), proc.stdout
+    assert any(ln.startswith(f"report copied to {pdf} (replaced the previous file") for ln in lines), (
+        proc.stdout
+    )
     assert not any("0000000" in ln for ln in lines)  # numbers are rounded, not 16 digits
     # the command is recorded once, with its options
     cmds = json.loads((out / "study.json").read_text())["commands"]
     assert len(cmds) == 1 and "--quick" in cmds[0]["command"] and "--jobs 2" in cmds[0]["command"]
-    for name in ("grid_f.json", "special.json", "special.geojson", "distance.json",
-                 "perturb/runs.jsonl", "perturb/summary.json", "report.pdf"):
+    for name in (
+        "grid_f.json",
+        "special.json",
+        "special.geojson",
+        "distance.json",
+        "perturb/runs.jsonl",
+        "perturb/summary.json",
+        "report.pdf",
+    ):
         assert (out / name).is_file(), name
     reader = PdfReader(str(pdf))
     text = " ".join(page.extract_text() for page in reader.pages)

@@ -96,8 +96,15 @@ def test_shift_by_c_c_gives_c_on_slope_one():
     # reduced search with an empty atlas: the slope-one line alone gives |c|
     grid_f = Grid((Contour("f:v0", "vertical", [0.0, 0.0]),))
     grid_g = Grid((Contour("g:v0", "vertical", [c, c]),))
-    red = matching_distance(sf, sg, method="reduced", degrees=(0,), atlas=FakeAtlas((), ()),
-                            grids=(grid_f, grid_g), position_lines=0)
+    red = matching_distance(
+        sf,
+        sg,
+        method="reduced",
+        degrees=(0,),
+        atlas=FakeAtlas((), ()),
+        grids=(grid_f, grid_g),
+        position_lines=0,
+    )
     assert red.value == pytest.approx(c, abs=1e-9)
     assert red.reached_on == "slope-one"
     assert red.at[0] == 0.5
@@ -146,8 +153,9 @@ def test_symmetric_pair_has_distance_near_zero():
     sf, sg = shapes(V, T, f, g)
     res = matching_distance(sf, sg, method="dense", dense_resolution=7, degrees=(0, 1))
     assert res.value <= bound
-    far = matching_distance(sf, Shape("g", "mesh", V, T, g + [0.0, 0.6]), method="dense",
-                            dense_resolution=7, degrees=(0, 1))
+    far = matching_distance(
+        sf, Shape("g", "mesh", V, T, g + [0.0, 0.6]), method="dense", dense_resolution=7, degrees=(0, 1)
+    )
     assert far.value > bound
 
 
@@ -169,8 +177,13 @@ def test_lipschitz_bound_holds_between_lines():
     assert np.all(np.abs(h1 - h2) <= lim + 1e-12)
     # the cell bound is non-negative and finite on finite data
     H = ev(*w.mesh(5, 5))
-    assert 0 <= cell_error_bound(H[0], w.mesh(5, 5)[0][0], w.mesh(5, 5)[1][:, 0],
-                                 sf.value_bounds(), sg.value_bounds()) < math.inf
+    assert (
+        0
+        <= cell_error_bound(
+            H[0], w.mesh(5, 5)[0][0], w.mesh(5, 5)[1][:, 0], sf.value_bounds(), sg.value_bounds()
+        )
+        < math.inf
+    )
 
 
 def test_parallel_equals_serial():
@@ -188,8 +201,12 @@ def test_parallel_equals_serial():
 def test_tie_costs_roles():
     # math.md 5, role-aware refinement: equal ties of two cross pairs cost d, of two same-grid
     # pairs d/2; mixed equal ties are no tie of costs; half: d_big (same grid) / 2 = d_small (cross).
-    C = {"f:v0": Contour("f:v0", "vertical", [0.0, -10.0]), "f:v1": Contour("f:v1", "vertical", [1.0, -10.0]),
-         "g:v0": Contour("g:v0", "vertical", [0.5, -10.0]), "g:v1": Contour("g:v1", "vertical", [1.5, -10.0])}
+    C = {
+        "f:v0": Contour("f:v0", "vertical", [0.0, -10.0]),
+        "f:v1": Contour("f:v1", "vertical", [1.0, -10.0]),
+        "g:v0": Contour("g:v0", "vertical", [0.5, -10.0]),
+        "g:v1": Contour("g:v1", "vertical", [1.5, -10.0]),
+    }
     a, b = 0.5, 0.0  # push coordinates at a = 1/2 are x - b: 0, 1, 0.5, 1.5
     lo, hi = tie_costs(FakeTie((("f:v0", "g:v0"), ("f:v1", "g:v1")), "equal"), C, a, b)
     assert (float(lo), float(hi)) == pytest.approx((0.5, 0.5))
@@ -213,8 +230,12 @@ def test_fake_atlas_pruning_and_components():
     V, T, f = ellipsoid_pair(200)
     c = 0.1
     sf, sg = shapes(V, T, f, f + c)
-    C = [Contour("f:v0", "vertical", [0.0, -5.0]), Contour("f:v1", "vertical", [1.0, -5.0]),
-         Contour("g:v0", "vertical", [0.1, -5.0]), Contour("g:v1", "vertical", [1.1, -5.0])]
+    C = [
+        Contour("f:v0", "vertical", [0.0, -5.0]),
+        Contour("f:v1", "vertical", [1.0, -5.0]),
+        Contour("g:v0", "vertical", [0.1, -5.0]),
+        Contour("g:v1", "vertical", [1.1, -5.0]),
+    ]
     gf, gg = Grid(tuple(C[:2])), Grid(tuple(C[2:]))
     w = default_window(sf.value_bounds(), sg.value_bounds())
     inside = LineString([(0.2, w.b[0] + 0.1), (0.8, w.b[1] - 0.1)])
@@ -222,19 +243,33 @@ def test_fake_atlas_pruning_and_components():
         FakePiece(FakeTie((("f:v0", "g:v0"), ("f:v1", "g:v1")), "equal"), "curve", inside),  # cost 0.1
         FakePiece(FakeTie((("f:v0", "f:v1"), ("f:v0", "g:v0")), "equal"), "curve", inside),  # mixed roles
         FakePiece(FakeTie((("f:v0", "x:q"), ("f:v1", "g:v1")), "equal"), "curve", inside),  # unknown id
-        FakePiece(FakeTie((("f:v0", "g:v1"), ("f:v1", "g:v0")), "equal"), "curve",
-                  LineString([(0.3, w.b[1] + 5), (0.4, w.b[1] + 6)])),  # outside
+        FakePiece(
+            FakeTie((("f:v0", "g:v1"), ("f:v1", "g:v0")), "equal"),
+            "curve",
+            LineString([(0.3, w.b[1] + 5), (0.4, w.b[1] + 6)]),
+        ),  # outside
     )
     atlas = FakeAtlas(pieces, (FakeComponent("c0", "curve", inside, (pieces[0].tie,)),))
-    res = matching_distance(sf, sg, method="reduced", degrees=(0,), atlas=atlas, grids=(gf, gg),
-                            position_lines=3)
+    res = matching_distance(
+        sf, sg, method="reduced", degrees=(0,), atlas=atlas, grids=(gf, gg), position_lines=3
+    )
     pr = res.reduced["pruned"]
     assert pr["roles"] == 1 and pr["unknown_contour"] == 1 and pr["outside_window"] == 1
     assert pr["ties_total"] == 4
     assert res.value == pytest.approx(c, abs=1e-9)  # no line beats |c|
     js = res.to_json()
-    for key in ("value", "at", "reached_on", "by_degree", "dense", "reduced", "audit", "tolerance",
-                "infinite", "landscape"):
+    for key in (
+        "value",
+        "at",
+        "reached_on",
+        "by_degree",
+        "dense",
+        "reduced",
+        "audit",
+        "tolerance",
+        "infinite",
+        "landscape",
+    ):
         assert key in js
     assert set(js["audit"]["position"]) >= {"fraction_explained", "max_deviation", "lines"}
 
@@ -250,8 +285,17 @@ def test_theorem_audit_flags_a_gap():
     grid = Grid((Contour("f:v0", "vertical", [0.0, 0.0]),))
     w = Window((0.02, 0.45), (-0.2, 0.2))
     with pytest.warns(UserWarning, match="dense sweep exceeds"):
-        res = matching_distance(sf, sg, method="both", degrees=(2,), atlas=FakeAtlas((), ()), window=w,
-                                grids=(grid, grid.relabelled("g")), dense_resolution=9, position_lines=0)
+        res = matching_distance(
+            sf,
+            sg,
+            method="both",
+            degrees=(2,),
+            atlas=FakeAtlas((), ()),
+            window=w,
+            grids=(grid, grid.relabelled("g")),
+            dense_resolution=9,
+            position_lines=0,
+        )
     assert res.dense["value"] == pytest.approx(c, abs=0.05)
     assert res.audit["theorem_gap"] is True
     assert res.audit["gap"] > res.tolerance
@@ -289,8 +333,16 @@ def _reduced_vs_dense(n, dense_resolution, atlas_resolution):
     w = default_window(sf.value_bounds(), sg.value_bounds())
     atlas = special_set(gf, gg, w, resolution=atlas_resolution)
     with np.errstate(all="ignore"):
-        return matching_distance(sf, sg, method="both", atlas=atlas, grids=(gf, gg), window=w,
-                                 dense_resolution=dense_resolution, position_lines=5)
+        return matching_distance(
+            sf,
+            sg,
+            method="both",
+            atlas=atlas,
+            grids=(gf, gg),
+            window=w,
+            dense_resolution=dense_resolution,
+            position_lines=5,
+        )
 
 
 @pytest.mark.slow
@@ -376,20 +428,33 @@ def test_reduced_search_early_stop():
     # Tie A (t = 0.5 > D) must be evaluated and fail h >= t; tie B (t = 0.3) ends at the maximiser
     # (0.3, 0), where h = t = D = 0.3: the search stops there and tie C (t = 0.2) is never evaluated.
     def verticals(d, k):
-        return [Contour(f"f:a{k}", "vertical", [0.0, -100.0]), Contour(f"g:a{k}", "vertical", [d, -100.0]),
-                Contour(f"f:b{k}", "vertical", [1.0, -100.0]), Contour(f"g:b{k}", "vertical", [1.0 + d, -100.0])]
+        return [
+            Contour(f"f:a{k}", "vertical", [0.0, -100.0]),
+            Contour(f"g:a{k}", "vertical", [d, -100.0]),
+            Contour(f"f:b{k}", "vertical", [1.0, -100.0]),
+            Contour(f"g:b{k}", "vertical", [1.0 + d, -100.0]),
+        ]
 
     C = {c.id: c for k, d in enumerate((0.5, 0.3, 0.2)) for c in verticals(d, k)}
 
     def tie(k):
         return FakeTie(((f"f:a{k}", f"g:a{k}"), (f"f:b{k}", f"g:b{k}")), "equal")
 
-    pieces = (FakePiece(tie(0), "curve", LineString([(0.2, 0.3), (0.4, 0.3)])),
-              FakePiece(tie(1), "curve", LineString([(0.3, 0.0), (0.3, 0.1)])),
-              FakePiece(tie(2), "curve", LineString([(0.25, -0.05), (0.35, -0.05)])))
+    pieces = (
+        FakePiece(tie(0), "curve", LineString([(0.2, 0.3), (0.4, 0.3)])),
+        FakePiece(tie(1), "curve", LineString([(0.3, 0.0), (0.3, 0.1)])),
+        FakePiece(tie(2), "curve", LineString([(0.25, -0.05), (0.35, -0.05)])),
+    )
     w = Window((0.02, 0.98), (-1.0, 1.0))
-    red = reduced_search(_AnalyticEvaluator(), w, FakeAtlas(pieces, ()), C, tolerance=1e-6, upper=1.0,
-                         settings=ReducedSettings(polish=False))
+    red = reduced_search(
+        _AnalyticEvaluator(),
+        w,
+        FakeAtlas(pieces, ()),
+        C,
+        tolerance=1e-6,
+        upper=1.0,
+        settings=ReducedSettings(polish=False),
+    )
     pr = red.pruned
     assert red.slope[0].value == pytest.approx(0.1)  # max of h on a = 1/2
     assert red.special[0].value == pytest.approx(0.3)
@@ -430,15 +495,26 @@ def test_candidate_floor_skips_crossings_of_low_ties():
     # Vertical contours give constant costs: tie A costs 0.5, tie B brackets [0.2, 0.5], ties C, D
     # cost 0.2. Crossings: A-B (share (f:a, g:a)), B-C (share (f:c, g:c)), C-D (share (f:c, g:c)).
     # With floor 0.3 only C-D, two ties that never exceed the floor, is not computed.
-    C = {c.id: c for c in (Contour("f:a", "vertical", [0.0, -100.0]), Contour("g:a", "vertical", [0.5, -100.0]),
-                           Contour("f:b", "vertical", [1.0, -100.0]), Contour("g:b", "vertical", [1.5, -100.0]),
-                           Contour("f:c", "vertical", [0.0, -100.0]), Contour("g:c", "vertical", [0.2, -100.0]),
-                           Contour("f:d", "vertical", [1.0, -100.0]), Contour("g:d", "vertical", [1.2, -100.0]))}
+    C = {
+        c.id: c
+        for c in (
+            Contour("f:a", "vertical", [0.0, -100.0]),
+            Contour("g:a", "vertical", [0.5, -100.0]),
+            Contour("f:b", "vertical", [1.0, -100.0]),
+            Contour("g:b", "vertical", [1.5, -100.0]),
+            Contour("f:c", "vertical", [0.0, -100.0]),
+            Contour("g:c", "vertical", [0.2, -100.0]),
+            Contour("f:d", "vertical", [1.0, -100.0]),
+            Contour("g:d", "vertical", [1.2, -100.0]),
+        )
+    }
     hv, vv = LineString([(0.2, 0.0), (0.4, 0.0)]), LineString([(0.3, -0.1), (0.3, 0.1)])
-    pieces = (FakePiece(FakeTie((("f:a", "g:a"), ("f:b", "g:b")), "equal"), "curve", hv),  # A
-              FakePiece(FakeTie((("f:a", "g:a"), ("f:c", "g:c")), "equal"), "curve", vv),  # B
-              FakePiece(FakeTie((("f:c", "g:c"), ("f:d", "g:d")), "equal"), "curve", hv.parallel_offset(0.05)),  # C
-              FakePiece(FakeTie((("f:c", "g:c"), ("g:d", "f:d")), "equal"), "curve", vv.parallel_offset(0.05)))  # D
+    pieces = (
+        FakePiece(FakeTie((("f:a", "g:a"), ("f:b", "g:b")), "equal"), "curve", hv),  # A
+        FakePiece(FakeTie((("f:a", "g:a"), ("f:c", "g:c")), "equal"), "curve", vv),  # B
+        FakePiece(FakeTie((("f:c", "g:c"), ("f:d", "g:d")), "equal"), "curve", hv.parallel_offset(0.05)),  # C
+        FakePiece(FakeTie((("f:c", "g:c"), ("g:d", "f:d")), "equal"), "curve", vv.parallel_offset(0.05)),
+    )  # D
     w = Window((0.02, 0.98), (-1.0, 1.0))
     full = special_candidates(FakeAtlas(pieces, ()), C, w)
     cut = special_candidates(FakeAtlas(pieces, ()), C, w, floor=0.3, tolerance=1e-6)
@@ -513,7 +589,9 @@ def test_slope_one_sup_norm_bound_closes_the_flat_shift():
     sf, sg = shapes(V, T, f, f + c)
     w = default_window(sf.value_bounds(), sg.value_bounds())
     assert slope_one_sup_norm_max(f, f + c, *w.b) == pytest.approx(c, abs=1e-12)
-    out = slope_one_search(LineEvaluator(sf, sg, (0,)), w, [[0]], tolerance=1e-9, samples=9, values=(f, f + c))
+    out = slope_one_search(
+        LineEvaluator(sf, sg, (0,)), w, [[0]], tolerance=1e-9, samples=9, values=(f, f + c)
+    )
     assert out.certified is True and out.lines == 9
     assert out.best[0] == pytest.approx(c, abs=1e-12) and out.bound[0] == pytest.approx(c, abs=1e-12)
     cone = slope_one_search(LineEvaluator(sf, sg, (0,)), w, [[0]], tolerance=1e-9, samples=9, max_lines=30)
@@ -530,8 +608,9 @@ def test_star_values_is_the_defining_formula():
     rng = np.random.default_rng(5)
     v = rng.normal(size=(50, 2))
     a, b = rng.uniform(0.01, 0.99, 30), rng.normal(size=30)
-    direct = np.minimum(a, 1 - a)[:, None] * np.maximum((v[None, :, 0] - b[:, None]) / a[:, None],
-                                                        (v[None, :, 1] + b[:, None]) / (1 - a[:, None]))
+    direct = np.minimum(a, 1 - a)[:, None] * np.maximum(
+        (v[None, :, 0] - b[:, None]) / a[:, None], (v[None, :, 1] + b[:, None]) / (1 - a[:, None])
+    )
     np.testing.assert_allclose(star_values(v[None], a[:, None], b[:, None]), direct, rtol=1e-12, atol=1e-12)
     # limit lines of math.md section 2: a = 0 gives max(f1 - b, 0), a = 1 gives max(0, f2 + b)
     np.testing.assert_array_equal(star_values(v, 0.0, 0.3), np.maximum(v[:, 0] - 0.3, 0.0))

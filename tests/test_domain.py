@@ -36,7 +36,9 @@ def test_poles_between_vertices_are_found(ellipsoid_mesh, text):
     assert 0.9 < r <= 1.0 + 1e-12
 
 
-@pytest.mark.parametrize("text", ["x", "1/(x*x + 1)", "log(x + 2)", "sqrt(x + 1.5)", "tan(0.5*x)", "y - x*z/3"])
+@pytest.mark.parametrize(
+    "text", ["x", "1/(x*x + 1)", "log(x + 2)", "sqrt(x + 1.5)", "tan(0.5*x)", "y - x*z/3"]
+)
 def test_maps_finite_on_the_surface_pass(ellipsoid_mesh, text):
     V, E = ellipsoid_mesh
     assert domain_break(compile_expr(text), V, E) is None

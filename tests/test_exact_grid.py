@@ -95,8 +95,11 @@ def test_swap_symmetry():
     # math.md section 6: the grid of (f2, f1) is the swapped grid of (f1, f2)
     g = ellipsoid_linear_grid(RADII, L, C)
     s = ellipsoid_linear_grid(RADII, L[::-1], C[::-1]).swapped()
-    for a, b in zip(sorted(g.by_kind("proper"), key=lambda c: c.points[0, 0]),
-                    sorted(s.by_kind("proper"), key=lambda c: c.points[0, 0]), strict=True):
+    for a, b in zip(
+        sorted(g.by_kind("proper"), key=lambda c: c.points[0, 0]),
+        sorted(s.by_kind("proper"), key=lambda c: c.points[0, 0]),
+        strict=True,
+    ):
         assert np.allclose(a.points[[0, -1]], b.points[[0, -1]], atol=1e-12)
     for kind in ("vertical", "horizontal"):
         A = sorted(tuple(c.start) for c in g.by_kind(kind))
@@ -161,7 +164,7 @@ def _to_polyline(X: np.ndarray, poly: np.ndarray) -> np.ndarray:
     ab = b - a
     best = np.full(len(X), np.inf)
     for k in range(0, len(a), 64):
-        aa, bb = a[k:k + 64], ab[k:k + 64]
+        aa, bb = a[k : k + 64], ab[k : k + 64]
         w = X[:, None, :] - aa[None]
         t = np.clip(np.einsum("nki,ki->nk", w, bb) / np.maximum((bb**2).sum(1), 1e-300), 0, 1)
         d = np.linalg.norm(w - t[..., None] * bb[None], axis=2).min(axis=1)

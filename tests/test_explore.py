@@ -28,9 +28,20 @@ from specmap.explore import build_explorer
 from specmap.explore.data import explorer_data
 from specmap.report.load import load_results
 
-FLAGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
-         "--disable-background-networking", "--disable-component-update", "--disable-sync",
-         "--remote-debugging-pipe", "--window-size=1400,1000", "--hide-scrollbars", "--mute-audio"]
+FLAGS = [
+    "--headless",
+    "--no-sandbox",
+    "--disable-gpu",
+    "--disable-quic",
+    "--no-first-run",
+    "--disable-background-networking",
+    "--disable-component-update",
+    "--disable-sync",
+    "--remote-debugging-pipe",
+    "--window-size=1400,1000",
+    "--hide-scrollbars",
+    "--mute-audio",
+]
 
 
 def chromium() -> str | None:
@@ -56,9 +67,13 @@ class Browser:
             os.dup2(to_r, 3)
             os.dup2(from_w, 4)
 
-        self.proc = subprocess.Popen([exe, *FLAGS, f"--user-data-dir={profile}", "about:blank"],
-                                     preexec_fn=remap, pass_fds=(3, 4), stdout=subprocess.DEVNULL,
-                                     stderr=subprocess.DEVNULL)
+        self.proc = subprocess.Popen(
+            [exe, *FLAGS, f"--user-data-dir={profile}", "about:blank"],
+            preexec_fn=remap,
+            pass_fds=(3, 4),
+            stdout=subprocess.DEVNULL,
+            stderr=subprocess.DEVNULL,
+        )
         os.close(to_r)
         os.close(from_w)
         os.set_blocking(self._from_r, False)
@@ -85,8 +100,14 @@ class Browser:
         msg, self._buf = self._buf.split(b"\0", 1)
         return json.loads(msg)
 
-    def send(self, method: str, params: dict[str, Any] | None = None, *, timeout: float = 30.0,
-             browser: bool = False) -> dict[str, Any]:
+    def send(
+        self,
+        method: str,
+        params: dict[str, Any] | None = None,
+        *,
+        timeout: float = 30.0,
+        browser: bool = False,
+    ) -> dict[str, Any]:
         """Send a command (to the page's session unless ``browser``) and return its result."""
         self._id += 1
         msg: dict[str, Any] = {"id": self._id, "method": method, "params": params or {}}
@@ -107,8 +128,9 @@ class Browser:
 
     def open_page(self) -> None:
         target = self.send("Target.createTarget", {"url": "about:blank"}, browser=True)["targetId"]
-        self.session = self.send("Target.attachToTarget", {"targetId": target, "flatten": True},
-                                 browser=True)["sessionId"]
+        self.session = self.send(
+            "Target.attachToTarget", {"targetId": target, "flatten": True}, browser=True
+        )["sessionId"]
         for domain in ("Runtime", "Log", "Page"):
             self.send(f"{domain}.enable")
 
@@ -121,8 +143,9 @@ class Browser:
                 self.events.append(msg)
 
     def evaluate(self, expression: str) -> Any:
-        res = self.send("Runtime.evaluate", {"expression": expression, "returnByValue": True,
-                                             "awaitPromise": True})
+        res = self.send(
+            "Runtime.evaluate", {"expression": expression, "returnByValue": True, "awaitPromise": True}
+        )
         if "exceptionDetails" in res:
             raise RuntimeError(f"page script failed: {res['exceptionDetails']}")
         return res.get("result", {}).get("value")
@@ -169,41 +192,98 @@ class Browser:
 # -- the result folder ------------------------------------------------------------------------
 
 FAR = -100.0  # half-lines start far away, so every line of the window meets all of them
-TIES = [{"pairs": [["f:v0", "f:v1"], ["g:h0", "g:h1"]], "condition": "equal"},
-        {"pairs": [["f:v0", "f:v1"], ["g:h0", "g:h1"]], "condition": "half"},
-        {"pairs": [["f:v0", "g:v0"], ["f:v1", "g:v1"]], "condition": "equal"}]
+TIES = [
+    {"pairs": [["f:v0", "f:v1"], ["g:h0", "g:h1"]], "condition": "equal"},
+    {"pairs": [["f:v0", "f:v1"], ["g:h0", "g:h1"]], "condition": "half"},
+    {"pairs": [["f:v0", "g:v0"], ["f:v1", "g:v1"]], "condition": "equal"},
+]
 PATCH = [[0.6, -0.5], [0.9, -0.5], [0.9, 0.5], [0.6, 0.5], [0.6, -0.5]]
 
 
 def make_folder(root: Path) -> Path:
     root.mkdir(parents=True)
     window = {"a": [0.02, 0.98], "b": [-1.0, 1.0]}
-    grid_f = {"format": "specmap-grid/1", "route": "exact", "tolerance": 1e-9, "contours": [
-        {"id": "f:v0", "kind": "vertical", "start": [0.0, FAR]},
-        {"id": "f:v1", "kind": "vertical", "start": [1.0, FAR]},
-        {"id": "f:p0", "kind": "proper", "points": [[-1.0, 1.0], [-0.5, 0.2], [0.0, -1.0]]}]}
-    grid_g = {"format": "specmap-grid/1", "route": "exact", "tolerance": 1e-9, "contours": [
-        {"id": "g:h0", "kind": "horizontal", "start": [FAR, 0.0]},
-        {"id": "g:h1", "kind": "horizontal", "start": [FAR, 1.0]},
-        {"id": "g:v0", "kind": "vertical", "start": [0.3, FAR]},
-        {"id": "g:v1", "kind": "vertical", "start": [1.3, FAR]}]}
+    grid_f = {
+        "format": "specmap-grid/1",
+        "route": "exact",
+        "tolerance": 1e-9,
+        "contours": [
+            {"id": "f:v0", "kind": "vertical", "start": [0.0, FAR]},
+            {"id": "f:v1", "kind": "vertical", "start": [1.0, FAR]},
+            {"id": "f:p0", "kind": "proper", "points": [[-1.0, 1.0], [-0.5, 0.2], [0.0, -1.0]]},
+        ],
+    }
+    grid_g = {
+        "format": "specmap-grid/1",
+        "route": "exact",
+        "tolerance": 1e-9,
+        "contours": [
+            {"id": "g:h0", "kind": "horizontal", "start": [FAR, 0.0]},
+            {"id": "g:h1", "kind": "horizontal", "start": [FAR, 1.0]},
+            {"id": "g:v0", "kind": "vertical", "start": [0.3, FAR]},
+            {"id": "g:v1", "kind": "vertical", "start": [1.3, FAR]},
+        ],
+    }
     b = np.linspace(-0.95, 0.95, 40).tolist()
-    geo = {"type": "FeatureCollection", "features": [{"type": "Feature", "id": "c0", "properties": {"id": "c0",
-           "kind": "patch"}, "geometry": {"type": "GeometryCollection", "geometries": [
-               {"type": "Polygon", "coordinates": [PATCH]},
-               {"type": "MultiLineString", "coordinates": [[[1 / 3, x] for x in b], [[0.5, x] for x in b]]}]}}]}
-    special = {"window": window, "tolerance": 1e-9, "pairs": "all", "method": "sweep", "resolution": [41, 41],
-               "components": [{"id": "c0", "kind": "patch", "area": 0.3, "length": 3.8,
-                               "bbox": [1 / 3, -0.95, 0.9, 0.95], "ties": TIES}],
-               "total_area": 0.3, "area_fraction": 0.3 / 1.92, "counts": {"curve": 0, "patch": 1, "point": 0}}
+    geo = {
+        "type": "FeatureCollection",
+        "features": [
+            {
+                "type": "Feature",
+                "id": "c0",
+                "properties": {"id": "c0", "kind": "patch"},
+                "geometry": {
+                    "type": "GeometryCollection",
+                    "geometries": [
+                        {"type": "Polygon", "coordinates": [PATCH]},
+                        {
+                            "type": "MultiLineString",
+                            "coordinates": [[[1 / 3, x] for x in b], [[0.5, x] for x in b]],
+                        },
+                    ],
+                },
+            }
+        ],
+    }
+    special = {
+        "window": window,
+        "tolerance": 1e-9,
+        "pairs": "all",
+        "method": "sweep",
+        "resolution": [41, 41],
+        "components": [
+            {
+                "id": "c0",
+                "kind": "patch",
+                "area": 0.3,
+                "length": 3.8,
+                "bbox": [1 / 3, -0.95, 0.9, 0.95],
+                "ties": TIES,
+            }
+        ],
+        "total_area": 0.3,
+        "area_fraction": 0.3 / 1.92,
+        "counts": {"curve": 0, "patch": 1, "point": 0},
+    }
     a_s, b_s = np.linspace(0.02, 0.98, 25), np.linspace(-1.0, 1.0, 21)
     h = (a_s[None, :] + b_s[:, None]).tolist()  # h = a + b: bilinear interpolation is exact on it
-    distance = {"value": 1.98, "at": [0.98, 1.0], "reached_on": "special", "tolerance": 1e-3,
-                "by_degree": {"0": {"value": 1.98, "at": [0.98, 1.0]}},
-                "landscape": {"a": a_s.tolist(), "b": b_s.tolist(), "h": h, "by_degree": {"0": h}}}
+    distance = {
+        "value": 1.98,
+        "at": [0.98, 1.0],
+        "reached_on": "special",
+        "tolerance": 1e-3,
+        "by_degree": {"0": {"value": 1.98, "at": [0.98, 1.0]}},
+        "landscape": {"a": a_s.tolist(), "b": b_s.tolist(), "h": h, "by_degree": {"0": h}},
+    }
     study = {"name": "explore-fixture", "window": window, "commands": []}
-    for name, obj in (("study.json", study), ("grid_f.json", grid_f), ("grid_g.json", grid_g),
-                      ("special.json", special), ("special.geojson", geo), ("distance.json", distance)):
+    for name, obj in (
+        ("study.json", study),
+        ("grid_f.json", grid_f),
+        ("grid_g.json", grid_g),
+        ("special.json", special),
+        ("special.geojson", geo),
+        ("distance.json", distance),
+    ):
         (root / name).write_text(json.dumps(obj))
     return root
 
@@ -227,8 +307,13 @@ def test_page_is_self_contained(tmp_path: Path) -> None:
 def test_explore_cli_needs_the_special_set(tmp_path: Path) -> None:
     root = make_folder(tmp_path / "r")
     (root / "special.json").unlink()
-    proc = subprocess.run([sys.executable, "-m", "specmap", "explore", str(root)], capture_output=True, text=True,
-                          timeout=120, env={**os.environ, "PYTHONPATH": str(Path(__file__).resolve().parents[1])})
+    proc = subprocess.run(
+        [sys.executable, "-m", "specmap", "explore", str(root)],
+        capture_output=True,
+        text=True,
+        timeout=120,
+        env={**os.environ, "PYTHONPATH": str(Path(__file__).resolve().parents[1])},
+    )
     assert proc.returncode == 2 and proc.stderr.startswith("specmap: error:") and "specmap map" in proc.stderr
     assert "Traceback" not in proc.stderr
 
@@ -240,8 +325,10 @@ def _pointer(br: Browser, a: float, b: float, kind: str = "mouseMoved") -> None:
     p = json.loads(br.evaluate(f"JSON.stringify(window.explorer.toClient({a}, {b}))"))
     if kind == "click":
         for t in ("mousePressed", "mouseReleased"):
-            br.send("Input.dispatchMouseEvent", {"type": t, "x": p["x"], "y": p["y"], "button": "left",
-                                                 "clickCount": 1})
+            br.send(
+                "Input.dispatchMouseEvent",
+                {"type": t, "x": p["x"], "y": p["y"], "button": "left", "clickCount": 1},
+            )
     else:
         br.send("Input.dispatchMouseEvent", {"type": "mouseMoved", "x": p["x"], "y": p["y"]})
 
@@ -250,8 +337,10 @@ def _text(br: Browser, element: str) -> str:
     return br.evaluate(f"document.getElementById('{element}').innerText") or ""
 
 
-@pytest.mark.skipif(shutil.which("chromium") is None and shutil.which("chromium-browser") is None,
-                    reason="chromium is not installed (apt-get install -y chromium; .ci/run installs it)")
+@pytest.mark.skipif(
+    shutil.which("chromium") is None and shutil.which("chromium-browser") is None,
+    reason="chromium is not installed (apt-get install -y chromium; .ci/run installs it)",
+)
 def test_explorer_in_headless_chromium(tmp_path: Path) -> None:
     page = build_explorer(make_folder(tmp_path / "r"))
     br = Browser(tmp_path / "profile")
@@ -277,8 +366,11 @@ def test_explorer_in_headless_chromium(tmp_path: Path) -> None:
         m = (1 - a) / a  # r(a, b): y = (1-a)/a (x - b) - b, math.md section 2
         assert f"y = {m:.3g} x - {m * b + b:.3g}" in _text(br, "here-line")
         # the line is drawn over the grids and the tie's four contours are highlighted
-        drawn = json.loads(br.evaluate("JSON.stringify(document.getElementById('grids').data"
-                                       ".slice(-3).map(t => (t.x || []).length))"))
+        drawn = json.loads(
+            br.evaluate(
+                "JSON.stringify(document.getElementById('grids').data.slice(-3).map(t => (t.x || []).length))"
+            )
+        )
         assert drawn[0] > 0 and drawn[1] == 2 and drawn[2] >= 4
         # inside the patch the tie that holds identically is listed
         _pointer(br, 0.75, 0.0)

@@ -17,7 +17,10 @@ from hypothesis import strategies as st
 from specmap.io import write_json, write_json_streamed
 
 json_values = st.recursive(
-    st.none() | st.booleans() | st.integers(-10**6, 10**6) | st.floats(allow_nan=False, allow_infinity=False)
+    st.none()
+    | st.booleans()
+    | st.integers(-(10**6), 10**6)
+    | st.floats(allow_nan=False, allow_infinity=False)
     | st.text(max_size=5),
     lambda kids: st.lists(kids, max_size=4) | st.dictionaries(st.text(max_size=4), kids, max_size=4),
     max_leaves=20,
@@ -25,8 +28,11 @@ json_values = st.recursive(
 
 
 @settings(max_examples=150, deadline=None)
-@given(head=st.dictionaries(st.text(max_size=4), json_values, max_size=4), items=st.lists(json_values, max_size=5),
-       at=st.integers(0, 4))
+@given(
+    head=st.dictionaries(st.text(max_size=4), json_values, max_size=4),
+    items=st.lists(json_values, max_size=5),
+    at=st.integers(0, 4),
+)
 def test_streamed_bytes_equal_whole_object(tmp_path_factory, head, items, at):
     d = tmp_path_factory.mktemp("s")
     keys = list(head)

@@ -51,7 +51,9 @@ def test_flat_evaluation_matches_array_evaluation(seed):
 def test_half_line_parameters_closed_form():
     # math.md section 5: on r(a, b) the vertical half-line x = x0 has abscissa x0,
     # the horizontal one y = y0 has ordinate y0 (point = (a s + b, (1 - a) s - b))
-    flat = FlatContours.of([Contour("f:v", "vertical", [0.7, -5.0]), Contour("f:h", "horizontal", [-5.0, 0.4])])
+    flat = FlatContours.of(
+        [Contour("f:v", "vertical", [0.7, -5.0]), Contour("f:h", "horizontal", [-5.0, 0.4])]
+    )
     for a, b in [(0.3, 0.1), (0.5, -0.2), (0.8, 0.4)]:
         s, met = ext_param(*flat.args, 0, a, b)
         assert met and a * s + b == pytest.approx(0.7, abs=1e-15)
@@ -62,20 +64,24 @@ def test_half_line_parameters_closed_form():
 def test_refine_finds_the_closed_form_root():
     # equal tie of verticals (0, 1) and horizontals (0, 1): for a <= 1/2 the abscissa
     # differences are 1 and a/(1-a); they tie at a = 1/2 (math.md section 5, exact)
-    cs = [Contour("f:v0", "vertical", [0.0, -9.0]), Contour("f:v1", "vertical", [1.0, -9.0]),
-          Contour("g:h0", "horizontal", [-9.0, 0.0]), Contour("g:h1", "horizontal", [-9.0, 1.0])]
+    cs = [
+        Contour("f:v0", "vertical", [0.0, -9.0]),
+        Contour("f:v1", "vertical", [1.0, -9.0]),
+        Contour("g:h0", "horizontal", [-9.0, 0.0]),
+        Contour("g:h1", "horizontal", [-9.0, 1.0]),
+    ]
     flat = FlatContours.of(cs)
     slots = np.array([[0, 1, 2, 3]] * 3, dtype=np.int64)
     a0 = np.array([0.3, 0.41, 0.2])
     a1 = np.array([0.6, 0.52, 0.7])
     b = np.array([0.0, 0.3, -0.4])
-    out = refine_edges(*flat.args, slots, np.ones(3),
-                       a0, b, a1, b, 0.0, 1e-13)
+    out = refine_edges(*flat.args, slots, np.ones(3), a0, b, a1, b, 0.0, 1e-13)
     np.testing.assert_allclose(out[:, 0], 0.5, atol=1e-12)
     np.testing.assert_array_equal(out[:, 1], b)
     # half tie (factor 2): 1 = 2 a/(1-a) at a = 1/3
-    out = refine_edges(*flat.args, slots, np.full(3, 2.0),
-                       np.full(3, 0.2), b, np.full(3, 0.45), b, 0.0, 1e-13)
+    out = refine_edges(
+        *flat.args, slots, np.full(3, 2.0), np.full(3, 0.2), b, np.full(3, 0.45), b, 0.0, 1e-13
+    )
     np.testing.assert_allclose(out[:, 0], 1 / 3, atol=1e-12)
 
 
@@ -105,12 +111,13 @@ def test_lattice_labels_join_exactly_the_crossing_chords():
     # straight chords of one convex cell cross iff their end points alternate on the
     # perimeter (closed form); the components must be those of the all-pairs graph
     import networkx as nx
+
     rng = np.random.default_rng(5)
     av = np.array([0.0, 1.0])
     bv = np.array([0.0, 1.0])
     for _ in range(40):
         k = int(rng.integers(2, 9))
-        ends = (rng.permutation(4 * k)[:2 * k].reshape(k, 2) + 0.5) / k
+        ends = (rng.permutation(4 * k)[: 2 * k].reshape(k, 2) + 0.5) / k
         p = np.array([_on_perimeter(t) for t in ends[:, 0]])
         q = np.array([_on_perimeter(t) for t in ends[:, 1]])
         keys = np.arange(2 * k, dtype=np.int64)  # no shared vertices
@@ -167,8 +174,9 @@ def test_lattice_labels_join_shared_vertices():
     q = np.array([[0.5, 0.5], [0.9, 0.1]])
     ends = np.vstack([p, q])
     keys = np.round(ends / 1e-9).astype(np.int64) @ np.array([10**10, 1])
-    label, _, chord = lattice_labels(p, q, np.arange(2), 2, np.array([0.0, 1.0]), np.array([0.0, 1.0]), 1e-9,
-                                     keys, np.argsort(keys))
+    label, _, chord = lattice_labels(
+        p, q, np.arange(2), 2, np.array([0.0, 1.0]), np.array([0.0, 1.0]), 1e-9, keys, np.argsort(keys)
+    )
     assert not chord.any()
     assert label.tolist() == [0, 0]
 

@@ -15,11 +15,9 @@ from specmap.shapes.meshes import clean_mesh, euler_characteristic, read_mesh, w
 
 
 def octahedron(shift=0.0):
-    V = np.array([[1, 0, 0], [-1, 0, 0], [0, 1, 0], [0, -1, 0], [0, 0, 1], [0, 0, -1]],
-                 dtype=float)
+    V = np.array([[1, 0, 0], [-1, 0, 0], [0, 1, 0], [0, -1, 0], [0, 0, 1], [0, 0, -1]], dtype=float)
     V[:, 0] += shift
-    T = np.array([[0, 2, 4], [2, 1, 4], [1, 3, 4], [3, 0, 4],
-                  [2, 0, 5], [1, 2, 5], [3, 1, 5], [0, 3, 5]])
+    T = np.array([[0, 2, 4], [2, 1, 4], [1, 3, 4], [3, 0, 4], [2, 0, 5], [1, 2, 5], [3, 1, 5], [0, 3, 5]])
     return V, T
 
 
@@ -88,8 +86,13 @@ def test_collapsed_triangle_after_merge_dropped():
     V2 = np.vstack([V, V[0:1]])
     T2 = np.vstack([T, [[0, 6, 2]]])
     Vc, Tc, _, counts = clean_mesh(V2, T2)
-    assert counts == {"loose_vertices": 0, "duplicate_vertices": 1, "collapsed_triangles": 1,
-                      "zero_area_triangles": 0, "components": 1}
+    assert counts == {
+        "loose_vertices": 0,
+        "duplicate_vertices": 1,
+        "collapsed_triangles": 1,
+        "zero_area_triangles": 0,
+        "components": 1,
+    }
     assert len(Vc) == 6 and len(Tc) == 8
 
 
@@ -109,8 +112,7 @@ def test_open_and_nonmanifold_still_refused(tmp_path):
     V1, T1 = octahedron()
     # two octahedra glued along edge 0-2 (shared vertices): that edge is on 4 triangles
     V2 = np.vstack([V1, [[0, 0, 3.0], [0, 0, -3.0], [3.0, 3, 0], [-3.0, 3, 0]]])
-    T2 = np.array([[0, 2, 6], [2, 9, 6], [9, 8, 6], [8, 0, 6],
-                   [2, 0, 7], [9, 2, 7], [8, 9, 7], [0, 8, 7]])
+    T2 = np.array([[0, 2, 6], [2, 9, 6], [9, 8, 6], [8, 0, 6], [2, 0, 7], [9, 2, 7], [8, 9, 7], [0, 8, 7]])
     path = tmp_path / "nm.off"
     write_mesh(path, V2, np.vstack([T1, T2]))
     with pytest.raises(MeshError, match="not a 2-manifold"):
@@ -130,10 +132,16 @@ def test_hygiene_counts_reach_the_grid_json(tmp_path):
         values = np.c_[V2[:, 0] + 0.1 * V2[:, 2], V2[:, 1] - 0.2 * V2[:, 2] + (name == "b") * 0.3 * V2[:, 0]]
         write_mesh(tmp_path / f"{name}.ply", V2, T, values)
     study = tmp_path / "s.toml"
-    study.write_text('[study]\nname = "h"\nseed = 1\n[f]\nmesh = "a.ply"\nfields = ["f1", "f2"]\n'
-                     '[g]\nmesh = "b.ply"\nfields = ["f1", "f2"]\n')
-    proc = subprocess.run([sys.executable, "-m", "specmap", "--quiet", "grid", str(study), "--out",
-                           str(tmp_path / "o")], capture_output=True, text=True, timeout=300)
+    study.write_text(
+        '[study]\nname = "h"\nseed = 1\n[f]\nmesh = "a.ply"\nfields = ["f1", "f2"]\n'
+        '[g]\nmesh = "b.ply"\nfields = ["f1", "f2"]\n'
+    )
+    proc = subprocess.run(
+        [sys.executable, "-m", "specmap", "--quiet", "grid", str(study), "--out", str(tmp_path / "o")],
+        capture_output=True,
+        text=True,
+        timeout=300,
+    )
     assert proc.returncode == 0, proc.stderr
     meta = json.loads((tmp_path / "o" / "grid_f.json").read_text())["meta"]
     assert meta["mesh_hygiene"]["loose_vertices"] == 2

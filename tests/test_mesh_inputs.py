@@ -87,9 +87,11 @@ def test_obj_index_zero_or_before_first_vertex(tmp_path: Path) -> None:
 def _binary_ply(V: np.ndarray, T: np.ndarray, n_vertex: int | None = None) -> bytes:
     """A binary little-endian PLY packed in the test with struct (PLY spec, Turk 1994)."""
     n = len(V) if n_vertex is None else n_vertex
-    head = (f"ply\nformat binary_little_endian 1.0\nelement vertex {n}\nproperty float x\n"
-            f"property float y\nproperty float z\nelement face {len(T)}\n"
-            "property list uchar int vertex_indices\nend_header\n").encode()
+    head = (
+        f"ply\nformat binary_little_endian 1.0\nelement vertex {n}\nproperty float x\n"
+        f"property float y\nproperty float z\nelement face {len(T)}\n"
+        "property list uchar int vertex_indices\nend_header\n"
+    ).encode()
     body = b"".join(struct.pack("<3f", *v) for v in V)
     body += b"".join(struct.pack("<B3i", 3, *map(int, t)) for t in T)
     return head + body
@@ -153,8 +155,10 @@ def test_garbled_obj_names_obj(tmp_path: Path) -> None:
 
 
 # -- study.name on one line ----------------------------------------------------------------------
-GOOD = ('[f]\nsurface = "ellipsoid"\nradii = [2, 1, 1]\nmap = ["x", "y"]\nresolution = 400\n'
-        '[g]\nsurface = "ellipsoid"\nradii = [2, 1, 1]\nmap = ["x", "y + z"]\nresolution = 400\n')
+GOOD = (
+    '[f]\nsurface = "ellipsoid"\nradii = [2, 1, 1]\nmap = ["x", "y"]\nresolution = 400\n'
+    '[g]\nsurface = "ellipsoid"\nradii = [2, 1, 1]\nmap = ["x", "y + z"]\nresolution = 400\n'
+)
 
 
 @pytest.mark.parametrize("escaped", ["a\\nb", "a\\tb", "a\\u0007b", "tail\\r"])
@@ -166,8 +170,13 @@ def test_study_name_with_control_characters_refused(tmp_path: Path, escaped: str
     with pytest.raises(StudyError, match="study.name") as info:
         load_study(p)
     assert "\n" not in str(info.value) and "non-printing" in str(info.value)
-    proc = subprocess.run([sys.executable, "-m", "specmap", "--quiet", "grid", str(p)], cwd=tmp_path,
-                          capture_output=True, text=True, timeout=120)
+    proc = subprocess.run(
+        [sys.executable, "-m", "specmap", "--quiet", "grid", str(p)],
+        cwd=tmp_path,
+        capture_output=True,
+        text=True,
+        timeout=120,
+    )
     lines = [ln for ln in proc.stderr.splitlines() if ln.strip()]
     assert proc.returncode == 2 and len(lines) == 1 and "study.name" in lines[0], proc.stderr
     assert not (tmp_path / "results").exists()

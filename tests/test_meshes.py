@@ -114,8 +114,11 @@ def test_quads_rejected(tmp_path):
     err = _raises(p)
     assert "not triangles" in err.problem and "triangulate" in err.fix
     q = tmp_path / "cube.off"  # meshio's OFF reader refuses polygons itself
-    q.write_text("OFF\n8 6 0\n" + "".join(f"{x} {y} {z}\n" for x, y, z in cube)
-                 + "".join("4 " + " ".join(map(str, f)) + "\n" for f in quads))
+    q.write_text(
+        "OFF\n8 6 0\n"
+        + "".join(f"{x} {y} {z}\n" for x, y, z in cube)
+        + "".join("4 " + " ".join(map(str, f)) + "\n" for f in quads)
+    )
     assert "triangulate" in _raises(q).fix
 
 
@@ -158,7 +161,7 @@ def test_orientation_repair():
     # and the total signed volume (divergence theorem) is the torus volume 2 pi^2 R r^2 up to sign
     a, b, c = (V[To[:, k]] for k in range(3))
     vol = np.einsum("ij,ij->i", a, np.cross(b, c)).sum() / 6
-    assert abs(abs(vol) - 2 * np.pi ** 2 * 2.0) < 0.25 * 2 * np.pi ** 2 * 2.0
+    assert abs(abs(vol) - 2 * np.pi**2 * 2.0) < 0.25 * 2 * np.pi**2 * 2.0
 
 
 def test_edge_table_matches_brute_force():

@@ -42,15 +42,29 @@ def test_no_curve_gives_none():
 
 
 def _record(i: int, distance: dict | None) -> dict:
-    return {"run": i, "seed": i, "model": "grid", "size": 0.01, "applied": [0.01, 0.01], "total_area": 0.0,
-            "counts": {"curve": 1, "patch": 0, "point": 0}, "has_patch": False, "hausdorff": 0.01,
-            "curve_movement": 0.01 * (i + 1), "patch_change": 0.0, "distance": distance,
-            "stability_ok": None if distance is None else True}
+    return {
+        "run": i,
+        "seed": i,
+        "model": "grid",
+        "size": 0.01,
+        "applied": [0.01, 0.01],
+        "total_area": 0.0,
+        "counts": {"curve": 1, "patch": 0, "point": 0},
+        "has_patch": False,
+        "hausdorff": 0.01,
+        "curve_movement": 0.01 * (i + 1),
+        "patch_change": 0.0,
+        "distance": distance,
+        "stability_ok": None if distance is None else True,
+    }
 
 
 def test_summary_says_not_tracked_when_distance_is_off():
     base = {"total_area": 0.0, "counts": {"curve": 1, "patch": 0, "point": 0}}
-    s = summarize_runs([_record(i, None) for i in range(3)], base=base, size=0.01, model="grid",
-                       window_area=1.0)
+    s = summarize_runs(
+        [_record(i, None) for i in range(3)], base=base, size=0.01, model="grid", window_area=1.0
+    )
     assert s["stability_violations"] is None
-    assert s["curve_movement"]["mean"] == pytest.approx(0.02) and s["curve_movement"]["max"] == pytest.approx(0.03)
+    assert s["curve_movement"]["mean"] == pytest.approx(0.02) and s["curve_movement"]["max"] == pytest.approx(
+        0.03
+    )

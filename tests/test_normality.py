@@ -26,13 +26,16 @@ def mesh(request):
     return make_surface(kind, radii).mesh(600)
 
 
-@pytest.mark.parametrize("texts, needle", [
-    (["1.5", "y"], "f1 is constant"),
-    (["x", "x*x - x*x"], "f2 is constant"),
-    (["x*y", "x*y"], "parallel everywhere"),
-    (["x", "x*x*x + 2*x"], "parallel everywhere"),
-    (["exp(z)", "sin(z)"], "parallel everywhere"),
-])
+@pytest.mark.parametrize(
+    "texts, needle",
+    [
+        (["1.5", "y"], "f1 is constant"),
+        (["x", "x*x - x*x"], "f2 is constant"),
+        (["x*y", "x*y"], "parallel everywhere"),
+        (["x", "x*x*x + 2*x"], "parallel everywhere"),
+        (["exp(z)", "sin(z)"], "parallel everywhere"),
+    ],
+)
 def test_degenerate_maps_are_found(mesh, texts, needle):
     V, T = mesh
     fmap = compile_map(texts)
@@ -60,7 +63,8 @@ def test_cli_refuses_a_dependent_pair(tmp_path: Path):
     (tmp_path / "d.toml").write_text(
         '[study]\nname = "dep"\n'
         '[f]\nsurface = "torus"\nradii = [1.0, 0.4]\nresolution = 400\nmap = ["x*y", "x*y"]\n'
-        '[g]\nsurface = "torus"\nradii = [1.0, 0.4]\nresolution = 400\nmap = ["x", "y"]\n')
+        '[g]\nsurface = "torus"\nradii = [1.0, 0.4]\nresolution = 400\nmap = ["x", "y"]\n'
+    )
     proc = run_cli(["grid", "d.toml"], tmp_path)
     assert_user_error(proc, "d.toml", "f.map", "not normal", "independent")
     assert not (tmp_path / "results").exists()

@@ -73,10 +73,18 @@ def test_wilson_half_closed_form():
 
 def test_verdict_sentence():
     # construction: the sentence format given in the design brief.
-    text = verdict({"total_area": 0.84, "counts": {"patch": 1, "curve": 0, "point": 0}},
-                   50, 0, wilson_interval(0, 50, z=Z), 1e-3, 0.84)
-    assert text == ("The base special set has 1 patch (area 0.84, 100% of the window); 0 of 50 perturbed "
-                    "runs of size 0.001 kept a patch (95% CI 0-7.1%).")
+    text = verdict(
+        {"total_area": 0.84, "counts": {"patch": 1, "curve": 0, "point": 0}},
+        50,
+        0,
+        wilson_interval(0, 50, z=Z),
+        1e-3,
+        0.84,
+    )
+    assert text == (
+        "The base special set has 1 patch (area 0.84, 100% of the window); 0 of 50 perturbed "
+        "runs of size 0.001 kept a patch (95% CI 0-7.1%)."
+    )
 
 
 # --------------------------------------------------------------------------- grid model
@@ -92,11 +100,17 @@ def staircase_grid() -> Grid:
     arc = np.stack([np.cos(0.5 * math.pi * (1 - t)), -np.sin(0.5 * math.pi * t) + 0.3 * t], axis=1)
     arc[:, 1] = np.minimum.accumulate(arc[:, 1])
     steps = np.array([[0.0, 1.0], [0.0, 0.5], [0.2, 0.5], [0.2, 0.5], [0.7, 0.1]])  # flat runs, a repeat
-    return validate_grid(Grid((
-        Contour("f:p0", "proper", arc), Contour("f:p1", "proper", steps),
-        Contour("f:p2", "proper", [[0.5, 0.5]]),
-        Contour("f:v0", "vertical", [[0.1, 0.2]]), Contour("f:h0", "horizontal", [[0.3, -0.4]]),
-    )))
+    return validate_grid(
+        Grid(
+            (
+                Contour("f:p0", "proper", arc),
+                Contour("f:p1", "proper", steps),
+                Contour("f:p2", "proper", [[0.5, 0.5]]),
+                Contour("f:v0", "vertical", [[0.1, 0.2]]),
+                Contour("f:h0", "horizontal", [[0.3, -0.4]]),
+            )
+        )
+    )
 
 
 @pytest.mark.parametrize("size", [1e-3, 0.05, 0.4])
@@ -184,8 +198,9 @@ def test_perturb_surface_gives_map_with_exact_jacobian():
     assert np.allclose(new.fmap.values(V), new.values, atol=1e-14)
     P = V[:30]
     eps = 1e-6
-    fd = np.stack([(new.fmap.values(P + eps * e) - new.fmap.values(P - eps * e)) / (2 * eps)
-                   for e in np.eye(3)], axis=2)
+    fd = np.stack(
+        [(new.fmap.values(P + eps * e) - new.fmap.values(P - eps * e)) / (2 * eps) for e in np.eye(3)], axis=2
+    )
     assert np.allclose(new.fmap.jacobian(P), fd, atol=1e-7)
     # sup over the denser sample (projected midpoints and centroids) is the size; vertices <= it
     S = sample_points(shape)
@@ -231,8 +246,10 @@ def test_set_hausdorff_conventions_and_value():
 def test_repair_tail_and_load_runs(tmp_path):
     # construction: a torn last line is removed; complete lines are kept, first record per run wins.
     p = tmp_path / "runs.jsonl"
-    p.write_bytes(b'{"run":0,"fingerprint":"x","v":1}\n{"run":1,"fingerprint":"y"}\n'
-                  b'{"run":0,"fingerprint":"x","v":2}\n{"run":2,"finger')
+    p.write_bytes(
+        b'{"run":0,"fingerprint":"x","v":1}\n{"run":1,"fingerprint":"y"}\n'
+        b'{"run":0,"fingerprint":"x","v":2}\n{"run":2,"finger'
+    )
     assert repair_tail(p) == len(b'{"run":2,"finger')
     assert p.read_bytes().endswith(b"\n")
     assert repair_tail(p) == 0
@@ -267,8 +284,9 @@ def _special_available() -> bool:
     return True
 
 
-needs_special = pytest.mark.skipif(not _special_available(),
-                                   reason="specmap.special.special_set is not importable yet")
+needs_special = pytest.mark.skipif(
+    not _special_available(), reason="specmap.special.special_set is not importable yet"
+)
 
 # All four half-lines are met by every line of this window: at x0 >= 0 >= b the line's height
 # (1-a)/a (x0 - b) - b is >= 0 > -10 (math.md section 5, vertical half-line).
@@ -402,8 +420,9 @@ def test_kill_minus_nine_then_resume_gives_each_run_once(tmp_path):
     assert killed and 3 <= have < runs  # the kill really happened mid-way
     # the resumed records equal an uninterrupted run (same seeds)
     clean = tmp_path / "clean"
-    subprocess.run([sys.executable, str(script), str(clean), str(runs), str(RESOLUTION), "1"], check=True,
-                   timeout=120)
+    subprocess.run(
+        [sys.executable, str(script), str(clean), str(runs), str(RESOLUTION), "1"], check=True, timeout=120
+    )
     assert records_without_time(recs) == records_without_time(read_jsonl_list(clean / "runs.jsonl"))
 
 
@@ -439,8 +458,9 @@ def test_dask_local_cluster_matches_joblib(tmp_path):
 
     base, settings = grid_base()
     run_study(base, settings, tmp_path / "joblib", jobs=1)
-    with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
-                                  dashboard_address=None) as cluster:
+    with distributed.LocalCluster(
+        n_workers=2, threads_per_worker=1, processes=True, dashboard_address=None
+    ) as cluster:
         run_study(base, settings, tmp_path / "dask", cluster=cluster.scheduler_address)
     a = records_without_time(read_jsonl_list(tmp_path / "joblib" / "runs.jsonl"))
     b = records_without_time(read_jsonl_list(tmp_path / "dask" / "runs.jsonl"))
@@ -465,8 +485,15 @@ def test_perturbation_study_sweep_from_a_study(tmp_path):
     from specmap.settings import DistanceSettings, MapSettings
 
     gf, gg = four_verticals()
-    settings = PerturbSettings.of(model="grid", size=1e-3, runs=3, seed=2, distance=False,
-                                  map=MapSettings(resolution=RESOLUTION), dist=DistanceSettings())
+    settings = PerturbSettings.of(
+        model="grid",
+        size=1e-3,
+        runs=3,
+        seed=2,
+        distance=False,
+        map=MapSettings(resolution=RESOLUTION),
+        dist=DistanceSettings(),
+    )
     base = make_base((gf, gg), WINDOW, settings=settings)
     summary = perturbation_study(base, settings, tmp_path / "perturb", sizes=(1e-3, 1e-2))
     assert [row["size"] for row in summary["sweep"]] == [1e-3, 1e-2]
@@ -483,9 +510,11 @@ def _distance_available() -> bool:
     return _special_available()
 
 
-@pytest.mark.skipif(not _distance_available(),
-                    reason="specmap.distance.matching_distance (and special_set) not importable yet; "
-                           "enable by landing the distance module")
+@pytest.mark.skipif(
+    not _distance_available(),
+    reason="specmap.distance.matching_distance (and special_set) not importable yet; "
+    "enable by landing the distance module",
+)
 def test_stability_bound_holds_on_every_run(tmp_path):
     # [CDFFL13] (math.md section 3): |D(f', g') - D(f, g)| <= ||f - f'||_inf + ||g - g'||_inf,
     # degree by degree; the perturbation model makes each sup norm equal to size. The dense
@@ -503,8 +532,17 @@ def test_stability_bound_holds_on_every_run(tmp_path):
     g = Shape("g", "mesh", V, T, compile_map(["x + 0.3*z", "y - 0.2*x*z"]).values(V))
     grids = (pareto_grid(f), pareto_grid(g))
     window = default_window(f.value_bounds(), g.value_bounds())
-    settings = PerturbSettings(model="function", size=0.05, runs=3, seed=4, resolution=31, distance=True,
-                               degrees=(0, 1), distance_method="dense", dense_resolution=9)
+    settings = PerturbSettings(
+        model="function",
+        size=0.05,
+        runs=3,
+        seed=4,
+        resolution=31,
+        distance=True,
+        degrees=(0, 1),
+        distance_method="dense",
+        dense_resolution=9,
+    )
     base = make_base(grids, window, shapes=(f, g), settings=settings)
     summary = run_study(base, settings, tmp_path / "perturb")
     recs = read_jsonl_list(tmp_path / "perturb" / "runs.jsonl")
@@ -525,8 +563,12 @@ def test_stability_check_flags_violations():
     from specmap.perturb.run import stability_check
 
     def dig(v0, v1, w1=0.0):
-        return {"value": max(v0, v1), "by_degree": {"0": v0, "1": v1},
-                "bounds": {"0": [v0, v0], "1": [v1, v1 + w1]}, "tolerance": 0.0}
+        return {
+            "value": max(v0, v1),
+            "by_degree": {"0": v0, "1": v1},
+            "bounds": {"0": [v0, v0], "1": [v1, v1 + w1]},
+            "tolerance": 0.0,
+        }
 
     before = dig(1.0, 0.2)
     assert stability_check(before, dig(1.05, 0.25), 0.1)[1] is True
@@ -538,4 +580,6 @@ def test_stability_check_flags_violations():
     assert stability_check(before, dig(1.0, 0.9), 0.1)[1] is False
     # a degree without an interval on one side is not judged
     no_b = {**dig(1.0, 0.9), "bounds": {"0": [1.0, 1.0]}}
-    assert stability_check(before, no_b, 0.1)[1] is True and stability_check(before, no_b, 0.1)[0]["checked_degrees"] == ["0"]
+    assert stability_check(before, no_b, 0.1)[1] is True and stability_check(before, no_b, 0.1)[0][
+        "checked_degrees"
+    ] == ["0"]

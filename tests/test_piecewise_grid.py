@@ -74,8 +74,8 @@ def ellipsoid_errors(level: int) -> tuple[float, float, float, object]:
     grid = piecewise_grid(V, T, V @ LMAP.T)
     arcs, _, _ = ellipse_pareto_arcs()
     pts = densify(grid, grid.tolerance / 20)
-    d_out = cKDTree(arcs).query(pts)[0].max()   # contours near the arcs
-    d_in = cKDTree(pts).query(arcs)[0].max()    # arcs covered by the contours
+    d_out = cKDTree(arcs).query(pts)[0].max()  # contours near the arcs
+    d_in = cKDTree(pts).query(arcs)[0].max()  # arcs covered by the contours
     vertices = np.concatenate([c.points for c in grid.by_kind("proper")])
     normal = cKDTree(ellipse_boundary()).query(vertices)[0].max()
     return max(d_out, d_in), normal, grid.tolerance, grid
@@ -251,5 +251,7 @@ def test_position_theorem_audit(capsys):
         assert dev.max() <= 3 * delta, (a, b, dev.max(), delta)
     assert checked >= 20
     with capsys.disabled():
-        print(f"\nposition audit: {checked} coordinates checked, max deviation {worst_ratio:.2f} x delta "
-              f"(max edge variation of F*); {noise} coordinates of sub-2-delta pairs not checked")
+        print(
+            f"\nposition audit: {checked} coordinates checked, max deviation {worst_ratio:.2f} x delta "
+            f"(max edge variation of F*); {noise} coordinates of sub-2-delta pairs not checked"
+        )

@@ -27,11 +27,14 @@ JUNCTION = (1.0, 0.0)  # f:p0 ends (lower right) where f:v2 starts upwards
 
 
 def _grids() -> tuple[Grid, Grid]:
-    f = Grid((Contour("f:v0", "vertical", [0.4, -5.0]),
-              Contour("f:p0", "proper", [[-1.0, 1.5], [1.0, 0.0]]),
-              Contour("f:v2", "vertical", [1.0, 0.0])))
-    g = Grid((Contour("g:h0", "horizontal", [-5.0, 0.2]),
-              Contour("g:v1", "vertical", [2.0, -5.0])))
+    f = Grid(
+        (
+            Contour("f:v0", "vertical", [0.4, -5.0]),
+            Contour("f:p0", "proper", [[-1.0, 1.5], [1.0, 0.0]]),
+            Contour("f:v2", "vertical", [1.0, 0.0]),
+        )
+    )
+    g = Grid((Contour("g:h0", "horizontal", [-5.0, 0.2]), Contour("g:v1", "vertical", [2.0, -5.0])))
     return f, g
 
 
@@ -57,13 +60,17 @@ def atlases():
 
 @pytest.mark.parametrize("point", [CROSSING, JUNCTION], ids=["crossing", "junction"])
 def test_contours_reading_keeps_the_pencil(atlases, point):
-    fractions = [x for p in atlases["contours"].pieces if p.kind == "curve" for x in _on_pencil(p.geometry, point)]
+    fractions = [
+        x for p in atlases["contours"].pieces if p.kind == "curve" for x in _on_pencil(p.geometry, point)
+    ]
     assert max(fractions, default=0.0) > 0.9
 
 
 @pytest.mark.parametrize("point", [CROSSING, JUNCTION], ids=["crossing", "junction"])
 def test_points_reading_drops_the_pencil(atlases, point):
-    fractions = [x for p in atlases["points"].pieces if p.kind == "curve" for x in _on_pencil(p.geometry, point)]
+    fractions = [
+        x for p in atlases["points"].pieces if p.kind == "curve" for x in _on_pencil(p.geometry, point)
+    ]
     assert max(fractions, default=0.0) < 0.5
 
 

@@ -27,11 +27,16 @@ STUDY = {
     "g": {"description": "torus R=2 r=1, map (x + 0.3, z)", "source": "surface"},
     "window": {"a": [0.02, 0.98], "b": [-3.5, 3.5]},
     "specmap_version": "0.1.0",
-    "commands": [{"command": "specmap grid studies/fixture.toml", "date": "2024-05-01T10:00:00"},
-                 {"command": "specmap map studies/fixture.toml", "date": "2024-05-01T10:01:00"}],
+    "commands": [
+        {"command": "specmap grid studies/fixture.toml", "date": "2024-05-01T10:00:00"},
+        {"command": "specmap map studies/fixture.toml", "date": "2024-05-01T10:01:00"},
+    ],
 }
 GRID_F = {
-    "format": "specmap-grid/1", "route": "exact", "tolerance": 1e-9, "meta": {"surface": "torus"},
+    "format": "specmap-grid/1",
+    "route": "exact",
+    "tolerance": 1e-9,
+    "meta": {"surface": "torus"},
     "contours": [
         {"id": "f:p0", "kind": "proper", "points": [[-3.0, 1.0], [-2.5, 0.5], [-2.0, 0.0]]},
         {"id": "f:p1", "kind": "proper", "points": [[2.0, 0.0], [2.5, -0.5], [3.0, -1.0]]},
@@ -61,28 +66,74 @@ def _special(n_patch: int = 2) -> tuple[dict[str, Any], dict[str, Any]]:
         ties = [{"pairs": [["f:v0", "g:v0"], ["f:v1", "g:v1"]], "condition": cond}]
         if i == 2:
             ties.append({"pairs": [["f:v0", "f:v1"], ["f:h0", "g:h0"]], "condition": "half"})
-        comps.append({"id": f"c{i}", "kind": "curve", "area": 0.0, "length": 1.02 + 0.1 * i,
-                      "bbox": [0.05, b0, 0.95, b0 + 0.4], "ties": ties})
-        feats.append({"type": "Feature", "geometry": {"type": "LineString", "coordinates": line},
-                      "properties": {"id": f"c{i}", "kind": "curve"}})
+        comps.append(
+            {
+                "id": f"c{i}",
+                "kind": "curve",
+                "area": 0.0,
+                "length": 1.02 + 0.1 * i,
+                "bbox": [0.05, b0, 0.95, b0 + 0.4],
+                "ties": ties,
+            }
+        )
+        feats.append(
+            {
+                "type": "Feature",
+                "geometry": {"type": "LineString", "coordinates": line},
+                "properties": {"id": f"c{i}", "kind": "curve"},
+            }
+        )
     w = min(0.3, 0.8 / max(n_patch, 1) - 0.01)
     for j in range(n_patch):  # patches, w x 0.5 rectangles side by side
         a0, b0 = 0.1 + (w + 0.15 if n_patch <= 2 else w + 0.01) * j, 1.8
         ring = [[a0, b0], [a0 + w, b0], [a0 + w, b0 + 0.5], [a0, b0 + 0.5], [a0, b0]]
-        comps.append({"id": f"p{j}", "kind": "patch", "area": 0.5 * w, "length": 2 * w + 1.0,
-                      "bbox": [a0, b0, a0 + w, b0 + 0.5],
-                      "ties": [{"pairs": [["f:v0", "g:v0"], ["f:v1", "g:v1"]], "condition": "equal"}]})
-        feats.append({"type": "Feature", "geometry": {"type": "Polygon", "coordinates": [ring]},
-                      "properties": {"id": f"p{j}", "kind": "patch"}})
-    comps.append({"id": "q0", "kind": "point", "area": 0.0, "length": 0.0, "bbox": [0.5, -0.3, 0.5, -0.3],
-                  "ties": [{"pairs": [["f:p0", "g:p0"], ["f:h0", "g:h0"]], "condition": "half"}]})
-    feats.append({"type": "Feature", "geometry": {"type": "Point", "coordinates": [0.5, -0.3]},
-                  "properties": {"id": "q0", "kind": "point"}})
+        comps.append(
+            {
+                "id": f"p{j}",
+                "kind": "patch",
+                "area": 0.5 * w,
+                "length": 2 * w + 1.0,
+                "bbox": [a0, b0, a0 + w, b0 + 0.5],
+                "ties": [{"pairs": [["f:v0", "g:v0"], ["f:v1", "g:v1"]], "condition": "equal"}],
+            }
+        )
+        feats.append(
+            {
+                "type": "Feature",
+                "geometry": {"type": "Polygon", "coordinates": [ring]},
+                "properties": {"id": f"p{j}", "kind": "patch"},
+            }
+        )
+    comps.append(
+        {
+            "id": "q0",
+            "kind": "point",
+            "area": 0.0,
+            "length": 0.0,
+            "bbox": [0.5, -0.3, 0.5, -0.3],
+            "ties": [{"pairs": [["f:p0", "g:p0"], ["f:h0", "g:h0"]], "condition": "half"}],
+        }
+    )
+    feats.append(
+        {
+            "type": "Feature",
+            "geometry": {"type": "Point", "coordinates": [0.5, -0.3]},
+            "properties": {"id": "q0", "kind": "point"},
+        }
+    )
     area = 0.5 * w * n_patch
-    special = {"window": STUDY["window"], "tolerance": 1e-7, "pairs": "all", "method": "sweep",
-               "resolution": 121, "components": comps, "total_area": area,
-               "area_fraction": area / (0.96 * 7.0),
-               "counts": {"curve": 3, "patch": n_patch, "point": 1}, "stats": {"quads": 210, "seconds": 1.4}}
+    special = {
+        "window": STUDY["window"],
+        "tolerance": 1e-7,
+        "pairs": "all",
+        "method": "sweep",
+        "resolution": 121,
+        "components": comps,
+        "total_area": area,
+        "area_fraction": area / (0.96 * 7.0),
+        "counts": {"curve": 3, "patch": n_patch, "point": 1},
+        "stats": {"quads": 210, "seconds": 1.4},
+    }
     return special, {"type": "FeatureCollection", "features": feats}
 
 
@@ -93,36 +144,82 @@ def _distance(gap: bool = False) -> dict[str, Any]:
     h = np.round(h, 6).tolist()
     h[0][0] = "nan"
     return {
-        "value": 0.3, "at": [0.5, 0.13], "reached_on": "slope-one", "component": None,
-        "by_degree": {"0": {"value": 0.3, "at": [0.5, 0.13], "reached_on": "slope-one"},
-                      "1": {"value": 0.2125, "at": [0.31, 1.9], "reached_on": "special"}},
-        "dense": {"value": 0.3271 if gap else 0.2996, "at": [0.27, -1.4] if gap else [0.5, 0.125], "lines": 725, "seconds": 3.1, "error_bound": 0.004},
-        "reduced": {"value": 0.3, "at": [0.5, 0.13], "lines": 212, "seconds": 0.8,
-                    "pruned": {"below_best": 120, "above_bound": 3}},
-        "audit": {"theorem_gap": gap, "gap": 0.0271 if gap else 0.0, "line": [0.27, -1.4],
-                  "position": {"fraction_explained": 1.0, "max_deviation": 2e-9, "lines": 40}},
-        "tolerance": 1e-6, "infinite": [],
+        "value": 0.3,
+        "at": [0.5, 0.13],
+        "reached_on": "slope-one",
+        "component": None,
+        "by_degree": {
+            "0": {"value": 0.3, "at": [0.5, 0.13], "reached_on": "slope-one"},
+            "1": {"value": 0.2125, "at": [0.31, 1.9], "reached_on": "special"},
+        },
+        "dense": {
+            "value": 0.3271 if gap else 0.2996,
+            "at": [0.27, -1.4] if gap else [0.5, 0.125],
+            "lines": 725,
+            "seconds": 3.1,
+            "error_bound": 0.004,
+        },
+        "reduced": {
+            "value": 0.3,
+            "at": [0.5, 0.13],
+            "lines": 212,
+            "seconds": 0.8,
+            "pruned": {"below_best": 120, "above_bound": 3},
+        },
+        "audit": {
+            "theorem_gap": gap,
+            "gap": 0.0271 if gap else 0.0,
+            "line": [0.27, -1.4],
+            "position": {"fraction_explained": 1.0, "max_deviation": 2e-9, "lines": 40},
+        },
+        "tolerance": 1e-6,
+        "infinite": [],
         "landscape": {"a": a.tolist(), "b": b.tolist(), "h": h, "by_degree": {"0": h}},
     }
 
 
-def _perturb(with_sweep: bool = True, runs_with_patch: int = 0) -> tuple[dict[str, Any], list[dict[str, Any]]]:
+def _perturb(
+    with_sweep: bool = True, runs_with_patch: int = 0
+) -> tuple[dict[str, Any], list[dict[str, Any]]]:
     rng = np.random.default_rng(3)
     n = 40
-    runs = [{"run": i, "seed": 100 + i, "total_area": float(0.02 * rng.random()) if i < runs_with_patch else 0.0,
-             "counts": {"curve": 3, "patch": int(i < runs_with_patch), "point": 1},
-             "hausdorff": float(0.01 * rng.random()), "seconds": 0.5} for i in range(n)]
+    runs = [
+        {
+            "run": i,
+            "seed": 100 + i,
+            "total_area": float(0.02 * rng.random()) if i < runs_with_patch else 0.0,
+            "counts": {"curve": 3, "patch": int(i < runs_with_patch), "point": 1},
+            "hausdorff": float(0.01 * rng.random()),
+            "seconds": 0.5,
+        }
+        for i in range(n)
+    ]
     runs[5]["hausdorff"] = "inf"
     summary = {
-        "runs": n, "size": 1e-3, "model": "grid-jitter", "base": {"total_area": 0.3, "counts": {"patch": 2}},
-        "runs_with_patch": runs_with_patch, "runs_with_patch_ci95": [0.0, 0.0876],
-        "total_area": {"mean": 0.0, "max": 0.0}, "hausdorff": {"mean": 0.0049, "max": 0.0098},
-        "distance": {"mean_change": 0.0004, "max_change": 0.0009}, "stability_violations": 0,
+        "runs": n,
+        "size": 1e-3,
+        "model": "grid-jitter",
+        "base": {"total_area": 0.3, "counts": {"patch": 2}},
+        "runs_with_patch": runs_with_patch,
+        "runs_with_patch_ci95": [0.0, 0.0876],
+        "total_area": {"mean": 0.0, "max": 0.0},
+        "hausdorff": {"mean": 0.0049, "max": 0.0098},
+        "distance": {"mean_change": 0.0004, "max_change": 0.0009},
+        "stability_violations": 0,
         "verdict": "the patches are not stable: none survives a perturbation of size 0.001.",
-        "sweep": [{"size": s, "runs": 20, "runs_with_patch": k, "runs_with_patch_ci95": [lo, hi],
-                   "total_area": {"mean": 0.01 * k, "max": 0.02 * k}, "hausdorff": {"mean": s, "max": 2 * s}}
-                  for s, k, lo, hi in [(1e-4, 6, 0.145, 0.519), (1e-3, 0, 0.0, 0.161), (1e-2, 0, 0.0, 0.161)]]
-        if with_sweep else None,
+        "sweep": [
+            {
+                "size": s,
+                "runs": 20,
+                "runs_with_patch": k,
+                "runs_with_patch_ci95": [lo, hi],
+                "total_area": {"mean": 0.01 * k, "max": 0.02 * k},
+                "hausdorff": {"mean": s, "max": 2 * s},
+            }
+            for s, k, lo, hi in [(1e-4, 6, 0.145, 0.519), (1e-3, 0, 0.0, 0.161), (1e-2, 0, 0.0, 0.161)]
+        ]
+        if with_sweep
+        else None,
         "runs_per_minute": 80.0,
     }
     return summary, runs
@@ -133,8 +230,9 @@ def _dump(path: Path, obj: Any) -> None:
     path.write_text(json.dumps(obj))
 
 
-def make_folder(root: Path, stages: tuple[str, ...] = ("grids", "special", "distance", "perturb"),
-                **kw: Any) -> Path:
+def make_folder(
+    root: Path, stages: tuple[str, ...] = ("grids", "special", "distance", "perturb"), **kw: Any
+) -> Path:
     root.mkdir(parents=True, exist_ok=True)
     _dump(root / "study.json", STUDY)
     if "grids" in stages:
@@ -163,8 +261,15 @@ def pages_of(root: Path) -> list[str]:
 
 def page_titles(pages: list[str]) -> list[str]:
     """The page heading of each page (figure text may come first in the extraction order)."""
-    known = ("Methods appendix", "Findings", "Study and provenance", "Extended Pareto grids", "Special set",
-             "Matching distance", "Perturbation study")
+    known = (
+        "Methods appendix",
+        "Findings",
+        "Study and provenance",
+        "Extended Pareto grids",
+        "Special set",
+        "Matching distance",
+        "Perturbation study",
+    )
     out = []
     for p in pages:
         lines = [ln.strip() for ln in p.splitlines()]
@@ -189,8 +294,14 @@ def test_full_report_pages_numbers_and_pngs(tmp_path: Path) -> None:
     pages = pdf_pages(out)
     heads = page_titles(pages)
     assert heads[0] == "Summary" and heads[1] == "Study and provenance", heads
-    for title in ("Extended Pareto grids", "Special set", "Matching distance",
-                  "Perturbation study", "Findings", "Methods appendix"):
+    for title in (
+        "Extended Pareto grids",
+        "Special set",
+        "Matching distance",
+        "Perturbation study",
+        "Findings",
+        "Methods appendix",
+    ):
         assert title in heads, (title, heads)
     text = _flat(" ".join(pages))
     assert "not run" not in pages[0] and "not run" not in pages[1]
@@ -290,14 +401,22 @@ def test_bad_landscape_shape_is_a_results_error(tmp_path: Path) -> None:
 def test_findings_full() -> None:
     sp, geo = _special()
     summary, runs = _perturb()
-    res = {"grid_f": GRID_F, "grid_g": GRID_G, "special": sp, "geojson": geo, "distance": _distance(),
-           "perturb": {"summary": summary, "runs": runs}}
+    res = {
+        "grid_f": GRID_F,
+        "grid_g": GRID_G,
+        "special": sp,
+        "geojson": geo,
+        "distance": _distance(),
+        "perturb": {"summary": summary, "runs": runs},
+    }
     out = findings(res)
     text = " ".join(out)
     assert "2 patches cover 4.46% of the window" in text
     assert "none survived 40 perturbations of size 0.001" in text
-    assert ("The matching distance is 0.3 (degree 0), reached on the slope-one line at b = 0.13 "
-            "(tolerance 1e-06).") in out
+    assert (
+        "The matching distance is 0.3 (degree 0), reached on the slope-one line at b = 0.13 "
+        "(tolerance 1e-06)."
+    ) in out
     assert "(tolerance 1e-07)" in text  # special-set tolerance carried
     assert not any(s.startswith("WARNING") for s in out)
     assert all(s.endswith(".") for s in out)
@@ -307,14 +426,17 @@ def test_findings_no_patches() -> None:
     sp, _ = _special(n_patch=0)
     summary, runs = _perturb()
     out = findings({"special": sp, "perturb": {"summary": summary, "runs": runs}})
-    assert any(s.startswith("No patch was found") and "no patch appeared in 40 perturbations" in s for s in out)
+    assert any(
+        s.startswith("No patch was found") and "no patch appeared in 40 perturbations" in s for s in out
+    )
     assert not any("cover" in s for s in out)
 
 
 def test_findings_theorem_gap_comes_first_and_loud() -> None:
     out = findings({"distance": _distance(gap=True)})
-    assert out[0].startswith("WARNING: the dense sweep exceeds the reduced search by 0.0271 at (a, b) = "
-                             "(0.27, -1.4)")
+    assert out[0].startswith(
+        "WARNING: the dense sweep exceeds the reduced search by 0.0271 at (a, b) = (0.27, -1.4)"
+    )
     assert "disagrees with the theorem's reduction" in out[0]
 
 
@@ -374,24 +496,61 @@ def test_figures_edge_cases() -> None:
     sp, geo = _special(n_patch=0)
     empty = dict(sp, components=[], counts={"curve": 0, "patch": 0, "point": 0})
     assert special_figure(empty, None).axes[0].get_legend() is not None  # a = 1/2 still marked
-    mixed = {"type": "FeatureCollection", "features": [
-        {"type": "Feature", "properties": {"id": "c0", "conditions": ["equal", "half", "half"]},
-         "geometry": {"type": "GeometryCollection", "geometries": [
-             {"type": "LineString", "coordinates": [[0.1, 0], [0.2, 1]]},
-             {"type": "MultiLineString", "coordinates": [[[0.3, 0], [0.4, 1]], [[0.5, 0], [0.6, 1]]]}]}},
-        {"type": "Feature", "properties": {"id": "x1", "kind": "patch"},
-         "geometry": {"type": "MultiPolygon", "coordinates": [[[[0.1, 2], [0.3, 2], [0.3, 3], [0.1, 3], [0.1, 2]],
-                                                               [[0.15, 2.2], [0.2, 2.2], [0.2, 2.5],
-                                                                [0.15, 2.5], [0.15, 2.2]]]]}}]}
+    mixed = {
+        "type": "FeatureCollection",
+        "features": [
+            {
+                "type": "Feature",
+                "properties": {"id": "c0", "conditions": ["equal", "half", "half"]},
+                "geometry": {
+                    "type": "GeometryCollection",
+                    "geometries": [
+                        {"type": "LineString", "coordinates": [[0.1, 0], [0.2, 1]]},
+                        {
+                            "type": "MultiLineString",
+                            "coordinates": [[[0.3, 0], [0.4, 1]], [[0.5, 0], [0.6, 1]]],
+                        },
+                    ],
+                },
+            },
+            {
+                "type": "Feature",
+                "properties": {"id": "x1", "kind": "patch"},
+                "geometry": {
+                    "type": "MultiPolygon",
+                    "coordinates": [
+                        [
+                            [[0.1, 2], [0.3, 2], [0.3, 3], [0.1, 3], [0.1, 2]],
+                            [[0.15, 2.2], [0.2, 2.2], [0.2, 2.5], [0.15, 2.5], [0.15, 2.2]],
+                        ]
+                    ],
+                },
+            },
+        ],
+    }
     labels = [t.get_text() for t in special_figure(sp, mixed).axes[0].get_legend().get_texts()]
     assert "patch x1: area not recorded" in labels
     assert any(s.startswith("condition: equal (3)") for s in labels)  # c0 of the fixture: equal ties
     # a point inside a patch component is not an isolated point of the special set
-    inside = {"type": "FeatureCollection", "features": [
-        {"type": "Feature", "properties": {"id": "p0", "kind": "patch"},
-         "geometry": {"type": "GeometryCollection", "geometries": [
-             {"type": "Polygon", "coordinates": [[[0.1, 0], [0.4, 0], [0.4, 1], [0.1, 1], [0.1, 0]]]},
-             {"type": "Point", "coordinates": [0.2, 0.5]}]}}]}
+    inside = {
+        "type": "FeatureCollection",
+        "features": [
+            {
+                "type": "Feature",
+                "properties": {"id": "p0", "kind": "patch"},
+                "geometry": {
+                    "type": "GeometryCollection",
+                    "geometries": [
+                        {
+                            "type": "Polygon",
+                            "coordinates": [[[0.1, 0], [0.4, 0], [0.4, 1], [0.1, 1], [0.1, 0]]],
+                        },
+                        {"type": "Point", "coordinates": [0.2, 0.5]},
+                    ],
+                },
+            }
+        ],
+    }
     labels = [t.get_text() for t in special_figure(sp, inside).axes[0].get_legend().get_texts()]
     assert not any("isolated" in s for s in labels)
     d = _distance()
@@ -452,8 +611,9 @@ def test_ranked_notes_put_contradictions_before_the_position_caveat() -> None:
 
     d = _distance(gap=True)
     d["audit"]["position"]["fraction_explained"] = 0.6
-    notes = ranked_notes({"distance": d, "stages": {"grids": True, "special": True, "distance": True,
-                                                    "perturb": True}})
+    notes = ranked_notes(
+        {"distance": d, "stages": {"grids": True, "special": True, "distance": True, "perturb": True}}
+    )
     assert notes[0].title == "Theorem audit failed" and notes[0].severity == 1
     assert [n.severity for n in notes] == sorted(n.severity for n in notes)
     pos = next(n for n in notes if n.title.startswith("Position audit"))
@@ -470,14 +630,26 @@ def test_ranked_notes_put_contradictions_before_the_position_caveat() -> None:
 def _ladder_grids() -> tuple[dict[str, Any], dict[str, Any]]:
     """Vertical half-lines x = 0, 1 (f) and horizontal y = 0, 1 plus vertical x = 0.3, 1.3 (g)."""
     far = -100.0  # starts far away, so every line of the window meets every half-line
-    gf = {"format": "specmap-grid/1", "route": "exact", "tolerance": 1e-9, "contours": [
-        {"id": "f:v0", "kind": "vertical", "start": [0.0, far]},
-        {"id": "f:v1", "kind": "vertical", "start": [1.0, far]}]}
-    gg = {"format": "specmap-grid/1", "route": "exact", "tolerance": 1e-9, "contours": [
-        {"id": "g:h0", "kind": "horizontal", "start": [far, 0.0]},
-        {"id": "g:h1", "kind": "horizontal", "start": [far, 1.0]},
-        {"id": "g:v0", "kind": "vertical", "start": [0.3, far]},
-        {"id": "g:v1", "kind": "vertical", "start": [1.3, far]}]}
+    gf = {
+        "format": "specmap-grid/1",
+        "route": "exact",
+        "tolerance": 1e-9,
+        "contours": [
+            {"id": "f:v0", "kind": "vertical", "start": [0.0, far]},
+            {"id": "f:v1", "kind": "vertical", "start": [1.0, far]},
+        ],
+    }
+    gg = {
+        "format": "specmap-grid/1",
+        "route": "exact",
+        "tolerance": 1e-9,
+        "contours": [
+            {"id": "g:h0", "kind": "horizontal", "start": [far, 0.0]},
+            {"id": "g:h1", "kind": "horizontal", "start": [far, 1.0]},
+            {"id": "g:v0", "kind": "vertical", "start": [0.3, far]},
+            {"id": "g:v1", "kind": "vertical", "start": [1.3, far]},
+        ],
+    }
     return gf, gg
 
 
@@ -489,17 +661,31 @@ def test_curves_are_labelled_by_the_tie_that_vanishes_on_them() -> None:
     # tied value on a = 1/2 is the abscissa difference 1, on a = 1/3 the smaller side min(1/2, 1/2).
     # g's verticals x = 0.3, 1.3 tie with f's identically: |0.3 - 0| = |1.3 - 1| on every line.
     gf, gg = _ladder_grids()
-    ties = [{"pairs": [["f:v0", "f:v1"], ["g:h0", "g:h1"]], "condition": "equal"},
-            {"pairs": [["f:v0", "f:v1"], ["g:h0", "g:h1"]], "condition": "half"},
-            {"pairs": [["f:v0", "g:v0"], ["f:v1", "g:v1"]], "condition": "equal"}]
+    ties = [
+        {"pairs": [["f:v0", "f:v1"], ["g:h0", "g:h1"]], "condition": "equal"},
+        {"pairs": [["f:v0", "f:v1"], ["g:h0", "g:h1"]], "condition": "half"},
+        {"pairs": [["f:v0", "g:v0"], ["f:v1", "g:v1"]], "condition": "equal"},
+    ]
     b = np.linspace(-0.9, 0.9, 7)
-    geom = {"type": "GeometryCollection", "geometries": [
-        {"type": "Polygon", "coordinates": [[[0.6, -0.5], [0.9, -0.5], [0.9, 0.5], [0.6, 0.5], [0.6, -0.5]]]},
-        {"type": "MultiLineString", "coordinates": [[[1 / 3, x] for x in b], [[0.5, x] for x in b]]}]}
-    special = {"window": {"a": [0.02, 0.98], "b": [-1.0, 1.0]}, "tolerance": 1e-9,
-               "components": [{"id": "c0", "kind": "patch", "area": 0.3, "ties": ties}]}
-    geo = {"type": "FeatureCollection", "features": [{"type": "Feature", "geometry": geom,
-                                                      "properties": {"id": "c0", "kind": "patch"}}]}
+    geom = {
+        "type": "GeometryCollection",
+        "geometries": [
+            {
+                "type": "Polygon",
+                "coordinates": [[[0.6, -0.5], [0.9, -0.5], [0.9, 0.5], [0.6, 0.5], [0.6, -0.5]]],
+            },
+            {"type": "MultiLineString", "coordinates": [[[1 / 3, x] for x in b], [[0.5, x] for x in b]]},
+        ],
+    }
+    special = {
+        "window": {"a": [0.02, 0.98], "b": [-1.0, 1.0]},
+        "tolerance": 1e-9,
+        "components": [{"id": "c0", "kind": "patch", "area": 0.3, "ties": ties}],
+    }
+    geo = {
+        "type": "FeatureCollection",
+        "features": [{"type": "Feature", "geometry": geom, "properties": {"id": "c0", "kind": "patch"}}],
+    }
     ix = index_ties(special, geo, gf, gg)
     assert ix.labelled and ix.patch_ties == {"c0": [2]}
     by_a = {round(float(c.xy[0, 0]), 4): c for c in ix.curves}

@@ -17,7 +17,15 @@ REPO = Path(__file__).resolve().parents[1]
 
 def test_sigterm_during_a_map_is_a_clean_exit(tmp_path: Path) -> None:
     proc = subprocess.Popen(
-        [sys.executable, "-m", "specmap", "map", str(REPO / "studies" / "ring.toml"), "--out", str(tmp_path / "r")],
+        [
+            sys.executable,
+            "-m",
+            "specmap",
+            "map",
+            str(REPO / "studies" / "ring.toml"),
+            "--out",
+            str(tmp_path / "r"),
+        ],
         cwd=REPO,
         stderr=subprocess.PIPE,
         stdout=subprocess.PIPE,

@@ -67,8 +67,9 @@ def noisy_field(V: np.ndarray, seed: int, amp: float) -> np.ndarray:
     return x + 0.3 * np.sin(4 * y + seed) + amp * rng.normal(size=len(V))
 
 
-def check_simplified(T: np.ndarray, f: np.ndarray, delta: float, betti: list[int],
-                     align: np.ndarray | None = None) -> None:
+def check_simplified(
+    T: np.ndarray, f: np.ndarray, delta: float, betti: list[int], align: np.ndarray | None = None
+) -> None:
     s = simplify_function(T, f, delta, align=align)
     g = s.values
     assert len(np.unique(g)) == len(g)  # injective on vertices (the stated symbolic rule)
@@ -97,8 +98,13 @@ def test_torus_random_fields(seed: int, delta: float) -> None:
 
 
 @settings(max_examples=25, deadline=None)
-@given(seed=st.integers(0, 10_000), amp=st.sampled_from([0.005, 0.1, 1.0]),
-       delta=st.floats(0.001, 2.0), torus=st.booleans(), aligned=st.booleans())
+@given(
+    seed=st.integers(0, 10_000),
+    amp=st.sampled_from([0.005, 0.1, 1.0]),
+    delta=st.floats(0.001, 2.0),
+    torus=st.booleans(),
+    aligned=st.booleans(),
+)
 def test_hypothesis_fields(seed: int, amp: float, delta: float, torus: bool, aligned: bool) -> None:
     V, T = TORUS if torus else SPHERE
     companion = noisy_field(V[:, [1, 2, 0]], seed + 1, amp) if aligned else None
@@ -203,6 +209,7 @@ def test_simplify_pair() -> None:
 def _critical_total(T: np.ndarray):
     def count(f1: np.ndarray, f2: np.ndarray) -> int:
         return sum(sum(pl_critical_vertices(T, f).counts().values()) for f in (f1, f2))
+
     return count
 
 
@@ -254,8 +261,12 @@ def test_scan_without_noise_is_the_smooth_surface() -> None:
     # on the ellipsoid sum (x_i / r_i)^2 = 1 (closed form)
     np.testing.assert_allclose(((s.vertices / np.array(s.radii)) ** 2).sum(axis=1), 1.0, atol=1e-12)
     n, m = len(s.vertices), len(s.triangles)
-    edges = np.unique(np.sort(np.concatenate([s.triangles[:, [0, 1]], s.triangles[:, [1, 2]],
-                                              s.triangles[:, [0, 2]]]), axis=1), axis=0)
+    edges = np.unique(
+        np.sort(
+            np.concatenate([s.triangles[:, [0, 1]], s.triangles[:, [1, 2]], s.triangles[:, [0, 2]]]), axis=1
+        ),
+        axis=0,
+    )
     assert n - len(edges) + m == 2  # Euler characteristic of the sphere
     a, b, c = (s.vertices[s.triangles[:, k]] for k in range(3))
     assert ((np.cross(b - a, c - a) * (a + b + c)).sum(axis=1) > 0).all()  # outward oriented

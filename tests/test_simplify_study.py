@@ -34,8 +34,10 @@ DIST = '[distance]\nmethod = "dense"\ndegrees = [0, 1]\ndense_resolution = 13\n'
 
 def study_text(name: str, f: str, g: str, simplify: str | None, extra: str = "") -> str:
     s = f"simplify = {simplify}\n" if simplify is not None else ""
-    return (f'[study]\nname = "{name}"\n[f]\nmesh = "{f}"\nfields = ["f1", "f2"]\n{s}'
-            f'[g]\nmesh = "{g}"\nfields = ["f1", "f2"]\n{s}{WINDOW}{DIST}{extra}')
+    return (
+        f'[study]\nname = "{name}"\n[f]\nmesh = "{f}"\nfields = ["f1", "f2"]\n{s}'
+        f'[g]\nmesh = "{g}"\nfields = ["f1", "f2"]\n{s}{WINDOW}{DIST}{extra}'
+    )
 
 
 @pytest.fixture(scope="module")
@@ -67,8 +69,9 @@ def read(path: Path) -> dict:
 def results(scans) -> dict:
     d = scans["dir"]
     return {
-        "simplified": run_study(d, "simp", study_text("simp", "f.ply", "g.ply", str(DELTA)), "grid",
-                                "distance"),
+        "simplified": run_study(
+            d, "simp", study_text("simp", "f.ply", "g.ply", str(DELTA)), "grid", "distance"
+        ),
         "noisy": run_study(d, "noisy", study_text("noisy", "f.ply", "g.ply", None), "distance"),
         "smooth": run_study(d, "smooth", study_text("smooth", "fs.ply", "gs.ply", None), "distance"),
     }
@@ -118,8 +121,9 @@ def test_distance_bounds_hold_the_original_and_the_smooth_pair(results, scans) -
 def test_auto_meets_a_budget(scans, capsys) -> None:
     d = scans["dir"]
     budget = 12
-    out = run_study(d, "auto", study_text("auto", "f.ply", "g.ply", '"auto"',
-                                          f"[map]\nmax_contours = {budget}\n"), "grid")
+    out = run_study(
+        d, "auto", study_text("auto", "f.ply", "g.ply", '"auto"', f"[map]\nmax_contours = {budget}\n"), "grid"
+    )
     assert any(read(out / f"grid_{s}.json")["meta"]["simplification"]["met"] for s in ("f", "g"))
     for side in ("f", "g"):
         rec = read(out / f"grid_{side}.json")["meta"]["simplification"]
@@ -135,16 +139,19 @@ def test_auto_meets_a_budget(scans, capsys) -> None:
 
 def test_auto_budget_not_met_is_one_note(scans, capsys) -> None:
     d = scans["dir"]
-    out = run_study(d, "tight", study_text("tight", "f.ply", "g.ply", '"auto"', "[map]\nmax_contours = 1\n"),
-                    "grid")
+    out = run_study(
+        d, "tight", study_text("tight", "f.ply", "g.ply", '"auto"', "[map]\nmax_contours = 1\n"), "grid"
+    )
     err = [line for line in capsys.readouterr().err.splitlines() if "not met" in line]
     # f1 and f2 each have a minimum and a maximum on a closed surface: at least 4 half-lines > budget 1
     assert len(err) == 2 and all("budget 1 not met" in line for line in err)
     assert read(out / "grid_f.json")["meta"]["simplification"]["met"] is False
 
 
-@pytest.mark.parametrize("value, problem", [("-1", "is negative"), ('"sometimes"', "unknown value"),
-                                            ("true", "not a finite number")])
+@pytest.mark.parametrize(
+    "value, problem",
+    [("-1", "is negative"), ('"sometimes"', "unknown value"), ("true", "not a finite number")],
+)
 def test_bad_simplify_values(scans, value: str, problem: str) -> None:
     path = scans["dir"] / "bad.toml"
     path.write_text(study_text("bad", "f.ply", "g.ply", value))
@@ -184,8 +191,10 @@ def test_map_refuses_a_grid_pair_too_large_in_one_line(tmp_path, capsys) -> None
     write_json(tmp_path / "f.json", gf.to_json())
     write_json(tmp_path / "g.json", gg.to_json())
     path = tmp_path / "big.toml"
-    path.write_text('[study]\nname = "big"\n[f]\ngrid = "f.json"\n[g]\ngrid = "g.json"\n'
-                    '[window]\na = [0.1, 0.9]\nb = [-1.0, 1.0]\n')
+    path.write_text(
+        '[study]\nname = "big"\n[f]\ngrid = "f.json"\n[g]\ngrid = "g.json"\n'
+        "[window]\na = [0.1, 0.9]\nb = [-1.0, 1.0]\n"
+    )
     t = time.perf_counter()
     with pytest.raises(SystemExit) as exc:
         main(["map", str(path), "--out", str(tmp_path / "out")])

@@ -59,6 +59,7 @@ def assert_diagram(got: np.ndarray, expected: list[tuple[float, float]], tol: fl
 
 # -- normalised values ----------------------------------------------------------------------
 
+
 def test_normalised_values_sublevel_sets_are_quadrants():
     # [CDFFL13]: {F* <= min(a,1-a) s} = {p : f(p) <= s (a, 1-a) + (b, -b)} componentwise.
     rng = np.random.default_rng(1)
@@ -87,6 +88,7 @@ def test_normalised_values_limit_lines():
 
 
 # -- closed-form slice diagrams (checks.md) --------------------------------------------------
+
 
 def test_ellipsoid_closed_form_half_zero():
     # checks.md closed form: x^2/4 + y^2 + z^2 = 1, f = (x, y), (a, b) = (1/2, 0):
@@ -128,6 +130,7 @@ def test_closed_forms_fine_meshes():
 
 # -- exact oracle for linear maps on ellipsoids (checks.md), derived here --------------------
 
+
 def ellipsoid_linear_oracle(radii, L, a, b):
     """Slice diagrams of f = L p on the ellipsoid with these radii, from the image ellipse.
 
@@ -163,7 +166,11 @@ def ellipsoid_linear_oracle(radii, L, a, b):
     p0 = np.array([b, -b])
     qa, qb, qc = d @ Si @ d, 2 * d @ Si @ p0, p0 @ Si @ p0 - 1
     disc = qb * qb - 4 * qa * qc
-    roots = sorted(((-qb - math.sqrt(disc)) / (2 * qa), (-qb + math.sqrt(disc)) / (2 * qa))) if disc >= 0 else None
+    roots = (
+        sorted(((-qb - math.sqrt(disc)) / (2 * qa), (-qb + math.sqrt(disc)) / (2 * qa)))
+        if disc >= 0
+        else None
+    )
     # H0
     q = extreme(c1, -1)
     if l1(q) >= l2(q):
@@ -224,9 +231,13 @@ def test_linear_oracle_convergence_in_degree_one():
         V, T = Ellipsoid(radii).mesh(res)
         eng = SliceEngine(T, V @ L.T)
         tol = max(np.linalg.norm(L, axis=1)) * longest_edge(V, T)
-        e = max(persim.bottleneck(split_infinite(eng.diagrams(a, b)[1])[0],
-                                  np.array(ellipsoid_linear_oracle(radii, L, a, b)[1]).reshape(-1, 2))
-                for a, b in LINES)
+        e = max(
+            persim.bottleneck(
+                split_infinite(eng.diagrams(a, b)[1])[0],
+                np.array(ellipsoid_linear_oracle(radii, L, a, b)[1]).reshape(-1, 2),
+            )
+            for a, b in LINES
+        )
         assert e <= tol
         errs.append(e)
     assert errs[-1] < errs[0]
@@ -234,15 +245,21 @@ def test_linear_oracle_convergence_in_degree_one():
 
 # -- homology of the surfaces ---------------------------------------------------------------
 
-@pytest.mark.parametrize("surface,betti", [(Ellipsoid((2.0, 1.0, 1.0)), (1, 0, 1)),
-                                           (Torus((2.0, 1.0)), (1, 2, 1))])
+
+@pytest.mark.parametrize(
+    "surface,betti", [(Ellipsoid((2.0, 1.0, 1.0)), (1, 0, 1)), (Torus((2.0, 1.0)), (1, 2, 1))]
+)
 def test_points_at_infinity_are_betti_numbers(surface, betti):
     # homology: sphere (1, 0, 1), torus (1, 2, 1), on every line, including the limit lines.
     V, T = surface.mesh(1500)
     rng = np.random.default_rng(3)
     vals = V[:, :2] + 0.3 * np.sin(3 * V[:, 1:3]) + 0.05 * rng.normal(size=(len(V), 2))
     eng = SliceEngine(T, vals)
-    for a, b in [(0.0, 0.3), (1.0, -0.2), *zip(rng.uniform(0.05, 0.95, 8), rng.uniform(-2, 2, 8), strict=True)]:
+    for a, b in [
+        (0.0, 0.3),
+        (1.0, -0.2),
+        *zip(rng.uniform(0.05, 0.95, 8), rng.uniform(-2, 2, 8), strict=True),
+    ]:
         d = eng.diagrams(a, b)
         assert tuple(int(np.isinf(d[k][:, 1]).sum()) for k in (0, 1, 2)) == betti
         for k in (0, 1, 2):  # zero-length pairs dropped
@@ -287,6 +304,7 @@ def test_grid_only_input_has_no_slices():
 
 # -- bottleneck ------------------------------------------------------------------------------
 
+
 def random_diagram(rng, n):
     u = rng.uniform(-1, 1, n)
     return np.c_[u, u + rng.exponential(0.5, n)]
@@ -313,8 +331,14 @@ def brute_force_bottleneck(d1, d2):
 
 def test_bottleneck_matches_brute_force_on_small_diagrams():
     # definition [DFL10], enumerated; includes the case where gudhi's e=0 path was wrong.
-    d1 = np.array([[0.61409587, 1.0744429], [-0.78505682, -0.62334432],
-                   [-0.21562217, -0.16894409], [0.75286763, 1.11436176]])
+    d1 = np.array(
+        [
+            [0.61409587, 1.0744429],
+            [-0.78505682, -0.62334432],
+            [-0.21562217, -0.16894409],
+            [0.75286763, 1.11436176],
+        ]
+    )
     d2 = np.array([[0.24355613, 0.43363896], [-0.52499036, -0.07536559], [0.01178639, 0.21646258]])
     assert bottleneck(d1, d2) == pytest.approx(brute_force_bottleneck(d1, d2), abs=1e-9)
     rng = np.random.default_rng(8)

@@ -44,12 +44,14 @@ class QuadSine:
         self.e = e
 
     def values(self, P):
-        return (np.einsum("ni,kij,nj->nk", P, self.S, P) + P @ self.b.T
-                + self.e * np.sin(P @ self.w.T))
+        return np.einsum("ni,kij,nj->nk", P, self.S, P) + P @ self.b.T + self.e * np.sin(P @ self.w.T)
 
     def jacobian(self, P):
-        return (2 * np.einsum("kij,nj->nki", self.S, P) + self.b[None]
-                + self.e * np.cos(P @ self.w.T)[:, :, None] * self.w[None])
+        return (
+            2 * np.einsum("kij,nj->nki", self.S, P)
+            + self.b[None]
+            + self.e * np.cos(P @ self.w.T)[:, :, None] * self.w[None]
+        )
 
 
 # ----------------------------------------------------------------------------- helpers
@@ -77,7 +79,7 @@ def to_polyline(X, poly):
     a, ab = poly[:-1], np.diff(poly, axis=0)
     best = np.full(len(X), np.inf)
     for k in range(0, len(a), 64):
-        aa, bb = a[k:k + 64], ab[k:k + 64]
+        aa, bb = a[k : k + 64], ab[k : k + 64]
         w = X[:, None, :] - aa[None]
         t = np.clip(np.einsum("nki,ki->nk", w, bb) / np.maximum((bb**2).sum(1), 1e-300), 0, 1)
         best = np.minimum(best, np.linalg.norm(w - t[..., None] * bb[None], axis=2).min(axis=1))
@@ -90,8 +92,7 @@ def hausdorff_to_exact(grid):
     assert len(proper) == 2
     worst = 0.0
     for contour, dense in zip(proper, exact_arcs(), strict=True):
-        worst = max(worst, to_polyline(dense, contour.points).max(),
-                    to_polyline(contour.points, dense).max())
+        worst = max(worst, to_polyline(dense, contour.points).max(), to_polyline(contour.points, dense).max())
     return worst
 
 
@@ -157,8 +158,12 @@ def test_ellipsoid_linear_matches_closed_form():
     v = sorted(g.by_kind("vertical"), key=lambda c: c.start[0])
     h = sorted(g.by_kind("horizontal"), key=lambda c: c.start[1])
     assert len(v) == 2 and len(h) == 2
-    for got, want in [(v[0], extreme(0, -1)), (v[1], extreme(0, 1)),
-                      (h[0], extreme(1, -1)), (h[1], extreme(1, 1))]:
+    for got, want in [
+        (v[0], extreme(0, -1)),
+        (v[1], extreme(0, 1)),
+        (h[0], extreme(1, -1)),
+        (h[1], extreme(1, 1)),
+    ]:
         assert np.linalg.norm(got.start - want) < 1e-8
     hd = hausdorff_to_exact(g)
     # the reported tolerance bounds the observed distance (with 10% slack)
@@ -188,8 +193,9 @@ def test_ellipsoid_linear_convergence_rate():
 
 
 # ----------------------------------------------------------------------------- Morse theory
-@pytest.mark.parametrize("surface", [Ellipsoid((2.0, 1.3, 0.7)), Torus((2.0, 1.0))],
-                         ids=["ellipsoid", "torus"])
+@pytest.mark.parametrize(
+    "surface", [Ellipsoid((2.0, 1.3, 0.7)), Torus((2.0, 1.0))], ids=["ellipsoid", "torus"]
+)
 @pytest.mark.parametrize("seed", [0, 1, 2])
 def test_morse_counts_on_random_maps(surface, seed):
     fmap = QuadSine(seed)
@@ -216,8 +222,9 @@ def test_morse_counts_on_random_maps(surface, seed):
         assert np.all(d[:, 0] >= -1e-7) and np.all(d[:, 1] <= 1e-7)
 
 
-@pytest.mark.parametrize("surface", [Ellipsoid((2.0, 1.3, 0.7)), Torus((2.0, 1.0))],
-                         ids=["ellipsoid", "torus"])
+@pytest.mark.parametrize(
+    "surface", [Ellipsoid((2.0, 1.3, 0.7)), Torus((2.0, 1.0))], ids=["ellipsoid", "torus"]
+)
 def test_proper_contours_end_at_critical_values_or_cusps(surface):
     # [CEF19]: the image of J_P is cut only at critical points of f1, f2 and at cusps; a cusp
     # is shared by exactly the two pieces meeting there

@@ -57,7 +57,7 @@ def test_jitter_of_one_keeps_only_remaining_equal_spacings():
     atlas = special_set(verticals("f", [0, 1]), verticals("g", [2, 3.0371]), W, resolution=31)
     ids = sorted(xs)
     expected = set()
-    pairs = [(p, q) for i, p in enumerate(ids) for q in ids[i + 1:]]
+    pairs = [(p, q) for i, p in enumerate(ids) for q in ids[i + 1 :]]
     for P in pairs:
         for Q in pairs:
             if P == Q:
@@ -78,13 +78,16 @@ def cross_atlas():
     return special_set(verticals("f", [0, 1]), horizontals("g", [0, 1]), W, resolution=41)
 
 
-@pytest.mark.parametrize("condition,pairs,a_exact", [
-    # math.md 5 / checks.md: s_v = (x0 - b)/a, s_h = (y0 + b)/(1 - a), so
-    # d_v = 1/a, d_h = 1/(1-a): equal at a = 1/2; 1/a = 2/(1-a) at a = 1/3; 1/(1-a) = 2/a at 2/3.
-    ("equal", (("f:v0", "f:v1"), ("g:h0", "g:h1")), 0.5),
-    ("half", (("f:v0", "f:v1"), ("g:h0", "g:h1")), 1 / 3),
-    ("half", (("g:h0", "g:h1"), ("f:v0", "f:v1")), 2 / 3),
-])
+@pytest.mark.parametrize(
+    "condition,pairs,a_exact",
+    [
+        # math.md 5 / checks.md: s_v = (x0 - b)/a, s_h = (y0 + b)/(1 - a), so
+        # d_v = 1/a, d_h = 1/(1-a): equal at a = 1/2; 1/a = 2/(1-a) at a = 1/3; 1/(1-a) = 2/a at 2/3.
+        ("equal", (("f:v0", "f:v1"), ("g:h0", "g:h1")), 0.5),
+        ("half", (("f:v0", "f:v1"), ("g:h0", "g:h1")), 1 / 3),
+        ("half", (("g:h0", "g:h1"), ("f:v0", "f:v1")), 2 / 3),
+    ],
+)
 def test_vertical_against_horizontal_lines(cross_atlas, condition, pairs, a_exact):
     piece = [p for p in cross_atlas.pieces if p.tie == Tie(pairs, condition)]
     assert len(piece) == 1 and piece[0].kind == "curve"
@@ -100,8 +103,18 @@ def test_json_and_geojson_contract(cross_atlas):
     import json
 
     d = json.loads(json.dumps(cross_atlas.to_json()))
-    assert set(d) >= {"window", "tolerance", "pairs", "method", "resolution", "components", "total_area",
-                      "area_fraction", "counts", "stats"}
+    assert set(d) >= {
+        "window",
+        "tolerance",
+        "pairs",
+        "method",
+        "resolution",
+        "components",
+        "total_area",
+        "area_fraction",
+        "counts",
+        "stats",
+    }
     for c in d["components"]:
         assert set(c) == {"id", "kind", "area", "length", "bbox", "ties"}
     gj = json.loads(json.dumps(cross_atlas.to_geojson()))
@@ -134,13 +147,17 @@ def test_pair_rules_follow_the_cost_kinds(mode):
     p, q = (x.ravel() for x in np.meshgrid(np.arange(n), np.arange(n), indexing="ij"))
     cross = [table.pair_ids(k)[0][0] != table.pair_ids(k)[1][0] for k in range(n)]  # from the ids
     for cond, rule in (("equal", equal_allowed), ("half", half_allowed)):
-        want = [pp != qq and (mode == "all" or _cost_kinds_tie(cond, cross[pp], cross[qq]))
-                for pp, qq in zip(p.tolist(), q.tolist(), strict=True)]
+        want = [
+            pp != qq and (mode == "all" or _cost_kinds_tie(cond, cross[pp], cross[qq]))
+            for pp, qq in zip(p.tolist(), q.tolist(), strict=True)
+        ]
         assert rule(table, p, q).tolist() == want
     # doubled items: every pair under "all"; under "roles" exactly the cross pairs
     assert doubled_pairs(table).tolist() == ([True] * n if mode == "all" else cross)
     pair_class, equal_ok, half_ok, doubled = kernel_flags(table)
-    assert pair_class.tolist() == [int(c) for c in cross] and doubled.tolist() == doubled_pairs(table).tolist()
+    assert (
+        pair_class.tolist() == [int(c) for c in cross] and doubled.tolist() == doubled_pairs(table).tolist()
+    )
     assert equal_ok.shape == half_ok.shape == (2, 2)
 
 
@@ -180,8 +197,12 @@ def test_tie_costs_on_vertical_lines():
     from specmap.special.pairs import tie_costs
 
     # push coordinates at a = 1/2, b = 0 are the abscissae (math.md 2): 0, 1 (f), 0.5, 1.5 (g)
-    C = {"f:v0": Contour("f:v0", "vertical", [0.0, -10.0]), "f:v1": Contour("f:v1", "vertical", [1.0, -10.0]),
-         "g:v0": Contour("g:v0", "vertical", [0.5, -10.0]), "g:v1": Contour("g:v1", "vertical", [1.5, -10.0])}
+    C = {
+        "f:v0": Contour("f:v0", "vertical", [0.0, -10.0]),
+        "f:v1": Contour("f:v1", "vertical", [1.0, -10.0]),
+        "g:v0": Contour("g:v0", "vertical", [0.5, -10.0]),
+        "g:v1": Contour("g:v1", "vertical", [1.5, -10.0]),
+    }
     lo, hi = tie_costs(Tie((("f:v0", "g:v0"), ("f:v1", "g:v1")), "equal"), C, 0.5, 0.0)
     assert (float(lo), float(hi)) == pytest.approx((0.5, 0.5))  # two matching costs 0.5
     lo, hi = tie_costs(Tie((("f:v0", "f:v1"), ("f:v1", "g:v0")), "half"), C, 0.5, 0.0)

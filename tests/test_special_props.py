@@ -177,8 +177,9 @@ def test_roles_is_a_subset_of_all():
 def test_progress_is_reported():
     f, g = random_pair(19, 4)
     calls = []
-    special_set(f, g, default_window(f.bbox(), g.bbox()), resolution=RES,
-                progress=lambda d, t: calls.append((d, t)))
+    special_set(
+        f, g, default_window(f.bbox(), g.bbox()), resolution=RES, progress=lambda d, t: calls.append((d, t))
+    )
     assert calls and calls[-1][0] == calls[-1][1]
 
 
@@ -215,7 +216,8 @@ def test_lattice_components_match_generic_components(seed):
     generic = reference_components(at.pieces, w)
 
     def key(cs):
-        return sorted((tuple((t.condition, t.pairs) for t in c.ties), round(c.length, 9), round(c.area, 9))
-                      for c in cs)
+        return sorted(
+            (tuple((t.condition, t.pairs) for t in c.ties), round(c.length, 9), round(c.area, 9)) for c in cs
+        )
 
     assert key(at.components) == key(generic)

@@ -32,8 +32,10 @@ def test_defaults_and_relative_paths(tmp_path: Path) -> None:
 
 def test_function_model_rejected_for_grid_files(tmp_path: Path) -> None:
     (tmp_path / "g.json").write_text("{}")
-    p = write(tmp_path, '[study]\nname = "x"\n[f]\ngrid = "g.json"\n[g]\ngrid = "g.json"\n'
-                        '[perturb]\nmodel = "function"\n')
+    p = write(
+        tmp_path,
+        '[study]\nname = "x"\n[f]\ngrid = "g.json"\n[g]\ngrid = "g.json"\n[perturb]\nmodel = "function"\n',
+    )
     with pytest.raises(StudyError, match="perturb.model"):
         load_study(p)
 
@@ -58,10 +60,22 @@ def test_grid_file_side_is_a_grid_and_sets_the_window(tmp_path: Path) -> None:
     from specmap.shapes.model import Shape
 
     pts = [[-0.5, 2.0], [0.25, 1.0], [1.5, -0.75]]
-    (tmp_path / "f.json").write_text(json.dumps({"format": "specmap-grid/1", "contours": [
-        {"id": "p0", "kind": "proper", "points": pts}, {"id": "v0", "kind": "vertical", "start": [3.0, 0.5]}]}))
-    p = write(tmp_path, '[study]\nname = "x"\n[f]\ngrid = "f.json"\n'
-                        '[g]\nsurface = "ellipsoid"\nradii = [2, 1, 1]\nmap = ["x", "y"]\nresolution = 300\n')
+    (tmp_path / "f.json").write_text(
+        json.dumps(
+            {
+                "format": "specmap-grid/1",
+                "contours": [
+                    {"id": "p0", "kind": "proper", "points": pts},
+                    {"id": "v0", "kind": "vertical", "start": [3.0, 0.5]},
+                ],
+            }
+        )
+    )
+    p = write(
+        tmp_path,
+        '[study]\nname = "x"\n[f]\ngrid = "f.json"\n'
+        '[g]\nsurface = "ellipsoid"\nradii = [2, 1, 1]\nmap = ["x", "y"]\nresolution = 300\n',
+    )
     run = StudyRun(load_study(p), tmp_path / "out", show_progress=False)
     sf, sg = run.shapes
     assert sf is None and isinstance(sg, Shape) and sg.has_mesh

@@ -119,8 +119,13 @@ def test_torus_distance_to_centre_circle_after_projection():
 def test_make_surface_and_bad_input():
     assert make_surface("ellipsoid", [1, 2, 3]).radii == (1.0, 2.0, 3.0)
     assert make_surface("torus", (2, 1)).euler_characteristic == 0
-    for kind, radii in [("ellipsoid", (1, 2)), ("ellipsoid", (1, -2, 3)), ("torus", (1, 2)),
-                        ("torus", (2, 0)), ("cube", (1, 1, 1))]:
+    for kind, radii in [
+        ("ellipsoid", (1, 2)),
+        ("ellipsoid", (1, -2, 3)),
+        ("torus", (1, 2)),
+        ("torus", (2, 0)),
+        ("cube", (1, 1, 1)),
+    ]:
         with pytest.raises(ValueError):
             make_surface(kind, radii)
 

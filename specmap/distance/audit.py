@@ -18,8 +18,14 @@ def _line(at) -> list[float] | None:
     return point_json(at) if all(math.isfinite(x) for x in at) else None
 
 
-def theorem_audit(dense: DenseSweep | None, by_degree: dict[int, dict[str, Any]], degrees: Sequence[int],
-                  tolerance: float, *, upper: float) -> dict[str, Any]:
+def theorem_audit(
+    dense: DenseSweep | None,
+    by_degree: dict[int, dict[str, Any]],
+    degrees: Sequence[int],
+    tolerance: float,
+    *,
+    upper: float,
+) -> dict[str, Any]:
     """The reduced search against two independent checks, both ways, per degree [EFQT23, FMQT].
 
     For each degree k with reduced value R_k:
@@ -54,8 +60,13 @@ def theorem_audit(dense: DenseSweep | None, by_degree: dict[int, dict[str, Any]]
     for j, k in enumerate(degrees):
         r, r_at = by_degree[k]["value"], by_degree[k]["at"]
         u = min(upper, dense.upper(j)) if dense is not None else upper
-        row: dict[str, Any] = {"reduced_minus_upper": None, "reduced_above_upper": None,
-                               "dense_minus_reduced": None, "dense_above_reduced": None, "line": None}
+        row: dict[str, Any] = {
+            "reduced_minus_upper": None,
+            "reduced_above_upper": None,
+            "dense_minus_reduced": None,
+            "dense_above_reduced": None,
+            "line": None,
+        }
         if math.isfinite(r) and math.isfinite(u):
             row["reduced_minus_upper"] = float(r - u)
             row["reduced_above_upper"] = bool(r - u > tolerance)
@@ -78,10 +89,17 @@ def theorem_audit(dense: DenseSweep | None, by_degree: dict[int, dict[str, Any]]
         rows[str(k)] = row
     above = [r["reduced_above_upper"] for r in rows.values() if r["reduced_above_upper"] is not None]
     below = [r["dense_above_reduced"] for r in rows.values() if r["dense_above_reduced"] is not None]
-    out: dict[str, Any] = {"theorem_gap": None, "gap": None, "degree": None, "line": None,
-                           "theorem": {"reduced_above_upper": any(above) if above else None,
-                                       "dense_above_reduced": any(below) if below else None,
-                                       "by_degree": rows}}
+    out: dict[str, Any] = {
+        "theorem_gap": None,
+        "gap": None,
+        "degree": None,
+        "line": None,
+        "theorem": {
+            "reduced_above_upper": any(above) if above else None,
+            "dense_above_reduced": any(below) if below else None,
+            "by_degree": rows,
+        },
+    }
     if gaps:
         gap, k, at = max(gaps, key=lambda g: g[0])
         out.update(gap=float(gap), degree=k, line=_line(at))
@@ -92,13 +110,17 @@ def theorem_audit(dense: DenseSweep | None, by_degree: dict[int, dict[str, Any]]
         out.update(degree=k, line=_line(at))
         for size, what, k, at in flags:
             # stacklevel 3: the caller of matching_distance
-            warnings.warn(f"{what} by {size:.4g} > tolerance {tolerance:.3g} in degree {k} at (a, b) = "
-                          f"({at[0]:.4g}, {at[1]:.4g})", stacklevel=3)
+            warnings.warn(
+                f"{what} by {size:.4g} > tolerance {tolerance:.3g} in degree {k} at (a, b) = "
+                f"({at[0]:.4g}, {at[1]:.4g})",
+                stacklevel=3,
+            )
     return out
 
 
-def position_audit(shape_f, shape_g, grids, window: Window, *, tolerance: float, lines: int = 20,
-                   seed: int = 0) -> dict[str, Any]:
+def position_audit(
+    shape_f, shape_g, grids, window: Window, *, tolerance: float, lines: int = 20, seed: int = 0
+) -> dict[str, Any]:
     """How many finite diagram coordinates sit at push coordinates of the grid [CEF19].
 
     For ``lines`` lines drawn uniformly in the window (fixed seed), every finite
@@ -122,7 +144,9 @@ def position_audit(shape_f, shape_g, grids, window: Window, *, tolerance: float,
     for shape, grid in zip((shape_f, shape_g), grids, strict=True):
         eng = SliceEngine.from_shape(shape)
         for a, b in zip(A, B, strict=True):
-            push = np.array([line_parameter(c, a, b) for c in grid.contours], dtype=float) * float(push_scale(a))
+            push = np.array([line_parameter(c, a, b) for c in grid.contours], dtype=float) * float(
+                push_scale(a)
+            )
             push = push[np.isfinite(push)]
             d = eng.diagrams(a, b)
             coords = np.concatenate([v.ravel() for v in d.values()])
@@ -134,6 +158,10 @@ def position_audit(shape_f, shape_g, grids, window: Window, *, tolerance: float,
                 continue
             devs.extend(np.abs(coords[:, None] - push[None, :]).min(axis=1).tolist())
     devs_a = np.asarray(devs, dtype=float)
-    return {"fraction_explained": float(np.mean(devs_a <= tolerance)) if len(devs_a) else 1.0,
-            "max_deviation": float(devs_a.max()) if len(devs_a) else 0.0,
-            "lines": int(lines), "coordinates": int(len(devs_a)), "tolerance": float(tolerance)}
+    return {
+        "fraction_explained": float(np.mean(devs_a <= tolerance)) if len(devs_a) else 1.0,
+        "max_deviation": float(devs_a.max()) if len(devs_a) else 0.0,
+        "lines": int(lines),
+        "coordinates": int(len(devs_a)),
+        "tolerance": float(tolerance),
+    }

@@ -19,8 +19,9 @@ SLOPE_ONE_LIPSCHITZ = 2.0
 """|h_k(1/2, b) - h_k(1/2, b')| <= 2 |b - b'| for every k (:func:`lipschitz_constants`, L_b = 1 per map)."""
 
 
-def lipschitz_constants(bounds_f: Sequence[float], bounds_g: Sequence[float],
-                        window: Window) -> tuple[float, float]:
+def lipschitz_constants(
+    bounds_f: Sequence[float], bounds_g: Sequence[float], window: Window
+) -> tuple[float, float]:
     """Constants (L_a, L_b) with ||F*(a, b) - F*(a', b')||_inf <= L_a |a - a'| + L_b |b - b'|.
 
     Derivation (math.md section 2, explicit forms). For a <= 1/2,
@@ -51,8 +52,17 @@ def lipschitz_constants(bounds_f: Sequence[float], bounds_g: Sequence[float],
     b_lo, b_hi = window.b
     m = 0.0
     for lo1, lo2, hi1, hi2 in (bounds_f, bounds_g):
-        m = max(m, abs(hi1 - b_lo), abs(lo1 - b_hi), abs(hi2 + b_hi), abs(lo2 + b_lo),
-                abs(hi1 - b_hi), abs(lo1 - b_lo), abs(hi2 + b_lo), abs(lo2 + b_hi))
+        m = max(
+            m,
+            abs(hi1 - b_lo),
+            abs(lo1 - b_hi),
+            abs(hi2 + b_hi),
+            abs(lo2 + b_lo),
+            abs(hi1 - b_hi),
+            abs(lo1 - b_lo),
+            abs(hi2 + b_lo),
+            abs(lo2 + b_hi),
+        )
     return 4.0 * m, 1.0
 
 
@@ -69,8 +79,12 @@ def distance_upper_bound(shape_f, shape_g) -> tuple[float, str]:
       (the same for a >= 1/2 with the roles of f1, f2 exchanged).
     """
     vf, vg = shape_f.values, shape_g.values
-    same = (vf.shape == vg.shape and shape_f.triangles is not None and shape_g.triangles is not None
-            and np.array_equal(shape_f.triangles, shape_g.triangles))
+    same = (
+        vf.shape == vg.shape
+        and shape_f.triangles is not None
+        and shape_g.triangles is not None
+        and np.array_equal(shape_f.triangles, shape_g.triangles)
+    )
     if same:
         return float(np.abs(vf - vg).max()), "sup_norm"
     f1lo, f2lo, f1hi, f2hi = shape_f.value_bounds()
@@ -85,8 +99,9 @@ def value_range(shape_f, shape_g) -> float:
     return float(max(f1hi - f1lo, f2hi - f2lo, g1hi - g1lo, g2hi - g2lo, 1e-12))
 
 
-def cell_error_bound(H: np.ndarray, av: np.ndarray, bv: np.ndarray, bounds_f: Sequence[float],
-                     bounds_g: Sequence[float]) -> float:
+def cell_error_bound(
+    H: np.ndarray, av: np.ndarray, bv: np.ndarray, bounds_f: Sequence[float], bounds_g: Sequence[float]
+) -> float:
     """Sampling error of a node grid: sup of h over the window minus max of h over the nodes (upper bound).
 
     Cell by cell, with the local constants of :func:`lipschitz_constants`
@@ -157,9 +172,10 @@ def line_upper_bound(values_f: np.ndarray, values_g: np.ndarray, a, b, *, chunk:
     vf, vg = np.asarray(values_f, float), np.asarray(values_g, float)
     out = np.empty(af.shape)
     for i in range(0, len(af), chunk):
-        aa, bb = af[i:i + chunk], bf[i:i + chunk]
-        out[i:i + chunk] = np.abs(star_values(vf[:, None, :], aa, bb)
-                                  - star_values(vg[:, None, :], aa, bb)).max(axis=0)
+        aa, bb = af[i : i + chunk], bf[i : i + chunk]
+        out[i : i + chunk] = np.abs(
+            star_values(vf[:, None, :], aa, bb) - star_values(vg[:, None, :], aa, bb)
+        ).max(axis=0)
     return out.reshape(a.shape)
 
 
@@ -220,7 +236,7 @@ class LocalBound:
             return np.array([math.inf])
         P, H = self.pts[0], self.h[0]
         d = np.linalg.norm(P - normalise(np.array([a, b]), self.window), axis=1)
-        idx = np.argsort(d)[:self.near]
+        idx = np.argsort(d)[: self.near]
         ff = star_rows(self.vf, np.array([a]), np.array([b]))[0]
         fg = star_rows(self.vg, np.array([a]), np.array([b]))[0]
         move = np.abs(self.Ff[0][idx] - ff).max(axis=1) + np.abs(self.Fg[0][idx] - fg).max(axis=1)

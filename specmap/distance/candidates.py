@@ -34,8 +34,9 @@ class _LiveTies:
     paths: list[np.ndarray] = field(default_factory=list)  # normalised
     paths_of: dict[int, list[int]] = field(default_factory=dict)
     samples: list[np.ndarray] = field(default_factory=list)  # one per path
-    pruned: dict[str, int] = field(default_factory=lambda: {"roles": 0, "unknown_contour": 0, "not_met": 0,
-                                                            "outside_window": 0})
+    pruned: dict[str, int] = field(
+        default_factory=lambda: {"roles": 0, "unknown_contour": 0, "not_met": 0, "outside_window": 0}
+    )
 
 
 @dataclass(frozen=True)
@@ -99,8 +100,15 @@ class _Sampled:
     tie_top: np.ndarray  # sampled max plus the largest step between neighbours, per live tie
 
 
-def _sampled_candidates(live: _LiveTies, codes: np.ndarray, quads: np.ndarray, columns: dict,
-                        contours_by_id: dict, window: Window, cut: float) -> _Sampled:
+def _sampled_candidates(
+    live: _LiveTies,
+    codes: np.ndarray,
+    quads: np.ndarray,
+    columns: dict,
+    contours_by_id: dict,
+    window: Window,
+    cut: float,
+) -> _Sampled:
     """Local maxima of the cost ``hi`` along each path and path ends inside the window, above ``cut``."""
     path_live = np.array([i for i, ip in enumerate(live.ids) for _ in live.paths_of[ip]], dtype=np.int64)
     if live.paths:
@@ -140,8 +148,9 @@ def _sampled_candidates(live: _LiveTies, codes: np.ndarray, quads: np.ndarray, c
         tie_top = tie_top + tie_step
     low = keep & (hi <= cut)  # NaN compares False: such samples are not kept anyway
     keep &= ~low
-    parts = _Parts(raw[keep, 0], raw[keep, 1], lo[keep], hi[keep], li[keep],
-                   np.where(local_max[keep], LOCAL_MAX, END))
+    parts = _Parts(
+        raw[keep, 0], raw[keep, 1], lo[keep], hi[keep], li[keep], np.where(local_max[keep], LOCAL_MAX, END)
+    )
     return _Sampled(parts, int(low.sum()), has, tie_top)
 
 
@@ -163,8 +172,15 @@ def _sharing_pairs(pieces: tuple, live: _LiveTies, alive: np.ndarray) -> np.ndar
     return np.unique(np.c_[np.concatenate(us), np.concatenate(vs)], axis=0)
 
 
-def _crossing_candidates(uv: np.ndarray, live: _LiveTies, codes: np.ndarray, quads: np.ndarray,
-                         columns: dict, contours_by_id: dict, cut: float) -> tuple[_Parts | None, int, int]:
+def _crossing_candidates(
+    uv: np.ndarray,
+    live: _LiveTies,
+    codes: np.ndarray,
+    quads: np.ndarray,
+    columns: dict,
+    contours_by_id: dict,
+    cut: float,
+) -> tuple[_Parts | None, int, int]:
     """Crossings of the tie pairs ``uv`` above ``cut``: (parts or None, crossings, candidates below floor)."""
     from shapely import intersection, intersects
 
@@ -181,9 +197,16 @@ def _crossing_candidates(uv: np.ndarray, live: _LiveTies, codes: np.ndarray, qua
     return parts, len(pa_a) // 2, int(low.sum())
 
 
-def special_candidates(atlas, contours_by_id: dict, window: Window, *, spacing: float = 1 / 200,
-                       roles: bool = True, floor: float = -math.inf,
-                       tolerance: float = 0.0) -> Candidates:
+def special_candidates(
+    atlas,
+    contours_by_id: dict,
+    window: Window,
+    *,
+    spacing: float = 1 / 200,
+    roles: bool = True,
+    floor: float = -math.inf,
+    tolerance: float = 0.0,
+) -> Candidates:
     """The finite candidate set of the reduced search, built without any diagram.
 
     For every tie piece of ``atlas`` whose tie is a tie of two costs
@@ -225,20 +248,29 @@ def special_candidates(atlas, contours_by_id: dict, window: Window, *, spacing: 
         if len(uv):
             over = (sampled.tie_top[uv[:, 0]] > cut) | (sampled.tie_top[uv[:, 1]] > cut)
             pruned["crossing_pairs_below_floor"] = int((~over).sum())
-            parts, n_crossings, low = _crossing_candidates(uv[over], live, codes, quads, columns,
-                                                           contours_by_id, cut)
+            parts, n_crossings, low = _crossing_candidates(
+                uv[over], live, codes, quads, columns, contours_by_id, cut
+            )
             below_floor += low
             if parts is not None:
                 groups.append(parts)
     live_arr = np.asarray(live.ids, dtype=np.int64)
     live_idx = np.concatenate([g.live for g in groups])
     return Candidates(
-        a=np.concatenate([g.a for g in groups]), b=np.concatenate([g.b for g in groups]),
-        lo=np.concatenate([g.lo for g in groups]), hi=np.concatenate([g.hi for g in groups]),
+        a=np.concatenate([g.a for g in groups]),
+        b=np.concatenate([g.b for g in groups]),
+        lo=np.concatenate([g.lo for g in groups]),
+        hi=np.concatenate([g.hi for g in groups]),
         piece=live_arr[live_idx] if len(live_arr) else np.zeros(0, dtype=np.int64),
         origin=np.concatenate([g.origin for g in groups]).astype(np.int64),
-        paths=live.paths, paths_of=live.paths_of, pruned=pruned, crossings=n_crossings,
-        below_floor=below_floor, live=[live.ids[i] for i in alive], seconds=time.perf_counter() - t0)
+        paths=live.paths,
+        paths_of=live.paths_of,
+        pruned=pruned,
+        crossings=n_crossings,
+        below_floor=below_floor,
+        live=[live.ids[i] for i in alive],
+        seconds=time.perf_counter() - t0,
+    )
 
 
 def _crossing_points(inter: np.ndarray, uv: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
@@ -259,7 +291,7 @@ def _crossing_points(inter: np.ndarray, uv: np.ndarray) -> tuple[np.ndarray, np.
         xs, ys, us = [], [], []
         for k, g in enumerate(inter):
             for path in geometry_paths(g):
-                for x, y in (path if len(path) == 1 else path[[0, -1]]):
+                for x, y in path if len(path) == 1 else path[[0, -1]]:
                     xs.append(x)
                     ys.append(y)
                     us.append(k)

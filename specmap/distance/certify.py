@@ -40,9 +40,17 @@ def _finite_or(x: float, default: float) -> float:
     return float(x) if not math.isnan(x) else default
 
 
-def degree_certificate(j: int, value: float, dense: DenseSweep | None, red: ReducedSearch | None, *,
-                       tolerance: float, upper: float, upper_kind: str,
-                       max_lines: int | None = None) -> dict[str, Any]:
+def degree_certificate(
+    j: int,
+    value: float,
+    dense: DenseSweep | None,
+    red: ReducedSearch | None,
+    *,
+    tolerance: float,
+    upper: float,
+    upper_kind: str,
+    max_lines: int | None = None,
+) -> dict[str, Any]:
     """``{"bounds", "certified", "why_not", "upper_kind"}`` of degree index j.
 
     Parameters
@@ -87,16 +95,19 @@ def degree_certificate(j: int, value: float, dense: DenseSweep | None, red: Redu
         theorem = max(float(ss.bound[j]), r + tolerance)
         if lower > theorem + tolerance:
             a, b = dense.best[j][1] if dense is not None else (math.nan, math.nan)
-            why = (f"the dense sweep found {lower:.4g} at (a, b) = ({a:.4g}, {b:.4g}), above the reduced "
-                   f"search's bound {theorem:.4g}: the theorem does not hold on these grids and meshes")
+            why = (
+                f"the dense sweep found {lower:.4g} at (a, b) = ({a:.4g}, {b:.4g}), above the reduced "
+                f"search's bound {theorem:.4g}: the theorem does not hold on these grids and meshes"
+            )
             theorem = None
         elif not ss.certified_groups[j]:
             cap = f"its {max_lines}-line cap" if max_lines else "its line budget"
-            why = (f"slope-one search stopped at {cap}: bound {ss.bound[j]:.4g} against best "
-                   f"{ss.best[j]:.4g}")
+            why = f"slope-one search stopped at {cap}: bound {ss.bound[j]:.4g} against best {ss.best[j]:.4g}"
         elif theorem - lower > slack:
-            why = (f"the special-set pass bounds the maximum over degrees only ([distance] certify = "
-                   f"\"{red.settings.certify}\"), here by {theorem:.4g}; certify = \"each\" closes every degree")
+            why = (
+                f"the special-set pass bounds the maximum over degrees only ([distance] certify = "
+                f'"{red.settings.certify}"), here by {theorem:.4g}; certify = "each" closes every degree'
+            )
     ups = [u for u in rigorous if math.isfinite(u[0])]
     if theorem is not None and math.isfinite(theorem):
         ups.append((theorem, "slope-one+special"))
@@ -107,8 +118,10 @@ def degree_certificate(j: int, value: float, dense: DenseSweep | None, red: Redu
         if best_rig[0] - lower <= slack and best_rig[0] <= up:
             up, kind = best_rig
     elif why is not None and dense is not None:
-        why += (f"; the dense sweep bounds it by {dense.upper(j):.4g} only (cell error bound "
-                f"{dense.error_bounds[j]:.3g})")
+        why += (
+            f"; the dense sweep bounds it by {dense.upper(j):.4g} only (cell error bound "
+            f"{dense.error_bounds[j]:.3g})"
+        )
     return {"bounds": [lower, up], "certified": bool(certified), "why_not": why, "upper_kind": kind}
 
 
@@ -137,8 +150,9 @@ def mesh_tolerance(shape) -> float:
     return float(dev.max()) if len(dev) else 0.0
 
 
-def resolution_check(value: float, *, tolerance: float, grid_tolerance: float,
-                     mesh_tol: float) -> dict[str, Any]:
+def resolution_check(
+    value: float, *, tolerance: float, grid_tolerance: float, mesh_tol: float
+) -> dict[str, Any]:
     """``{"resolved", "resolved_why"}``: is D_k at least 3 times the largest tolerance in play?
 
     The floor is max(distance tolerance, grid tolerance, mesh tolerance); below
@@ -151,9 +165,14 @@ def resolution_check(value: float, *, tolerance: float, grid_tolerance: float,
     name, floor = max(((k, v) for k, v in parts.items() if math.isfinite(v)), key=lambda kv: kv[1])
     if value >= RESOLVED_FACTOR * floor:
         return {"resolved": True, "resolved_why": None}
-    fix = {"mesh tolerance": "raise the mesh resolution of f and g ([f]/[g] resolution)",
-           "grid tolerance": "use an exact grid route or a finer grid (smaller grid tolerance)",
-           "distance tolerance": "lower [distance] tolerance"}[name]
-    return {"resolved": False,
-            "resolved_why": (f"D = {value:.4g} is below {RESOLVED_FACTOR:g} x the {name} {floor:.3g}: "
-                             f"{fix}, then rerun")}
+    fix = {
+        "mesh tolerance": "raise the mesh resolution of f and g ([f]/[g] resolution)",
+        "grid tolerance": "use an exact grid route or a finer grid (smaller grid tolerance)",
+        "distance tolerance": "lower [distance] tolerance",
+    }[name]
+    return {
+        "resolved": False,
+        "resolved_why": (
+            f"D = {value:.4g} is below {RESOLVED_FACTOR:g} x the {name} {floor:.3g}: {fix}, then rerun"
+        ),
+    }

@@ -49,12 +49,22 @@ def _check_inputs(shape_f, shape_g, method: str) -> None:
         require_mesh(s, "slice diagrams")
 
 
-def _reduced_stage(ev: LineEvaluator, window: Window, pair: tuple | None, atlas, *, tolerance: float,
-                   upper: float, settings: ReducedSettings) -> ReducedSearch:
+def _reduced_stage(
+    ev: LineEvaluator,
+    window: Window,
+    pair: tuple | None,
+    atlas,
+    *,
+    tolerance: float,
+    upper: float,
+    settings: ReducedSettings,
+) -> ReducedSearch:
     """The reduced search, with the atlas computed from the grids when not given."""
     if pair is None:
-        raise MissingInputError("the reduced search needs the extended Pareto grids of f and g",
-                                fix="pass grids=(grid_f, grid_g) or use method 'dense'")
+        raise MissingInputError(
+            "the reduced search needs the extended Pareto grids of f and g",
+            fix="pass grids=(grid_f, grid_g) or use method 'dense'",
+        )
     if atlas is None:
         from specmap.special import special_set
 
@@ -63,8 +73,9 @@ def _reduced_stage(ev: LineEvaluator, window: Window, pair: tuple | None, atlas,
     return reduced_search(ev, window, atlas, contours, tolerance=tolerance, upper=upper, settings=settings)
 
 
-def _by_degree(red: ReducedSearch | None, dense: DenseSweep | None, degrees: Sequence[int],
-               tolerance: float) -> dict[int, dict[str, Any]]:
+def _by_degree(
+    red: ReducedSearch | None, dense: DenseSweep | None, degrees: Sequence[int], tolerance: float
+) -> dict[int, dict[str, Any]]:
     """Per degree: value, line, where reached (slope-one / special / both / dense); certificates come later."""
     out: dict[int, dict[str, Any]] = {}
     for j, k in enumerate(degrees):
@@ -85,25 +96,59 @@ def _by_degree(red: ReducedSearch | None, dense: DenseSweep | None, degrees: Seq
     return out
 
 
-def _certify_degrees(by_degree: dict[int, dict[str, Any]], degrees: Sequence[int], dense: DenseSweep | None,
-                     red: ReducedSearch | None, *, tolerance: float, upper: float, upper_kind: str,
-                     floors: tuple[float, float], max_lines: int) -> None:
+def _certify_degrees(
+    by_degree: dict[int, dict[str, Any]],
+    degrees: Sequence[int],
+    dense: DenseSweep | None,
+    red: ReducedSearch | None,
+    *,
+    tolerance: float,
+    upper: float,
+    upper_kind: str,
+    floors: tuple[float, float],
+    max_lines: int,
+) -> None:
     """Add ``bounds``, ``certified``, ``why_not``, ``upper_kind``, ``resolved``, ``resolved_why`` per degree."""
     for j, k in enumerate(degrees):
         e = by_degree[k]
-        e.update(degree_certificate(j, e["value"], dense, red, tolerance=tolerance, upper=upper,
-                                    upper_kind=upper_kind, max_lines=max_lines))
-        e.update(resolution_check(e["value"], tolerance=tolerance, grid_tolerance=floors[0],
-                                  mesh_tol=floors[1]))
+        e.update(
+            degree_certificate(
+                j,
+                e["value"],
+                dense,
+                red,
+                tolerance=tolerance,
+                upper=upper,
+                upper_kind=upper_kind,
+                max_lines=max_lines,
+            )
+        )
+        e.update(
+            resolution_check(e["value"], tolerance=tolerance, grid_tolerance=floors[0], mesh_tol=floors[1])
+        )
 
 
 # long by its docstring and public keyword signature only; the body composes the stages in about 40 lines
-def matching_distance(shape_f, shape_g, *, settings: DistanceSettings | None = None, method: str | None = None,
-                      degrees: Iterable[int] | None = None, window: Window | None = None, atlas=None,
-                      grids=None, jobs: int = 1, dense_resolution: int | None = None,
-                      progress: Progress | None = None, tolerance: float | None = None,
-                      slope_samples: int | None = None, spacing: float | None = None, roles: bool | None = None,
-                      certify: str | None = None, position_lines: int | None = None) -> DistanceResult:
+def matching_distance(
+    shape_f,
+    shape_g,
+    *,
+    settings: DistanceSettings | None = None,
+    method: str | None = None,
+    degrees: Iterable[int] | None = None,
+    window: Window | None = None,
+    atlas=None,
+    grids=None,
+    jobs: int = 1,
+    dense_resolution: int | None = None,
+    progress: Progress | None = None,
+    tolerance: float | None = None,
+    slope_samples: int | None = None,
+    spacing: float | None = None,
+    roles: bool | None = None,
+    certify: str | None = None,
+    position_lines: int | None = None,
+) -> DistanceResult:
     """Matching distance D_k(f, g) of two meshed maps, dense, reduced or both.
 
     Parameters
@@ -157,10 +202,20 @@ def matching_distance(shape_f, shape_g, *, settings: DistanceSettings | None = N
     ----------
     .. [CDFFL13] Cerri et al. (2013); [EFQT23] Ethier et al. (2023); [FMQT] arXiv:2312.04201.
     """
-    given: dict[str, Any] = {"method": method, "degrees": None if degrees is None else tuple(degrees),
-             "dense_resolution": dense_resolution, "tolerance": tolerance, "slope_samples": slope_samples,
-             "spacing": spacing, "roles": roles, "certify": certify, "position_lines": position_lines}
-    s = dataclasses.replace(settings or DistanceSettings(), **{k: v for k, v in given.items() if v is not None})
+    given: dict[str, Any] = {
+        "method": method,
+        "degrees": None if degrees is None else tuple(degrees),
+        "dense_resolution": dense_resolution,
+        "tolerance": tolerance,
+        "slope_samples": slope_samples,
+        "spacing": spacing,
+        "roles": roles,
+        "certify": certify,
+        "position_lines": position_lines,
+    }
+    s = dataclasses.replace(
+        settings or DistanceSettings(), **{k: v for k, v in given.items() if v is not None}
+    )
     method, degrees, dense_resolution, tolerance = s.method, s.degrees, s.dense_resolution, s.tolerance
     certify, position_lines = s.certify, s.position_lines
     _check_inputs(shape_f, shape_g, method)
@@ -182,26 +237,55 @@ def matching_distance(shape_f, shape_g, *, settings: DistanceSettings | None = N
     by_degree = _by_degree(red, dense, degrees, tol)
     grid_tol = max((float(g.tolerance) for g in pair), default=0.0) if pair is not None else 0.0
     floors = (grid_tol, max(mesh_tolerance(shape_f), mesh_tolerance(shape_g)))
-    _certify_degrees(by_degree, degrees, dense, red, tolerance=tol, upper=upper, upper_kind=upper_kind,
-                     floors=floors, max_lines=reduced_settings.slope_max_lines)
+    _certify_degrees(
+        by_degree,
+        degrees,
+        dense,
+        red,
+        tolerance=tol,
+        upper=upper,
+        upper_kind=upper_kind,
+        floors=floors,
+        max_lines=reduced_settings.slope_max_lines,
+    )
     kmax = max(degrees, key=lambda k: by_degree[k]["value"])
     top = by_degree[kmax]
 
     # theorem_gap / gap stay None ("not run") unless the dense sweep ran (or a flag was raised)
-    audit: dict[str, Any] = {"theorem_gap": None, "gap": None, "line": None, "degree": None,
-                             "position": None, "upper_bound": upper, "upper_bound_kind": upper_kind}
+    audit: dict[str, Any] = {
+        "theorem_gap": None,
+        "gap": None,
+        "line": None,
+        "degree": None,
+        "position": None,
+        "upper_bound": upper,
+        "upper_bound_kind": upper_kind,
+    }
     if red is not None:
         audit.update(theorem_audit(dense, by_degree, degrees, tol, upper=upper))
     if pair is not None and position_lines > 0:
-        audit["position"] = position_audit(shape_f, shape_g, pair, window, tolerance=tol, lines=position_lines)
+        audit["position"] = position_audit(
+            shape_f, shape_g, pair, window, tolerance=tol, lines=position_lines
+        )
 
     return DistanceResult(
-        value=float(top["value"]), at=top["at"], reached_on=top["reached_on"], component=top["component"],
-        by_degree=by_degree, dense=None if dense is None else dense_json(dense, degrees),
-        reduced=None if red is None else reduced_json(red, degrees, top, kmax), audit=audit,
-        tolerance=float(tol), infinite=list(ev.infinite),
-        landscape=None if dense is None else landscape_json(dense, degrees), window=window,
-        meta={"degrees": list(degrees), "lines_total": ev.lines, "jobs": int(jobs),
-              "lipschitz": {"a": lip[0], "b": lip[1]},
-              "resolution_floor": {"distance": float(tol), "grid": floors[0], "mesh": floors[1]}},
+        value=float(top["value"]),
+        at=top["at"],
+        reached_on=top["reached_on"],
+        component=top["component"],
+        by_degree=by_degree,
+        dense=None if dense is None else dense_json(dense, degrees),
+        reduced=None if red is None else reduced_json(red, degrees, top, kmax),
+        audit=audit,
+        tolerance=float(tol),
+        infinite=list(ev.infinite),
+        landscape=None if dense is None else landscape_json(dense, degrees),
+        window=window,
+        meta={
+            "degrees": list(degrees),
+            "lines_total": ev.lines,
+            "jobs": int(jobs),
+            "lipschitz": {"a": lip[0], "b": lip[1]},
+            "resolution_floor": {"distance": float(tol), "grid": floors[0], "mesh": floors[1]},
+        },
     )

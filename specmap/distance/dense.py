@@ -12,11 +12,18 @@ from specmap.distance.bounds import cell_error_bound
 from specmap.distance.evaluator import LineEvaluator
 from specmap.distance.refine import pattern_search
 from specmap.distance.result import DenseSweep
+from specmap.settings import DistanceSettings
 from specmap.strip import Window
 
 
-def dense_sweep(ev: LineEvaluator, window: Window, *, resolution: int = 41, refine: bool = True,
-                bounds: tuple[Sequence[float], Sequence[float]] | None = None) -> DenseSweep:
+def dense_sweep(
+    ev: LineEvaluator,
+    window: Window,
+    *,
+    resolution: int = DistanceSettings.dense_resolution,
+    refine: bool = True,
+    bounds: tuple[Sequence[float], Sequence[float]] | None = None,
+) -> DenseSweep:
     """h_k on a ``resolution`` x ``resolution`` node grid, maxima refined by pattern search.
 
     The sampling-error bound (:func:`~specmap.distance.bounds.cell_error_bound`, per
@@ -63,6 +70,15 @@ def dense_sweep(ev: LineEvaluator, window: Window, *, resolution: int = 41, refi
     if bounds is not None:
         errs = [cell_error_bound(H[j], av, bv, *bounds) for j in range(len(ev.degrees))]
     err = max(errs, default=math.inf)
-    return DenseSweep(grid=H, a=av, b=bv, best=best, node_best=node_best, error_bound=err,
-                      lines=ev.lines - n0, seconds=time.perf_counter() - t0, resolution=int(resolution),
-                      error_bounds=errs)
+    return DenseSweep(
+        grid=H,
+        a=av,
+        b=bv,
+        best=best,
+        node_best=node_best,
+        error_bound=err,
+        lines=ev.lines - n0,
+        seconds=time.perf_counter() - t0,
+        resolution=int(resolution),
+        error_bounds=errs,
+    )

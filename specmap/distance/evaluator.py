@@ -27,8 +27,9 @@ def _mesh_parts(source) -> tuple[np.ndarray, np.ndarray]:
     return np.asarray(shape.triangles), np.asarray(shape.values, dtype=float)
 
 
-def _h_lines(engine_f: SliceEngine, engine_g: SliceEngine, lines: np.ndarray,
-             degrees: Sequence[int]) -> np.ndarray:
+def _h_lines(
+    engine_f: SliceEngine, engine_g: SliceEngine, lines: np.ndarray, degrees: Sequence[int]
+) -> np.ndarray:
     out = np.empty((len(lines), len(degrees)))
     for i, (a, b) in enumerate(lines):
         df = engine_f.diagrams(a, b, degrees)
@@ -63,8 +64,15 @@ class LineEvaluator:
     progress : callable(done, total), optional
     """
 
-    def __init__(self, source_f, source_g, degrees: Sequence[int] = DEGREES, *, jobs: int = 1,
-                 progress: Progress | None = None) -> None:
+    def __init__(
+        self,
+        source_f,
+        source_g,
+        degrees: Sequence[int] = DEGREES,
+        *,
+        jobs: int = 1,
+        progress: Progress | None = None,
+    ) -> None:
         self.degrees = tuple(int(k) for k in degrees)
         self.tri_f, self.val_f = _mesh_parts(source_f)
         self.tri_g, self.val_g = _mesh_parts(source_g)
@@ -95,8 +103,8 @@ class LineEvaluator:
         out = np.empty((len(lines), len(self.degrees)))
         step = max(1, len(lines) // 50)
         for i in range(0, len(lines), step):
-            out[i:i + step] = _h_lines(*self._engines, lines[i:i + step], self.degrees)
-            self.done += len(lines[i:i + step])
+            out[i : i + step] = _h_lines(*self._engines, lines[i : i + step], self.degrees)
+            self.done += len(lines[i : i + step])
             self._report()
         return out
 
@@ -108,9 +116,14 @@ class LineEvaluator:
         n_chunks = min(len(lines), 4 * self.jobs)
         chunks = np.array_split(lines, n_chunks)
         parts = []
-        for part, chunk in zip(self._pool(delayed(_h_chunk)(self._key, self.tri_f, self.val_f, self.tri_g,
-                                                           self.val_g, c, self.degrees) for c in chunks),
-                               chunks, strict=True):
+        for part, chunk in zip(
+            self._pool(
+                delayed(_h_chunk)(self._key, self.tri_f, self.val_f, self.tri_g, self.val_g, c, self.degrees)
+                for c in chunks
+            ),
+            chunks,
+            strict=True,
+        ):
             parts.append(part)
             self.done += len(chunk)
             self._report()
@@ -145,8 +158,16 @@ class LineEvaluator:
         return len(self.memo)
 
 
-def h_values(source_f, source_g, A, B, degrees: Sequence[int] = DEGREES, *, jobs: int = 1,
-             progress: Progress | None = None) -> np.ndarray:
+def h_values(
+    source_f,
+    source_g,
+    A,
+    B,
+    degrees: Sequence[int] = DEGREES,
+    *,
+    jobs: int = 1,
+    progress: Progress | None = None,
+) -> np.ndarray:
     """Bottleneck distances h_k(a, b) between slice diagrams on many lines.
 
     Parameters

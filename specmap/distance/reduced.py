@@ -77,9 +77,15 @@ def _same_mesh(ev: LineEvaluator) -> bool:
     return ev.val_f.shape == ev.val_g.shape and np.array_equal(ev.tri_f, ev.tri_g)
 
 
-def _slope_one_phase(ev: LineEvaluator, window: Window, groups: list[list[int]], tolerance: float,
-                     settings: ReducedSettings, step: int,
-                     same_mesh: bool) -> tuple[list[Best], SlopeOneSearch | None]:
+def _slope_one_phase(
+    ev: LineEvaluator,
+    window: Window,
+    groups: list[list[int]],
+    tolerance: float,
+    settings: ReducedSettings,
+    step: int,
+    same_mesh: bool,
+) -> tuple[list[Best], SlopeOneSearch | None]:
     """Branch and bound on a = 1/2 to tolerance / 2, then the best line *of that search* per degree.
 
     Lines of a = 1/2 evaluated by another stage (the dense sweep) share the
@@ -90,17 +96,25 @@ def _slope_one_phase(ev: LineEvaluator, window: Window, groups: list[list[int]],
     slope = [Best() for _ in range(nd)]
     if not window.a[0] <= 0.5 <= window.a[1]:
         return slope, None
-    info = slope_one_search(ev, window, groups, tolerance=tolerance / 2, samples=settings.slope_samples,
-                            max_lines=settings.slope_max_lines, batch=step,
-                            values=(ev.val_f, ev.val_g) if same_mesh else None)
+    info = slope_one_search(
+        ev,
+        window,
+        groups,
+        tolerance=tolerance / 2,
+        samples=settings.slope_samples,
+        max_lines=settings.slope_max_lines,
+        batch=step,
+        values=(ev.val_f, ev.val_g) if same_mesh else None,
+    )
     for g, (v, b) in enumerate(zip(info.best, info.at, strict=True)):
         for j in groups[g]:  # one degree per group
             slope[j].offer(v, (0.5, b), "slope-one")
     return slope, info
 
 
-def _seeded_local_bound(ev: LineEvaluator, window: Window, groups: list[list[int]],
-                        lines: list[tuple[float, float]]) -> LocalBound:
+def _seeded_local_bound(
+    ev: LineEvaluator, window: Window, groups: list[list[int]], lines: list[tuple[float, float]]
+) -> LocalBound:
     """A :class:`LocalBound` holding the ``lines`` this search evaluated (not the dense sweep's)."""
     local = LocalBound(ev.val_f, ev.val_g, window)
     known = [(p, ev.memo[p]) for p in lines if p in ev.memo]
@@ -135,8 +149,12 @@ class _Descent:
 
     def __post_init__(self) -> None:
         self.special = [Best() for _ in self.ev.degrees]
-        self.counts = {"below_best": int(self.cand.below_floor), "above_bound": 0, "line_bound": 0,
-                       "local_bound": 0}
+        self.counts = {
+            "below_best": int(self.cand.below_floor),
+            "above_bound": 0,
+            "line_bound": 0,
+            "local_bound": 0,
+        }
         self.order = np.argsort(-self.cand.hi, kind="stable")
         self.line_b = np.full(len(self.cand.a), np.nan)
         self.open_g = ~np.isposinf(self.best)  # an infinite degree is exact: nothing to look for
@@ -156,7 +174,7 @@ class _Descent:
             return "above_bound"
         if self.same_mesh:
             if math.isnan(self.line_b[i]):
-                chunk = self.order[self.pos - 1:self.pos - 1 + 256]
+                chunk = self.order[self.pos - 1 : self.pos - 1 + 256]
                 self.line_b[chunk] = line_upper_bound(self.ev.val_f, self.ev.val_g, c.a[chunk], c.b[chunk])
             if c.lo[i] > self.line_b[i] + tol:
                 return "line_bound"
@@ -199,20 +217,34 @@ class _Descent:
             self.best = np.maximum(self.best, G[k])
             hit = self.open_g & (G[k] >= c.hi[i] - tol)
             if hit.any() and self.stop is None:
-                self.stop = {"a": float(c.a[i]), "b": float(c.b[i]), "t": float(c.hi[i]), "h": float(G[k].max()),
-                             "origin": ORIGINS[int(c.origin[i])],
-                             "rank": len(self.evaluated) - len(take) + k + 1}
+                self.stop = {
+                    "a": float(c.a[i]),
+                    "b": float(c.b[i]),
+                    "t": float(c.hi[i]),
+                    "h": float(G[k].max()),
+                    "origin": ORIGINS[int(c.origin[i])],
+                    "rank": len(self.evaluated) - len(take) + k + 1,
+                }
             self.open_g &= ~hit
 
 
-def _polish(ev: LineEvaluator, special: list[Best], slope: list[Best], cand: Candidates, window: Window,
-            tolerance: float, settings: ReducedSettings) -> None:
+def _polish(
+    ev: LineEvaluator,
+    special: list[Best],
+    slope: list[Best],
+    cand: Candidates,
+    window: Window,
+    tolerance: float,
+    settings: ReducedSettings,
+) -> None:
     """Refine the best special candidate of each certified degree along its curve (golden section)."""
     top = max(max(s.value, p.value) for s, p in zip(slope, special, strict=True))
     for j, rec in enumerate(special):
         if not (settings.polish and rec.tag is not None and math.isfinite(rec.value)):
             continue
-        if rec.value < slope[j].value - tolerance or (settings.certify == "max" and rec.value < top - tolerance):
+        if rec.value < slope[j].value - tolerance or (
+            settings.certify == "max" and rec.value < top - tolerance
+        ):
             continue
         ip, _ = rec.tag
         paths = cand.paths_of.get(ip, [])
@@ -241,8 +273,16 @@ def _component_of(piece, point: tuple[float, float], components: Sequence) -> st
 
 
 # long by its docstring only (why the short candidate list suffices); the body is about 35 lines
-def reduced_search(ev: LineEvaluator, window: Window, atlas, contours_by_id: dict, *, tolerance: float,
-                   upper: float, settings: ReducedSettings = ReducedSettings()) -> ReducedSearch:
+def reduced_search(
+    ev: LineEvaluator,
+    window: Window,
+    atlas,
+    contours_by_id: dict,
+    *,
+    tolerance: float,
+    upper: float,
+    settings: ReducedSettings = ReducedSettings(),
+) -> ReducedSearch:
     """D_k = max(max_b h_k(1/2, b), sup of h_k over the special set) [EFQT23, FMQT].
 
     Write t(p) for the tied cost of a tie at p (value units,
@@ -324,7 +364,9 @@ def reduced_search(ev: LineEvaluator, window: Window, atlas, contours_by_id: dic
     same_mesh = _same_mesh(ev)
     before = set(ev.memo)
     slope, slope_info = _slope_one_phase(ev, window, per_degree, tolerance, s, step, same_mesh)
-    own = [p for p in ev.memo if p not in before] + [(0.5, float(b)) for b in (slope_info.at if slope_info else [])]
+    own = [p for p in ev.memo if p not in before] + [
+        (0.5, float(b)) for b in (slope_info.at if slope_info else [])
+    ]
     # the special set: one group per degree ("each"), or the finite degrees together ("max", cheaper:
     # lower degrees then get the group's bound); an infinite degree is exact, a group of its own
     infinite = [j for j in range(nd) if math.isinf(slope[j].value) and slope[j].value > 0]
@@ -336,8 +378,9 @@ def reduced_search(ev: LineEvaluator, window: Window, atlas, contours_by_id: dic
     # degree is exact and closed at once): candidates under it are below_best anyway
     rest = best[~np.isposinf(best)]
     floor = float(rest.min()) if len(rest) and np.isfinite(rest).all() else -math.inf
-    cand = special_candidates(atlas, contours_by_id, window, spacing=s.spacing, roles=s.roles, floor=floor,
-                              tolerance=tolerance)
+    cand = special_candidates(
+        atlas, contours_by_id, window, spacing=s.spacing, roles=s.roles, floor=floor, tolerance=tolerance
+    )
     cand_seconds = time.perf_counter() - t1
     pieces = tuple(getattr(atlas, "pieces", ()) or ())
     components = tuple(getattr(atlas, "components", ()) or ())
@@ -350,11 +393,26 @@ def reduced_search(ev: LineEvaluator, window: Window, atlas, contours_by_id: dic
         if rec.tag is not None:
             rec.component = _component_of(pieces[rec.tag[0]], rec.at, components) or f"piece:{rec.tag[0]}"
     n = len(cand.a)
-    pruned = {**cand.pruned, **walk.counts, "ties_total": len(pieces), "ties_live": len(cand.live),
-              "ties_evaluated": len({int(cand.piece[i]) for i in walk.evaluated}),
-              "candidates_total": n + int(cand.below_floor),
-              "candidates_evaluated": len(walk.evaluated), "crossings": cand.crossings,
-              "early_stop": walk.stop is not None}
-    return ReducedSearch(slope=slope, special=special, lines=ev.lines - n0, seconds=time.perf_counter() - t0,
-                         pruned=pruned, stop=walk.stop, candidate_seconds=cand_seconds,
-                         slope_search=slope_info, settings=s, groups=[list(g) for g in groups])
+    pruned = {
+        **cand.pruned,
+        **walk.counts,
+        "ties_total": len(pieces),
+        "ties_live": len(cand.live),
+        "ties_evaluated": len({int(cand.piece[i]) for i in walk.evaluated}),
+        "candidates_total": n + int(cand.below_floor),
+        "candidates_evaluated": len(walk.evaluated),
+        "crossings": cand.crossings,
+        "early_stop": walk.stop is not None,
+    }
+    return ReducedSearch(
+        slope=slope,
+        special=special,
+        lines=ev.lines - n0,
+        seconds=time.perf_counter() - t0,
+        pruned=pruned,
+        stop=walk.stop,
+        candidate_seconds=cand_seconds,
+        slope_search=slope_info,
+        settings=s,
+        groups=[list(g) for g in groups],
+    )

@@ -15,8 +15,15 @@ from specmap.distance.paths import denormalise, normalise
 from specmap.strip import Window
 
 
-def pattern_search(ev: LineEvaluator, j: int, start: tuple[float, float], step: tuple[float, float],
-                   window: Window, levels: int = 5, max_batches: int = 40) -> tuple[float, tuple[float, float]]:
+def pattern_search(
+    ev: LineEvaluator,
+    j: int,
+    start: tuple[float, float],
+    step: tuple[float, float],
+    window: Window,
+    levels: int = 5,
+    max_batches: int = 40,
+) -> tuple[float, tuple[float, float]]:
     """Compass search (8 directions) maximising h_{degrees[j]} from ``start``; halves the step ``levels`` times."""
     (a_lo, a_hi), (b_lo, b_hi) = window.a, window.b
     x = start
@@ -61,8 +68,15 @@ def golden_max(fun: Callable[[float], float], lo: float, hi: float, iters: int) 
     return best
 
 
-def polish_along(ev: LineEvaluator, j_group: Sequence[int], path: np.ndarray, point: tuple[float, float],
-                 window: Window, spacing: float, iters: int) -> tuple[float, tuple[float, float]]:
+def polish_along(
+    ev: LineEvaluator,
+    j_group: Sequence[int],
+    path: np.ndarray,
+    point: tuple[float, float],
+    window: Window,
+    spacing: float,
+    iters: int,
+) -> tuple[float, tuple[float, float]]:
     """Golden-section search of max over ``j_group`` of h along a (normalised) path, within 2 spacings of ``point``."""
     from shapely.geometry import LineString, Point
 

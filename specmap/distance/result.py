@@ -106,9 +106,16 @@ class SlopeOneSearch:
     max_lines: int = 0
 
     def to_json(self) -> dict[str, Any]:
-        return {"best": self.best, "bound": self.bound, "certified": self.certified, "lines": self.lines,
-                "rounds": self.rounds, "at": self.at, "certified_by_group": self.certified_groups,
-                "max_lines": self.max_lines}
+        return {
+            "best": self.best,
+            "bound": self.bound,
+            "certified": self.certified,
+            "lines": self.lines,
+            "rounds": self.rounds,
+            "at": self.at,
+            "certified_by_group": self.certified_groups,
+            "max_lines": self.max_lines,
+        }
 
 
 @dataclass(frozen=True)
@@ -195,39 +202,71 @@ def landscape_json(dense: DenseSweep, degrees: Sequence[int]) -> dict[str, Any]:
     """``{"a", "b", "h" (n_b x n_a, max over degrees), "by_degree"}`` of a dense sweep."""
     H = dense.grid
     with np.errstate(invalid="ignore"):
-        return {"a": dense.a.tolist(), "b": dense.b.tolist(), "h": H.max(axis=0).tolist(),
-                "by_degree": {str(k): H[j].tolist() for j, k in enumerate(degrees)}}
+        return {
+            "a": dense.a.tolist(),
+            "b": dense.b.tolist(),
+            "h": H.max(axis=0).tolist(),
+            "by_degree": {str(k): H[j].tolist() for j, k in enumerate(degrees)},
+        }
 
 
 def dense_json(dense: DenseSweep, degrees: Sequence[int]) -> dict[str, Any]:
     """The ``dense`` block of ``distance.json``."""
     jbest = int(np.argmax([v for v, _ in dense.best]))
-    return {"value": dense.best[jbest][0], "at": point_json(dense.best[jbest][1]),
-            "degree": degrees[jbest], "lines": dense.lines, "seconds": dense.seconds,
-            "error_bound": dense.error_bound, "resolution": int(dense.resolution),
-            "error_bounds": {str(k): dense.error_bounds[j] for j, k in enumerate(degrees)
-                             if j < len(dense.error_bounds)},
-            "node_value": max(v for v, _ in dense.node_best),
-            "by_degree": {str(k): {"value": dense.best[j][0], "at": point_json(dense.best[j][1])}
-                          for j, k in enumerate(degrees)}}
+    return {
+        "value": dense.best[jbest][0],
+        "at": point_json(dense.best[jbest][1]),
+        "degree": degrees[jbest],
+        "lines": dense.lines,
+        "seconds": dense.seconds,
+        "error_bound": dense.error_bound,
+        "resolution": int(dense.resolution),
+        "error_bounds": {
+            str(k): dense.error_bounds[j] for j, k in enumerate(degrees) if j < len(dense.error_bounds)
+        },
+        "node_value": max(v for v, _ in dense.node_best),
+        "by_degree": {
+            str(k): {"value": dense.best[j][0], "at": point_json(dense.best[j][1])}
+            for j, k in enumerate(degrees)
+        },
+    }
 
 
-def reduced_json(red: ReducedSearch, degrees: Sequence[int], top: dict[str, Any], kmax: int) -> dict[str, Any]:
+def reduced_json(
+    red: ReducedSearch, degrees: Sequence[int], top: dict[str, Any], kmax: int
+) -> dict[str, Any]:
     """The ``reduced`` block of ``distance.json``; ``top`` is the by-degree entry of degree ``kmax``."""
     s = red.settings
-    return {"value": top["value"], "at": point_json(top["at"]), "lines": red.lines,
-            "seconds": red.seconds, "pruned": red.pruned, "stop": red.stop,
-            "candidate_seconds": red.candidate_seconds,
-            "slope_one": {str(k): {"value": red.slope[j].value, "at": point_json(red.slope[j].at)}
-                          for j, k in enumerate(degrees)},
-            "special": {str(k): {"value": red.special[j].value, "at": point_json(red.special[j].at),
-                                 "component": red.special[j].component}
-                        for j, k in enumerate(degrees)},
-            "slope_search": None if red.slope_search is None else red.slope_search.to_json(),
-            "settings": {"slope_samples": s.slope_samples, "spacing": s.spacing, "roles": s.roles,
-                         "certify": s.certify},
-            "special_groups": [[degrees[j] for j in g] for g in red.groups],
-            "degree": kmax}
+    return {
+        "value": top["value"],
+        "at": point_json(top["at"]),
+        "lines": red.lines,
+        "seconds": red.seconds,
+        "pruned": red.pruned,
+        "stop": red.stop,
+        "candidate_seconds": red.candidate_seconds,
+        "slope_one": {
+            str(k): {"value": red.slope[j].value, "at": point_json(red.slope[j].at)}
+            for j, k in enumerate(degrees)
+        },
+        "special": {
+            str(k): {
+                "value": red.special[j].value,
+                "at": point_json(red.special[j].at),
+                "component": red.special[j].component,
+            }
+            for j, k in enumerate(degrees)
+        },
+        "slope_search": None if red.slope_search is None else red.slope_search.to_json(),
+        "settings": {
+            "slope_samples": s.slope_samples,
+            "spacing": s.spacing,
+            "roles": s.roles,
+            "certify": s.certify,
+        },
+        "special_groups": [[degrees[j] for j in g] for g in red.groups],
+        "degree": kmax,
+    }
 
 
 @dataclass(frozen=True)
@@ -273,11 +312,20 @@ class DistanceResult:
     def to_json(self) -> dict[str, Any]:
         from specmap.io import to_plain
 
-        return to_plain({
-            "value": self.value, "at": point_json(self.at), "reached_on": self.reached_on,
-            "component": self.component,
-            "by_degree": {str(k): {**v, "at": point_json(v["at"])} for k, v in self.by_degree.items()},
-            "dense": self.dense, "reduced": self.reduced, "audit": self.audit,
-            "tolerance": self.tolerance, "infinite": self.infinite, "landscape": self.landscape,
-            "window": self.window.to_json(), "meta": self.meta,
-        })
+        return to_plain(
+            {
+                "value": self.value,
+                "at": point_json(self.at),
+                "reached_on": self.reached_on,
+                "component": self.component,
+                "by_degree": {str(k): {**v, "at": point_json(v["at"])} for k, v in self.by_degree.items()},
+                "dense": self.dense,
+                "reduced": self.reduced,
+                "audit": self.audit,
+                "tolerance": self.tolerance,
+                "infinite": self.infinite,
+                "landscape": self.landscape,
+                "window": self.window.to_json(),
+                "meta": self.meta,
+            }
+        )

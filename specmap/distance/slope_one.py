@@ -33,7 +33,9 @@ def _sup_norm_cap(values: tuple[np.ndarray, np.ndarray]) -> Callable[[float, flo
     return cap
 
 
-def _split_points(xs: np.ndarray, G: np.ndarray, gap: np.ndarray, idx: np.ndarray, lipschitz: float) -> np.ndarray:
+def _split_points(
+    xs: np.ndarray, G: np.ndarray, gap: np.ndarray, idx: np.ndarray, lipschitz: float
+) -> np.ndarray:
     """Where the intervals ``idx`` are split: the apex x* of the group with the largest gap, 5% off the ends."""
     new = []
     for i in idx:
@@ -46,10 +48,18 @@ def _split_points(xs: np.ndarray, G: np.ndarray, gap: np.ndarray, idx: np.ndarra
 
 
 # long by its docstring (the bound and the search); the body is about 40 lines
-def slope_one_search(ev: LineEvaluator, window: Window, groups: Sequence[Sequence[int]], *, tolerance: float,
-                     samples: int = 17, max_lines: int = 200, batch: int = 1,
-                     lipschitz: float = SLOPE_ONE_LIPSCHITZ,
-                     values: tuple[np.ndarray, np.ndarray] | None = None) -> SlopeOneSearch:
+def slope_one_search(
+    ev: LineEvaluator,
+    window: Window,
+    groups: Sequence[Sequence[int]],
+    *,
+    tolerance: float,
+    samples: int = 17,
+    max_lines: int = 200,
+    batch: int = 1,
+    lipschitz: float = SLOPE_ONE_LIPSCHITZ,
+    values: tuple[np.ndarray, np.ndarray] | None = None,
+) -> SlopeOneSearch:
     """max over b of h on the slope-one line a = 1/2, by branch and bound, certified to ``tolerance``.
 
     Bound. On a = 1/2, F* = max(f1 - b, f2 + b) moves by at most |b - b'| at every
@@ -114,17 +124,47 @@ def slope_one_search(ev: LineEvaluator, window: Window, groups: Sequence[Sequenc
     xs = np.linspace(b_lo, b_hi, max(2, int(samples)))
     ev.plan(len(xs))
     cap = _sup_norm_cap(values) if values is not None else None
-    out = [_search_group(ev, g, xs, b_lo, b_hi, tolerance=tolerance, max_lines=max_lines, batch=batch,
-                         lipschitz=lipschitz, cap=cap) for g in groups]
+    out = [
+        _search_group(
+            ev,
+            g,
+            xs,
+            b_lo,
+            b_hi,
+            tolerance=tolerance,
+            max_lines=max_lines,
+            batch=batch,
+            lipschitz=lipschitz,
+            cap=cap,
+        )
+        for g in groups
+    ]
     cert = [o[2] for o in out]
-    return SlopeOneSearch(best=[o[0] for o in out], bound=[o[1] for o in out], certified=all(cert),
-                          lines=ev.lines - n0, rounds=sum(o[4] for o in out), at=[o[3] for o in out],
-                          certified_groups=cert, max_lines=int(max_lines))
+    return SlopeOneSearch(
+        best=[o[0] for o in out],
+        bound=[o[1] for o in out],
+        certified=all(cert),
+        lines=ev.lines - n0,
+        rounds=sum(o[4] for o in out),
+        at=[o[3] for o in out],
+        certified_groups=cert,
+        max_lines=int(max_lines),
+    )
 
 
-def _search_group(ev: LineEvaluator, group: Sequence[int], xs: np.ndarray, b_lo: float, b_hi: float, *,
-                  tolerance: float, max_lines: int, batch: int, lipschitz: float,
-                  cap: Callable[[float, float], float] | None) -> tuple[float, float, bool, float, int]:
+def _search_group(
+    ev: LineEvaluator,
+    group: Sequence[int],
+    xs: np.ndarray,
+    b_lo: float,
+    b_hi: float,
+    *,
+    tolerance: float,
+    max_lines: int,
+    batch: int,
+    lipschitz: float,
+    cap: Callable[[float, float], float] | None,
+) -> tuple[float, float, bool, float, int]:
     """The branch and bound of one group from the lines ``xs``: (best, bound, certified, b of best, rounds)."""
     G = _group_values(ev, [group], xs)[:, 0]
     best = float(np.where(np.isnan(G), -np.inf, G).max())
@@ -146,7 +186,7 @@ def _search_group(ev: LineEvaluator, group: Sequence[int], xs: np.ndarray, b_lo:
         if not live.any() or len(xs) >= budget:  # its own lines, memo hits included
             break
         idx = np.nonzero(live)[0]
-        idx = idx[np.argsort(-gap[idx], kind="stable")][:max(1, int(batch))]
+        idx = idx[np.argsort(-gap[idx], kind="stable")][: max(1, int(batch))]
         new = _split_points(xs, G[:, None], gap[:, None], idx, lipschitz)
         ev.plan(len(new))
         Gn = _group_values(ev, [group], new)[:, 0]
@@ -160,6 +200,8 @@ def _search_group(ev: LineEvaluator, group: Sequence[int], xs: np.ndarray, b_lo:
     # a NaN value bounds nothing, an open interval (even one below min_len) is not closed
     nan = bool(np.isnan(G).any())
     certified = not (gap > 0).any() and not nan
-    bound = math.inf if nan else max(best, float(np.where(np.isnan(ub), -np.inf, ub).max()) if len(ub) else best)
+    bound = (
+        math.inf if nan else max(best, float(np.where(np.isnan(ub), -np.inf, ub).max()) if len(ub) else best)
+    )
     at_b = float(xs[int(np.argmax(np.where(np.isnan(G), -np.inf, G)))])
     return best, bound, certified, at_b, rounds

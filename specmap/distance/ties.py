@@ -16,8 +16,9 @@ from specmap.strip import line_parameter, push_scale
 __all__ = ["costs_at", "tie_code", "tie_costs"]
 
 
-def costs_at(codes: np.ndarray, quads: np.ndarray, columns: dict, contours_by_id: dict,
-             a: np.ndarray, b: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+def costs_at(
+    codes: np.ndarray, quads: np.ndarray, columns: dict, contours_by_id: dict, a: np.ndarray, b: np.ndarray
+) -> tuple[np.ndarray, np.ndarray]:
     """Tie costs (lo, hi) at many lines at once: line i for the tie (codes[i], quads[i] (column indices)).
 
     ``codes`` are :func:`~specmap.special.pairs.tie_code` values; ``quads`` the columns

@@ -36,8 +36,11 @@ def _plotly_js() -> str:
     try:
         from plotly.offline import get_plotlyjs
     except ImportError:
-        raise ResultsError("the explorer needs the plotly package (it ships the chart library the page inlines)",
-                           field="plotly", fix="pip install plotly (or pip install -e .)") from None
+        raise ResultsError(
+            "the explorer needs the plotly package (it ships the chart library the page inlines)",
+            field="plotly",
+            fix="pip install plotly (or pip install -e .)",
+        ) from None
     return get_plotlyjs()
 
 
@@ -47,8 +50,11 @@ def page_html(data: dict[str, Any], title: str) -> str:
 
     payload = json.dumps(_plain(data), allow_nan=False, separators=(",", ":")).replace("</", "<\\/")
     safe = title.replace("&", "&amp;").replace("<", "&lt;").replace(">", "&gt;")
-    return (TEMPLATE.replace("__TITLE__", safe).replace("__DATA__", payload)
-            .replace("__PLOTLY__", _plotly_js().replace("</script", "<\\/script")))
+    return (
+        TEMPLATE.replace("__TITLE__", safe)
+        .replace("__DATA__", payload)
+        .replace("__PLOTLY__", _plotly_js().replace("</script", "<\\/script"))
+    )
 
 
 def build_explorer(result_dir: str | Path, out: str | Path | None = None) -> Path:
@@ -77,8 +83,12 @@ def build_explorer(result_dir: str | Path, out: str | Path | None = None) -> Pat
 
     res = load_results(result_dir)
     if res.get("special") is None:
-        raise ResultsError("special.json not found in the result folder", file=str(Path(result_dir) / "special.json"),
-                           field="special.json", fix="run specmap map first (the explorer shows the special set)")
+        raise ResultsError(
+            "special.json not found in the result folder",
+            file=str(Path(result_dir) / "special.json"),
+            field="special.json",
+            fix="run specmap map first (the explorer shows the special set)",
+        )
     target = Path(out) if out is not None else Path(result_dir) / "explore.html"
     check_out_dir(target.parent, "--out")
     html = page_html(explorer_data(res), str(res["study"].get("name", Path(result_dir).name)))

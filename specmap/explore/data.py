@@ -43,8 +43,10 @@ def _round(x: Any) -> Any:
     with np.errstate(divide="ignore", invalid="ignore"):
         mag = np.where(out != 0, np.floor(np.log10(np.abs(out))), 0)
     dec = np.clip(DIGITS - 1 - np.nan_to_num(mag), 0, 15).astype(int)
-    flat = [None if not math.isfinite(v) else round(float(v), int(d)) for v, d in zip(out.ravel(), dec.ravel(),
-                                                                                      strict=True)]
+    flat = [
+        None if not math.isfinite(v) else round(float(v), int(d))
+        for v, d in zip(out.ravel(), dec.ravel(), strict=True)
+    ]
     return np.array(flat, dtype=object).reshape(arr.shape).tolist()
 
 
@@ -61,8 +63,11 @@ def _grid(grid: dict[str, Any] | None) -> list[dict[str, Any]]:
 
 
 def _tie_json(t: dict[str, Any]) -> dict[str, Any]:
-    return {"pairs": [[str(x) for x in p] for p in t.get("pairs") or []], "condition": t.get("condition"),
-            "family": family(t)}
+    return {
+        "pairs": [[str(x) for x in p] for p in t.get("pairs") or []],
+        "condition": t.get("condition"),
+        "family": family(t),
+    }
 
 
 def explorer_data(res: dict[str, Any], index: TieIndex | None = None) -> dict[str, Any]:
@@ -86,13 +91,23 @@ def explorer_data(res: dict[str, Any], index: TieIndex | None = None) -> dict[st
     sp = res.get("special") or {}
     st = res.get("study") or {}
     win = sp.get("window") or st.get("window") or {"a": [0.02, 0.98], "b": [-1.0, 1.0]}
-    ix = index if index is not None else index_ties(sp, res.get("geojson"), res.get("grid_f"), res.get("grid_g"))
+    ix = (
+        index
+        if index is not None
+        else index_ties(sp, res.get("geojson"), res.get("grid_f"), res.get("grid_g"))
+    )
     comps = []
     for c in sp.get("components") or []:
         cid = str(c.get("id"))
-        comps.append({"id": cid, "kind": c.get("kind"), "area": num(c.get("area")),
-                      "ties": [_tie_json(t) for t in c.get("ties") or [] if isinstance(t, dict)],
-                      "patch_ties": ix.patch_ties.get(cid, [])})
+        comps.append(
+            {
+                "id": cid,
+                "kind": c.get("kind"),
+                "area": num(c.get("area")),
+                "ties": [_tie_json(t) for t in c.get("ties") or [] if isinstance(t, dict)],
+                "patch_ties": ix.patch_ties.get(cid, []),
+            }
+        )
     patches = []
     for cid, polys in ix.polygons.items():
         per = ix.polygon_ties.get(cid, [[] for _ in polys])
@@ -101,8 +116,15 @@ def explorer_data(res: dict[str, Any], index: TieIndex | None = None) -> dict[st
             patches.append({"component": cid, "ring": _round(ring), "ties": ties})
     total = sum(len(c.xy) for c in ix.curves) or 1
     keep = max(2, int(CURVE_POINTS * 1.0 / max(len(ix.curves), 1))) if total > CURVE_POINTS else None
-    curves = [{"component": c.component, "family": c.family, "ties": list(c.ties),
-               "xy": _round(_thin(c.xy, keep) if keep else c.xy)} for c in ix.curves]
+    curves = [
+        {
+            "component": c.component,
+            "family": c.family,
+            "ties": list(c.ties),
+            "xy": _round(_thin(c.xy, keep) if keep else c.xy),
+        }
+        for c in ix.curves
+    ]
     fams: dict[str, int] = {}
     for c in ix.curves:
         fams[c.family] = fams.get(c.family, 0) + 1
@@ -110,17 +132,27 @@ def explorer_data(res: dict[str, Any], index: TieIndex | None = None) -> dict[st
     dist = None
     if d:
         samples = distance_map_samples(d)
-        dist = {"value": num(d.get("value")), "at": _round(nums(d.get("at"))[:2]) if d.get("at") else None,
-                "reached_on": d.get("reached_on"), "tolerance": num(d.get("tolerance")),
-                "by_degree": {str(k): {"value": num((v or {}).get("value")),
-                                       "at": _round(nums((v or {}).get("at"))[:2]) if (v or {}).get("at") else None}
-                              for k, v in (d.get("by_degree") or {}).items()},
-                "samples": None}
+        dist = {
+            "value": num(d.get("value")),
+            "at": _round(nums(d.get("at"))[:2]) if d.get("at") else None,
+            "reached_on": d.get("reached_on"),
+            "tolerance": num(d.get("tolerance")),
+            "by_degree": {
+                str(k): {
+                    "value": num((v or {}).get("value")),
+                    "at": _round(nums((v or {}).get("at"))[:2]) if (v or {}).get("at") else None,
+                }
+                for k, v in (d.get("by_degree") or {}).items()
+            },
+            "samples": None,
+        }
         if samples:
-            dist["samples"] = {"a": _round(nums(samples.get("a"))), "b": _round(nums(samples.get("b"))),
-                               "h": _round(nums(samples.get("h"))),
-                               "by_degree": {str(k): _round(nums(v))
-                                             for k, v in (samples.get("by_degree") or {}).items()}}
+            dist["samples"] = {
+                "a": _round(nums(samples.get("a"))),
+                "b": _round(nums(samples.get("b"))),
+                "h": _round(nums(samples.get("h"))),
+                "by_degree": {str(k): _round(nums(v)) for k, v in (samples.get("by_degree") or {}).items()},
+            }
     return {
         "study": str(st.get("name", "")),
         "window": {"a": _round(nums(win.get("a"))[:2]), "b": _round(nums(win.get("b"))[:2])},

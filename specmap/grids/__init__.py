@@ -24,8 +24,16 @@ from specmap.settings import GridSettings
 if TYPE_CHECKING:
     from specmap.shapes.model import Shape
 
-__all__ = ["Contour", "Grid", "GridSettings", "grid_from_json", "read_grid", "validate_grid", "pareto_grid",
-           "route_for"]
+__all__ = [
+    "Contour",
+    "Grid",
+    "GridSettings",
+    "grid_from_json",
+    "read_grid",
+    "validate_grid",
+    "pareto_grid",
+    "route_for",
+]
 
 
 def route_for(shape: Shape, route: str = "auto") -> str:
@@ -47,20 +55,26 @@ def route_for(shape: Shape, route: str = "auto") -> str:
     if shape.source == "mesh":
         return "piecewise"
     if shape.fmap is not None and is_dependent_linear(shape.fmap):
-        raise UnsupportedInputError("the two components of the map are linearly dependent (rank < 2), "
-                                    "so the map has no Pareto grid", subject="map",
-                                    fix="give two independent functions")
+        raise UnsupportedInputError(
+            "the two components of the map are linearly dependent (rank < 2), so the map has no Pareto grid",
+            subject="map",
+            fix="give two independent functions",
+        )
     exact_ok = is_exact_case(shape.surface, shape.fmap)
     if route == "exact" and not exact_ok:
-        raise UnsupportedInputError("route 'exact' needs an ellipsoid with a linear map", subject="route",
-                                    fix="use route 'auto' or 'smooth'")
+        raise UnsupportedInputError(
+            "route 'exact' needs an ellipsoid with a linear map",
+            subject="route",
+            fix="use route 'auto' or 'smooth'",
+        )
     if route != "auto":
         return route
     return "exact" if exact_ok else "smooth"
 
 
-def pareto_grid(shape: Shape, settings: GridSettings | None = None, *,
-                simplification: dict | None = None) -> Grid:
+def pareto_grid(
+    shape: Shape, settings: GridSettings | None = None, *, simplification: dict | None = None
+) -> Grid:
     """The extended Pareto grid of a shape [CEF19].
 
     Parameters
@@ -89,7 +103,9 @@ def pareto_grid(shape: Shape, settings: GridSettings | None = None, *,
     label = shape.label
     if route == "piecewise":
         V, T, vals = shape.vertices, shape.triangles, shape.values
-        assert V is not None and T is not None and vals is not None  # route_for gives piecewise to meshes only
+        assert (
+            V is not None and T is not None and vals is not None
+        )  # route_for gives piecewise to meshes only
         grid = piecewise_grid(V, T, vals, label=label)
         hygiene = shape.meta.get("hygiene")
         if hygiene:  # what reading the mesh cleaned (loose/duplicate vertices, collapsed triangles)
@@ -98,8 +114,9 @@ def pareto_grid(shape: Shape, settings: GridSettings | None = None, *,
             grid = dataclasses.replace(grid, meta={**grid.meta, "simplification": dict(simplification)})
         return grid
     if route == "exact":
-        return ellipsoid_linear_grid(shape.surface.radii, shape.fmap.matrix(), shape.fmap.offset(),
-                                     label=label)
+        return ellipsoid_linear_grid(
+            shape.surface.radii, shape.fmap.matrix(), shape.fmap.offset(), label=label
+        )
     if settings.resolution is None:
         return smooth_grid(shape.surface, shape.fmap, label=label)
     return smooth_grid(shape.surface, shape.fmap, label=label, resolution=int(settings.resolution))

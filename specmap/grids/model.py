@@ -76,7 +76,11 @@ class Contour:
 
     def swapped(self, new_id: str | None = None) -> Contour:
         """The contour after exchanging the coordinates (f1, f2) -> (f2, f1)."""
-        swap: dict[str, ContourKind] = {"proper": "proper", "vertical": "horizontal", "horizontal": "vertical"}
+        swap: dict[str, ContourKind] = {
+            "proper": "proper",
+            "vertical": "horizontal",
+            "horizontal": "vertical",
+        }
         kind = swap[self.kind]
         pts = self.points[:, ::-1]
         if self.kind == "proper":
@@ -121,8 +125,12 @@ class Grid:
     def bbox(self) -> tuple[float, float, float, float]:
         """(xmin, ymin, xmax, ymax) of all contour points (half-line starts included)."""
         pts = np.concatenate([c.points for c in self.contours])
-        return (float(pts[:, 0].min()), float(pts[:, 1].min()),
-                float(pts[:, 0].max()), float(pts[:, 1].max()))
+        return (
+            float(pts[:, 0].min()),
+            float(pts[:, 1].min()),
+            float(pts[:, 0].max()),
+            float(pts[:, 1].max()),
+        )
 
     def relabelled(self, prefix: str) -> Grid:
         """Same grid with ids re-prefixed, e.g. ``"f:p0"`` -> ``"g:p0"``."""
@@ -134,8 +142,7 @@ class Grid:
 
     def swapped(self) -> Grid:
         """The grid of (f2, f1): coordinates exchanged, vertical <-> horizontal."""
-        return Grid(tuple(c.swapped() for c in self.contours), self.route, self.tolerance,
-                    dict(self.meta))
+        return Grid(tuple(c.swapped() for c in self.contours), self.route, self.tolerance, dict(self.meta))
 
     def to_json(self) -> dict[str, Any]:
         return {
@@ -165,28 +172,38 @@ def validate_grid(grid: Grid, *, tol: float | None = None, file: str | None = No
         With the offending contour named and the fix.
     """
     if not grid.contours:
-        raise GridFileError("the grid has no contours", file=file, field="contours",
-                            fix="give at least one contour")
+        raise GridFileError(
+            "the grid has no contours", file=file, field="contours", fix="give at least one contour"
+        )
     seen: set[str] = set()
     for i, c in enumerate(grid.contours):
         where = f"contours[{i}] ({c.id})"
         if c.id in seen:
-            raise GridFileError(f"duplicate id '{c.id}'", file=file, field=where,
-                                fix="give every contour a unique id")
+            raise GridFileError(
+                f"duplicate id '{c.id}'", file=file, field=where, fix="give every contour a unique id"
+            )
         seen.add(c.id)
         if not np.all(np.isfinite(c.points)):
-            raise GridFileError("non-finite coordinate (NaN or inf)", file=file, field=where,
-                                fix="use finite numbers; half-lines are given by their start")
+            raise GridFileError(
+                "non-finite coordinate (NaN or inf)",
+                file=file,
+                field=where,
+                fix="use finite numbers; half-lines are given by their start",
+            )
         if c.kind == "proper" and len(c.points) < 1:
-            raise GridFileError("a proper contour needs points", file=file, field=where,
-                                fix="list at least one [x, y] point")
+            raise GridFileError(
+                "a proper contour needs points", file=file, field=where, fix="list at least one [x, y] point"
+            )
     x0, y0, x1, y1 = grid.bbox()
     scale = max(math.hypot(x1 - x0, y1 - y0), 1.0)
     t = 1e-9 * scale if tol is None else tol
     if not math.isfinite(t):
-        raise GridFileError(f"coordinates too large for a finite tolerance (bounding box {x0:g}..{x1:g}, "
-                            f"{y0:g}..{y1:g})", file=file, field="contours",
-                            fix=f"rescale the values so that every coordinate has |x| <= {COORD_LIMIT:g}")
+        raise GridFileError(
+            f"coordinates too large for a finite tolerance (bounding box {x0:g}..{x1:g}, {y0:g}..{y1:g})",
+            file=file,
+            field="contours",
+            fix=f"rescale the values so that every coordinate has |x| <= {COORD_LIMIT:g}",
+        )
     for i, c in enumerate(grid.contours):
         if c.kind != "proper" or len(c.points) < 2:
             continue
@@ -196,7 +213,8 @@ def validate_grid(grid: Grid, *, tol: float | None = None, file: str | None = No
             k = int(bad[0])
             raise GridFileError(
                 f"proper contour is not non-increasing between points {k} and {k + 1}",
-                file=file, field=f"contours[{i}] ({c.id}).points",
+                file=file,
+                field=f"contours[{i}] ({c.id}).points",
                 fix="order points by increasing x with y not increasing, or split the contour",
             )
     return grid
@@ -216,54 +234,81 @@ def grid_from_json(data: Any, *, file: str | None = None, prefix: str | None = N
         a pair never share ids.
     """
     if not isinstance(data, dict):
-        raise GridFileError("top level is not a JSON object", file=file, field="(root)",
-                            fix='write {"format": "specmap-grid/1", "contours": [...]}')
+        raise GridFileError(
+            "top level is not a JSON object",
+            file=file,
+            field="(root)",
+            fix='write {"format": "specmap-grid/1", "contours": [...]}',
+        )
     fmt = data.get("format")
     if fmt != GRID_FORMAT:
-        raise GridFileError(f"format is {fmt!r}", file=file, field="format",
-                            fix=f'set "format": "{GRID_FORMAT}"')
+        raise GridFileError(
+            f"format is {fmt!r}", file=file, field="format", fix=f'set "format": "{GRID_FORMAT}"'
+        )
     raw = data.get("contours")
     if not isinstance(raw, list):
-        raise GridFileError("missing or non-list 'contours'", file=file, field="contours",
-                            fix="give a list of contour objects")
+        raise GridFileError(
+            "missing or non-list 'contours'",
+            file=file,
+            field="contours",
+            fix="give a list of contour objects",
+        )
     contours = []
     for i, item in enumerate(raw):
         where = f"contours[{i}]"
         if not isinstance(item, dict):
-            raise GridFileError("contour is not an object", file=file, field=where,
-                                fix='write {"id": ..., "kind": ..., ...}')
+            raise GridFileError(
+                "contour is not an object", file=file, field=where, fix='write {"id": ..., "kind": ..., ...}'
+            )
         cid = item.get("id", f"c{i}")
         kind = item.get("kind")
         if kind not in KINDS:
-            raise GridFileError(f"unknown kind {kind!r}", file=file, field=f"{where}.kind",
-                                fix="use 'proper', 'vertical' or 'horizontal'")
+            raise GridFileError(
+                f"unknown kind {kind!r}",
+                file=file,
+                field=f"{where}.kind",
+                fix="use 'proper', 'vertical' or 'horizontal'",
+            )
         key = "points" if kind == "proper" else "start"
         val = item.get(key)
         try:
             arr = np.asarray(val, dtype=float)
         except OverflowError:
-            raise GridFileError("a coordinate is too large to be a float", file=file,
-                                field=f"{where}.{key}",
-                                fix=f"use coordinates with |x| <= {COORD_LIMIT:g}") from None
+            raise GridFileError(
+                "a coordinate is too large to be a float",
+                file=file,
+                field=f"{where}.{key}",
+                fix=f"use coordinates with |x| <= {COORD_LIMIT:g}",
+            ) from None
         except (TypeError, ValueError, RecursionError):
             arr = np.empty(0)
         ok = arr.ndim == 2 and arr.shape[1] == 2 and len(arr) >= 1 if kind == "proper" else arr.shape == (2,)
         if not ok:
             shape = "a list of [x, y] pairs" if kind == "proper" else "one [x, y] pair"
-            raise GridFileError(f"'{key}' is not {shape}", file=file, field=f"{where}.{key}",
-                                fix=f"give '{key}' as {shape} of numbers")
+            raise GridFileError(
+                f"'{key}' is not {shape}",
+                file=file,
+                field=f"{where}.{key}",
+                fix=f"give '{key}' as {shape} of numbers",
+            )
         finite = np.isfinite(arr)
         if np.any(finite & (np.abs(np.where(finite, arr, 0.0)) > COORD_LIMIT)):
-            raise GridFileError(f"a coordinate is outside the supported range |x| <= {COORD_LIMIT:g}",
-                                file=file, field=f"{where}.{key}",
-                                fix=f"rescale the values so that every coordinate has |x| <= {COORD_LIMIT:g}")
+            raise GridFileError(
+                f"a coordinate is outside the supported range |x| <= {COORD_LIMIT:g}",
+                file=file,
+                field=f"{where}.{key}",
+                fix=f"rescale the values so that every coordinate has |x| <= {COORD_LIMIT:g}",
+            )
         cid = str(cid)
         if prefix is not None:
             cid = f"{prefix}:{cid.split(':', 1)[-1]}"
         contours.append(Contour(cid, kind, arr))
-    grid = Grid(tuple(contours), route=str(data.get("route", "file")),
-                tolerance=_file_tolerance(data.get("tolerance"), file),
-                meta=_file_meta(data.get("meta"), file))
+    grid = Grid(
+        tuple(contours),
+        route=str(data.get("route", "file")),
+        tolerance=_file_tolerance(data.get("tolerance"), file),
+        meta=_file_meta(data.get("meta"), file),
+    )
     return validate_grid(grid, file=file)
 
 
@@ -273,15 +318,17 @@ def _file_tolerance(value: Any, file: str | None) -> float:
         return 0.0
     fix = f"give 'tolerance' as a number between 0 and {COORD_LIMIT:g}, or leave it out"
     if isinstance(value, bool) or not isinstance(value, int | float):
-        raise GridFileError(f"tolerance is a {type(value).__name__}, not a number", file=file,
-                            field="tolerance", fix=fix)
+        raise GridFileError(
+            f"tolerance is a {type(value).__name__}, not a number", file=file, field="tolerance", fix=fix
+        )
     try:
         number = float(value)
     except OverflowError:
         number = math.inf
     if not (math.isfinite(number) and 0.0 <= number <= COORD_LIMIT):
-        raise GridFileError("tolerance is negative, too large or not finite", file=file,
-                            field="tolerance", fix=fix)
+        raise GridFileError(
+            "tolerance is negative, too large or not finite", file=file, field="tolerance", fix=fix
+        )
     return number
 
 
@@ -290,8 +337,12 @@ def _file_meta(value: Any, file: str | None) -> dict[str, Any]:
     if value is None:
         return {}
     if not isinstance(value, dict):
-        raise GridFileError(f"meta is a {type(value).__name__}, not an object", file=file,
-                            field="meta", fix='give \'meta\' as a JSON object {...}, or leave it out')
+        raise GridFileError(
+            f"meta is a {type(value).__name__}, not an object",
+            file=file,
+            field="meta",
+            fix="give 'meta' as a JSON object {...}, or leave it out",
+        )
     return dict(value)
 
 
@@ -299,20 +350,40 @@ def read_grid(path: str | Path, *, prefix: str | None = None) -> Grid:
     """Read a grid JSON file (see :func:`grid_from_json`)."""
     p = Path(path)
     if not p.is_file():
-        raise GridFileError("file not found", file=str(p), field="grid",
-                            fix="check the path (relative paths resolve against the study file)")
+        raise GridFileError(
+            "file not found",
+            file=str(p),
+            field="grid",
+            fix="check the path (relative paths resolve against the study file)",
+        )
     try:
         data = json.loads(p.read_text())
     except PermissionError:
-        raise GridFileError("file cannot be read (permission denied)", file=str(p), field="grid",
-                            fix="make the file readable or copy it somewhere readable") from None
+        raise GridFileError(
+            "file cannot be read (permission denied)",
+            file=str(p),
+            field="grid",
+            fix="make the file readable or copy it somewhere readable",
+        ) from None
     except (json.JSONDecodeError, UnicodeDecodeError) as exc:
-        raise GridFileError(f"not valid JSON ({exc.msg if hasattr(exc, 'msg') else exc})",
-                            file=str(p), field="(root)", fix="write valid JSON") from None
+        raise GridFileError(
+            f"not valid JSON ({exc.msg if hasattr(exc, 'msg') else exc})",
+            file=str(p),
+            field="(root)",
+            fix="write valid JSON",
+        ) from None
     except (RecursionError, MemoryError):
-        raise GridFileError("JSON is nested too deeply", file=str(p), field="(root)",
-                            fix="write contours as flat lists of [x, y] pairs") from None
+        raise GridFileError(
+            "JSON is nested too deeply",
+            file=str(p),
+            field="(root)",
+            fix="write contours as flat lists of [x, y] pairs",
+        ) from None
     except ValueError as exc:  # e.g. an integer literal longer than Python's digit limit
-        raise GridFileError(f"not readable JSON ({str(exc):.80})", file=str(p), field="(root)",
-                            fix=f"write numbers as ordinary floats with |x| <= {COORD_LIMIT:g}") from None
+        raise GridFileError(
+            f"not readable JSON ({str(exc):.80})",
+            file=str(p),
+            field="(root)",
+            fix=f"write numbers as ordinary floats with |x| <= {COORD_LIMIT:g}",
+        ) from None
     return grid_from_json(data, file=str(p), prefix=prefix)

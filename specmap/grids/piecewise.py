@@ -153,8 +153,8 @@ def _orientation_sign(F: np.ndarray, i: np.ndarray, j: np.ndarray, k: np.ndarray
     ck1, ck2 = fk[:, 0] - fi[:, 0], fk[:, 1] - fi[:, 1]
     d0 = bj1 * ck2 - bj2 * ck1
     fi_, fj_, fk_ = (x.astype(float) for x in (i, j, k))
-    pj, pk = fj_ - fi_, fk_ - fi_                      # eps * index offsets in f1
-    qj, qk = fj_ ** 2 - fi_ ** 2, fk_ ** 2 - fi_ ** 2  # eps' * index**2 offsets in f2
+    pj, pk = fj_ - fi_, fk_ - fi_  # eps * index offsets in f1
+    qj, qk = fj_**2 - fi_**2, fk_**2 - fi_**2  # eps' * index**2 offsets in f2
     d_eps = pj * ck2 - bj2 * pk
     d_epsp = bj1 * qk - qj * ck1
     d_both = pj * qk - qj * pk  # = (j - i)(k - i)(k - j)

@@ -66,8 +66,11 @@ class CriticalPoint:
     index: int
 
     def to_json(self) -> dict[str, Any]:
-        return {"point": [float(x) for x in self.point], "value": [float(x) for x in self.value],
-                "index": int(self.index)}
+        return {
+            "point": [float(x) for x in self.point],
+            "value": [float(x) for x in self.value],
+            "index": int(self.index),
+        }
 
 
 # ----------------------------------------------------------------------------- small helpers
@@ -120,8 +123,9 @@ def _mesh_spacing(V: np.ndarray, E: np.ndarray) -> float:
 
 
 # ----------------------------------------------------------------------------- critical points
-def _lagrange_newton(surface, fmap: SmoothMap, which: int, P0: np.ndarray, tol: float,
-                     max_iter: int = 50) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+def _lagrange_newton(
+    surface, fmap: SmoothMap, which: int, P0: np.ndarray, tol: float, max_iter: int = 50
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Newton's method on grad f_i - mu grad G = 0, G = 0. Returns (points, mu, converged)."""
     size = surface.size
     h = 1e-5 * size
@@ -184,9 +188,15 @@ def _seed_vertices(surface, fmap: SmoothMap, which: int, V: np.ndarray, E: np.nd
     return np.nonzero(t <= nb_min)[0]
 
 
-def critical_points(surface, fmap: SmoothMap, which: int, resolution: int = 4000, *,
-                    tol: float = 1e-10, mesh: tuple[np.ndarray, np.ndarray] | None = None
-                    ) -> list[CriticalPoint]:
+def critical_points(
+    surface,
+    fmap: SmoothMap,
+    which: int,
+    resolution: int = 4000,
+    *,
+    tol: float = 1e-10,
+    mesh: tuple[np.ndarray, np.ndarray] | None = None,
+) -> list[CriticalPoint]:
     """Critical points of f_which (0 for f1, 1 for f2) on the surface, with Morse index.
 
     Seeds are mesh vertices where the tangential gradient is locally smallest; each seed is
@@ -219,8 +229,7 @@ def critical_points(surface, fmap: SmoothMap, which: int, resolution: int = 4000
         raise ValueError("which must be 0 (f1) or 1 (f2)")
     V, T = surface.mesh(resolution) if mesh is None else mesh
     E, _ = _edges(T)
-    found = _refine_seeds(surface, fmap, which, V[_seed_vertices(surface, fmap, which, V, E)],
-                          tol, [])
+    found = _refine_seeds(surface, fmap, which, V[_seed_vertices(surface, fmap, which, V, E)], tol, [])
     # every critical point lies on the Jacobi set, where t1 . t2 changes sign
     cycles = jacobi_cycles(surface, fmap, V, T, tol)
     located, vanishing = _pareto_ends(surface, fmap, cycles, tol)
@@ -229,8 +238,9 @@ def critical_points(surface, fmap: SmoothMap, which: int, resolution: int = 4000
     return found
 
 
-def _refine_seeds(surface, fmap: SmoothMap, which: int, seeds: np.ndarray, tol: float,
-                  known: list[CriticalPoint]) -> list[CriticalPoint]:
+def _refine_seeds(
+    surface, fmap: SmoothMap, which: int, seeds: np.ndarray, tol: float, known: list[CriticalPoint]
+) -> list[CriticalPoint]:
     """Newton-refine seeds to critical points of f_which; merge with ``known``; sort by value."""
     out = list(known)
     if len(seeds) == 0:
@@ -252,13 +262,18 @@ def _refine_seeds(surface, fmap: SmoothMap, which: int, seeds: np.ndarray, tol: 
 def _euler_check(cps: list[CriticalPoint], chi: int) -> dict[str, Any]:
     counts = [sum(1 for c in cps if c.index == k) for k in range(3)]
     alt = counts[0] - counts[1] + counts[2]
-    return {"minima": counts[0], "saddles": counts[1], "maxima": counts[2],
-            "alternating_sum": alt, "chi": chi, "ok": alt == chi}
+    return {
+        "minima": counts[0],
+        "saddles": counts[1],
+        "maxima": counts[2],
+        "alternating_sum": alt,
+        "chi": chi,
+        "ok": alt == chi,
+    }
 
 
 # ----------------------------------------------------------------------------- Jacobi curves
-def _refine_on_jacobi(surface, fmap: SmoothMap, P: np.ndarray, tol: float,
-                      max_iter: int = 40) -> np.ndarray:
+def _refine_on_jacobi(surface, fmap: SmoothMap, P: np.ndarray, tol: float, max_iter: int = 40) -> np.ndarray:
     """Minimum-norm Gauss-Newton onto {G = 0, det = 0}; step below ``tol * size`` stops."""
     size = surface.size
     h = 1e-6 * size
@@ -287,8 +302,7 @@ def _refine_on_jacobi(surface, fmap: SmoothMap, P: np.ndarray, tol: float,
     return P
 
 
-def jacobi_cycles(surface, fmap: SmoothMap, V: np.ndarray, T: np.ndarray, tol: float
-                  ) -> list[np.ndarray]:
+def jacobi_cycles(surface, fmap: SmoothMap, V: np.ndarray, T: np.ndarray, tol: float) -> list[np.ndarray]:
     """Closed curves of the Jacobi set, as cyclic point lists refined onto the curve.
 
     Marching triangles on the sign of det(grad G, grad f1, grad f2) at the vertices (zero
@@ -360,8 +374,7 @@ def _sign_changes(s: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
     return k_in, k_out
 
 
-def _locate_ends(surface, fmap, pa: np.ndarray, pb: np.ndarray, tol: float,
-                 iters: int = 60) -> np.ndarray:
+def _locate_ends(surface, fmap, pa: np.ndarray, pb: np.ndarray, tol: float, iters: int = 60) -> np.ndarray:
     """Points of the Jacobi curve between pa (t1 . t2 <= 0) and pb (> 0) where it is zero.
 
     Vectorised regula falsi (Illinois variant) on the Pareto sign, each trial point moved onto
@@ -393,8 +406,7 @@ def _locate_ends(surface, fmap, pa: np.ndarray, pb: np.ndarray, tol: float,
     return 0.5 * (pa + pb)
 
 
-def _pareto_ends(surface, fmap, cycles: list[np.ndarray], tol: float
-                 ) -> tuple[np.ndarray, np.ndarray]:
+def _pareto_ends(surface, fmap, cycles: list[np.ndarray], tol: float) -> tuple[np.ndarray, np.ndarray]:
     """All ends of Pareto arcs on the cycles and which gradient vanishes there (0 or 1)."""
     pa, pb = [], []
     for cyc in cycles:
@@ -410,8 +422,9 @@ def _pareto_ends(surface, fmap, cycles: list[np.ndarray], tol: float
     return ends, np.argmin(rel, axis=1)
 
 
-def _pareto_runs(surface, fmap, cyc: np.ndarray, crit: np.ndarray, snap: float, tol: float
-                 ) -> list[np.ndarray]:
+def _pareto_runs(
+    surface, fmap, cyc: np.ndarray, crit: np.ndarray, snap: float, tol: float
+) -> list[np.ndarray]:
     """Maximal Pareto arcs of one Jacobi cycle; ends at critical points of f1 or f2.
 
     Each end is located on the curve and replaced by the critical point within ``snap``.
@@ -445,12 +458,12 @@ def _pareto_runs(surface, fmap, cyc: np.ndarray, crit: np.ndarray, snap: float, 
         close = dist[np.arange(len(ends)), near] <= snap
         ends[close] = crit[near[close]]
     n = len(spans)
-    return [np.concatenate([ends[i][None], cyc[k:j + 1], ends[n + i][None]])
-            for i, (k, j) in enumerate(spans)]
+    return [
+        np.concatenate([ends[i][None], cyc[k : j + 1], ends[n + i][None]]) for i, (k, j) in enumerate(spans)
+    ]
 
 
-def _densify(surface, fmap, run: np.ndarray, tol: float, eps: float, rounds: int = 25
-             ) -> np.ndarray:
+def _densify(surface, fmap, run: np.ndarray, tol: float, eps: float, rounds: int = 25) -> np.ndarray:
     """Insert curve points into segments whose image step is not monotone (dx dy > 0).
 
     Such a step hides a cusp (often next to a critical point); its 3-D chord midpoint is moved
@@ -513,8 +526,7 @@ def _refine_cusp(surface, fmap, P: np.ndarray, k: int, tol: float) -> np.ndarray
     return p if better else b
 
 
-def _cut_at_cusps(surface, fmap, run: np.ndarray, closed: bool, tol: float, eps: float
-                  ) -> list[np.ndarray]:
+def _cut_at_cusps(surface, fmap, run: np.ndarray, closed: bool, tol: float, eps: float) -> list[np.ndarray]:
     """Split a Pareto arc into pieces whose images are monotone (3-D point lists)."""
     run = _densify(surface, fmap, run, tol, eps)
     Y = np.asarray(fmap.values(run), dtype=float)
@@ -538,8 +550,7 @@ def _cut_at_cusps(surface, fmap, run: np.ndarray, closed: bool, tol: float, eps:
     for k in cuts:
         run[k] = _refine_cusp(surface, fmap, run, k, tol)
     bounds = [0, *cuts, len(run) - 1]
-    return [run[bounds[i]:bounds[i + 1] + 1] for i in range(len(bounds) - 1)
-            if bounds[i + 1] > bounds[i]]
+    return [run[bounds[i] : bounds[i + 1] + 1] for i in range(len(bounds) - 1) if bounds[i + 1] > bounds[i]]
 
 
 def _monotone_parts(Y: np.ndarray, tol: float) -> tuple[list[np.ndarray], int]:
@@ -551,7 +562,7 @@ def _monotone_parts(Y: np.ndarray, tol: float) -> tuple[list[np.ndarray], int]:
     d = np.diff(Y, axis=0)
     bad = np.nonzero((d[:, 0] < -tol) | (d[:, 1] > tol))[0]
     bounds = [-1, *bad.tolist(), len(Y) - 1]
-    parts = [Y[bounds[i] + 1:bounds[i + 1] + 1] for i in range(len(bounds) - 1)]
+    parts = [Y[bounds[i] + 1 : bounds[i + 1] + 1] for i in range(len(bounds) - 1)]
     return [p for p in parts if len(p) >= 2], int(bad.size)
 
 
@@ -575,8 +586,9 @@ def _chord_error(Y: np.ndarray) -> float:
 
 
 # ----------------------------------------------------------------------------- the grid
-def smooth_grid(surface, fmap: SmoothMap, *, label: str = "f", resolution: int = 4000,
-                tol: float = 1e-9, retries: int = 1) -> Grid:
+def smooth_grid(
+    surface, fmap: SmoothMap, *, label: str = "f", resolution: int = 4000, tol: float = 1e-9, retries: int = 1
+) -> Grid:
     """Extended Pareto grid of a smooth map on a smooth surface.
 
     Parameters

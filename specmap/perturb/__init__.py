@@ -53,9 +53,16 @@ def settings_from_study(study: Study, *, runs: int | None = None) -> PerturbSett
     return study.perturb_settings(runs=runs)
 
 
-def perturbation_study(base: PerturbBase, settings: PerturbSettings, folder: str | Path, *,
-                       sizes: Sequence[float] | None = None, jobs: int = 1, cluster: str | None = None,
-                       progress: Callable[[int, int], None] | None = None) -> dict[str, Any]:
+def perturbation_study(
+    base: PerturbBase,
+    settings: PerturbSettings,
+    folder: str | Path,
+    *,
+    sizes: Sequence[float] | None = None,
+    jobs: int = 1,
+    cluster: str | None = None,
+    progress: Callable[[int, int], None] | None = None,
+) -> dict[str, Any]:
     """Run (or resume) a perturbation study of a base pair and write ``folder/summary.json``.
 
     Parameters

@@ -30,13 +30,19 @@ def _results(tasks: list, jobs: int, cluster: str | None) -> Iterator[dict[str, 
     try:
         import distributed
     except ImportError:
-        raise StudyError("a cluster needs dask.distributed, which is not installed", field="--cluster",
-                         fix="pip install 'specmap[dask]' or run without --cluster") from None
+        raise StudyError(
+            "a cluster needs dask.distributed, which is not installed",
+            field="--cluster",
+            fix="pip install 'specmap[dask]' or run without --cluster",
+        ) from None
     try:
         client = distributed.Client(cluster, timeout="20s")
     except (OSError, TimeoutError, ValueError) as exc:
-        raise StudyError(f"cannot reach the Dask scheduler {cluster!r} ({exc})", field="--cluster",
-                         fix="start a scheduler (dask scheduler) or check the address tcp://host:port") from None
+        raise StudyError(
+            f"cannot reach the Dask scheduler {cluster!r} ({exc})",
+            field="--cluster",
+            fix="start a scheduler (dask scheduler) or check the address tcp://host:port",
+        ) from None
     try:
         with joblib.parallel_backend("dask"):
             yield from joblib.Parallel(n_jobs=-1, return_as="generator_unordered")(tasks)
@@ -49,9 +55,16 @@ def size_tag(size: float) -> str:
     return f"size-{size:.6g}"
 
 
-def run_study(base: PerturbBase, settings: PerturbSettings, folder: str | Path, *, jobs: int = 1,
-              cluster: str | None = None, progress: Callable[[int, int], None] | None = None,
-              sizes: Sequence[float] | None = None) -> dict[str, Any]:
+def run_study(
+    base: PerturbBase,
+    settings: PerturbSettings,
+    folder: str | Path,
+    *,
+    jobs: int = 1,
+    cluster: str | None = None,
+    progress: Callable[[int, int], None] | None = None,
+    sizes: Sequence[float] | None = None,
+) -> dict[str, Any]:
     """Run (or resume) one run set and write its records and summary into ``folder``.
 
     Parameters
@@ -93,20 +106,36 @@ def run_study(base: PerturbBase, settings: PerturbSettings, folder: str | Path, 
                 if s == settings.size:
                     rows.append(sweep_row(summary))
                     continue
-                sub = run_study(base, dataclasses.replace(settings, size=s), folder / "sweep" / size_tag(s),
-                                jobs=jobs, cluster=cluster, progress=progress)
+                sub = run_study(
+                    base,
+                    dataclasses.replace(settings, size=s),
+                    folder / "sweep" / size_tag(s),
+                    jobs=jobs,
+                    cluster=cluster,
+                    progress=progress,
+                )
                 rows.append(sweep_row(sub))
             summary = {**summary, "sweep": rows}
         write_summary(folder, summary)
     return summary
 
 
-def _run_set(base: PerturbBase, settings: PerturbSettings, folder: Path, jobs: int, cluster: str | None,
-             progress: Callable[[int, int], None] | None) -> dict[str, Any]:
+def _run_set(
+    base: PerturbBase,
+    settings: PerturbSettings,
+    folder: Path,
+    jobs: int,
+    cluster: str | None,
+    progress: Callable[[int, int], None] | None,
+) -> dict[str, Any]:
     """Resume the run set of ``settings`` in ``folder`` (held locked), append new runs, summarize."""
     fp = fingerprint(base, settings)
-    settings_json = {"fingerprint": fp, "settings": settings.to_json(), "window": base.window.to_json(),
-                     "base": base.summary()}
+    settings_json = {
+        "fingerprint": fp,
+        "settings": settings.to_json(),
+        "window": base.window.to_json(),
+        "base": base.summary(),
+    }
     runs_path = folder / "runs.jsonl"
     switch_run_set(folder, fp, settings_json)
     done = tidy_runs(runs_path, fp)
@@ -138,9 +167,15 @@ def _run_set(base: PerturbBase, settings: PerturbSettings, folder: Path, jobs: i
         busy = sum(float(r.get("time", 0.0)) for r in records)
         rate = 60.0 * len(records) / busy if busy > 0 else None
         basis = "sum of recorded run times (one worker)"
-    summary = summarize_runs(records, base=base.summary(), size=settings.size, model=settings.model,
-                             window_area=base.window.area, runs_per_minute=rate,
-                             runs_per_minute_basis=basis)
+    summary = summarize_runs(
+        records,
+        base=base.summary(),
+        size=settings.size,
+        model=settings.model,
+        window_area=base.window.area,
+        runs_per_minute=rate,
+        runs_per_minute_basis=basis,
+    )
     summary["fingerprint"] = fp
     summary["settings"] = settings.to_json()
     summary["window"] = base.window.to_json()

@@ -47,8 +47,13 @@ N_MODES = 3
 MODE_FREQUENCY = 2.0
 
 _EXPONENTS = np.array(
-    [(i, j, k) for d in range(POLY_DEGREE + 1) for i in range(d + 1) for j in range(d + 1 - i)
-     for k in [d - i - j]],
+    [
+        (i, j, k)
+        for d in range(POLY_DEGREE + 1)
+        for i in range(d + 1)
+        for j in range(d + 1 - i)
+        for k in [d - i - j]
+    ],
     dtype=int,
 )
 
@@ -151,8 +156,14 @@ def random_field(
     wavevectors = rng.normal(scale=frequency, size=(n_modes, 3))
     phases = rng.uniform(0.0, 2.0 * math.pi, size=n_modes)
     amplitudes = rng.normal(scale=0.5, size=n_modes)
-    return RandomField(np.asarray(center, dtype=float).reshape(3), float(radius) if radius > 0 else 1.0,
-                       coefficients, wavevectors, phases, amplitudes)
+    return RandomField(
+        np.asarray(center, dtype=float).reshape(3),
+        float(radius) if radius > 0 else 1.0,
+        coefficients,
+        wavevectors,
+        phases,
+        amplitudes,
+    )
 
 
 @dataclass(frozen=True, eq=False)

@@ -76,9 +76,11 @@ class PerturbBase:
     grid_settings: tuple[GridSettings, GridSettings] = (GridSettings(), GridSettings())
 
     def summary(self) -> dict[str, Any]:
-        return {"total_area": self.total_area, "counts": dict(self.counts or {}),
-                "distance": None if self.distance is None else self.distance["value"]}
-
+        return {
+            "total_area": self.total_area,
+            "counts": dict(self.counts or {}),
+            "distance": None if self.distance is None else self.distance["value"],
+        }
 
 
 def atlas_digest(atlas: Any) -> tuple[float, dict[str, int], Any]:
@@ -121,16 +123,24 @@ def _special(grid_f: Grid, grid_g: Grid, window: Window, settings: PerturbSettin
     from specmap.special import special_set
 
     ms = settings.map_settings
-    return special_set(grid_f, grid_g, window, pairs=ms.pairs, resolution=ms.resolution, method=ms.method,
-                       tol=ms.tol)
+    return special_set(
+        grid_f, grid_g, window, pairs=ms.pairs, resolution=ms.resolution, method=ms.method, tol=ms.tol
+    )
 
 
-def _distance(shape_f: Shape, shape_g: Shape, grids: tuple[Grid, Grid], atlas: Any, window: Window,
-              settings: PerturbSettings) -> dict[str, Any]:
+def _distance(
+    shape_f: Shape,
+    shape_g: Shape,
+    grids: tuple[Grid, Grid],
+    atlas: Any,
+    window: Window,
+    settings: PerturbSettings,
+) -> dict[str, Any]:
     from specmap.distance import matching_distance
 
-    res = matching_distance(shape_f, shape_g, settings=settings.distance_settings, window=window, atlas=atlas,
-                            grids=grids)
+    res = matching_distance(
+        shape_f, shape_g, settings=settings.distance_settings, window=window, atlas=atlas, grids=grids
+    )
     return _distance_digest(res)
 
 
@@ -184,8 +194,11 @@ def run_one(base: PerturbBase, run_index: int, seed: int, settings: PerturbSetti
         grid_g, moved_g = perturb_grid(base.grid_g, settings.size, rng_g)
     else:
         if base.shape_f is None or base.shape_g is None:
-            raise UnsupportedInputError("the 'function' model needs the shapes of f and g", subject="model",
-                                        fix="use the 'grid' model for pairs given by grids")
+            raise UnsupportedInputError(
+                "the 'function' model needs the shapes of f and g",
+                subject="model",
+                fix="use the 'grid' model for pairs given by grids",
+            )
         shape_f, moved_f = perturb_shape(base.shape_f, settings.size, rng_f)
         shape_g, moved_g = perturb_shape(base.shape_g, settings.size, rng_g)
         grid_f, grid_g = _pareto(shape_f, base.grid_settings[0]), _pareto(shape_g, base.grid_settings[1])
@@ -233,14 +246,28 @@ def stability_check(before: dict[str, Any], after: dict[str, Any], bound: float)
     bb, ba = before.get("bounds") or {}, after.get("bounds") or {}
     checked = sorted(k for k in by if k in bb and k in ba)
     ok = all(ba[k][0] - bb[k][1] <= bound + slack and bb[k][0] - ba[k][1] <= bound + slack for k in checked)
-    digest = {"value": after["value"], "base": before["value"], "change": change, "bound": bound,
-              "slack": slack, "by_degree_change": by, "checked_degrees": checked}
+    digest = {
+        "value": after["value"],
+        "base": before["value"],
+        "change": change,
+        "bound": bound,
+        "slack": slack,
+        "by_degree_change": by,
+        "checked_degrees": checked,
+    }
     return digest, bool(ok)
 
 
-def make_base(grids: tuple[Grid, Grid], window: Window, *, shapes: tuple[Shape, Shape] | None = None,
-              atlas: Any = None, distance: Any = None, settings: PerturbSettings | None = None,
-              grid_settings: tuple[GridSettings, GridSettings] | None = None) -> PerturbBase:
+def make_base(
+    grids: tuple[Grid, Grid],
+    window: Window,
+    *,
+    shapes: tuple[Shape, Shape] | None = None,
+    atlas: Any = None,
+    distance: Any = None,
+    settings: PerturbSettings | None = None,
+    grid_settings: tuple[GridSettings, GridSettings] | None = None,
+) -> PerturbBase:
     """Assemble the base pair, computing its special set (and distance) when not given.
 
     Parameters
@@ -259,8 +286,11 @@ def make_base(grids: tuple[Grid, Grid], window: Window, *, shapes: tuple[Shape, 
     """
     settings = settings or PerturbSettings()
     if settings.model == "function" and (shapes is None or any(s is None or not s.has_mesh for s in shapes)):
-        raise UnsupportedInputError("the 'function' model needs f and g as surfaces or meshes", subject="model",
-                                    fix="use the 'grid' model for pairs given by grids")
+        raise UnsupportedInputError(
+            "the 'function' model needs f and g as surfaces or meshes",
+            subject="model",
+            fix="use the 'grid' model for pairs given by grids",
+        )
     gf, gg = grids
     if atlas is None:
         atlas = _special(gf, gg, window, settings)
@@ -268,7 +298,20 @@ def make_base(grids: tuple[Grid, Grid], window: Window, *, shapes: tuple[Shape, 
     sf, sg = shapes if shapes is not None else (None, None)
     dist = None
     if settings.distance and settings.model == "function" and sf is not None:
-        dist = _distance_digest(distance) if distance is not None else _distance(sf, sg, (gf, gg), atlas,
-                                                                                 window, settings)
-    return PerturbBase(gf, gg, window, sf, sg, area, counts, geometry, dist,
-                       grid_settings or (GridSettings(), GridSettings()))
+        dist = (
+            _distance_digest(distance)
+            if distance is not None
+            else _distance(sf, sg, (gf, gg), atlas, window, settings)
+        )
+    return PerturbBase(
+        gf,
+        gg,
+        window,
+        sf,
+        sg,
+        area,
+        counts,
+        geometry,
+        dist,
+        grid_settings or (GridSettings(), GridSettings()),
+    )

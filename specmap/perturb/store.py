@@ -182,8 +182,12 @@ def locked(folder: Path) -> Iterator[None]:
         try:
             fcntl.flock(fd, fcntl.LOCK_EX | fcntl.LOCK_NB)
         except BlockingIOError:
-            raise StudyError("another perturbation study is writing this folder", file=str(folder),
-                             field="perturb", fix="wait for it to finish or use another --out folder") from None
+            raise StudyError(
+                "another perturbation study is writing this folder",
+                file=str(folder),
+                field="perturb",
+                fix="wait for it to finish or use another --out folder",
+            ) from None
         yield
     finally:
         os.close(fd)

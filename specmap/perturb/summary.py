@@ -70,8 +70,14 @@ def _pct(x: float) -> str:
     return f"{v:.2g}" if v < 1.0 else f"{v:.1f}".rstrip("0").rstrip(".")
 
 
-def verdict(base: dict[str, Any], n_runs: int, with_patch: int, ci: tuple[float, float], size: float,
-            window_area: float) -> str:
+def verdict(
+    base: dict[str, Any],
+    n_runs: int,
+    with_patch: int,
+    ci: tuple[float, float],
+    size: float,
+    window_area: float,
+) -> str:
     """One sentence: the base special set, then how many perturbed runs had a patch.
 
     Examples
@@ -87,21 +93,31 @@ def verdict(base: dict[str, Any], n_runs: int, with_patch: int, ci: tuple[float,
     if n_patch:
         area = float(base.get("total_area", 0.0))
         share = area / window_area if window_area > 0 else 0.0
-        head = (f"The base special set has {n_patch} patch{'es' if n_patch > 1 else ''} "
-                f"(area {area:.3g}, {_pct(share)}% of the window)")
+        head = (
+            f"The base special set has {n_patch} patch{'es' if n_patch > 1 else ''} "
+            f"(area {area:.3g}, {_pct(share)}% of the window)"
+        )
         verb = "kept"
     else:
         n_curve = int(counts.get("curve", 0))
-        head = (f"The base special set has no patch ({n_curve} curve{'s' if n_curve != 1 else ''}, "
-                f"{int(counts.get('point', 0))} isolated points)")
+        head = (
+            f"The base special set has no patch ({n_curve} curve{'s' if n_curve != 1 else ''}, "
+            f"{int(counts.get('point', 0))} isolated points)"
+        )
         verb = "gained"
-    return (f"{head}; {with_patch} of {n_runs} perturbed runs of size {size:g} {verb} a patch "
-            f"({ci_text}).")
+    return f"{head}; {with_patch} of {n_runs} perturbed runs of size {size:g} {verb} a patch ({ci_text})."
 
 
-def summarize_runs(records: Sequence[dict[str, Any]], *, base: dict[str, Any], size: float, model: str,
-                   window_area: float, runs_per_minute: float | None = None,
-                   runs_per_minute_basis: str | None = None) -> dict[str, Any]:
+def summarize_runs(
+    records: Sequence[dict[str, Any]],
+    *,
+    base: dict[str, Any],
+    size: float,
+    model: str,
+    window_area: float,
+    runs_per_minute: float | None = None,
+    runs_per_minute_basis: str | None = None,
+) -> dict[str, Any]:
     """The summary of one run set (one size).
 
     Parameters

@@ -76,9 +76,15 @@ def _grid_points(grid: dict[str, Any]) -> np.ndarray:
     return nums(pts).reshape(-1, 2) if pts else np.empty((0, 2))
 
 
-def grids_figure(grid_f: dict[str, Any] | None, grid_g: dict[str, Any] | None, *,
-                 fig: FigureBase | None = None, line: Any = None, line_label: str | None = None,
-                 labels: bool = True) -> FigureBase:
+def grids_figure(
+    grid_f: dict[str, Any] | None,
+    grid_g: dict[str, Any] | None,
+    *,
+    fig: FigureBase | None = None,
+    line: Any = None,
+    line_label: str | None = None,
+    labels: bool = True,
+) -> FigureBase:
     """Both extended Pareto grids in the plane of values.
 
     Proper contours are solid polylines; improper contours (half-lines) are
@@ -163,14 +169,31 @@ def grids_figure(grid_f: dict[str, Any] | None, grid_g: dict[str, Any] | None, *
         tag = rf"$\Gamma({name})$"
         handles.append(Line2D([], [], color=col, lw=1.6, label=f"{tag} proper ({counts['proper']})"))
         n_half = counts["vertical"] + counts["horizontal"]
-        handles.append(Line2D([], [], color=col, lw=1.2, ls=dash, marker="o", mfc="white",
-                              label=f"{tag} half-lines ({n_half}), o = start"))
+        handles.append(
+            Line2D(
+                [],
+                [],
+                color=col,
+                lw=1.2,
+                ls=dash,
+                marker="o",
+                mfc="white",
+                label=f"{tag} half-lines ({n_half}), o = start",
+            )
+        )
     if line is not None and len(line) >= 2 and 0.0 < num(line[0]) < 1.0:
         la, lb = num(line[0]), num(line[1])
         xs = np.linspace(x0, x1, 2)
         ax.plot(xs, (1.0 - la) / la * (xs - lb) - lb, color="#c2185b", lw=1.8, zorder=5)
-        handles.append(Line2D([], [], color="#c2185b", lw=1.8,
-                              label=line_label or f"line r(a, b), (a, b) = ({fmt(la, 3)}, {fmt(lb, 3)})"))
+        handles.append(
+            Line2D(
+                [],
+                [],
+                color="#c2185b",
+                lw=1.8,
+                label=line_label or f"line r(a, b), (a, b) = ({fmt(la, 3)}, {fmt(lb, 3)})",
+            )
+        )
     ax.set_xlim(x0, x1)
     ax.set_ylim(y0, y1)
     ax.set_xlabel("f1 / g1")
@@ -183,8 +206,14 @@ def grids_figure(grid_f: dict[str, Any] | None, grid_g: dict[str, Any] | None, *
         hidden = place_labels(ax, label_items)
         if hidden:
             handles.append(Line2D([], [], ls="", label=f"{plural(hidden, 'contour id')} not shown (no room)"))
-    ax.legend(handles=handles, fontsize=LEGEND_SIZE, loc="upper center",
-              bbox_to_anchor=(0.5, -0.11 if labels else -0.2), ncol=2 if labels else 3, frameon=False)
+    ax.legend(
+        handles=handles,
+        fontsize=LEGEND_SIZE,
+        loc="upper center",
+        bbox_to_anchor=(0.5, -0.11 if labels else -0.2),
+        ncol=2 if labels else 3,
+        frameon=False,
+    )
     return fig
 
 
@@ -226,13 +255,24 @@ def place_labels(ax: Any, items: list[tuple[str, str, np.ndarray]], *, fontsize:
             if not (math.isfinite(x) and math.isfinite(y)):
                 continue
             for dx, dy in LABEL_OFFSETS:
-                t = ax.annotate(text, (x, y), xytext=(dx, dy), textcoords="offset points", fontsize=fontsize,
-                                color=col, ha="left" if dx >= 0 else "right", va="bottom",
-                                annotation_clip=True, zorder=7,
-                                bbox={"boxstyle": "square,pad=0.1", "fc": "white", "ec": "none", "alpha": 0.8})
+                t = ax.annotate(
+                    text,
+                    (x, y),
+                    xytext=(dx, dy),
+                    textcoords="offset points",
+                    fontsize=fontsize,
+                    color=col,
+                    ha="left" if dx >= 0 else "right",
+                    va="bottom",
+                    annotation_clip=True,
+                    zorder=7,
+                    bbox={"boxstyle": "square,pad=0.1", "fc": "white", "ec": "none", "alpha": 0.8},
+                )
                 t.set_in_layout(False)
                 box = t.get_window_extent(renderer)
-                inside = (box.x0 >= frame.x0 and box.x1 <= frame.x1 and box.y0 >= frame.y0 and box.y1 <= frame.y1)
+                inside = (
+                    box.x0 >= frame.x0 and box.x1 <= frame.x1 and box.y0 >= frame.y0 and box.y1 <= frame.y1
+                )
                 if inside and not any(box.overlaps(b) for b in placed):
                     placed.append(box)
                     done = True
@@ -291,21 +331,37 @@ def _features(special: dict[str, Any] | None, geojson: dict[str, Any] | None) ->
         geom = feat.get("geometry")
         shp = geo_shape(geom) if geom else None
         kind = str(comp.get("kind", props.get("kind", "curve")))
-        out.append({"id": cid, "kind": kind, "area": num(comp.get("area", props.get("area"))),
-                    "condition": _condition_of(comp.get("ties", props.get("ties")), props),
-                    "part_conditions": props.get("conditions"), "geometry": shp,
-                    "bbox": comp.get("bbox", props.get("bbox"))})
+        out.append(
+            {
+                "id": cid,
+                "kind": kind,
+                "area": num(comp.get("area", props.get("area"))),
+                "condition": _condition_of(comp.get("ties", props.get("ties")), props),
+                "part_conditions": props.get("conditions"),
+                "geometry": shp,
+                "bbox": comp.get("bbox", props.get("bbox")),
+            }
+        )
         seen.add(cid)
     for cid, comp in comps.items():
         if cid not in seen:
-            out.append({"id": cid, "kind": str(comp.get("kind", "curve")), "area": num(comp.get("area")),
-                        "condition": _condition_of(comp.get("ties"), {}), "part_conditions": None,
-                        "geometry": None, "bbox": comp.get("bbox")})
+            out.append(
+                {
+                    "id": cid,
+                    "kind": str(comp.get("kind", "curve")),
+                    "area": num(comp.get("area")),
+                    "condition": _condition_of(comp.get("ties"), {}),
+                    "part_conditions": None,
+                    "geometry": None,
+                    "bbox": comp.get("bbox"),
+                }
+            )
     return out
 
 
-def _draw_special(ax: Any, feats: list[dict[str, Any]], *, thin: bool = False,
-                  mono: str | None = None) -> list[Any]:
+def _draw_special(
+    ax: Any, feats: list[dict[str, Any]], *, thin: bool = False, mono: str | None = None
+) -> list[Any]:
     """Draw components on ``ax``; return legend handles (one per style used)."""
     handles: dict[str, Any] = {}
     batches: dict[tuple[str, str, float], list[np.ndarray]] = {}
@@ -318,10 +374,10 @@ def _draw_special(ax: Any, feats: list[dict[str, Any]], *, thin: bool = False,
             bb = rec.get("bbox")
             if bb and len(bb) == 4:
                 a0, b0, a1, b1 = nums(bb)
-                ax.add_patch(Rectangle((a0, b0), a1 - a0, b1 - b0, fill=False, ls=":", lw=0.8,
-                                       ec="0.4"))
-                handles.setdefault("bbox", Line2D([], [], color="0.4", ls=":",
-                                                  label="component box (no geometry stored)"))
+                ax.add_patch(Rectangle((a0, b0), a1 - a0, b1 - b0, fill=False, ls=":", lw=0.8, ec="0.4"))
+                handles.setdefault(
+                    "bbox", Line2D([], [], color="0.4", ls=":", label="component box (no geometry stored)")
+                )
             continue
         leaves = list(_parts(shp))
         pc = rec.get("part_conditions")
@@ -330,14 +386,22 @@ def _draw_special(ax: Any, feats: list[dict[str, Any]], *, thin: bool = False,
             col = mono or PATCH_COLOURS[patch_no % len(PATCH_COLOURS)]
             for g in leaves:
                 if g.geom_type == "Polygon":
-                    ax.add_patch(PathPatch(_polygon_path(g), fc="none" if thin else col,
-                                           ec=mono or col, alpha=1.0 if thin else 0.45,
-                                           lw=lw, hatch="//" if thin else None))
+                    ax.add_patch(
+                        PathPatch(
+                            _polygon_path(g),
+                            fc="none" if thin else col,
+                            ec=mono or col,
+                            alpha=1.0 if thin else 0.45,
+                            lw=lw,
+                            hatch="//" if thin else None,
+                        )
+                    )
             if not thin:
                 if patch_no < MAX_PATCH_LABELS:
                     area = fmt(rec["area"], 3) if math.isfinite(rec["area"]) else "not recorded"
-                    handles[f"patch{patch_no}"] = Patch(fc=col, alpha=0.45, ec=col,
-                                                        label=f"patch {rec['id']}: area {area}")
+                    handles[f"patch{patch_no}"] = Patch(
+                        fc=col, alpha=0.45, ec=col, label=f"patch {rec['id']}: area {area}"
+                    )
                 else:
                     patch_rest += 1
                     patch_area_rest += rec["area"] if math.isfinite(rec["area"]) else 0.0
@@ -355,26 +419,54 @@ def _draw_special(ax: Any, feats: list[dict[str, Any]], *, thin: bool = False,
             col = mono or st["color"]
             ls = "-" if mono else st["linestyle"]
             if g.geom_type == "Point":
-                ax.plot([g.x], [g.y], "o", color=col, mec="black" if not mono else col, ms=4 if thin else 6,
-                        zorder=4)
-                handles.setdefault("point", Line2D([], [], marker="o", color="0.3", mec="black", ls="",
-                                                   label="isolated special point"))
+                ax.plot(
+                    [g.x],
+                    [g.y],
+                    "o",
+                    color=col,
+                    mec="black" if not mono else col,
+                    ms=4 if thin else 6,
+                    zorder=4,
+                )
+                handles.setdefault(
+                    "point",
+                    Line2D(
+                        [], [], marker="o", color="0.3", mec="black", ls="", label="isolated special point"
+                    ),
+                )
             elif g.geom_type in ("LineString", "LinearRing"):
                 batches.setdefault((col, ls, line_w), []).append(np.asarray(g.coords)[:, :2])
                 if not mono:
-                    handles.setdefault(cond, Line2D([], [], color=col, ls=st["linestyle"], lw=lw,
-                                                    label=st["label"]))
+                    handles.setdefault(
+                        cond, Line2D([], [], color=col, ls=st["linestyle"], lw=lw, label=st["label"])
+                    )
     # one collection per style: tens of thousands of tie curves draw in one call each
     for (col, ls, w), segs in batches.items():
         ax.add_collection(LineCollection(segs, colors=col, linestyles=ls, linewidths=w, zorder=3))
     if patch_rest:
-        handles["patchrest"] = Patch(fc="none", ec="0.3",
-                                     label=f"{patch_rest} more patches (area {fmt(patch_area_rest, 3)})")
+        handles["patchrest"] = Patch(
+            fc="none", ec="0.3", label=f"{patch_rest} more patches (area {fmt(patch_area_rest, 3)})"
+        )
     return list(handles.values())
 
 
-FAMILY_COLOURS = ("#1f77b4", "#d62728", "#2ca02c", "#9467bd", "#ff7f0e", "#17becf", "#8c564b", "#e377c2",
-                  "#7f7f7f", "#bcbd22", "#393b79", "#637939", "#8c6d31", "#843c39", "#7b4173")
+FAMILY_COLOURS = (
+    "#1f77b4",
+    "#d62728",
+    "#2ca02c",
+    "#9467bd",
+    "#ff7f0e",
+    "#17becf",
+    "#8c564b",
+    "#e377c2",
+    "#7f7f7f",
+    "#bcbd22",
+    "#393b79",
+    "#637939",
+    "#8c6d31",
+    "#843c39",
+    "#7b4173",
+)
 PATCH_FILL, PATCH_EDGE = "#9fd8b5", "#1b6e3c"
 MAX_FAMILIES = 8
 REACH_FRACTION = 0.05
@@ -396,10 +488,16 @@ def _curve_alpha(n: int) -> float:
     return float(min(1.0, max(0.06, 25.0 / max(n, 1))))
 
 
-def special_figure(special: dict[str, Any], geojson: dict[str, Any] | None, *,
-                   fig: FigureBase | None = None, grid_f: dict[str, Any] | None = None,
-                   grid_g: dict[str, Any] | None = None, distance: dict[str, Any] | None = None,
-                   index: TieIndex | None = None) -> FigureBase:
+def special_figure(
+    special: dict[str, Any],
+    geojson: dict[str, Any] | None,
+    *,
+    fig: FigureBase | None = None,
+    grid_f: dict[str, Any] | None = None,
+    grid_g: dict[str, Any] | None = None,
+    distance: dict[str, Any] | None = None,
+    index: TieIndex | None = None,
+) -> FigureBase:
     """The special set in the parameter strip (a horizontal, b vertical).
 
     Patches are filled regions with an outline. Tie curves are coloured by family
@@ -443,36 +541,48 @@ def special_figure(special: dict[str, Any], geojson: dict[str, Any] | None, *,
     win_area = max((a_hi - a_lo) * (b_hi - b_lo), 1e-300)
     for n, (cid, polys) in enumerate(ix.polygons.items()):
         for poly in polys:
-            ax.add_patch(PathPatch(_polygon_path(poly), fc=PATCH_FILL, ec=PATCH_EDGE, lw=1.2, alpha=0.55,
-                                   zorder=1))
+            ax.add_patch(
+                PathPatch(_polygon_path(poly), fc=PATCH_FILL, ec=PATCH_EDGE, lw=1.2, alpha=0.55, zorder=1)
+            )
             ax.add_patch(PathPatch(_polygon_path(poly), fc="none", ec=PATCH_EDGE, lw=1.2, zorder=4))
         if n < MAX_PATCH_LABELS:
             area = num(comps.get(cid, {}).get("area"))
             held = ix.patch_ties.get(cid)
-            txt = (f"patch {cid}: area {fmt(area, 3)} ({100 * area / win_area:.3g}%)"
-                   if math.isfinite(area) else f"patch {cid}: area not recorded")
+            txt = (
+                f"patch {cid}: area {fmt(area, 3)} ({100 * area / win_area:.3g}%)"
+                if math.isfinite(area)
+                else f"patch {cid}: area not recorded"
+            )
             if held is not None:
                 txt += f", {plural(len(held), 'tie')} hold"
             handles.append(Patch(fc=PATCH_FILL, ec=PATCH_EDGE, alpha=0.8, label=txt))
     if len(ix.polygons) > MAX_PATCH_LABELS:
-        handles.append(Patch(fc=PATCH_FILL, ec=PATCH_EDGE, label=f"{len(ix.polygons) - MAX_PATCH_LABELS} more patches"))
+        handles.append(
+            Patch(fc=PATCH_FILL, ec=PATCH_EDGE, label=f"{len(ix.polygons) - MAX_PATCH_LABELS} more patches")
+        )
     # tie curves by family (or by their component's condition without grids)
     groups: dict[str, list[np.ndarray]] = {}
     for c in ix.curves:
-        key = c.family if ix.labelled and c.family != "unknown" else \
-            "condition: " + _condition_of(comps.get(c.component, {}).get("ties"), {})
+        key = (
+            c.family
+            if ix.labelled and c.family != "unknown"
+            else "condition: " + _condition_of(comps.get(c.component, {}).get("ties"), {})
+        )
         groups.setdefault(key, []).append(c.xy)
     order = sorted(groups, key=lambda k: -len(groups[k]))
     if len(order) > MAX_FAMILIES:  # the rarest families share one grey style
-        rest = [xy for k in order[MAX_FAMILIES - 1:] for xy in groups[k]]
+        rest = [xy for k in order[MAX_FAMILIES - 1 :] for xy in groups[k]]
         n_rest = len(order) - MAX_FAMILIES + 1
-        order = order[:MAX_FAMILIES - 1] + [f"{n_rest} other families"]
+        order = order[: MAX_FAMILIES - 1] + [f"{n_rest} other families"]
         groups[order[-1]] = rest
     for i, key in enumerate(order):
         segs = groups[key]
         col = "#8a8a8a" if key.endswith("other families") else FAMILY_COLOURS[i % len(FAMILY_COLOURS)]
-        ax.add_collection(LineCollection(segs, colors=col, linewidths=0.9, alpha=_curve_alpha(len(segs)),
-                                         zorder=2, rasterized=True))
+        ax.add_collection(
+            LineCollection(
+                segs, colors=col, linewidths=0.9, alpha=_curve_alpha(len(segs)), zorder=2, rasterized=True
+            )
+        )
         handles.append(Line2D([], [], color=col, lw=1.6, label=f"{key} ({len(segs)})"))
     reach = reach_of(distance)
     if reach is not None and ix.labelled:
@@ -486,14 +596,30 @@ def special_figure(special: dict[str, Any], geojson: dict[str, Any] | None, *,
                 near.extend(np.stack([c.xy[:-1][seg_ok], c.xy[1:][seg_ok]], axis=1))
         if near:
             ax.add_collection(LineCollection(near, colors="black", linewidths=1.8, zorder=5))
-        handles.append(Line2D([], [], color="black", lw=1.8,
-                              label=f"tied value D ± {fmt(r, 2)}" + ("" if near else " (none)")))
+        handles.append(
+            Line2D(
+                [],
+                [],
+                color="black",
+                lw=1.8,
+                label=f"tied value D ± {fmt(r, 2)}" + ("" if near else " (none)"),
+            )
+        )
     pts = [p for p in ix.points.values()]
     if pts:
         xy = np.concatenate(pts)
         ax.plot(xy[:, 0], xy[:, 1], "o", color="#333333", mec="black", ms=6, zorder=6, ls="")
-        handles.append(Line2D([], [], marker="o", color="#333333", mec="black", ls="",
-                              label=f"isolated special point ({len(xy)})"))
+        handles.append(
+            Line2D(
+                [],
+                [],
+                marker="o",
+                color="#333333",
+                mec="black",
+                ls="",
+                label=f"isolated special point ({len(xy)})",
+            )
+        )
     if geojson is None:
         for comp in special.get("components") or []:
             bb = clip_bbox(comp.get("bbox"), (a_lo, b_lo, a_hi, b_hi))
@@ -511,19 +637,35 @@ def special_figure(special: dict[str, Any], geojson: dict[str, Any] | None, *,
     ax.set_ylabel("b   (line offset)")
     counts = special.get("counts") or {}
     n_curves = tie_curve_count(special)
-    drawn = (f"; {len(ix.curves)} drawn (coincident ones merged)" if ix.curves and len(ix.curves) != n_curves
-             else "")
+    drawn = (
+        f"; {len(ix.curves)} drawn (coincident ones merged)"
+        if ix.curves and len(ix.curves) != n_curves
+        else ""
+    )
     ax.set_title(
-        "Special set: components " + ", ".join([
-            plural(int(num(counts.get("patch", 0))), "patch", "patches"),
-            plural(int(num(counts.get("curve", 0))), "curve"),
-            plural(int(num(counts.get("point", 0))), "point"),
-        ]) + f"; {plural(n_curves, 'tie curve')}", fontsize=10)
+        "Special set: components "
+        + ", ".join(
+            [
+                plural(int(num(counts.get("patch", 0))), "patch", "patches"),
+                plural(int(num(counts.get("curve", 0))), "curve"),
+                plural(int(num(counts.get("point", 0))), "point"),
+            ]
+        )
+        + f"; {plural(n_curves, 'tie curve')}",
+        fontsize=10,
+    )
     ax.grid(alpha=0.2)
     if handles:
-        ax.legend(handles=handles, fontsize=7.5, loc="upper center", bbox_to_anchor=(0.5, -0.11),
-                  ncol=2 if len(handles) < 7 else 3, frameon=False, title=f"tie curves by family (count{drawn}); "
-                  "the darker, the denser", title_fontsize=7.5)
+        ax.legend(
+            handles=handles,
+            fontsize=7.5,
+            loc="upper center",
+            bbox_to_anchor=(0.5, -0.11),
+            ncol=2 if len(handles) < 7 else 3,
+            frameon=False,
+            title=f"tie curves by family (count{drawn}); the darker, the denser",
+            title_fontsize=7.5,
+        )
     return fig
 
 
@@ -551,9 +693,14 @@ def distance_map_samples(distance: dict[str, Any]) -> dict[str, Any] | None:
     return distance.get("distance_map") or distance.get("landscape") or None
 
 
-def distance_map_figure(distance: dict[str, Any], geojson: dict[str, Any] | None = None, *,
-                        window: dict[str, Any] | None = None, degree: int | str | None = None,
-                        fig: FigureBase | None = None) -> FigureBase:
+def distance_map_figure(
+    distance: dict[str, Any],
+    geojson: dict[str, Any] | None = None,
+    *,
+    window: dict[str, Any] | None = None,
+    degree: int | str | None = None,
+    fig: FigureBase | None = None,
+) -> FigureBase:
     """h over the strip: a heat map of h(a, b) with the special set over it and the maximum starred.
 
     Patches are hatched outlines, curves thin dark lines, a = 1/2 dotted; all are in
@@ -593,8 +740,9 @@ def distance_map_figure(distance: dict[str, Any], geojson: dict[str, Any] | None
             raise ValueError(f"distance map has no values for degree {degree}")
         h = nums(h_raw)
         if h.shape != (len(b), len(a)):
-            raise ValueError(f"distance map h has shape {h.shape}, expected (len(b), len(a)) = "
-                             f"({len(b)}, {len(a)})")
+            raise ValueError(
+                f"distance map h has shape {h.shape}, expected (len(b), len(a)) = ({len(b)}, {len(a)})"
+            )
         masked = np.ma.masked_invalid(h)
         mesh = ax.pcolormesh(a, b, masked, shading="nearest", cmap="viridis", rasterized=True)
         label = "h(a, b)" + (" (max over degrees)" if degree is None else f" (degree {degree})")
@@ -625,15 +773,33 @@ def distance_map_figure(distance: dict[str, Any], geojson: dict[str, Any] | None
             bd = (distance.get("by_degree") or {}).get(str(degree)) or {}
             at, value = bd.get("at", at), bd.get("value", value)
         ax.plot([num(at[0])], [num(at[1])], "*", ms=16, color="#ff3b3b", mec="black", mew=0.8, zorder=6)
-        handles.append(Line2D([], [], marker="*", ls="", ms=12, color="#ff3b3b", mec="black",
-                              label=f"maximum {fmt(value)} at (a, b) = ({fmt(at[0], 3)}, {fmt(at[1], 3)})"))
+        handles.append(
+            Line2D(
+                [],
+                [],
+                marker="*",
+                ls="",
+                ms=12,
+                color="#ff3b3b",
+                mec="black",
+                label=f"maximum {fmt(value)} at (a, b) = ({fmt(at[0], 3)}, {fmt(at[1], 3)})",
+            )
+        )
     ax.axvline(0.5, color="0.85" if land else "0.35", ls=":", lw=1.0)
     handles.append(Line2D([], [], color="0.45", ls=":", lw=1.0, label="a = 1/2 (slope-one lines)"))
     ax.set_xlabel("a")
     ax.set_ylabel("b")
     ax.set_title(title, fontsize=10)
-    ax.legend(handles=handles, fontsize=LEGEND_SIZE, loc="upper center", bbox_to_anchor=(0.5, -0.12),
-              ncol=2, frameon=True, facecolor="white", edgecolor="0.7")
+    ax.legend(
+        handles=handles,
+        fontsize=LEGEND_SIZE,
+        loc="upper center",
+        bbox_to_anchor=(0.5, -0.12),
+        ncol=2,
+        frameon=True,
+        facecolor="white",
+        edgecolor="0.7",
+    )
     return fig
 
 
@@ -648,14 +814,29 @@ def _hist(ax: Any, values: np.ndarray, xlabel: str, base: float | None = None) -
     n_bad = len(values) - len(finite)
     notes = [f"{n_bad} non-finite omitted"] if n_bad else []
     if len(finite) and np.ptp(finite) == 0:
-        ax.text(0.5, 0.5, f"all {plural(len(finite), 'run')}: {fmt(finite[0], 3)}", ha="center", va="center",
-                transform=ax.transAxes, fontsize=10)
+        ax.text(
+            0.5,
+            0.5,
+            f"all {plural(len(finite), 'run')}: {fmt(finite[0], 3)}",
+            ha="center",
+            va="center",
+            transform=ax.transAxes,
+            fontsize=10,
+        )
         ax.set_yticks([])
         ax.set_xticks([])
         ax.set_xlabel(xlabel + (f"\n({'; '.join(notes)})" if notes else ""))
         if base is not None and math.isfinite(base):
-            ax.text(0.5, 0.3, f"unperturbed: {fmt(base, 3)}", ha="center", va="center", transform=ax.transAxes,
-                    fontsize=9, color="#c0392b")
+            ax.text(
+                0.5,
+                0.3,
+                f"unperturbed: {fmt(base, 3)}",
+                ha="center",
+                va="center",
+                transform=ax.transAxes,
+                fontsize=9,
+                color="#c0392b",
+            )
         return
     if len(finite) and len(finite) <= STRIP_MAX:
         jitter = np.random.default_rng(0).uniform(-0.25, 0.25, len(finite))
@@ -669,8 +850,17 @@ def _hist(ax: Any, values: np.ndarray, xlabel: str, base: float | None = None) -
         ax.yaxis.set_major_locator(MaxNLocator(integer=True))
         ax.set_ylabel("runs")
     else:
-        ax.text(0.5, 0.5, "no finite values recorded" if len(values) else "no run records", ha="center",
-                va="center", transform=ax.transAxes, fontsize=9, bbox={"fc": "white", "ec": "none"}, zorder=5)
+        ax.text(
+            0.5,
+            0.5,
+            "no finite values recorded" if len(values) else "no run records",
+            ha="center",
+            va="center",
+            transform=ax.transAxes,
+            fontsize=9,
+            bbox={"fc": "white", "ec": "none"},
+            zorder=5,
+        )
         ax.set_ylabel("runs")
     if base is not None and math.isfinite(base):
         ax.axvline(base, color="#c0392b", ls="--", lw=1.2, label=f"unperturbed: {fmt(base, 3)}")
@@ -678,8 +868,9 @@ def _hist(ax: Any, values: np.ndarray, xlabel: str, base: float | None = None) -
     ax.set_xlabel(xlabel + (f"\n({'; '.join(notes)})" if notes else ""))
 
 
-def perturb_figure(summary: dict[str, Any], runs: list[dict[str, Any]], *,
-                   fig: FigureBase | None = None) -> FigureBase:
+def perturb_figure(
+    summary: dict[str, Any], runs: list[dict[str, Any]], *, fig: FigureBase | None = None
+) -> FigureBase:
     """Distributions over perturbed runs and, when present, the size sweep.
 
     Parameters
@@ -723,8 +914,15 @@ def perturb_figure(summary: dict[str, Any], runs: list[dict[str, Any]], *,
         ok = np.isfinite(lo) & np.isfinite(hi)
         yerr = np.vstack([np.where(ok, lo, 0), np.where(ok, hi, 0)])
         order = np.argsort(size)
-        ax.errorbar(size[order], frac[order], yerr=yerr[:, order], fmt="o-", color="#2e8b57", capsize=4,
-                    label="runs with a patch (95% interval)")
+        ax.errorbar(
+            size[order],
+            frac[order],
+            yerr=yerr[:, order],
+            fmt="o-",
+            color="#2e8b57",
+            capsize=4,
+            label="runs with a patch (95% interval)",
+        )
         ax.set_xscale("log")
         ax.set_ylim(-0.05, 1.05)
         ax.set_xlabel("perturbation size")

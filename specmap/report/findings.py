@@ -34,12 +34,17 @@ def _grid_sentences(res: dict[str, Any]) -> list[str]:
         )
     simp = {n: (res.get(f"grid_{n}") or {}).get("meta", {}).get("simplification") for n in ("f", "g")}
     if any(simp.values()):
-        said = "; ".join(f"{n}: delta {fmt(r.get('delta'), 3)}, sup change {fmt(max(r.get('sup_change') or [0]), 3)}"
-                         f", {r.get('contours_before')} -> {r.get('contours_after')} contours"
-                         for n, r in simp.items() if r)
-        out.append(f"The values were simplified ({said}): the grids, the special set and the distance shown are "
-                   "those of the simplified pair; the original pair's distance lies in the simplified_bounds "
-                   "of distance.json (stability theorem).")
+        said = "; ".join(
+            f"{n}: delta {fmt(r.get('delta'), 3)}, sup change {fmt(max(r.get('sup_change') or [0]), 3)}"
+            f", {r.get('contours_before')} -> {r.get('contours_after')} contours"
+            for n, r in simp.items()
+            if r
+        )
+        out.append(
+            f"The values were simplified ({said}): the grids, the special set and the distance shown are "
+            "those of the simplified pair; the original pair's distance lies in the simplified_bounds "
+            "of distance.json (stability theorem)."
+        )
     return out
 
 
@@ -55,8 +60,10 @@ def _perturb_tail(res: dict[str, Any]) -> str:
     k = int(num(k))
     if k == 0:
         return f"; none survived {runs} perturbations of size {fmt(s.get('size'), 3)}"
-    return (f"; a patch persisted in {k} of {runs} perturbations of size {fmt(s.get('size'), 3)}"
-            f" (95% interval for the fraction {fmt_interval(fraction_interval(s.get('runs_with_patch_ci95'), runs))})")
+    return (
+        f"; a patch persisted in {k} of {runs} perturbations of size {fmt(s.get('size'), 3)}"
+        f" (95% interval for the fraction {fmt_interval(fraction_interval(s.get('runs_with_patch_ci95'), runs))})"
+    )
 
 
 def _special_sentences(res: dict[str, Any]) -> list[str]:
@@ -75,11 +82,15 @@ def _special_sentences(res: dict[str, Any]) -> list[str]:
     tail = _perturb_tail(res)
     if n_patch:
         verb = "covers" if n_patch == 1 else "cover"
-        out.append(f"{plural(n_patch, 'patch', 'patches')} {verb} {fmt_pct(sp.get('area_fraction'))} of the "
-                   f"window (total area {fmt(sp.get('total_area'))}){tail}.")
+        out.append(
+            f"{plural(n_patch, 'patch', 'patches')} {verb} {fmt_pct(sp.get('area_fraction'))} of the "
+            f"window (total area {fmt(sp.get('total_area'))}){tail}."
+        )
     else:
-        out.append("No patch was found: at this resolution and tolerance the special set has zero area"
-                   f"{tail.replace('none survived', 'no patch appeared in')}.")
+        out.append(
+            "No patch was found: at this resolution and tolerance the special set has zero area"
+            f"{tail.replace('none survived', 'no patch appeared in')}."
+        )
     return out
 
 
@@ -107,17 +118,25 @@ def theorem_audit_sentence(d: dict[str, Any]) -> str | None:
         at = fmt_point(line) if isinstance(line, list) else str(line)
         th = audit.get("theorem") or {}
         if th.get("reduced_above_upper") and not th.get("dense_above_reduced"):
-            return (f"{WARNING} the reduced search's value lies above a certified upper bound of D at "
-                    f"(a, b) = {at}: an evaluation or a bound is wrong{_tol(d.get('tolerance'))}.")
-        return (f"{WARNING} the dense sweep exceeds the reduced search by {fmt(audit.get('gap'))} at "
-                f"(a, b) = {at}: the computation disagrees with the theorem's reduction here"
-                f"{_tol(d.get('tolerance'))}.")
+            return (
+                f"{WARNING} the reduced search's value lies above a certified upper bound of D at "
+                f"(a, b) = {at}: an evaluation or a bound is wrong{_tol(d.get('tolerance'))}."
+            )
+        return (
+            f"{WARNING} the dense sweep exceeds the reduced search by {fmt(audit.get('gap'))} at "
+            f"(a, b) = {at}: the computation disagrees with the theorem's reduction here"
+            f"{_tol(d.get('tolerance'))}."
+        )
     if "theorem_gap" in audit and audit["theorem_gap"] is None:
-        return ("Theorem audit: not run (it compares the dense sweep with the reduced search; "
-                "run specmap distance --method both).")
+        return (
+            "Theorem audit: not run (it compares the dense sweep with the reduced search; "
+            "run specmap distance --method both)."
+        )
     if "theorem_gap" in audit:
-        return (f"The dense sweep does not exceed the reduced search beyond the tolerance "
-                f"(gap {fmt(audit.get('gap'))}){_tol(d.get('tolerance'))}.")
+        return (
+            f"The dense sweep does not exceed the reduced search beyond the tolerance "
+            f"(gap {fmt(audit.get('gap'))}){_tol(d.get('tolerance'))}."
+        )
     return None
 
 
@@ -127,13 +146,17 @@ def position_audit_sentence(d: dict[str, Any]) -> str | None:
     if not pos:
         return None
     frac = num(pos.get("fraction_explained"))
-    txt = (f"{fmt_pct(frac)} of diagram coordinates on {pos.get('lines', 'n/a')} audited lines are push "
-           f"coordinates of grid contours (max deviation {fmt(pos.get('max_deviation'), 3)})")
+    txt = (
+        f"{fmt_pct(frac)} of diagram coordinates on {pos.get('lines', 'n/a')} audited lines are push "
+        f"coordinates of grid contours (max deviation {fmt(pos.get('max_deviation'), 3)})"
+    )
     if math.isfinite(frac) and frac < 1.0:
         # a caveat, not a WARNING: on surface studies the slices live on a mesh and the audit's tolerance
         # omits the mesh error, so this is below 100% almost always (issue 13); the summary ranks it
-        return (f"Position audit (caveat): only {txt}; the position theorem is not met within this "
-                "tolerance; the grids may be incomplete or the tolerance too tight for the mesh.")
+        return (
+            f"Position audit (caveat): only {txt}; the position theorem is not met within this "
+            "tolerance; the grids may be incomplete or the tolerance too tight for the mesh."
+        )
     return txt[0].upper() + txt[1:] + ", as the position theorem requires."
 
 
@@ -151,28 +174,40 @@ def _distance_sentences(res: dict[str, Any]) -> list[str]:
     value = num(d.get("value"))
     degs = [k for k, v in by.items() if num((v or {}).get("value")) == value]
     deg = f" (degree {', '.join(degs)})" if degs else ""
-    out.append(f"The matching distance is {fmt(value)}{deg}, "
-               f"{_reached(d.get('reached_on'), d.get('at'), d.get('component'))}{_tol(d.get('tolerance'))}.")
+    out.append(
+        f"The matching distance is {fmt(value)}{deg}, "
+        f"{_reached(d.get('reached_on'), d.get('at'), d.get('component'))}{_tol(d.get('tolerance'))}."
+    )
     if len(by) > 1:
-        parts = [f"D_{k} = {fmt((v or {}).get('value'))} ({(v or {}).get('reached_on', 'n/a')})"
-                 for k, v in sorted(by.items(), key=lambda kv: int(num(kv[0])) if kv[0].isdigit() else 0)]
+        parts = [
+            f"D_{k} = {fmt((v or {}).get('value'))} ({(v or {}).get('reached_on', 'n/a')})"
+            for k, v in sorted(by.items(), key=lambda kv: int(num(kv[0])) if kv[0].isdigit() else 0)
+        ]
         out.append("Per degree: " + "; ".join(parts) + ".")
     inf = d.get("infinite") or []
     if inf:
-        out.append(f"Infinite costs were recorded for: {', '.join(str(x) for x in inf)} "
-                   "(unmatched essential classes); they are excluded from the finite value.")
+        out.append(
+            f"Infinite costs were recorded for: {', '.join(str(x) for x in inf)} "
+            "(unmatched essential classes); they are excluded from the finite value."
+        )
     dense, red = d.get("dense"), d.get("reduced")
     if dense and red:
-        out.append(f"The dense sweep ({dense.get('lines', 'n/a')} lines, {fmt(dense.get('seconds'), 3)} s) "
-                   f"gives {fmt(dense.get('value'))} with error bound {fmt(dense.get('error_bound'), 3)}; the "
-                   f"reduced search ({red.get('lines', 'n/a')} lines, {fmt(red.get('seconds'), 3)} s) gives "
-                   f"{fmt(red.get('value'))}.")
+        out.append(
+            f"The dense sweep ({dense.get('lines', 'n/a')} lines, {fmt(dense.get('seconds'), 3)} s) "
+            f"gives {fmt(dense.get('value'))} with error bound {fmt(dense.get('error_bound'), 3)}; the "
+            f"reduced search ({red.get('lines', 'n/a')} lines, {fmt(red.get('seconds'), 3)} s) gives "
+            f"{fmt(red.get('value'))}."
+        )
     elif dense:
-        out.append(f"Only the dense sweep was run ({dense.get('lines', 'n/a')} lines): "
-                   f"{fmt(dense.get('value'))} with error bound {fmt(dense.get('error_bound'), 3)}.")
+        out.append(
+            f"Only the dense sweep was run ({dense.get('lines', 'n/a')} lines): "
+            f"{fmt(dense.get('value'))} with error bound {fmt(dense.get('error_bound'), 3)}."
+        )
     elif red:
-        out.append(f"Only the reduced search was run ({red.get('lines', 'n/a')} lines): {fmt(red.get('value'))}; "
-                   "no dense sweep checks it.")
+        out.append(
+            f"Only the reduced search was run ({red.get('lines', 'n/a')} lines): {fmt(red.get('value'))}; "
+            "no dense sweep checks it."
+        )
     out.extend(audit_sentences(d))
     return out
 
@@ -185,23 +220,33 @@ def _perturb_sentences(res: dict[str, Any]) -> list[str]:
     runs = int(num(s.get("runs")) or 0)
     k = int(num(s.get("runs_with_patch"))) if s.get("runs_with_patch") is not None else None
     ta, hd = s.get("total_area") or {}, s.get("hausdorff") or {}
-    out = [f"{runs} perturbed runs ({s.get('model', 'n/a')} model, size {fmt(s.get('size'), 3)}): "
-           + (f"{k} had a patch (95% interval for the fraction "
-              f"{fmt_interval(fraction_interval(s.get('runs_with_patch_ci95'), runs))}); " if k is not None else "")
-           + f"total patch area mean {fmt(ta.get('mean'), 3)}, max {fmt(ta.get('max'), 3)}; Hausdorff distance "
-           f"of the special set mean {fmt(hd.get('mean'), 3)}, max {fmt(hd.get('max'), 3)}."]
+    out = [
+        f"{runs} perturbed runs ({s.get('model', 'n/a')} model, size {fmt(s.get('size'), 3)}): "
+        + (
+            f"{k} had a patch (95% interval for the fraction "
+            f"{fmt_interval(fraction_interval(s.get('runs_with_patch_ci95'), runs))}); "
+            if k is not None
+            else ""
+        )
+        + f"total patch area mean {fmt(ta.get('mean'), 3)}, max {fmt(ta.get('max'), 3)}; Hausdorff distance "
+        f"of the special set mean {fmt(hd.get('mean'), 3)}, max {fmt(hd.get('max'), 3)}."
+    ]
     viol = s.get("stability_violations")
     if viol is not None and int(num(viol)) > 0:
-        out.append(f"{WARNING} {int(num(viol))} perturbed runs changed the matching distance by more than the "
-                   "perturbation size allows: this contradicts the stability theorem and points to a numerical "
-                   "error.")
+        out.append(
+            f"{WARNING} {int(num(viol))} perturbed runs changed the matching distance by more than the "
+            "perturbation size allows: this contradicts the stability theorem and points to a numerical "
+            "error."
+        )
     elif viol is not None and s.get("distance"):
         out.append("Every perturbed run respected the stability bound on the matching distance.")
     sweep = s.get("sweep") or []
     if len(sweep) >= 2:
         rows = sorted(sweep, key=lambda r: num(r.get("size")))
-        parts = [f"{int(num(r.get('runs_with_patch')))}/{int(num(r.get('runs')))} at size {fmt(r.get('size'), 3)}"
-                 for r in rows]
+        parts = [
+            f"{int(num(r.get('runs_with_patch')))}/{int(num(r.get('runs')))} at size {fmt(r.get('size'), 3)}"
+            for r in rows
+        ]
         out.append("Size sweep, runs with a patch: " + ", ".join(parts) + ".")
     if s.get("verdict"):
         out.append(f"Verdict of the perturbation study: {s['verdict']}")
@@ -229,8 +274,12 @@ def findings(results: dict[str, Any]) -> list[str]:
     >>> findings({"special": {"counts": {"curve": 2, "patch": 0, "point": 0}, "tolerance": 1e-6}})[1]
     'No patch was found: at this resolution and tolerance the special set has zero area.'
     """
-    out = (_grid_sentences(results) + _special_sentences(results) + _distance_sentences(results)
-           + _perturb_sentences(results))
+    out = (
+        _grid_sentences(results)
+        + _special_sentences(results)
+        + _distance_sentences(results)
+        + _perturb_sentences(results)
+    )
     if not out:
         out = ["No stage has written results yet: there is nothing to report."]
     loud = [s for s in out if s.startswith(WARNING)]

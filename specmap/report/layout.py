@@ -40,8 +40,15 @@ class Pager:
         self.fig = Figure(figsize=A4)
         self.page_no += 1
         self.fig.text(LEFT, TOP, title, fontsize=15, weight="bold", va="top", parse_math=False)
-        self.fig.text(0.5, 0.022, f"specmap report: {self.study_name}   page {self.page_no}",
-                      fontsize=8, ha="center", color="0.35", parse_math=False)
+        self.fig.text(
+            0.5,
+            0.022,
+            f"specmap report: {self.study_name}   page {self.page_no}",
+            fontsize=8,
+            ha="center",
+            color="0.35",
+            parse_math=False,
+        )
         self.y = TOP - 0.04
         if plot_height <= 0:
             return None
@@ -65,8 +72,9 @@ class Pager:
         step = size * 1.45 / 72.0 / A4[1]
         self._room(step)
         assert self.fig is not None
-        self.fig.text(LEFT + kw.pop("indent", 0.0), self.y, text, fontsize=size, va="top",
-                      parse_math=False, **kw)
+        self.fig.text(
+            LEFT + kw.pop("indent", 0.0), self.y, text, fontsize=size, va="top", parse_math=False, **kw
+        )
         self.y -= step
 
     def heading(self, text: str) -> None:
@@ -108,8 +116,18 @@ class Pager:
         self._room(height + step)
         assert self.fig is not None
         top = self.y
-        self.fig.add_artist(Rectangle((LEFT - pad, top - height), 1.0 - 2 * LEFT + 2 * pad, height,
-                                      transform=self.fig.transFigure, fc=face, ec=edge, lw=1.2, zorder=0))
+        self.fig.add_artist(
+            Rectangle(
+                (LEFT - pad, top - height),
+                1.0 - 2 * LEFT + 2 * pad,
+                height,
+                transform=self.fig.transFigure,
+                fc=face,
+                ec=edge,
+                lw=1.2,
+                zorder=0,
+            )
+        )
         self.y -= pad * 0.6
         self._line(title, TEXT_PT + 1, weight="bold", color=edge, indent=pad)
         for chunk in lines:

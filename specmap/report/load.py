@@ -40,11 +40,19 @@ def _read(path: Path, *, required: bool = False, verb: str = "grid") -> Any:
     try:
         return _checked(read_json(path), path, verb)
     except PermissionError:
-        raise ResultsError("file cannot be read (permission denied)", file=str(path), field="(root)",
-                           fix="make the file readable") from None
+        raise ResultsError(
+            "file cannot be read (permission denied)",
+            file=str(path),
+            field="(root)",
+            fix="make the file readable",
+        ) from None
     except (RecursionError, MemoryError):
-        raise ResultsError("JSON is nested too deeply", file=str(path), field="(root)",
-                           fix=f"rerun specmap {verb} to rewrite the file") from None
+        raise ResultsError(
+            "JSON is nested too deeply",
+            file=str(path),
+            field="(root)",
+            fix=f"rerun specmap {verb} to rewrite the file",
+        ) from None
     except (json.JSONDecodeError, UnicodeDecodeError) as exc:
         raise ResultsError(
             f"not valid JSON ({getattr(exc, 'msg', exc)})",
@@ -66,7 +74,9 @@ REQUIRED: dict[str, tuple[tuple[str, type | tuple[type, ...] | None], ...]] = {
 
 
 def _kind(value: Any) -> str:
-    return {dict: "object", list: "list", str: "string", type(None): "null"}.get(type(value), type(value).__name__)
+    return {dict: "object", list: "list", str: "string", type(None): "null"}.get(
+        type(value), type(value).__name__
+    )
 
 
 def _checked(data: Any, path: Path, verb: str) -> Any:
@@ -75,14 +85,19 @@ def _checked(data: Any, path: Path, verb: str) -> Any:
         return None
     fix = f"rerun specmap {verb} to rewrite {path.name}"
     if not isinstance(data, dict):
-        raise ResultsError(f"{path.name} is a JSON {_kind(data)}, not an object", file=str(path),
-                           field="(root)", fix=fix)
+        raise ResultsError(
+            f"{path.name} is a JSON {_kind(data)}, not an object", file=str(path), field="(root)", fix=fix
+        )
     for key, typ in REQUIRED.get(path.name, ()):
         if key not in data:
             raise ResultsError(f"missing field '{key}'", file=str(path), field=key, fix=fix)
         if typ is not None and not isinstance(data[key], typ):
-            raise ResultsError(f"field '{key}' is a {_kind(data[key])}, not a {_kind(typ())}",
-                               file=str(path), field=key, fix=fix)
+            raise ResultsError(
+                f"field '{key}' is a {_kind(data[key])}, not a {_kind(typ())}",
+                file=str(path),
+                field=key,
+                fix=fix,
+            )
     return data
 
 
@@ -91,8 +106,12 @@ def _runs(path: Path) -> list[dict[str, Any]]:
     runs = []
     for n, rec in enumerate(read_jsonl(path), start=1):
         if not isinstance(rec, dict):
-            raise ResultsError(f"record {n} is a JSON {_kind(rec)}, not an object", file=str(path),
-                               field=f"line {n}", fix="rerun specmap perturb to rewrite runs.jsonl")
+            raise ResultsError(
+                f"record {n} is a JSON {_kind(rec)}, not an object",
+                file=str(path),
+                field=f"line {n}",
+                fix="rerun specmap perturb to rewrite runs.jsonl",
+            )
         runs.append(rec)
     return runs
 
@@ -134,8 +153,12 @@ def load_results(result_dir: str | Path) -> dict[str, Any]:
         )
     study = _read(root / "study.json", required=True, verb="grid/map/distance")
     if not isinstance(study, dict):
-        raise ResultsError("study.json is not a JSON object", file=str(root / "study.json"),
-                           field="(root)", fix="rerun specmap grid to rewrite it")
+        raise ResultsError(
+            "study.json is not a JSON object",
+            file=str(root / "study.json"),
+            field="(root)",
+            fix="rerun specmap grid to rewrite it",
+        )
     out: dict[str, Any] = {
         "dir": root,
         "study": study,

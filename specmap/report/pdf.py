@@ -62,8 +62,12 @@ def _draw(stage: str, file: str, draw: Callable[[], FigureBase]) -> FigureBase:
     try:
         return draw()
     except (ValueError, KeyError, TypeError, IndexError) as exc:
-        raise ResultsError(f"cannot draw the {stage} figure ({exc})", file=file, field="(contents)",
-                           fix=f"rerun specmap {STAGE_VERB[stage]} to rewrite it") from None
+        raise ResultsError(
+            f"cannot draw the {stage} figure ({exc})",
+            file=file,
+            field="(contents)",
+            fix=f"rerun specmap {STAGE_VERB[stage]} to rewrite it",
+        ) from None
 
 
 def _describe_shape(spec: Any) -> str:
@@ -142,8 +146,11 @@ def summarise_meta(meta: Any) -> str:
         elif key == "mesh_hygiene" and isinstance(v, dict):
             comps = v.get("components")
             repairs = {k: n for k, n in v.items() if k != "components" and isinstance(n, (int, float)) and n}
-            text = ("repaired " + _count_phrase({k.replace("_", " "): n for k, n in repairs.items()})
-                    if repairs else "nothing to repair")
+            text = (
+                "repaired " + _count_phrase({k.replace("_", " "): n for k, n in repairs.items()})
+                if repairs
+                else "nothing to repair"
+            )
             if comps is not None:
                 text += f", {plural(int(num(comps)), 'component')}"
             parts.append(f"{name}: {text}")
@@ -177,19 +184,27 @@ def _summary_page(pg: Pager, res: dict[str, Any]) -> None:
     have_grids = res["stages"]["grids"]
     sub = pg.page(f"Summary: {st.get('name', 'n/a')}", 0.28 if have_grids else 0.0)
     if sub is not None:
-        lbl = ("line r(a, b) where D is reached" if line is not None else None)
-        _draw("grids", "grid_f.json / grid_g.json",
-              lambda: grids_figure(res.get("grid_f"), res.get("grid_g"), fig=sub, line=line, line_label=lbl,
-                                   labels=False))
+        lbl = "line r(a, b) where D is reached" if line is not None else None
+        _draw(
+            "grids",
+            "grid_f.json / grid_g.json",
+            lambda: grids_figure(
+                res.get("grid_f"), res.get("grid_g"), fig=sub, line=line, line_label=lbl, labels=False
+            ),
+        )
     pg.heading("Matching distance")
     if d:
-        pg.para(f"D = {fmt(d.get('value'))} (maximum over degrees; tolerance {fmt(d.get('tolerance'), 3)}).",
-                weight="bold")
+        pg.para(
+            f"D = {fmt(d.get('value'))} (maximum over degrees; tolerance {fmt(d.get('tolerance'), 3)}).",
+            weight="bold",
+        )
         pg.mono(f"{'degree':<8}{'D_k':>10}  {'interval':<20}{'at (a, b)':<20}status")
         for row in degree_rows(d):
             iv = fmt_interval(row.interval) if row.interval else "none recorded"
-            pg.mono(f"{row.degree:<8}{fmt(row.value):>10}  {iv:<20}{fmt_point(row.at):<20}"
-                    f"{'certified' if row.status == 'certified' else 'not certified'}")
+            pg.mono(
+                f"{row.degree:<8}{fmt(row.value):>10}  {iv:<20}{fmt_point(row.at):<20}"
+                f"{'certified' if row.status == 'certified' else 'not certified'}"
+            )
         reasons: dict[str, list[str]] = {}
         for row in degree_rows(d):
             if row.status != "certified":
@@ -213,8 +228,12 @@ def _summary_page(pg: Pager, res: dict[str, Any]) -> None:
     top, rest = notes[0], notes[1:]
     edge = RED if top.severity <= 2 else "#8a6d00"
     face = "#fdecee" if top.severity <= 2 else "#fff8e1"
-    pg.box(f"{SEVERITY_NAMES[top.severity].capitalize()}: {top.title}", [top.text, f"What to do: {top.todo}"],
-           edge=edge, face=face)
+    pg.box(
+        f"{SEVERITY_NAMES[top.severity].capitalize()}: {top.title}",
+        [top.text, f"What to do: {top.todo}"],
+        edge=edge,
+        face=face,
+    )
     for i, n in enumerate(rest, 2):
         pg.para(f"{i}. [{SEVERITY_NAMES[n.severity]}] {n.title}: {n.text} What to do: {n.todo}", 8)
 
@@ -237,24 +256,34 @@ def _cover(pg: Pager, res: dict[str, Any]) -> None:
     stages = res["stages"]
     gf, gg = res.get("grid_f"), res.get("grid_g")
     details = {
-        "grids": (f"run: {len((gf or {}).get('contours', []))} contours in grid f, "
-                  f"{len((gg or {}).get('contours', []))} in grid g"
-                  + ("" if gf and gg else " (one grid file is missing)")),
+        "grids": (
+            f"run: {len((gf or {}).get('contours', []))} contours in grid f, "
+            f"{len((gg or {}).get('contours', []))} in grid g"
+            + ("" if gf and gg else " (one grid file is missing)")
+        ),
         "special": "run: special set atlas (special.json"
-                   + (", special.geojson)" if res.get("geojson") else "; special.geojson missing)"),
+        + (", special.geojson)" if res.get("geojson") else "; special.geojson missing)"),
         "distance": "run: matching distance (distance.json)",
         "perturb": f"run: {len((res.get('perturb') or {}).get('runs') or [])} perturbation records",
     }
-    names = {"grids": "Extended Pareto grids", "special": "Special set", "distance": "Matching distance",
-             "perturb": "Perturbation study"}
+    names = {
+        "grids": "Extended Pareto grids",
+        "special": "Special set",
+        "distance": "Matching distance",
+        "perturb": "Perturbation study",
+    }
     for key, title in names.items():
         if stages[key]:
             pg.field(title, details[key])
         else:
             pg.field(title, f"not run (no result file; run specmap {STAGE_VERB[key]})")
     pg.heading("Tolerances")
-    for label, src in (("grid f", gf), ("grid g", gg), ("special set", res.get("special")),
-                       ("matching distance", res.get("distance"))):
+    for label, src in (
+        ("grid f", gf),
+        ("grid g", gg),
+        ("special set", res.get("special")),
+        ("matching distance", res.get("distance")),
+    ):
         if src is not None:
             pg.field(label, fmt(src.get("tolerance"), 3))
     pg.heading("Provenance")
@@ -272,42 +301,70 @@ def _cover(pg: Pager, res: dict[str, Any]) -> None:
 def _grids_page(pg: Pager, res: dict[str, Any]) -> None:
     sub = pg.page("Extended Pareto grids", 0.6)
     at = (res.get("distance") or {}).get("at")
-    _draw("grids", "grid_f.json / grid_g.json",
-          lambda: grids_figure(res.get("grid_f"), res.get("grid_g"), fig=sub, line=at,
-                               line_label="line r(a, b) where D is reached" if at else None))
+    _draw(
+        "grids",
+        "grid_f.json / grid_g.json",
+        lambda: grids_figure(
+            res.get("grid_f"),
+            res.get("grid_g"),
+            fig=sub,
+            line=at,
+            line_label="line r(a, b) where D is reached" if at else None,
+        ),
+    )
     for name in ("f", "g"):
         grid = res.get(f"grid_{name}")
         if grid is None:
             pg.para(f"Grid {name}: grid_{name}.json is missing.")
             continue
         kinds = [c.get("kind") for c in grid.get("contours", [])]
-        pg.para(f"Grid {name}: {len(kinds)} contours ({kinds.count('proper')} proper, "
-                f"{kinds.count('vertical')} vertical, {kinds.count('horizontal')} horizontal); route "
-                f"{grid.get('route', 'n/a')}; tolerance {fmt(grid.get('tolerance'), 3)}; "
-                f"{summarise_meta(grid.get('meta'))}.")
-    pg.para("Solid: proper contours (images of the Pareto critical set). Dashed: improper contours, "
-            "half-lines from a critical value, drawn from their start (o) to the plot edge (arrow head). "
-            "Labels are the contour ids used in the special set's tie lists (f:p0 = proper contour 0 of f, "
-            "v vertical, h horizontal).", 8.5, color="0.3")
+        pg.para(
+            f"Grid {name}: {len(kinds)} contours ({kinds.count('proper')} proper, "
+            f"{kinds.count('vertical')} vertical, {kinds.count('horizontal')} horizontal); route "
+            f"{grid.get('route', 'n/a')}; tolerance {fmt(grid.get('tolerance'), 3)}; "
+            f"{summarise_meta(grid.get('meta'))}."
+        )
+    pg.para(
+        "Solid: proper contours (images of the Pareto critical set). Dashed: improper contours, "
+        "half-lines from a critical value, drawn from their start (o) to the plot edge (arrow head). "
+        "Labels are the contour ids used in the special set's tie lists (f:p0 = proper contour 0 of f, "
+        "v vertical, h horizontal).",
+        8.5,
+        color="0.3",
+    )
 
 
 def _component_rows(comps: list[dict[str, Any]]) -> list[dict[str, Any]]:
     order = {"patch": 0, "point": 1, "curve": 2}
-    return sorted(comps, key=lambda c: (order.get(str(c.get("kind")), 3), -num(c.get("area") or 0),
-                                        -num(c.get("length") or 0)))
+    return sorted(
+        comps,
+        key=lambda c: (
+            order.get(str(c.get("kind")), 3),
+            -num(c.get("area") or 0),
+            -num(c.get("length") or 0),
+        ),
+    )
 
 
 def _tie_index(res: dict[str, Any]) -> TieIndex:
     """The curves of special.geojson labelled by tie (computed once per report)."""
     if "_tie_index" not in res:
-        res["_tie_index"] = index_ties(res.get("special"), res.get("geojson"), res.get("grid_f"),
-                                       res.get("grid_g"))
+        res["_tie_index"] = index_ties(
+            res.get("special"), res.get("geojson"), res.get("grid_f"), res.get("grid_g")
+        )
     return res["_tie_index"]
 
 
 def _special_figure(res: dict[str, Any], fig: FigureBase | None = None) -> FigureBase:
-    return special_figure(res["special"], res.get("geojson"), fig=fig, grid_f=res.get("grid_f"),
-                          grid_g=res.get("grid_g"), distance=res.get("distance"), index=_tie_index(res))
+    return special_figure(
+        res["special"],
+        res.get("geojson"),
+        fig=fig,
+        grid_f=res.get("grid_f"),
+        grid_g=res.get("grid_g"),
+        distance=res.get("distance"),
+        index=_tie_index(res),
+    )
 
 
 def _family_counts(ties: list[dict[str, Any]], only: list[int] | None = None) -> str:
@@ -325,17 +382,23 @@ def _special_page(pg: Pager, res: dict[str, Any]) -> None:
     sub = pg.page("Special set", 0.55)
     _draw("special", "special.json", lambda: _special_figure(res, sub))
     ix = _tie_index(res)
-    pg.para(f"{component_counts(sp).capitalize()} (connected components); "
-            f"{plural(len(ix.curves) or tie_curve_count(sp), 'tie curve')} drawn. "
-            f"Total patch area {fmt(sp.get('total_area'))} = {fmt_pct(sp.get('area_fraction'))} of the window. "
-            f"Method {sp.get('method', 'n/a')}, resolution {sp.get('resolution', 'n/a')}, pairs "
-            f"{sp.get('pairs', 'n/a')}, tolerance {fmt(sp.get('tolerance'), 3)}; search statistics in the "
-            "appendix.")
-    pg.para("Families name the condition and the grids of the two pairs: 'equal fg=fg' ties two differences "
-            "between an f and a g contour (two matching costs); 'half ff=2fg' a same-grid difference twice a "
-            "cross one (a diagonal cost against a matching cost). Curve colours are faint where thousands "
-            "overlap (the darker, the denser). Each curve's tie is the one whose residual vanishes on it, "
-            "evaluated from the grid files.", 8.5, color="0.3")
+    pg.para(
+        f"{component_counts(sp).capitalize()} (connected components); "
+        f"{plural(len(ix.curves) or tie_curve_count(sp), 'tie curve')} drawn. "
+        f"Total patch area {fmt(sp.get('total_area'))} = {fmt_pct(sp.get('area_fraction'))} of the window. "
+        f"Method {sp.get('method', 'n/a')}, resolution {sp.get('resolution', 'n/a')}, pairs "
+        f"{sp.get('pairs', 'n/a')}, tolerance {fmt(sp.get('tolerance'), 3)}; search statistics in the "
+        "appendix."
+    )
+    pg.para(
+        "Families name the condition and the grids of the two pairs: 'equal fg=fg' ties two differences "
+        "between an f and a g contour (two matching costs); 'half ff=2fg' a same-grid difference twice a "
+        "cross one (a diagonal cost against a matching cost). Curve colours are faint where thousands "
+        "overlap (the darker, the denser). Each curve's tie is the one whose residual vanishes on it, "
+        "evaluated from the grid files.",
+        8.5,
+        color="0.3",
+    )
     if res.get("geojson") is None:
         pg.warn("special.geojson is missing: components are drawn as their bounding boxes.")
     comps = _component_rows(list(sp.get("components") or []))
@@ -344,19 +407,28 @@ def _special_page(pg: Pager, res: dict[str, Any]) -> None:
     pg.heading("Components")
     shown = comps[:MAX_TABLE_ROWS]
     if len(comps) > len(shown):
-        pg.para(f"Table truncated: the first {len(shown)} of {len(comps)} components are listed "
-                "(patches, then points, then curves; larger first). All are in special.json.", 8.5)
+        pg.para(
+            f"Table truncated: the first {len(shown)} of {len(comps)} components are listed "
+            "(patches, then points, then curves; larger first). All are in special.json.",
+            8.5,
+        )
     pg.mono(f"{'id':<10}{'kind':<7}{'area':>11}{'length':>11}{'ties':>7}  box in the window [a0, b0, a1, b1]")
     for comp in shown:
         bbox = clip_bbox(comp.get("bbox"), (wa[0], wb[0], wa[1], wb[1]))
         bb = "[" + ", ".join(fmt(x, 3) for x in bbox) + "]" if bbox else "n/a"
         ties = comp.get("ties") or []
-        pg.mono(f"{str(comp.get('id')):<10}{str(comp.get('kind')):<7}{fmt(comp.get('area'), 3):>11}"
-                f"{fmt(comp.get('length'), 3):>11}{len(ties):>7}  {bb}")
+        pg.mono(
+            f"{str(comp.get('id')):<10}{str(comp.get('kind')):<7}{fmt(comp.get('area'), 3):>11}"
+            f"{fmt(comp.get('length'), 3):>11}{len(ties):>7}  {bb}"
+        )
         held = ix.patch_ties.get(str(comp.get("id")))
         if held:
-            pg.mono("    holds on the patch: " + "; ".join(_tie_text(ties[i]) for i in held[:3])
-                    + (f" (+{len(held) - 3} more)" if len(held) > 3 else ""), color="0.3")
+            pg.mono(
+                "    holds on the patch: "
+                + "; ".join(_tie_text(ties[i]) for i in held[:3])
+                + (f" (+{len(held) - 3} more)" if len(held) > 3 else ""),
+                color="0.3",
+            )
         if ties:
             pg.mono(f"    tie families: {_family_counts(ties)}", color="0.3")
     if len(comps) > len(shown):
@@ -367,34 +439,48 @@ def _distance_page(pg: Pager, res: dict[str, Any]) -> None:
     d = res["distance"]
     st = res["study"]
     sub = pg.page("Matching distance", 0.5)
-    _draw("distance", "distance.json",
-          lambda: distance_map_figure(d, res.get("geojson"), window=st.get("window"), fig=sub))
-    on = {"slope-one": "the slope-one line a = 1/2", "special": "the special set",
-          "both": "the slope-one line and the special set alike"}.get(str(d.get("reached_on")), d.get("reached_on"))
-    pg.para(f"Matching distance D = {fmt(d.get('value'))}, reached on {on or 'n/a'} at "
-            f"(a, b) = {fmt_point(d.get('at'))}"
-            + (f", component {d['component']}" if d.get("component") is not None else "")
-            + f"; tolerance {fmt(d.get('tolerance'), 3)}.")
+    _draw(
+        "distance",
+        "distance.json",
+        lambda: distance_map_figure(d, res.get("geojson"), window=st.get("window"), fig=sub),
+    )
+    on = {
+        "slope-one": "the slope-one line a = 1/2",
+        "special": "the special set",
+        "both": "the slope-one line and the special set alike",
+    }.get(str(d.get("reached_on")), d.get("reached_on"))
+    pg.para(
+        f"Matching distance D = {fmt(d.get('value'))}, reached on {on or 'n/a'} at "
+        f"(a, b) = {fmt_point(d.get('at'))}"
+        + (f", component {d['component']}" if d.get("component") is not None else "")
+        + f"; tolerance {fmt(d.get('tolerance'), 3)}."
+    )
     by = d.get("by_degree") or {}
     if by:
         pg.mono(f"{'degree':<8}{'value':>12}  {'at (a, b)':<24}reached on")
         for k, v in by.items():
             v = v or {}
-            pg.mono(f"{k:<8}{fmt(v.get('value')):>12}  {fmt_point(v.get('at')):<24}{v.get('reached_on', 'n/a')}")
+            pg.mono(
+                f"{k:<8}{fmt(v.get('value')):>12}  {fmt_point(v.get('at')):<24}{v.get('reached_on', 'n/a')}"
+            )
     if d.get("infinite"):
         pg.para(f"Infinite costs: {', '.join(str(x) for x in d['infinite'])}.")
     pg.heading("Dense sweep and reduced search")
     dense, red = d.get("dense"), d.get("reduced")
     if dense:
-        pg.para(f"Dense sweep: {fmt(dense.get('value'))} at {fmt_point(dense.get('at'))}; "
-                f"{dense.get('lines', 'n/a')} lines in {fmt(dense.get('seconds'), 3)} s; error bound "
-                f"{fmt(dense.get('error_bound'), 3)}.")
+        pg.para(
+            f"Dense sweep: {fmt(dense.get('value'))} at {fmt_point(dense.get('at'))}; "
+            f"{dense.get('lines', 'n/a')} lines in {fmt(dense.get('seconds'), 3)} s; error bound "
+            f"{fmt(dense.get('error_bound'), 3)}."
+        )
     else:
         pg.para("Dense sweep: not run.")
     if red:
-        pg.para(f"Reduced search: {fmt(red.get('value'))} at {fmt_point(red.get('at'))}; "
-                f"{red.get('lines', 'n/a')} lines in {fmt(red.get('seconds'), 3)} s (its pruning counters are "
-                "in the appendix table of search statistics).")
+        pg.para(
+            f"Reduced search: {fmt(red.get('value'))} at {fmt_point(red.get('at'))}; "
+            f"{red.get('lines', 'n/a')} lines in {fmt(red.get('seconds'), 3)} s (its pruning counters are "
+            "in the appendix table of search statistics)."
+        )
     else:
         pg.para("Reduced search: not run.")
     pg.heading("Audits")
@@ -412,39 +498,56 @@ def _perturb_page(pg: Pager, res: dict[str, Any]) -> None:
     n = s.get("runs")
     ci = fraction_interval(s.get("runs_with_patch_ci95"), n)
     base = s.get("base") or {}
-    pg.para(f"{n} runs, model {s.get('model', 'n/a')}, size {fmt(s.get('size'), 3)} "
-            f"({len(runs)} run records read from runs.jsonl).")
-    pg.para(f"Unperturbed: total patch area {fmt(base.get('total_area'))}, counts "
-            f"{_short_dict(base.get('counts'))}.")
-    pg.para(f"Runs with a patch: {s.get('runs_with_patch', 'n/a')} of {n} "
-            f"(95% interval for the fraction {fmt_interval(ci)}).")
+    pg.para(
+        f"{n} runs, model {s.get('model', 'n/a')}, size {fmt(s.get('size'), 3)} "
+        f"({len(runs)} run records read from runs.jsonl)."
+    )
+    pg.para(
+        f"Unperturbed: total patch area {fmt(base.get('total_area'))}, counts "
+        f"{_short_dict(base.get('counts'))}."
+    )
+    pg.para(
+        f"Runs with a patch: {s.get('runs_with_patch', 'n/a')} of {n} "
+        f"(95% interval for the fraction {fmt_interval(ci)})."
+    )
     ta, hd = s.get("total_area") or {}, s.get("hausdorff") or {}
-    pg.para(f"Total patch area: mean {fmt(ta.get('mean'), 3)}, max {fmt(ta.get('max'), 3)}. Hausdorff "
-            f"distance to the unperturbed special set: mean {fmt(hd.get('mean'), 3)}, max {fmt(hd.get('max'), 3)}.")
+    pg.para(
+        f"Total patch area: mean {fmt(ta.get('mean'), 3)}, max {fmt(ta.get('max'), 3)}. Hausdorff "
+        f"distance to the unperturbed special set: mean {fmt(hd.get('mean'), 3)}, max {fmt(hd.get('max'), 3)}."
+    )
     cm, pc = s.get("curve_movement") or {}, s.get("patch_change") or {}
     if cm or pc:
-        pg.para(f"Curves alone (patches left out) moved by mean {fmt(cm.get('mean'), 3)}, max "
-                f"{fmt(cm.get('max'), 3)} (Hausdorff, (a, b) units); patches changed by mean "
-                f"{fmt(pc.get('mean'), 3)}, max {fmt(pc.get('max'), 3)} of the window area.")
+        pg.para(
+            f"Curves alone (patches left out) moved by mean {fmt(cm.get('mean'), 3)}, max "
+            f"{fmt(cm.get('max'), 3)} (Hausdorff, (a, b) units); patches changed by mean "
+            f"{fmt(pc.get('mean'), 3)}, max {fmt(pc.get('max'), 3)} of the window area."
+        )
     if s.get("distance"):
         pg.para(f"Matching distance under perturbation: {_short_dict(s.get('distance'))}.")
     viol = s.get("stability_violations")
     if viol is not None and num(viol) > 0:
         pg.warn(f"{WARNING} {viol} runs violate the stability bound of the matching distance.")
     else:
-        pg.para(f"Stability violations: {viol}." if viol is not None
-                else "Stability of the distance: not tracked (set distance = true in [perturb] to check it).")
+        pg.para(
+            f"Stability violations: {viol}."
+            if viol is not None
+            else "Stability of the distance: not tracked (set distance = true in [perturb] to check it)."
+        )
     if s.get("runs_per_minute") is not None:
         pg.para(f"Throughput: {fmt(s.get('runs_per_minute'), 3)} runs per minute.")
     sweep = s.get("sweep") or []
     if sweep:
         pg.heading("Size sweep")
-        pg.mono(f"{'size':>10}{'runs':>7}{'patch':>7}  {'95% interval':<20}{'area mean':>11}{'Hausdorff mean':>16}")
+        pg.mono(
+            f"{'size':>10}{'runs':>7}{'patch':>7}  {'95% interval':<20}{'area mean':>11}{'Hausdorff mean':>16}"
+        )
         for r in sorted(sweep, key=lambda r: num(r.get("size"))):
             iv = fmt_interval(fraction_interval(r.get("runs_with_patch_ci95"), r.get("runs")))
-            pg.mono(f"{fmt(r.get('size'), 3):>10}{str(r.get('runs')):>7}{str(r.get('runs_with_patch')):>7}  "
-                    f"{iv:<20}{fmt(_stat(r, 'total_area', 'mean'), 3):>11}"
-                    f"{fmt(_stat(r, 'hausdorff', 'mean'), 3):>16}")
+            pg.mono(
+                f"{fmt(r.get('size'), 3):>10}{str(r.get('runs')):>7}{str(r.get('runs_with_patch')):>7}  "
+                f"{iv:<20}{fmt(_stat(r, 'total_area', 'mean'), 3):>11}"
+                f"{fmt(_stat(r, 'hausdorff', 'mean'), 3):>16}"
+            )
     pg.heading("Verdict")
     pg.para(str(s.get("verdict", "n/a")), weight="bold")
 
@@ -465,7 +568,9 @@ def _stat_rows(d: Any, prefix: str = "") -> list[tuple[str, str]]:
         if isinstance(v, dict):
             rows.extend(_stat_rows(v, f"{prefix}{k}."))
         elif isinstance(v, list):
-            rows.append((prefix + k, ", ".join(_short_value(x) for x in v[:4]) + (" ..." if len(v) > 4 else "")))
+            rows.append(
+                (prefix + k, ", ".join(_short_value(x) for x in v[:4]) + (" ..." if len(v) > 4 else ""))
+            )
         else:
             rows.append((prefix + k, _short_value(v)))
     return rows
@@ -475,16 +580,21 @@ def _statistics_page(pg: Pager, res: dict[str, Any]) -> None:
     """Appendix: the search counters (developer detail, kept out of the result pages)."""
     sp, d = res.get("special"), res.get("distance")
     red = (d or {}).get("reduced") or {}
-    tables = [("Special-set search (special.json stats)", (sp or {}).get("stats")),
-              ("Reduced search: pruning counters (distance.json reduced.pruned)", red.get("pruned")),
-              ("Reduced search: slope-one branch and bound (reduced.slope_search)", red.get("slope_search")),
-              ("Reduced search: settings (reduced.settings)", red.get("settings"))]
+    tables = [
+        ("Special-set search (special.json stats)", (sp or {}).get("stats")),
+        ("Reduced search: pruning counters (distance.json reduced.pruned)", red.get("pruned")),
+        ("Reduced search: slope-one branch and bound (reduced.slope_search)", red.get("slope_search")),
+        ("Reduced search: settings (reduced.settings)", red.get("settings")),
+    ]
     tables = [(t, v) for t, v in tables if v]
     if not tables:
         return
     pg.page("Appendix: search statistics")
-    pg.para("Counters of the searches, for whoever checks or tunes them; the result pages do not need them.",
-            8.5, color="0.3")
+    pg.para(
+        "Counters of the searches, for whoever checks or tunes them; the result pages do not need them.",
+        8.5,
+        color="0.3",
+    )
     for title, data in tables:
         pg.heading(title)
         for key, value in _stat_rows(data):
@@ -492,37 +602,57 @@ def _statistics_page(pg: Pager, res: dict[str, Any]) -> None:
 
 
 METHODS = [
-    ("Filtering lines", "A pair (a, b) in ]0,1[ x R names the line r(a, b) = {s(a, 1-a) + (b, -b)}. "
-     "On it an R^2-valued function f = (f1, f2) gives the one-parameter function "
-     "F*(a,b) = min(a, 1-a) max((f1 - b)/a, (f2 + b)/(1 - a)) [CDFFL13]."),
-    ("Matching distance", "D_k(f, g) is the supremum over (a, b) of h_k(a, b), the bottleneck distance "
-     "between the degree-k persistence diagrams of F*_f(a,b) and F*_g(a,b) [CDFFL13; DFL10]. The report "
-     "also gives the maximum over degrees."),
-    ("Extended Pareto grid", "The image of the Pareto critical set of f (where the two gradients vanish or "
-     "point in opposite directions), cut into non-increasing pieces (proper contours), together with a "
-     "vertical half-line from each critical value of f1 and a horizontal one from each critical value of f2 "
-     "(improper contours) [CEF19]. Every finite coordinate of a slice diagram is the push coordinate of a "
-     "point where the line meets the grid (position theorem) [CEF19]."),
-    ("Special values", "(a, b) is special when, for two different pairs of grid contours met by r(a, b), "
-     "the differences of their push coordinates are equal, or one is twice the other [EFQT23]. For normal "
-     "(generic) pairs the matching distance is reached on a = 1/2 or at special values [EFQT23; FMQT]. A "
-     "patch is a region of positive area where one such tie holds identically; curves and points have zero "
-     "area."),
-    ("Dense sweep, reduced search and audits", "The dense sweep evaluates h on a regular grid of lines over "
-     "the window; the reduced search evaluates it only on a = 1/2 and on the special set, as the theorem "
-     "allows. The theorem audit flags a dense value that exceeds the reduced maximum by more than the "
-     "tolerance. The position audit checks, on sampled lines, that every finite diagram coordinate is the push "
-     "coordinate of a contour met by the line."),
-    ("Perturbation study", "The study is rerun on many perturbed inputs (model and size as recorded in "
-     "perturb/summary.json), each with its own seed. Each run reports its patch area, the Hausdorff distance "
-     "of its special set to the unperturbed one and, when computed, the change of the matching distance, "
-     "which the stability theorem bounds by the sup-norm size of the perturbation [CDFFL13]. The 95% "
-     "interval is for the fraction of runs with a patch."),
+    (
+        "Filtering lines",
+        "A pair (a, b) in ]0,1[ x R names the line r(a, b) = {s(a, 1-a) + (b, -b)}. "
+        "On it an R^2-valued function f = (f1, f2) gives the one-parameter function "
+        "F*(a,b) = min(a, 1-a) max((f1 - b)/a, (f2 + b)/(1 - a)) [CDFFL13].",
+    ),
+    (
+        "Matching distance",
+        "D_k(f, g) is the supremum over (a, b) of h_k(a, b), the bottleneck distance "
+        "between the degree-k persistence diagrams of F*_f(a,b) and F*_g(a,b) [CDFFL13; DFL10]. The report "
+        "also gives the maximum over degrees.",
+    ),
+    (
+        "Extended Pareto grid",
+        "The image of the Pareto critical set of f (where the two gradients vanish or "
+        "point in opposite directions), cut into non-increasing pieces (proper contours), together with a "
+        "vertical half-line from each critical value of f1 and a horizontal one from each critical value of f2 "
+        "(improper contours) [CEF19]. Every finite coordinate of a slice diagram is the push coordinate of a "
+        "point where the line meets the grid (position theorem) [CEF19].",
+    ),
+    (
+        "Special values",
+        "(a, b) is special when, for two different pairs of grid contours met by r(a, b), "
+        "the differences of their push coordinates are equal, or one is twice the other [EFQT23]. For normal "
+        "(generic) pairs the matching distance is reached on a = 1/2 or at special values [EFQT23; FMQT]. A "
+        "patch is a region of positive area where one such tie holds identically; curves and points have zero "
+        "area.",
+    ),
+    (
+        "Dense sweep, reduced search and audits",
+        "The dense sweep evaluates h on a regular grid of lines over "
+        "the window; the reduced search evaluates it only on a = 1/2 and on the special set, as the theorem "
+        "allows. The theorem audit flags a dense value that exceeds the reduced maximum by more than the "
+        "tolerance. The position audit checks, on sampled lines, that every finite diagram coordinate is the push "
+        "coordinate of a contour met by the line.",
+    ),
+    (
+        "Perturbation study",
+        "The study is rerun on many perturbed inputs (model and size as recorded in "
+        "perturb/summary.json), each with its own seed. Each run reports its patch area, the Hausdorff distance "
+        "of its special set to the unperturbed one and, when computed, the change of the matching distance, "
+        "which the stability theorem bounds by the sup-norm size of the perturbation [CDFFL13]. The 95% "
+        "interval is for the fraction of runs with a patch.",
+    ),
 ]
-TOL_MEANING = {"grid_f": "accuracy of contour positions, value units",
-               "grid_g": "accuracy of contour positions, value units",
-               "special": "tie conditions and patch detection",
-               "distance": "values of h and the audits"}
+TOL_MEANING = {
+    "grid_f": "accuracy of contour positions, value units",
+    "grid_g": "accuracy of contour positions, value units",
+    "special": "tie conditions and patch detection",
+    "distance": "values of h and the audits",
+}
 REFERENCES = [
     "[CDFFL13] A. Cerri, B. Di Fabio, M. Ferri, P. Frosini, C. Landi. Betti numbers in multidimensional "
     "persistent homology are stable functions. Math. Methods Appl. Sci. 36 (2013).",
@@ -544,18 +674,26 @@ def _methods_page(pg: Pager, res: dict[str, Any]) -> None:
         pg.para(text)
     pg.heading("Tolerances used")
     any_tol = False
-    for label, key in (("grid f", "grid_f"), ("grid g", "grid_g"), ("special set", "special"),
-                       ("matching distance", "distance")):
+    for label, key in (
+        ("grid f", "grid_f"),
+        ("grid g", "grid_g"),
+        ("special set", "special"),
+        ("matching distance", "distance"),
+    ):
         if res.get(key) is not None:
             any_tol = True
-            pg.para(f"{label}: {fmt(res[key].get('tolerance'), 3)} ({TOL_MEANING[key]}; from "
-                    f"{'grid_f.json' if key == 'grid_f' else 'grid_g.json' if key == 'grid_g' else key + '.json'})")
+            pg.para(
+                f"{label}: {fmt(res[key].get('tolerance'), 3)} ({TOL_MEANING[key]}; from "
+                f"{'grid_f.json' if key == 'grid_f' else 'grid_g.json' if key == 'grid_g' else key + '.json'})"
+            )
     if not any_tol:
         pg.para("No stage with a tolerance was run.")
     pg.heading("Caution")
-    pg.para("All numbers here are numerical evidence computed at finite resolution and within the stated "
-            "tolerances. They are not a proof: a patch may be an artefact of resolution, a curve may be missed "
-            "between sample points, and agreement with a theorem on finitely many lines does not establish it.")
+    pg.para(
+        "All numbers here are numerical evidence computed at finite resolution and within the stated "
+        "tolerances. They are not a proof: a patch may be an artefact of resolution, a curve may be missed "
+        "between sample points, and agreement with a theorem on finitely many lines does not establish it."
+    )
     pg.heading("References")
     for ref in REFERENCES:
         pg.para(ref, 8.5)
@@ -567,21 +705,34 @@ def _check_out_pdf(out: Path, overwrite: bool) -> None:
     """Refuse, in one line, a PDF path that is a folder, an existing file (unless ``overwrite``),
     lies under a file, or sits in a folder that cannot be written."""
     if out.is_dir():
-        raise ResultsError("is a folder, not a PDF file", file=str(out), field="--out",
-                           fix=f"give --out a file path, e.g. {out / 'report.pdf'}")
+        raise ResultsError(
+            "is a folder, not a PDF file",
+            file=str(out),
+            field="--out",
+            fix=f"give --out a file path, e.g. {out / 'report.pdf'}",
+        )
     if out.exists() and not overwrite:
-        raise ResultsError("already exists", file=str(out), field="--out",
-                           fix="give --out a new path, or add --force to overwrite it")
+        raise ResultsError(
+            "already exists",
+            file=str(out),
+            field="--out",
+            fix="give --out a new path, or add --force to overwrite it",
+        )
     check_out_dir(out.parent, "--out")  # under a file, or a folder that cannot be written
     try:
         out.parent.mkdir(parents=True, exist_ok=True)
     except OSError as exc:
-        raise ResultsError(f"its folder cannot be created ({exc.strerror or exc})", file=str(out),
-                           field="--out", fix="give --out a path in a folder you can write") from None
+        raise ResultsError(
+            f"its folder cannot be created ({exc.strerror or exc})",
+            file=str(out),
+            field="--out",
+            fix="give --out a path in a folder you can write",
+        ) from None
 
 
-def build_report(result_dir: str | Path, out_pdf: str | Path | None = None, *,
-                 overwrite: bool = True) -> Path:
+def build_report(
+    result_dir: str | Path, out_pdf: str | Path | None = None, *, overwrite: bool = True
+) -> Path:
     """Build the PDF report and the PNG figures of a result folder.
 
     Parameters
@@ -619,19 +770,36 @@ def build_report(result_dir: str | Path, out_pdf: str | Path | None = None, *,
     stages = res["stages"]
     figs = root / "figures"
     if stages["grids"]:
-        save_png(_draw("grids", str(root / "grid_f.json"),
-                       lambda: grids_figure(res.get("grid_f"), res.get("grid_g"))), figs / "grids.png")
+        save_png(
+            _draw(
+                "grids", str(root / "grid_f.json"), lambda: grids_figure(res.get("grid_f"), res.get("grid_g"))
+            ),
+            figs / "grids.png",
+        )
     if stages["special"]:
-        save_png(_draw("special", str(root / "special.json"),
-                       lambda: _special_figure(res)), figs / "special.png")
+        save_png(
+            _draw("special", str(root / "special.json"), lambda: _special_figure(res)), figs / "special.png"
+        )
     if stages["distance"]:
-        save_png(_draw("distance", str(root / "distance.json"),
-                       lambda: distance_map_figure(res["distance"], res.get("geojson"),
-                                                window=res["study"].get("window"))), figs / "distance_map.png")
+        save_png(
+            _draw(
+                "distance",
+                str(root / "distance.json"),
+                lambda: distance_map_figure(
+                    res["distance"], res.get("geojson"), window=res["study"].get("window")
+                ),
+            ),
+            figs / "distance_map.png",
+        )
     if stages["perturb"]:
-        save_png(_draw("perturb", str(root / "perturb" / "summary.json"),
-                       lambda: perturb_figure(res["perturb"]["summary"], res["perturb"]["runs"])),
-                 figs / "perturb.png")
+        save_png(
+            _draw(
+                "perturb",
+                str(root / "perturb" / "summary.json"),
+                lambda: perturb_figure(res["perturb"]["summary"], res["perturb"]["runs"]),
+            ),
+            figs / "perturb.png",
+        )
     name = str(res["study"].get("name", root.name))
     tmp = out.with_name(f".{out.name}.tmp")
     try:

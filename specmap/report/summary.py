@@ -90,16 +90,22 @@ def _derived_reason(d: dict[str, Any], k: str, v: dict[str, Any], vmax: float) -
     settings = red.get("settings") or {}
     tol = num(d.get("tolerance"))
     if v.get("certified") is False and num(v.get("value")) < vmax - (tol if math.isfinite(tol) else 0.0):
-        return (f"a lower bound only; the search certified the maximum over degrees "
-                f"(settings.certify = {settings.get('certify', 'max')})")
+        return (
+            f"a lower bound only; the search certified the maximum over degrees "
+            f"(settings.certify = {settings.get('certify', 'max')})"
+        )
     ss = _slope_search(d)
     if ss and ss.get("certified") is False:
-        return (f"the slope-one search stopped at its line cap after {ss.get('lines', 'n/a')} lines "
-                f"(bound {fmt(_first(ss.get('bound')))} against best {fmt(_first(ss.get('best')))})")
+        return (
+            f"the slope-one search stopped at its line cap after {ss.get('lines', 'n/a')} lines "
+            f"(bound {fmt(_first(ss.get('bound')))} against best {fmt(_first(ss.get('best')))})"
+        )
     parts = ["no interval over the whole strip is recorded"]
     if ss and ss.get("certified"):
-        parts.append(f"the slope-one search bounds a = 1/2 only: max there in "
-                     f"{fmt_interval([_first(ss.get('best')), _first(ss.get('bound'))])}")
+        parts.append(
+            f"the slope-one search bounds a = 1/2 only: max there in "
+            f"{fmt_interval([_first(ss.get('best')), _first(ss.get('bound'))])}"
+        )
     dense = d.get("dense") or {}
     eb = num(dense.get("error_bound"))
     if math.isfinite(eb) and eb > num(v.get("value")):
@@ -141,8 +147,17 @@ def degree_rows(d: dict[str, Any] | None) -> list[DegreeRow]:
             status = f"not certified: {v['why_not']}"
         else:
             status = "not certified: " + _derived_reason(d, str(k), v, vmax)
-        rows.append(DegreeRow(str(k), num(v.get("value")), _pt(v.get("at")), str(v.get("reached_on", "n/a")),
-                              cert if isinstance(cert, bool) else None, interval, status))
+        rows.append(
+            DegreeRow(
+                str(k),
+                num(v.get("value")),
+                _pt(v.get("at")),
+                str(v.get("reached_on", "n/a")),
+                cert if isinstance(cert, bool) else None,
+                interval,
+                status,
+            )
+        )
     return rows
 
 
@@ -154,10 +169,12 @@ def where_sentence(d: dict[str, Any]) -> str:
         return "Where D is reached is not recorded."
     a, b = at
     line = line_equation(a, b)
-    where = {"slope-one": "on the slope-one line a = 1/2",
-             "special": "on the special set" + (f" (component {d['component']})" if d.get("component") else ""),
-             "both": "on the slope-one line and on the special set alike (equal within the tolerance)",
-             "dense": "by the dense sweep (no reduced search)"}.get(str(on), f"on {on}")
+    where = {
+        "slope-one": "on the slope-one line a = 1/2",
+        "special": "on the special set" + (f" (component {d['component']})" if d.get("component") else ""),
+        "both": "on the slope-one line and on the special set alike (equal within the tolerance)",
+        "dense": "by the dense sweep (no reduced search)",
+    }.get(str(on), f"on {on}")
     return f"D is reached {where}, at (a, b) = ({fmt(a)}, {fmt(b)}): the filtering line {line}, drawn on the grids."
 
 
@@ -191,8 +208,10 @@ def component_counts(sp: dict[str, Any]) -> str:
     """``"1 patch, 1 curve component and 0 point components"``."""
     c = sp.get("counts") or {}
     n = {k: int(num(c.get(k, 0))) for k in ("curve", "patch", "point")}
-    return (f"{plural(n['patch'], 'patch', 'patches')}, {plural(n['curve'], 'curve component')} and "
-            f"{plural(n['point'], 'point component')}")
+    return (
+        f"{plural(n['patch'], 'patch', 'patches')}, {plural(n['curve'], 'curve component')} and "
+        f"{plural(n['point'], 'point component')}"
+    )
 
 
 def special_lines(res: dict[str, Any]) -> list[str]:
@@ -201,38 +220,58 @@ def special_lines(res: dict[str, Any]) -> list[str]:
     out: list[str] = []
     if sp:
         stats = sp.get("stats") or {}
-        of = (f" of {plural(int(num(stats['ties_with_curves'])), 'tie')}"
-              if isinstance(stats.get("ties_with_curves"), (int, float)) else "")
-        holds = (f"; {plural(int(num(stats['ties_with_patches'])), 'tie')} hold identically on patches"
-                 if isinstance(stats.get("ties_with_patches"), (int, float)) else "")
-        out.append(f"Special set: {component_counts(sp)} (connected components); "
-                   f"{plural(tie_curve_count(sp), 'tie curve')}{of} in all{holds}. Patches cover "
-                   f"{fmt_pct(sp.get('area_fraction'))} of the window.")
+        of = (
+            f" of {plural(int(num(stats['ties_with_curves'])), 'tie')}"
+            if isinstance(stats.get("ties_with_curves"), (int, float))
+            else ""
+        )
+        holds = (
+            f"; {plural(int(num(stats['ties_with_patches'])), 'tie')} hold identically on patches"
+            if isinstance(stats.get("ties_with_patches"), (int, float))
+            else ""
+        )
+        out.append(
+            f"Special set: {component_counts(sp)} (connected components); "
+            f"{plural(tie_curve_count(sp), 'tie curve')}{of} in all{holds}. Patches cover "
+            f"{fmt_pct(sp.get('area_fraction'))} of the window."
+        )
         reasons = [r for c in sp.get("components") or [] for r in (c.get("reasons") or [])]
         if reasons:
             kinds = sorted({str(r.get("kind")) for r in reasons if isinstance(r, dict)})
             breaks = [num(r.get("breaks_at")) for r in reasons if isinstance(r, dict)]
             br = [x for x in breaks if math.isfinite(x)]
-            out.append("Why the patches exist: " + ", ".join(k.replace("_", " ") for k in kinds)
-                       + (f"; the identities break at perturbations of size {fmt(min(br), 3)} or more." if br
-                          else "."))
+            out.append(
+                "Why the patches exist: "
+                + ", ".join(k.replace("_", " ") for k in kinds)
+                + (
+                    f"; the identities break at perturbations of size {fmt(min(br), 3)} or more."
+                    if br
+                    else "."
+                )
+            )
     pert = (res.get("perturb") or {}).get("summary")
     if pert:
         runs = int(num(pert.get("runs")) or 0)
         k = pert.get("runs_with_patch")
         if k is not None:
             ci = fraction_interval(pert.get("runs_with_patch_ci95"), runs)
-            out.append(f"Genericity: {int(num(k))} of {runs} perturbed runs ({pert.get('model', 'n/a')} model, "
-                       f"size {fmt(pert.get('size'), 3)}) kept a patch (95% interval for the fraction "
-                       f"{fmt_interval(ci)})" + (
-                           ": the patches are an artefact of a non-generic input, not of the pair's geometry."
-                           if int(num(k)) == 0 and sp and int(num((sp.get('counts') or {}).get('patch', 0)))
-                           else "."))
+            out.append(
+                f"Genericity: {int(num(k))} of {runs} perturbed runs ({pert.get('model', 'n/a')} model, "
+                f"size {fmt(pert.get('size'), 3)}) kept a patch (95% interval for the fraction "
+                f"{fmt_interval(ci)})"
+                + (
+                    ": the patches are an artefact of a non-generic input, not of the pair's geometry."
+                    if int(num(k)) == 0 and sp and int(num((sp.get("counts") or {}).get("patch", 0)))
+                    else "."
+                )
+            )
         if pert.get("verdict"):
             out.append(f"Verdict: {pert['verdict']}")
     elif sp and int(num((sp.get("counts") or {}).get("patch", 0))):
-        out.append("Genericity: not tested (no perturbation study): a patch means the pair is not generic, "
-                   "so the main theorem's reduction may not apply.")
+        out.append(
+            "Genericity: not tested (no perturbation study): a patch means the pair is not generic, "
+            "so the main theorem's reduction may not apply."
+        )
     return out
 
 
@@ -260,26 +299,44 @@ def ranked_notes(res: dict[str, Any]) -> list[Note]:
     d = res.get("distance") or {}
     audit = d.get("audit") or {}
     tol = num(d.get("tolerance"))
-    if audit.get("theorem_gap") and (audit.get("theorem") or {}).get("reduced_above_upper") \
-            and not (audit.get("theorem") or {}).get("dense_above_reduced"):
-        notes.append(Note(1, "Theorem audit failed",
-                          f"the reduced search's value lies above a certified upper bound of D (line "
-                          f"{fmt_interval(audit.get('line')) if isinstance(audit.get('line'), list) else 'n/a'}).",
-                          "an evaluation or a bound is wrong: report it with distance.json."))
+    if (
+        audit.get("theorem_gap")
+        and (audit.get("theorem") or {}).get("reduced_above_upper")
+        and not (audit.get("theorem") or {}).get("dense_above_reduced")
+    ):
+        notes.append(
+            Note(
+                1,
+                "Theorem audit failed",
+                f"the reduced search's value lies above a certified upper bound of D (line "
+                f"{fmt_interval(audit.get('line')) if isinstance(audit.get('line'), list) else 'n/a'}).",
+                "an evaluation or a bound is wrong: report it with distance.json.",
+            )
+        )
     elif audit.get("theorem_gap"):
         line = audit.get("line")
-        notes.append(Note(1, "Theorem audit failed",
-                          f"the dense sweep exceeds the reduced search by {fmt(audit.get('gap'))} at (a, b) = "
-                          f"{fmt_interval(line) if isinstance(line, list) else line}, more than the tolerance "
-                          f"{fmt(tol, 3)}.",
-                          "take the larger (dense) value as D; rerun specmap distance with a higher "
-                          "[distance] dense_resolution and check the grids (a missing contour shows here)."))
+        notes.append(
+            Note(
+                1,
+                "Theorem audit failed",
+                f"the dense sweep exceeds the reduced search by {fmt(audit.get('gap'))} at (a, b) = "
+                f"{fmt_interval(line) if isinstance(line, list) else line}, more than the tolerance "
+                f"{fmt(tol, 3)}.",
+                "take the larger (dense) value as D; rerun specmap distance with a higher "
+                "[distance] dense_resolution and check the grids (a missing contour shows here).",
+            )
+        )
     pert = (res.get("perturb") or {}).get("summary") or {}
     viol = pert.get("stability_violations")
     if viol is not None and num(viol) > 0:
-        notes.append(Note(1, "Stability violated",
-                          f"{int(num(viol))} perturbed runs changed D by more than the perturbation size allows.",
-                          "a numerical error: raise the mesh resolution of f and g and rerun specmap perturb."))
+        notes.append(
+            Note(
+                1,
+                "Stability violated",
+                f"{int(num(viol))} perturbed runs changed D by more than the perturbation size allows.",
+                "a numerical error: raise the mesh resolution of f and g and rerun specmap perturb.",
+            )
+        )
     if d:
         value = num(d.get("value"))
         for row in degree_rows(d):
@@ -287,50 +344,97 @@ def ranked_notes(res: dict[str, Any]) -> list[Note]:
                 continue  # degrees below the maximum are reported in the table, not as notes
             if row.status.startswith("not certified"):
                 sev = 2 if row.certified is False or row.interval is not None else 3
-                notes.append(Note(sev, f"D_{row.degree} not certified", row.status[len("not certified: "):] + ".",
-                                  "read D as the best value found; the dense sweep (specmap distance --method "
-                                  "both) gives an independent value, and a larger line budget may close the "
-                                  "search."))
-        grid_tol = max((num((res.get(g) or {}).get("tolerance")) for g in ("grid_f", "grid_g")), default=math.nan)
+                notes.append(
+                    Note(
+                        sev,
+                        f"D_{row.degree} not certified",
+                        row.status[len("not certified: ") :] + ".",
+                        "read D as the best value found; the dense sweep (specmap distance --method "
+                        "both) gives an independent value, and a larger line budget may close the "
+                        "search.",
+                    )
+                )
+        grid_tol = max(
+            (num((res.get(g) or {}).get("tolerance")) for g in ("grid_f", "grid_g")), default=math.nan
+        )
         floor = max(x for x in (tol, grid_tol, 0.0) if math.isfinite(x))
-        top = next((v for v in (d.get("by_degree") or {}).values()
-                    if isinstance(v, dict) and "resolved" in v and num(v.get("value")) == value), None)
+        top = next(
+            (
+                v
+                for v in (d.get("by_degree") or {}).values()
+                if isinstance(v, dict) and "resolved" in v and num(v.get("value")) == value
+            ),
+            None,
+        )
         if top is not None:  # distance.json says it (grid, mesh and distance tolerances)
             if top["resolved"] is False:
                 why, _, fix = str(top.get("resolved_why") or "the value is not resolved").partition(": ")
-                notes.append(Note(2, "D not resolved", f"{why}: the value is not resolved.",
-                                  (fix or "raise the mesh resolution or use an exact grid route, then rerun") + "."))
+                notes.append(
+                    Note(
+                        2,
+                        "D not resolved",
+                        f"{why}: the value is not resolved.",
+                        (fix or "raise the mesh resolution or use an exact grid route, then rerun") + ".",
+                    )
+                )
         elif math.isfinite(value) and floor > 0 and value < RESOLVED_FACTOR * floor:
-            notes.append(Note(2, "D not resolved",
-                              f"D = {fmt(value)} is less than {fmt(RESOLVED_FACTOR, 2)} times the tolerance "
-                              f"{fmt(floor, 3)} (grid or distance): the value is not resolved.",
-                              "raise the mesh resolution of f and g ([f]/[g] resolution) or use an exact "
-                              "grid route, then rerun."))
+            notes.append(
+                Note(
+                    2,
+                    "D not resolved",
+                    f"D = {fmt(value)} is less than {fmt(RESOLVED_FACTOR, 2)} times the tolerance "
+                    f"{fmt(floor, 3)} (grid or distance): the value is not resolved.",
+                    "raise the mesh resolution of f and g ([f]/[g] resolution) or use an exact "
+                    "grid route, then rerun.",
+                )
+            )
         pos = audit.get("position") or {}
         frac = num(pos.get("fraction_explained"))
         if math.isfinite(frac) and frac < 1.0:
-            notes.append(Note(3, "Position audit below 100%",
-                              f"{fmt_pct(frac)} of {pos.get('coordinates', 'the')} diagram coordinates on "
-                              f"{pos.get('lines', 'n/a')} lines are push coordinates of contours (worst deviation "
-                              f"{fmt(pos.get('max_deviation'), 3)}); the tolerance omits the mesh error, so "
-                              "surface studies fall short.",
-                              "rerun at a higher mesh resolution: the fraction should rise; if it does not, a "
-                              "contour is missing."))
+            notes.append(
+                Note(
+                    3,
+                    "Position audit below 100%",
+                    f"{fmt_pct(frac)} of {pos.get('coordinates', 'the')} diagram coordinates on "
+                    f"{pos.get('lines', 'n/a')} lines are push coordinates of contours (worst deviation "
+                    f"{fmt(pos.get('max_deviation'), 3)}); the tolerance omits the mesh error, so "
+                    "surface studies fall short.",
+                    "rerun at a higher mesh resolution: the fraction should rise; if it does not, a "
+                    "contour is missing.",
+                )
+            )
     sp = res.get("special") or {}
     if sp and int(num((sp.get("counts") or {}).get("patch", 0))) and not pert:
-        notes.append(Note(3, "Patch not tested",
-                          "the special set has a patch and no perturbation study was run.",
-                          "add a [perturb] table and run specmap perturb: a patch that vanishes under small "
-                          "perturbations is non-generic."))
+        notes.append(
+            Note(
+                3,
+                "Patch not tested",
+                "the special set has a patch and no perturbation study was run.",
+                "add a [perturb] table and run specmap perturb: a patch that vanishes under small "
+                "perturbations is non-generic.",
+            )
+        )
     stages = res.get("stages") or {}
     verbs = {"grids": "grid", "special": "map", "distance": "distance", "perturb": "perturb"}
     for key, verb in verbs.items():
         if key in stages and not stages[key]:
             if key == "distance" and grid_only(res):
-                notes.append(Note(4, "distance not available", "f and g are given as grid files, which have no "
-                                  "mesh, so there are no slice diagrams and no matching distance.",
-                                  "give a surface or a mesh for f and g ([f]/[g] in the study file) to compute D."))
+                notes.append(
+                    Note(
+                        4,
+                        "distance not available",
+                        "f and g are given as grid files, which have no "
+                        "mesh, so there are no slice diagrams and no matching distance.",
+                        "give a surface or a mesh for f and g ([f]/[g] in the study file) to compute D.",
+                    )
+                )
                 continue
-            notes.append(Note(4, f"{key} not run", f"no {key} results in this folder.",
-                              f"run specmap {verb} on the study."))
+            notes.append(
+                Note(
+                    4,
+                    f"{key} not run",
+                    f"no {key} results in this folder.",
+                    f"run specmap {verb} on the study.",
+                )
+            )
     return sorted(notes, key=lambda n: n.severity)

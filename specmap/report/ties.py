@@ -131,18 +131,22 @@ def _leaves(geom: Any) -> list[Any]:
     return [geom]
 
 
-def _setup(ties: list[dict[str, Any]], contours: dict[str, Contour]
-           ) -> tuple[list[Contour], np.ndarray, np.ndarray]:
+def _setup(
+    ties: list[dict[str, Any]], contours: dict[str, Contour]
+) -> tuple[list[Contour], np.ndarray, np.ndarray]:
     """The contours a list of ties uses, each tie's four slots into them, and its factor (1 or 2)."""
     ids = sorted({c for t in ties for pair in t["pairs"] for c in pair})
     col = {c: i for i, c in enumerate(ids)}
-    slots = np.array([[col[c] for pair in t["pairs"] for c in pair] for t in ties], dtype=np.int64).reshape(-1, 4)
+    slots = np.array([[col[c] for pair in t["pairs"] for c in pair] for t in ties], dtype=np.int64).reshape(
+        -1, 4
+    )
     factor = np.array([2.0 if t.get("condition") == "half" else 1.0 for t in ties])
     return [contours[c] for c in ids], slots, factor
 
 
-def _evaluate(ties: list[dict[str, Any]], contours: dict[str, Contour], a: np.ndarray, b: np.ndarray
-              ) -> tuple[np.ndarray, np.ndarray]:
+def _evaluate(
+    ties: list[dict[str, Any]], contours: dict[str, Contour], a: np.ndarray, b: np.ndarray
+) -> tuple[np.ndarray, np.ndarray]:
     """Residuals and tied values of every tie at every point, shape (len(ties), len(a)); NaN where not met."""
     if not ties or len(a) == 0:
         return np.full((len(ties), len(a)), np.nan), np.full((len(ties), len(a)), np.nan)
@@ -152,16 +156,17 @@ def _evaluate(ties: list[dict[str, Any]], contours: dict[str, Contour], a: np.nd
     val = np.empty_like(res)
     step = max(1, CHUNK // max(len(a), 1))
     for t0 in range(0, len(ties), step):
-        sl = slots[t0:t0 + step]
-        r, v = residual_from_slots(s[sl], factor[t0:t0 + step, None], a)  # s[sl]: (T, 4, N)
+        sl = slots[t0 : t0 + step]
+        r, v = residual_from_slots(s[sl], factor[t0 : t0 + step, None], a)  # s[sl]: (T, 4, N)
         ok = met[sl].all(axis=1)
-        res[t0:t0 + step] = np.where(ok, r, np.nan)
-        val[t0:t0 + step] = np.where(ok, v, np.nan)
+        res[t0 : t0 + step] = np.where(ok, r, np.nan)
+        val[t0 : t0 + step] = np.where(ok, v, np.nan)
     return res, val
 
 
-def _best_ties(ties: list[dict[str, Any]], contours: dict[str, Contour], a: np.ndarray, b: np.ndarray,
-               tol: float) -> tuple[np.ndarray, list[list[int]]]:
+def _best_ties(
+    ties: list[dict[str, Any]], contours: dict[str, Contour], a: np.ndarray, b: np.ndarray, tol: float
+) -> tuple[np.ndarray, list[list[int]]]:
     """At each point: the tie of least |residual| (-1 if none is met) and all ties with |residual| <= tol."""
     best = np.full(len(a), -1, dtype=np.int64)
     low = np.full(len(a), np.inf)
@@ -172,8 +177,8 @@ def _best_ties(ties: list[dict[str, Any]], contours: dict[str, Contour], a: np.n
     s, met = sample_contours(used, a, b)
     step = max(1, CHUNK // max(len(a), 1))
     for t0 in range(0, len(ties), step):
-        sl = slots[t0:t0 + step]
-        r, _ = residual_from_slots(s[sl], factor[t0:t0 + step, None], a)
+        sl = slots[t0 : t0 + step]
+        r, _ = residual_from_slots(s[sl], factor[t0 : t0 + step, None], a)
         r = np.where(met[sl].all(axis=1), np.abs(r), np.inf)
         arg = np.argmin(r, axis=0)
         m = r[arg, np.arange(len(a))]
@@ -184,8 +189,9 @@ def _best_ties(ties: list[dict[str, Any]], contours: dict[str, Contour], a: np.n
     return best, within
 
 
-def _vertex_values(ties: list[dict[str, Any]], contours: dict[str, Contour], which: np.ndarray,
-                   a: np.ndarray, b: np.ndarray) -> np.ndarray:
+def _vertex_values(
+    ties: list[dict[str, Any]], contours: dict[str, Contour], which: np.ndarray, a: np.ndarray, b: np.ndarray
+) -> np.ndarray:
     """Tied value of tie ``which[k]`` at point k (one tie per point); NaN where not met or which < 0."""
     out = np.full(len(a), np.nan)
     sel = np.flatnonzero(which >= 0)
@@ -210,9 +216,14 @@ def _inside_points(polys: list[Any], n: int, seed: int = 0) -> np.ndarray:
     return np.array(pts).reshape(-1, 2)
 
 
-def index_ties(special: dict[str, Any] | None, geojson: dict[str, Any] | None,
-               grid_f: dict[str, Any] | None = None, grid_g: dict[str, Any] | None = None,
-               *, tolerance: float | None = None) -> TieIndex:
+def index_ties(
+    special: dict[str, Any] | None,
+    geojson: dict[str, Any] | None,
+    grid_f: dict[str, Any] | None = None,
+    grid_g: dict[str, Any] | None = None,
+    *,
+    tolerance: float | None = None,
+) -> TieIndex:
     """Label the curves of ``special.geojson`` by the tie that holds on them.
 
     Parameters
@@ -253,7 +264,9 @@ def index_ties(special: dict[str, Any] | None, geojson: dict[str, Any] | None,
             polygons[cid] = polys
         if pts and kind == "point":
             points[cid] = np.array(pts)
-        usable = contours is not None and ties and all(c in contours for t in ties for p in t["pairs"] for c in p)
+        usable = (
+            contours is not None and ties and all(c in contours for t in ties for p in t["pairs"] for c in p)
+        )
         if not usable:
             curves.extend(Curve(cid, xy, (), "unknown", np.full(len(xy), np.nan)) for xy in lines)
             continue
@@ -285,5 +298,5 @@ def index_ties(special: dict[str, Any] | None, geojson: dict[str, Any] | None,
             if best[j] >= 0:  # the best first: its tied value is stored
                 holding = (int(live[best[j]]), *(int(live[i]) for i in within[j] if i != best[j]))
             fam = family(ties[holding[0]]) if holding else "unknown"
-            curves.append(Curve(cid, xy, holding, fam, tv[starts[j]:starts[j + 1]]))
+            curves.append(Curve(cid, xy, holding, fam, tv[starts[j] : starts[j + 1]]))
     return TieIndex(curves, patch_ties, polygon_ties, points, polygons, contours is not None)

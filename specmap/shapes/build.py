@@ -40,7 +40,9 @@ def build_shape(spec, study) -> Shape:
     file = str(study.path)
     label = spec.label
     if spec.source not in ("surface", "mesh"):
-        raise ValueError(f"{label}: a {spec.source!r} spec is not a shape (grid files are read with read_grid)")
+        raise ValueError(
+            f"{label}: a {spec.source!r} spec is not a shape (grid files are read with read_grid)"
+        )
     fmap = None
     if spec.map is not None:
         try:
@@ -55,24 +57,53 @@ def build_shape(spec, study) -> Shape:
         _check_values(values, file, f"{label}.map")
         _check_domain(fmap, V, T, file, f"{label}.map")
         _check_normal(V, T, values, fmap.jacobian(V), file, f"{label}.map")
-        return Shape(label, "surface", V, T, values, surface=surface, fmap=fmap,
-                     description=spec.describe(),
-                     meta={"vertices": len(V)})  # settings (route, resolution) travel in GridSettings
+        return Shape(
+            label,
+            "surface",
+            V,
+            T,
+            values,
+            surface=surface,
+            fmap=fmap,
+            description=spec.describe(),
+            meta={"vertices": len(V)},
+        )  # settings (route, resolution) travel in GridSettings
     hygiene: dict = {}
     V, T, fields = read_mesh(spec.path, fields=spec.fields, counts=hygiene)
     mesh_values = fmap.values(V) if fmap is not None else fields
     if mesh_values is None:
-        raise StudyError("a mesh needs a map or two vertex fields", file=file, field=label,
-                         fix='add map = ["x", "y"] or fields = ["name1", "name2"]')
+        raise StudyError(
+            "a mesh needs a map or two vertex fields",
+            file=file,
+            field=label,
+            fix='add map = ["x", "y"] or fields = ["name1", "name2"]',
+        )
     values = mesh_values
-    _check_values(values, str(spec.path) if fmap is None else file,
-                  f"{label}.fields" if fmap is None else f"{label}.map")
+    _check_values(
+        values,
+        str(spec.path) if fmap is None else file,
+        f"{label}.fields" if fmap is None else f"{label}.map",
+    )
     if fmap is not None:
         _check_domain(fmap, V, T, file, f"{label}.map")
-    _check_normal(V, T, values, fmap.jacobian(V) if fmap is not None else None,
-                  file if fmap is not None else str(spec.path), f"{label}.map" if fmap is not None else f"{label}.fields")
-    return Shape(label, "mesh", V, T, values, fmap=fmap, description=spec.describe(),
-                 meta={"path": str(spec.path), "vertices": len(V), "hygiene": hygiene})
+    _check_normal(
+        V,
+        T,
+        values,
+        fmap.jacobian(V) if fmap is not None else None,
+        file if fmap is not None else str(spec.path),
+        f"{label}.map" if fmap is not None else f"{label}.fields",
+    )
+    return Shape(
+        label,
+        "mesh",
+        V,
+        T,
+        values,
+        fmap=fmap,
+        description=spec.describe(),
+        meta={"path": str(spec.path), "vertices": len(V), "hygiene": hygiene},
+    )
 
 
 def _check_domain(fmap: CompiledMap, V: np.ndarray, T: np.ndarray, file: str, field: str) -> None:
@@ -83,24 +114,35 @@ def _check_domain(fmap: CompiledMap, V: np.ndarray, T: np.ndarray, file: str, fi
         if hit is not None:
             what, at = hit
             where = ", ".join(f"{c:.4g}" for c in at)
-            raise StudyError(f"{e.text!r} is not finite on the whole surface: {what} near ({where})",
-                             file=file, field=f"{field}[{i}]",
-                             fix="use a map that is finite and smooth on the whole shape")
+            raise StudyError(
+                f"{e.text!r} is not finite on the whole surface: {what} near ({where})",
+                file=file,
+                field=f"{field}[{i}]",
+                fix="use a map that is finite and smooth on the whole shape",
+            )
 
 
-def _check_normal(V: np.ndarray, T: np.ndarray, values: np.ndarray, jac: np.ndarray | None, file: str,
-                  field: str) -> None:
+def _check_normal(
+    V: np.ndarray, T: np.ndarray, values: np.ndarray, jac: np.ndarray | None, file: str, field: str
+) -> None:
     """Refuse a constant component or a functionally dependent pair (outside the theory)."""
     why = degeneracy(V, T, values, jac)
     if why is not None:
-        raise StudyError(f"{why}: the pair is not normal, so its grids and special set mean nothing",
-                         file=file, field=field,
-                         fix="give two functionally independent, non-constant measurements (math.md section 4)")
+        raise StudyError(
+            f"{why}: the pair is not normal, so its grids and special set mean nothing",
+            file=file,
+            field=field,
+            fix="give two functionally independent, non-constant measurements (math.md section 4)",
+        )
 
 
 def _check_values(values: np.ndarray, file: str, field: str) -> None:
     bad = ~np.isfinite(values)
     if bad.any():
         n = int(bad.any(axis=1).sum())
-        raise StudyError(f"the functions are NaN or infinite at {n} vertices", file=file, field=field,
-                         fix="use functions defined on the whole shape (check log, sqrt, division)")
+        raise StudyError(
+            f"the functions are NaN or infinite at {n} vertices",
+            file=file,
+            field=field,
+            fix="use functions defined on the whole shape (check log, sqrt, division)",
+        )

@@ -25,9 +25,24 @@ from pathlib import Path
 
 import numpy as np
 
-PLY_TYPES = {"char": 1, "int8": 1, "uchar": 1, "uint8": 1, "short": 2, "int16": 2, "ushort": 2,
-             "uint16": 2, "int": 4, "int32": 4, "uint": 4, "uint32": 4, "float": 4, "float32": 4,
-             "double": 8, "float64": 8}
+PLY_TYPES = {
+    "char": 1,
+    "int8": 1,
+    "uchar": 1,
+    "uint8": 1,
+    "short": 2,
+    "int16": 2,
+    "ushort": 2,
+    "uint16": 2,
+    "int": 4,
+    "int32": 4,
+    "uint": 4,
+    "uint32": 4,
+    "float": 4,
+    "float32": 4,
+    "double": 8,
+    "float64": 8,
+}
 _STRUCT = {1: "B", 2: "H", 4: "I", 8: "Q"}
 
 
@@ -63,8 +78,9 @@ def _ply_header(data: bytes) -> tuple[str, list[tuple[str, int, list[tuple]]], i
     return fmt, elements, nl + 1
 
 
-def _walk_element(data: bytes, offset: int, count: int, props: list[tuple],
-                  order: str) -> tuple[int, int | None] | None:
+def _walk_element(
+    data: bytes, offset: int, count: int, props: list[tuple], order: str
+) -> tuple[int, int | None] | None:
     """(Offset just after ``count`` rows of an element, shortest list or None), or None past the end."""
     if all(len(p) == 1 for p in props):
         end = offset + count * sum(p[0] for p in props)
@@ -87,7 +103,7 @@ def _walk_element(data: bytes, offset: int, count: int, props: list[tuple],
         for p in props:
             if len(p) == 2:
                 dt = np.dtype(f"{'<' if order == '<' else '>'}u{p[0]}")
-                counts = rows[:, pos:pos + p[0]].copy().view(dt).reshape(-1)
+                counts = rows[:, pos : pos + p[0]].copy().view(dt).reshape(-1)
                 same &= bool(np.all(counts == first[k]))
                 pos += p[0] + first[k] * p[1]
                 k += 1
@@ -141,15 +157,21 @@ def ply_header_problem(path: str | Path) -> str | None:
     for name, count, props in elements:
         walked = _walk_element(data, offset, count, props, order)
         if walked is None:
-            return (f"the header's element counts ({declared}) run past the end of the data "
-                    "(file truncated, or the counts are wrong)")
+            return (
+                f"the header's element counts ({declared}) run past the end of the data "
+                "(file truncated, or the counts are wrong)"
+            )
         offset, shortest = walked
         if name == "face" and shortest is not None and shortest < 3:
-            return (f"read with the header's element counts ({declared}), a face lists {shortest} "
-                    "vertices (the counts do not match the data, or the file is corrupt)")
+            return (
+                f"read with the header's element counts ({declared}), a face lists {shortest} "
+                "vertices (the counts do not match the data, or the file is corrupt)"
+            )
     if offset != len(data):
-        return (f"the header's element counts ({declared}) leave {len(data) - offset} bytes of data "
-                "unread (the counts do not match the data)")
+        return (
+            f"the header's element counts ({declared}) leave {len(data) - offset} bytes of data "
+            "unread (the counts do not match the data)"
+        )
     return None
 
 
@@ -192,8 +214,10 @@ def obj_triangles(path: str | Path) -> np.ndarray:
                     i = int(w.split("/")[0])
                     k = i - 1 if i > 0 else n + i
                     if i == 0 or k < 0:
-                        raise ValueError(f"line {lineno}: index {i} names no vertex "
-                                         f"({n} defined so far; OBJ counts from 1, -1 is the last)")
+                        raise ValueError(
+                            f"line {lineno}: index {i} names no vertex "
+                            f"({n} defined so far; OBJ counts from 1, -1 is the last)"
+                        )
                     row.append(k)
                 tris.append(row)
     return np.asarray(tris, dtype=np.int64).reshape(-1, 3)

@@ -72,34 +72,59 @@ def check_closed_manifold(
     V = np.asarray(V)
     T = np.asarray(T)
     if V.ndim != 2 or V.shape[1] != 3 or len(V) == 0:
-        raise MeshError(f"vertices have shape {V.shape}, expected (n, 3)", file=file, field=field,
-                        fix="give 3D vertex coordinates")
+        raise MeshError(
+            f"vertices have shape {V.shape}, expected (n, 3)",
+            file=file,
+            field=field,
+            fix="give 3D vertex coordinates",
+        )
     if T.ndim != 2 or T.shape[1] != 3 or len(T) == 0:
-        raise MeshError("the mesh has no triangles", file=file, field=field,
-                        fix="give a surface made of triangles (faces with 3 vertices)")
+        raise MeshError(
+            "the mesh has no triangles",
+            file=file,
+            field=field,
+            fix="give a surface made of triangles (faces with 3 vertices)",
+        )
     bad = np.nonzero(~np.isfinite(V).all(axis=1))[0]
     if bad.size:
-        raise MeshError(f"{bad.size} vertices have NaN or inf coordinates (first: vertex {bad[0]})",
-                        file=file, field=field, fix="repair or remove those vertices")
+        raise MeshError(
+            f"{bad.size} vertices have NaN or inf coordinates (first: vertex {bad[0]})",
+            file=file,
+            field=field,
+            fix="repair or remove those vertices",
+        )
     if T.min() < 0 or T.max() >= len(V):
-        raise MeshError(f"triangle indices outside 0..{len(V) - 1}", file=file, field=field,
-                        fix="index existing vertices only")
+        raise MeshError(
+            f"triangle indices outside 0..{len(V) - 1}",
+            file=file,
+            field=field,
+            fix="index existing vertices only",
+        )
     T = T.astype(np.int64)
     degenerate = (T[:, 0] == T[:, 1]) | (T[:, 1] == T[:, 2]) | (T[:, 0] == T[:, 2])
     if degenerate.any():
         k = int(np.nonzero(degenerate)[0][0])
-        raise MeshError(f"{int(degenerate.sum())} triangles repeat a vertex (first: triangle {k})",
-                        file=file, field=field, fix="remove degenerate triangles")
+        raise MeshError(
+            f"{int(degenerate.sum())} triangles repeat a vertex (first: triangle {k})",
+            file=file,
+            field=field,
+            fix="remove degenerate triangles",
+        )
     key = np.sort(T, axis=1)
     if len(np.unique(key, axis=0)) < len(T):
-        raise MeshError("some triangles appear twice", file=file, field=field,
-                        fix="remove duplicated triangles")
+        raise MeshError(
+            "some triangles appear twice", file=file, field=field, fix="remove duplicated triangles"
+        )
     used = np.zeros(len(V), dtype=bool)
     used[T.reshape(-1)] = True
     if not used.all():
         k = int(np.nonzero(~used)[0][0])
-        raise MeshError(f"{int((~used).sum())} vertices belong to no triangle (first: vertex {k})",
-                        file=file, field=field, fix="remove unreferenced vertices")
+        raise MeshError(
+            f"{int((~used).sum())} vertices belong to no triangle (first: vertex {k})",
+            file=file,
+            field=field,
+            fix="remove unreferenced vertices",
+        )
     table = edges_and_faces(T)
     over = table.counts > 2
     if over.any():
@@ -107,19 +132,29 @@ def check_closed_manifold(
         raise MeshError(
             f"not a 2-manifold: {int(over.sum())} edges lie on more than two triangles "
             f"(first: edge {u}-{v} on {int(table.counts[over][0])})",
-            file=file, field=field, fix="split the surface so that every edge has exactly two triangles")
+            file=file,
+            field=field,
+            fix="split the surface so that every edge has exactly two triangles",
+        )
     open_ = table.counts == 1
     if open_.any():
         u, v = table.edges[np.nonzero(open_)[0][0]]
-        raise MeshError(f"not closed: {int(open_.sum())} boundary edges lie on one triangle only "
-                        f"(first: edge {u}-{v})", file=file, field=field,
-                        fix="close the holes (every edge must have exactly two triangles)")
+        raise MeshError(
+            f"not closed: {int(open_.sum())} boundary edges lie on one triangle only (first: edge {u}-{v})",
+            file=file,
+            field=field,
+            fix="close the holes (every edge must have exactly two triangles)",
+        )
     cycles = _link_cycles(T, table, len(V))
     pinched = np.nonzero(cycles != 1)[0]
     if pinched.size:
-        raise MeshError(f"not a 2-manifold: {pinched.size} vertices have a link that is not one cycle "
-                        f"(first: vertex {pinched[0]}, {int(cycles[pinched[0]])} cycles)",
-                        file=file, field=field, fix="split pinched vertices into separate copies")
+        raise MeshError(
+            f"not a 2-manifold: {pinched.size} vertices have a link that is not one cycle "
+            f"(first: vertex {pinched[0]}, {int(cycles[pinched[0]])} cycles)",
+            file=file,
+            field=field,
+            fix="split pinched vertices into separate copies",
+        )
 
 
 def _link_cycles(T: np.ndarray, table: EdgeTable, n: int) -> np.ndarray:
@@ -277,9 +312,13 @@ def clean_mesh(
         ev = np.concatenate([T[:, 0], T[:, 1]]), np.concatenate([T[:, 1], T[:, 2]])
         graph = coo_matrix((np.ones(2 * m), ev), shape=(len(V), len(V)))
         ncomp = int(connected_components(graph, directed=False)[0])
-    counts = {"loose_vertices": max(loose, 0), "duplicate_vertices": duplicates,
-              "collapsed_triangles": n_collapsed, "zero_area_triangles": zero_area,
-              "components": ncomp}
+    counts = {
+        "loose_vertices": max(loose, 0),
+        "duplicate_vertices": duplicates,
+        "collapsed_triangles": n_collapsed,
+        "zero_area_triangles": zero_area,
+        "components": ncomp,
+    }
     return V, T, vals, counts
 
 
@@ -336,19 +375,31 @@ def read_mesh(
     p = Path(path)
     file = str(p)
     if not p.is_file():
-        raise MeshError("file not found", file=file, field="mesh",
-                        fix="check the path (relative paths resolve against the study file)")
+        raise MeshError(
+            "file not found",
+            file=file,
+            field="mesh",
+            fix="check the path (relative paths resolve against the study file)",
+        )
     fmt = FORMATS.get(p.suffix.lower())
     if fmt is None:
-        raise MeshError(f"unknown mesh format '{p.suffix}'", file=file, field="mesh",
-                        fix=f"use one of {', '.join(FORMATS)}")
+        raise MeshError(
+            f"unknown mesh format '{p.suffix}'",
+            file=file,
+            field="mesh",
+            fix=f"use one of {', '.join(FORMATS)}",
+        )
     import meshio  # local: meshio is slow to import
 
     try:
         p.open("rb").close()
     except PermissionError:
-        raise MeshError(f"the {fmt.upper()} file cannot be read (permission denied)", file=file,
-                        field="mesh", fix="make the file readable or copy it somewhere readable") from None
+        raise MeshError(
+            f"the {fmt.upper()} file cannot be read (permission denied)",
+            file=file,
+            field="mesh",
+            fix="make the file readable or copy it somewhere readable",
+        ) from None
     chatter = io.StringIO()
     try:
         with contextlib.redirect_stdout(chatter), contextlib.redirect_stderr(chatter):
@@ -359,19 +410,28 @@ def read_mesh(
         fix = f"write a valid {fmt.upper()} file of triangles"
         if "triangular" in said:
             fix = "triangulate the faces first (split every polygon into triangles)"
-        raise MeshError(f"cannot read the file as {fmt.upper()} ({said})", file=file, field="mesh",
-                        fix=fix) from None
+        raise MeshError(
+            f"cannot read the file as {fmt.upper()} ({said})", file=file, field="mesh", fix=fix
+        ) from None
     blocks = [b for b in mesh.cells if len(b.data)]
     others = sorted({b.type for b in blocks if b.type not in ("triangle", "vertex", "line")})
     if others:
         _check_ply_header(p, fmt)  # a header that lies about a count turns vertex bytes into "polygons"
-        raise MeshError(f"faces that are not triangles ({', '.join(others)})", file=file, field="mesh",
-                        fix="triangulate the faces first (split every polygon into triangles)")
+        raise MeshError(
+            f"faces that are not triangles ({', '.join(others)})",
+            file=file,
+            field="mesh",
+            fix="triangulate the faces first (split every polygon into triangles)",
+        )
     tris = [b.data for b in blocks if b.type == "triangle"]
     if not tris:
         _check_ply_header(p, fmt)
-        raise MeshError("the mesh has no triangles", file=file, field="mesh",
-                        fix="give a closed surface made of triangles")
+        raise MeshError(
+            "the mesh has no triangles",
+            file=file,
+            field="mesh",
+            fix="give a closed surface made of triangles",
+        )
     V = np.asarray(mesh.points, dtype=float)
     if V.ndim == 2 and V.shape[1] == 2:
         V = np.column_stack([V, np.zeros(len(V))])
@@ -380,8 +440,12 @@ def read_mesh(
         try:
             T = obj_triangles(p)
         except ValueError as exc:
-            raise MeshError(f"bad OBJ face index ({exc})", file=file, field="mesh",
-                            fix="use indices 1..n, or -1..-k for the k vertices defined so far") from None
+            raise MeshError(
+                f"bad OBJ face index ({exc})",
+                file=file,
+                field="mesh",
+                fix="use indices 1..n, or -1..-k for the k vertices defined so far",
+            ) from None
     values = None
     if fields is not None:
         available = sorted(mesh.point_data)
@@ -389,28 +453,46 @@ def read_mesh(
         for name in fields:
             if name not in mesh.point_data:
                 listed = ", ".join(available) if available else "none"
-                raise MeshError(f"no vertex field '{name}' (available: {listed})", file=file,
-                                field=name, fix="name one of the available vertex fields "
-                                "(PLY vertex properties; OFF/OBJ carry none)")
+                raise MeshError(
+                    f"no vertex field '{name}' (available: {listed})",
+                    file=file,
+                    field=name,
+                    fix="name one of the available vertex fields (PLY vertex properties; OFF/OBJ carry none)",
+                )
             col = np.asarray(mesh.point_data[name], dtype=float)
             if col.shape != (len(V),):
-                raise MeshError(f"vertex field '{name}' has shape {col.shape}, expected ({len(V)},)",
-                                file=file, field=name, fix="use a scalar per-vertex field")
+                raise MeshError(
+                    f"vertex field '{name}' has shape {col.shape}, expected ({len(V)},)",
+                    file=file,
+                    field=name,
+                    fix="use a scalar per-vertex field",
+                )
             bad = np.nonzero(~np.isfinite(col))[0]
             if bad.size:
-                raise MeshError(f"vertex field '{name}' has {bad.size} NaN/inf values "
-                                f"(first: vertex {bad[0]})", file=file, field=name,
-                                fix="give finite values at every vertex")
+                raise MeshError(
+                    f"vertex field '{name}' has {bad.size} NaN/inf values (first: vertex {bad[0]})",
+                    file=file,
+                    field=name,
+                    fix="give finite values at every vertex",
+                )
             cols.append(col)
         values = np.column_stack(cols)
     if T.min() < 0 or T.max() >= len(V):
         _check_ply_header(p, fmt)
-        raise MeshError(f"triangle indices outside 0..{len(V) - 1}", file=file, field="mesh",
-                        fix="index existing vertices only")
+        raise MeshError(
+            f"triangle indices outside 0..{len(V) - 1}",
+            file=file,
+            field="mesh",
+            fix="index existing vertices only",
+        )
     V, T, values, found = clean_mesh(V, T, values)
     if len(T) == 0:
-        raise MeshError("the mesh has no triangles of positive size", file=file, field="mesh",
-                        fix="give a closed surface made of triangles")
+        raise MeshError(
+            "the mesh has no triangles of positive size",
+            file=file,
+            field="mesh",
+            fix="give a closed surface made of triangles",
+        )
     check_closed_manifold(V, T, file=file, field="mesh")
     if counts is not None:
         counts.update(found)
@@ -429,8 +511,12 @@ def _check_ply_header(p: Path, fmt: str) -> None:
     except OSError:
         return
     if problem:
-        raise MeshError(f"inconsistent PLY file: {problem}", file=str(p), field="mesh",
-                        fix="export the mesh again (the element counts of the header must match the data)")
+        raise MeshError(
+            f"inconsistent PLY file: {problem}",
+            file=str(p),
+            field="mesh",
+            fix="export the mesh again (the element counts of the header must match the data)",
+        )
 
 
 def write_mesh(
@@ -461,7 +547,8 @@ def write_mesh(
     if values is not None:
         vals = np.asarray(values, dtype=float)
         point_data = {names[0]: vals[:, 0].copy(), names[1]: vals[:, 1].copy()}
-    mesh = meshio.Mesh(np.asarray(V, dtype=float),
-                       [("triangle", np.asarray(T, dtype=np.int32))], point_data=point_data)
+    mesh = meshio.Mesh(
+        np.asarray(V, dtype=float), [("triangle", np.asarray(T, dtype=np.int32))], point_data=point_data
+    )
     with contextlib.redirect_stdout(io.StringIO()), contextlib.redirect_stderr(io.StringIO()):
         meshio.write(Path(path), mesh, file_format=FORMATS.get(Path(path).suffix.lower()))

@@ -64,14 +64,21 @@ class Shape:
             require_mesh(self, "value bounds")  # raises: no values
         v = self.values
         assert v is not None
-        return (float(v[:, 0].min()), float(v[:, 1].min()),
-                float(v[:, 0].max()), float(v[:, 1].max()))
+        return (float(v[:, 0].min()), float(v[:, 1].min()), float(v[:, 0].max()), float(v[:, 1].max()))
 
     def with_values(self, values: np.ndarray, **meta: Any) -> Shape:
         """Same mesh, other vertex values (used by perturbations)."""
-        return Shape(self.label, self.source, self.vertices, self.triangles,
-                     np.asarray(values, dtype=float), self.surface, None,
-                     self.description, {**self.meta, **meta})
+        return Shape(
+            self.label,
+            self.source,
+            self.vertices,
+            self.triangles,
+            np.asarray(values, dtype=float),
+            self.surface,
+            None,
+            self.description,
+            {**self.meta, **meta},
+        )
 
 
 class MeshRequiredError(MissingInputError, MeshError):

@@ -37,7 +37,9 @@ def _symbolic(V: np.ndarray, T: np.ndarray, jac: np.ndarray) -> str | None:
     for i in (0, 1):
         if mag[:, i].max() <= ZERO * max(scale[i], 1.0):
             return f"f{i + 1} is constant on the surface"
-    sine = np.abs(np.einsum("nj,nj->n", np.cross(g[:, 0], g[:, 1]), nrm)) / np.maximum(mag[:, 0] * mag[:, 1], 1e-300)
+    sine = np.abs(np.einsum("nj,nj->n", np.cross(g[:, 0], g[:, 1]), nrm)) / np.maximum(
+        mag[:, 0] * mag[:, 1], 1e-300
+    )
     if sine.max() <= ZERO:
         return "the gradients of f1 and f2 are parallel everywhere (f2 is a function of f1)"
     return None
@@ -58,7 +60,9 @@ def _piecewise(V: np.ndarray, T: np.ndarray, values: np.ndarray) -> str | None:
     return None
 
 
-def degeneracy(V: np.ndarray, T: np.ndarray, values: np.ndarray, jacobian: np.ndarray | None = None) -> str | None:
+def degeneracy(
+    V: np.ndarray, T: np.ndarray, values: np.ndarray, jacobian: np.ndarray | None = None
+) -> str | None:
     """Why the pair ``values`` on the mesh (V, T) is outside the theory, or None when it is not.
 
     Parameters

@@ -79,14 +79,49 @@ _TILT = _rotation(0.3141, 0.2718, 0.1618)
 def _icosahedron() -> tuple[np.ndarray, np.ndarray]:
     """Unit icosahedron with outward-oriented faces."""
     t = _GOLDEN
-    V = np.array([[-1, t, 0], [1, t, 0], [-1, -t, 0], [1, -t, 0],
-                  [0, -1, t], [0, 1, t], [0, -1, -t], [0, 1, -t],
-                  [t, 0, -1], [t, 0, 1], [-t, 0, -1], [-t, 0, 1]], dtype=float)
+    V = np.array(
+        [
+            [-1, t, 0],
+            [1, t, 0],
+            [-1, -t, 0],
+            [1, -t, 0],
+            [0, -1, t],
+            [0, 1, t],
+            [0, -1, -t],
+            [0, 1, -t],
+            [t, 0, -1],
+            [t, 0, 1],
+            [-t, 0, -1],
+            [-t, 0, 1],
+        ],
+        dtype=float,
+    )
     V /= np.linalg.norm(V, axis=1)[:, None]
-    F = np.array([[0, 11, 5], [0, 5, 1], [0, 1, 7], [0, 7, 10], [0, 10, 11],
-                  [1, 5, 9], [5, 11, 4], [11, 10, 2], [10, 7, 6], [7, 1, 8],
-                  [3, 9, 4], [3, 4, 2], [3, 2, 6], [3, 6, 8], [3, 8, 9],
-                  [4, 9, 5], [2, 4, 11], [6, 2, 10], [8, 6, 7], [9, 8, 1]], dtype=int)
+    F = np.array(
+        [
+            [0, 11, 5],
+            [0, 5, 1],
+            [0, 1, 7],
+            [0, 7, 10],
+            [0, 10, 11],
+            [1, 5, 9],
+            [5, 11, 4],
+            [11, 10, 2],
+            [10, 7, 6],
+            [7, 1, 8],
+            [3, 9, 4],
+            [3, 4, 2],
+            [3, 2, 6],
+            [3, 6, 8],
+            [3, 8, 9],
+            [4, 9, 5],
+            [2, 4, 11],
+            [6, 2, 10],
+            [8, 6, 7],
+            [9, 8, 1],
+        ],
+        dtype=int,
+    )
     return V, F
 
 
@@ -197,8 +232,7 @@ class Ellipsoid:
         """Point (r1 cos v cos u, r2 cos v sin u, r3 sin v), shape (..., 3)."""
         u, v = np.broadcast_arrays(np.asarray(u, dtype=float), np.asarray(v, dtype=float))
         r1, r2, r3 = self.radii
-        return np.stack([r1 * np.cos(v) * np.cos(u), r2 * np.cos(v) * np.sin(u), r3 * np.sin(v)],
-                        axis=-1)
+        return np.stack([r1 * np.cos(v) * np.cos(u), r2 * np.cos(v) * np.sin(u), r3 * np.sin(v)], axis=-1)
 
     def mesh(self, resolution: int) -> tuple[np.ndarray, np.ndarray]:
         """Closed outward-oriented triangulation with about ``resolution`` vertices.

@@ -15,5 +15,17 @@ from specmap.special.compute import default_tolerance, special_set
 from specmap.special.evaluate import extended_parameter, tie_residual, tie_value
 from specmap.special.pairs import Tie, tie_from_json
 
-__all__ = ["Atlas", "AtlasSummary", "Component", "Tie", "TiePiece", "atlas_from_json", "default_tolerance",
-           "extended_parameter", "special_set", "tie_from_json", "tie_residual", "tie_value"]
+__all__ = [
+    "Atlas",
+    "AtlasSummary",
+    "Component",
+    "Tie",
+    "TiePiece",
+    "atlas_from_json",
+    "default_tolerance",
+    "extended_parameter",
+    "special_set",
+    "tie_from_json",
+    "tie_residual",
+    "tie_value",
+]

@@ -64,8 +64,14 @@ class Component:
     reasons: tuple[dict[str, Any], ...] = ()
 
     def summary(self) -> dict[str, Any]:
-        out = {"id": self.id, "kind": self.kind, "area": float(self.area), "length": float(self.length),
-               "bbox": [float(x) for x in self.bbox], "ties": [t.to_json() for t in self.ties]}
+        out = {
+            "id": self.id,
+            "kind": self.kind,
+            "area": float(self.area),
+            "length": float(self.length),
+            "bbox": [float(x) for x in self.bbox],
+            "ties": [t.to_json() for t in self.ties],
+        }
         if self.kind == "patch":
             out["reasons"] = [dict(r) for r in self.reasons]
         return out
@@ -107,18 +113,20 @@ class Atlas:
     def to_json(self) -> dict[str, Any]:
         """Summary dict (the ``special.json`` contract)."""
         area = self.total_area
-        return to_plain({
-            "window": self.window.to_json(),
-            "tolerance": float(self.tolerance),
-            "pairs": self.pairs,
-            "method": self.method,
-            "resolution": list(self.resolution),
-            "components": [c.summary() for c in self.components],
-            "total_area": area,
-            "area_fraction": area / self.window.area if self.window.area > 0 else 0.0,
-            "counts": self.counts(),
-            "stats": self.stats,
-        })
+        return to_plain(
+            {
+                "window": self.window.to_json(),
+                "tolerance": float(self.tolerance),
+                "pairs": self.pairs,
+                "method": self.method,
+                "resolution": list(self.resolution),
+                "components": [c.summary() for c in self.components],
+                "total_area": area,
+                "area_fraction": area / self.window.area if self.window.area > 0 else 0.0,
+                "counts": self.counts(),
+                "stats": self.stats,
+            }
+        )
 
     def iter_features(self) -> Iterator[dict[str, Any]]:
         """The GeoJSON features, one per component, made one at a time (for streamed writing)."""
@@ -128,8 +136,11 @@ class Atlas:
 
     def geojson_head(self) -> dict[str, Any]:
         """The FeatureCollection without its features (``"features": None`` marks their place)."""
-        return {"type": "FeatureCollection", "features": None,
-                "properties": {k: v for k, v in self.to_json().items() if k != "components"}}
+        return {
+            "type": "FeatureCollection",
+            "features": None,
+            "properties": {k: v for k, v in self.to_json().items() if k != "components"},
+        }
 
     def to_geojson(self) -> dict[str, Any]:
         """FeatureCollection, one feature per component, coordinates (a, b)."""
@@ -155,11 +166,26 @@ class AtlasSummary:
 def atlas_from_json(d: dict[str, Any]) -> AtlasSummary:
     """Read a ``special.json`` summary (inverse of :meth:`Atlas.to_json`, without geometry)."""
     comps = tuple(
-        Component(c["id"], c["kind"], float(c["area"]), float(c["length"]), tuple(c["bbox"]),
-                  tuple(tie_from_json(t) for t in c["ties"]))
+        Component(
+            c["id"],
+            c["kind"],
+            float(c["area"]),
+            float(c["length"]),
+            tuple(c["bbox"]),
+            tuple(tie_from_json(t) for t in c["ties"]),
+        )
         for c in d.get("components", [])
     )
     w = d["window"]
-    return AtlasSummary(Window(tuple(w["a"]), tuple(w["b"])), float(d["tolerance"]), d["pairs"], d["method"],
-                        tuple(d["resolution"]), comps, float(d["total_area"]), float(d["area_fraction"]),
-                        dict(d["counts"]), dict(d.get("stats", {})))
+    return AtlasSummary(
+        Window(tuple(w["a"]), tuple(w["b"])),
+        float(d["tolerance"]),
+        d["pairs"],
+        d["method"],
+        tuple(d["resolution"]),
+        comps,
+        float(d["total_area"]),
+        float(d["area_fraction"]),
+        dict(d["counts"]),
+        dict(d.get("stats", {})),
+    )

@@ -52,10 +52,10 @@ def _dedupe_lines(lines: list, scale: float) -> list:
     buckets: dict[tuple[int, int, int], list[int]] = {}
 
     def seen(i: int, cx: int, cy: int) -> bool:
-        c = coords[start[i]:start[i] + n[i]]
+        c = coords[start[i] : start[i] + n[i]]
         for dx, dy in itertools.product((-1, 0, 1), repeat=2):
             for j in buckets.get((int(n[i]), cx + dx, cy + dy), ()):
-                d = coords[start[j]:start[j] + n[j]]
+                d = coords[start[j] : start[j] + n[j]]
                 if np.abs(c - d).max() <= tol or np.abs(c - d[::-1]).max() <= tol:
                     return True
         return False
@@ -89,8 +89,17 @@ def lattice_links(lines: list, eps: float, lattice: Lattice) -> tuple[np.ndarray
     ends = np.vstack([p, q])
     kk = np.round((ends - ends.min(axis=0)) / eps).astype(np.int64)
     vkey = kk[:, 0] * (int(kk[:, 1].max()) + 1) + kk[:, 1]
-    label, _, _ = lattice_labels(np.ascontiguousarray(p), np.ascontiguousarray(q), owner, n_lines,
-                                 np.asarray(av, float), np.asarray(bv, float), eps, vkey, np.argsort(vkey))
+    label, _, _ = lattice_labels(
+        np.ascontiguousarray(p),
+        np.ascontiguousarray(q),
+        owner,
+        n_lines,
+        np.asarray(av, float),
+        np.asarray(bv, float),
+        eps,
+        vkey,
+        np.argsort(vkey),
+    )
     rep = np.full(int(label.max()) + 1, -1, dtype=np.int64)
     rep[label[::-1]] = np.arange(n_lines)[::-1]
     return np.arange(n_lines), rep[label]
@@ -116,8 +125,9 @@ LineLinks = Callable[[list, float], tuple[np.ndarray, np.ndarray]]
 """(lines, eps) -> links (i, j) whose union connects every set of touching lines."""
 
 
-def components_with(pieces: tuple[TiePiece, ...], window: Window, line_links: LineLinks
-                    ) -> tuple[Component, ...]:
+def components_with(
+    pieces: tuple[TiePiece, ...], window: Window, line_links: LineLinks
+) -> tuple[Component, ...]:
     """:func:`components` with the line/line contacts found by ``line_links``.
 
     The reference segment test (:func:`specmap.special.reference.segment_links`)
@@ -192,9 +202,20 @@ def components_with(pieces: tuple[TiePiece, ...], window: Window, line_links: Li
         geom = members[0] if len(members) == 1 else shapely.GeometryCollection(members)
         kind = "patch" if polys else ("curve" if lines else "point")
         ties = sorted({pieces[owner[n]].tie for n in nodes}, key=lambda t: (t.condition, t.pairs))
-        comps.append((geom.bounds, kind, float(area_geom.area) if area_geom is not None else 0.0,
-                      length, tuple(ties), geom))
+        comps.append(
+            (
+                geom.bounds,
+                kind,
+                float(area_geom.area) if area_geom is not None else 0.0,
+                length,
+                tuple(ties),
+                geom,
+            )
+        )
     comps.sort(key=lambda c: (c[0][0], c[0][1], c[0][2], c[0][3]))
-    return tuple(Component(f"c{k}", kind, area, length,
-                           (float(bb[0]), float(bb[1]), float(bb[2]), float(bb[3])), ties, geom)
-                 for k, (bb, kind, area, length, ties, geom) in enumerate(comps))
+    return tuple(
+        Component(
+            f"c{k}", kind, area, length, (float(bb[0]), float(bb[1]), float(bb[2]), float(bb[3])), ties, geom
+        )
+        for k, (bb, kind, area, length, ties, geom) in enumerate(comps)
+    )

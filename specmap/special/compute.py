@@ -17,6 +17,7 @@ import numpy as np
 import shapely
 
 from specmap.grids.model import Grid
+from specmap.settings import MapSettings
 from specmap.special.atlas import Atlas, Component, TiePiece
 from specmap.special.components import components
 from specmap.special.detect import METHODS, find_crossings, sample
@@ -38,7 +39,9 @@ def default_tolerance(grid_f: Grid, grid_g: Grid) -> float:
     return 1e-9 * (diag if diag > 0 else 1.0)
 
 
-def with_reasons(comps: tuple[Component, ...], pieces: list[TiePiece], table, tol: float) -> tuple[Component, ...]:
+def with_reasons(
+    comps: tuple[Component, ...], pieces: list[TiePiece], table, tol: float
+) -> tuple[Component, ...]:
     """Patch components with the reasons of the ties whose patches they hold."""
     patches = [p for p in pieces if p.kind == "patch"]
     if not patches:
@@ -54,10 +57,20 @@ def with_reasons(comps: tuple[Component, ...], pieces: list[TiePiece], table, to
     return tuple(out)
 
 
-def special_set(grid_f: Grid, grid_g: Grid, window: Window, *, pairs: str = "all",
-                resolution: int | tuple[int, int] = 121, method: str = "sweep", tol: float | None = None,
-                progress: Callable[[int, int], None] | None = None, sub: int = 8, seed: int = 0,
-                reading: str = "points") -> Atlas:
+def special_set(
+    grid_f: Grid,
+    grid_g: Grid,
+    window: Window,
+    *,
+    pairs: str = "all",
+    resolution: int | tuple[int, int] = MapSettings.resolution,
+    method: str = "sweep",
+    tol: float | None = None,
+    progress: Callable[[int, int], None] | None = None,
+    sub: int = 8,
+    seed: int = 0,
+    reading: str = "points",
+) -> Atlas:
     """The special set of (Γ(f), Γ(g)) in a window of the strip, as an :class:`Atlas`.
 
     (a, b) is special when two different pairs of contours met by r(a, b) tie:

@@ -134,7 +134,7 @@ def _as_ties(table: PairTable, items: Items, u: np.ndarray, v: np.ndarray):
     pu = items.pair[u]
     pv = items.pair[v]
     eq = (fu == 1) & (fv == 1)
-    hf = (fu != fv)
+    hf = fu != fv
     big_i = np.where(eq, np.where(pu < pv, u, v), np.where(fu == 1, u, v))
     small_i = np.where(eq, np.where(pu < pv, v, u), np.where(fu == 1, v, u))
     P = items.pair[big_i]
@@ -154,9 +154,16 @@ def sorted_unique(x: np.ndarray) -> np.ndarray:
     return x[np.concatenate([[True], x[1:] != x[:-1]])]
 
 
-def find_crossings(table: PairTable, samples: Samples, *, tol: float, snap: float,
-                   progress: Callable[[int, int], None] | None = None, progress_offset: int = 0,
-                   progress_total: int | None = None) -> tuple[np.ndarray, np.ndarray, dict]:
+def find_crossings(
+    table: PairTable,
+    samples: Samples,
+    *,
+    tol: float,
+    snap: float,
+    progress: Callable[[int, int], None] | None = None,
+    progress_offset: int = 0,
+    progress_total: int | None = None,
+) -> tuple[np.ndarray, np.ndarray, dict]:
     """Tie codes and edge ids of all lattice edges a tie curve crosses (compiled sweep).
 
     Parameters
@@ -189,8 +196,19 @@ def find_crossings(table: PairTable, samples: Samples, *, tol: float, snap: floa
     step = max(1, nb // 40)
     for j0 in range(0, nb, step):
         j1 = min(nb, j0 + step)
-        code, ee, cand = sweep_rows(samples.s, samples.met, samples.cell_pair, table.first, table.second,
-                                    *flags, m_col, j0, j1, snap, tol)
+        code, ee, cand = sweep_rows(
+            samples.s,
+            samples.met,
+            samples.cell_pair,
+            table.first,
+            table.second,
+            *flags,
+            m_col,
+            j0,
+            j1,
+            snap,
+            tol,
+        )
         n_cand += int(cand)
         n_swap += code.size
         codes_out.append(code)
@@ -200,8 +218,9 @@ def find_crossings(table: PairTable, samples: Samples, *, tol: float, snap: floa
     return unique_crossings(lat, codes_out, edges_out, n_cand, n_swap)
 
 
-def unique_crossings(lat: Lattice, codes_out: list[np.ndarray], edges_out: list[np.ndarray], n_cand: int,
-                     n_swap: int) -> tuple[np.ndarray, np.ndarray, dict]:
+def unique_crossings(
+    lat: Lattice, codes_out: list[np.ndarray], edges_out: list[np.ndarray], n_cand: int, n_swap: int
+) -> tuple[np.ndarray, np.ndarray, dict]:
     """Concatenated crossings sorted by (code, edge) without repeats, and the detection stats."""
     codes = np.concatenate(codes_out) if codes_out else np.zeros(0, np.int64)
     eids = np.concatenate(edges_out) if edges_out else np.zeros(0, np.int64)

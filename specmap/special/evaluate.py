@@ -90,8 +90,11 @@ def _extended(contour: Contour, a, b, kguess: np.ndarray | None = None):
         elif contour.kind == "horizontal":
             ext = (y0 + b) / (1.0 - a)
         else:
-            ext = np.where(_g(pts[0], a, b) > 0, _through(pts[0], pts[1] if len(pts) > 1 else None, a, b),
-                           _through(pts[-1], pts[-2] if len(pts) > 1 else None, a, b))
+            ext = np.where(
+                _g(pts[0], a, b) > 0,
+                _through(pts[0], pts[1] if len(pts) > 1 else None, a, b),
+                _through(pts[-1], pts[-2] if len(pts) > 1 else None, a, b),
+            )
     out = s.copy()
     out[miss] = ext
     return out, met, k
@@ -127,8 +130,9 @@ def _rows(pts: np.ndarray, a1: np.ndarray, b1: np.ndarray) -> tuple[np.ndarray, 
     return _finish(pts, a1, b1, k, G[k, q], G[k + 1, q], met), k
 
 
-def _rows_guess(pts: np.ndarray, a1: np.ndarray, b1: np.ndarray, kg: np.ndarray
-                ) -> tuple[np.ndarray, np.ndarray]:
+def _rows_guess(
+    pts: np.ndarray, a1: np.ndarray, b1: np.ndarray, kg: np.ndarray
+) -> tuple[np.ndarray, np.ndarray]:
     """:func:`_rows` given a guess ``kg`` of the segment index.
 
     G is non-decreasing along the polyline (also in floating point), so
@@ -200,7 +204,7 @@ class SlotEvaluator:
         order = np.argsort(flat, kind="stable")
         uniq, starts = np.unique(flat[order], return_index=True)
         bounds = np.append(starts, flat.size)
-        self.groups = [(int(c), order[bounds[i]:bounds[i + 1]]) for i, c in enumerate(uniq)]
+        self.groups = [(int(c), order[bounds[i] : bounds[i + 1]]) for i, c in enumerate(uniq)]
         m = max(self.slots.shape[1], 1)
         self.rows = [idx // m for _, idx in self.groups]
         # segment indices of short proper contours at the last call (guesses for the next)
@@ -225,8 +229,9 @@ def residual_from_slots(s: np.ndarray, factor: np.ndarray, a: np.ndarray) -> tup
     return dp - dq, np.minimum(dp, dq / factor)
 
 
-def _tie_differences(tie: Tie, contours_by_id: Mapping[str, Contour], a, b
-                     ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+def _tie_differences(
+    tie: Tie, contours_by_id: Mapping[str, Contour], a, b
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """|c_P|, |c_Q| (push units) of a tie's two pairs at lines (a, b), and where all four are met."""
     a, b = np.broadcast_arrays(np.asarray(a, float), np.asarray(b, float))
     vals = []

@@ -191,8 +191,10 @@ class PairTable:
         cond, p, q = (x.tolist() for x in self.decode(np.asarray(codes, np.int64)))
         ids = self.ids
         f, g = self.first.tolist(), self.second.tolist()
-        return [Tie.make((ids[f[pp]], ids[g[pp]]), (ids[f[qq]], ids[g[qq]]), CONDITIONS[c])
-                for c, pp, qq in zip(cond, p, q, strict=True)]
+        return [
+            Tie.make((ids[f[pp]], ids[g[pp]]), (ids[f[qq]], ids[g[qq]]), CONDITIONS[c])
+            for c, pp, qq in zip(cond, p, q, strict=True)
+        ]
 
     def tie_contours(self, codes: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """Contour indices (k, 4) = (P.first, P.second, Q.first, Q.second) and factors (1 or 2).
@@ -279,8 +281,12 @@ def kernel_flags(table: PairTable) -> tuple[np.ndarray, np.ndarray, np.ndarray, 
         :func:`doubled_pairs`.
     """
     r = table.rules
-    return (np.ascontiguousarray(table.pair_class), np.ascontiguousarray(r.equal_ok),
-            np.ascontiguousarray(r.half_ok), np.ascontiguousarray(doubled_pairs(table)))
+    return (
+        np.ascontiguousarray(table.pair_class),
+        np.ascontiguousarray(r.equal_ok),
+        np.ascontiguousarray(r.half_ok),
+        np.ascontiguousarray(doubled_pairs(table)),
+    )
 
 
 def all_tie_codes(table: PairTable) -> np.ndarray:
@@ -291,8 +297,9 @@ def all_tie_codes(table: PairTable) -> np.ndarray:
     q = qg.ravel()
     eq = (p < q) & equal_allowed(table, p, q)
     hf = half_allowed(table, p, q)
-    return np.concatenate([table.encode(np.zeros(eq.sum()), p[eq], q[eq]),
-                           table.encode(np.ones(hf.sum()), p[hf], q[hf])])
+    return np.concatenate(
+        [table.encode(np.zeros(eq.sum()), p[eq], q[eq]), table.encode(np.ones(hf.sum()), p[hf], q[hf])]
+    )
 
 
 # ----------------------------------------------------------------------------------------------
@@ -365,8 +372,9 @@ def costs_from_differences(code: Any, dp: Any, dq: Any) -> tuple[np.ndarray, np.
     return np.where(bad, np.nan, lo), np.where(bad, np.nan, hi)
 
 
-def tie_costs(tie: Tie, contours_by_id: dict, a: Any, b: Any, *, roles: bool = True
-              ) -> tuple[np.ndarray, np.ndarray]:
+def tie_costs(
+    tie: Tie, contours_by_id: dict, a: Any, b: Any, *, roles: bool = True
+) -> tuple[np.ndarray, np.ndarray]:
     """Lower and upper candidate bottleneck cost of a tie at lines (a, b), in value units.
 
     With the differences d_P = |c_a - c_b|, d_Q = |c_c - c_d| of push

@@ -47,14 +47,17 @@ def node_near_ties(table: PairTable, samples: Samples, tol: float) -> tuple[np.n
         e, u, v = _overlaps(vals, vals, pres, tol)
         keep, cond, P, Q, big_i, small_i = _as_ties(table, items, u, v)
         e, cond, P, Q, big_i, small_i = (x[keep] for x in (e, cond, P, Q, big_i, small_i))
-        ok = (np.abs(vals[e, big_i] - vals[e, small_i]) <= tol) & (vals[e, small_i] / items.factor[small_i] > tol)
+        ok = (np.abs(vals[e, big_i] - vals[e, small_i]) <= tol) & (
+            vals[e, small_i] / items.factor[small_i] > tol
+        )
         nodes_out.append(j * lat.n_a + e[ok])
         codes_out.append(table.encode(cond[ok], P[ok], Q[ok]))
     return np.concatenate(nodes_out), np.concatenate(codes_out)
 
 
-def patch_cells(table: PairTable, samples: Samples, tol: float, *, seed: int = 0
-                ) -> tuple[np.ndarray, np.ndarray, dict]:
+def patch_cells(
+    table: PairTable, samples: Samples, tol: float, *, seed: int = 0
+) -> tuple[np.ndarray, np.ndarray, dict]:
     """Tie codes and cell ids of patch cells (sorted by code, cell)."""
     lat = samples.lattice
     nodes, codes = node_near_ties(table, samples, tol)
@@ -100,8 +103,9 @@ def _row_boxes(lat, cells: np.ndarray) -> list:
     return list(shapely.box(a0, b0, a1, b1))
 
 
-def patch_polygons(table: PairTable, samples: Samples, codes: np.ndarray, cells: np.ndarray, tol: float,
-                   *, sub: int = 8) -> dict[int, shapely.Geometry]:
+def patch_polygons(
+    table: PairTable, samples: Samples, codes: np.ndarray, cells: np.ndarray, tol: float, *, sub: int = 8
+) -> dict[int, shapely.Geometry]:
     """Polygon (shapely) of every tie with patch cells, boundary refined by sub-cells."""
     lat = samples.lattice
     out: dict[int, object] = {}
@@ -149,7 +153,7 @@ def patch_polygons(table: PairTable, samples: Samples, codes: np.ndarray, cells:
     by_cells: dict[bytes, object] = {}
     by_region: dict[bytes, object] = {}
     for k, code in enumerate(uc.tolist()):
-        cells_k = cells_s[bounds[k]:bounds[k + 1]]
+        cells_k = cells_s[bounds[k] : bounds[k + 1]]
         key = np.sort(cells_k).tobytes()
         extra = sub_boxes.get(code, [])
         rkey = key + (shapely.get_coordinates(extra).tobytes() if extra else b"")

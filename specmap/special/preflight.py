@@ -90,8 +90,14 @@ def _size(b: float) -> str:
     return f"{b:.0f} B"
 
 
-def check_atlas_size(n_f: int, n_g: int, resolution: int | tuple[int, int], *,
-                     budget: float | None = None, file: str | None = None) -> AtlasEstimate:
+def check_atlas_size(
+    n_f: int,
+    n_g: int,
+    resolution: int | tuple[int, int],
+    *,
+    budget: float | None = None,
+    file: str | None = None,
+) -> AtlasEstimate:
     """The estimate, or a one-line refusal when it exceeds twice the memory budget.
 
     Raises
@@ -106,7 +112,9 @@ def check_atlas_size(n_f: int, n_g: int, resolution: int | tuple[int, int], *,
             f"the special-set map of {n_f} + {n_g} contours ({est.pairs} pairs, about "
             f"{est.crossings:.2g} crossings) needs about {_size(est.bytes)} of memory, over the budget "
             f"{_size(budget)} (half of this machine's memory)",
-            file=file, field="map",
+            file=file,
+            field="map",
             fix='set simplify = "auto" (or a delta) on the mesh shapes, use --pairs roles, a coarser '
-                '--resolution, or specmap distance --method dense, which needs no map')
+            "--resolution, or specmap distance --method dense, which needs no map",
+        )
     return est

@@ -57,8 +57,12 @@ def coincident(table: PairTable, triples: np.ndarray, a: np.ndarray, b: np.ndarr
     |s_β − s_δ| and |s_β + s_δ − 2 s_α| are compared at the line.
     """
     slots = np.ascontiguousarray(triples, dtype=np.int64)
-    s, _ = slot_params(*FlatContours.of(table.contours).args, slots,
-                       np.ascontiguousarray(a, dtype=float), np.ascontiguousarray(b, dtype=float))
+    s, _ = slot_params(
+        *FlatContours.of(table.contours).args,
+        slots,
+        np.ascontiguousarray(a, dtype=float),
+        np.ascontiguousarray(b, dtype=float),
+    )
     return np.abs(s[:, 1] - s[:, 2]) <= np.abs(s[:, 1] + s[:, 2] - 2.0 * s[:, 0])
 
 

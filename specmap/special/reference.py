@@ -34,9 +34,16 @@ from specmap.strip import Window
 # ----------------------------------------------------------------------------------------------
 # crossings
 # ----------------------------------------------------------------------------------------------
-def naive_crossings(table: PairTable, samples: Samples, *, tol: float, snap: float,
-                    progress: Callable[[int, int], None] | None = None, progress_offset: int = 0,
-                    progress_total: int | None = None) -> tuple[np.ndarray, np.ndarray, dict]:
+def naive_crossings(
+    table: PairTable,
+    samples: Samples,
+    *,
+    tol: float,
+    snap: float,
+    progress: Callable[[int, int], None] | None = None,
+    progress_offset: int = 0,
+    progress_total: int | None = None,
+) -> tuple[np.ndarray, np.ndarray, dict]:
     """:func:`specmap.special.detect.find_crossings` by evaluating every allowed tie on every edge.
 
     Same parameters and results; ``stats["candidate_item_pairs"]`` counts every (tie, edge) evaluated.
@@ -86,8 +93,9 @@ def naive_crossings(table: PairTable, samples: Samples, *, tol: float, snap: flo
     return unique_crossings(lat, [codes[keep]], [eids[keep]], n_cand, n_swap)
 
 
-def _row_edges(lat: Lattice, samples: Samples, table: PairTable, j: int, items: Items,
-               dv: dict[int, np.ndarray]):
+def _row_edges(
+    lat: Lattice, samples: Samples, table: PairTable, j: int, items: Items, dv: dict[int, np.ndarray]
+):
     """Edges handled for node row j, their end values (E, M) and item presence (E, M)."""
     na, nb = lat.n_a, lat.n_b
     cp = samples.cell_pair
@@ -95,13 +103,13 @@ def _row_edges(lat: Lattice, samples: Samples, table: PairTable, j: int, items: 
     below = cp[:, j - 1] if j > 0 else none
     above = cp[:, j] if j < nb - 1 else none
     h_pres = (below | above).T
-    vals = [np.concatenate([dv[j], 2.0 * dv[j][items.pair[table.n_pairs:]]])]
+    vals = [np.concatenate([dv[j], 2.0 * dv[j][items.pair[table.n_pairs :]]])]
     v0 = [vals[0][:, :-1].T]
     v1 = [vals[0][:, 1:].T]
     pres = [h_pres]
     edges = [j * (na - 1) + np.arange(na - 1)]
     if j < nb - 1:
-        up = np.concatenate([dv[j + 1], 2.0 * dv[j + 1][items.pair[table.n_pairs:]]])
+        up = np.concatenate([dv[j + 1], 2.0 * dv[j + 1][items.pair[table.n_pairs :]]])
         pad = np.zeros((table.n_pairs, na + 1), dtype=bool)
         pad[:, 1:-1] = cp[:, j]
         v_pres = (pad[:, :-1] | pad[:, 1:]).T
@@ -113,8 +121,6 @@ def _row_edges(lat: Lattice, samples: Samples, table: PairTable, j: int, items: 
     V1 = np.concatenate(v1)
     P = np.concatenate(pres)[:, items.pair]
     return np.concatenate(edges), V0, V1, P
-
-
 
 
 # ----------------------------------------------------------------------------------------------
@@ -166,7 +172,7 @@ def segment_links(lines: list, eps: float) -> tuple[np.ndarray, np.ndarray]:
     n_nodes = n_lines + int(vid.max()) + 1
     label = _labels(n_nodes, links_a, links_b)[:n_lines]
     # coincident segments (same rounded end points) are already linked: keep one per bin
-    vp, vq = vid[:p.shape[0]], vid[p.shape[0]:]
+    vp, vq = vid[: p.shape[0]], vid[p.shape[0] :]
     sk = np.minimum(vp, vq)[segs] * (int(vid.max()) + 1) + np.maximum(vp, vq)[segs]
     _, first = np.unique(np.stack([bins, sk], axis=1), axis=0, return_index=True)
     segs, bins = segs[first], bins[first]
@@ -186,7 +192,7 @@ def segment_links(lines: list, eps: float) -> tuple[np.ndarray, np.ndarray]:
             sel = start[chunk[count[chunk] == cval]]
             ia, ib = np.triu_indices(int(cval), k=1)
             for t0 in range(0, ia.size, 1_000_000):
-                ja, jb = ia[t0:t0 + 1_000_000], ib[t0:t0 + 1_000_000]
+                ja, jb = ia[t0 : t0 + 1_000_000], ib[t0 : t0 + 1_000_000]
                 u = segs[(sel[:, None] + ja[None, :]).ravel()]
                 v = segs[(sel[:, None] + jb[None, :]).ravel()]
                 keep = label[owner[u]] != label[owner[v]]
@@ -238,6 +244,7 @@ def _point_segment_distance(x, p, q):
 
 def _segments_close(p1, q1, p2, q2, eps) -> np.ndarray:
     """Vectorised: segments p1q1 and p2q2 cross or come within eps."""
+
     def orient(a, b, c):
         return (b[:, 0] - a[:, 0]) * (c[:, 1] - a[:, 1]) - (b[:, 1] - a[:, 1]) * (c[:, 0] - a[:, 0])
 
@@ -246,8 +253,12 @@ def _segments_close(p1, q1, p2, q2, eps) -> np.ndarray:
     o3 = orient(p2, q2, p1)
     o4 = orient(p2, q2, q1)
     cross = (o1 * o2 < 0) & (o3 * o4 < 0)
-    dist = np.minimum.reduce([_point_segment_distance(p2, p1, q1), _point_segment_distance(q2, p1, q1),
-                              _point_segment_distance(p1, p2, q2), _point_segment_distance(q1, p2, q2)])
+    dist = np.minimum.reduce(
+        [
+            _point_segment_distance(p2, p1, q1),
+            _point_segment_distance(q2, p1, q1),
+            _point_segment_distance(p1, p2, q2),
+            _point_segment_distance(q1, p2, q2),
+        ]
+    )
     return cross | (dist <= eps)
-
-

@@ -59,8 +59,15 @@ def _residual(table: PairTable, codes: np.ndarray, a: np.ndarray, b: np.ndarray)
     return slot_residuals(*_flat(table), slots, factor, a, b)
 
 
-def refine(table: PairTable, samples: Samples, codes: np.ndarray, edges: np.ndarray, *,
-           snap: float, rel: float = 1e-12) -> np.ndarray:
+def refine(
+    table: PairTable,
+    samples: Samples,
+    codes: np.ndarray,
+    edges: np.ndarray,
+    *,
+    snap: float,
+    rel: float = 1e-12,
+) -> np.ndarray:
     """Zero of every crossing on its edge, to ``rel`` of the window diameter; points (K, 2) in (a, b).
 
     ITP root finding on the edge (:func:`specmap.special.compiled.contours.refine_edges`)
@@ -70,19 +77,23 @@ def refine(table: PairTable, samples: Samples, codes: np.ndarray, edges: np.ndar
     lat = samples.lattice
     if codes.size == 0:
         return np.zeros((0, 2))
-    a0, b0, a1, b1 = edge_endpoints(np.asarray(edges, np.int64), np.asarray(lat.av, float),
-                                    np.asarray(lat.bv, float))
+    a0, b0, a1, b1 = edge_endpoints(
+        np.asarray(edges, np.int64), np.asarray(lat.av, float), np.asarray(lat.bv, float)
+    )
     slots, factor = table.tie_contours(codes)
     h = max(float(np.max(np.hypot(a1 - a0, b1 - b0))), 1e-300)
     diam = float(np.hypot(lat.av[-1] - lat.av[0], lat.bv[-1] - lat.bv[0]))
     eps = 0.5 * rel * diam / h
     flat = _flat(table)
-    return in_chunks(lambda sl: refine_edges(*flat, slots[sl], factor[sl], a0[sl], b0[sl], a1[sl], b1[sl],
-                                             snap, eps), codes.size)
+    return in_chunks(
+        lambda sl: refine_edges(*flat, slots[sl], factor[sl], a0[sl], b0[sl], a1[sl], b1[sl], snap, eps),
+        codes.size,
+    )
 
 
-def segments(table: PairTable, samples: Samples, codes: np.ndarray, edges: np.ndarray,
-             *, snap: float) -> np.ndarray:
+def segments(
+    table: PairTable, samples: Samples, codes: np.ndarray, edges: np.ndarray, *, snap: float
+) -> np.ndarray:
     """Marching squares per tie: pairs (u, v) of crossing indices joined inside a cell.
 
     Compiled (:func:`specmap.special.compiled.curves.march_cells`); ``codes`` and
@@ -102,8 +113,12 @@ def segments(table: PairTable, samples: Samples, codes: np.ndarray, edges: np.nd
     parts = [slice(0, cut), slice(cut, codes.size)] if cut > 0 else [slice(0, codes.size)]
 
     def run(sl: slice) -> np.ndarray:
-        return march_cells(codes[sl], edges[sl], rel[sl], lat.n_a, lat.n_b, av, bv, *flat, slots[sl], factor[sl],
-                           snap) + sl.start
+        return (
+            march_cells(
+                codes[sl], edges[sl], rel[sl], lat.n_a, lat.n_b, av, bv, *flat, slots[sl], factor[sl], snap
+            )
+            + sl.start
+        )
 
     with ThreadPoolExecutor(len(parts)) as pool:
         return np.concatenate(list(pool.map(run, parts)))
@@ -123,7 +138,9 @@ def _boundary_points(table, codes, pin, pout, diam, snap, cell_diag):
     flat = _flat(table)
     # bisection to 1e-13 of the window diameter (chords are at most a cell diagonal long)
     n_iter = int(np.ceil(np.log2(max(cell_diag, 1e-300) / (1e-13 * diam)))) + 1
-    lo, hi = met_bisect(*flat, slots, np.ascontiguousarray(pin, float), np.ascontiguousarray(pout, float), n_iter)
+    lo, hi = met_bisect(
+        *flat, slots, np.ascontiguousarray(pin, float), np.ascontiguousarray(pout, float), n_iter
+    )
     # which contour is lost, and through which end: the boundary is the pencil through that end
     _, met_out = slot_params(*flat, slots, np.ascontiguousarray(hi[:, 0]), np.ascontiguousarray(hi[:, 1]))
     lost = np.argmax(~met_out, axis=1)
@@ -153,13 +170,30 @@ def _boundary_points(table, codes, pin, pout, diam, snap, cell_diag):
     q = pts[rows, i + 1]
     # zero of the residual between the two samples (ITP, same side convention as the crossings)
     eps = 0.5e-12 * diam / max(float(t[1] - t[0]), 1e-300)
-    z = refine_edges(*flat, slots, factor, np.ascontiguousarray(p[:, 0]), np.ascontiguousarray(p[:, 1]),
-                     np.ascontiguousarray(q[:, 0]), np.ascontiguousarray(q[:, 1]), snap, eps)
+    z = refine_edges(
+        *flat,
+        slots,
+        factor,
+        np.ascontiguousarray(p[:, 0]),
+        np.ascontiguousarray(p[:, 1]),
+        np.ascontiguousarray(q[:, 0]),
+        np.ascontiguousarray(q[:, 1]),
+        snap,
+        eps,
+    )
     return np.where(has[:, None], z, lo)
 
 
-def trace(table: PairTable, samples: Samples, codes: np.ndarray, edges: np.ndarray, points: np.ndarray,
-          *, snap: float, tol: float) -> list[TracedTie]:
+def trace(
+    table: PairTable,
+    samples: Samples,
+    codes: np.ndarray,
+    edges: np.ndarray,
+    points: np.ndarray,
+    *,
+    snap: float,
+    tol: float,
+) -> list[TracedTie]:
     """Curves and points of every tie from its refined crossings.
 
     Parameters
@@ -222,8 +256,9 @@ def trace(table: PairTable, samples: Samples, codes: np.ndarray, edges: np.ndarr
     e_run, e_side, e_in, e_out = e_run[has], e_side[has], e_in[has], e_out[has]
     bp = np.zeros((0, 2))
     if e_in.size:
-        bp = _boundary_points(table, codes[seq[rs]][e_run], points[e_in], points[e_out],
-                              diam, snap, cell_diag)
+        bp = _boundary_points(
+            table, codes[seq[rs]][e_run], points[e_in], points[e_out], diam, snap, cell_diag
+        )
     # every line: [boundary point before] + run vertices + [boundary point after]
     nvert = re_ - rs + 1 + (before >= 0) + (after >= 0)
     lstart = np.cumsum(nvert) - nvert
@@ -233,8 +268,9 @@ def trace(table: PairTable, samples: Samples, codes: np.ndarray, edges: np.ndarr
     coords[lstart[lid] + (before[lid] >= 0) + k] = points[seq[rs[lid] + k]]
     coords[np.where(e_side == 0, lstart[e_run], lstart[e_run] + nvert[e_run] - 1)] = bp
     if n_runs:
-        ext = np.maximum(np.maximum.reduceat(coords, lstart, axis=0) - np.minimum.reduceat(coords, lstart, axis=0),
-                         0.0).max(axis=1)
+        ext = np.maximum(
+            np.maximum.reduceat(coords, lstart, axis=0) - np.minimum.reduceat(coords, lstart, axis=0), 0.0
+        ).max(axis=1)
     else:
         ext = np.zeros(0)
     is_pt = (nvert <= 1) | (ext <= 1e-12 * diam)

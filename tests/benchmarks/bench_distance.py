@@ -82,15 +82,32 @@ def main(n: int | str = 1500, jobs: int = 1, repeat: int = 1) -> str:
         t_grid = time.perf_counter() - t
         w = default_window(sf.value_bounds(), sg.value_bounds())
         out = OUT
-        desc = (f"ellipsoid (1.6, 1, 0.8), {len(sf.values)} vertices; f = (x + 0.35 z^2, y + 0.25 x z), "
-                "g = (x + 0.3 sin 1.5z + 0.1 y, y - 0.2 z^2 + 0.1 x)")
+        desc = (
+            f"ellipsoid (1.6, 1, 0.8), {len(sf.values)} vertices; f = (x + 0.35 z^2, y + 0.25 x z), "
+            "g = (x + 0.3 sin 1.5z + 0.1 y, y - 0.2 z^2 + 0.1 x)"
+        )
     atlas, t_atlas, atlas_all = _timed(lambda: special_set(gf, gg, w), repeat)
     rng = value_range(sf, sg)
-    red, red_s, red_all = _timed(lambda: matching_distance(sf, sg, method="reduced", atlas=atlas, grids=(gf, gg),
-                                                           window=w, jobs=jobs, certify="max", position_lines=0),
-                                 repeat)
-    den, den_s, den_all = _timed(lambda: matching_distance(sf, sg, method="dense", window=w, jobs=jobs,
-                                                           dense_resolution=41, position_lines=0), repeat)
+    red, red_s, red_all = _timed(
+        lambda: matching_distance(
+            sf,
+            sg,
+            method="reduced",
+            atlas=atlas,
+            grids=(gf, gg),
+            window=w,
+            jobs=jobs,
+            certify="max",
+            position_lines=0,
+        ),
+        repeat,
+    )
+    den, den_s, den_all = _timed(
+        lambda: matching_distance(
+            sf, sg, method="dense", window=w, jobs=jobs, dense_resolution=41, position_lines=0
+        ),
+        repeat,
+    )
     t = time.perf_counter()
     bs = np.linspace(*w.b, 401)
     scan = h_values(sf, sg, 0.5, bs).max(axis=0)
@@ -98,8 +115,12 @@ def main(n: int | str = 1500, jobs: int = 1, repeat: int = 1) -> str:
     i_scan = int(np.argmax(scan))
     diff = red.value - den.value
     pr = red.reduced["pruned"]
-    ss = red.reduced["slope_search"] or {"lines": 0, "certified": None, "bound": [float("nan")],
-                                         "best": [float("nan")]}
+    ss = red.reduced["slope_search"] or {
+        "lines": 0,
+        "certified": None,
+        "bound": [float("nan")],
+        "best": [float("nan")],
+    }
     lines = [
         "# Matching distance: reduced search vs dense sweep",
         "",
@@ -139,7 +160,7 @@ def main(n: int | str = 1500, jobs: int = 1, repeat: int = 1) -> str:
     text = "\n".join(lines)
     old = out.read_text() if out.exists() else ""
     if MARK in old:  # keep the hand-written analysis of the figures
-        text += "\n" + old[old.index(MARK):]
+        text += "\n" + old[old.index(MARK) :]
     out.write_text(text)
     return text
 
@@ -154,6 +175,6 @@ if __name__ == "__main__":
     if "--repeat" in argv:
         i = argv.index("--repeat")
         repeat = int(argv[i + 1])
-        del argv[i:i + 2]
+        del argv[i : i + 2]
     args = [x if x.endswith(".toml") else int(x) for x in argv]
     print(main(*args, repeat=repeat))

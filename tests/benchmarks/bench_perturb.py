@@ -47,12 +47,26 @@ def mesh_workload(resolution: int, vertices: int):
 
 def grid_workload(resolution: int):
     t = np.linspace(0.0, 1.0, 30)
+
     def arc(cx, cy, r):
         return np.stack([cx + r * np.sin(0.5 * np.pi * t), cy + r * np.cos(0.5 * np.pi * t)], axis=1)
-    gf = Grid((Contour("f:v0", "vertical", [[0.0, -3.0]]), Contour("f:v1", "vertical", [[1.0, -3.0]]),
-               Contour("f:h0", "horizontal", [[-3.0, 0.5]]), Contour("f:p0", "proper", arc(-1.0, -1.0, 1.5))))
-    gg = Grid((Contour("g:v0", "vertical", [[2.0, -3.0]]), Contour("g:v1", "vertical", [[3.0, -3.0]]),
-               Contour("g:h0", "horizontal", [[-3.0, 1.5]]), Contour("g:p0", "proper", arc(0.0, -0.5, 1.2))))
+
+    gf = Grid(
+        (
+            Contour("f:v0", "vertical", [[0.0, -3.0]]),
+            Contour("f:v1", "vertical", [[1.0, -3.0]]),
+            Contour("f:h0", "horizontal", [[-3.0, 0.5]]),
+            Contour("f:p0", "proper", arc(-1.0, -1.0, 1.5)),
+        )
+    )
+    gg = Grid(
+        (
+            Contour("g:v0", "vertical", [[2.0, -3.0]]),
+            Contour("g:v1", "vertical", [[3.0, -3.0]]),
+            Contour("g:h0", "horizontal", [[-3.0, 1.5]]),
+            Contour("g:p0", "proper", arc(0.0, -0.5, 1.2)),
+        )
+    )
     window = Window((0.1, 0.9), (-2.0, 2.0))
     settings = PerturbSettings(model="grid", size=1e-3, runs=0, seed=3, resolution=resolution)
     return (gf, gg), window, None, settings
@@ -90,7 +104,8 @@ def main(argv: list[str] | None = None) -> int:
         "# Perturbation run sets: 1 vs 2 joblib jobs",
         "",
         f"Command: `python tests/benchmarks/bench_perturb.py --workload {args.workload} --runs {args.runs} "
-        f"--resolution {args.resolution}" + (f" --vertices {args.vertices}`" if args.workload == "mesh" else "`"),
+        f"--resolution {args.resolution}"
+        + (f" --vertices {args.vertices}`" if args.workload == "mesh" else "`"),
         f"Machine: {platform.processor() or platform.machine()}, {os.cpu_count()} CPUs, Python "
         f"{sys.version.split()[0]}. Base special set computed once ({t_base:.2f} s, "
         f"{base.counts}). Records identical for 1 and 2 jobs: {same}.",
@@ -101,7 +116,9 @@ def main(argv: list[str] | None = None) -> int:
         "|---:|---:|---:|---:|---:|",
     ]
     for jobs, wall in rows:
-        lines.append(f"| {jobs} | {args.runs} | {wall:.2f} | {60 * args.runs / wall:.1f} | {t1 / wall:.2f}x |")
+        lines.append(
+            f"| {jobs} | {args.runs} | {wall:.2f} | {60 * args.runs / wall:.1f} | {t1 / wall:.2f}x |"
+        )
     text = "\n".join(lines) + "\n"
     args.out.write_text(text)
     print(text)

@@ -95,16 +95,22 @@ def sampled_distance(Tf: np.ndarray, Ff: np.ndarray, Tg: np.ndarray, Fg: np.ndar
 
 
 def noisy_section() -> list[str]:
-    rows = ["## Noisy scans (tests/scangen.py, 4002 vertices each; f: radii (2, 1.2, 1), g: (2, 1.3, 0.9))",
-            "",
-            "Contours as total (proper + half-lines). The smooth pair has "
-            "f {sf}, g {sg} contours.", "",
-            "| noise sd | shape | ‖noise‖∞ | noisy | treatment | δ | sup change (f1, f2) | contours after | time (s) | note |",
-            "|---|---|---|---|---|---|---|---|---|---|"]
-    dist = ["", "Sampled matching distance (max over 81 lines of the bottleneck in degrees 0, 1; "
-            "a lower estimate of D, the same lines for all pairs):", "",
-            "| noise sd | D smooth | D noisy | treatment | D' simplified | interval D' ± (s_f + s_g) | holds D smooth |",
-            "|---|---|---|---|---|---|---|"]
+    rows = [
+        "## Noisy scans (tests/scangen.py, 4002 vertices each; f: radii (2, 1.2, 1), g: (2, 1.3, 0.9))",
+        "",
+        "Contours as total (proper + half-lines). The smooth pair has f {sf}, g {sg} contours.",
+        "",
+        "| noise sd | shape | ‖noise‖∞ | noisy | treatment | δ | sup change (f1, f2) | contours after | time (s) | note |",
+        "|---|---|---|---|---|---|---|---|---|---|",
+    ]
+    dist = [
+        "",
+        "Sampled matching distance (max over 81 lines of the bottleneck in degrees 0, 1; "
+        "a lower estimate of D, the same lines for all pairs):",
+        "",
+        "| noise sd | D smooth | D noisy | treatment | D' simplified | interval D' ± (s_f + s_g) | holds D smooth |",
+        "|---|---|---|---|---|---|---|",
+    ]
     smooth_counts = {}
     for amp in AMPLITUDES:
         fs = noisy_scan((2.0, 1.2, 1.0), LEVEL, amp, seed=1)
@@ -116,8 +122,10 @@ def noisy_section() -> list[str]:
             res[label] = treatments(s.vertices, s.triangles, s.values, s.noise_sup, 0.0)
             for name, vals, d, sup, sec, note in res[label]:
                 after = fmt(contours(s.vertices, s.triangles, vals))
-                rows.append(f"| {amp:g} | {label} | {s.noise_sup:.4f} | {noisy} | {name} | {d:.4f} | "
-                            f"{sup[0]:.4f}, {sup[1]:.4f} | {after} | {sec:.2f} | {note} |")
+                rows.append(
+                    f"| {amp:g} | {label} | {s.noise_sup:.4f} | {noisy} | {name} | {d:.4f} | "
+                    f"{sup[0]:.4f}, {sup[1]:.4f} | {after} | {sec:.2f} | {note} |"
+                )
         d0 = sampled_distance(fs.triangles, fs.smooth_values, gs.triangles, gs.smooth_values)
         dn = sampled_distance(fs.triangles, fs.values, gs.triangles, gs.values)
         for (name, vf, _, supf, _, note), (_, vg, _, supg, _, _) in zip(res["f"], res["g"], strict=True):
@@ -125,8 +133,10 @@ def noisy_section() -> list[str]:
             d1 = sampled_distance(fs.triangles, vf, gs.triangles, vg)
             w = max(supf) + max(supg)
             holds = "yes" if d1 - w <= d0 <= d1 + w else "no"
-            dist.append(f"| {amp:g} | {d0:.4f} | {dn:.4f} | {name} | {d1:.4f} | "
-                        f"[{d1 - w:.4f}, {d1 + w:.4f}] | {holds} |")
+            dist.append(
+                f"| {amp:g} | {d0:.4f} | {dn:.4f} | {name} | {d1:.4f} | "
+                f"[{d1 - w:.4f}, {d1 + w:.4f}] | {holds} |"
+            )
     rows[2] = rows[2].format(sf=smooth_counts["f"], sg=smooth_counts["g"])
     return rows + dist
 
@@ -137,25 +147,34 @@ def real_section() -> list[str]:
         return ["## Real scans", "", "Not fetched (run `python3 studies/data/fetch_scans.py --large`)."]
     from specmap.shapes.meshes import read_mesh
 
-    rows = ["## Real scans (studies/data/fetch_scans.py; map (x, y); persistence at δ = 5 % of the "
-            "larger value range, tube+persistence at τ = δ / 2 each)", "",
-            "| scan | vertices | contours | treatment | δ | sup change (f1, f2) | contours after | time (s) | note |",
-            "|---|---|---|---|---|---|---|---|---|"]
+    rows = [
+        "## Real scans (studies/data/fetch_scans.py; map (x, y); persistence at δ = 5 % of the "
+        "larger value range, tube+persistence at τ = δ / 2 each)",
+        "",
+        "| scan | vertices | contours | treatment | δ | sup change (f1, f2) | contours after | time (s) | note |",
+        "|---|---|---|---|---|---|---|---|---|",
+    ]
     for name in names:
         V, T, _ = read_mesh(SCANS / name)
         F = V[:, :2].copy()
         before = fmt(contours(V, T, F))
         delta0 = 0.05 * float(max(np.ptp(F[:, 0]), np.ptp(F[:, 1])))
         for tname, vals, d, sup, sec, note in treatments(V, T, F, None, delta0):
-            rows.append(f"| {name} | {len(V)} | {before} | {tname} | {d:.4f} | {sup[0]:.4f}, {sup[1]:.4f} | "
-                        f"{fmt(contours(V, T, vals))} | {sec:.2f} | {note} |")
+            rows.append(
+                f"| {name} | {len(V)} | {before} | {tname} | {d:.4f} | {sup[0]:.4f}, {sup[1]:.4f} | "
+                f"{fmt(contours(V, T, vals))} | {sec:.2f} | {note} |"
+            )
     return rows
 
 
 def main() -> None:
     t0 = time.perf_counter()
-    parts = ["# Persistence-sensitive simplification: contours, δ, sup change, time (one run)", "",
-             f"Budget for `auto`: {BUDGET} contours per grid. 2 cores.", ""]
+    parts = [
+        "# Persistence-sensitive simplification: contours, δ, sup change, time (one run)",
+        "",
+        f"Budget for `auto`: {BUDGET} contours per grid. 2 cores.",
+        "",
+    ]
     parts += noisy_section() + [""] + real_section()
     parts += ["", f"Total run time {time.perf_counter() - t0:.0f} s."]
     text = "\n".join(parts) + "\n"

@@ -26,10 +26,13 @@ def main(res: int = 21, n: int = 80) -> None:
     t = time.perf_counter()
     at = special_set(f, g, w, resolution=res)
     st = at.stats
-    print(f"N={n} res {res}: {time.perf_counter() - t:.1f} s, crossings {st['crossings']}, tie curves {st['tie_curves']}, "
-          f"ties with curves {st['ties_with_curves']}, components {len(at.components)}, "
-          f"peak RSS {resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 2**20:.1f} GB, "
-          f"detect {st['detect_s']:.1f} trace {st['trace_s']:.1f} components {st['components_s']:.1f}", flush=True)
+    print(
+        f"N={n} res {res}: {time.perf_counter() - t:.1f} s, crossings {st['crossings']}, tie curves {st['tie_curves']}, "
+        f"ties with curves {st['ties_with_curves']}, components {len(at.components)}, "
+        f"peak RSS {resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 2**20:.1f} GB, "
+        f"detect {st['detect_s']:.1f} trace {st['trace_s']:.1f} components {st['components_s']:.1f}",
+        flush=True,
+    )
 
 
 if __name__ == "__main__":

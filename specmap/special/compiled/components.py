@@ -65,8 +65,17 @@ def _perimeter(x, y, a0, a1, b0, b1, eps):
 
 
 @numba.njit(cache=True, nogil=True, error_model="numpy")
-def lattice_labels(p: np.ndarray, q: np.ndarray, owner: np.ndarray, n_lines: int, av: np.ndarray, bv: np.ndarray, eps: float, vkey: np.ndarray,
-                   vorder: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+def lattice_labels(
+    p: np.ndarray,
+    q: np.ndarray,
+    owner: np.ndarray,
+    n_lines: int,
+    av: np.ndarray,
+    bv: np.ndarray,
+    eps: float,
+    vkey: np.ndarray,
+    vorder: np.ndarray,
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Components of lines linked by shared vertices and by crossing chords of lattice cells.
 
     ``p``, ``q`` (S, 2): segments, ``owner`` their line; ``vkey`` integer keys
@@ -174,7 +183,7 @@ def _chord_unions(parent, owner, cell, chord, t0, t1, n_cells):
             ev_t[k + i] = t1[s]
             ev_ch[k + i] = i
             ev_open[k + i] = False
-        order = np.argsort(ev_t[:2 * k], kind="mergesort")
+        order = np.argsort(ev_t[: 2 * k], kind="mergesort")
         n_g = 0
         top = 0
         for e in range(2 * k):
@@ -219,8 +228,12 @@ def _test_pair(parent, p, q, owner, s, o, eps):
     sx1 = max(p[s, 0], q[s, 0]) + 2 * eps
     sy0 = min(p[s, 1], q[s, 1]) - 2 * eps
     sy1 = max(p[s, 1], q[s, 1]) + 2 * eps
-    if (min(p[o, 0], q[o, 0]) > sx1 or max(p[o, 0], q[o, 0]) < sx0
-            or min(p[o, 1], q[o, 1]) > sy1 or max(p[o, 1], q[o, 1]) < sy0):
+    if (
+        min(p[o, 0], q[o, 0]) > sx1
+        or max(p[o, 0], q[o, 0]) < sx0
+        or min(p[o, 1], q[o, 1]) > sy1
+        or max(p[o, 1], q[o, 1]) < sy0
+    ):
         return False
     if _segments_close(p[s, 0], p[s, 1], q[s, 0], q[s, 1], p[o, 0], p[o, 1], q[o, 0], q[o, 1], eps):
         _union(parent, owner[s], owner[o])
@@ -312,7 +325,7 @@ def _extra_unions(parent, p, q, owner, chord, cnt, by_cell, av, bv, eps, n_lines
                 g_start[g] = t
                 g += 1
         g_start[n_g] = segs.size
-        _cell_tests(parent, p, q, owner, segs, keys, g_start, x_seg[xcnt[c]:xcnt[c + 1]], eps)
+        _cell_tests(parent, p, q, owner, segs, keys, g_start, x_seg[xcnt[c] : xcnt[c + 1]], eps)
 
 
 @numba.njit(cache=True, nogil=True, error_model="numpy")
@@ -388,8 +401,12 @@ def _point_segment_distance(x, y, px, py, qx, qy):
 @numba.njit(cache=True, nogil=True, error_model="numpy")
 def _segments_close(p1x, p1y, q1x, q1y, p2x, p2y, q2x, q2y, eps):
     """Segments p1q1 and p2q2 cross or come within ``eps`` (boxes first)."""
-    if (min(p1x, q1x) > max(p2x, q2x) + 2 * eps or min(p2x, q2x) > max(p1x, q1x) + 2 * eps
-            or min(p1y, q1y) > max(p2y, q2y) + 2 * eps or min(p2y, q2y) > max(p1y, q1y) + 2 * eps):
+    if (
+        min(p1x, q1x) > max(p2x, q2x) + 2 * eps
+        or min(p2x, q2x) > max(p1x, q1x) + 2 * eps
+        or min(p1y, q1y) > max(p2y, q2y) + 2 * eps
+        or min(p2y, q2y) > max(p1y, q1y) + 2 * eps
+    ):
         return False
     o1 = (q1x - p1x) * (p2y - p1y) - (q1y - p1y) * (p2x - p1x)
     o2 = (q1x - p1x) * (q2y - p1y) - (q1y - p1y) * (q2x - p1x)
@@ -397,8 +414,10 @@ def _segments_close(p1x, p1y, q1x, q1y, p2x, p2y, q2x, q2y, eps):
     o4 = (q2x - p2x) * (q1y - p2y) - (q2y - p2y) * (q1x - p2x)
     if o1 * o2 < 0 and o3 * o4 < 0:
         return True
-    d = min(_point_segment_distance(p2x, p2y, p1x, p1y, q1x, q1y),
-            _point_segment_distance(q2x, q2y, p1x, p1y, q1x, q1y),
-            _point_segment_distance(p1x, p1y, p2x, p2y, q2x, q2y),
-            _point_segment_distance(q1x, q1y, p2x, p2y, q2x, q2y))
+    d = min(
+        _point_segment_distance(p2x, p2y, p1x, p1y, q1x, q1y),
+        _point_segment_distance(q2x, q2y, p1x, p1y, q1x, q1y),
+        _point_segment_distance(p1x, p1y, p2x, p2y, q2x, q2y),
+        _point_segment_distance(q1x, q1y, p2x, p2y, q2x, q2y),
+    )
     return d <= eps

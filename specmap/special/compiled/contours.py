@@ -70,8 +70,11 @@ class FlatContours:
                 if q is None or np.allclose(p[end], q):
                     q = p[end] + np.array([1.0, -1.0])
                 ext[2 * i + side] = q
-        meta = np.stack([np.array([_KIND[c.kind] for c in contours], dtype=np.int64), start, count], axis=1) \
-            if C else np.zeros((0, 3), np.int64)
+        meta = (
+            np.stack([np.array([_KIND[c.kind] for c in contours], dtype=np.int64), start, count], axis=1)
+            if C
+            else np.zeros((0, 3), np.int64)
+        )
         geo = np.ascontiguousarray(np.vstack(pts + [ext])) if C else np.zeros((0, 2))
         assert geo.shape[0] == V + 2 * C
         return FlatContours(np.ascontiguousarray(meta), geo)
@@ -85,8 +88,9 @@ class FlatContours:
 THREADS = 2
 
 
-def in_chunks(fn: Callable[[slice], np.ndarray], n: int, threads: int = THREADS,
-              min_chunk: int = 20_000) -> np.ndarray:
+def in_chunks(
+    fn: Callable[[slice], np.ndarray], n: int, threads: int = THREADS, min_chunk: int = 20_000
+) -> np.ndarray:
     """``fn`` over ``threads`` contiguous slices of ``range(n)``, results concatenated (row order kept)."""
     k = max(1, min(threads, n // min_chunk))
     if k == 1:
@@ -173,21 +177,25 @@ def _residual(meta, geo, c0, c1, c2, c3, factor, a, b):
 
 
 @numba.njit(cache=True, nogil=True, error_model="numpy")
-def slot_residuals(meta: np.ndarray, geo: np.ndarray, slots: np.ndarray, factor: np.ndarray, a: np.ndarray, b: np.ndarray
-                   ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+def slot_residuals(
+    meta: np.ndarray, geo: np.ndarray, slots: np.ndarray, factor: np.ndarray, a: np.ndarray, b: np.ndarray
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Residual R, tied value and ``all met`` of ties ``slots`` (K, 4) at lines (a[k], b[k])."""
     K = slots.shape[0]
     r = np.empty(K)
     val = np.empty(K)
     met = np.empty(K, dtype=np.bool_)
     for k in range(K):
-        r[k], val[k], met[k] = _residual(meta, geo, slots[k, 0], slots[k, 1],
-                                         slots[k, 2], slots[k, 3], factor[k], a[k], b[k])
+        r[k], val[k], met[k] = _residual(
+            meta, geo, slots[k, 0], slots[k, 1], slots[k, 2], slots[k, 3], factor[k], a[k], b[k]
+        )
     return r, val, met
 
 
 @numba.njit(cache=True, nogil=True, error_model="numpy")
-def slot_params(meta: np.ndarray, geo: np.ndarray, slots: np.ndarray, a: np.ndarray, b: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+def slot_params(
+    meta: np.ndarray, geo: np.ndarray, slots: np.ndarray, a: np.ndarray, b: np.ndarray
+) -> tuple[np.ndarray, np.ndarray]:
     """s̄ and met of every slot contour: arrays (K, m) at lines (a[k], b[k])."""
     K, M = slots.shape
     s = np.empty((K, M))
@@ -199,8 +207,18 @@ def slot_params(meta: np.ndarray, geo: np.ndarray, slots: np.ndarray, a: np.ndar
 
 
 @numba.njit(cache=True, nogil=True, error_model="numpy")
-def refine_edges(meta: np.ndarray, geo: np.ndarray, slots: np.ndarray, factor: np.ndarray, a0: np.ndarray, b0: np.ndarray, a1: np.ndarray, b1: np.ndarray,
-                 snap: float, eps: float) -> np.ndarray:
+def refine_edges(
+    meta: np.ndarray,
+    geo: np.ndarray,
+    slots: np.ndarray,
+    factor: np.ndarray,
+    a0: np.ndarray,
+    b0: np.ndarray,
+    a1: np.ndarray,
+    b1: np.ndarray,
+    snap: float,
+    eps: float,
+) -> np.ndarray:
     """Zero of R + snap on each segment (a0, b0)-(a1, b1), to a bracket below ``2 eps`` in t ∈ [0, 1].
 
     The sign convention is the detection's: a side is ``R >= -snap``. Each
@@ -237,8 +255,7 @@ def refine_edges(meta: np.ndarray, geo: np.ndarray, slots: np.ndarray, factor: n
             x = xt if abs(xt - half) <= r else half - sig * r
             if not (x > lo and x < hi):
                 x = half
-            y = _residual(meta, geo, c0, c1, c2, c3, fk,
-                          a0[k] + x * da, b0[k] + x * db)[0] + snap
+            y = _residual(meta, geo, c0, c1, c2, c3, fk, a0[k] + x * da, b0[k] + x * db)[0] + snap
             if (y >= 0.0) == sa:
                 lo = x
                 ya = y
@@ -249,8 +266,7 @@ def refine_edges(meta: np.ndarray, geo: np.ndarray, slots: np.ndarray, factor: n
         # guard: finish by bisection if the ITP budget ran out (cannot happen in exact arithmetic)
         while hi - lo > 2.0 * eps:
             x = 0.5 * (lo + hi)
-            y = _residual(meta, geo, c0, c1, c2, c3, fk,
-                          a0[k] + x * da, b0[k] + x * db)[0] + snap
+            y = _residual(meta, geo, c0, c1, c2, c3, fk, a0[k] + x * da, b0[k] + x * db)[0] + snap
             if (y >= 0.0) == sa:
                 lo = x
             else:
@@ -262,7 +278,9 @@ def refine_edges(meta: np.ndarray, geo: np.ndarray, slots: np.ndarray, factor: n
 
 
 @numba.njit(cache=True, nogil=True, error_model="numpy")
-def met_bisect(meta: np.ndarray, geo: np.ndarray, slots: np.ndarray, lo: np.ndarray, hi: np.ndarray, n_iter: int) -> tuple[np.ndarray, np.ndarray]:
+def met_bisect(
+    meta: np.ndarray, geo: np.ndarray, slots: np.ndarray, lo: np.ndarray, hi: np.ndarray, n_iter: int
+) -> tuple[np.ndarray, np.ndarray]:
     """Bisection on the chord lo-hi (K, 2 each) for where a tie stops being met.
 
     ``lo`` has all four contours met, ``hi`` not; after ``n_iter`` halvings
@@ -290,8 +308,9 @@ def met_bisect(meta: np.ndarray, geo: np.ndarray, slots: np.ndarray, lo: np.ndar
 
 
 @numba.njit(cache=True, nogil=True, error_model="numpy")
-def edge_endpoints(edges: np.ndarray, av: np.ndarray, bv: np.ndarray
-                   ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+def edge_endpoints(
+    edges: np.ndarray, av: np.ndarray, bv: np.ndarray
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
     """(a0, b0, a1, b1) of lattice edges (:class:`specmap.special.lattice.Lattice` numbering)."""
     K = edges.size
     a0 = np.empty(K)

@@ -22,8 +22,20 @@ def _find_sorted(arr, lo, hi, x):
 
 
 @numba.njit(cache=True, nogil=True, error_model="numpy")
-def march_cells(codes: np.ndarray, edges: np.ndarray, rel: np.ndarray, n_a: int, n_b: int, av: np.ndarray, bv: np.ndarray, meta: np.ndarray,
-                geo: np.ndarray, slots: np.ndarray, factor: np.ndarray, snap: float) -> np.ndarray:
+def march_cells(
+    codes: np.ndarray,
+    edges: np.ndarray,
+    rel: np.ndarray,
+    n_a: int,
+    n_b: int,
+    av: np.ndarray,
+    bv: np.ndarray,
+    meta: np.ndarray,
+    geo: np.ndarray,
+    slots: np.ndarray,
+    factor: np.ndarray,
+    snap: float,
+) -> np.ndarray:
     """Marching squares per tie: segments (u, v) of crossing indices joined inside a cell.
 
     ``codes``, ``edges`` sorted by (code, edge); ``rel`` (K, 2) from
@@ -75,7 +87,9 @@ def march_cells(codes: np.ndarray, edges: np.ndarray, rel: np.ndarray, n_a: int,
                     bb0 = bv[cj]
                     bb1 = bv[cj + 1]
                     c0, c1, c2, c3 = slots[k, 0], slots[k, 1], slots[k, 2], slots[k, 3]
-                    rc = _residual(meta, geo, c0, c1, c2, c3, factor[k], 0.5 * (a0 + a1), 0.5 * (bb0 + bb1))[0]
+                    rc = _residual(meta, geo, c0, c1, c2, c3, factor[k], 0.5 * (a0 + a1), 0.5 * (bb0 + bb1))[
+                        0
+                    ]
                     r00 = _residual(meta, geo, c0, c1, c2, c3, factor[k], a0, bb0)[0]
                     if (rc >= -snap) == (r00 >= -snap):
                         # centre like corner 00 (and 11): cut off corners 10 and 01
@@ -170,7 +184,9 @@ def chain_walk(nbr: np.ndarray, deg: np.ndarray) -> tuple[np.ndarray, np.ndarray
                         break
                 if nxt < 0:
                     ln = pos - begin
-                    closed[n_paths] = ln > 2 and (nbr[cur, 0] == start or nbr[cur, 1] == start) and prev != start
+                    closed[n_paths] = (
+                        ln > 2 and (nbr[cur, 0] == start or nbr[cur, 1] == start) and prev != start
+                    )
                     break
                 seen[nxt] = True
                 flat[pos] = nxt

@@ -25,7 +25,7 @@ def _grow(buf, n):
     if n < buf.size:
         return buf
     out = np.empty(2 * buf.size + 16, dtype=buf.dtype)
-    out[:buf.size] = buf
+    out[: buf.size] = buf
     return out
 
 
@@ -42,10 +42,22 @@ def _tie_met(met, c0, c1, c2, c3, cj, ci):
 
 
 @numba.njit(cache=True, nogil=True, error_model="numpy")
-def sweep_rows(s: np.ndarray, met: np.ndarray, cell_pair: np.ndarray, first: np.ndarray, second: np.ndarray,
-               pair_class: np.ndarray, equal_ok: np.ndarray, half_ok: np.ndarray, doubled: np.ndarray,
-               mcol: np.ndarray, j_start: int, j_stop: int, snap: float, tol: float
-               ) -> tuple[np.ndarray, np.ndarray, int]:
+def sweep_rows(
+    s: np.ndarray,
+    met: np.ndarray,
+    cell_pair: np.ndarray,
+    first: np.ndarray,
+    second: np.ndarray,
+    pair_class: np.ndarray,
+    equal_ok: np.ndarray,
+    half_ok: np.ndarray,
+    doubled: np.ndarray,
+    mcol: np.ndarray,
+    j_start: int,
+    j_stop: int,
+    snap: float,
+    tol: float,
+) -> tuple[np.ndarray, np.ndarray, int]:
     """Order swaps of pair differences on the lattice edges of node rows ``j_start`` to ``j_stop - 1``.
 
     Row j holds the horizontal edges (j, i)-(j, i+1) and the vertical edges
