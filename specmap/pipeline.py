@@ -220,6 +220,7 @@ class StudyRun:
                 resolution=ms.resolution,
                 method=ms.method,
                 tol=ms.tol,
+                reading=ms.reading,
                 progress=self.progress("map"),
             )
         return cache[ms]

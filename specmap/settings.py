@@ -28,6 +28,7 @@ from specmap.io import to_plain
 ROUTES = ("auto", "smooth", "exact", "piecewise")
 PAIRS = ("all", "roles")
 MAP_METHODS = ("sweep", "naive")
+READINGS = ("points", "contours")
 DISTANCE_METHODS = ("both", "dense", "reduced")
 CERTIFY = ("max", "each")
 MODELS = ("function", "grid")
@@ -78,6 +79,9 @@ class MapSettings:
         Tie tolerance (value units); None for the scale-aware default of the atlas.
     max_contours : int
         Contour budget per grid when a mesh's values are simplified with ``"auto"``.
+    reading : {"points", "contours"}
+        Which ties count: pairs of meeting points ([EFQT23], default) or pairs of contours
+        (:mod:`specmap.special.reading`).
     """
 
     pairs: str = "all"
@@ -85,10 +89,12 @@ class MapSettings:
     method: str = "sweep"
     tol: float | None = None
     max_contours: int = 60
+    reading: str = "points"
 
     def __post_init__(self) -> None:
         _choice("pairs", self.pairs, PAIRS)
         _choice("method", self.method, MAP_METHODS)
+        _choice("reading", self.reading, READINGS)
 
 
 @dataclass(frozen=True)
@@ -167,7 +173,7 @@ class PerturbSettings:
     runs : int
         Number of runs wanted (not part of the fingerprint: a run set can be extended).
     seed : int
-    pairs, resolution, method, tol
+    pairs, resolution, method, tol, reading
         The :class:`MapSettings` of every run.
     distance : bool
         Recompute the matching distance in every run ("function" model only).
@@ -185,6 +191,7 @@ class PerturbSettings:
     resolution: int = _MAP.resolution
     method: str = _MAP.method
     tol: float | None = _MAP.tol
+    reading: str = _MAP.reading
     distance: bool = False
     distance_method: str = "reduced"
     degrees: tuple[int, ...] = _DISTANCE.degrees
@@ -228,6 +235,7 @@ class PerturbSettings:
             resolution=int(map.resolution),
             method=map.method,
             tol=map.tol,
+            reading=map.reading,
             distance=bool(distance),
             distance_method="dense" if dist.method == "dense" else "reduced",
             degrees=tuple(dist.degrees),
@@ -237,7 +245,13 @@ class PerturbSettings:
     @property
     def map_settings(self) -> MapSettings:
         """The atlas settings of every run."""
-        return MapSettings(pairs=self.pairs, resolution=self.resolution, method=self.method, tol=self.tol)
+        return MapSettings(
+            pairs=self.pairs,
+            resolution=self.resolution,
+            method=self.method,
+            tol=self.tol,
+            reading=self.reading,
+        )
 
     @property
     def distance_settings(self) -> DistanceSettings:

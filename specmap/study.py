@@ -29,7 +29,8 @@ Format (all tables but ``[study]``, ``[f]``, ``[g]`` optional)::
     b = [-3.0, 3.0]
 
     [map]      pairs = "all" | "roles", resolution = <nodes per side>, method = "sweep" | "naive",
-               max_contours = <budget per grid for a mesh's simplify = "auto">
+               max_contours = <budget per grid for a mesh's simplify = "auto">,
+               reading = "points" | "contours"
     [distance] method = "both" | "dense" | "reduced", degrees = [0, 1, 2], dense_resolution = <nodes>
     [perturb]  model = "function" | "grid", size = <sup norm>, runs = <count>, seed = <int>,
                sizes = [1e-3, 1e-2], distance = false
@@ -53,6 +54,7 @@ from specmap.settings import (
     MAP_METHODS,
     MODELS,
     PAIRS,
+    READINGS,
     ROUTES,
     DistanceSettings,
     GridSettings,
@@ -416,7 +418,7 @@ def parse_study(data: dict[str, Any], path: Path) -> Study:
         if not b[0] < b[1]:
             raise r.fail("window.b", f"{list(b)} is empty", "give b = [lo, hi] with lo < hi")
         window = Window(a, b)
-    mt = r.table(data, "map", False, {"pairs", "resolution", "method", "max_contours"})
+    mt = r.table(data, "map", False, {"pairs", "resolution", "method", "max_contours", "reading"})
     mspec = MapSpec(
         pairs=r.choice(mt, "map", "pairs", _MAP.pairs, PAIRS),
         resolution=r.integer(
@@ -429,6 +431,7 @@ def parse_study(data: dict[str, Any], path: Path) -> Study:
         ),
         method=r.choice(mt, "map", "method", _MAP.method, MAP_METHODS),
         max_contours=r.integer(mt, "map", "max_contours", _MAP.max_contours, lo=1),
+        reading=r.choice(mt, "map", "reading", _MAP.reading, READINGS),
     )
     dt = r.table(data, "distance", False, {"method", "degrees", "dense_resolution"})
     degrees = _DISTANCE.degrees

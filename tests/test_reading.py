@@ -89,3 +89,21 @@ def test_unknown_reading_is_refused():
     f, g = _grids()
     with pytest.raises(ValueError, match="reading"):
         special_set(f, g, WINDOW, resolution=11, reading="pairs")
+
+
+def test_study_reading_reaches_the_atlas(tmp_path):
+    # the [map] reading of a study file is what the pipeline's atlas uses
+    from specmap.pipeline import StudyRun
+    from specmap.study import load_study
+
+    f, g = _grids()
+    (tmp_path / "f.json").write_text(__import__("json").dumps(f.to_json()))
+    (tmp_path / "g.json").write_text(__import__("json").dumps(g.to_json()))
+    for reading in ("points", "contours"):
+        (tmp_path / "s.toml").write_text(
+            f'[study]\nname = "r"\n[f]\ngrid = "f.json"\n[g]\ngrid = "g.json"\n'
+            f'[window]\na = [0.1, 0.9]\nb = [-1.5, 1.5]\n[map]\nresolution = 61\nreading = "{reading}"\n'
+        )
+        run = StudyRun(load_study(tmp_path / "s.toml"), tmp_path / "out", show_progress=False)
+        assert run.study.map.reading == reading
+        assert run.atlas().stats["reading"] == reading

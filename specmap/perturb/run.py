@@ -124,7 +124,14 @@ def _special(grid_f: Grid, grid_g: Grid, window: Window, settings: PerturbSettin
 
     ms = settings.map_settings
     return special_set(
-        grid_f, grid_g, window, pairs=ms.pairs, resolution=ms.resolution, method=ms.method, tol=ms.tol
+        grid_f,
+        grid_g,
+        window,
+        pairs=ms.pairs,
+        resolution=ms.resolution,
+        method=ms.method,
+        tol=ms.tol,
+        reading=ms.reading,
     )
 
 
