@@ -11,8 +11,9 @@ import math
 import os
 import tempfile
 from collections.abc import Iterable, Iterator
+from contextlib import contextmanager
 from pathlib import Path
-from typing import Any
+from typing import IO, Any
 
 import numpy as np
 
@@ -59,14 +60,16 @@ def _current_umask() -> int:
     return mask
 
 
-def _atomic_write_bytes(path: Path, data: bytes) -> None:
+@contextmanager
+def _atomic_file(path: Path, mode: str = "wb") -> Iterator[IO[Any]]:
+    """An open temporary file beside ``path``; renamed onto it (fsynced) only if the block succeeds."""
     path.parent.mkdir(parents=True, exist_ok=True)
     fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=".tmp", dir=path.parent)
     try:
-        with os.fdopen(fd, "wb") as fh:
+        with os.fdopen(fd, mode, encoding=None if "b" in mode else "utf-8") as fh:
             # mkstemp creates 0600; give the result the mode an ordinary open() would (umask honoured)
             os.fchmod(fh.fileno(), 0o666 & ~_current_umask())
-            fh.write(data)
+            yield fh
             fh.flush()
             os.fsync(fh.fileno())
         os.replace(tmp, path)
@@ -76,6 +79,11 @@ def _atomic_write_bytes(path: Path, data: bytes) -> None:
         except FileNotFoundError:
             pass
         raise
+
+
+def _atomic_write_bytes(path: Path, data: bytes) -> None:
+    with _atomic_file(path) as fh:
+        fh.write(data)
 
 
 def write_json(path: str | Path, obj: Any) -> Path:
@@ -117,37 +125,22 @@ def write_json_streamed(path: str | Path, head: dict[str, Any], key: str, items:
     p = Path(path)
     if key not in head:
         raise ValueError(f"head has no key {key!r} to place the streamed list")
-    p.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{p.name}.", suffix=".tmp", dir=p.parent)
-    try:
-        with os.fdopen(fd, "w", encoding="utf-8") as fh:
-            os.fchmod(fh.fileno(), 0o666 & ~_current_umask())
-            fh.write("{")
-            for i, (k, v) in enumerate(head.items()):
-                fh.write(("," if i else "") + "\n  " + json.dumps(k) + ": ")
-                if k != key:
-                    fh.write(_indented(json.dumps(to_plain(v), indent=2), "  "))
-                    continue
-                fh.write("[")
-                n = 0
-                for item in items:
-                    fh.write(
-                        ("," if n else "")
-                        + "\n    "
-                        + _indented(json.dumps(to_plain(item), indent=2), "    ")
-                    )
-                    n += 1
-                fh.write("\n  ]" if n else "]")
-            fh.write("\n}\n" if head else "}\n")
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.replace(tmp, p)
-    except BaseException:
-        try:
-            os.unlink(tmp)
-        except FileNotFoundError:
-            pass
-        raise
+    with _atomic_file(p, "w") as fh:
+        fh.write("{")
+        for i, (k, v) in enumerate(head.items()):
+            fh.write(("," if i else "") + "\n  " + json.dumps(k) + ": ")
+            if k != key:
+                fh.write(_indented(json.dumps(to_plain(v), indent=2), "  "))
+                continue
+            fh.write("[")
+            n = 0
+            for item in items:
+                fh.write(
+                    ("," if n else "") + "\n    " + _indented(json.dumps(to_plain(item), indent=2), "    ")
+                )
+                n += 1
+            fh.write("\n  ]" if n else "]")
+        fh.write("\n}\n" if head else "}\n")
     return p
 
 
