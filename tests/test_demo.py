@@ -30,6 +30,8 @@ def run_cli(args: list[str], cwd: Path) -> subprocess.CompletedProcess:
 
 @pytest.mark.parametrize("study", STUDIES, ids=[s.stem for s in STUDIES])
 def test_grid_works_on_every_shipped_study(study: Path, tmp_path: Path) -> None:
+    if study.stem == "scans" and not (study.parent / "data" / "scans" / "cow.ply").is_file():
+        pytest.skip("real scans are fetched, not shipped: run python3 studies/data/fetch_scans.py")
     proc = run_cli(["grid", str(study), "--out", str(tmp_path / "out")], tmp_path)
     assert proc.returncode == 0, proc.stderr
     for name in ("grid_f.json", "grid_g.json", "study.json", "figures/grids.png"):
