@@ -78,6 +78,21 @@ def _ply_header(data: bytes) -> tuple[str, list[tuple[str, int, list[tuple]]], i
     return fmt, elements, nl + 1
 
 
+def _walk_row(data: bytes, pos: int, props: list[tuple], order: str) -> tuple[int, list[int]] | None:
+    """(Offset just after one row at ``pos``, the lengths of its lists), or None if a count lies past the end."""
+    lengths = []
+    for p in props:
+        if len(p) == 1:
+            pos += p[0]
+            continue
+        if pos + p[0] > len(data):
+            return None
+        n = struct.unpack_from(order + _STRUCT[p[0]], data, pos)[0]
+        lengths.append(n)
+        pos += p[0] + n * p[1]
+    return pos, lengths
+
+
 def _walk_element(
     data: bytes, offset: int, count: int, props: list[tuple], order: str
 ) -> tuple[int, int | None] | None:
@@ -86,16 +101,10 @@ def _walk_element(
         end = offset + count * sum(p[0] for p in props)
         return (end, None) if end <= len(data) else None
     # Rows with lists: try "every row like the first" in one strided check, else walk row by row.
-    first, pos = [], offset
-    for p in props:
-        if len(p) == 1:
-            pos += p[0]
-            continue
-        if pos + p[0] > len(data):
-            return None
-        n = struct.unpack_from(order + _STRUCT[p[0]], data, pos)[0]
-        first.append(n)
-        pos += p[0] + n * p[1]
+    walked = _walk_row(data, offset, props, order)
+    if walked is None:
+        return None
+    pos, first = walked
     row = pos - offset
     if count and offset + count * row <= len(data):
         rows = np.frombuffer(data, dtype=np.uint8, count=count * row, offset=offset).reshape(count, row)
@@ -113,15 +122,12 @@ def _walk_element(
             return offset + count * row, min(first)
     pos, shortest = offset, None
     for _ in range(count):
-        for p in props:
-            if len(p) == 1:
-                pos += p[0]
-                continue
-            if pos + p[0] > len(data):
-                return None
-            n = struct.unpack_from(order + _STRUCT[p[0]], data, pos)[0]
-            shortest = n if shortest is None else min(shortest, n)
-            pos += p[0] + n * p[1]
+        walked = _walk_row(data, pos, props, order)
+        if walked is None:
+            return None
+        pos, lengths = walked
+        if lengths:
+            shortest = min(lengths) if shortest is None else min(shortest, *lengths)
         if pos > len(data):
             return None
     return pos, shortest
