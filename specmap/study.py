@@ -245,6 +245,11 @@ class _Reader:
             raise self.fail(where, f"{v!r} is not positive", f"set {key} to a number > 0")
         return float(v)
 
+    def limited(self, t: dict, name: str, key: str, default: int) -> int:
+        """An integer in its range of :data:`LIMITS` (the same range a CLI flag is checked against)."""
+        lo, hi = LIMITS[f"{name}.{key}"]
+        return self.integer(t, name, key, default, lo=lo, hi=hi)
+
     def integer(
         self, t: dict, name: str, key: str, default: int, *, lo: int = 0, hi: int | None = None
     ) -> int:
@@ -421,14 +426,7 @@ def parse_study(data: dict[str, Any], path: Path) -> Study:
     mt = r.table(data, "map", False, {"pairs", "resolution", "method", "max_contours", "reading"})
     mspec = MapSpec(
         pairs=r.choice(mt, "map", "pairs", _MAP.pairs, PAIRS),
-        resolution=r.integer(
-            mt,
-            "map",
-            "resolution",
-            _MAP.resolution,
-            lo=LIMITS["map.resolution"][0],
-            hi=LIMITS["map.resolution"][1],
-        ),
+        resolution=r.limited(mt, "map", "resolution", _MAP.resolution),
         method=r.choice(mt, "map", "method", _MAP.method, MAP_METHODS),
         max_contours=r.integer(mt, "map", "max_contours", _MAP.max_contours, lo=1),
         reading=r.choice(mt, "map", "reading", _MAP.reading, READINGS),
@@ -475,14 +473,7 @@ def parse_study(data: dict[str, Any], path: Path) -> Study:
         pspec = PerturbSpec(
             model=model,
             size=r.number(pt, "perturb", "size", _PERTURB.size, positive=True),
-            runs=r.integer(
-                pt,
-                "perturb",
-                "runs",
-                _PERTURB.runs,
-                lo=LIMITS["perturb.runs"][0],
-                hi=LIMITS["perturb.runs"][1],
-            ),
+            runs=r.limited(pt, "perturb", "runs", _PERTURB.runs),
             seed=r.integer(pt, "perturb", "seed", seed),
             sizes=sizes,
             distance=dist,
