@@ -126,7 +126,7 @@ class DistanceSettings:
     batch : int or None
         Candidates per evaluation round (None: 1 for one job, else 2 per job).
     local_bound : bool
-        Use the stability bound between evaluated lines (same mesh only).
+        Use the stability bound between evaluated lines (each map on its own mesh: any meshes).
     polish_iters : int
         Golden-section steps of the polish.
     position_lines : int

@@ -204,8 +204,9 @@ def slope_one_sup_norm_max(values_f: np.ndarray, values_g: np.ndarray, lo: float
 class LocalBound:
     """h at a line from h at evaluated lines: h(p) <= h(q) + ||F*_f(p) - F*_f(q)|| + ||F*_g(p) - F*_g(q)||.
 
-    Stability [CDFFL13] applied to each map between the lines p and q (both
-    filtrations on one mesh), plus the triangle inequality for d_B. Exact
+    Stability [CDFFL13] applied to each map between the lines p and q (F*_f(p) and
+    F*_f(q) are two filtrations of f's mesh, F*_g(p), F*_g(q) of g's: f and g may
+    live on different meshes), plus the triangle inequality for d_B. Exact
     vertex-wise sup norms, no Lipschitz constant; only the ``near`` evaluated
     lines closest to p (normalised window distance) are used, which keeps it an
     upper bound.

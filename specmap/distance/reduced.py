@@ -52,7 +52,7 @@ class ReducedSettings:
     batch : int or None
         Candidates per evaluation round (default 1 for one job, else 2 per job).
     local_bound : bool
-        Use the stability bound between evaluated lines (same mesh only).
+        Use the stability bound between evaluated lines (each map on its own mesh: any meshes).
     polish_iters : int
         Golden-section steps of the polish.
     """
@@ -311,7 +311,8 @@ def reduced_search(
        - ``line_bound``: ``lo`` > ||F*_f - F*_g||_inf on its line + tol
          (:func:`~specmap.distance.bounds.line_upper_bound`, same mesh only): then h(c) < t(c);
        - ``local_bound``: ``lo`` > h(q) + ||F*_f(c) - F*_f(q)|| + ||F*_g(c) - F*_g(q)|| + tol
-         for an evaluated line q (stability between lines, same mesh only).
+         for an evaluated line q (stability of each map between the two lines, on its own mesh,
+         and the triangle inequality: valid when f and g live on different meshes).
        The others are evaluated in batches (``batch``, default 1 for one job,
        else 2 jobs) and ``best`` grows. **Early stop**: the first evaluated c
        with h(c) >= t(c) - tol gives D = max(best, h(c)) up to tol: any
@@ -384,7 +385,7 @@ def reduced_search(
     cand_seconds = time.perf_counter() - t1
     pieces = tuple(getattr(atlas, "pieces", ()) or ())
     components = tuple(getattr(atlas, "components", ()) or ())
-    local = _seeded_local_bound(ev, window, groups, own) if (same_mesh and s.local_bound) else None
+    local = _seeded_local_bound(ev, window, groups, own) if s.local_bound else None
     walk = _Descent(ev, cand, groups, best, tolerance, upper, step, same_mesh, local)
     walk.run()
     special = walk.special
