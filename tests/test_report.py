@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import json
 import math
+import re
 from pathlib import Path
 from typing import Any
 
@@ -706,3 +707,75 @@ def test_grid_file_studies_are_told_why_there_is_no_distance() -> None:
     assert "distance not available" in titles and "distance not run" not in titles
     surface = {"study": {"f": {"source": "surface"}, "g": {"source": "surface"}}, "stages": stages}
     assert "distance not run" in [n.title for n in ranked_notes(surface)]
+
+
+# -- page 1 quotes the patch reasons (issue 15 item 2) ----------------------------------------
+# Source: closed forms derived in the test (math.md section 5; specmap/special/reasons.py). A vertical
+# half-line at x0 is met by r(a, b) at s = (x0 - b)/a, so two vertical pairs differ by |dx|/a and
+# |dx'|/a: f at 0, 1 and g at 3, 4 tie |0 - 1| = |3 - 4| wherever the four are met, a patch whose
+# reason is equal spacing of critical values of f1 and g1; the defect is 0, so the identity breaks
+# at the atlas tolerance. A random (generic) pair has no patch: its special set has measure zero
+# [EFQT23, Ethier-Frosini-Quercioli-Tombari 2023].
+
+
+def _atlas_folder(root: Path, atlas: Any, perturb: dict[str, Any] | None = None) -> Path:
+    root.mkdir(parents=True)
+    (root / "study.json").write_text(json.dumps({**STUDY, "name": "reasons"}))
+    (root / "special.json").write_text(json.dumps(atlas.to_json()))
+    if perturb is not None:
+        (root / "perturb").mkdir()
+        (root / "perturb" / "summary.json").write_text(json.dumps(perturb))
+        (root / "perturb" / "runs.jsonl").write_text("")
+    return root
+
+
+def _verticals(prefix: str, xs: list[float]) -> Any:
+    from specmap.grids.model import Contour, Grid
+
+    return Grid(tuple(Contour(f"{prefix}:v{i}", "vertical", [x, -50.0]) for i, x in enumerate(xs)))
+
+
+def test_summary_quotes_the_patch_reasons_with_contours_and_breaking_size(tmp_path: Path) -> None:
+    from specmap.special import special_set
+    from specmap.strip import Window
+
+    atlas = special_set(
+        _verticals("f", [0.0, 1.0]),
+        _verticals("g", [3.0, 4.0]),
+        Window((0.1, 0.9), (-3.0, 3.0)),
+        resolution=31,
+    )
+    assert atlas.counts()["patch"] >= 1
+    pert = {
+        "runs": 10,
+        "size": 0.01,
+        "model": "function",
+        "runs_with_patch": 0,
+        "runs_with_patch_ci95": [0, 0.3],
+    }
+    first = _flat(pdf_pages(build_report(_atlas_folder(tmp_path / "r", atlas, pert)))[0])
+    why = first[first.index("Why the patch") :]
+    assert re.search(r"equal spacing \(\d+ identit(y|ies)\) of the critical values of f1 and g1", why)
+    assert "contours f:v0, f:v1, g:v0 and g:v1" in why  # the four half-lines of the closed form
+    assert "central symmetry" not in why  # midpoints 0.5 and 3.5 differ
+    # defect 0: the identity breaks at the tolerance (reasons.py: breaks_at = max(gap, tol))
+    assert f"larger than {atlas.tolerance:.3g} breaks" in why
+    assert f"as their reasons predict (size 0.01 > {atlas.tolerance:.3g})" in first
+
+
+def test_summary_central_symmetry_and_a_generic_pair_without_patches(tmp_path: Path) -> None:
+    from specmap.report.summary import special_lines
+    from specmap.special import special_set
+    from specmap.strip import Window
+    from tests.gridgen import random_pair
+
+    w = Window((0.1, 0.9), (-3.0, 3.0))
+    sym = special_set(_verticals("f", [-1.0, 1.0]), _verticals("g", [-2.0, 2.0]), w, resolution=31)
+    text = " ".join(special_lines({"special": sym.to_json()}))
+    # f's -1, 1 and g's -2, 2 share the midpoint 0: |(-1) - (-2)| = |1 - 2| on every line
+    assert "central symmetry (2 identities) of the critical values of f1 and g1" in text
+    gf, gg = random_pair(1, 8)
+    generic = special_set(gf, gg, Window((0.05, 0.95), (-1.0, 1.0)), resolution=41)
+    assert generic.counts()["patch"] == 0
+    first = _flat(pdf_pages(build_report(_atlas_folder(tmp_path / "g", generic)))[0])
+    assert "Why the patch" not in first and "no patch, so the special set has zero area" in first
