@@ -488,7 +488,12 @@ def test_figures_from_dicts() -> None:
     assert len(fig.axes) == 2  # heat map + colour bar
     summary, runs = _perturb()
     assert fig.axes[1].get_ylabel().startswith("h(a, b)")
-    assert len(perturb_figure(summary, runs).axes) == 3
+    fig = perturb_figure(summary, runs)
+    assert len(fig.axes) == 4  # area, movement, sweep: patch fraction and curve movement
+    assert fig.axes[1].get_title().startswith("Hausdorff")  # fixture runs predate curve_movement
+    assert [t.get_text() for t in fig.axes[2].get_xticklabels()] == ["0.0001", "0.001", "0.01"]  # swept sizes
+    moved = [dict(r, curve_movement=0.01 * i) for i, r in enumerate(runs)]
+    assert perturb_figure(summary, moved).axes[1].get_title().startswith("Movement of the tie curves")
     summary["sweep"] = None
     assert len(perturb_figure(summary, runs).axes) == 2
 
@@ -760,7 +765,8 @@ def test_summary_quotes_the_patch_reasons_with_contours_and_breaking_size(tmp_pa
     assert "central symmetry" not in why  # midpoints 0.5 and 3.5 differ
     # defect 0: the identity breaks at the tolerance (reasons.py: breaks_at = max(gap, tol))
     assert f"larger than {atlas.tolerance:.3g} breaks" in why
-    assert f"as their reasons predict (size 0.01 > {atlas.tolerance:.3g})" in first
+    whose = "its" if atlas.counts()["patch"] == 1 else "their"
+    assert f"as {whose} reasons predict (size 0.01 > {atlas.tolerance:.3g})" in first
 
 
 def test_summary_central_symmetry_and_a_generic_pair_without_patches(tmp_path: Path) -> None:

@@ -22,7 +22,7 @@ from matplotlib.figure import Figure, FigureBase
 from matplotlib.lines import Line2D
 from matplotlib.patches import Patch, PathPatch, Rectangle
 from matplotlib.path import Path as MplPath
-from matplotlib.ticker import MaxNLocator
+from matplotlib.ticker import MaxNLocator, NullLocator
 from shapely.geometry import shape as geo_shape
 from shapely.geometry.base import BaseGeometry
 
@@ -894,40 +894,71 @@ def perturb_figure(
     fig = _new_figure(fig, (8.0, 6.4 if sweep else 3.4))
     gs = fig.add_gridspec(2 if sweep else 1, 2)
     ax_area = fig.add_subplot(gs[0, 0])
-    ax_haus = fig.add_subplot(gs[0, 1])
+    ax_move = fig.add_subplot(gs[0, 1])
     area = nums([r.get("total_area") for r in runs])
-    haus = nums([r.get("hausdorff") for r in runs])
     base = summary.get("base") or {}
-    _hist(ax_area, area, "total patch area", num(base.get("total_area")))
+    _hist(ax_area, area, "total patch area, (a, b) units", num(base.get("total_area")))
     ax_area.set_title(f"Patch area over {plural(len(runs), 'run')}", fontsize=10)
-    _hist(ax_haus, haus, "Hausdorff distance to the unperturbed set\n(includes a patch that vanished)")
-    ax_haus.set_title(f"Hausdorff distance to the base set (size {fmt(summary.get('size'), 3)})", fontsize=10)
+    size_txt = fmt(summary.get("size"), 3)
+    if any("curve_movement" in r for r in runs):
+        move = nums([r.get("curve_movement") for r in runs])
+        _hist(
+            ax_move,
+            move,
+            "Hausdorff distance of the curves and points\nto the unperturbed ones, (a, b) units",
+        )
+        ax_move.set_title(f"Movement of the tie curves (size {size_txt})", fontsize=10)
+    else:  # run records written before curve movement was measured
+        _hist(ax_move, nums([r.get("hausdorff") for r in runs]), "Hausdorff distance to the unperturbed set")
+        ax_move.set_title(f"Hausdorff distance to the base set (size {size_txt})", fontsize=10)
     if sweep:
-        ax = fig.add_subplot(gs[1, :])
-        size = nums([s.get("size") for s in sweep])
-        n = nums([s.get("runs") for s in sweep])
-        k = nums([s.get("runs_with_patch") for s in sweep])
+        rows = sorted(sweep, key=lambda s: num(s.get("size")))
+        size = nums([s.get("size") for s in rows])
+        n = nums([s.get("runs") for s in rows])
+        k = nums([s.get("runs_with_patch") for s in rows])
         frac = np.where(n > 0, k / np.where(n > 0, n, 1), np.nan)
-        ci = np.array([fraction_interval(s.get("runs_with_patch_ci95"), s.get("runs")) for s in sweep])
+        ci = np.array([fraction_interval(s.get("runs_with_patch_ci95"), s.get("runs")) for s in rows])
         lo = np.clip(frac - ci[:, 0], 0, None)
         hi = np.clip(ci[:, 1] - frac, 0, None)
         ok = np.isfinite(lo) & np.isfinite(hi)
         yerr = np.vstack([np.where(ok, lo, 0), np.where(ok, hi, 0)])
-        order = np.argsort(size)
-        ax.errorbar(
-            size[order],
-            frac[order],
-            yerr=yerr[:, order],
-            fmt="o-",
-            color="#2e8b57",
-            capsize=4,
-            label="runs with a patch (95% interval)",
-        )
-        ax.set_xscale("log")
+        ax = fig.add_subplot(gs[1, 0])
+        ax.errorbar(size, frac, yerr=yerr, fmt="o-", color="#2e8b57", capsize=4, label="95% interval")
         ax.set_ylim(-0.05, 1.05)
-        ax.set_xlabel("perturbation size")
         ax.set_ylabel("fraction of runs with a patch")
-        ax.set_title("Size sweep", fontsize=10)
-        ax.grid(alpha=0.3, which="both")
+        ax.set_title("Size sweep: runs that kept a patch", fontsize=10)
         ax.legend(fontsize=LEGEND_SIZE, loc="best")
+        ax2 = fig.add_subplot(gs[1, 1])
+        move_mean = nums([_row_stat(s, "curve_movement", "mean") for s in rows])
+        if np.isfinite(move_mean).any():
+            ax2.plot(size, move_mean, "o-", color="#4a7fb5")
+            ax2.set_ylim(bottom=0)
+            ax2.set_title("Size sweep: mean movement of the tie curves", fontsize=10)
+            ax2.set_ylabel("(a, b) units")
+        else:
+            ax2.text(
+                0.5, 0.5, "curve movement not recorded", ha="center", va="center", transform=ax2.transAxes
+            )
+            ax2.set_yticks([])
+        for a_ in (ax, ax2):
+            a_.set_xscale("log")
+            a_.set_xlabel("perturbation size")
+            a_.grid(alpha=0.3)
+            _size_ticks(a_, size)
     return fig
+
+
+def _row_stat(row: dict[str, Any], key: str, stat: str) -> Any:
+    """``row[key][stat]`` or the flat ``row[f"{key}_{stat}"]`` of a sweep row."""
+    nested = row.get(key)
+    return nested.get(stat) if isinstance(nested, dict) else row.get(f"{key}_{stat}")
+
+
+def _size_ticks(ax: Any, size: np.ndarray) -> None:
+    """Ticks at the swept sizes only (a log axis over two sizes otherwise labels minor ticks)."""
+    ok = np.unique(size[np.isfinite(size) & (size > 0)])
+    if not len(ok):
+        return
+    ax.xaxis.set_minor_locator(NullLocator())
+    ax.set_xticks(ok, [fmt(x, 3) for x in ok])
+    ax.set_xlim(ok[0] / 1.6, ok[-1] * 1.6)

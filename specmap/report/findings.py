@@ -75,8 +75,8 @@ def _special_sentences(res: dict[str, Any]) -> list[str]:
     win = sp.get("window") or {}
     out = [
         f"In the window a in {fmt_interval(win.get('a'))}, b in {fmt_interval(win.get('b'))} the special "
-        f"set has {plural(n_curve, 'curve')}, {plural(n_patch, 'patch', 'patches')} and "
-        f"{plural(n_point, 'isolated point')}, found with method {sp.get('method', 'n/a')} at resolution "
+        f"set has {plural(n_patch, 'patch', 'patches')}, {plural(n_curve, 'curve component')} and "
+        f"{plural(n_point, 'point component')} (connected components), found with method {sp.get('method', 'n/a')} at resolution "
         f"{sp.get('resolution', 'n/a')} over {sp.get('pairs', 'n/a')} pairs{_tol(sp.get('tolerance'))}."
     ]
     tail = _perturb_tail(res)
@@ -220,6 +220,7 @@ def _perturb_sentences(res: dict[str, Any]) -> list[str]:
     runs = int(num(s.get("runs")) or 0)
     k = int(num(s.get("runs_with_patch"))) if s.get("runs_with_patch") is not None else None
     ta, hd = s.get("total_area") or {}, s.get("hausdorff") or {}
+    cm, pc = s.get("curve_movement") or {}, s.get("patch_change") or {}
     out = [
         f"{runs} perturbed runs ({s.get('model', 'n/a')} model, size {fmt(s.get('size'), 3)}): "
         + (
@@ -228,8 +229,14 @@ def _perturb_sentences(res: dict[str, Any]) -> list[str]:
             if k is not None
             else ""
         )
-        + f"total patch area mean {fmt(ta.get('mean'), 3)}, max {fmt(ta.get('max'), 3)}; Hausdorff distance "
-        f"of the special set mean {fmt(hd.get('mean'), 3)}, max {fmt(hd.get('max'), 3)}."
+        + f"total patch area mean {fmt(ta.get('mean'), 3)}, max {fmt(ta.get('max'), 3)}; "
+        + (
+            f"the tie curves moved by mean {fmt(cm.get('mean'), 3)}, max {fmt(cm.get('max'), 3)} and the patch "
+            f"region changed by mean {fmt_pct(pc.get('mean'))} of the window."
+            if cm or pc
+            else f"Hausdorff distance of the special set mean {fmt(hd.get('mean'), 3)}, max "
+            f"{fmt(hd.get('max'), 3)}."
+        )
     ]
     viol = s.get("stability_violations")
     if viol is not None and int(num(viol)) > 0:

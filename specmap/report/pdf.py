@@ -20,6 +20,7 @@ Text pages flow onto continuation pages, so nothing is clipped or overlaps.
 from __future__ import annotations
 
 import datetime as _dt
+import math
 from collections.abc import Callable
 from pathlib import Path
 from typing import Any
@@ -117,6 +118,41 @@ def _count_phrase(counts: dict[str, Any]) -> str:
     return ", ".join(f"{k} {_short_value(v)}" for k, v in counts.items())
 
 
+def _crit_change(before: Any, after: Any) -> str:
+    """``"f1 min 5 -> 1, max 4 -> 1; f2 ..."``: critical vertices by index, before -> after."""
+    per = []
+    for fn in sorted(set(before or {}) | set(after or {})):
+        b, a = (before or {}).get(fn) or {}, (after or {}).get(fn) or {}
+        idx = [k for k in ("min", "saddle", "max") if k in b or k in a]
+        per.append(f"{fn} " + ", ".join(f"{k} {b.get(k, 'n/a')} -> {a.get(k, 'n/a')}" for k in idx))
+    return "; ".join(per)
+
+
+def simplification_words(rec: dict[str, Any]) -> str:
+    """A simplification record (:func:`specmap.simplify.simplify_values`) in one sentence.
+
+    Examples
+    --------
+    >>> simplification_words({"setting": "auto", "delta": 0.05, "sup_change": [0.049, 0.03],
+    ...     "contours_before": 40, "contours_after": 12, "budget": 60, "met": True,
+    ...     "critical_before": {"f1": {"min": 5, "max": 4}}, "critical_after": {"f1": {"min": 1, "max": 1}}})
+    'simplified with delta 0.05 (chosen automatically for a budget of 60 contours, met): contours 40 -> 12; \
+measured change f1 0.049, f2 0.03; critical vertices f1 min 5 -> 1, max 4 -> 1'
+    """
+    how = ""
+    if rec.get("setting") == "auto":
+        met = {True: "met", False: "not met"}.get(rec.get("met"), "n/a")
+        how = f" (chosen automatically for a budget of {rec.get('budget', 'n/a')} contours, {met})"
+    sup = rec.get("sup_change") or []
+    change = ", ".join(f"f{i + 1} {fmt(x, 3)}" for i, x in enumerate(sup)) if isinstance(sup, list) else "n/a"
+    text = (
+        f"simplified with delta {fmt(rec.get('delta'), 3)}{how}: contours {rec.get('contours_before', 'n/a')} "
+        f"-> {rec.get('contours_after', 'n/a')}; measured change {change}"
+    )
+    crit = _crit_change(rec.get("critical_before"), rec.get("critical_after"))
+    return text + (f"; critical vertices {crit}" if crit else "")
+
+
 def summarise_meta(meta: Any) -> str:
     """A grid's ``meta`` in words: critical points by index, hygiene counts, notes in full.
 
@@ -143,6 +179,10 @@ def summarise_meta(meta: Any) -> str:
                         idx[label] = idx.get(label, 0) + 1
                     per.append(f"{fn} " + (", ".join(f"{k} {n}" for k, n in idx.items()) if idx else "none"))
             parts.append(f"{name}: " + "; ".join(per))
+        elif key == "simplification" and isinstance(v, dict):
+            parts.append(simplification_words(v))
+        elif key == "n_points" and isinstance(v, (int, float)):
+            parts.append(f"proper contours sampled at {int(v)} points")
         elif key == "mesh_hygiene" and isinstance(v, dict):
             comps = v.get("components")
             repairs = {k: n for k, n in v.items() if k != "components" and isinstance(n, (int, float)) and n}
@@ -503,27 +543,43 @@ def _perturb_page(pg: Pager, res: dict[str, Any]) -> None:
         f"({len(runs)} run records read from runs.jsonl)."
     )
     pg.para(
-        f"Unperturbed: total patch area {fmt(base.get('total_area'))}, counts "
-        f"{_short_dict(base.get('counts'))}."
+        f"Unperturbed: {_counts_words(base.get('counts'))}; total patch area {fmt(base.get('total_area'))}."
     )
     pg.para(
         f"Runs with a patch: {s.get('runs_with_patch', 'n/a')} of {n} "
-        f"(95% interval for the fraction {fmt_interval(ci)})."
+        f"(95% interval for the fraction {fmt_interval(ci)}); total patch area over the runs: mean "
+        f"{fmt((s.get('total_area') or {}).get('mean'), 3)}, max {fmt((s.get('total_area') or {}).get('max'), 3)}."
     )
-    ta, hd = s.get("total_area") or {}, s.get("hausdorff") or {}
-    pg.para(
-        f"Total patch area: mean {fmt(ta.get('mean'), 3)}, max {fmt(ta.get('max'), 3)}. Hausdorff "
-        f"distance to the unperturbed special set: mean {fmt(hd.get('mean'), 3)}, max {fmt(hd.get('max'), 3)}."
-    )
-    cm, pc = s.get("curve_movement") or {}, s.get("patch_change") or {}
+    cm, pc, hd = s.get("curve_movement") or {}, s.get("patch_change") or {}, s.get("hausdorff") or {}
     if cm or pc:
         pg.para(
-            f"Curves alone (patches left out) moved by mean {fmt(cm.get('mean'), 3)}, max "
-            f"{fmt(cm.get('max'), 3)} (Hausdorff, (a, b) units); patches changed by mean "
-            f"{fmt(pc.get('mean'), 3)}, max {fmt(pc.get('max'), 3)} of the window area."
+            f"Tie curves and points (patches left out) moved by mean {fmt(cm.get('mean'), 3)}, max "
+            f"{fmt(cm.get('max'), 3)} ((a, b) units, Hausdorff distance to the unperturbed ones). The patch "
+            f"region changed by mean {fmt_pct(pc.get('mean'))}, max {fmt_pct(pc.get('max'))} of the window "
+            "(area of the symmetric difference)"
+            + (": the unperturbed patch vanished." if _vanished(s, base, res.get("special")) else ".")
         )
-    if s.get("distance"):
-        pg.para(f"Matching distance under perturbation: {_short_dict(s.get('distance'))}.")
+        pg.para(
+            f"The Hausdorff distance of the whole special set (mean {fmt(hd.get('mean'), 3)}, max "
+            f"{fmt(hd.get('max'), 3)}) mixes both: a vanishing patch dominates it.",
+            8.5,
+            color="0.3",
+        )
+    else:
+        pg.para(
+            f"Hausdorff distance to the unperturbed special set: mean {fmt(hd.get('mean'), 3)}, max "
+            f"{fmt(hd.get('max'), 3)} (curve movement and patch change not recorded: rerun specmap perturb)."
+        )
+    dist = s.get("distance")
+    if isinstance(dist, dict) and dist:
+        ch, bd = dist.get("abs_change") or {}, dist.get("bound") or {}
+        pg.para(
+            f"Matching distance over {dist.get('runs', 'n/a')} runs: |change of D| mean {fmt(ch.get('mean'), 3)}, "
+            f"max {fmt(ch.get('max'), 3)}, against the stability bound (mean {fmt(bd.get('mean'), 3)}, max "
+            f"{fmt(bd.get('max'), 3)})."
+            if ch or bd
+            else f"Matching distance under perturbation: {_short_dict(dist)}."
+        )
     viol = s.get("stability_violations")
     if viol is not None and num(viol) > 0:
         pg.warn(f"{WARNING} {viol} runs violate the stability bound of the matching distance.")
@@ -539,17 +595,43 @@ def _perturb_page(pg: Pager, res: dict[str, Any]) -> None:
     if sweep:
         pg.heading("Size sweep")
         pg.mono(
-            f"{'size':>10}{'runs':>7}{'patch':>7}  {'95% interval':<20}{'area mean':>11}{'Hausdorff mean':>16}"
+            f"{'size':>8}{'runs':>6}{'patch':>7}  {'95% interval':<16}{'area mean':>10}{'curves moved':>14}"
+            f"{'patch change':>14}"
         )
         for r in sorted(sweep, key=lambda r: num(r.get("size"))):
             iv = fmt_interval(fraction_interval(r.get("runs_with_patch_ci95"), r.get("runs")))
+            pc_mean = _stat(r, "patch_change", "mean")
             pg.mono(
-                f"{fmt(r.get('size'), 3):>10}{str(r.get('runs')):>7}{str(r.get('runs_with_patch')):>7}  "
-                f"{iv:<20}{fmt(_stat(r, 'total_area', 'mean'), 3):>11}"
-                f"{fmt(_stat(r, 'hausdorff', 'mean'), 3):>16}"
+                f"{fmt(r.get('size'), 3):>8}{str(r.get('runs')):>6}{str(r.get('runs_with_patch')):>7}  "
+                f"{iv:<16}{fmt(_stat(r, 'total_area', 'mean'), 3):>10}"
+                f"{fmt(_stat(r, 'curve_movement', 'mean'), 3):>14}"
+                f"{(fmt_pct(pc_mean) if pc_mean is not None else 'n/a'):>14}"
             )
+        pg.para(
+            "Means over the runs of each size; curves moved in (a, b) units, patch change as a share of "
+            "the window.",
+            8.5,
+            color="0.3",
+        )
     pg.heading("Verdict")
     pg.para(str(s.get("verdict", "n/a")), weight="bold")
+
+
+def _counts_words(counts: Any) -> str:
+    """``{"curve": 1, "patch": 1, "point": 0}`` as ``"1 patch, 1 curve component and 0 point components"``."""
+    return component_counts({"counts": counts}) if isinstance(counts, dict) else "counts n/a"
+
+
+def _vanished(s: dict[str, Any], base: dict[str, Any], sp: dict[str, Any] | None) -> bool:
+    """Whether the mean patch change equals the base patch share while no run kept a patch."""
+    share = num((sp or {}).get("area_fraction"))
+    mean = num((s.get("patch_change") or {}).get("mean"))
+    return (
+        int(num(s.get("runs_with_patch")) or 0) == 0
+        and num(base.get("total_area")) > 0
+        and math.isfinite(share)
+        and abs(mean - share) <= 1e-6 * max(share, 1.0)
+    )
 
 
 def _findings_page(pg: Pager, res: dict[str, Any]) -> None:
@@ -641,8 +723,10 @@ METHODS = [
     (
         "Perturbation study",
         "The study is rerun on many perturbed inputs (model and size as recorded in "
-        "perturb/summary.json), each with its own seed. Each run reports its patch area, the Hausdorff distance "
-        "of its special set to the unperturbed one and, when computed, the change of the matching distance, "
+        "perturb/summary.json), each with its own seed. Each run reports its patch area, how far its tie "
+        "curves and points moved (Hausdorff distance to the unperturbed ones, patches left out), how much the "
+        "patch region changed (area of the symmetric difference, as a share of the window) and, when "
+        "computed, the change of the matching distance, "
         "which the stability theorem bounds by the sup-norm size of the perturbation [CDFFL13]. The 95% "
         "interval is for the fraction of runs with a patch.",
     ),

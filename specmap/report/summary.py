@@ -339,9 +339,14 @@ def _evidence(sp: dict[str, Any] | None, kept: int, size: float) -> str:
         return "."
     br = breaking_size(sp or {})
     above = math.isfinite(br) and math.isfinite(size) and size > br
+    one = int(num(((sp or {}).get("counts") or {}).get("patch", 0))) == 1
     if kept == 0:
-        tail = ": the patches are an artefact of a non-generic input, not of the pair's geometry"
-        return tail + (f", as their reasons predict (size {fmt(size, 3)} > {fmt(br, 3)})." if above else ".")
+        tail = (
+            f": the {'patch is an artefact' if one else 'patches are artefacts'} of a non-generic input, "
+            "not of the pair's geometry"
+        )
+        why = "its reasons predict" if one else "their reasons predict"
+        return tail + (f", as {why} (size {fmt(size, 3)} > {fmt(br, 3)})." if above else ".")
     if above:
         return (
             f": perturbations larger than the size {fmt(br, 3)} that breaks the explained identities left a "
