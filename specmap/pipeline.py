@@ -19,6 +19,7 @@ from typing import Any
 
 from specmap import __version__
 from specmap.errors import CoreInputError, SpecmapInputError
+from specmap.fingerprint import distance_part, inputs_part, map_part, stamp, window_part
 from specmap.grids.model import Grid, read_grid
 from specmap.io import check_out_dir, read_json, write_json, write_json_streamed
 from specmap.progress import Progress
@@ -44,8 +45,15 @@ def load_input(spec: ShapeSpec, study: Study) -> tuple[Shape | Grid, dict[str, A
     if spec.source == "grid":
         return read_grid(spec.path, prefix=spec.label), None
     from specmap.shapes.build import build_shape  # local: meshio, scipy and the expression compiler
+    from specmap.shapes.normality import tolerated
 
-    shape = build_shape(spec, study)
+    if spec.insist:  # a non-normal pair is built, and its reason kept for the caveats
+        with tolerated() as reasons:
+            shape = build_shape(spec, study)
+        if reasons:
+            shape = dataclasses.replace(shape, meta={**shape.meta, "not_normal": reasons[0]})
+    else:
+        shape = build_shape(spec, study)
     if spec.source != "mesh" or not spec.simplify:
         return shape, None
     import numpy as np
@@ -125,6 +133,45 @@ class StudyRun:
         self.study = study
         self.out = Path(out) if out is not None else default_out(study)
         self.show_progress = show_progress
+
+    @property
+    def caveats(self) -> list[str]:
+        """Sentences every result file carries: a non-normal pair the study insisted on."""
+        out = []
+        for spec, (x, _) in zip((self.study.f, self.study.g), self._loaded, strict=True):
+            why = x.meta.get("not_normal") if isinstance(x, Shape) else None
+            if why:
+                out.append(
+                    f"{spec.label} is not a normal pair ({why}); computed only because the study sets "
+                    f"[{spec.label}] insist = true: its grids, special set and distances are outside "
+                    "the theory (math.md section 4) and may be artefacts"
+                )
+        return out
+
+    @cached_property
+    def inputs_fingerprint(self) -> str:
+        """The ``inputs`` part of every result's fingerprint (:mod:`specmap.fingerprint`)."""
+        return inputs_part(self.study)
+
+    def stamp(
+        self,
+        *,
+        window: bool = True,
+        map_settings: MapSettings | None = None,
+        distance_settings: DistanceSettings | None = None,
+        perturb: str | None = None,
+    ) -> dict[str, Any]:
+        """``format_version``, ``fingerprint``, ``fingerprint_parts`` (and ``caveats``) of a result file."""
+        parts = {"inputs": self.inputs_fingerprint}
+        if window:
+            parts["window"] = window_part(self.window)
+        if map_settings is not None:
+            parts["map"] = map_part(map_settings)
+        if distance_settings is not None:
+            parts["distance"] = distance_part(distance_settings)
+        if perturb is not None:
+            parts["perturb"] = perturb
+        return stamp(parts, self.caveats)
 
     def check_out(self) -> None:
         """Check, before any work, that the result folder can be made and written.
@@ -228,7 +275,8 @@ class StudyRun:
     def distance(self, settings: DistanceSettings, *, jobs: int = 1):
         """The :class:`~specmap.distance.DistanceResult` of ``settings`` (with the study's atlas), once per process.
 
-        Keyed by the settings and ``jobs`` (the reduced search batches candidates by job count).
+        Keyed by the settings and ``jobs`` (the results do not depend on ``jobs`` unless
+        ``settings.batch`` is None, when the batch size follows it).
         """
         key = (settings, int(jobs))
         cache = self.__dict__.setdefault("_distances", {})
@@ -281,7 +329,8 @@ class StudyRun:
         from specmap.report.figures import grids_figure, save_png
 
         gf, gg = self.grids
-        jf, jg = gf.to_json(), gg.to_json()
+        head = self.stamp(window=False)  # a grid does not depend on the window
+        jf, jg = {**gf.to_json(), **head}, {**gg.to_json(), **head}
         write_json(self.out / "grid_f.json", jf)
         write_json(self.out / "grid_g.json", jg)
         save_png(grids_figure(jf, jg), self.out / "figures" / "grids.png")
@@ -291,11 +340,13 @@ class StudyRun:
         from specmap.report.figures import save_png, special_figure
 
         atlas = self.atlas(**kw)
-        js = atlas.to_json()
+        head = self.stamp(map_settings=self.map_settings(**kw))
+        js = {**atlas.to_json(), **head}
         write_json(self.out / "special.json", js)
-        # streamed feature by feature: the GeoJSON text is never held whole in memory (issue 14 item 3)
+        # streamed feature by feature: the GeoJSON text is never held whole in memory (issue 14 item 3);
+        # the stamp is a foreign member of the FeatureCollection (RFC 7946 section 6.1)
         write_json_streamed(
-            self.out / "special.geojson", atlas.geojson_head(), "features", atlas.iter_features()
+            self.out / "special.geojson", {**atlas.geojson_head(), **head}, "features", atlas.iter_features()
         )
         save_png(special_figure(js, atlas.to_geojson()), self.out / "figures" / "special.png")
         return js
@@ -309,6 +360,7 @@ class StudyRun:
         atlas = self.atlas() if settings.method in ("both", "reduced") else None
         result = self.distance(settings, jobs=jobs)
         js = with_simplified_bounds(result.to_json(), *self.simplification)
+                **self.stamp(),
         write_json(self.out / "distance.json", js)
         geo = atlas.to_geojson() if atlas is not None else None
         if js.get("landscape"):
@@ -345,6 +397,9 @@ class StudyRun:
                 sizes=self.study.perturb.sizes,
                 jobs=jobs,
                 cluster=cluster,
+        # the reduced search reads the study's map (whole or focused), so its settings are a part
+        map_used = self.map_settings() if settings.method in ("both", "reduced") else None
+        js.update(self.stamp(map_settings=map_used, distance_settings=settings))
                 progress=self.progress("perturb"),
             )
         except CoreInputError as exc:  # core words ("model", ...); the study file and its key are known here
@@ -352,3 +407,10 @@ class StudyRun:
         rows = list(read_jsonl(self.out / "perturb" / "runs.jsonl"))
         save_png(perturb_figure(summary, rows), self.out / "figures" / "perturb.png")
         return summary
+        from specmap.perturb.store import write_summary
+
+        # the stamp's parts; "fingerprint" keeps its meaning in summary.json: the run set's (= part perturb)
+        head = self.stamp(map_settings=settings.map_settings, perturb=str(summary.get("fingerprint")))
+        head.pop("fingerprint")
+        summary = {**summary, **head}
+        write_summary(self.out / "perturb", summary)

@@ -638,7 +638,7 @@ def special_figure(
     counts = special.get("counts") or {}
     n_curves = tie_curve_count(special)
     drawn = (
-        f"; {len(ix.curves)} drawn (coincident ones merged)"
+        f"; {len(ix.curves)} drawn, coincident ones merged"
         if ix.curves and len(ix.curves) != n_curves
         else ""
     )
@@ -663,7 +663,7 @@ def special_figure(
             bbox_to_anchor=(0.5, -0.11),
             ncol=2 if len(handles) < 7 else 3,
             frameon=False,
-            title=f"tie curves by family (count{drawn}); the darker, the denser",
+            title=f"tie curves by family, with counts{drawn}; the darker, the denser",
             title_fontsize=7.5,
         )
     return fig

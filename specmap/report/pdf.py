@@ -48,6 +48,7 @@ from specmap.report.summary import (
     degree_rows,
     grid_only,
     ranked_notes,
+    reason_sentence,
     special_lines,
     tie_curve_count,
     where_sentence,
@@ -407,6 +408,13 @@ def _special_figure(res: dict[str, Any], fig: FigureBase | None = None) -> Figur
     )
 
 
+def _drawn_words(total: int, drawn: int) -> str:
+    """``"1961 tie curves (1561 drawn, coincident ones merged)."``"""
+    if drawn and drawn != total:
+        return f"{plural(total, 'tie curve')} ({drawn} drawn, coincident ones merged)."
+    return f"{plural(total or drawn, 'tie curve')} drawn."
+
+
 def _family_counts(ties: list[dict[str, Any]], only: list[int] | None = None) -> str:
     fams: dict[str, int] = {}
     for i, t in enumerate(ties):
@@ -424,7 +432,8 @@ def _special_page(pg: Pager, res: dict[str, Any]) -> None:
     ix = _tie_index(res)
     pg.para(
         f"{component_counts(sp).capitalize()} (connected components); "
-        f"{plural(len(ix.curves) or tie_curve_count(sp), 'tie curve')} drawn. "
+        + _drawn_words(tie_curve_count(sp), len(ix.curves))
+        + " "
         f"Total patch area {fmt(sp.get('total_area'))} = {fmt_pct(sp.get('area_fraction'))} of the window. "
         f"Method {sp.get('method', 'n/a')}, resolution {sp.get('resolution', 'n/a')}, pairs "
         f"{sp.get('pairs', 'n/a')}, tolerance {fmt(sp.get('tolerance'), 3)}; search statistics in the "
@@ -461,6 +470,11 @@ def _special_page(pg: Pager, res: dict[str, Any]) -> None:
             f"{str(comp.get('id')):<10}{str(comp.get('kind')):<7}{fmt(comp.get('area'), 3):>11}"
             f"{fmt(comp.get('length'), 3):>11}{len(ties):>7}  {bb}"
         )
+        why = reason_sentence({"components": [comp]}) if comp.get("kind") == "patch" else None
+        if why and comp.get("reasons"):
+            pg.para(
+                "why: " + why.split(": ", 1)[1].replace("it is explained", "explained", 1), 8, color="0.3"
+            )
         held = ix.patch_ties.get(str(comp.get("id")))
         if held:
             pg.mono(
