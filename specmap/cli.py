@@ -218,6 +218,14 @@ def command_line(argv: list[str] | None) -> str:
     return " ".join(shlex.quote(a) for a in ["specmap", *(sys.argv[1:] if argv is None else argv)])
 
 
+def print_load_notes() -> None:
+    """The result reader's notes (e.g. files written before result-file versions), after a success."""
+    from specmap.report.load import take_notes
+
+    for note in take_notes():
+        print(note, file=sys.stderr)
+
+
 def run(argv: list[str] | None = None) -> int:
     args = build_parser().parse_args(argv)
     from specmap.pipeline import StudyRun
@@ -229,12 +237,14 @@ def run(argv: list[str] | None = None) -> int:
 
         pdf = build_report(args.dir, args.out, overwrite=args.force or args.out is None)
         print(f"report: {pdf}")
+        print_load_notes()
         return 0
     if args.verb == "explore":
         from specmap.explore import build_explorer
 
         page = build_explorer(args.dir, args.out)
         print(f"explorer: {page} ({page.stat().st_size / 1e6:.1f} MB, opens from disk with no network)")
+        print_load_notes()
         return 0
     compile_notice(args.verb, show)
     if args.verb == "demo":

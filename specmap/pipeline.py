@@ -322,6 +322,7 @@ class StudyRun:
                 "simplification": {"f": self.simplification[0], "g": self.simplification[1]},
                 "specmap_version": __version__,
                 "commands": commands[-50:],
+                **self.stamp(),
             },
         )
 
@@ -360,7 +361,9 @@ class StudyRun:
         atlas = self.atlas() if settings.method in ("both", "reduced") else None
         result = self.distance(settings, jobs=jobs)
         js = with_simplified_bounds(result.to_json(), *self.simplification)
-                **self.stamp(),
+        # the reduced search reads the study's map (whole or focused), so its settings are a part
+        map_used = self.map_settings() if settings.method in ("both", "reduced") else None
+        js.update(self.stamp(map_settings=map_used, distance_settings=settings))
         write_json(self.out / "distance.json", js)
         geo = atlas.to_geojson() if atlas is not None else None
         if js.get("landscape"):
@@ -397,16 +400,10 @@ class StudyRun:
                 sizes=self.study.perturb.sizes,
                 jobs=jobs,
                 cluster=cluster,
-        # the reduced search reads the study's map (whole or focused), so its settings are a part
-        map_used = self.map_settings() if settings.method in ("both", "reduced") else None
-        js.update(self.stamp(map_settings=map_used, distance_settings=settings))
                 progress=self.progress("perturb"),
             )
         except CoreInputError as exc:  # core words ("model", ...); the study file and its key are known here
             raise self.located(exc, "perturb") from None
-        rows = list(read_jsonl(self.out / "perturb" / "runs.jsonl"))
-        save_png(perturb_figure(summary, rows), self.out / "figures" / "perturb.png")
-        return summary
         from specmap.perturb.store import write_summary
 
         # the stamp's parts; "fingerprint" keeps its meaning in summary.json: the run set's (= part perturb)
@@ -414,3 +411,6 @@ class StudyRun:
         head.pop("fingerprint")
         summary = {**summary, **head}
         write_summary(self.out / "perturb", summary)
+        rows = list(read_jsonl(self.out / "perturb" / "runs.jsonl"))
+        save_png(perturb_figure(summary, rows), self.out / "figures" / "perturb.png")
+        return summary

@@ -124,7 +124,11 @@ class DistanceSettings:
     polish : bool
         Refine the best special candidate along its curve.
     batch : int or None
-        Candidates per evaluation round (None: 1 for one job, else 2 per job).
+        Lines per evaluation round of the slope-one search and candidates per round of the
+        special-set search. The default is a fixed 4, not derived from the number of jobs, so
+        ``--jobs 1`` and ``--jobs 2`` evaluate the same lines and write the same search metadata
+        (with one job, 3-6% more lines than a batch of 1 on the pebbles study and an ellipsoid pair);
+        None: 1 for one job, else 2 per job.
     local_bound : bool
         Use the stability bound between evaluated lines (each map on its own mesh: any meshes).
     polish_iters : int
@@ -143,7 +147,7 @@ class DistanceSettings:
     roles: bool = True
     certify: str = "max"
     polish: bool = True
-    batch: int | None = None
+    batch: int | None = 4
     local_bound: bool = True
     polish_iters: int = 6
     position_lines: int = 20

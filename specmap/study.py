@@ -19,6 +19,7 @@ Format (all tables but ``[study]``, ``[f]``, ``[g]`` optional)::
     radii = [2.0, 1.0, 1.0]  # torus: [R, r] with R > r > 0, axis z
     map = ["x", "y + k*z"]
     resolution = 3000        # mesh vertices for slices and the PL checks
+    insist = false           # true: go on with a constant or dependent pair (caveat in every result)
 
     [g]
     mesh = "g.ply"           # .ply .off .obj, closed triangulated surface
@@ -91,7 +92,18 @@ def check_flag(study_path: str, field: str, flag: str, value: int | None) -> int
     return value
 
 
-SHAPE_KEYS = {"surface", "radii", "map", "resolution", "mesh", "fields", "grid", "simplify", "route"}
+SHAPE_KEYS = {
+    "surface",
+    "radii",
+    "map",
+    "resolution",
+    "mesh",
+    "fields",
+    "grid",
+    "simplify",
+    "route",
+    "insist",
+}
 
 
 @dataclass(frozen=True)
@@ -108,6 +120,7 @@ class ShapeSpec:
     resolution: int = 3000
     simplify: float | str = 0.0  # mesh: delta >= 0 (value units, 0 = off) or "auto" (see specmap.simplify)
     route: str = GridSettings.route
+    insist: bool = False  # go on with a non-normal pair (constant or dependent), caveat in every result
 
     @property
     def grid_settings(self) -> GridSettings:
@@ -306,8 +319,8 @@ def _shape(r: _Reader, data: dict, label: str, base: Path) -> ShapeSpec:
         )
     source = given[0]
     allowed = {
-        "surface": {"surface", "radii", "map", "resolution", "route"},
-        "mesh": {"mesh", "map", "fields", "simplify"},
+        "surface": {"surface", "radii", "map", "resolution", "route", "insist"},
+        "mesh": {"mesh", "map", "fields", "simplify", "insist"},
         "grid": {"grid"},
     }[source]
     for key in t:
@@ -320,6 +333,9 @@ def _shape(r: _Reader, data: dict, label: str, base: Path) -> ShapeSpec:
     if source == "grid":
         path = _path(r, t, label, "grid", base, (".json",))
         return ShapeSpec(label, "grid", path=path)
+    insist = t.get("insist", False)
+    if not isinstance(insist, bool):
+        raise r.fail(f"{label}.insist", f"{insist!r} is not true/false", "set insist = true or false")
     fmap = fields = None
     if "map" in t and "fields" in t:
         raise r.fail(f"{label}.map", "both map and fields given", "give one of map = [...] or fields = [...]")
@@ -349,7 +365,9 @@ def _shape(r: _Reader, data: dict, label: str, base: Path) -> ShapeSpec:
             )
         res = r.integer(t, label, "resolution", 3000, lo=100, hi=2_000_000)
         route = r.choice(t, label, "route", GridSettings.route, ROUTES)
-        return ShapeSpec(label, "surface", surface=kind, radii=radii, map=fmap, resolution=res, route=route)
+        return ShapeSpec(
+            label, "surface", surface=kind, radii=radii, map=fmap, resolution=res, route=route, insist=insist
+        )
     path = _path(r, t, label, "mesh", base, MESH_SUFFIXES)
     simplify: float | str = "auto"
     fix = 'set simplify = <number >= 0> (value units, 0 = off) or "auto"'
@@ -359,7 +377,7 @@ def _shape(r: _Reader, data: dict, label: str, base: Path) -> ShapeSpec:
         simplify = r.number(t, label, "simplify", 0.0)
         if simplify < 0:
             raise r.fail(f"{label}.simplify", f"{simplify:g} is negative", fix)
-    return ShapeSpec(label, "mesh", path=path, map=fmap, fields=fields, simplify=simplify)
+    return ShapeSpec(label, "mesh", path=path, map=fmap, fields=fields, simplify=simplify, insist=insist)
 
 
 def _path(r: _Reader, t: dict, label: str, key: str, base: Path, suffixes: tuple[str, ...]) -> Path:

@@ -11,6 +11,15 @@ special     ``special.json`` (+ ``special.geojson``)
 distance    ``distance.json``
 perturb     ``perturb/summary.json`` (+ ``perturb/runs.jsonl``)
 ==========  ===========================================
+
+Every file is checked against its schema (the keys the report needs), its ``format_version``
+and, across files, its fingerprint (:mod:`specmap.fingerprint`): files of one folder made with
+different settings or inputs (e.g. ``distance.json`` from before the map was changed) are
+refused in one line naming both, the stale one being the older. A file from a newer specmap
+(``format_version`` above :data:`~specmap.fingerprint.FORMAT_VERSION`) is refused. Files without
+``format_version`` (written before it existed) are read as version 1 with a one-line note and
+without the fingerprint check: their layout is that of version 1 and the schema check still
+holds, while refusing them would throw away finished runs that cost hours.
 """
 
 from __future__ import annotations
@@ -19,7 +28,9 @@ import json
 from pathlib import Path
 from typing import Any
 
+from specmap import __version__
 from specmap.errors import ResultsError
+from specmap.fingerprint import FORMAT_VERSION, PARTS, inconsistency
 from specmap.io import read_json, read_jsonl
 
 STAGES = ("grids", "special", "distance", "perturb")
@@ -101,6 +112,117 @@ def _checked(data: Any, path: Path, verb: str) -> Any:
     return data
 
 
+FILE_VERB = {
+    "study.json": "grid",
+    "grid_f.json": "grid",
+    "grid_g.json": "grid",
+    "special.json": "map",
+    "special.geojson": "map",
+    "distance.json": "distance",
+    "summary.json": "perturb",
+}
+"""The command that rewrites each result file."""
+
+
+def _version(data: dict[str, Any], path: Path, study_file: str) -> int | None:
+    """``format_version`` of a result file (None: written before versions); refuse unknown ones."""
+    if "format_version" not in data:
+        return None
+    v = data["format_version"]
+    fix = f"rerun `specmap {FILE_VERB.get(path.name, 'grid')} {study_file}` to rewrite it"
+    if isinstance(v, bool) or not isinstance(v, int) or v < 1:
+        raise ResultsError(
+            f"format_version {v!r} is not a result-file version",
+            file=str(path),
+            field="format_version",
+            fix=fix,
+        )
+    if v > FORMAT_VERSION:
+        raise ResultsError(
+            f"written by a newer specmap (result format {v}; specmap {__version__} reads up to {FORMAT_VERSION})",
+            file=str(path),
+            field="format_version",
+            fix="upgrade specmap to read it, or " + fix[0].lower() + fix[1:] + " with this version",
+        )
+    parts = data.get("fingerprint_parts")
+    if not isinstance(parts, dict) or not all(k in PARTS and isinstance(x, str) for k, x in parts.items()):
+        raise ResultsError(
+            "fingerprint_parts is missing or not an object of part -> hash",
+            file=str(path),
+            field="fingerprint_parts",
+            fix=fix,
+        )
+    return v
+
+
+def check_consistency(root: Path, files: dict[str, dict[str, Any]]) -> list[str]:
+    """Refuse result files of one folder that come from different runs; notes for unversioned files.
+
+    Parameters
+    ----------
+    root : Path
+        The result folder (``perturb/summary.json`` is given as ``summary.json``).
+    files : dict
+        File name -> parsed object, for the files present.
+
+    Returns
+    -------
+    list of str
+        Notes (one line each) about files written before ``format_version`` existed.
+
+    Raises
+    ------
+    ResultsError
+        A file of a newer or unknown version, or two files whose fingerprints disagree on a part
+        they share: names both, and the older (stale) one as the file to rerun or remove.
+    """
+    study_file = str((files.get("study.json") or {}).get("study_file") or "<study file>")
+    stamps, old = {}, []
+    for name, data in files.items():
+        path = root / ("perturb/" + name if name == "summary.json" else name)
+        if _version(data, path, study_file) is None:
+            old.append(name)
+        else:
+            stamps[name] = data["fingerprint_parts"]
+    clash = inconsistency(stamps)
+    if clash is not None:
+        a, b, part = clash
+        pa, pb = (root / ("perturb/" + n if n == "summary.json" else n) for n in (a, b))
+        stale, other = (pa, pb) if _mtime(pa) <= _mtime(pb) else (pb, pa)
+        raise ResultsError(
+            f"{a} and {b} come from different runs (their {part} fingerprints differ: "
+            f"{stamps[a][part]} vs {stamps[b][part]}); {stale.name} is the older",
+            file=str(stale),
+            field="fingerprint",
+            fix=f"rerun `specmap {FILE_VERB.get(stale.name, 'grid')} {study_file}` (and the stages after it) "
+            f"or remove the stale file {stale}",
+        )
+    if not old:
+        return []
+    return [
+        f"specmap: note: {root}: {', '.join(old)} {'has' if len(old) == 1 else 'have'} no format_version "
+        "(written before result-file versions): read as version 1 without the fingerprint check; rerun "
+        "their stages to check them"
+    ]
+
+
+_NOTES: list[str] = []
+
+
+def take_notes() -> list[str]:
+    """The notes of the folders loaded since the last call (the CLI prints them after a success)."""
+    notes = list(_NOTES)
+    _NOTES.clear()
+    return notes
+
+
+def _mtime(path: Path) -> float:
+    try:
+        return path.stat().st_mtime
+    except OSError:
+        return 0.0
+
+
 def _runs(path: Path) -> list[dict[str, Any]]:
     """The records of ``runs.jsonl``; every line must be a JSON object."""
     runs = []
@@ -129,13 +251,16 @@ def load_results(result_dir: str | Path) -> dict[str, Any]:
     dict
         Keys ``dir`` (Path), ``study``, ``grid_f``, ``grid_g``, ``special``,
         ``geojson``, ``distance`` (parsed JSON or ``None`` when the file is
-        absent), ``perturb`` (``{"summary": dict, "runs": list}`` or ``None``)
+        absent), ``perturb`` (``{"summary": dict, "runs": list}`` or ``None``),
+        ``caveats`` (the sentences of the files' ``caveats``, each once), ``notes`` (one line
+        each, e.g. files written before result-file versions; also kept for :func:`take_notes`)
         and ``stages`` (stage name -> bool, was it run).
 
     Raises
     ------
     ResultsError
-        If the folder or its ``study.json`` is missing, or a file is not JSON.
+        If the folder or its ``study.json`` is missing, a file is not JSON, lacks a key, comes
+        from a newer specmap, or the files come from different runs (:func:`check_consistency`).
 
     Examples
     --------
@@ -172,6 +297,30 @@ def load_results(result_dir: str | Path) -> dict[str, Any]:
     summary = _read(root / "perturb" / "summary.json", verb="perturb")
     if summary is not None:
         out["perturb"] = {"summary": summary, "runs": _runs(root / "perturb" / "runs.jsonl")}
+    present = {
+        name: data
+        for name, data in (
+            ("study.json", study),
+            ("grid_f.json", out["grid_f"]),
+            ("grid_g.json", out["grid_g"]),
+            ("special.json", out["special"]),
+            ("special.geojson", out["geojson"]),
+            ("distance.json", out["distance"]),
+            ("summary.json", summary),
+        )
+        if isinstance(data, dict)
+    }
+    out["notes"] = check_consistency(root, present)
+    _NOTES.extend(n for n in out["notes"] if n not in _NOTES)
+    out["caveats"] = list(
+        dict.fromkeys(
+            c
+            for d in present.values()
+            if isinstance(d.get("caveats"), list)
+            for c in d["caveats"]
+            if isinstance(c, str)
+        )
+    )
     out["stages"] = {
         "grids": out["grid_f"] is not None or out["grid_g"] is not None,
         "special": out["special"] is not None,
