@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import base64
 import json
+import math
 import os
 import re
 import shutil
@@ -385,6 +386,211 @@ def test_explorer_in_headless_chromium(tmp_path: Path) -> None:
         png = tmp_path / "explore.png"
         png.write_bytes(base64.b64decode(shot["data"]))
         assert png.read_bytes()[:8] == b"\x89PNG\r\n\x1a\n" and png.stat().st_size > 10_000
+        assert br.errors() == []
+    finally:
+        br.close()
+
+
+# -- slice diagrams and the optimal matching on the lines distance.json names ---------------------
+# Sources: the bottleneck distance as the min over bijections of the augmented diagrams (each point
+# may go to the diagonal at half its persistence, L-infinity cost between points; points at
+# infinity match points at infinity at |u - u'|) [d'Amico, Frosini, Landi 2010; Edelsbrunner, Harer
+# 2010, VIII.4], by brute force over all permutations below; and on a closed surface the sublevel
+# filtration of F*(a, b) has one essential class in degree 0 born at the minimum of F* over the
+# vertices and one in degree 2 born at its maximum (lower-star filtration), also brute-forced.
+
+STUDY_TOML = """[study]
+name = "lines"
+[f]
+surface = "ellipsoid"
+radii = [1.0, 1.0, 1.0]
+map = ["x", "y"]
+resolution = 300
+[g]
+surface = "ellipsoid"
+radii = [1.5, 1.0, 0.8]
+map = ["x + 0.3*z", "y + 0.2"]
+resolution = 300
+"""
+LINES = {
+    "at": [0.5, 0.0],
+    "by_degree": {"0": {"at": [0.5, 0.0]}, "1": {"at": [0.3, -0.2]}, "2": {"at": [0.7, 0.4]}},
+}
+
+
+def _brute_bottleneck(d1: list, d2: list) -> float:
+    """min over bijections of the augmented diagrams of the max cost (the definition, by brute force)."""
+    import itertools
+
+    inf = math.inf
+    a = [p for p in d1 if p[1] is not None]
+    b = [p for p in d2 if p[1] is not None]
+    u = sorted(p[0] for p in d1 if p[1] is None)
+    v = sorted(p[0] for p in d2 if p[1] is None)
+    if len(u) != len(v):
+        return inf
+    ess = min(
+        (
+            max((abs(x - y) for x, y in zip(u, p, strict=True)), default=0.0)
+            for p in itertools.permutations(v)
+        ),
+        default=0.0,
+    )
+    left = a + [None] * len(b)  # None: a diagonal slot
+    right = b + [None] * len(a)
+
+    def cost(p: Any, q: Any) -> float:
+        if p is None and q is None:
+            return 0.0
+        if p is None or q is None:
+            r = p or q
+            return (r[1] - r[0]) / 2
+        return max(abs(p[0] - q[0]), abs(p[1] - q[1]))
+
+    fin = min(
+        (
+            max((cost(left[i], right[j]) for i, j in enumerate(perm)), default=0.0)
+            for perm in itertools.permutations(range(len(right)))
+        ),
+        default=0.0,
+    )
+    return max(ess, fin)
+
+
+def _check_matching(d1: list, d2: list, pairs: list, h: float | None) -> None:
+    """Every point once; each cost recomputed from the points; h the largest cost."""
+    assert sorted(p[0] for p in pairs if p[0] is not None) == list(range(len(d1)))
+    assert sorted(p[1] for p in pairs if p[1] is not None) == list(range(len(d2)))
+    for i, j, c in pairs:
+        p, q = (d1[i] if i is not None else None), (d2[j] if j is not None else None)
+        if p is not None and q is not None:
+            want = abs(p[0] - q[0]) if p[1] is None else max(abs(p[0] - q[0]), abs(p[1] - q[1]))
+        else:
+            r = p or q
+            want = None if r[1] is None else (r[1] - r[0]) / 2
+        assert (c is None and want is None) or c == pytest.approx(want, abs=1e-12)
+    assert h == pytest.approx(max(c for _, _, c in pairs), abs=1e-12) if pairs else h == 0.0
+
+
+def test_optimal_matching_against_brute_force() -> None:
+    from specmap.explore.lines import optimal_matching
+
+    rng = np.random.default_rng(3)
+    for _ in range(40):
+        n, m, k = int(rng.integers(0, 4)), int(rng.integers(0, 4)), int(rng.integers(0, 3))
+        d1 = [[b, b + float(rng.uniform(0.01, 1))] for b in rng.uniform(0, 1, n)] + [
+            [x, None] for x in rng.uniform(0, 1, k)
+        ]
+        d2 = [[b, b + float(rng.uniform(0.01, 1))] for b in rng.uniform(0, 1, m)] + [
+            [x, None] for x in rng.uniform(0, 1, k)
+        ]
+        arr = lambda d: np.array([[p[0], np.inf if p[1] is None else p[1]] for p in d]).reshape(-1, 2)  # noqa: E731
+        h, pairs = optimal_matching(arr(d1), arr(d2))
+        assert h == pytest.approx(_brute_bottleneck(d1, d2), abs=1e-12)
+        _check_matching(d1, d2, [[p.f, p.g, p.cost] for p in pairs], h)
+
+
+def _mesh_folder(root: Path) -> Path:
+    from specmap.fingerprint import inputs_part
+    from specmap.study import load_study
+
+    root.mkdir(parents=True)
+    (root / "s.toml").write_text(STUDY_TOML)
+    study = load_study(root / "s.toml")
+    window = {"a": [0.02, 0.98], "b": [-1.0, 1.0]}
+    st = {
+        "name": "lines",
+        "study_file": str(root / "s.toml"),
+        "f": study.f.to_json(),
+        "g": study.g.to_json(),
+        "window": window,
+        "commands": [],
+        "fingerprint_parts": {"inputs": inputs_part(study)},
+    }
+    special = {
+        "window": window,
+        "tolerance": 1e-9,
+        "components": [],
+        "counts": {"curve": 0, "patch": 0, "point": 0},
+        "total_area": 0.0,
+    }
+    for name, obj in (
+        ("study.json", st),
+        ("special.json", special),
+        ("distance.json", {**LINES, "value": 0.5, "tolerance": 1e-3}),
+    ):
+        (root / name).write_text(json.dumps(obj))
+    return root
+
+
+def _vertex_values(root: Path, a: float, b: float) -> tuple[np.ndarray, np.ndarray]:
+    """F*(a, b) at the vertices of f and g, from the formula (math.md section 2), not from specmap."""
+    from specmap.pipeline import StudyRun
+    from specmap.study import load_study
+
+    out = []
+    for shape in StudyRun(load_study(root / "s.toml"), show_progress=False).shapes:
+        x, y = shape.values[:, 0], shape.values[:, 1]
+        out.append(min(a, 1 - a) * np.maximum((x - b) / a, (y + b) / (1 - a)))
+    return out[0], out[1]
+
+
+def test_lines_carry_slice_diagrams_and_matchings_from_the_meshes(tmp_path: Path) -> None:
+    root = _mesh_folder(tmp_path / "m")
+    got = explorer_data(load_results(root))["lines"]
+    assert got["why_not"] is None
+    lines = got["lines"]
+    assert [ln["label"] for ln in lines] == ["D, D_0", "D_1", "D_2"]  # one line per position, labels merged
+    for ln in lines:
+        vf, vg = _vertex_values(root, ln["a"], ln["b"])
+        for k, want in (("0", (vf.min(), vg.min())), ("2", (vf.max(), vg.max()))):
+            births = [[p[0] for p in ln["degrees"][k][s] if p[1] is None] for s in ("f", "g")]
+            assert births[0] == [pytest.approx(want[0])] and births[1] == [pytest.approx(want[1])]
+        for P in ln["degrees"].values():
+            assert len(P["f"]) + len(P["g"]) <= 9  # small enough for the brute force
+            assert P["h"] == pytest.approx(_brute_bottleneck(P["f"], P["g"]), abs=1e-12)
+            _check_matching(P["f"], P["g"], P["pairs"], P["h"])
+    # a study file edited since the run is refused, not shown
+    (root / "s.toml").write_text(STUDY_TOML.replace("resolution = 300", "resolution = 310", 1))
+    why = explorer_data(load_results(root))["lines"]
+    assert why["lines"] is None and "changed since the run" in why["why_not"]
+
+
+@pytest.mark.skipif(
+    shutil.which("chromium") is None and shutil.which("chromium-browser") is None,
+    reason="chromium is not installed (apt-get install -y chromium; .ci/run installs it)",
+)
+def test_slice_diagram_panel_in_headless_chromium(tmp_path: Path) -> None:
+    root = _mesh_folder(tmp_path / "m")
+    page = build_explorer(root)
+    lines = explorer_data(load_results(root))["lines"]["lines"]
+    br = Browser(tmp_path / "profile")
+    try:
+        br.open_page()
+        br.send("Page.navigate", {"url": page.resolve().as_uri()})
+        assert br.wait_for("window.explorerReady === true", 90)
+        br.pump(0.5)
+        assert br.errors() == []
+        assert "D_1" in _text(br, "line-buttons")
+        # a click on the D_2 diamond of the strip shows that line, its highest degree first
+        _pointer(br, 0.7, 0.4, "click")
+        br.pump(0.5)
+        info = _text(br, "diagram-info")
+        h = {k: v["h"] for k, v in lines[2]["degrees"].items()}
+        top = max(h, key=lambda k: h[k])
+        assert info.startswith("D_2:") and f"h_{top} = {float(f'{h[top]:.4g}'):g}" in info.replace(
+            "e-0", "e-"
+        )
+        assert "(a, b) = (0.7, 0.4)" in _text(br, "here-ab")  # the line is drawn over the grids too
+        br.evaluate("document.querySelector('#degree-buttons button[data-k=\"0\"]').click()")
+        br.pump(0.3)
+        assert _text(br, "diagram-info").startswith("D_2: h_0")
+        n_points = br.evaluate(
+            "document.getElementById('diagram').data.slice(-2).map(t => t.x.length).join(',')"
+        )
+        assert n_points == f"{len(lines[2]['degrees']['0']['f'])},{len(lines[2]['degrees']['0']['g'])}"
+        shot = br.send("Page.captureScreenshot", {"format": "png"})
+        (tmp_path / "lines.png").write_bytes(base64.b64decode(shot["data"]))
         assert br.errors() == []
     finally:
         br.close()

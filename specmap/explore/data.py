@@ -2,7 +2,9 @@
 
 Everything comes from the result files (grid_f.json, grid_g.json, special.json,
 special.geojson, distance.json); nothing is recomputed except which tie each curve
-belongs to (:func:`specmap.report.ties.index_ties`, evaluated from the grid files).
+belongs to (:func:`specmap.report.ties.index_ties`, evaluated from the grid files) and the
+slice diagrams with their optimal matching on the few lines distance.json names
+(:mod:`specmap.explore.lines`, from the meshes the study file rebuilds).
 Polylines are thinned to a point budget so that the page stays small and fast; the
 thinning keeps end points and takes every k-th vertex.
 """
@@ -14,6 +16,7 @@ from typing import Any
 
 import numpy as np
 
+from specmap.explore.lines import explorer_lines
 from specmap.report.figures import distance_map_samples
 from specmap.report.fmt import num, nums
 from specmap.report.ties import TieIndex, family, index_ties
@@ -70,7 +73,9 @@ def _tie_json(t: dict[str, Any]) -> dict[str, Any]:
     }
 
 
-def explorer_data(res: dict[str, Any], index: TieIndex | None = None) -> dict[str, Any]:
+def explorer_data(
+    res: dict[str, Any], index: TieIndex | None = None, *, lines: bool = True
+) -> dict[str, Any]:
     """The JSON payload of the explorer page.
 
     Parameters
@@ -79,6 +84,9 @@ def explorer_data(res: dict[str, Any], index: TieIndex | None = None) -> dict[st
         :func:`specmap.report.load.load_results` of a result folder.
     index : TieIndex, optional
         A precomputed :func:`specmap.report.ties.index_ties`.
+    lines : bool
+        Compute slice diagrams and their optimal matching on the lines distance.json names
+        (:func:`specmap.explore.lines.explorer_lines`; rebuilds f and g from the study file).
 
     Returns
     -------
@@ -86,7 +94,8 @@ def explorer_data(res: dict[str, Any], index: TieIndex | None = None) -> dict[st
         ``study``, ``window``, ``grids`` {f, g: contours}, ``components`` (id, kind, area,
         ties, patch_ties), ``patches`` (component, ring, ties), ``curves`` (component,
         family, ties, xy), ``families``, ``distance`` (value, at, reached_on, tolerance,
-        by_degree, samples {a, b, h, by_degree} or None), ``tolerance`` (special set).
+        by_degree, samples {a, b, h, by_degree} or None), ``tolerance`` (special set), ``lines``
+        ({lines: [...] or None, why_not}).
     """
     sp = res.get("special") or {}
     st = res.get("study") or {}
@@ -164,4 +173,5 @@ def explorer_data(res: dict[str, Any], index: TieIndex | None = None) -> dict[st
         "families": sorted(fams, key=lambda k: -fams[k]),
         "labelled": ix.labelled,
         "distance": dist,
+        "lines": explorer_lines(res) if lines else {"lines": None, "why_not": "not computed (lines=False)"},
     }

@@ -6,9 +6,15 @@ network. The glue below only converts pointer pixels to (a, b) with plotly's own
 axis functions, interpolates h, intersects the line r(a, b) with the contours
 (push coordinates, math.md section 2) and writes the panels.
 
+The slice-diagram panel draws, for the lines computed when the page was written
+(:mod:`specmap.explore.lines`), both persistence diagrams of one degree, the optimal
+matching and its costliest pair; clicking near a diamond on the strip or a line button
+shows it.
+
 Element ids the tests read: ``here-ab``, ``here-h``, ``here-line``, ``here-ties``,
-``comp-ties``; ``window.explorerReady`` is true once both charts are drawn, and
-``window.explorer`` exposes ``update(a, b)``, ``select(a, b)`` and ``toClient(a, b)``.
+``comp-ties``, ``line-buttons``, ``degree-buttons``, ``diagram``, ``diagram-info``;
+``window.explorerReady`` is true once the charts are drawn, and ``window.explorer`` exposes
+``update(a, b)``, ``select(a, b)``, ``toClient(a, b)`` and ``showLine(i, degree)``.
 """
 
 from __future__ import annotations
@@ -35,6 +41,11 @@ TEMPLATE = """<!DOCTYPE html>
   .held { color: #1b6e3c; }
   .muted { color: #666; }
   #comp-ties { max-height: 260px; overflow-y: auto; }
+  #lines-panel { flex: 1.7; }
+  #diagram { height: 330px; }
+  button { font-size: 12px; margin: 0 4px 4px 0; padding: 2px 6px; border: 1px solid #aaa; background: #f6f6f6;
+           border-radius: 3px; cursor: pointer; }
+  button.on { background: #c2185b; color: white; border-color: #c2185b; }
 </style>
 <script>__PLOTLY__</script>
 </head>
@@ -51,9 +62,13 @@ TEMPLATE = """<!DOCTYPE html>
   </section>
   <section><h2>Clicked component</h2><div id="comp-ties" class="muted">click the strip to list the ties of
     the component there (a patch containing the point, else the nearest tie curve)</div></section>
-  <section><h2>Not in this page</h2><div class="muted" id="notes">Slice diagrams and the optimal matching on a
-    line need the meshes of f and g, which the result folder does not hold; compute them with specmap
-    distance. h(a, b) here is interpolated from the dense sweep's samples in distance.json.</div></section>
+  <section id="lines-panel"><h2>Slice diagrams and the optimal matching</h2>
+    <div id="line-buttons"></div>
+    <div id="degree-buttons"></div>
+    <div id="diagram"></div>
+    <div id="diagram-info" class="mono"></div>
+    <div class="muted" id="notes"></div>
+  </section>
 </div>
 <script type="application/json" id="data">__DATA__</script>
 <script>
@@ -271,6 +286,78 @@ const hl = D ? "D = " + fmt(D.value) + " (tolerance " + fmt(D.tolerance, 3) + ")
   + (D.at ? " at (a, b) = (" + fmt(D.at[0]) + ", " + fmt(D.at[1]) + ")" : "") : "no distance computed";
 $("headline").textContent = hl + "; " + DATA.components.length + " components, " + DATA.curves.length + " tie curves drawn"
   + (DATA.labelled ? "" : " (unlabelled: the grid files are missing)") + ". Point at the strip to see the line and the ties there; click to list a component's ties.";
+// -- slice diagrams on the lines computed when the page was written ---------------------------------
+const LINES = (DATA.lines && DATA.lines.lines) || null;
+let curLine = null, curDeg = null;
+if (LINES) stripTraces.push({type: "scatter", mode: "markers", x: LINES.map(L => L.a), y: LINES.map(L => L.b),
+  name: "lines with slice diagrams (click)", hoverinfo: "skip", marker: {symbol: "diamond-open", size: 12,
+  color: "#c2185b", line: {width: 2}}});
+function pt(p) { return "(" + fmt(p[0], 4) + ", " + (p[1] === null ? "inf" : fmt(p[1], 4)) + ")"; }
+function showLine(i, k) {
+  const L = LINES[i], degs = Object.keys(L.degrees);
+  if (k === undefined || !(String(k) in L.degrees)) {
+    k = degs.reduce((m, d) => ((L.degrees[d].h === null ? Infinity : L.degrees[d].h) > (L.degrees[m].h === null ? Infinity : L.degrees[m].h) ? d : m), degs[0]);
+  }
+  k = String(k); curLine = i; curDeg = k;
+  const P = L.degrees[k];
+  const vals = [];
+  for (const q of P.f.concat(P.g)) { vals.push(q[0]); if (q[1] !== null) vals.push(q[1]); }
+  let lo = vals.length ? Math.min(...vals) : 0, hi = vals.length ? Math.max(...vals) : 1;
+  const sp = Math.max(hi - lo, 1e-9); lo -= 0.08 * sp; hi += 0.08 * sp;
+  const top = hi + 0.1 * sp, Y = q => q[1] === null ? top : q[1];
+  const seg = (ps, x, y) => { for (const pr of ps) {
+      const a = pr[0] === null ? null : P.f[pr[0]], b = pr[1] === null ? null : P.g[pr[1]];
+      if (a && b) { x.push(a[0], b[0], null); y.push(Y(a), Y(b), null); }
+      else { const q = a || b; if (!q || q[1] === null) continue; const m = (q[0] + q[1]) / 2; x.push(q[0], m, null); y.push(q[1], m, null); }
+    } };
+  const mx = [], my = [], wx = [], wy = [];
+  seg(P.pairs, mx, my);
+  if (P.worst !== null) seg([P.pairs[P.worst]], wx, wy);
+  const traces = [
+    {x: [lo, top], y: [lo, top], mode: "lines", line: {color: "#999", width: 1}, name: "diagonal", hoverinfo: "skip"},
+    {x: [lo, hi], y: [top, top], mode: "lines", line: {color: "#999", width: 1, dash: "dot"}, name: "death = inf", hoverinfo: "skip"},
+    {x: mx, y: my, mode: "lines", line: {color: "#777", width: 1.2}, name: "matching", hoverinfo: "skip"},
+    {x: wx, y: wy, mode: "lines", line: {color: "#c2185b", width: 3}, name: "costliest pair (= h)", hoverinfo: "skip"},
+    {x: P.f.map(q => q[0]), y: P.f.map(Y), mode: "markers", marker: {color: GRID_COLOURS.f, size: 8}, name: "f",
+     text: P.f.map(pt), hoverinfo: "text"},
+    {x: P.g.map(q => q[0]), y: P.g.map(Y), mode: "markers", marker: {color: GRID_COLOURS.g, size: 8, symbol: "square-open", line: {width: 2}},
+     name: "g", text: P.g.map(pt), hoverinfo: "text"}];
+  const layout = {margin: {l: 45, r: 8, t: 26, b: 36}, showlegend: true, legend: {font: {size: 10}, x: 1, xanchor: "right", y: 0, yanchor: "bottom", bgcolor: "rgba(255,255,255,0.85)"},
+    title: {text: "degree " + k + " on r(" + fmt(L.a, 4) + ", " + fmt(L.b, 4) + ")", font: {size: 12}, x: 0.01, xanchor: "left"},
+    xaxis: {title: {text: "birth"}, range: [lo, top + 0.04 * sp], zeroline: false}, yaxis: {title: {text: "death"}, range: [lo, top + 0.06 * sp], zeroline: false},
+    annotations: [{x: lo, y: top, text: "inf", showarrow: false, xanchor: "left", yanchor: "bottom", font: {size: 10, color: "#666"}}]};
+  Plotly.react("diagram", traces, layout, {displaylogo: false, displayModeBar: false});
+  const rec = L.recorded && L.recorded[k] !== undefined ? "; distance.json: D_" + k + " = " + fmt(L.recorded[k]) : "";
+  let worst = "";
+  if (P.worst !== null) { const pr = P.pairs[P.worst];
+    worst = "costliest pair: " + (pr[0] === null ? "diagonal" : "f " + pt(P.f[pr[0]])) + " - " + (pr[1] === null ? "diagonal" : "g " + pt(P.g[pr[1]]))
+      + ", cost " + (pr[2] === null ? "inf" : fmt(pr[2])); }
+  $("diagram-info").innerHTML = "<b>" + esc(L.label) + "</b>: h_" + k + " = " + (P.h === null ? "inf" : fmt(P.h)) + esc(rec)
+    + "<br>" + P.f.length + " point(s) of f, " + P.g.length + " of g; " + esc(worst);
+  for (const b of document.querySelectorAll("#line-buttons button")) b.classList.toggle("on", Number(b.dataset.i) === i);
+  $("degree-buttons").innerHTML = degs.map(d => "<button data-k='" + d + "'" + (d === k ? " class='on'" : "") + ">H_" + d + ": h = "
+    + (L.degrees[d].h === null ? "inf" : fmt(L.degrees[d].h, 3)) + "</button>").join("");
+  for (const b of document.querySelectorAll("#degree-buttons button")) b.onclick = () => showLine(curLine, b.dataset.k);
+  update(L.a, L.b);
+  $("here-h").textContent += "; computed on this line: " + degs.map(d => "h_" + d + " " + (L.degrees[d].h === null ? "inf" : fmt(L.degrees[d].h))).join(", ");
+}
+function nearLine(a, b) {
+  if (!LINES) return null;
+  let best = null, bd = 0.02;
+  LINES.forEach((L, i) => { const d = Math.hypot((L.a - a) / sa, (L.b - b) / sb); if (d < bd) { bd = d; best = i; } });
+  return best;
+}
+if (LINES) {
+  $("line-buttons").innerHTML = "Lines: " + LINES.map((L, i) => "<button data-i='" + i + "'>" + esc(L.label) + "</button>").join("");
+  for (const b of document.querySelectorAll("#line-buttons button")) b.onclick = () => showLine(Number(b.dataset.i));
+  $("notes").textContent = "Computed from the meshes of f and g when this page was written, on the lines distance.json names "
+    + "(diamonds on the strip); the matching is optimal for the bottleneck distance, points at infinity drawn on the dotted row. "
+    + "h(a, b) at the pointer is interpolated from the dense sweep's samples.";
+} else {
+  $("diagram").style.display = "none";
+  $("notes").textContent = "No slice diagrams in this page: " + ((DATA.lines && DATA.lines.why_not) || "not computed")
+    + ". h(a, b) at the pointer is interpolated from the dense sweep's samples in distance.json.";
+}
 const config = {scrollZoom: true, displaylogo: false, responsive: true, displayModeBar: "hover"};
 Promise.all([Plotly.newPlot("strip", stripTraces, stripLayout, config), Plotly.newPlot("grids", gridTraces, gridLayout, config)])
   .then(() => {
@@ -278,8 +365,10 @@ Promise.all([Plotly.newPlot("strip", stripTraces, stripLayout, config), Plotly.n
     let pending = null;
     $("strip").addEventListener("mousemove", ev => { const p = toData($("strip"), ev); if (!p) return;
       if (pending) cancelAnimationFrame(pending); pending = requestAnimationFrame(() => update(p.a, p.b)); });
-    $("strip").addEventListener("click", ev => { const p = toData($("strip"), ev); if (p) select(p.a, p.b); });
-    window.explorer = {update: update, select: select, toClient: toClient};
+    $("strip").addEventListener("click", ev => { const p = toData($("strip"), ev); if (!p) return;
+      select(p.a, p.b); const i = nearLine(p.a, p.b); if (i !== null) showLine(i); });
+    window.explorer = {update: update, select: select, toClient: toClient, showLine: showLine};
+    if (LINES) showLine(0);
     window.explorerReady = true;
   });
 </script>
