@@ -82,6 +82,12 @@ class MapSettings:
     reading : {"points", "contours"}
         Which ties count: pairs of meeting points ([EFQT23], default) or pairs of contours
         (:mod:`specmap.special.reading`).
+    memory : float or None
+        Memory budget of the atlas in bytes; None for half of the machine's memory
+        (:func:`specmap.special.preflight.plan_atlas`). Decides the plan, not the result.
+    tiles : (int, int) or None
+        Tiles along a and b (:mod:`specmap.special.tiles`); None to let the budget decide.
+        Tiles change the plan, not the atlas (merged exactly; see the module for its limits).
     """
 
     pairs: str = "all"
@@ -90,11 +96,28 @@ class MapSettings:
     tol: float | None = None
     max_contours: int = 60
     reading: str = "points"
+    memory: float | None = None
+    tiles: tuple[int, int] | None = None
 
     def __post_init__(self) -> None:
         _choice("pairs", self.pairs, PAIRS)
         _choice("method", self.method, MAP_METHODS)
         _choice("reading", self.reading, READINGS)
+        if self.memory is not None and not (math.isfinite(self.memory) and self.memory > 0):
+            raise InputValueError(
+                f"memory {self.memory!r} is not a positive size",
+                subject="memory",
+                fix='give a size like "6GB"',
+            )
+        if self.tiles is not None:
+            t = tuple(int(x) for x in self.tiles)
+            if len(t) != 2 or min(t) < 1:
+                raise InputValueError(
+                    f"tiles {self.tiles!r} is not two counts >= 1",
+                    subject="tiles",
+                    fix='give tiles = [na, nb] like [2, 2], or "auto"',
+                )
+            object.__setattr__(self, "tiles", (t[0], t[1]))
 
 
 @dataclass(frozen=True)

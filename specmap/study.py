@@ -31,7 +31,8 @@ Format (all tables but ``[study]``, ``[f]``, ``[g]`` optional)::
 
     [map]      pairs = "all" | "roles", resolution = <nodes per side>, method = "sweep" | "naive",
                max_contours = <budget per grid for a mesh's simplify = "auto">,
-               reading = "points" | "contours"
+               reading = "points" | "contours", memory = "6GB" (atlas budget; default half of RAM),
+               tiles = [na, nb] | "auto"
     [distance] method = "both" | "dense" | "reduced", degrees = [0, 1, 2], dense_resolution = <nodes>
     [perturb]  model = "function" | "grid", size = <sup norm>, runs = <count>, seed = <int>,
                sizes = [1e-3, 1e-2], distance = false
@@ -441,13 +442,17 @@ def parse_study(data: dict[str, Any], path: Path) -> Study:
         if not b[0] < b[1]:
             raise r.fail("window.b", f"{list(b)} is empty", "give b = [lo, hi] with lo < hi")
         window = Window(a, b)
-    mt = r.table(data, "map", False, {"pairs", "resolution", "method", "max_contours", "reading"})
+    mt = r.table(
+        data, "map", False, {"pairs", "resolution", "method", "max_contours", "reading", "memory", "tiles"}
+    )
     mspec = MapSpec(
         pairs=r.choice(mt, "map", "pairs", _MAP.pairs, PAIRS),
         resolution=r.limited(mt, "map", "resolution", _MAP.resolution),
         method=r.choice(mt, "map", "method", _MAP.method, MAP_METHODS),
         max_contours=r.integer(mt, "map", "max_contours", _MAP.max_contours, lo=1),
         reading=r.choice(mt, "map", "reading", _MAP.reading, READINGS),
+        memory=_memory(r, mt),
+        tiles=_tiles(r, mt),
     )
     dt = r.table(data, "distance", False, {"method", "degrees", "dense_resolution"})
     degrees = _DISTANCE.degrees
@@ -497,6 +502,34 @@ def parse_study(data: dict[str, Any], path: Path) -> Study:
             distance=dist,
         )
     return Study(name, seed, path, f, g, constants, window, mspec, dspec, pspec)
+
+
+def _memory(r: _Reader, mt: dict) -> float | None:
+    """``[map] memory``: a size like ``"6GB"`` (bytes), or None for the default budget."""
+    if "memory" not in mt:
+        return None
+    from specmap.errors import InputValueError
+    from specmap.special.preflight import parse_memory
+
+    try:
+        return parse_memory(mt["memory"])
+    except InputValueError as exc:
+        raise r.fail("map.memory", exc.problem, 'give a size like memory = "6GB"') from None
+
+
+def _tiles(r: _Reader, mt: dict) -> tuple[int, int] | None:
+    """``[map] tiles``: ``[na, nb]`` counts >= 1, or ``"auto"`` (None: the memory budget decides)."""
+    t = mt.get("tiles", "auto")
+    if t == "auto":
+        return None
+    ok = (
+        isinstance(t, list) and len(t) == 2 and all(isinstance(x, int) and not isinstance(x, bool) for x in t)
+    )
+    if not ok or min(t) < 1:
+        raise r.fail(
+            "map.tiles", f"{t!r} is not two counts >= 1", 'give tiles = [2, 2] (along a, b) or "auto"'
+        )
+    return (int(t[0]), int(t[1]))
 
 
 def load_study(path: str | Path) -> Study:

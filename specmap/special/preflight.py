@@ -17,19 +17,42 @@ so crossings ~ 16 P^2 (n / 41)^0.75 for an n x n lattice and about 250 bytes per
 Real grids have clustered contours and may cross more or less; the estimate is meant to
 tell "fits" from "off by orders of magnitude", which is why the refusal waits for twice
 the budget.
+
+:func:`plan_atlas` turns the estimate into a plan under a memory budget (``[map] memory``,
+``--memory``; default half of the machine's memory): one piece when it fits, else the
+fewest tiles (:mod:`specmap.special.tiles`) whose per-tile estimate fits, each tile's
+crossings taken as its share of the lattice cells (its halo included) and ``jobs`` tiles
+held at once; a refusal when even tiles of ``MIN_TILE_CELLS`` cells a side do not fit.
 """
 
 from __future__ import annotations
 
+import math
 import os
+import re
 from dataclasses import dataclass
+from typing import Any
 
-from specmap.errors import SpecmapInputError
+from specmap.errors import InputValueError, SpecmapInputError
 
 CROSSINGS_PER_PAIR2 = 16.0  # measured, see the module docstring
 RESOLUTION_EXPONENT = 0.75
 BYTES_PER_CROSSING = 250.0
 BASE_BYTES = 150e6  # interpreter, numpy, shapely and the grids
+MERGED_BYTES_PER_CROSSING = 40.0  # the merged curves (a vertex per crossing) held by the parent
+MIN_TILE_CELLS = 4  # smallest tile side (cells) the plan goes down to
+UNITS = {
+    "": 1.0,
+    "B": 1.0,
+    "KB": 1e3,
+    "MB": 1e6,
+    "GB": 1e9,
+    "TB": 1e12,
+    "K": 1e3,
+    "M": 1e6,
+    "G": 1e9,
+    "T": 1e12,
+}
 
 
 class AtlasTooLargeError(SpecmapInputError):
@@ -118,3 +141,163 @@ def check_atlas_size(
             "--resolution, or specmap distance --method dense, which needs no map",
         )
     return est
+
+
+def parse_memory(text: str | float | int) -> float:
+    """Bytes of a memory size: ``"6GB"``, ``"512MB"``, ``"4G"``, ``"2.5e9"`` or a number.
+
+    Raises
+    ------
+    InputValueError
+        Not a positive size (subject ``"memory"``).
+
+    Examples
+    --------
+    >>> parse_memory("6GB"), parse_memory("512 MB"), parse_memory(2e9)
+    (6000000000.0, 512000000.0, 2000000000.0)
+    """
+    if isinstance(text, (int, float)) and not isinstance(text, bool):
+        value = float(text)
+    else:
+        m = re.fullmatch(r"\s*([0-9]*\.?[0-9]+(?:[eE][+-]?[0-9]+)?)\s*([KMGT]?B?)\s*", str(text).upper())
+        value = float(m.group(1)) * UNITS[m.group(2)] if m else float("nan")
+    if not (math.isfinite(value) and value > 0):
+        raise InputValueError(
+            f"memory {text!r} is not a positive size",
+            subject="memory",
+            fix='give a size like "6GB" or "512MB"',
+        )
+    return value
+
+
+@dataclass(frozen=True)
+class AtlasPlan:
+    """How the atlas is computed under a memory budget.
+
+    Attributes
+    ----------
+    estimate : AtlasEstimate
+        The whole atlas in one piece.
+    budget : float
+        Bytes.
+    tiles : (na, nb)
+        (1, 1) for one piece.
+    tile_bytes : float
+        Expected peak of the process(es): ``jobs`` tiles at once plus the merged output.
+    jobs : int
+    reason : str
+        Why this plan (fits, tiled to fit, tiles as asked).
+    """
+
+    estimate: AtlasEstimate
+    budget: float
+    tiles: tuple[int, int]
+    tile_bytes: float
+    jobs: int
+    reason: str
+
+    @property
+    def tiled(self) -> bool:
+        return self.tiles != (1, 1)
+
+    def to_json(self) -> dict[str, Any]:
+        return {
+            "contours": self.estimate.contours,
+            "pairs": self.estimate.pairs,
+            "crossings_estimate": float(self.estimate.crossings),
+            "bytes_estimate": float(self.estimate.bytes),
+            "budget": float(self.budget),
+            "tiles": list(self.tiles),
+            "tile_bytes_estimate": float(self.tile_bytes),
+            "jobs": int(self.jobs),
+            "reason": self.reason,
+        }
+
+    def line(self) -> str:
+        """One line for the terminal."""
+        shape = "one piece" if not self.tiled else f"{self.tiles[0]} x {self.tiles[1]} tiles"
+        return (
+            f"map plan: {shape} ({self.reason}); about {self.estimate.crossings:.2g} crossings, "
+            f"{_size(self.estimate.bytes)} in one piece, {_size(self.tile_bytes)} as planned, "
+            f"budget {_size(self.budget)}"
+        )
+
+
+def _tiles_bytes(est: AtlasEstimate, n_a: int, n_b: int, tiles: tuple[int, int], jobs: int) -> float:
+    """Expected peak with ``tiles``: ``jobs`` of the largest tile (halo included) and the merged output."""
+    na, nb = tiles
+    cells = (n_a - 1) * (n_b - 1)
+    if na == nb == 1:
+        return est.bytes
+    side_a = -(-(n_a - 1) // na) + (2 if na > 1 else 0)
+    side_b = -(-(n_b - 1) // nb) + (2 if nb > 1 else 0)
+    share = min(1.0, side_a * side_b / cells)
+    crossings = est.crossings
+    per_tile = BYTES_PER_CROSSING * crossings * share
+    return (
+        BASE_BYTES * (1 + min(jobs, na * nb))
+        + min(jobs, na * nb) * per_tile
+        + MERGED_BYTES_PER_CROSSING * crossings
+    )
+
+
+def plan_atlas(
+    n_f: int,
+    n_g: int,
+    resolution: int | tuple[int, int],
+    *,
+    budget: float | None = None,
+    tiles: tuple[int, int] | None = None,
+    jobs: int = 1,
+    file: str | None = None,
+) -> AtlasPlan:
+    """The plan of the atlas under ``budget`` (bytes; default :func:`memory_budget`).
+
+    ``tiles`` given: used as asked (no refusal: the user chose). Else one piece when the
+    estimate fits the budget, the fewest tiles (near-square, rows of cells first) whose
+    estimate fits, or a one-line refusal.
+
+    Raises
+    ------
+    AtlasTooLargeError
+        Even tiles of :data:`MIN_TILE_CELLS` cells a side exceed the budget.
+
+    Examples
+    --------
+    >>> plan_atlas(20, 20, 81, budget=8e9).tiles
+    (1, 1)
+    >>> plan_atlas(20, 20, 121, budget=3e9).tiles
+    (2, 2)
+    """
+    est = estimate_atlas(n_f, n_g, resolution)
+    n_a, n_b = (resolution, resolution) if isinstance(resolution, int) else resolution
+    given_budget = budget is not None
+    budget = memory_budget() if budget is None else float(budget)
+    jobs = max(1, int(jobs))
+    if tiles is not None:
+        t = (int(tiles[0]), int(tiles[1]))
+        reason = "one piece as asked" if t == (1, 1) else "tiles as asked"
+        return AtlasPlan(est, budget, t, _tiles_bytes(est, n_a, n_b, t, jobs), jobs, reason)
+    if est.bytes <= budget:
+        return AtlasPlan(est, budget, (1, 1), est.bytes, jobs, "fits the budget")
+    max_a = max(1, (n_a - 1) // MIN_TILE_CELLS)
+    max_b = max(1, (n_b - 1) // MIN_TILE_CELLS)
+    options = sorted(
+        ((ta, tb) for ta in range(1, max_a + 1) for tb in range(1, max_b + 1) if (ta, tb) != (1, 1)),
+        key=lambda t: (t[0] * t[1], abs(t[0] - t[1]), -t[1]),
+    )
+    for t in options:
+        b = _tiles_bytes(est, n_a, n_b, t, jobs)
+        if b <= budget:
+            return AtlasPlan(est, budget, t, b, jobs, "tiled to fit the budget")
+    smallest = _tiles_bytes(est, n_a, n_b, (max_a, max_b), jobs)
+    whose = "the --memory budget" if given_budget else "half of this machine's memory"
+    raise AtlasTooLargeError(
+        f"the special-set map of {n_f} + {n_g} contours ({est.pairs} pairs, about {est.crossings:.2g} "
+        f"crossings) needs about {_size(est.bytes)} of memory in one piece and {_size(smallest)} even in "
+        f"{max_a} x {max_b} tiles, over the budget {_size(budget)} ({whose})",
+        file=file,
+        field="map",
+        fix='set simplify = "auto" (or a delta) on the mesh shapes, use --pairs roles, a coarser '
+        "--resolution, a larger --memory, or specmap distance --method dense, which needs no map",
+    )

@@ -1,0 +1,434 @@
+"""The special-set atlas in tiles: bounded memory, parallel tiles, resumable runs.
+
+The window's lattice (``n_a x n_b`` nodes) is split into ``na x nb`` blocks of cells, the
+tile *cores*; neighbouring cores share their border nodes, so all tiles sample one global
+lattice. Each tile is mapped by :func:`specmap.special.compute.special_set` on its core plus
+a *halo* of one cell on every inner side (the detection keeps a crossing only when a cell
+beside its edge sees the tie, and a patch's border sub-cells are those beside a patch
+cell: both need the cells across the border), then clipped to its core
+(:func:`tile_pieces`). :func:`specmap.special.merge.merge_items` joins the clipped pieces
+exactly, and the components are recomputed over the whole window (:func:`tiled_special_set`).
+
+Tiles run in ``jobs`` local processes (joblib) or on a Dask cluster (the driver of the
+perturbation study, :mod:`specmap.perturb.execution`); each finished tile is written to
+``folder/tile_<row>_<col>.json`` (atomic, fsynced, with ``"done": true``) as it arrives,
+so an interrupted map resumes with the missing tiles only. The result does not depend on
+the number of workers nor on the order in which tiles finish.
+
+This module is an I/O edge for its tile folder only (:func:`read_done_tiles`,
+:func:`write_tile`); :func:`tile_pieces` and :func:`plan_tiles` are pure.
+
+References
+----------
+.. [EFQT23] Ethier, Frosini, Quercioli, Tombari, "Geometry of the matching distance for 2D
+   filtering functions", J. Appl. Comput. Topol. (2023).
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import time
+from collections.abc import Callable, Iterable
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import shapely
+
+from specmap.grids.model import Grid
+from specmap.io import read_json, write_json
+from specmap.settings import MapSettings
+from specmap.special.atlas import Atlas
+from specmap.special.lattice import Lattice
+from specmap.special.merge import (
+    CURVE,
+    POINT,
+    TileItem,
+    TileResult,
+    as_pieces,
+    clip_lines,
+    merge_items,
+    tie_codes,
+)
+from specmap.special.pairs import pair_table
+from specmap.strip import Window
+
+FORMAT = "specmap-tile/1"
+
+
+@dataclass(frozen=True)
+class Tile:
+    """One tile: its core and halo as node index ranges of the global lattice (inclusive).
+
+    Attributes
+    ----------
+    row, col : int
+        Position along b and along a.
+    core : (i0, i1, j0, j1)
+        Nodes i0..i1 along a and j0..j1 along b of the core.
+    halo : (i0, i1, j0, j1)
+        The core widened by one cell on each side that has a neighbour.
+    last : (bool, bool)
+        Whether the tile is the last along a and along b (its far border is the window's).
+    """
+
+    row: int
+    col: int
+    core: tuple[int, int, int, int]
+    halo: tuple[int, int, int, int]
+    last: tuple[bool, bool]
+
+    @property
+    def name(self) -> str:
+        return f"tile_{self.row}_{self.col}"
+
+    @property
+    def cells(self) -> int:
+        """Cells of the halo (what the tile computes)."""
+        i0, i1, j0, j1 = self.halo
+        return (i1 - i0) * (j1 - j0)
+
+
+def _cuts(n_nodes: int, parts: int) -> list[int]:
+    return [int(round(x)) for x in np.linspace(0, n_nodes - 1, parts + 1)]
+
+
+def plan_tiles(n_a: int, n_b: int, tiles: tuple[int, int]) -> tuple[Tile, ...]:
+    """Tiles of an ``n_a x n_b`` lattice split ``tiles = (na, nb)`` ways (cells as even as can be).
+
+    Examples
+    --------
+    >>> [t.core for t in plan_tiles(5, 3, (2, 1))]
+    [(0, 2, 0, 2), (2, 4, 0, 2)]
+    >>> plan_tiles(5, 3, (2, 1))[0].halo
+    (0, 3, 0, 2)
+    """
+    na, nb = int(tiles[0]), int(tiles[1])
+    if na < 1 or nb < 1 or na > n_a - 1 or nb > n_b - 1:
+        raise ValueError(f"tiles {na} x {nb} do not fit a lattice of {n_a - 1} x {n_b - 1} cells")
+    ca, cb = _cuts(n_a, na), _cuts(n_b, nb)
+    out = []
+    for r in range(nb):
+        for c in range(na):
+            core = (ca[c], ca[c + 1], cb[r], cb[r + 1])
+            halo = (
+                max(core[0] - 1, 0),
+                min(core[1] + 1, n_a - 1),
+                max(core[2] - 1, 0),
+                min(core[3] + 1, n_b - 1),
+            )
+            out.append(Tile(r, c, core, halo, (c == na - 1, r == nb - 1)))
+    return tuple(out)
+
+
+def tile_pieces(
+    grid_f: Grid,
+    grid_g: Grid,
+    window: Window,
+    resolution: tuple[int, int],
+    tile: Tile,
+    settings: MapSettings,
+    *,
+    sub: int = 8,
+    seed: int = 0,
+) -> TileResult:
+    """Map one tile (core + halo) and clip its pieces to the core (pure).
+
+    The tile is mapped with the ``"contours"`` reading; the reading asked for is applied
+    after the merge (it probes whole curves). Clipping: curve segments by their midpoint
+    (:func:`specmap.special.merge.clip_lines`), points by the half-open core (closed on
+    the window's far borders), patches by intersection with the core box.
+    """
+    from specmap.special.compute import special_set
+
+    t0 = time.perf_counter()
+    lat = Lattice.of(window, *resolution)
+    av, bv = lat.av, lat.bv
+    i0, i1, j0, j1 = tile.halo
+    sub_window = Window((float(av[i0]), float(av[i1])), (float(bv[j0]), float(bv[j1])))
+    atlas = special_set(
+        grid_f,
+        grid_g,
+        sub_window,
+        pairs=settings.pairs,
+        resolution=(i1 - i0 + 1, j1 - j0 + 1),
+        method=settings.method,
+        tol=settings.tol,
+        sub=sub,
+        seed=seed,
+        reading="contours",
+        **_no_components(special_set),
+    )
+    c0, c1, d0, d1 = tile.core
+    # the core's inner borders; its sides on the window's border are open (boundary points of
+    # curves may lie a little outside the window, as in the one-piece atlas)
+    inf = float("inf")
+    box = (
+        float(av[c0]) if c0 > 0 else -inf,
+        float(bv[d0]) if d0 > 0 else -inf,
+        float(av[c1]) if c1 < lat.n_a - 1 else inf,
+        float(bv[d1]) if d1 < lat.n_b - 1 else inf,
+    )
+    big = 10.0 * window.diameter
+    core_box = shapely.box(
+        max(box[0], window.a[0] - big),
+        max(box[1], window.b[0] - big),
+        min(box[2], window.a[1] + big),
+        min(box[3], window.b[1] + big),
+    )
+    table = pair_table(grid_f, grid_g, settings.pairs)
+    codes = tie_codes(table, [p.tie for p in atlas.pieces]).tolist() if atlas.pieces else []
+    items: list[TileItem] = []
+    curve_k = [k for k, p in enumerate(atlas.pieces) if p.kind == CURVE]
+    clipped_curves = clip_pieces([atlas.pieces[k].geometry for k in curve_k], box)
+    for k, got in zip(curve_k, clipped_curves, strict=True):
+        if got is not None:
+            items.append(TileItem(int(codes[k]), CURVE, got[0], got[1]))
+    for code, piece in zip(codes, atlas.pieces, strict=True):
+        g = piece.geometry
+        if piece.kind == POINT:
+            xy = shapely.get_coordinates(g)
+            ok_a = (xy[:, 0] >= box[0]) & (xy[:, 0] < box[2])
+            ok_b = (xy[:, 1] >= box[1]) & (xy[:, 1] < box[3])
+            if (ok_a & ok_b).any():
+                items.append(TileItem(int(code), POINT, shapely.MultiPoint(xy[ok_a & ok_b])))
+        elif piece.kind != CURVE:
+            clipped = shapely.intersection(g, core_box)
+            polys = [p for p in shapely.get_parts(clipped) if p.geom_type == "Polygon" and p.area > 0]
+            if polys:
+                items.append(TileItem(int(code), piece.kind, shapely.union_all(polys)))
+    stats = {k: v for k, v in atlas.stats.items() if isinstance(v, (int, float)) and not isinstance(v, bool)}
+    stats["tile_seconds"] = round(time.perf_counter() - t0, 4)
+    stats["halo_cells"] = tile.cells
+    return TileResult(tile.name, tuple(items), stats)
+
+
+def _no_components(fn: Callable[..., Any]) -> dict[str, Any]:
+    """``with_components=False`` where :func:`special_set` offers it (a tile's components are not used)."""
+    import inspect
+
+    return {"with_components": False} if "with_components" in inspect.signature(fn).parameters else {}
+
+
+def clip_pieces(
+    geoms: list[Any], box: tuple[float, float, float, float]
+) -> list[tuple[Any, tuple[tuple[bool, bool], ...]] | None]:
+    """Curve pieces (MultiLineStrings) clipped to ``box``: (geometry, cuts per line) or None when empty.
+
+    A piece whose vertices all lie in the closed box is kept as it is (the usual case, tested
+    for all pieces at once); the others go through :func:`specmap.special.merge.clip_lines`.
+    """
+    if not geoms:
+        return []
+    xy, idx = shapely.get_coordinates(np.array(geoms, dtype=object), return_index=True)
+    out_v = (xy[:, 0] < box[0]) | (xy[:, 0] > box[2]) | (xy[:, 1] < box[1]) | (xy[:, 1] > box[3])
+    whole = np.bincount(idx, weights=out_v, minlength=len(geoms)) == 0
+    n_lines = shapely.get_num_geometries(np.array(geoms, dtype=object))
+    out: list[tuple[Any, tuple[tuple[bool, bool], ...]] | None] = [
+        (g, ((False, False),) * int(n)) if w else None
+        for g, w, n in zip(geoms, whole.tolist(), n_lines.tolist(), strict=True)
+    ]
+    cut = np.nonzero(~whole)[0]
+    runs, cuts, owner = clip_lines([geoms[k] for k in cut.tolist()], box)
+    if runs.size:
+        order = np.argsort(owner, kind="stable")
+        u, first = np.unique(owner[order], return_index=True)
+        bounds = np.append(first, order.size)
+        for j, k in enumerate(u.tolist()):
+            sel = order[bounds[j] : bounds[j + 1]]
+            out[int(cut[k])] = (shapely.multilinestrings(runs[sel]), tuple(cuts[i] for i in sel.tolist()))
+    return out
+
+
+def fingerprint(
+    grid_f: Grid,
+    grid_g: Grid,
+    window: Window,
+    resolution: tuple[int, int],
+    tiles: tuple[int, int],
+    settings: MapSettings,
+) -> str:
+    """SHA-256 of everything a tile's content depends on (grids, window, lattice, tiles, settings)."""
+    blob = json.dumps(
+        {
+            "f": grid_f.to_json(),
+            "g": grid_g.to_json(),
+            "window": window.to_json(),
+            "resolution": list(resolution),
+            "tiles": list(tiles),
+            "pairs": settings.pairs,
+            "method": settings.method,
+            "tol": settings.tol,
+        },
+        sort_keys=True,
+        default=float,
+    )
+    return hashlib.sha256(blob.encode()).hexdigest()[:16]
+
+
+def read_done_tiles(folder: Path, fp: str) -> dict[str, TileResult]:
+    """Finished tiles of ``folder`` with fingerprint ``fp`` (others, torn or stale, are ignored)."""
+    out: dict[str, TileResult] = {}
+    if not folder.is_dir():
+        return out
+    for path in sorted(folder.glob("tile_*.json")):
+        try:
+            d = read_json(path)
+        except (OSError, ValueError):
+            continue
+        if (
+            isinstance(d, dict)
+            and d.get("format") == FORMAT
+            and d.get("done") is True
+            and d.get("fingerprint") == fp
+        ):
+            try:
+                res = TileResult.from_json(d["result"])
+            except (KeyError, TypeError, ValueError, shapely.errors.GEOSException):
+                continue
+            out[res.name] = res
+    return out
+
+
+def write_tile(folder: Path, fp: str, result: TileResult) -> Path:
+    """Write one finished tile (atomic and fsynced; ``"done": true`` marks it complete)."""
+    folder.mkdir(parents=True, exist_ok=True)
+    return write_json(
+        folder / f"{result.name}.json",
+        {"format": FORMAT, "fingerprint": fp, "done": True, "result": result.to_json()},
+    )
+
+
+def tiled_special_set(
+    grid_f: Grid,
+    grid_g: Grid,
+    window: Window,
+    *,
+    tiles: tuple[int, int],
+    settings: MapSettings | None = None,
+    resolution: int | tuple[int, int] | None = None,
+    jobs: int = 1,
+    cluster: str | None = None,
+    folder: str | Path | None = None,
+    progress: Callable[[int, int], None] | None = None,
+    sub: int = 8,
+    seed: int = 0,
+) -> Atlas:
+    """The special set of (Γ(f), Γ(g)) in ``window``, computed in ``tiles = (na, nb)`` tiles.
+
+    The same atlas as :func:`specmap.special.compute.special_set` on the whole window (same
+    pieces per tie, curve lengths, patch areas and components, to rounding): see the module
+    text and :mod:`specmap.special.merge`.
+
+    Parameters
+    ----------
+    grid_f, grid_g : Grid
+    window : Window
+    tiles : (na, nb)
+        Tiles along a and along b.
+    settings : MapSettings, optional
+        ``pairs``, ``method``, ``tol``, ``reading`` (and ``resolution`` unless given); default
+        ``MapSettings()``.
+    resolution : int or (n_a, n_b), optional
+        Lattice nodes of the whole window; default ``settings.resolution``.
+    jobs : int
+        Local worker processes (joblib); ignored with ``cluster``.
+    cluster : str, optional
+        Address of a Dask scheduler (``tcp://host:port``).
+    folder : path, optional
+        Tile folder: finished tiles are written there and reused by a rerun (same
+        fingerprint of grids, window, lattice, tiles and settings).
+    progress : callable (done, total), optional
+        Called with tiles done / total.
+    sub, seed : int
+        As in :func:`~specmap.special.compute.special_set`.
+
+    Returns
+    -------
+    Atlas
+        ``stats`` sums the tiles' counters (cells of the halos counted in each tile that
+        computes them) and adds ``tiles`` (grid, count, reused, seconds per tile).
+    """
+    from specmap.special.components import components
+    from specmap.special.compute import default_tolerance, with_reasons
+    from specmap.special.reading import points_reading
+
+    t_start = time.perf_counter()
+    settings = MapSettings() if settings is None else settings
+    res = settings.resolution if resolution is None else resolution
+    n_a, n_b = (res, res) if isinstance(res, int) else (int(res[0]), int(res[1]))
+    tol = default_tolerance(grid_f, grid_g) if settings.tol is None else float(settings.tol)
+    settings = MapSettings(
+        pairs=settings.pairs, resolution=n_a, method=settings.method, tol=tol, reading=settings.reading
+    )
+    plan = plan_tiles(n_a, n_b, tiles)
+    fp = fingerprint(grid_f, grid_g, window, (n_a, n_b), tiles, settings)
+    store = Path(folder) if folder is not None else None
+    done = read_done_tiles(store, fp) if store is not None else {}
+    reused = sum(1 for t in plan if t.name in done)
+    todo = [t for t in plan if t.name not in done]
+    if progress is not None:
+        progress(len(plan) - len(todo), len(plan))
+    if todo:
+        from joblib import delayed
+
+        from specmap.perturb.execution import _results as results_of
+
+        tasks = [
+            delayed(tile_pieces)(grid_f, grid_g, window, (n_a, n_b), t, settings, sub=sub, seed=seed)
+            for t in todo
+        ]
+        runner: Iterable[Any] = (
+            results_of(tasks, max(1, int(jobs)), cluster) if (jobs > 1 or cluster) else map(_call, tasks)
+        )
+        for result in runner:
+            if store is not None:
+                write_tile(store, fp, result)
+            done[result.name] = result
+            if progress is not None:
+                progress(sum(1 for t in plan if t.name in done), len(plan))
+    results = [done[t.name] for t in plan]
+    t_merge = time.perf_counter()
+    table = pair_table(grid_f, grid_g, settings.pairs)
+    items = merge_items(results, window.diameter)
+    removed = {"curves": 0, "points": 0, "patches": 0}
+    if settings.reading == "points":
+        items, removed = points_reading(table, items)
+    pieces = as_pieces(table, items)
+    lat = Lattice.of(window, n_a, n_b)
+    comps = with_reasons(components(tuple(pieces), window, lat), pieces, table, tol)
+    summed: dict[str, Any] = {}
+    for r in results:
+        for k, v in r.stats.items():
+            if k not in ("contours", "pairs_total", "snap", "seconds", "tile_seconds", "halo_cells"):
+                summed[k] = summed.get(k, 0) + v
+    stats = {
+        "contours": len(table.contours),
+        "pairs_total": table.n_pairs,
+        **summed,
+        "tie_curves": sum(len(shapely.get_parts(g)) for _, k, g in items if k == CURVE),
+        "ties_with_curves": sum(1 for _, k, _ in items if k == CURVE),
+        "ties_with_patches": sum(1 for _, k, _ in items if k == "patch"),
+        "pieces": len(pieces),
+        "reading": settings.reading,
+        **{f"coincident_{k}_removed": v for k, v in removed.items()},
+        "snap": 1e-3 * tol,
+        "tiles": {
+            "grid": [int(tiles[0]), int(tiles[1])],
+            "count": len(plan),
+            "reused": reused,
+            "halo_cells": 1,
+            "seconds_per_tile": [float(r.stats.get("tile_seconds", 0.0)) for r in results],
+            "merge_s": round(time.perf_counter() - t_merge, 4),
+        },
+        "seconds": round(time.perf_counter() - t_start, 4),
+    }
+    return Atlas(window, tol, settings.pairs, settings.method, (n_a, n_b), tuple(pieces), comps, stats)
+
+
+def _call(task: tuple) -> Any:
+    """Run one joblib ``delayed`` task in this process."""
+    fn, args, kwargs = task
+    return fn(*args, **kwargs)
