@@ -334,6 +334,19 @@ def _pointer(br: Browser, a: float, b: float, kind: str = "mouseMoved") -> None:
         br.send("Input.dispatchMouseEvent", {"type": "mouseMoved", "x": p["x"], "y": p["y"]})
 
 
+def _label_boxes(br: Browser) -> list[list[float]]:
+    """Screen boxes [x0, y0, x1, y1] of the meet labels drawn on the grids chart."""
+    js = (
+        "JSON.stringify([...document.querySelectorAll('#grids .annotation-text')].filter(t => t.textContent)"
+        ".map(t => { const r = t.getBoundingClientRect(); return [r.left, r.top, r.right, r.bottom]; }))"
+    )
+    return json.loads(br.evaluate(js))
+
+
+def _overlap(p: list[float], q: list[float]) -> bool:
+    return p[0] < q[2] - 0.5 and q[0] < p[2] - 0.5 and p[1] < q[3] - 0.5 and q[1] < p[3] - 0.5
+
+
 def _text(br: Browser, element: str) -> str:
     return br.evaluate(f"document.getElementById('{element}').innerText") or ""
 
@@ -378,6 +391,14 @@ def test_explorer_in_headless_chromium(tmp_path: Path) -> None:
         br.pump(0.3)
         assert "|f:v0 - g:v0| = |f:v1 - g:v1|" in _text(br, "here-ties")
         assert "holds on patch c0" in _text(br, "here-ties")
+        # the four contours' meets lie at x = 0, 0.3, 1, 1.3 on a nearly flat line (the y range spans the
+        # far half-line starts): their labels would overlap; the ones drawn must not, the rest are named
+        br.wait_for("document.querySelectorAll('#grids .annotation-text').length >= 2", 10)
+        br.pump(0.3)
+        boxes = _label_boxes(br)
+        hidden = re.findall(r"[fg]:v\d c=", _text(br, "here-line"))
+        assert len(boxes) + len(hidden) == 4 and len(boxes) >= 2
+        assert not any(_overlap(p, q) for i, p in enumerate(boxes) for q in boxes[i + 1 :])
         _pointer(br, 0.5, -0.6, "click")
         br.pump(0.3)
         comp = _text(br, "comp-ties")

@@ -145,8 +145,8 @@ gridTraces.push({type: "scatter", mode: "lines", x: [], y: [], name: "contours o
   line: {color: "#111", width: 4}, opacity: 0.55, hoverinfo: "skip"});
 gridTraces.push({type: "scatter", mode: "lines", x: [], y: [], name: "line r(a, b)", line: {color: "#c2185b", width: 2},
   hoverinfo: "skip"});
-gridTraces.push({type: "scatter", mode: "markers+text", x: [], y: [], text: [], textposition: "top right",
-  name: "where r(a, b) meets a contour", marker: {color: "#c2185b", size: 7}, textfont: {size: 10}, hoverinfo: "skip"});
+gridTraces.push({type: "scatter", mode: "markers", x: [], y: [],
+  name: "where r(a, b) meets a contour", marker: {color: "#c2185b", size: 7}, hoverinfo: "skip"});
 const gridLayout = {margin: {l: 55, r: 10, t: 30, b: 40}, title: {text: "extended Pareto grids and the line r(a, b)", font: {size: 13}, x: 0.01, xanchor: "left"},
   xaxis: {range: [X0, X1], title: {text: "f1 / g1"}, zeroline: false}, yaxis: {range: [Y0, Y1], title: {text: "f2 / g2"},
   zeroline: false}, dragmode: "pan", showlegend: true,
@@ -258,7 +258,36 @@ function update(a, b) {
   const mx = [], my = [], mt = [], mm = Math.min(a, 1 - a);
   for (const id in contours) { const s = lineParameter(contours[id], a, b); if (s === null) continue;
     mx.push(a * s + b); my.push((1 - a) * s - b); mt.push(ids.has(id) ? id + " c=" + fmt(mm * s, 3) : ""); }
-  Plotly.restyle("grids", {x: [hx, [X0, X1], mx], y: [hy, [m * (X0 - b) - b, m * (X1 - b) - b], my], text: [null, null, mt]}, [HL, LINE, MEET]);
+  const lab = declutter(mx, my, mt);
+  Plotly.restyle("grids", {x: [hx, [X0, X1], mx], y: [hy, [m * (X0 - b) - b, m * (X1 - b) - b], my]}, [HL, LINE, MEET]);
+  Plotly.relayout("grids", {annotations: lab.notes});
+  if (lab.hidden.length) $("here-line").textContent += " (crowded, not labelled on the grids: " + lab.hidden.join("; ") + ")";
+}
+const MEASURE = document.createElement("canvas").getContext("2d");  // label widths in pixels
+const SLOTS = [[1, -1], [1, 1], [-1, -1], [-1, 1]];  // right/left, above/below the point (pixel y grows down)
+function declutter(xs, ys, texts) {
+  // greedy label placement in pixels: each label takes the first corner around its point whose box
+  // meets no label placed before (nor the plot edge); a label with no free corner is left out and named.
+  // Labels are layout annotations (one per meet), anchored at the corner they take.
+  const fl = $("grids")._fullLayout, xa = fl.xaxis, ya = fl.yaxis, H = 13, G = 3, placed = [];
+  MEASURE.font = "10px " + (fl.font.family || "sans-serif");
+  const notes = [], hidden = [];
+  for (let i = 0; i < xs.length; i++) {
+    if (!texts[i]) continue;
+    const px = xa.l2p(xs[i]), py = ya.l2p(ys[i]), w = MEASURE.measureText(texts[i]).width + 4;
+    let done = false;
+    for (const [sx, sy] of SLOTS) {
+      const x0 = sx > 0 ? px + G : px - G - w, y0 = sy > 0 ? py + G : py - G - H, box = [x0, y0, x0 + w, y0 + H];
+      if (box[0] < 0 || box[2] > xa._length || box[1] < 0 || box[3] > ya._length) continue;
+      if (placed.some(q => box[0] < q[2] && q[0] < box[2] && box[1] < q[3] && q[1] < box[3])) continue;
+      placed.push(box);
+      notes.push({x: xs[i], y: ys[i], text: texts[i], showarrow: false, font: {size: 10, color: "#c2185b"},
+        xanchor: sx > 0 ? "left" : "right", yanchor: sy > 0 ? "top" : "bottom", xshift: sx * G, yshift: -sy * G});
+      done = true; break;
+    }
+    if (!done) hidden.push(texts[i]);
+  }
+  return {notes: notes, hidden: hidden};
 }
 function select(a, b) {
   let cid = null;
