@@ -260,6 +260,15 @@ def make_folder(root: Path) -> Path:
                 "length": 3.8,
                 "bbox": [1 / 3, -0.95, 0.9, 0.95],
                 "ties": TIES,
+                # tie 2: x(f:v0) - x(g:v0) = -0.3 = x(f:v1) - x(g:v1), the same gap with the same sign (closed form)
+                "reasons": [
+                    {
+                        "kind": "equal_spacing",
+                        "contours": ["f:v0", "g:v0", "f:v1", "g:v1"],
+                        "component": "first",
+                        "breaks_at": 1e-9,
+                    }
+                ],
             }
         ],
         "total_area": 0.3,
@@ -403,6 +412,7 @@ def test_explorer_in_headless_chromium(tmp_path: Path) -> None:
         br.pump(0.3)
         comp = _text(br, "comp-ties")
         assert "component c0" in comp and "3 ties" in comp
+        assert "why: explained by equal spacing (1 identity) of the critical values of f1 and g1" in comp
         shot = br.send("Page.captureScreenshot", {"format": "png"})
         png = tmp_path / "explore.png"
         png.write_bytes(base64.b64decode(shot["data"]))

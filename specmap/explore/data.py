@@ -19,6 +19,7 @@ import numpy as np
 from specmap.explore.lines import explorer_lines
 from specmap.report.figures import distance_map_samples
 from specmap.report.fmt import num, nums
+from specmap.report.summary import reason_sentence
 from specmap.report.ties import TieIndex, family, index_ties
 
 CURVE_POINTS = 120_000
@@ -115,6 +116,10 @@ def explorer_data(
                 "area": num(c.get("area")),
                 "ties": [_tie_json(t) for t in c.get("ties") or [] if isinstance(t, dict)],
                 "patch_ties": ix.patch_ties.get(cid, []),
+                "why": (reason_sentence({"components": [c]}) or "")
+                .partition(": ")[2]
+                .replace("it is explained", "explained", 1)
+                or None,
             }
         )
     patches = []

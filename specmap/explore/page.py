@@ -39,6 +39,7 @@ TEMPLATE = """<!DOCTYPE html>
   .mono { font-family: "DejaVu Sans Mono", monospace; font-size: 12.5px; }
   .tie { margin: 2px 0; }
   .held { color: #1b6e3c; }
+  .why { margin: 4px 0; color: #1b6e3c; }
   .muted { color: #666; }
   #comp-ties { max-height: 260px; overflow-y: auto; }
   #lines-panel { flex: 1.7; }
@@ -297,6 +298,7 @@ function select(a, b) {
   const c = comps[cid], held = new Set(c.patch_ties);
   $("comp-ties").innerHTML = "<b>component " + esc(cid) + "</b> (" + esc(c.kind) + (c.kind === "patch" ? ", area " + fmt(c.area, 3) : "")
     + "): " + c.ties.length + " ties" + (held.size ? ", " + held.size + " hold identically on its patches (green)" : "")
+    + (c.why ? "<div class='why'>why: " + esc(c.why) + "</div>" : "")
     + c.ties.map((t, i) => "<div class='tie mono" + (held.has(i) ? " held" : "") + "'>" + esc(tieText(t)) + "  <span class='muted'>" + esc(t.family) + "</span></div>").join("");
 }
 function toData(gd, ev) {
