@@ -10,6 +10,10 @@ import argparse
 import os
 import signal
 import sys
+import warnings
+from collections import Counter
+from collections.abc import Iterator
+from contextlib import contextmanager
 from pathlib import Path
 
 from specmap import __version__
@@ -331,10 +335,57 @@ def run(argv: list[str] | None = None) -> int:
     return 0
 
 
+@contextmanager
+def counted_float_warnings() -> Iterator[Counter[str]]:
+    """Count numpy's floating-point RuntimeWarnings instead of printing each (two lines apiece).
+
+    Huge inputs (coordinates of 1e200, a map like x*x*x*x) made numpy print dozens of
+    "overflow encountered in multiply" lines. Inside the block each such warning (every
+    occurrence) only adds to the yielded counter, keyed by its kind ("overflow", "invalid value",
+    "divide by zero", "underflow"); other warnings print as usual. :func:`main` turns the counts
+    into one line, :func:`float_warning_line`.
+    """
+    counts: Counter[str] = Counter()
+    with warnings.catch_warnings():
+        warnings.filterwarnings("always", message=r".* encountered in ", category=RuntimeWarning)
+        shown = warnings.showwarning
+
+        def show(message, category, filename, lineno, file=None, line=None):  # type: ignore[no-untyped-def]
+            text = str(message)
+            if issubclass(category, RuntimeWarning) and " encountered in " in text:
+                counts[text.split(" encountered in ")[0]] += 1
+                return
+            shown(message, category, filename, lineno, file, line)
+
+        warnings.showwarning = show
+        yield counts
+
+
+def float_warning_line(counts: Counter[str]) -> str | None:
+    """One line for the counted floating-point warnings of a finished run (None when there were none).
+
+    >>> float_warning_line(Counter({"overflow": 7, "invalid value": 2}))[:83]
+    'specmap: warning: numpy met 9 floating-point problems (overflow 7, invalid value 2)'
+    """
+    if not counts:
+        return None
+    kinds = ", ".join(f"{k} {n}" for k, n in counts.most_common())
+    return (
+        f"specmap: warning: numpy met {sum(counts.values())} floating-point problems ({kinds}): some "
+        "values exceeded double precision and may be inf or nan in the results; rescale the inputs "
+        "(coordinates, map) towards 1 and rerun"
+    )
+
+
 def main(argv: list[str] | None = None) -> None:
     previous = signal.signal(signal.SIGTERM, _on_sigterm)
+    counts: Counter[str] = Counter()
     try:
-        code = run(argv)
+        with counted_float_warnings() as counts:
+            code = run(argv)
+        line = float_warning_line(counts)  # on a user error the one error line says enough
+        if line:
+            print(line, file=sys.stderr)
     except SpecmapInputError as exc:
         print(f"specmap: error: {exc.one_line()}", file=sys.stderr)
         code = EXIT_USER

@@ -52,8 +52,9 @@ FORMAT_VERSION = 1
 PARTS = ("inputs", "window", "map", "distance", "perturb")
 """The ingredients a result file can depend on, in the order they are listed."""
 
-#: MapSettings fields that do not change the atlas (max_contours acts on the inputs, see inputs_part)
-_NOT_ATLAS = ("max_contours",)
+#: MapSettings fields that do not change the atlas: max_contours acts on the inputs (see inputs_part), a
+#: memory budget and tiles only decide how it is computed
+_NOT_ATLAS = ("max_contours", "memory", "tiles")
 #: ShapeSpec JSON keys that say where a file is or how to show it, not what it holds
 _NOT_CONTENT = ("path", "description")
 

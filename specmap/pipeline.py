@@ -45,15 +45,31 @@ def load_input(spec: ShapeSpec, study: Study) -> tuple[Shape | Grid, dict[str, A
     if spec.source == "grid":
         return read_grid(spec.path, prefix=spec.label), None
     from specmap.shapes.build import build_shape  # local: meshio, scipy and the expression compiler
-    from specmap.shapes.normality import tolerated
+    from specmap.shapes.normality import out_of_range, tolerated
 
     if spec.insist:  # a non-normal pair is built, and its reason kept for the caveats
         with tolerated() as reasons:
             shape = build_shape(spec, study)
         if reasons:
             shape = dataclasses.replace(shape, meta={**shape.meta, "not_normal": reasons[0]})
+            print(
+                f"specmap: note: {spec.label}: {reasons[0]}: not a normal pair; going on because "
+                f"[{spec.label}] insist = true (every result file and the report carry the caveat)",
+                file=sys.stderr,
+            )
     else:
         shape = build_shape(spec, study)
+    too_big = out_of_range(shape.vertices, shape.values)
+    if too_big is not None:  # products of such numbers overflow: refuse rather than print inf/nan warnings
+        from specmap.errors import StudyError
+
+        on_mesh = too_big.startswith("coordinates") and spec.source == "mesh"
+        raise StudyError(
+            too_big,
+            file=str(spec.path if on_mesh else study.path),
+            field=f"{spec.label}.{'mesh' if on_mesh else 'map' if spec.map else 'fields'}",
+            fix="rescale the " + ("mesh (other length units)" if on_mesh else "map or fields") + " towards 1",
+        )
     if spec.source != "mesh" or not spec.simplify:
         return shape, None
     import numpy as np

@@ -13,6 +13,7 @@ import stat
 import subprocess
 from pathlib import Path
 
+import numpy as np
 import pytest
 
 from specmap.errors import ExpressionError
@@ -183,3 +184,105 @@ def test_bad_result_file_report_one_line_exit_2(case: str, tmp_path: Path) -> No
     proc = run_cli(["report", str(root)], tmp_path)
     assert_user_error(proc, *needles)
     assert not (root / "report.pdf").exists()
+
+
+# --------------------------------------------------------------------------- 3. huge numbers
+
+
+def _scaled_mesh(path: Path, scale: float) -> Path:
+    """An ellipsoid mesh (radii 2, 1, 1) with every coordinate multiplied by ``scale``, as PLY."""
+    import meshio
+
+    from specmap.shapes.surfaces import make_surface
+
+    V, T = make_surface("ellipsoid", (2.0, 1.0, 1.0)).mesh(400)
+    meshio.write(path, meshio.Mesh(V * scale, [("triangle", T.astype(np.int32))]))
+    return path
+
+
+def _mesh_study(tmp_path: Path, mesh: str, fmap: str) -> Path:
+    study = tmp_path / "s.toml"
+    study.write_text(
+        HEAD + f'[f]\nmesh = "{mesh}"\nmap = [{fmap}]\n[g]\nmesh = "{mesh}"\nmap = ["x", "y + z"]\n'
+    )
+    return study
+
+
+@pytest.mark.parametrize("scale", [1e99, 1e150, 1e200])
+def test_huge_coordinates_one_line_exit_2(tmp_path: Path, scale: float) -> None:
+    # Issue 14: coordinates of 1e200 printed dozens of numpy overflow warnings (and 1e150 made the
+    # normality test call x, y "parallel everywhere"); the range |x| <= 1e75 is stated in
+    # specmap/shapes/normality.py (products of four coordinates stay below 1.8e308, closed form)
+    _scaled_mesh(tmp_path / "big.ply", scale)
+    _mesh_study(tmp_path, "big.ply", '"x", "y"')
+    proc = run_cli(["grid", "s.toml"], tmp_path)
+    assert_user_error(proc, "big.ply", "f.mesh", "coordinates", "rescale")
+    assert "RuntimeWarning" not in proc.stderr
+
+
+def test_huge_values_one_line_exit_2(tmp_path: Path) -> None:
+    # coordinates of 2e30 are in range, x^4 reaches 1.6e121 (closed form: (2e30)^4), beyond 1e75
+    _scaled_mesh(tmp_path / "m.ply", 1e30)
+    _mesh_study(tmp_path, "m.ply", '"x*x*x*x", "y"')
+    proc = run_cli(["grid", "s.toml"], tmp_path)
+    assert_user_error(proc, "s.toml", "f.map", "values", "1e+75")
+
+
+def test_large_but_in_range_mesh_runs_with_a_quiet_stderr(tmp_path: Path) -> None:
+    # 1e74 is inside the stated range: the grid is computed (the same contour count as the unit
+    # mesh, since scaling a PL pair by c > 0 maps its Pareto grid by c) and nothing is printed
+    _scaled_mesh(tmp_path / "m.ply", 1e74)
+    _scaled_mesh(tmp_path / "u.ply", 1.0)
+    counts = []
+    for mesh in ("m.ply", "u.ply"):
+        _mesh_study(tmp_path, mesh, '"x", "y"')
+        proc = run_cli(["grid", "s.toml", "--out", "r-" + mesh], tmp_path)
+        assert proc.returncode == 0 and proc.stderr.strip() == "", proc.stderr
+        counts.append(len(json.loads((tmp_path / ("r-" + mesh) / "grid_f.json").read_text())["contours"]))
+    assert counts[0] == counts[1]
+
+
+def test_float_warnings_become_one_counted_line(monkeypatch: pytest.MonkeyPatch, capsys) -> None:
+    # 40 overflows and 3 invalid values in a successful run: one line with the counts, not 86 lines
+    import specmap.cli as cli
+
+    def noisy(argv: list[str] | None = None) -> int:
+        big = np.array([1e300])
+        for _ in range(40):
+            _ = big * big
+        for _ in range(3):
+            _ = np.array([np.inf]) - np.array([np.inf])
+        return 0
+
+    monkeypatch.setattr(cli, "run", noisy)
+    with pytest.raises(SystemExit) as code:
+        cli.main([])
+    err = [ln for ln in capsys.readouterr().err.splitlines() if ln.strip()]
+    assert code.value.code == 0 and len(err) == 1, err
+    assert "overflow 40" in err[0] and "invalid value 3" in err[0] and "43" in err[0]
+
+
+def test_float_warnings_before_a_user_error_leave_only_the_error(
+    monkeypatch: pytest.MonkeyPatch, capsys
+) -> None:
+    import specmap.cli as cli
+    from specmap.errors import StudyError
+
+    def failing(argv: list[str] | None = None) -> int:
+        _ = np.array([1e300]) * 1e300
+        raise StudyError("bad", file="s.toml", field="f.map", fix="fix it")
+
+    monkeypatch.setattr(cli, "run", failing)
+    with pytest.raises(SystemExit) as code:
+        cli.main([])
+    err = [ln for ln in capsys.readouterr().err.splitlines() if ln.strip()]
+    assert code.value.code == 2 and len(err) == 1 and err[0].startswith("specmap: error: s.toml: f.map")
+
+
+def test_insist_must_be_true_or_false(tmp_path: Path) -> None:
+    body = (
+        '[f]\nsurface = "ellipsoid"\nradii = [2, 1, 1]\nmap = ["x", "y"]\ninsist = "yes"\n'
+        '[g]\nsurface = "ellipsoid"\nradii = [2, 1, 1]\nmap = ["x", "y"]\n'
+    )
+    (tmp_path / "s.toml").write_text(HEAD + body)
+    assert_user_error(run_cli(["grid", "s.toml"], tmp_path), "s.toml", "f.insist", "true or false")

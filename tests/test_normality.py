@@ -9,6 +9,7 @@ set is where the surface normal is horizontal or vertical in a fixed way, a unio
 
 from __future__ import annotations
 
+import json
 from pathlib import Path
 
 import numpy as np
@@ -68,3 +69,52 @@ def test_cli_refuses_a_dependent_pair(tmp_path: Path):
     proc = run_cli(["grid", "d.toml"], tmp_path)
     assert_user_error(proc, "d.toml", "f.map", "not normal", "independent")
     assert not (tmp_path / "results").exists()
+
+
+@pytest.mark.parametrize("scale", [1e-150, 1e70, 1e150])
+def test_the_test_does_not_depend_on_the_scale(mesh, scale):
+    # closed form: scaling the surface by c > 0 scales the normals' lengths only and the gradients
+    # of x, y by 1, of x*y by c; normality is a property of the pair, not of the units (the old test
+    # overflowed at 1e150 and called (x, y) "parallel everywhere")
+    V, T = mesh
+    Vs = V * scale
+    for texts, normal in ((["x", "y"], True), (["x + 0.3*z", "y - 0.2*z"], True), (["x", "3*x"], False)):
+        fmap = compile_map(texts)
+        why = degeneracy(Vs, T, fmap.values(Vs), fmap.jacobian(Vs))
+        assert (why is None) == normal, (texts, why)
+    assert degeneracy(Vs, T, Vs[:, :2]) is None
+    assert "affinely dependent" in degeneracy(Vs, T, np.c_[Vs[:, 0], -2 * Vs[:, 0]])
+
+
+def test_tolerated_records_instead_of_reporting(mesh):
+    from specmap.shapes.normality import tolerated
+
+    V, T = mesh
+    fmap = compile_map(["x", "x*x*x + 2*x"])
+    with tolerated() as reasons:
+        assert degeneracy(V, T, fmap.values(V), fmap.jacobian(V)) is None
+        assert degeneracy(V, T, V[:, :2]) is None  # a normal pair adds nothing
+    assert len(reasons) == 1 and "parallel everywhere" in reasons[0]
+    # outside the block the check reports again
+    assert "parallel everywhere" in degeneracy(V, T, fmap.values(V), fmap.jacobian(V))
+
+
+def test_insist_goes_on_with_the_caveat_in_every_result(tmp_path: Path):
+    # the dependent pair of test_cli_refuses_a_dependent_pair, with [f] insist = true: computed,
+    # one note on the terminal, and the caveat in each result file (specmap/fingerprint.py contract)
+    (tmp_path / "d.toml").write_text(
+        '[study]\nname = "dep"\n'
+        '[f]\nsurface = "torus"\nradii = [1.0, 0.4]\nresolution = 400\nmap = ["x*y", "x*y"]\ninsist = true\n'
+        '[g]\nsurface = "torus"\nradii = [1.0, 0.4]\nresolution = 400\nmap = ["x", "y"]\n'
+        "[map]\nresolution = 21\n"
+    )
+    proc = run_cli(["grid", "d.toml", "--out", "res"], tmp_path)
+    assert proc.returncode == 0, proc.stderr
+    notes = [ln for ln in proc.stderr.splitlines() if ln.strip()]
+    assert len(notes) == 1 and "insist = true" in notes[0] and "not a normal pair" in notes[0]
+    for name in ("grid_f.json", "grid_g.json", "study.json"):
+        caveats = json.loads((tmp_path / "res" / name).read_text())["caveats"]
+        assert len(caveats) == 1 and caveats[0].startswith("f is not a normal pair"), name
+    from specmap.report.load import load_results
+
+    assert load_results(tmp_path / "res")["caveats"] == caveats

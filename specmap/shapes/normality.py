@@ -25,9 +25,40 @@ import numpy as np
 ZERO = 1e-9
 
 
+def _unit_scale(x: np.ndarray, axis: tuple[int, ...] | None = None) -> np.ndarray:
+    """``x`` divided by its largest finite absolute value (along the other axes), so that squares and
+    products of its entries cannot overflow (a mesh with coordinates of 1e200 is scaled to 1)."""
+    big = np.max(np.abs(np.where(np.isfinite(x), x, 0.0)), axis=axis, keepdims=axis is not None)
+    return x / np.where(big > 0, big, 1.0)
+
+
+RANGE = 1e75
+"""Largest magnitude of a coordinate or a value specmap computes with. The mesh, grid, slice and
+distance computations form products of up to four coordinates or value differences (the squared
+norm of a cross product, 2 x 2 determinants of differences); below 1e75 these stay finite in
+double precision (1e300 < 1.8e308), above it they overflow into inf and nan (measured: a mesh
+scaled to 1e99 overflows in the mesh checks) and gave wrong grids with exit 0."""
+
+
+def out_of_range(V: np.ndarray, values: np.ndarray) -> str | None:
+    """Why the coordinates or values are too large to compute with (:data:`RANGE`), or None.
+
+    >>> out_of_range(np.ones((3, 3)) * 1e150, np.ones((3, 2)))
+    'coordinates up to 1e+150 exceed the supported range |x| <= 1e+75'
+    >>> out_of_range(np.ones((3, 3)), np.ones((3, 2))) is None
+    True
+    """
+    for what, arr in (("coordinates", V), ("values", values)):
+        a = np.abs(np.asarray(arr, float))
+        top = float(a[np.isfinite(a)].max(initial=0.0))
+        if top > RANGE:
+            return f"{what} up to {top:.3g} exceed the supported range |x| <= {RANGE:.0e}"
+    return None
+
+
 def vertex_normals(V: np.ndarray, T: np.ndarray) -> np.ndarray:
-    """Unit area-weighted vertex normals (n, 3) of a triangle mesh."""
-    V = np.asarray(V, float)
+    """Unit area-weighted vertex normals (n, 3) of a triangle mesh (any coordinate scale)."""
+    V = _unit_scale(np.asarray(V, float))  # normals do not change under a uniform scaling
     T = np.asarray(T, np.int64)
     fn = np.cross(V[T[:, 1]] - V[T[:, 0]], V[T[:, 2]] - V[T[:, 0]])
     n = np.zeros_like(V)
@@ -39,6 +70,7 @@ def vertex_normals(V: np.ndarray, T: np.ndarray) -> np.ndarray:
 
 def _symbolic(V: np.ndarray, T: np.ndarray, jac: np.ndarray) -> str | None:
     nrm = vertex_normals(V, T)
+    jac = _unit_scale(jac, axis=(0, 2))  # each component by its own largest entry: the tests are ratios
     g = jac - np.einsum("nij,nj->ni", jac, nrm)[:, :, None] * nrm[:, None, :]  # tangential gradients
     mag = np.linalg.norm(g, axis=2)  # (n, 2)
     scale = np.linalg.norm(jac, axis=2).max(axis=0)
@@ -54,6 +86,7 @@ def _symbolic(V: np.ndarray, T: np.ndarray, jac: np.ndarray) -> str | None:
 
 
 def _piecewise(V: np.ndarray, T: np.ndarray, values: np.ndarray) -> str | None:
+    values = _unit_scale(values, axis=(0,))  # per component: the tests are ratios
     span = np.ptp(values, axis=0)
     size = np.abs(values).max(axis=0)
     for i in (0, 1):
