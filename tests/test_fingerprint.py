@@ -217,3 +217,17 @@ def test_jobs_do_not_change_the_search(folder: Path) -> None:
     assert one["reduced"]["lines"] == two["reduced"]["lines"]
     assert one["reduced"]["slope_search"]["rounds"] == two["reduced"]["slope_search"]["rounds"]
     assert dataclasses.replace(settings).batch is not None  # the default does not follow the jobs
+
+
+def test_map_with_other_pairs_after_a_perturbation_study_is_refused(folder: Path) -> None:
+    # issue 14: `map --pairs roles` after a perturbation study on all pairs mixed 82% and 98% patch
+    # figures in one finding; the summary records the map part of the runs' own settings
+    (folder / "s.toml").write_text(STUDY + "[perturb]\nsize = 1e-3\nruns = 2\n")
+    assert cli("perturb", "s.toml", "--out", "res", cwd=folder).returncode == 0
+    summary = json.loads((folder / "res" / "perturb" / "summary.json").read_text())
+    assert summary["fingerprint_parts"]["perturb"] == summary["fingerprint"]  # the run-set fingerprint
+    assert summary["fingerprint_parts"]["map"] == parts(folder, "special.json")["map"]
+    load_results(folder / "res")  # consistent so far
+    assert cli("map", "s.toml", "--out", "res", "--pairs", "roles", cwd=folder).returncode == 0
+    line = one_line_error(cli("report", "res", cwd=folder))
+    assert "special.json" in line and "map" in line and ("summary.json" in line or "distance.json" in line)

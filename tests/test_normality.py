@@ -118,3 +118,19 @@ def test_insist_goes_on_with_the_caveat_in_every_result(tmp_path: Path):
     from specmap.report.load import load_results
 
     assert load_results(tmp_path / "res")["caveats"] == caveats
+
+
+def test_report_first_note_is_the_caveat():
+    # page 1's boxed note is the first of ranked_notes (specmap/report/pdf.py); a caveat outranks all
+    from specmap.report.summary import SEVERITY_NAMES, ranked_notes
+
+    caveat = "f is not a normal pair (f1 is constant on the surface); computed only because ..."
+    res = {
+        "caveats": [caveat],
+        "stages": {"grids": True, "special": False, "distance": False, "perturb": False},
+    }
+    notes = ranked_notes(res)
+    assert notes[0].severity == 0 and caveat in notes[0].text and "insist" in notes[0].todo
+    assert SEVERITY_NAMES[0] == "outside the theory"
+    assert [n.severity for n in notes[1:]] == [4, 4, 4]
+    assert all(n.severity > 0 for n in ranked_notes({**res, "caveats": []}))

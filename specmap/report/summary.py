@@ -71,7 +71,7 @@ class Note:
     todo: str
 
 
-SEVERITY_NAMES = {1: "contradiction", 2: "unsure value", 3: "caveat", 4: "missing"}
+SEVERITY_NAMES = {0: "outside the theory", 1: "contradiction", 2: "unsure value", 3: "caveat", 4: "missing"}
 
 
 def _pt(p: Any) -> tuple[float, float] | None:
@@ -414,7 +414,8 @@ def grid_only(res: dict[str, Any]) -> bool:
 def ranked_notes(res: dict[str, Any]) -> list[Note]:
     """Every issue of the result with what to do about it, most severe first.
 
-    Severity 1: the numbers contradict a theorem (theorem gap, stability violations);
+    Severity 0: the pair is outside the theory (a non-normal pair the study insisted on, from
+    the result files' ``caveats``); 1: the numbers contradict a theorem (theorem gap, stability violations);
     2: a value is not sure (uncertified maximum, D not resolved above the tolerance);
     3: caveats (position audit below 100%, a patch without a perturbation study, tie
     curves that cross the slope-one line only); 4: stages not run.
@@ -425,7 +426,15 @@ def ranked_notes(res: dict[str, Any]) -> list[Note]:
     ...     "distance": False, "perturb": False}})]
     [4, 4, 4]
     """
-    notes: list[Note] = []
+    notes: list[Note] = [  # severity 0: the study insisted on a non-normal pair (issue 14 item 5)
+        Note(
+            0,
+            "non-normal pair computed on request",
+            f"{caveat}.",
+            "give two non-constant, functionally independent measurements and remove insist = true.",
+        )
+        for caveat in res.get("caveats") or ()
+    ]
     d = res.get("distance") or {}
     audit = d.get("audit") or {}
     tol = num(d.get("tolerance"))
