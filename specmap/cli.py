@@ -61,6 +61,29 @@ def _positive(text: str) -> int:
     return v
 
 
+def _memory(text: str) -> float:
+    from specmap.errors import InputValueError
+    from specmap.special.preflight import parse_memory
+
+    try:
+        return parse_memory(text)
+    except InputValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a memory size like 6GB or 512MB") from None
+
+
+def _tiles(text: str) -> tuple[int, int] | str:
+    if text == "auto":
+        return "auto"
+    parts = text.lower().replace(",", "x").split("x")
+    try:
+        na, nb = (int(x) for x in parts)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not tiles like 2x2 or auto") from None
+    if min(na, nb) < 1:
+        raise argparse.ArgumentTypeError(f"{text!r}: tile counts must be >= 1")
+    return (na, nb)
+
+
 def build_parser() -> argparse.ArgumentParser:
     p = argparse.ArgumentParser(
         prog="specmap",
@@ -91,6 +114,20 @@ def build_parser() -> argparse.ArgumentParser:
         choices=["sweep", "naive"],
         help="detection method: sweep (fast) or naive (slow reference); default: study's",
     )
+    sp.add_argument(
+        "--memory",
+        type=_memory,
+        help="memory budget of the map, e.g. 6GB (default: study's [map] memory, else half of RAM); "
+        "a map over it is computed in tiles",
+    )
+    sp.add_argument("--tiles", type=_tiles, help="tiles along a and b, e.g. 2x2, or auto (default: study's)")
+    sp.add_argument(
+        "--jobs",
+        type=_positive,
+        default=1,
+        help="parallel tile workers of a tiled map (default 1; capped at the core count unless --cluster)",
+    )
+    sp.add_argument("--cluster", help="Dask scheduler address for the tiles, e.g. tcp://127.0.0.1:8786")
     sp = study_cmd("distance", "compute the matching distance and where it is reached")
     sp.add_argument(
         "--method",
@@ -286,7 +323,14 @@ def run(argv: list[str] | None = None) -> int:
         sr.record()
         print(f"grids: f {plural(counts['f'], 'contour')}, g {plural(counts['g'], 'contour')} -> {sr.out}")
     elif args.verb == "map":
-        js = sr.write_map(pairs=args.pairs, resolution=args.resolution, method=args.method)
+        sr.map_jobs, sr.map_cluster = args.jobs, args.cluster
+        js = sr.write_map(
+            pairs=args.pairs,
+            resolution=args.resolution,
+            method=args.method,
+            memory=args.memory,
+            tiles=args.tiles,
+        )
         sr.write_grids()
         sr.record()
         c = js["counts"]

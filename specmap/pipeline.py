@@ -244,11 +244,20 @@ class StudyRun:
         return exc.located(file=str(self.study.path), field=f"{table}.{subject}" if subject else None)
 
     def map_settings(
-        self, *, pairs: str | None = None, resolution: int | None = None, method: str | None = None
+        self,
+        *,
+        pairs: str | None = None,
+        resolution: int | None = None,
+        method: str | None = None,
+        memory: float | None = None,
+        tiles: tuple[int, int] | str | None = None,
     ) -> MapSettings:
-        """The study's ``[map]`` settings with the command line's overrides."""
-        given = {"pairs": pairs, "resolution": resolution, "method": method}
-        return dataclasses.replace(self.study.map, **{k: v for k, v in given.items() if v is not None})
+        """The study's ``[map]`` settings with the command line's overrides (``tiles="auto"``: the budget decides)."""
+        given = {"pairs": pairs, "resolution": resolution, "method": method, "memory": memory, "tiles": tiles}
+        chosen = {k: v for k, v in given.items() if v is not None}
+        if chosen.get("tiles") == "auto":
+            chosen["tiles"] = None
+        return dataclasses.replace(self.study.map, **chosen)
 
     def distance_settings(
         self, *, method: str | None = None, degrees: tuple[int, ...] | None = None
@@ -263,29 +272,70 @@ class StudyRun:
             return self.study.window
         return window_for(self.shapes, self.grids)
 
-    def atlas(self, *, pairs: str | None = None, resolution: int | None = None, method: str | None = None):
-        """The special-set atlas of the study's map settings (overrides given), computed once per settings."""
-        ms = self.map_settings(pairs=pairs, resolution=resolution, method=method)
+    #: workers of a tiled map: local processes, or a Dask scheduler address (``specmap map --jobs/--cluster``)
+    map_jobs: int = 1
+    map_cluster: str | None = None
+
+    def atlas(
+        self,
+        *,
+        pairs: str | None = None,
+        resolution: int | None = None,
+        method: str | None = None,
+        memory: float | None = None,
+        tiles: tuple[int, int] | str | None = None,
+    ):
+        """The special-set atlas of the study's map settings (overrides given), computed once per settings.
+
+        The plan (:func:`specmap.special.preflight.plan_atlas`) decides one piece or tiles
+        (:func:`specmap.special.tiles.tiled_special_set`, tile folder ``out/tiles``); it is kept
+        in ``stats["plan"]``.
+        """
+        ms = self.map_settings(pairs=pairs, resolution=resolution, method=method, memory=memory, tiles=tiles)
         cache = self.__dict__.setdefault("_atlases", {})
         if ms not in cache:
             from specmap.special import special_set
-            from specmap.special.preflight import check_atlas_size
+            from specmap.special.preflight import plan_atlas
+            from specmap.special.tiles import tiled_special_set
 
             gf, gg = self.grids
-            check_atlas_size(
-                len(gf), len(gg), ms.resolution, file=str(self.study.path)
-            )  # one line, not MemoryError
-            cache[ms] = special_set(
-                gf,
-                gg,
-                self.window,
-                pairs=ms.pairs,
-                resolution=ms.resolution,
-                method=ms.method,
-                tol=ms.tol,
-                reading=ms.reading,
-                progress=self.progress("map"),
+            # one piece when it fits the budget, else tiles; a one-line refusal, never a MemoryError
+            plan = plan_atlas(
+                len(gf),
+                len(gg),
+                ms.resolution,
+                budget=ms.memory,
+                tiles=ms.tiles,
+                jobs=self.map_jobs,
+                file=str(self.study.path),
             )
+            if plan.tiled:
+                if self.show_progress:
+                    print(f"specmap: {plan.line()}", file=sys.stderr)
+                atlas = tiled_special_set(
+                    gf,
+                    gg,
+                    self.window,
+                    tiles=plan.tiles,
+                    settings=ms,
+                    jobs=self.map_jobs,
+                    cluster=self.map_cluster,
+                    folder=self.out / "tiles",
+                    progress=self.progress("map tiles"),
+                )
+            else:
+                atlas = special_set(
+                    gf,
+                    gg,
+                    self.window,
+                    pairs=ms.pairs,
+                    resolution=ms.resolution,
+                    method=ms.method,
+                    tol=ms.tol,
+                    reading=ms.reading,
+                    progress=self.progress("map"),
+                )
+            cache[ms] = dataclasses.replace(atlas, stats={**atlas.stats, "plan": plan.to_json()})
         return cache[ms]
 
     def distance(self, settings: DistanceSettings, *, jobs: int = 1):
