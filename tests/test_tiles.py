@@ -1,0 +1,269 @@
+"""The atlas in tiles (issue 12): plan, clip and join, exact merge, resume, workers, preflight.
+
+The reference for every merge check is the one-piece atlas (:func:`special_set` on the
+whole window), computed in the test; the patch area is also checked against a closed form.
+"""
+
+from __future__ import annotations
+
+import json
+from collections import defaultdict
+
+import numpy as np
+import pytest
+import shapely
+from gridgen import random_pair
+
+from specmap.cli import main, run
+from specmap.grids.model import Contour, Grid
+from specmap.io import write_json
+from specmap.settings import MapSettings
+from specmap.special import special_set
+from specmap.special import tiles as tiles_mod
+from specmap.special.merge import clip_lines, join_runs
+from specmap.special.preflight import AtlasTooLargeError, estimate_atlas, parse_memory, plan_atlas
+from specmap.special.tiles import plan_tiles, tiled_special_set
+from specmap.strip import Window
+
+WINDOW = Window((0.05, 0.95), (-1.0, 1.0))
+
+
+def per_tie(atlas) -> dict:
+    """(tie, kind) -> [curve length, patch area, parts]."""
+    out: dict = defaultdict(lambda: [0.0, 0.0, 0])
+    for p in atlas.pieces:
+        e = out[(p.tie, p.kind)]
+        e[0] += p.geometry.length if p.kind == "curve" else 0.0
+        e[1] += p.geometry.area
+        e[2] += len(shapely.get_parts(p.geometry))
+    return dict(out)
+
+
+def assert_same_atlas(one, tiled) -> None:
+    """Same pieces per tie (lengths to 1e-9 relative, areas to 1e-9, part counts) and components."""
+    a, b = per_tie(one), per_tie(tiled)
+    assert set(a) == set(b)
+    for k in a:
+        assert b[k][0] == pytest.approx(a[k][0], rel=1e-9, abs=1e-12), k
+        assert b[k][1] == pytest.approx(a[k][1], abs=1e-9), k
+        assert b[k][2] == a[k][2], k
+
+    def comps(at):
+        return sorted((c.kind, round(c.length, 8), round(c.area, 8), c.ties) for c in at.components)
+
+    assert one.counts() == tiled.counts()
+    assert comps(one) == comps(tiled)  # same kinds, lengths, areas and member ties
+
+
+def test_plan_tiles_partition_the_cells():
+    # brute force in the test: every cell of the lattice lies in exactly one core, and each
+    # halo is its core widened by one cell on the sides that have a neighbour
+    for n_a, n_b, t in ((41, 41, (2, 2)), (41, 17, (3, 1)), (11, 9, (7, 2))):
+        owner = np.zeros((n_b - 1, n_a - 1), dtype=int)
+        for tile in plan_tiles(n_a, n_b, t):
+            i0, i1, j0, j1 = tile.core
+            owner[j0:j1, i0:i1] += 1
+            h = tile.halo
+            assert h[0] == max(i0 - 1, 0) and h[1] == min(i1 + 1, n_a - 1)
+            assert h[2] == max(j0 - 1, 0) and h[3] == min(j1 + 1, n_b - 1)
+        assert (owner == 1).all()
+    with pytest.raises(ValueError):
+        plan_tiles(5, 5, (5, 1))  # more tiles than cells
+
+
+def test_clip_then_join_gives_the_lines_back():
+    # construction: polylines whose vertices lie on the grid lines x = k/4 (as marching-squares
+    # vertices lie on lattice edges), one of them a ring; clipped to the boxes x <= 0.5 and
+    # x >= 0.5 and joined again they are the same lines (same length, same vertex set)
+    open_line = np.array([[0.1, 0.0], [0.25, 0.3], [0.5, 0.2], [0.75, 0.6], [0.5, 0.9], [0.25, 0.7]])
+    ring = np.array([[0.25, -1.0], [0.5, -0.5], [0.75, -1.0], [0.5, -1.5], [0.25, -1.0]])
+    lines = [shapely.MultiLineString([open_line, ring])]
+    runs, cuts = [], []
+    for box in ((-9.0, -9.0, 0.5, 9.0), (0.5, -9.0, 9.0, 9.0)):
+        r, c, owner = clip_lines(lines, box)
+        assert (owner == 0).all()
+        runs += [np.asarray(x.coords) for x in r]
+        cuts += c
+    assert sum(1 for s, e in cuts if s or e) == len(runs)  # every run touches the border
+    joined, _ = join_runs(runs, cuts, 1e-12)
+    assert len(joined) == 2
+    got = sorted(joined, key=len)
+    assert shapely.LineString(got[0]).length == pytest.approx(shapely.LineString(ring).length, rel=1e-15)
+    assert np.array_equal(got[0][0], got[0][-1])  # closed again
+    assert shapely.LineString(got[1]).length == pytest.approx(shapely.LineString(open_line).length, rel=1e-15)
+    assert {tuple(p) for p in got[1]} == {tuple(p) for p in open_line}
+
+
+# Seeds of random generic pairs (tests/gridgen.py). The one-piece atlas itself depends on the
+# scale of the window it is given in two places (specmap/special/trace.py: which zero the ITP
+# refinement returns on an edge with several, its tolerance being relative to the window
+# diameter; the boundary end chosen between two sign changes equally near); a tile has a smaller
+# window, so on some pairs (e.g. seed 4 below) a few curve ends differ. These seeds have none.
+EXACT_SEEDS = (2, 3, 8)
+
+
+@pytest.mark.parametrize("seed", EXACT_SEEDS)
+@pytest.mark.parametrize("pairs", ["all", "roles"])
+def test_tiled_atlas_is_the_one_piece_atlas(seed, pairs):
+    # reference: the untiled atlas of the same pair (specmap.special.compute.special_set)
+    gf, gg = random_pair(seed, 8)
+    for reading in ("contours", "points"):
+        one = special_set(gf, gg, WINDOW, resolution=41, pairs=pairs, reading=reading)
+        assert sum(1 for p in one.pieces if p.kind == "curve") >= 5  # curves that cross tile borders
+        for t in ((2, 2), (3, 1), (1, 2), (7, 1)):
+            ms = MapSettings(resolution=41, pairs=pairs, reading=reading)
+            assert_same_atlas(one, tiled_special_set(gf, gg, WINDOW, tiles=t, settings=ms))
+
+
+@pytest.mark.xfail(strict=True, reason="the one-piece atlas depends on the window scale (see EXACT_SEEDS)")
+def test_known_scale_dependence_of_the_one_piece_atlas():
+    # when specmap/special/trace.py stops depending on the window's diameter this passes and
+    # the strict xfail fails: then add seed 4 to EXACT_SEEDS
+    gf, gg = random_pair(4, 8)
+    one = special_set(gf, gg, WINDOW, resolution=41, reading="contours")
+    assert_same_atlas(
+        one,
+        tiled_special_set(
+            gf, gg, WINDOW, tiles=(2, 2), settings=MapSettings(resolution=41, reading="contours")
+        ),
+    )
+
+
+def test_patch_across_tiles_has_the_closed_form_area():
+    # closed form, derived here: vertical contours at x = 0, 1 (f) and 3, 4 (g) are met by every
+    # line with equal spacings, so |s_f0 - s_f1| = |s_g0 - s_g1| holds on the whole window: the
+    # patch of that tie is the window (area 0.9 * 2 = 1.8); random contours add curves over it
+    vert = [Contour("f:v90", "vertical", [0.0, -50.0]), Contour("f:v91", "vertical", [1.0, -50.0])]
+    gvert = [Contour("g:v90", "vertical", [3.0, -50.0]), Contour("g:v91", "vertical", [4.0, -50.0])]
+    rf, rg = random_pair(3, 6)
+    gf = Grid(tuple(vert) + rf.contours)
+    gg = Grid(tuple(gvert) + rg.contours)
+    one = special_set(gf, gg, WINDOW, resolution=31, reading="contours")
+    tiled = tiled_special_set(
+        gf, gg, WINDOW, tiles=(2, 2), settings=MapSettings(resolution=31, reading="contours")
+    )
+    assert_same_atlas(one, tiled)
+    full = [
+        p
+        for p in tiled.pieces
+        if p.kind == "patch" and {c for q in p.tie.pairs for c in q} == {"f:v90", "f:v91", "g:v90", "g:v91"}
+    ]
+    assert full and all(p.geometry.area == pytest.approx(WINDOW.area, abs=1e-12) for p in full)
+    assert tiled.counts()["patch"] == one.counts()["patch"] >= 1
+
+
+def test_interrupted_map_resumes_with_the_missing_tiles(tmp_path, monkeypatch):
+    # construction: a finished run leaves one fsynced file per tile; removing one, truncating
+    # another (a torn write) and rerunning recomputes exactly those two, with the same atlas
+    gf, gg = random_pair(3, 8)
+    ms = MapSettings(resolution=31)
+    folder = tmp_path / "tiles"
+    first = tiled_special_set(gf, gg, WINDOW, tiles=(2, 2), settings=ms, folder=folder)
+    files = sorted(folder.glob("tile_*.json"))
+    assert len(files) == 4 and all(json.loads(f.read_text())["done"] is True for f in files)
+    files[0].unlink()
+    files[1].write_text(files[1].read_text()[:100])
+    calls = []
+    real = tiles_mod.tile_pieces
+    monkeypatch.setattr(tiles_mod, "tile_pieces", lambda *a, **k: calls.append(a[4].name) or real(*a, **k))
+    again = tiled_special_set(gf, gg, WINDOW, tiles=(2, 2), settings=ms, folder=folder)
+    assert sorted(calls) == sorted(f.stem for f in files[:2])
+    assert again.stats["tiles"]["reused"] == 2
+    assert_same_atlas(first, again)
+    # other settings: the old tiles are not reused
+    calls.clear()
+    tiled_special_set(
+        gf, gg, WINDOW, tiles=(2, 2), settings=MapSettings(resolution=31, pairs="roles"), folder=folder
+    )
+    assert len(calls) == 4
+
+
+@pytest.mark.slow
+def test_workers_do_not_change_the_atlas():
+    # construction: tiles are pure functions of their inputs; 2 joblib processes and a Dask
+    # LocalCluster of 2 workers give the one-process atlas
+    gf, gg = random_pair(8, 8)
+    ms = MapSettings(resolution=41)
+    one = tiled_special_set(gf, gg, WINDOW, tiles=(2, 2), settings=ms)
+    assert_same_atlas(one, tiled_special_set(gf, gg, WINDOW, tiles=(2, 2), settings=ms, jobs=2))
+    distributed = pytest.importorskip("distributed", reason="dask.distributed is not installed")
+    with distributed.LocalCluster(
+        n_workers=2, threads_per_worker=1, processes=True, dashboard_address=None
+    ) as c:
+        got = tiled_special_set(gf, gg, WINDOW, tiles=(2, 2), settings=ms, cluster=c.scheduler_address)
+    assert_same_atlas(one, got)
+
+
+def test_memory_sizes():
+    assert parse_memory("6GB") == 6e9
+    assert parse_memory("512 mb") == 512e6
+    assert parse_memory("2.5G") == 2.5e9
+    for bad in ("", "lots", "-1GB", "0"):
+        with pytest.raises(Exception, match="memory"):
+            parse_memory(bad)
+
+
+def test_plan_takes_the_fewest_tiles_that_fit():
+    # brute force in the test: among all tilings up to 30 x 30 that fit the budget the plan
+    # has the fewest tiles; one piece when the one-piece estimate fits
+    est = estimate_atlas(20, 20, 121)
+    assert plan_atlas(20, 20, 121, budget=2 * est.bytes).tiles == (1, 1)
+    budget = 0.5 * est.bytes
+    plan = plan_atlas(20, 20, 121, budget=budget)
+    assert plan.tiled and plan.tile_bytes <= budget
+    fits = [
+        (ta, tb)
+        for ta in range(1, 31)
+        for tb in range(1, 31)
+        if (ta, tb) != (1, 1) and plan_atlas(20, 20, 121, budget=budget, tiles=(ta, tb)).tile_bytes <= budget
+    ]
+    assert plan.tiles[0] * plan.tiles[1] == min(a * b for a, b in fits)
+    # two jobs hold two tiles at once: at least as many tiles
+    two = plan_atlas(20, 20, 121, budget=budget, jobs=2)
+    assert two.tiles[0] * two.tiles[1] >= plan.tiles[0] * plan.tiles[1]
+    with pytest.raises(AtlasTooLargeError, match="tiles") as info:
+        plan_atlas(300, 300, 41, budget=4e9)
+    assert "\n" not in info.value.one_line() and "--memory" in info.value.one_line()
+
+
+def _grid_study(tmp_path, extra: str = "") -> str:
+    gf, gg = random_pair(3, 8)
+    write_json(tmp_path / "f.json", gf.to_json())
+    write_json(tmp_path / "g.json", gg.to_json())
+    path = tmp_path / "s.toml"
+    path.write_text(
+        '[study]\nname = "s"\n[f]\ngrid = "f.json"\n[g]\ngrid = "g.json"\n'
+        f"[window]\na = [0.05, 0.95]\nb = [-1.0, 1.0]\n[map]\nresolution = 31\n{extra}"
+    )
+    return str(path)
+
+
+def test_cli_map_in_tiles_writes_the_plan_and_the_tile_folder(tmp_path, capsys):
+    study = _grid_study(tmp_path)
+    run(["--quiet", "map", study, "--out", str(tmp_path / "one")])
+    run(["--quiet", "map", study, "--out", str(tmp_path / "tiled"), "--tiles", "2x2"])
+    one = json.loads((tmp_path / "one" / "special.json").read_text())
+    tiled = json.loads((tmp_path / "tiled" / "special.json").read_text())
+    assert one["stats"]["plan"]["tiles"] == [1, 1] and tiled["stats"]["plan"]["tiles"] == [2, 2]
+    assert one["counts"] == tiled["counts"]
+    assert tiled["total_area"] == pytest.approx(one["total_area"], abs=1e-9)
+    assert len(list((tmp_path / "tiled" / "tiles").glob("tile_*.json"))) == 4
+    # the study's [map] tiles and memory are read too
+    study2 = _grid_study(tmp_path, 'tiles = [3, 1]\nmemory = "8GB"\n')
+    run(["--quiet", "map", study2, "--out", str(tmp_path / "study")])
+    plan = json.loads((tmp_path / "study" / "special.json").read_text())["stats"]["plan"]
+    assert plan["tiles"] == [3, 1] and plan["budget"] == 8e9
+
+
+def test_cli_map_size_mistakes_are_one_line(tmp_path, capsys):
+    study = _grid_study(tmp_path)
+    for args in (["--tiles", "0x2"], ["--memory", "lots"]):
+        with pytest.raises(SystemExit) as exc:
+            main(["map", study, "--out", str(tmp_path / "x"), *args])
+        assert exc.value.code == 2
+        assert "Traceback" not in capsys.readouterr().err
+    with pytest.raises(SystemExit) as exc:
+        main(["map", _grid_study(tmp_path, "tiles = [0, 2]\n"), "--out", str(tmp_path / "y")])
+    assert exc.value.code == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 1 and "map.tiles" in err[0]
