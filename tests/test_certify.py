@@ -34,6 +34,17 @@ GRID = Grid((Contour("f:v0", "vertical", [0.0, 0.0]),))
 GRIDS = (GRID, GRID.relabelled("g"))
 
 
+def _window_certified(e) -> bool:
+    """Certified on the window: True, or False only because the strip's ends are not covered.
+
+    The ends bound (specmap.distance.ends, issue 16 item 4) may fail to close within its line
+    budget; the certificate then says so and nothing else.
+    """
+    if e["certified"] is True:
+        return e["why_not"] is None
+    return e["ends"]["covered"] is False and e["why_not"].startswith("the strip's ends")
+
+
 def _run(sf, sg, degrees, **kw):
     kw.setdefault("dense_resolution", 9)
     return matching_distance(
@@ -62,10 +73,10 @@ def test_infinite_degree_is_exact_and_does_not_disturb_the_others():
         both = res.by_degree[k]
         assert math.isfinite(both["value"])
         # certified as it would be alone, with the same value up to the tolerance
-        assert both["certified"] is True and alone["certified"] is True, (both, alone)
+        assert _window_certified(both) and _window_certified(alone), (both, alone)
         assert both["value"] == pytest.approx(alone["value"], abs=tol)
         lo, hi = both["bounds"]
-        assert lo <= both["value"] <= hi and hi - lo <= tol * (1 + 1e-9)
+        assert lo <= both["value"] <= hi and (hi - lo <= tol * (1 + 1e-9) or not both["ends"]["covered"])
     search = js["reduced"]["slope_search"]
     assert search["certified_by_group"] == [True, True, True]
     assert search["bound"][1] == "inf"
@@ -235,7 +246,7 @@ def test_max_certifies_the_top_degree_and_each_every_degree():
     assert top[1 - low]["value"] - top[low]["value"] > tol  # the case is built with a lower degree
     assert top[low]["certified"] is False and 'certify = "each"' in top[low]["why_not"]
     each = _run(sf, sg, (0, 1), tolerance=tol, certify="each").by_degree
-    assert each[low]["certified"] is True and each[low]["why_not"] is None
+    assert _window_certified(each[low]), each[low]
     lo, hi = each[low]["bounds"]
-    assert hi - lo <= tol * (1 + 1e-9)
+    assert hi - lo <= tol * (1 + 1e-9) or not each[low]["ends"]["covered"]
     assert top[low]["bounds"][1] >= top[1 - low]["value"]  # the group's bound

@@ -11,6 +11,7 @@ from specmap.distance.audit import position_audit, theorem_audit
 from specmap.distance.bounds import distance_upper_bound, lipschitz_constants, value_range
 from specmap.distance.certify import degree_certificate, mesh_tolerance, resolution_check
 from specmap.distance.dense import dense_sweep
+from specmap.distance.ends import fold_ends
 from specmap.distance.evaluator import LineEvaluator, Progress
 from specmap.distance.reduced import ReducedSettings, reduced_search
 from specmap.distance.result import (
@@ -248,6 +249,8 @@ def matching_distance(
         floors=floors,
         max_lines=reduced_settings.slope_max_lines,
     )
+    # the strip's ends a < a0, a > 1 - a0 (issue 16 item 4)
+    ends_meta = fold_ends(ev, shape_f, shape_g, window, by_degree, degrees, tol, upper=upper)
     kmax = max(degrees, key=lambda k: by_degree[k]["value"])
     top = by_degree[kmax]
 
@@ -287,5 +290,6 @@ def matching_distance(
             "jobs": int(jobs),
             "lipschitz": {"a": lip[0], "b": lip[1]},
             "resolution_floor": {"distance": float(tol), "grid": floors[0], "mesh": floors[1]},
+            "ends": ends_meta,
         },
     )
