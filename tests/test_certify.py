@@ -250,3 +250,51 @@ def test_max_certifies_the_top_degree_and_each_every_degree():
     lo, hi = each[low]["bounds"]
     assert hi - lo <= tol * (1 + 1e-9) or not each[low]["ends"]["covered"]
     assert top[low]["bounds"][1] >= top[1 - low]["value"]  # the group's bound
+
+
+def _ellipse_grid(r1: float, r2: float, prefix: str, shift=(0.0, 0.0), drop: str | None = None) -> Grid:
+    # Closed form, derived here [CEF19]: for f = (x, y) on the ellipsoid sum (x_i / r_i)^2 = 1, J_P is the
+    # equator z = 0 where the gradients of x and y on the surface are opposite: the image arcs of the
+    # ellipse (x / r1)^2 + (y / r2)^2 = 1 with x, y both <= 0 or both >= 0; the critical points of x,
+    # (+-r1, 0), start vertical half-lines, those of y, (0, +-r2), horizontal ones.
+    th = np.linspace(0.0, np.pi / 2, 400)
+    dx, dy = shift
+    arcs = {
+        "p0": np.c_[-r1 * np.cos(th), -r2 * np.sin(th)],
+        "p1": np.c_[r1 * np.sin(th), r2 * np.cos(th)],
+    }
+    cs = [Contour(f"{prefix}:{k}", "proper", pts + [dx, dy]) for k, pts in arcs.items()]
+    cs += [Contour(f"{prefix}:v{i}", "vertical", [s * r1 + dx, dy]) for i, s in enumerate((-1, 1))]
+    cs += [Contour(f"{prefix}:h{i}", "horizontal", [dx, s * r2 + dy]) for i, s in enumerate((-1, 1))]
+    return Grid(tuple(c for c in cs if c.id != f"{prefix}:{drop}"))
+
+
+def test_position_audit_mesh_aware_green_and_broken_grids_red():
+    # CEF19 position theorem with the closed-form grid above: every finite coordinate is a push
+    # coordinate of the grid up to the mesh term (value change along one edge at the carrying vertex);
+    # a shifted grid and a grid with a contour removed must be red (a check that can fail).
+    from meshgen import ellipsoid_mesh
+
+    from specmap.distance.audit import position_audit
+
+    r = (1.0, 0.7, 0.5)
+    V, T = ellipsoid_mesh(r, 8, seed=2)
+    f = V[:, :2].copy()
+    g = f * [1.0, 1.0]
+    sf, sg = Shape("f", "mesh", V, T, f), Shape("g", "mesh", V, T, g)
+    w = default_window(sf.value_bounds(), sg.value_bounds())
+    good = (_ellipse_grid(1.0, 0.7, "f"), _ellipse_grid(1.0, 0.7, "g"))
+    ok = position_audit(sf, sg, good, w, tolerance=1e-3, lines=12)
+    assert ok["fraction_explained"] == 1.0 and ok["worst"] == [], ok
+    plain = position_audit(sf, sg, good, w, tolerance=1e-3, lines=12, mesh_aware=False)
+    assert plain["fraction_explained"] < 1.0  # the mesh term is what makes it green
+    shifted = (
+        _ellipse_grid(1.0, 0.7, "f", shift=(0.2, 0.15)),
+        _ellipse_grid(1.0, 0.7, "g", shift=(0.2, 0.15)),
+    )
+    bad = position_audit(sf, sg, shifted, w, tolerance=1e-3, lines=12)
+    assert bad["fraction_explained"] < 0.9 and bad["worst"] and bad["max_excess"] > 0.05
+    # the vertical half-line at x = -r1 carries the essential H0 birth on lines with a < 1/2
+    removed = (_ellipse_grid(1.0, 0.7, "f", drop="v0"), _ellipse_grid(1.0, 0.7, "g", drop="v0"))
+    red = position_audit(sf, sg, removed, w, tolerance=1e-3, lines=12)
+    assert red["fraction_explained"] < 1.0 and red["worst"]
