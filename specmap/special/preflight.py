@@ -23,6 +23,9 @@ the budget.
 fewest tiles (:mod:`specmap.special.tiles`) whose per-tile estimate fits, each tile's
 crossings taken as its share of the lattice cells (its halo included) and ``jobs`` tiles
 held at once; a refusal when even tiles of ``MIN_TILE_CELLS`` cells a side do not fit.
+As measured, the merge and the whole-window components hold as much as the one-piece atlas
+(``MERGED_BYTES_PER_CROSSING``), so today no tiling fits where one piece does not and the plan
+refuses; tiles given explicitly still run (parallel, resumable).
 """
 
 from __future__ import annotations
@@ -39,7 +42,10 @@ CROSSINGS_PER_PAIR2 = 16.0  # measured, see the module docstring
 RESOLUTION_EXPONENT = 0.75
 BYTES_PER_CROSSING = 250.0
 BASE_BYTES = 150e6  # interpreter, numpy, shapely and the grids
-MERGED_BYTES_PER_CROSSING = 40.0  # the merged curves (a vertex per crossing) held by the parent
+# The merge and the whole-window components hold the output as the one-piece atlas does: measured
+# (tests/benchmarks/results_tiles.md, 40 contours at 81 x 81) a 2 x 2 tile peaks at 0.64 GB, the
+# tiled map at 4.17 GB (one piece 4.02 GB), about 250 bytes per crossing either way.
+MERGED_BYTES_PER_CROSSING = 250.0
 MIN_TILE_CELLS = 4  # smallest tile side (cells) the plan goes down to
 UNITS = {
     "": 1.0,
@@ -266,8 +272,8 @@ def plan_atlas(
     --------
     >>> plan_atlas(20, 20, 81, budget=8e9).tiles
     (1, 1)
-    >>> plan_atlas(20, 20, 121, budget=3e9).tiles
-    (2, 2)
+    >>> plan_atlas(20, 20, 121, budget=8e9, tiles=(2, 2)).reason
+    'tiles as asked'
     """
     est = estimate_atlas(n_f, n_g, resolution)
     n_a, n_b = (resolution, resolution) if isinstance(resolution, int) else resolution

@@ -1,0 +1,83 @@
+"""Peak memory and time of the atlas in one piece against tiles (issue 12), same run.
+
+    python tests/benchmarks/bench_tiles.py [N] [RESOLUTION] [TILES ...]
+
+Each case runs in a fresh subprocess (its peak RSS from ``resource.getrusage``): a random
+generic pair of N contours together (tests/gridgen.py, seed 3), window a in [0.05, 0.95],
+b in [-1, 1], pairs "all". The numba kernels are loaded once before timing in each child.
+Writes tests/benchmarks/results_tiles.md.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import subprocess
+import sys
+from pathlib import Path
+
+HERE = Path(__file__).resolve().parent
+CHILD = r"""
+import json, resource, sys, time
+sys.path.insert(0, {tests!r})
+from gridgen import random_pair
+from specmap.settings import MapSettings
+from specmap.special import special_set
+from specmap.special.tiles import tiled_special_set
+from specmap.strip import Window
+n, res, na, nb = {n}, {res}, {na}, {nb}
+w = Window((0.05, 0.95), (-1.0, 1.0))
+gf, gg = random_pair(3, n)
+s, _ = random_pair(1, 4)
+special_set(s, _, w, resolution=9)  # load the compiled kernels outside the timing
+t = time.perf_counter()
+if (na, nb) == (1, 1):
+    at = special_set(gf, gg, w, resolution=res)
+else:
+    at = tiled_special_set(gf, gg, w, tiles=(na, nb), settings=MapSettings(resolution=res))
+dt = time.perf_counter() - t
+print(json.dumps({{"seconds": dt, "peak_rss": resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024,
+    "crossings": at.stats.get("crossings"), "tie_curves": at.stats.get("tie_curves"),
+    "components": len(at.components)}}))
+"""
+
+
+def run_case(n: int, res: int, tiles: tuple[int, int]) -> dict:
+    code = CHILD.format(tests=str(HERE.parent), n=n, res=res, na=tiles[0], nb=tiles[1])
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+    return json.loads(out.stdout.strip().splitlines()[-1])
+
+
+def main(argv: list[str]) -> None:
+    n = int(argv[0]) if argv else 40
+    res = int(argv[1]) if len(argv) > 1 else 81
+    cases = [(1, 1)] + [tuple(int(x) for x in t.split("x")) for t in (argv[2:] or ["2x2"])]
+    rows = []
+    for t in cases:
+        r = run_case(n, res, t)  # type: ignore[arg-type]
+        rows.append((t, r))
+        print(t, r, flush=True)
+    base = rows[0][1]
+    load = os.getloadavg()
+    lines = [
+        "# Atlas in one piece vs tiles (tests/benchmarks/bench_tiles.py)",
+        "",
+        f"Random pair of {n} contours (gridgen seed 3), {res} x {res} lattice, pairs all, one process; "
+        f"load average at the end {load[0]:.2f} on {os.cpu_count()} cores. Tiled crossings count the "
+        "halo cells in each tile that maps them.",
+        "",
+        "| plan | time (s) | peak RSS (GB) | crossings | tie curves | components | time ratio | memory ratio |",
+        "|---|---|---|---|---|---|---|---|",
+    ]
+    for t, r in rows:
+        lines.append(
+            f"| {'one piece' if t == (1, 1) else f'{t[0]} x {t[1]} tiles'} | {r['seconds']:.1f} | "
+            f"{r['peak_rss'] / 1e9:.2f} | {r['crossings']:,} | {r['tie_curves']:,} | {r['components']} | "
+            f"{r['seconds'] / base['seconds']:.2f} | {r['peak_rss'] / base['peak_rss']:.2f} |"
+        )
+    (HERE / "results_tiles.md").write_text("\n".join(lines) + "\n")
+    print("\n".join(lines))
+
+
+if __name__ == "__main__":
+    main(sys.argv[1:])
