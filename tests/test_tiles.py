@@ -215,6 +215,12 @@ def test_plan_takes_the_fewest_tiles_that_fit(monkeypatch):
     budget = 0.5 * est.bytes
     with pytest.raises(AtlasTooLargeError, match="tiles"):
         plan_atlas(20, 20, 121, budget=budget)
+    # without a --memory budget the coarse estimate keeps its margin of two (as before tiles)
+    monkeypatch.setattr(preflight, "memory_budget", lambda: 0.6 * est.bytes)
+    assert plan_atlas(20, 20, 121).reason == "within twice the default budget"
+    monkeypatch.setattr(preflight, "memory_budget", lambda: 0.4 * est.bytes)
+    with pytest.raises(AtlasTooLargeError):
+        plan_atlas(20, 20, 121)
     monkeypatch.setattr(preflight, "MERGED_BYTES_PER_CROSSING", 40.0)
     plan = plan_atlas(20, 20, 121, budget=budget)
     assert plan.tiled and plan.tile_bytes <= budget

@@ -261,7 +261,9 @@ def plan_atlas(
 
     ``tiles`` given: used as asked (no refusal: the user chose). Else one piece when the
     estimate fits the budget, the fewest tiles (near-square, rows of cells first) whose
-    estimate fits, or a one-line refusal.
+    estimate fits, one piece when no budget was given and the estimate is within twice the
+    default (the estimate is coarse: the refusal of the one-piece preflight), or a one-line
+    refusal.
 
     Raises
     ------
@@ -296,6 +298,8 @@ def plan_atlas(
         b = _tiles_bytes(est, n_a, n_b, t, jobs)
         if b <= budget:
             return AtlasPlan(est, budget, t, b, jobs, "tiled to fit the budget")
+    if not given_budget and est.bytes <= 2 * budget:  # the coarse estimate's margin, as before tiles
+        return AtlasPlan(est, budget, (1, 1), est.bytes, jobs, "within twice the default budget")
     smallest = _tiles_bytes(est, n_a, n_b, (max_a, max_b), jobs)
     whose = "the --memory budget" if given_budget else "half of this machine's memory"
     raise AtlasTooLargeError(
