@@ -25,17 +25,24 @@ and t = 0 is the limit line (a -> 0: max(f1 - b, 0); a -> 1: max(0, f2 + b)).
    h_k(p) <= h_k(q) + ||F*_f(p) - F*_f(q)||_inf + ||F*_g(p) - F*_g(q)||_inf, f and g each
    on its own mesh.
 
-Hence for a cell C = [t_lo, t_hi] x [b_lo, b_hi] of an end strip, a corner q = (t_q, b_q) and
-its t-sibling q' = (t', b_q) (the corner at the other end in t),
+Hence for a cell C = [t_lo, t_hi] x [b_lo, b_hi] (t in [0, 1]: a window without a = 1/2 gives an
+end strip across it, in both forms) and a corner q, for every non-decreasing 1-Lipschitz map phi_p,
 
-    sup_{p in C} h_k(p) <= h_k(q) + sum_{maps} ( ||F*(q') - F*(q)||_inf + (b_hi - b_lo) ),
+    h_k(p) <= h_k(q) + sum over maps of ||F*(p) - phi_p(F*(q))||_inf,
 
-and the cell's bound is the smallest over its four corners. Corners at t = 0 are the limit
-lines, evaluated exactly (the limit of h_k as a -> 0 or 1 by the same stability). Lines with
-b outside the window's [b-, b+] give nothing new (math.md section 3), so the end strips are
-compact. Cells whose bound exceeds the target are split (along b when the b term dominates,
-else along t) until every degree is covered or the line budget is spent; the reported bound
-is the largest cell bound, a rigorous upper bound of sup h_k over the end strip.
+since d_B(phi D, phi D') <= d_B(D, D') (points (u, v) -> (phi u, phi v)) and stability. Three
+maps are used, each sup over the cell computed exactly vertex by vertex (a max of a constant and
+a bilinear function of (t, b) is extreme at corners and kinks): phi = id; the common shift
+phi(s) = s - (b_p - b_q) (below; + above), which cancels the part moving with b at unit rate;
+and phi(s) = max(s - (b_p - b_q), 0) from the lower-b corner, exact along the limit line. Cells on
+which one branch of F* is active at every vertex of both maps are closed in closed form: h is
+constant (x-branch, a common shift) or t d_B(f2, g2) (t-branch, a scaling). The cell's bound is
+the smallest over corners and maps; lines with b outside the window's [b-, b+] give nothing new
+(math.md section 3), so the end strips are compact. Cells whose bound exceeds the target are
+split (along the direction whose move is larger) until every degree is covered or the line budget
+is spent; the reported bound is the largest cell bound, capped by the a-priori bound of
+:func:`~specmap.distance.bounds.distance_upper_bound` (its derivation holds for every t in [0, 1]).
+Where both branches mix the b term shrinks slowly, so some ends stay uncovered within the budget.
 
 References
 ----------
