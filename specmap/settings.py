@@ -154,6 +154,11 @@ class DistanceSettings:
         None: 1 for one job, else 2 per job.
     local_bound : bool
         Use the stability bound between evaluated lines (each map on its own mesh: any meshes).
+    bound_grid : int
+        Lines per side of the coarse grid of lines evaluated before the reduced search maps its
+        ties: with the lines already evaluated they bound h at every node of the map's lattice
+        (:mod:`specmap.distance.node_bounds`), and ties are looked for only where their cost can be
+        a value of h; 0 turns the node bounds off.
     polish_iters : int
         Golden-section steps of the polish.
     position_lines : int
@@ -172,6 +177,7 @@ class DistanceSettings:
     polish: bool = True
     batch: int | None = 4
     local_bound: bool = True
+    bound_grid: int = 9
     polish_iters: int = 6
     position_lines: int = 20
 

@@ -60,7 +60,11 @@ def _reduced_stage(
     upper: float,
     settings: ReducedSettings,
 ) -> ReducedSearch:
-    """The reduced search, with the atlas computed from the grids when not given."""
+    """The reduced search, with the atlas computed from the grids when not given.
+
+    ``atlas`` may also be a source (:func:`specmap.distance.focused.focused_source`): then only
+    the ties whose cost can lie between the slope-one floor and ``upper`` are mapped.
+    """
     if pair is None:
         raise MissingInputError(
             "the reduced search needs the extended Pareto grids of f and g",
@@ -70,6 +74,7 @@ def _reduced_stage(
         from specmap.special import special_set
 
         atlas = special_set(pair[0], pair[1], window)
+
     contours = {c.id: c for g in pair for c in g.contours}
     return reduced_search(ev, window, atlas, contours, tolerance=tolerance, upper=upper, settings=settings)
 
@@ -163,9 +168,12 @@ def matching_distance(
     degrees : iterable of int
     window : Window, optional
         Default: :func:`specmap.strip.default_window` of the value bounds.
-    atlas : object, optional
-        Special-set atlas with ``pieces`` (tie, kind, geometry) and ``components``;
-        computed with :func:`specmap.special.special_set` from ``grids`` when omitted.
+    atlas : object or callable, optional
+        Special-set atlas with ``pieces`` (tie, kind, geometry) and ``components``, or a
+        source ``atlas(floor, upper)`` of a focused one (see
+        :func:`~specmap.distance.reduced.reduced_search`, e.g.
+        :func:`specmap.distance.focused.focused_source`); when omitted, the atlas of ``grids``
+        with default map settings.
     grids : (Grid, Grid), optional
         Extended Pareto grids of f and g; needed by the reduced search and the position audit.
     jobs : int

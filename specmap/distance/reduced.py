@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import math
 import time
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field, fields
 from typing import Any
 
@@ -20,6 +20,7 @@ import numpy as np
 from specmap.distance.bounds import LocalBound, line_upper_bound
 from specmap.distance.candidates import ORIGINS, special_candidates
 from specmap.distance.evaluator import LineEvaluator
+from specmap.distance.node_bounds import NodeBounds, node_upper_bounds
 from specmap.distance.paths import normalise
 from specmap.distance.refine import polish_along
 from specmap.distance.result import Best, Candidates, ReducedSearch, SlopeOneSearch
@@ -53,6 +54,8 @@ class ReducedSettings:
         Candidates per evaluation round (default 1 for one job, else 2 per job).
     local_bound : bool
         Use the stability bound between evaluated lines (each map on its own mesh: any meshes).
+    bound_grid : int
+        Lines per side of the coarse grid that bounds h at the nodes of a focused atlas.
     polish_iters : int
         Golden-section steps of the polish.
     """
@@ -65,6 +68,7 @@ class ReducedSettings:
     polish: bool = _DEFAULTS.polish
     batch: int | None = _DEFAULTS.batch
     local_bound: bool = _DEFAULTS.local_bound
+    bound_grid: int = _DEFAULTS.bound_grid
     polish_iters: int = _DEFAULTS.polish_iters
 
     @classmethod
@@ -123,6 +127,33 @@ def _seeded_local_bound(
         V = np.array([[np.max(v[g]) for g in groups] for _, v in known])
         local.add(P[:, 0], P[:, 1], V)
     return local
+
+
+def _node_bounds_of(
+    ev: LineEvaluator, window: Window, finite: list[int], own: list[tuple[float, float]], grid: int
+) -> tuple[Callable[[np.ndarray, np.ndarray], NodeBounds], float]:
+    """Evaluate a ``grid`` x ``grid`` set of lines; return the node-bound map and max h over them.
+
+    The bounds come from these lines and the search's own (``own``), with h the max over the
+    ``finite`` degree indices; the max of h over the coarse lines is returned for the audit (it
+    must not exceed the search's value: D is a supremum over all lines).
+    """
+    a = np.linspace(window.a[0], window.a[1], grid)
+    b = np.linspace(window.b[0], window.b[1], grid)
+    A, B = (x.ravel() for x in np.meshgrid(a, b))
+    ev.plan(len(A))
+    H = ev(A, B)
+    top = float(np.max(H[finite])) if len(finite) and H.size else -math.inf
+    lines = [(float(x), float(y)) for x, y in zip(A, B, strict=True)] + [p for p in own if p in ev.memo]
+    h = np.array([float(np.max(np.asarray(ev.memo[p])[finite])) for p in lines])
+    P = np.array(lines, dtype=float)
+    vf, vg = ev.val_f, ev.val_g
+    bounds = (np.r_[vf.min(axis=0), vf.max(axis=0)], np.r_[vg.min(axis=0), vg.max(axis=0)])
+
+    def at(av: np.ndarray, bv: np.ndarray) -> NodeBounds:
+        return node_upper_bounds(vf, vg, bounds, window, av, bv, P, h)
+
+    return at, top
 
 
 @dataclass
@@ -337,8 +368,15 @@ def reduced_search(
     ----------
     ev : LineEvaluator
     window : Window
-    atlas : object
-        ``pieces`` (tie, kind, geometry) and ``components`` (id, geometry, ties).
+    atlas : object or callable
+        ``pieces`` (tie, kind, geometry) and ``components`` (id, geometry, ties); or a source
+        ``atlas(floor, upper, bounds_at)`` called once the slope-one floor is known, returning
+        the atlas of the ties whose cost can lie in (floor, upper] (value units, tolerance
+        included), below the node bounds of h ``bounds_at(av, bv) -> NodeBounds`` (None when
+        ``bound_grid`` is 0; :mod:`specmap.distance.node_bounds`), e.g.
+        :func:`specmap.distance.focused.focused_source`: the search then never maps
+        the whole special set, ``focus`` records the pairs kept, and ``component`` stays None
+        (the focused atlas's components are not those of the map).
     contours_by_id : dict
         Contours of both grids by id.
     tolerance, upper : float
@@ -379,6 +417,16 @@ def reduced_search(
     # degree is exact and closed at once): candidates under it are below_best anyway
     rest = best[~np.isposinf(best)]
     floor = float(rest.min()) if len(rest) and np.isfinite(rest).all() else -math.inf
+    focus = None
+    if callable(atlas):  # a source: only the ties that can lie in (floor, upper] are mapped
+        bounds_at, grid_top = None, None
+        if s.bound_grid > 1 and finite:
+            bounds_at, grid_top = _node_bounds_of(ev, window, finite, own, s.bound_grid)
+        atlas = atlas(floor + tolerance, upper + tolerance, bounds_at)
+        focus = dict((getattr(atlas, "stats", None) or {}).get("focus") or {}) or None
+        if focus is not None:
+            focus["grid_lines"] = s.bound_grid**2 if bounds_at is not None else 0
+            focus["grid_max_h"] = grid_top
     cand = special_candidates(
         atlas, contours_by_id, window, spacing=s.spacing, roles=s.roles, floor=floor, tolerance=tolerance
     )
@@ -391,7 +439,7 @@ def reduced_search(
     special = walk.special
     _polish(ev, special, slope, cand, window, tolerance, s)
     for rec in special:
-        if rec.tag is not None:
+        if rec.tag is not None and focus is None:  # a focused atlas's components are not the map's
             rec.component = _component_of(pieces[rec.tag[0]], rec.at, components) or f"piece:{rec.tag[0]}"
     n = len(cand.a)
     pruned = {
@@ -416,4 +464,5 @@ def reduced_search(
         slope_search=slope_info,
         settings=s,
         groups=[list(g) for g in groups],
+        focus=focus,
     )

@@ -180,6 +180,9 @@ class ReducedSearch:
     groups : list of list of int
         Degree indices bounded together by the special-set pass (one per degree with
         ``certify="each"``).
+    focus : dict or None
+        Pairs kept by a focused atlas (:meth:`specmap.special.focus.Focus.to_json`); None
+        when the search read a whole map.
     """
 
     slope: list[Best]
@@ -192,6 +195,7 @@ class ReducedSearch:
     slope_search: SlopeOneSearch | None
     settings: ReducedSettings
     groups: list[list[int]] = field(default_factory=list)
+    focus: dict[str, Any] | None = None
 
     @property
     def certify(self) -> str:
@@ -265,6 +269,7 @@ def reduced_json(
             "certify": s.certify,
         },
         "special_groups": [[degrees[j] for j in g] for g in red.groups],
+        "focus": red.focus,
         "degree": kmax,
     }
 

@@ -163,6 +163,9 @@ def find_crossings(
     progress: Callable[[int, int], None] | None = None,
     progress_offset: int = 0,
     progress_total: int | None = None,
+    band: tuple[float, float] | None = None,
+    roles: bool = True,
+    node_upper: tuple[np.ndarray, float, float] | None = None,
 ) -> tuple[np.ndarray, np.ndarray, dict]:
     """Tie codes and edge ids of all lattice edges a tie curve crosses (compiled sweep).
 
@@ -176,6 +179,12 @@ def find_crossings(
     snap : float
         Sign convention: a residual counts as non-negative when ``R >= -snap``.
     progress : callable (done, total), optional
+    band : (float, float), optional
+        Look for ties only on the edges where their cost can lie in (band[0], band[1]]
+        (value units; :mod:`specmap.special.focus`), the costs read with the f/g ``roles``.
+    node_upper : (ndarray (n_b, n_a), float, float), optional
+        Upper bounds of h at the nodes and what h can add along an a-edge and a b-edge
+        (:class:`specmap.distance.node_bounds.NodeBounds`): the band's top on each edge.
 
     Returns
     -------
@@ -193,6 +202,18 @@ def find_crossings(
     n_swap = 0
     m_col = push_scale(lat.av)
     flags = kernel_flags(table)
+    from specmap.special.focus import cost_factors
+
+    c_lo, c_hi = cost_factors(table, roles)
+    b_lo, b_hi = (-np.inf, np.inf) if band is None else (float(band[0]), float(band[1]))
+    if node_upper is None:
+        node_hi, edge_a, edge_b = np.full((lat.n_b, lat.n_a), np.inf), 0.0, 0.0
+    else:
+        node_hi, edge_a, edge_b = (
+            np.ascontiguousarray(node_upper[0], float),
+            float(node_upper[1]),
+            float(node_upper[2]),
+        )
     step = max(1, nb // 40)
     for j0 in range(0, nb, step):
         j1 = min(nb, j0 + step)
@@ -208,6 +229,14 @@ def find_crossings(
             j1,
             snap,
             tol,
+            band is not None,
+            b_lo,
+            b_hi,
+            c_lo,
+            c_hi,
+            node_hi,
+            edge_a,
+            edge_b,
         )
         n_cand += int(cand)
         n_swap += code.size

@@ -168,6 +168,17 @@ class PairTable:
     def rules(self) -> RoleRules:
         return role_rules(self.mode)
 
+    def subset(self, kept: np.ndarray) -> PairTable:
+        """The table of the pairs ``kept`` (indices into this table, increasing), same contours and mode.
+
+        Tie codes of the subset number its own pairs; ties are read back by contour ids
+        (:meth:`ties`), so pieces of a subset atlas name the same ties as the full one.
+        """
+        kept = np.asarray(kept, dtype=np.int64)
+        return PairTable(
+            self.contours, self.grid_of, self.first[kept], self.second[kept], self.cross[kept], self.mode
+        )
+
     def pair_ids(self, p: int) -> tuple[str, str]:
         return (self.contours[self.first[p]].id, self.contours[self.second[p]].id)
 

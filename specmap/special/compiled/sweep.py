@@ -57,6 +57,14 @@ def sweep_rows(
     j_stop: int,
     snap: float,
     tol: float,
+    banded: bool,
+    band_lo: float,
+    band_hi: float,
+    cost_lo: np.ndarray,
+    cost_hi: np.ndarray,
+    node_hi: np.ndarray,
+    edge_a: float,
+    edge_b: float,
 ) -> tuple[np.ndarray, np.ndarray, int]:
     """Order swaps of pair differences on the lattice edges of node rows ``j_start`` to ``j_stop - 1``.
 
@@ -71,6 +79,15 @@ def sweep_rows(
     only ``doubled`` pairs get a doubled item -- the flags of
     :func:`specmap.special.pairs.kernel_flags`) whose two items change order (sign convention ``>= -snap``, not both
     ends within ``tol``) and that is met at a corner of a cell beside the edge.
+
+    ``banded``: an item takes part on an edge only when the cost it stands for can lie in
+    (``band_lo``, ``band_hi``] there: its value interval on the edge, widened by its own
+    width, times ``cost_lo[p]`` .. ``cost_hi[p]`` for a plain item (the role factors of
+    :func:`specmap.special.focus.cost_factors`) or 1/2 for a doubled one. At a crossing both
+    items stand for the tied cost, so a tie whose cost is out of the band on an edge is not
+    looked for there (:mod:`specmap.special.focus`). ``node_hi`` (n_b, n_a) lowers the top of
+    the band per edge to the larger of its ends' values plus ``edge_a`` (an edge along a) or
+    ``edge_b`` (along b): upper bounds of h, which a tied cost must not exceed to be a value of h.
 
     Returns
     -------
@@ -119,6 +136,11 @@ def sweep_rows(
                     cells[1, 0] = -1
             ma = mcol[ia]
             mb = mcol[ib]
+            top_e = band_hi
+            if banded:
+                top_e = min(
+                    band_hi, max(node_hi[ja, ia], node_hi[jb, ib]) + (edge_a if e < na - 1 else edge_b)
+                )
             m = 0
             for p in range(n_p):
                 pres = False
@@ -130,12 +152,21 @@ def sweep_rows(
                     continue
                 x0 = abs(s[first[p], ja, ia] - s[second[p], ja, ia]) * ma
                 x1 = abs(s[first[p], jb, ib] - s[second[p], jb, ib]) * mb
-                v0[m] = x0
-                v1[m] = x1
-                ip[m] = p
-                fac[m] = 1
-                m += 1
-                if doubled[p]:
+                plain = True
+                dbl = doubled[p]
+                if banded:
+                    w = abs(x1 - x0)
+                    top = max(x0, x1) + w
+                    bot = min(x0, x1) - w
+                    plain = top * cost_hi[p] > band_lo and bot * cost_lo[p] <= top_e
+                    dbl = dbl and top > band_lo and bot <= top_e  # 2x times 1/2
+                if plain:
+                    v0[m] = x0
+                    v1[m] = x1
+                    ip[m] = p
+                    fac[m] = 1
+                    m += 1
+                if dbl:
                     v0[m] = 2.0 * x0
                     v1[m] = 2.0 * x1
                     ip[m] = p
