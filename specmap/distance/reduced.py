@@ -51,7 +51,8 @@ class ReducedSettings:
     polish : bool
         Refine the best special candidate along its curve.
     batch : int or None
-        Candidates per evaluation round (default 1 for one job, else 2 per job).
+        Candidates per evaluation round (default 4 whatever the jobs, so ``--jobs`` does not change
+        the search; None: 1 for one job, else 2 per job).
     local_bound : bool
         Use the stability bound between evaluated lines (each map on its own mesh: any meshes).
     bound_grid : int
@@ -344,8 +345,8 @@ def reduced_search(
        - ``local_bound``: ``lo`` > h(q) + ||F*_f(c) - F*_f(q)|| + ||F*_g(c) - F*_g(q)|| + tol
          for an evaluated line q (stability of each map between the two lines, on its own mesh,
          and the triangle inequality: valid when f and g live on different meshes).
-       The others are evaluated in batches (``batch``, default 1 for one job,
-       else 2 jobs) and ``best`` grows. **Early stop**: the first evaluated c
+       The others are evaluated in batches (``batch``, default 4 whatever the
+       number of jobs) and ``best`` grows. **Early stop**: the first evaluated c
        with h(c) >= t(c) - tol gives D = max(best, h(c)) up to tol: any
        candidate with t > D has h < t, so the first one with h = t has t = D,
        and every later one has t <= t(c) <= h(c) + tol (it is then
