@@ -314,9 +314,10 @@ def test_page_is_self_contained(tmp_path: Path) -> None:
     assert "plotly.js v" in html  # the chart library is inlined
 
 
-def test_explore_cli_needs_the_special_set(tmp_path: Path) -> None:
+def test_explore_cli_needs_the_special_set_or_a_distance(tmp_path: Path) -> None:
     root = make_folder(tmp_path / "r")
     (root / "special.json").unlink()
+    (root / "distance.json").unlink()
     proc = subprocess.run(
         [sys.executable, "-m", "specmap", "explore", str(root)],
         capture_output=True,
@@ -325,7 +326,20 @@ def test_explore_cli_needs_the_special_set(tmp_path: Path) -> None:
         env={**os.environ, "PYTHONPATH": str(Path(__file__).resolve().parents[1])},
     )
     assert proc.returncode == 2 and proc.stderr.startswith("specmap: error:") and "specmap map" in proc.stderr
+    assert "--method dense" in proc.stderr and len(proc.stderr.strip().splitlines()) == 1
     assert "Traceback" not in proc.stderr
+
+
+def test_a_folder_without_special_set_gets_a_page_that_says_so(tmp_path: Path) -> None:
+    # a scan pair whose map is refused as too large still has grids and a dense distance (issue 15)
+    root = make_folder(tmp_path / "r")
+    (root / "special.json").unlink()
+    (root / "special.geojson").unlink()
+    data = explorer_data(load_results(root), lines=False)
+    assert data["special_missing"] and "special.json is missing" in data["special_missing"]
+    assert data["components"] == [] and data["curves"] == [] and data["distance"]["samples"]
+    full = explorer_data(load_results(make_folder(tmp_path / "full")), lines=False)
+    assert full["special_missing"] is None
 
 
 # -- in a real browser ----------------------------------------------------------------------
@@ -622,6 +636,34 @@ def test_slice_diagram_panel_in_headless_chromium(tmp_path: Path) -> None:
         assert n_points == f"{len(lines[2]['degrees']['0']['f'])},{len(lines[2]['degrees']['0']['g'])}"
         shot = br.send("Page.captureScreenshot", {"format": "png"})
         (tmp_path / "lines.png").write_bytes(base64.b64decode(shot["data"]))
+        assert br.errors() == []
+    finally:
+        br.close()
+
+
+@pytest.mark.skipif(
+    shutil.which("chromium") is None and shutil.which("chromium-browser") is None,
+    reason="chromium is not installed (apt-get install -y chromium; .ci/run installs it)",
+)
+def test_page_without_special_set_in_headless_chromium(tmp_path: Path) -> None:
+    root = make_folder(tmp_path / "r")
+    (root / "special.json").unlink()
+    (root / "special.geojson").unlink()
+    page = build_explorer(root)
+    br = Browser(tmp_path / "profile")
+    try:
+        br.open_page()
+        br.send("Page.navigate", {"url": page.resolve().as_uri()})
+        assert br.wait_for("window.explorerReady === true", 90)
+        br.pump(0.3)
+        assert br.errors() == []
+        assert "no special set in this folder" in _text(br, "headline")
+        _pointer(br, 0.4, 0.1)
+        br.wait_for("!document.getElementById('here-ab').innerText.startsWith('move')", 10)
+        a, b = (float(x) for x in re.findall(r"-?\d+\.?\d*(?:e-?\d+)?", _text(br, "here-ab"))[:2])
+        assert abs(a - 0.4) < 0.01 and abs(b - 0.1) < 0.02  # the pointer's pixel, rounded
+        h = float(re.search(r"h\(a, b\) = (-?[\d.]+)", _text(br, "here-h")).group(1))
+        assert h == pytest.approx(a + b, abs=2e-3)  # h = a + b in the fixture (closed form, see make_folder)
         assert br.errors() == []
     finally:
         br.close()

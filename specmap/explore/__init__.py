@@ -63,8 +63,10 @@ def build_explorer(result_dir: str | Path, out: str | Path | None = None) -> Pat
     Parameters
     ----------
     result_dir : str or Path
-        A folder written by the pipeline; it needs ``special.json`` (and for the
-        full page ``special.geojson``, the grid files and ``distance.json``).
+        A folder written by the pipeline; it needs ``special.json`` or ``distance.json`` (and
+        for the full page ``special.geojson``, the grid files and both). Without ``special.json``
+        (a map refused as too large, e.g. on scanned meshes) the page says so and shows the
+        grids, h over the strip and the slice diagrams.
     out : str or Path, optional
         Output path; default ``<result_dir>/explore.html``.
 
@@ -75,19 +77,21 @@ def build_explorer(result_dir: str | Path, out: str | Path | None = None) -> Pat
     Raises
     ------
     ResultsError
-        The folder or ``special.json`` is missing, a result file is malformed, or
+        The folder is missing, it holds neither ``special.json`` nor ``distance.json``, a result
+        file is malformed, or
         the output cannot be written.
     """
     from specmap.explore.data import explorer_data
     from specmap.report.load import load_results
 
     res = load_results(result_dir)
-    if res.get("special") is None:
+    if res.get("special") is None and res.get("distance") is None:
         raise ResultsError(
-            "special.json not found in the result folder",
+            "neither special.json nor distance.json is in the result folder",
             file=str(Path(result_dir) / "special.json"),
             field="special.json",
-            fix="run specmap map first (the explorer shows the special set)",
+            fix="run specmap map (the special set) or specmap distance first; when the map is refused as "
+            "too large, specmap distance --method dense needs no map",
         )
     target = Path(out) if out is not None else Path(result_dir) / "explore.html"
     check_out_dir(target.parent, "--out")

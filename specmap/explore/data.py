@@ -30,6 +30,12 @@ PATCH_POINTS = 4_000
 """Most vertices kept per patch ring."""
 DIGITS = 6
 """Significant digits written for coordinates."""
+NO_SPECIAL = (
+    "no special set in this folder: special.json is missing (the map was not run, or it was refused "
+    'as too large, as on scanned meshes; simplify = "auto" on the meshes makes it smaller). '
+    "The page shows the grids, h over the strip and the slice diagrams only"
+)
+"""What the page says when the folder has a distance but no special set."""
 
 
 def _thin(xy: np.ndarray, most: int) -> np.ndarray:
@@ -96,7 +102,8 @@ def explorer_data(
         ties, patch_ties), ``patches`` (component, ring, ties), ``curves`` (component,
         family, ties, xy), ``families``, ``distance`` (value, at, reached_on, tolerance,
         by_degree, samples {a, b, h, by_degree} or None), ``tolerance`` (special set), ``lines``
-        ({lines: [...] or None, why_not}).
+        ({lines: [...] or None, why_not}), ``special_missing`` (a sentence when the folder has no
+        ``special.json``, else None).
     """
     sp = res.get("special") or {}
     st = res.get("study") or {}
@@ -179,4 +186,5 @@ def explorer_data(
         "labelled": ix.labelled,
         "distance": dist,
         "lines": explorer_lines(res) if lines else {"lines": None, "why_not": "not computed (lines=False)"},
+        "special_missing": None if res.get("special") is not None else NO_SPECIAL,
     }

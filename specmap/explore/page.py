@@ -315,8 +315,11 @@ const REACHED = {"slope-one": "on the slope-one line a = 1/2", "special": "on th
   "both": "on the slope-one line and on the special set alike", "dense": "by the dense sweep"};
 const hl = D ? "D = " + fmt(D.value) + " (tolerance " + fmt(D.tolerance, 3) + "), reached " + (REACHED[D.reached_on] || "on " + D.reached_on)
   + (D.at ? " at (a, b) = (" + fmt(D.at[0]) + ", " + fmt(D.at[1]) + ")" : "") : "no distance computed";
-$("headline").textContent = hl + "; " + DATA.components.length + " components, " + DATA.curves.length + " tie curves drawn"
-  + (DATA.labelled ? "" : " (unlabelled: the grid files are missing)") + ". Point at the strip to see the line and the ties there; click to list a component's ties.";
+$("headline").textContent = hl + "; " + (DATA.special_missing ? DATA.special_missing + "."
+  : DATA.components.length + " components, " + DATA.curves.length + " tie curves drawn"
+  + (DATA.labelled ? "" : " (unlabelled: the grid files are missing)") + ".")
+  + (DATA.special_missing ? " Point at the strip to see the line and h there."
+    : " Point at the strip to see the line and the ties there; click to list a component's ties.");
 // -- slice diagrams on the lines computed when the page was written ---------------------------------
 const LINES = (DATA.lines && DATA.lines.lines) || null;
 let curLine = null, curDeg = null;
