@@ -267,6 +267,25 @@ def print_load_notes() -> None:
         print(note, file=sys.stderr)
 
 
+def special_line(js: dict, path: Path | str) -> str:
+    """What ``specmap map`` prints: the component counts (pluralised), tie curves and patch share.
+
+    >>> special_line({"counts": {"curve": 1, "patch": 1, "point": 0}, "area_fraction": 0.60312,
+    ...     "stats": {"tie_curves": 1}}, "out/special.json")
+    'special set: 1 curve, 1 patch, 0 points (connected components); 1 tie curve; patches cover 60.3% of the window -> out/special.json'
+    """
+    c = js["counts"]
+    kinds = ", ".join(
+        plural(int(c[k]), k, "patches" if k == "patch" else None) for k in ("curve", "patch", "point")
+    )
+    curves = (js.get("stats") or {}).get("tie_curves")
+    ties = f"; {plural(int(curves), 'tie curve')}" if isinstance(curves, (int, float)) else ""
+    return (
+        f"special set: {kinds} (connected components){ties}; "
+        f"patches cover {fmt_pct(js['area_fraction'])} of the window -> {path}"
+    )
+
+
 def run(argv: list[str] | None = None) -> int:
     args = build_parser().parse_args(argv)
     from specmap.pipeline import StudyRun
@@ -333,16 +352,7 @@ def run(argv: list[str] | None = None) -> int:
         )
         sr.write_grids()
         sr.record()
-        c = js["counts"]
-        kinds = ", ".join(
-            plural(int(c[k]), k, "patches" if k == "patch" else None) for k in ("curve", "patch", "point")
-        )
-        curves = (js.get("stats") or {}).get("tie_curves")
-        ties = f"; {plural(int(curves), 'tie curve')}" if isinstance(curves, (int, float)) else ""
-        print(
-            f"special set: {kinds} (connected components){ties}; "
-            f"patches cover {fmt_pct(js['area_fraction'])} of the window -> {sr.out / 'special.json'}"
-        )
+        print(special_line(js, sr.out / "special.json"))
     elif args.verb == "distance":
         if study.grid_only:
             raise StudyError(

@@ -112,6 +112,31 @@ def run_demo(
     return DemoOutcome(sr.out, built, target, replaced, distance, special, summary.get("verdict"))
 
 
+def degree_lines(d: dict[str, Any]) -> list[str]:
+    """One line per homology degree: D_k, its interval and whether it is certified (why not, briefly).
+
+    Examples
+    --------
+    >>> degree_lines({"by_degree": {"0": {"value": 0.3, "certified": True, "bounds": [0.3, 0.3004]},
+    ...     "1": {"value": 0.1, "certified": False, "bounds": [0.1, 0.3], "why_not": "no reduced search ran"}}})
+    ['  D_0 = 0.3, certified: in [0.3, 0.3004]', '  D_1 = 0.1, not certified: in [0.1, 0.3]. No reduced search ran.']
+    """
+    from specmap.report.fmt import fmt
+    from specmap.report.summary import degree_rows, why_sentences
+
+    out = []
+    for r in degree_rows(d):
+        if r.degree == "max":
+            continue
+        where = f"in [{fmt(r.interval[0])}, {fmt(r.interval[1])}]" if r.interval else "no interval recorded"
+        if r.status == "certified":
+            out.append(f"  D_{r.degree} = {fmt(r.value)}, certified: {where}")
+        else:
+            why = why_sentences(r.status.removeprefix("not certified: ").split("; ")[0])
+            out.append(f"  D_{r.degree} = {fmt(r.value)}, not certified: {where}. {why}")
+    return out
+
+
 def summary_lines(o: DemoOutcome) -> list[str]:
     """What the demo prints: D, where, the special set, the verdict, and where the report went."""
     from specmap.cli import REACHED
@@ -122,8 +147,9 @@ def summary_lines(o: DemoOutcome) -> list[str]:
     lines = [
         f"matching distance: D = {fmt(d.get('value'))} at (a, b) = {fmt_point(d.get('at'))}, "
         f"{REACHED.get(d.get('reached_on'), 'reached on ' + str(d.get('reached_on')))}",
-        f"special set: {component_counts(o.special)} (connected components)",
     ]
+    lines += degree_lines(d)
+    lines.append(f"special set: {component_counts(o.special)} (connected components)")
     if o.verdict:
         lines.append(f"verdict: {o.verdict}")
     lines.append(f"results: {o.out}; report: {o.report}")

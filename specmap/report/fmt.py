@@ -68,11 +68,11 @@ def fmt_point(p: Any) -> str:
     return f"({fmt(p[0])}, {fmt(p[1])})"
 
 
-def fmt_interval(iv: Any) -> str:
-    """A two-number interval as ``"[lo, hi]"``; missing -> ``"n/a"``."""
+def fmt_interval(iv: Any, digits: int = 3) -> str:
+    """A two-number interval as ``"[lo, hi]"`` with ``digits`` significant digits; missing -> ``"n/a"``."""
     if iv is None or len(iv) < 2:
         return "n/a"
-    return f"[{fmt(iv[0], 3)}, {fmt(iv[1], 3)}]"
+    return f"[{fmt(iv[0], digits)}, {fmt(iv[1], digits)}]"
 
 
 def plural(n: int, word: str, many: str | None = None) -> str:

@@ -52,6 +52,7 @@ from specmap.report.summary import (
     special_lines,
     tie_curve_count,
     where_sentence,
+    why_sentences,
 )
 from specmap.report.ties import TieIndex, family, index_ties
 
@@ -241,7 +242,7 @@ def _summary_page(pg: Pager, res: dict[str, Any]) -> None:
         )
         pg.mono(f"{'degree':<8}{'D_k':>10}  {'interval':<20}{'at (a, b)':<20}status")
         for row in degree_rows(d):
-            iv = fmt_interval(row.interval) if row.interval else "none recorded"
+            iv = fmt_interval(row.interval, 4) if row.interval else "none recorded"
             pg.mono(
                 f"{row.degree:<8}{fmt(row.value):>10}  {iv:<20}{fmt_point(row.at):<20}"
                 f"{'certified' if row.status == 'certified' else 'not certified'}"
@@ -251,7 +252,12 @@ def _summary_page(pg: Pager, res: dict[str, Any]) -> None:
             if row.status != "certified":
                 reasons.setdefault(row.status, []).append(f"D_{row.degree}")
         for status, who in reasons.items():
-            pg.para(f"{', '.join(who)}: {status}.", 8.5, color="0.25")
+            why = why_sentences(status.removeprefix("not certified: "))
+            pg.para(
+                f"{' and '.join(who)} {'is' if len(who) == 1 else 'are'} not certified. {why}",
+                8.5,
+                color="0.25",
+            )
         pg.para(where_sentence(d))
     elif grid_only(res):
         pg.para("Not available: f and g are given as grid files, which have no mesh, so no slice diagrams.")

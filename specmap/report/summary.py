@@ -113,6 +113,58 @@ def _derived_reason(d: dict[str, Any], k: str, v: dict[str, Any], vmax: float) -
     return "; ".join(parts)
 
 
+_NUM = r"(-?[0-9][0-9.e+-]*)"
+_REWORDS = (
+    (
+        r'the special-set pass bounds the maximum over degrees only \(\[distance\] certify = "(\w+)"\), '
+        rf"here by {_NUM}",
+        r"the pass over the special set bounds only the largest of the D_k, here by \2, because the "
+        r'[distance] table of the study sets certify = "\1"',
+    ),
+    (
+        r'certify = "each" closes every degree',
+        r'with certify = "each" it would bound every degree on its own',
+    ),
+    (
+        rf"the dense sweep bounds it by {_NUM} only \(cell error bound {_NUM}\)",
+        r"the dense sweep bounds it only by \1, as its cell error bound is \2",
+    ),
+    (
+        rf"slope-one search stopped at its (\d+)-line cap: bound {_NUM} against best {_NUM}",
+        r"the slope-one search stopped at its \1-line cap with the bound \2 against the best value \3",
+    ),
+    (
+        rf"are not covered: they are bounded by {_NUM} only, above D = {_NUM} \+ tolerance",
+        r"are not covered, as they are bounded only by \1, which is above D = \2 plus the tolerance",
+    ),
+)
+"""Known clauses of distance.json's ``why_not`` and their wording as prose (regex, replacement)."""
+
+
+def why_sentences(why: str) -> str:
+    """A ``why_not`` of distance.json as sentences: clauses split at ``;``, known ones reworded.
+
+    The file keeps the compact form (clauses joined by ``;``, settings in brackets); the page
+    reads better in sentences. Unknown clauses are kept word for word.
+
+    Examples
+    --------
+    >>> why_sentences('the special-set pass bounds the maximum over degrees only ([distance] certify = '
+    ...     '"max"), here by 0.2744; the dense sweep bounds it by 0.6697 only (cell error bound 0.495)')
+    ... # doctest: +NORMALIZE_WHITESPACE
+    'The pass over the special set bounds only the largest of the D_k, here by 0.2744, because the
+    [distance] table of the study sets certify = "max". The dense sweep bounds it only by 0.6697, as its
+    cell error bound is 0.495.'
+    """
+    import re
+
+    text = " ".join(str(why).split())
+    for pattern, repl in _REWORDS:
+        text = re.sub(pattern, repl, text)
+    clauses = [c.strip().rstrip(".") for c in text.split("; ") if c.strip()]
+    return " ".join(c[0].upper() + c[1:] + "." for c in clauses)
+
+
 def _first(x: Any) -> Any:
     return x[0] if isinstance(x, list) and x else x
 

@@ -1,0 +1,107 @@
+"""What the terminal shows (issue 15, "Terminal"): counts pluralised, numbers rounded, reached_on in
+words, the demo's D per degree and verdict, and a quiet test run.
+
+The expected strings are written out here from the inputs of each case (closed form: the counts and
+values given), not read back from the code under test.
+"""
+
+from __future__ import annotations
+
+import re
+import subprocess
+import sys
+from pathlib import Path
+
+from specmap.cli import REACHED, special_line
+from specmap.demo import DemoOutcome, summary_lines
+
+ROOT = Path(__file__).resolve().parents[1]
+LONG = re.compile(r"\d\.\d{7,}")  # a number printed with 7 or more decimals (repr of a float)
+
+
+def test_map_line_pluralises_each_count() -> None:
+    one = {"counts": {"curve": 1, "patch": 1, "point": 1}, "area_fraction": 0.5, "stats": {"tie_curves": 1}}
+    assert special_line(one, "s.json").startswith(
+        "special set: 1 curve, 1 patch, 1 point (connected components); 1 tie curve; patches cover 50%"
+    )
+    many = {"counts": {"curve": 2, "patch": 3, "point": 0}, "area_fraction": 0.123456789, "stats": {}}
+    line = special_line(many, "s.json")
+    assert "2 curves, 3 patches, 0 points" in line and "12.3%" in line and not LONG.search(line)
+
+
+def test_reached_on_both_is_defined_in_words() -> None:
+    assert "slope-one line" in REACHED["both"] and "special set" in REACHED["both"]
+    assert "tolerance" in REACHED["both"]
+
+
+def _outcome(tmp_path: Path, replaced: bool) -> DemoOutcome:
+    distance = {
+        "value": 0.27021896734751683,
+        "at": [0.5, -0.40331129038211],
+        "reached_on": "both",
+        "tolerance": 0.0041512345,
+        "by_degree": {
+            "0": {"value": 0.27021896734751683, "certified": True, "bounds": [0.2702189673, 0.2743698427]},
+            "1": {
+                "value": 0.18403305094399047,
+                "certified": False,
+                "bounds": [0.18403305094399047, 0.274369842700693],
+                "why_not": "slope-one search stopped at its 200-line cap: bound 0.178 against best 0.1617",
+            },
+        },
+    }
+    special = {"counts": {"curve": 1, "patch": 1, "point": 0}, "components": []}
+    out = tmp_path / "results"
+    return DemoOutcome(
+        out,
+        out / "report.pdf",
+        tmp_path / "demo.pdf",
+        replaced,
+        distance,
+        special,
+        "0 of 20 runs kept a patch.",
+    )
+
+
+def test_demo_prints_d_per_degree_the_verdict_and_where_the_report_went(tmp_path: Path) -> None:
+    lines = summary_lines(_outcome(tmp_path, replaced=True))
+    text = "\n".join(lines)
+    assert lines[0].startswith("matching distance: D = 0.2702 at (a, b) = (0.5, -0.4033), reached on the")
+    assert "  D_0 = 0.2702, certified: in [0.2702, 0.2744]" in lines
+    assert any(
+        ln.startswith("  D_1 = 0.184, not certified: in [0.184, 0.2744]. The slope-one search")
+        for ln in lines
+    )
+    assert "verdict: 0 of 20 runs kept a patch." in lines
+    assert "1 patch" in text and "1 curve" in text
+    assert f"report copied to {tmp_path / 'demo.pdf'} (replaced the previous file" in text
+    assert not LONG.search(text), text
+    fresh = "\n".join(summary_lines(_outcome(tmp_path, replaced=False)))
+    assert f"report copied to {tmp_path / 'demo.pdf'}" in fresh and "replaced" not in fresh
+
+
+def test_a_quiet_test_run_prints_only_the_progress_dots(tmp_path: Path) -> None:
+    # pytest -q prints a line of dots, then the summary; anything else on stdout is a stray line
+    proc = subprocess.run(
+        [
+            sys.executable,
+            "-m",
+            "pytest",
+            "-q",
+            "-p",
+            "no:randomly",
+            "-p",
+            "no:cacheprovider",
+            str(ROOT / "tests" / "test_report.py"),
+            "-k",
+            "number_helpers or findings_full or why_not_reads",
+        ],
+        cwd=tmp_path,
+        capture_output=True,
+        text=True,
+        timeout=300,
+    )
+    assert proc.returncode == 0, proc.stdout + proc.stderr
+    lines = [ln for ln in proc.stdout.splitlines() if ln.strip()]
+    assert re.fullmatch(r"\.+\s+\[100%\]", lines[0]), proc.stdout
+    assert len(lines) == 2 and re.match(r"\d+ passed", lines[1]), proc.stdout
