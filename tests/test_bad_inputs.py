@@ -286,3 +286,87 @@ def test_insist_must_be_true_or_false(tmp_path: Path) -> None:
     )
     (tmp_path / "s.toml").write_text(HEAD + body)
     assert_user_error(run_cli(["grid", "s.toml"], tmp_path), "s.toml", "f.insist", "true or false")
+
+
+# --------------------------------------------------------------------------- 1. zero-area triangles
+
+
+def _t_junction_meshes(edge: int = 28) -> tuple[np.ndarray, ...]:
+    """An ellipsoid mesh with one edge ab split at its midpoint c, two ways (built here).
+
+    ``A``: both triangles on ab split at c (a proper triangulation). ``B``: one side split, the other
+    kept whole and the T-junction sealed by the zero-area triangle (b, a, c). A and B cover the same
+    point set; for an affine map, the PL map of A is the PL map of the unsplit mesh (closed form:
+    the PL interpolant of an affine function is that function).
+    """
+    from specmap.meshtable import edges_and_faces
+    from specmap.shapes.surfaces import make_surface
+
+    V, T = make_surface("ellipsoid", (2.0, 1.0, 1.0)).mesh(400)
+    T = np.asarray(T, np.int64)
+    table = edges_and_faces(T)
+    a, b = (int(i) for i in table.edges[edge])
+    f0, f1 = (int(i) for i in table.faces[edge])
+    c = len(V)
+    V2 = np.vstack([V, (V[a] + V[b]) / 2])
+
+    def split(f: int) -> tuple[list[list[int]], tuple[int, int, int]]:
+        tri = T[f].tolist()
+        r = next(r for r in range(3) if {tri[r], tri[(r + 1) % 3]} == {a, b})
+        x, y, z = tri[r], tri[(r + 1) % 3], tri[(r + 2) % 3]
+        return [[x, c, z], [c, y, z]], (x, y, z)
+
+    (s0, _), (s1, (x, y, _)) = split(f0), split(f1)
+    keep = [i for i in range(len(T)) if i not in (f0, f1)]
+    A = np.vstack([T[keep], s0, s1])
+    B = np.vstack([T[keep], s0, T[f1 : f1 + 1], [[y, x, c]]])
+    return V2, A, B, np.asarray(V), T
+
+
+def _contours(grid: object) -> list:
+    return sorted((c.kind, tuple(np.round(c.points.ravel(), 12))) for c in grid.contours)
+
+
+def test_zero_area_triangle_is_flipped_and_the_grid_is_that_of_the_surface(tmp_path: Path, capsys) -> None:
+    # Issue 14: a zero-area triangle changed the PL grid silently (6 -> 8 contours). The stated rule
+    # (specmap/shapes/slivers.py) flips it away; expected: the grid of mesh A, built in the test
+    # without any zero-area triangle, and the contour count of the unsplit mesh (closed form above).
+    from specmap.grids.piecewise import piecewise_grid
+    from specmap.shapes.meshes import read_mesh, write_mesh
+
+    V2, A, B, V, T = _t_junction_meshes()
+    values = np.c_[V2[:, 0], V2[:, 1] + V2[:, 2]]
+    unsplit = piecewise_grid(V, T, values[:-1], label="f")
+    with_ = piecewise_grid(V2, A, values, label="f")
+    raw = piecewise_grid(V2, B, values, label="f")
+    assert len(with_) == len(unsplit)
+    assert _contours(raw) != _contours(with_)  # the test can fail: unrepaired, the sliver adds contours
+    write_mesh(tmp_path / "b.ply", V2, B)
+    counts: dict = {}
+    Vr, Tr, _ = read_mesh(tmp_path / "b.ply", counts=counts)
+    assert counts["zero_area_triangles"] == 1 and counts["zero_area_flipped"] == 1
+    assert "1 zero-area (collinear) triangles removed by 1 edge flips" in capsys.readouterr().err
+    np.testing.assert_array_equal(Vr, V2)
+    assert {tuple(sorted(t)) for t in Tr.tolist()} == {tuple(sorted(t)) for t in A.tolist()}
+    repaired = piecewise_grid(Vr, Tr, np.c_[Vr[:, 0], Vr[:, 1] + Vr[:, 2]], label="f")
+    assert _contours(repaired) == _contours(with_)
+
+
+def test_zero_area_triangle_counted_in_grid_meta_and_one_note(tmp_path: Path) -> None:
+    # the CLI route of the test above: the counts travel into grid_f.json meta, one note line on stderr
+    from specmap.grids.piecewise import piecewise_grid
+    from specmap.shapes.meshes import write_mesh
+
+    V2, A, B, _, _ = _t_junction_meshes()
+    write_mesh(tmp_path / "b.ply", V2, B)
+    (tmp_path / "s.toml").write_text(
+        HEAD + '[f]\nmesh = "b.ply"\nmap = ["x", "y + z"]\n[g]\nmesh = "b.ply"\nmap = ["x + z", "y"]\n'
+    )
+    proc = run_cli(["grid", "s.toml", "--out", "r"], tmp_path)
+    assert proc.returncode == 0, proc.stderr
+    notes = [ln for ln in proc.stderr.splitlines() if ln.strip()]
+    assert notes and all("b.ply" in ln and "edge flips" in ln for ln in notes), notes
+    js = json.loads((tmp_path / "r" / "grid_f.json").read_text())
+    hyg = js["meta"]["mesh_hygiene"]
+    assert hyg["zero_area_triangles"] == 1 and hyg["zero_area_flipped"] == 1
+    assert len(js["contours"]) == len(piecewise_grid(V2, A, np.c_[V2[:, 0], V2[:, 1] + V2[:, 2]], label="f"))

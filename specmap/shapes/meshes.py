@@ -27,6 +27,7 @@ from scipy.sparse.csgraph import breadth_first_order, connected_components
 from specmap.errors import MeshError
 from specmap.meshtable import EdgeTable, edges_and_faces
 from specmap.shapes.formats import obj_triangles, ply_header_problem
+from specmap.shapes.slivers import flip_slivers, zero_area_mask
 
 FORMATS = {".ply": "ply", ".off": "off", ".obj": "obj"}
 
@@ -256,10 +257,11 @@ def clean_mesh(
     same coordinates are merged into the first of them (triangles remapped);
     triangles that then repeat a vertex index (collapsed, zero area) are
     dropped, and vertices left on no triangle by that are dropped too.
-    Triangles with three distinct but collinear vertices (zero area) are
-    counted and kept: they do not change the topology, and specmap's grids
-    only use vertex values. Per-vertex ``values`` follow the vertices (a
-    merged vertex keeps the values of its first copy).
+    Triangles with three distinct but collinear vertices (zero area, the
+    rule of :mod:`specmap.shapes.slivers`) are counted and kept here: they
+    do not change the topology; :func:`read_mesh` then removes them by edge
+    flips (:func:`specmap.shapes.slivers.flip_slivers`). Per-vertex ``values``
+    follow the vertices (a merged vertex keeps the values of its first copy).
 
     Parameters
     ----------
@@ -273,7 +275,7 @@ def clean_mesh(
         The cleaned mesh (``values`` None when not given).
     counts : dict
         ``loose_vertices``, ``duplicate_vertices``, ``collapsed_triangles``
-        (dropped), ``zero_area_triangles`` (kept, collinear), ``components``.
+        (dropped), ``zero_area_triangles`` (collinear, kept), ``components``.
     """
     V = np.asarray(V, dtype=float)
     T = np.asarray(T, dtype=np.int64).reshape(-1, 3)
@@ -306,8 +308,7 @@ def clean_mesh(
     zero_area = 0
     ncomp = 0
     if len(T):
-        cross = np.cross(V[T[:, 1]] - V[T[:, 0]], V[T[:, 2]] - V[T[:, 0]])
-        zero_area = int((np.linalg.norm(cross, axis=1) == 0).sum())
+        zero_area = int(zero_area_mask(V, T).sum())
         m = len(T)
         ev = np.concatenate([T[:, 0], T[:, 1]]), np.concatenate([T[:, 1], T[:, 2]])
         graph = coo_matrix((np.ones(2 * m), ev), shape=(len(V), len(V)))
@@ -332,7 +333,14 @@ def hygiene_note(counts: dict, file: str | None = None) -> str | None:
     if counts.get("collapsed_triangles"):
         parts.append(f"dropped {counts['collapsed_triangles']} collapsed triangles")
     if counts.get("zero_area_triangles"):
-        parts.append(f"kept {counts['zero_area_triangles']} zero-area (collinear) triangles")
+        flipped = counts.get("zero_area_flipped")
+        if flipped is None:
+            parts.append(f"kept {counts['zero_area_triangles']} zero-area (collinear) triangles")
+        else:
+            parts.append(
+                f"{counts['zero_area_triangles']} zero-area (collinear) triangles removed by {flipped} edge "
+                "flips (the surface is unchanged, its triangulation refined at the T-junctions)"
+            )
     if not parts:
         return None
     where = f"{file}: " if file else ""
@@ -347,7 +355,10 @@ def read_mesh(
     The mesh is first cleaned by :func:`clean_mesh` (loose vertices dropped,
     exact duplicate vertices merged, collapsed triangles dropped; one note
     line on stderr when anything changed), then checked with
-    :func:`check_closed_manifold`; an inconsistent orientation of the
+    :func:`check_closed_manifold`; zero-area (collinear) triangles are then
+    removed by edge flips that keep the surface and refine its triangulation
+    (:mod:`specmap.shapes.slivers`; counted in the note, an error when a flip
+    cannot remove one); an inconsistent orientation of the
     triangles is repaired silently. Several components are accepted, each a
     closed 2-manifold (a closed surface need not be connected).
 
@@ -494,12 +505,30 @@ def read_mesh(
             fix="give a closed surface made of triangles",
         )
     check_closed_manifold(V, T, file=file, field="mesh")
+    if found["zero_area_triangles"]:
+        T = _without_slivers(V, T, found, file)
     if counts is not None:
         counts.update(found)
     note = hygiene_note(found, file)
     if note:
         print(note, file=sys.stderr)
     return V, orient_consistently(T), values
+
+
+def _without_slivers(V: np.ndarray, T: np.ndarray, found: dict, file: str) -> np.ndarray:
+    """The triangles with the zero-area ones flipped away (:mod:`specmap.shapes.slivers`), or a MeshError."""
+    T, flipped, left = flip_slivers(V, T)
+    found["zero_area_flipped"] = flipped
+    if left.size:
+        k = int(left[0])
+        raise MeshError(
+            f"{left.size} zero-area (collinear) triangles that no edge flip removes "
+            f"(first: triangle {k}, vertices {', '.join(str(int(i)) for i in T[k])})",
+            file=file,
+            field="mesh",
+            fix="re-triangulate the mesh around them (no triangle with three collinear vertices)",
+        )
+    return T
 
 
 def _check_ply_header(p: Path, fmt: str) -> None:
