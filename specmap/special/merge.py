@@ -6,12 +6,12 @@ a tie curve, every isolated point and every patch cell belongs to exactly one ti
 merge then
 
 1. joins the curve pieces of each tie at their *cut ends* (the crossings on the shared
-   border edges, computed once per side; matched to ``1e-10`` of the window diameter, the
-   ITP brackets of :mod:`specmap.special.trace` being ~1e-12), so a curve that passes from
-   tile to tile is one polyline again, a closed curve one ring;
+   border edges, computed once per side from the same edge and the whole window's
+   tolerances, :func:`specmap.special.trace.refine`, hence the same vertex bit for bit), so
+   a curve that passes from tile to tile is one polyline again, a closed curve one ring;
 2. unites the points and unions the patch polygons of each tie (shapely);
-3. applies the reading of "special" (:mod:`specmap.special.reading`) to the merged pieces
-   and recomputes the components and their reasons over the whole window and lattice
+3. (the reading of "special", :mod:`specmap.special.reading`, is local and was applied in
+   each tile) recomputes the components and their reasons over the whole window and lattice
    (:func:`specmap.special.components.components`), as the one-piece atlas does.
 
 References
@@ -109,10 +109,12 @@ def tie_codes(table: PairTable, ties: Sequence[Tie]) -> np.ndarray:
 def clip_lines(
     geoms: Sequence[Any], box: tuple[float, float, float, float]
 ) -> tuple[np.ndarray, list[tuple[bool, bool]], np.ndarray]:
-    """The runs of the lines of ``geoms`` whose segments have their midpoint in ``box`` (closed).
+    """The runs of the lines of ``geoms`` whose segments have their midpoint in ``box``.
 
-    Chords of the marching squares lie inside one lattice cell, so a midpoint decides the
-    cell, hence the tile, of a segment. A closed ring cut by the box is rotated to start at
+    The box is half-open, ``a0 <= a < a1`` and ``b0 <= b < b1`` (pass ``inf`` for a side on
+    the window's border), so neighbouring boxes share no segment. Chords of the marching
+    squares lie inside one lattice cell, so a midpoint decides the cell, hence the tile, of
+    a segment. A closed ring cut by the box is rotated to start at
     an outside segment first, so each of its runs has two cut ends. All lines at once
     (numpy), rings rotated one by one.
 
@@ -133,7 +135,7 @@ def clip_lines(
     le = ls + nv - 1
     mid = 0.5 * (coords[1:] + coords[:-1])
     seg_ok = lidx[1:] == lidx[:-1]
-    ins = seg_ok & (mid[:, 0] >= a0) & (mid[:, 0] <= a1) & (mid[:, 1] >= b0) & (mid[:, 1] <= b1)
+    ins = seg_ok & (mid[:, 0] >= a0) & (mid[:, 0] < a1) & (mid[:, 1] >= b0) & (mid[:, 1] < b1)
     ring = np.zeros(n_l, dtype=bool)
     out_any = np.bincount(lidx[:-1][seg_ok & ~ins], minlength=n_l) > 0
     closed = (nv > 2) & np.all(coords[ls] == coords[le], axis=1)
@@ -146,7 +148,7 @@ def clip_lines(
             coords[ls[line] : le[line] + 1] = np.vstack([c[k:-1], c[: k + 1]])
         ring[rot] = True
         mid = 0.5 * (coords[1:] + coords[:-1])
-        ins = seg_ok & (mid[:, 0] >= a0) & (mid[:, 0] <= a1) & (mid[:, 1] >= b0) & (mid[:, 1] <= b1)
+        ins = seg_ok & (mid[:, 0] >= a0) & (mid[:, 0] < a1) & (mid[:, 1] >= b0) & (mid[:, 1] < b1)
     pad = np.concatenate([[False], ins, [False]]).astype(np.int8)
     step = np.diff(pad)
     rs = np.nonzero(step == 1)[0]  # first segment of a run
@@ -167,9 +169,10 @@ def join_runs(
 ) -> tuple[list[np.ndarray], list[int]]:
     """Polylines from runs joined at matching cut ends (within ``tol``, same ``group``).
 
-    Each cut end is joined to the nearest cut end of the same group (tie code) within
-    ``tol``: a crossing on a border edge, seen from both sides; the joint vertex is the
-    first run's. Runs that close up become rings (first vertex repeated at the end).
+    A cut end is a crossing on a border edge, seen from both sides: it is joined to the one
+    other cut end of the same group (tie code) at the very same vertex; ends left over (none
+    in the tests) to the nearest free end of the group within ``tol``. The joint vertex is
+    the first run's. Runs that close up become rings (first vertex repeated at the end).
 
     Returns
     -------
@@ -182,17 +185,28 @@ def join_runs(
     grp = np.zeros(n, dtype=np.int64) if group is None else np.asarray(group, dtype=np.int64)
     ends = [(r, e) for r in range(n) for e in (0, 1) if cuts[r][e]]
     link: dict[tuple[int, int], tuple[int, int]] = {}
-    if len(ends) > 1:
-        xy = np.array([runs[r][0] if e == 0 else runs[r][-1] for r, e in ends])
-        eg = grp[[r for r, _ in ends]]
+    # first by identity: a cut end is a refined crossing of a shared border edge, computed
+    # from the same edge, tie and tolerances in both tiles (bit for bit the same vertex)
+    same: dict[tuple[int, float, float], list[tuple[int, int]]] = {}
+    for r, e in ends:
+        x, y = runs[r][0] if e == 0 else runs[r][-1]
+        same.setdefault((int(grp[r]), float(x), float(y)), []).append((r, e))
+    for group_ends in same.values():
+        if len(group_ends) == 2:
+            u, v = group_ends
+            link[u], link[v] = v, u
+    rest = [x for x in ends if x not in link]
+    if len(rest) > 1:  # fallback (not met in the tests): the nearest free end within ``tol``
+        xy = np.array([runs[r][0] if e == 0 else runs[r][-1] for r, e in rest])
+        eg = grp[[r for r, _ in rest]]
         pairs = cKDTree(xy).query_pairs(tol, output_type="ndarray")
         if len(pairs):
             pairs = pairs[eg[pairs[:, 0]] == eg[pairs[:, 1]]]
             d = np.hypot(*(xy[pairs[:, 0]] - xy[pairs[:, 1]]).T)
             for u, v in pairs[np.argsort(d, kind="stable")].tolist():  # nearest first
-                if ends[u] not in link and ends[v] not in link:
-                    link[ends[u]] = ends[v]
-                    link[ends[v]] = ends[u]
+                if rest[u] not in link and rest[v] not in link:
+                    link[rest[u]] = rest[v]
+                    link[rest[v]] = rest[u]
     seen = np.zeros(n, dtype=bool)
 
     def walk(r: int, enter: int) -> tuple[list[np.ndarray], bool]:

@@ -67,13 +67,10 @@ def coincident(table: PairTable, triples: np.ndarray, a: np.ndarray, b: np.ndarr
 
 
 def _probe(geom) -> list[tuple[float, float]]:
-    """One point per part: a curve's middle vertex (or its middle), a point, a patch's inner point."""
+    """One point per part of a point set or a patch: the point, a patch's inner point."""
     out = []
     for part in shapely.get_parts(geom):
-        if part.geom_type == "LineString":
-            c = np.asarray(part.coords)
-            out.append(tuple(c[len(c) // 2]) if len(c) > 2 else tuple(c.mean(axis=0)))
-        elif part.geom_type == "Point":
+        if part.geom_type == "Point":
             out.append((part.x, part.y))
         else:
             p = part.representative_point()
@@ -81,8 +78,57 @@ def _probe(geom) -> list[tuple[float, float]]:
     return out
 
 
+def _kept_runs(lines: list, drop_seg: np.ndarray, seg_line: np.ndarray) -> tuple[list, np.ndarray]:
+    """Runs of consecutive kept segments of ``lines``; and per line whether it lost a segment.
+
+    ``drop_seg`` flags the segments (in the order of :func:`shapely.get_coordinates`, one
+    entry per pair of consecutive vertices of a line, ``seg_line`` its line). A closed line
+    that loses segments is read from its first dropped segment on, so no run is split at the
+    ring's start vertex.
+    """
+    touched = np.bincount(seg_line, weights=drop_seg, minlength=len(lines)) > 0
+    out: list = []
+    for k, line in enumerate(lines):
+        if not touched[k]:
+            out.append(line)
+            continue
+        c = np.asarray(line.coords)
+        d = drop_seg[seg_line == k]
+        if len(c) > 2 and np.array_equal(c[0], c[-1]):
+            r = int(np.argmax(d))
+            c = np.vstack([c[r:-1], c[: r + 1]])
+            d = np.concatenate([d[r:], d[:r]])
+        pad = np.concatenate([[1], d.astype(np.int8), [1]])
+        step = np.diff(pad)
+        starts = np.nonzero(step == -1)[0]
+        ends = np.nonzero(step == 1)[0]  # one past the last kept segment
+        out.extend(shapely.LineString(c[s0 : e0 + 1]) for s0, e0 in zip(starts, ends, strict=True))
+    return out, touched
+
+
+def _curve_reading(table: PairTable, triple: np.ndarray, geom) -> tuple[list, int]:
+    """The parts of a curve piece off the coincidence branch, decided vertex by vertex.
+
+    Every vertex of a traced curve is a zero of the tie's residual (a refined crossing or a
+    domain end), so it lies on one of the two branches; a segment is dropped when both its
+    ends lie on the coincidence branch (segments from one branch to the other, which meet
+    only where three contours meet the line in one point, are kept). The decision is local:
+    a piece of the curve, e.g. in a tile of the window, is read as the whole curve is.
+    """
+    lines = list(shapely.get_parts(geom))
+    xy, idx = shapely.get_coordinates(np.array(lines, dtype=object), return_index=True)
+    same = coincident(table, np.broadcast_to(triple, (len(xy), 3)), xy[:, 0], xy[:, 1])
+    seg = idx[1:] == idx[:-1]
+    drop = (same[1:] & same[:-1])[seg]
+    kept, touched = _kept_runs(lines, drop, idx[:-1][seg].astype(np.int64))
+    return kept, int(touched.sum())
+
+
 def points_reading(table: PairTable, items: list[tuple[int, str, object]]) -> tuple[list, dict[str, int]]:
     """Drop the parts of tie pieces that lie on a coincidence branch (see the module text).
+
+    Curves are read segment by segment (:func:`_curve_reading`), points one by one, patches
+    by an inner point of each part.
 
     Parameters
     ----------
@@ -95,38 +141,46 @@ def points_reading(table: PairTable, items: list[tuple[int, str, object]]) -> tu
     -------
     (kept items, counts)
         Items with their coincident parts removed (empty ones dropped), and the numbers of
-        curves, points and patches removed.
+        curves that lost segments, points and patches removed.
     """
     removed = {"curves": 0, "points": 0, "patches": 0}
     codes = np.array([c for c, _, _ in items], dtype=np.int64)
     triples = shared_slots(table, codes) if len(items) else np.empty((0, 3), np.int64)
     probes, owner = [], []
-    for k, (_, _, geom) in enumerate(items):
-        if triples[k, 0] >= 0:
+    curves: dict[int, list] = {}
+    for k, (_, kind, geom) in enumerate(items):
+        if triples[k, 0] < 0:
+            continue
+        if kind == "curve":
+            kept_lines, n_touched = _curve_reading(table, triples[k], geom)
+            curves[k] = kept_lines
+            removed["curves"] += n_touched
+        else:
             pts = _probe(geom)
             probes.extend(pts)
             owner.extend([k] * len(pts))
-    if not probes:
-        return list(items), removed
-    P = np.array(probes, dtype=float)
-    own = np.array(owner, dtype=np.int64)
-    same = coincident(table, triples[own], P[:, 0], P[:, 1])
     drop_of: dict[int, np.ndarray] = {}
-    for k in np.unique(own):
-        drop_of[int(k)] = same[own == k]
+    if probes:
+        P = np.array(probes, dtype=float)
+        own = np.array(owner, dtype=np.int64)
+        same = coincident(table, triples[own], P[:, 0], P[:, 1])
+        for k in np.unique(own):
+            drop_of[int(k)] = same[own == k]
     kept = []
     for k, (code, kind, geom) in enumerate(items):
+        if k in curves:
+            if curves[k]:
+                kept.append((code, kind, shapely.MultiLineString(curves[k])))
+            continue
         if k not in drop_of or not drop_of[k].any():
             kept.append((code, kind, geom))
             continue
         parts = shapely.get_parts(geom)
         keep = [g for g, d in zip(parts, drop_of[k], strict=True) if not d]
-        removed[{"curve": "curves", "point": "points"}.get(kind, "patches")] += int(drop_of[k].sum())
+        removed["points" if kind == "point" else "patches"] += int(drop_of[k].sum())
         if not keep:
             continue
-        if kind == "curve":
-            kept.append((code, kind, shapely.MultiLineString(keep)))
-        elif kind == "point":
+        if kind == "point":
             kept.append((code, kind, shapely.MultiPoint(keep)))
         else:
             kept.append((code, kind, shapely.union_all(keep)))

@@ -44,15 +44,15 @@ from specmap.special.atlas import Atlas
 from specmap.special.lattice import Lattice
 from specmap.special.merge import (
     CURVE,
+    PATCH,
     POINT,
     TileItem,
     TileResult,
     as_pieces,
     clip_lines,
     merge_items,
-    tie_codes,
 )
-from specmap.special.pairs import pair_table
+from specmap.special.pairs import PairTable, pair_table
 from specmap.strip import Window
 
 FORMAT = "specmap-tile/1"
@@ -123,6 +123,61 @@ def plan_tiles(n_a: int, n_b: int, tiles: tuple[int, int]) -> tuple[Tile, ...]:
     return tuple(out)
 
 
+def tile_atlas_items(
+    grid_f: Grid,
+    grid_g: Grid,
+    frame: Lattice,
+    halo: tuple[int, int, int, int],
+    settings: MapSettings,
+    *,
+    sub: int = 8,
+    seed: int = 0,
+) -> tuple[PairTable, list[tuple[int, str, Any]], dict[str, Any]]:
+    """Tie pieces (code, kind, geometry) of the cells ``halo`` of the lattice ``frame`` (pure).
+
+    The steps of :func:`specmap.special.compute.special_set` (sampling, detection, refinement,
+    tracing, patches, the reading) on the nodes ``frame.av[i0..i1]``, ``frame.bv[j0..j1]``
+    themselves (not a new lattice of the sub-window, whose nodes would differ in the last
+    bits), with every tolerance scaled by ``frame`` (:func:`specmap.special.trace.refine`):
+    what a tile finds in a cell is what the whole window finds there. No components.
+    """
+    from specmap.special.compute import default_tolerance
+    from specmap.special.detect import find_crossings, sample
+    from specmap.special.patches import patch_cells, patch_polygons
+    from specmap.special.reading import points_reading
+    from specmap.special.reference import naive_crossings
+    from specmap.special.trace import refine, trace
+
+    table = pair_table(grid_f, grid_g, settings.pairs)
+    tol = default_tolerance(grid_f, grid_g) if settings.tol is None else float(settings.tol)
+    snap = 1e-3 * tol
+    i0, i1, j0, j1 = halo
+    lat = Lattice(np.asarray(frame.av[i0 : i1 + 1]), np.asarray(frame.bv[j0 : j1 + 1]))
+    samples = sample(table, lat)
+    if settings.method == "sweep":
+        codes, edges, stats = find_crossings(table, samples, tol=tol, snap=snap)
+    else:
+        codes, edges, stats = naive_crossings(table, samples, tol=tol, snap=snap)
+    points = refine(table, samples, codes, edges, snap=snap, frame=frame)
+    traced = trace(table, samples, codes, edges, points, snap=snap, tol=tol, frame=frame)
+    pcodes, pcells, pstats = patch_cells(table, samples, tol, seed=seed)
+    polys = patch_polygons(table, samples, pcodes, pcells, tol, sub=sub)
+    items: list[tuple[int, str, Any]] = []
+    for tt in traced:
+        if tt.lines:
+            items.append((tt.code, CURVE, shapely.MultiLineString(list(tt.lines))))
+        if tt.points:
+            items.append((tt.code, POINT, shapely.MultiPoint(np.array(tt.points))))
+    for code, poly in sorted(polys.items()):
+        if not poly.is_empty:
+            items.append((code, PATCH, poly))
+    removed = {"curves": 0, "points": 0, "patches": 0}
+    if settings.reading == "points":
+        items, removed = points_reading(table, items)
+    stats = {**stats, **pstats, **{f"coincident_{k}_removed": v for k, v in removed.items()}}
+    return table, items, stats
+
+
 def tile_pieces(
     grid_f: Grid,
     grid_g: Grid,
@@ -134,33 +189,17 @@ def tile_pieces(
     sub: int = 8,
     seed: int = 0,
 ) -> TileResult:
-    """Map one tile (core + halo) and clip its pieces to the core (pure).
+    """Map one tile (core + halo, :func:`tile_atlas_items`) and clip its pieces to the core (pure).
 
-    The tile is mapped with the ``"contours"`` reading; the reading asked for is applied
-    after the merge (it probes whole curves). Clipping: curve segments by their midpoint
-    (:func:`specmap.special.merge.clip_lines`), points by the half-open core (closed on
-    the window's far borders), patches by intersection with the core box.
+    The reading is applied in the tile: it is local (:mod:`specmap.special.reading`).
+    Clipping: curve segments by their midpoint (:func:`specmap.special.merge.clip_lines`,
+    half-open core), points by the half-open core (closed on the window's far borders),
+    patches by intersection with the core box.
     """
-    from specmap.special.compute import special_set
-
     t0 = time.perf_counter()
     lat = Lattice.of(window, *resolution)
     av, bv = lat.av, lat.bv
-    i0, i1, j0, j1 = tile.halo
-    sub_window = Window((float(av[i0]), float(av[i1])), (float(bv[j0]), float(bv[j1])))
-    atlas = special_set(
-        grid_f,
-        grid_g,
-        sub_window,
-        pairs=settings.pairs,
-        resolution=(i1 - i0 + 1, j1 - j0 + 1),
-        method=settings.method,
-        tol=settings.tol,
-        sub=sub,
-        seed=seed,
-        reading="contours",
-        **_no_components(special_set),
-    )
+    table, found, tstats = tile_atlas_items(grid_f, grid_g, lat, tile.halo, settings, sub=sub, seed=seed)
     c0, c1, d0, d1 = tile.core
     # the core's inner borders; its sides on the window's border are open (boundary points of
     # curves may lie a little outside the window, as in the one-piece atlas)
@@ -178,38 +217,28 @@ def tile_pieces(
         min(box[2], window.a[1] + big),
         min(box[3], window.b[1] + big),
     )
-    table = pair_table(grid_f, grid_g, settings.pairs)
-    codes = tie_codes(table, [p.tie for p in atlas.pieces]).tolist() if atlas.pieces else []
     items: list[TileItem] = []
-    curve_k = [k for k, p in enumerate(atlas.pieces) if p.kind == CURVE]
-    clipped_curves = clip_pieces([atlas.pieces[k].geometry for k in curve_k], box)
+    curve_k = [k for k, it in enumerate(found) if it[1] == CURVE]
+    clipped_curves = clip_pieces([found[k][2] for k in curve_k], box)
     for k, got in zip(curve_k, clipped_curves, strict=True):
         if got is not None:
-            items.append(TileItem(int(codes[k]), CURVE, got[0], got[1]))
-    for code, piece in zip(codes, atlas.pieces, strict=True):
-        g = piece.geometry
-        if piece.kind == POINT:
+            items.append(TileItem(int(found[k][0]), CURVE, got[0], got[1]))
+    for code, kind, g in found:
+        if kind == POINT:
             xy = shapely.get_coordinates(g)
             ok_a = (xy[:, 0] >= box[0]) & (xy[:, 0] < box[2])
             ok_b = (xy[:, 1] >= box[1]) & (xy[:, 1] < box[3])
             if (ok_a & ok_b).any():
                 items.append(TileItem(int(code), POINT, shapely.MultiPoint(xy[ok_a & ok_b])))
-        elif piece.kind != CURVE:
+        elif kind != CURVE:
             clipped = shapely.intersection(g, core_box)
             polys = [p for p in shapely.get_parts(clipped) if p.geom_type == "Polygon" and p.area > 0]
             if polys:
-                items.append(TileItem(int(code), piece.kind, shapely.union_all(polys)))
-    stats = {k: v for k, v in atlas.stats.items() if isinstance(v, (int, float)) and not isinstance(v, bool)}
+                items.append(TileItem(int(code), kind, shapely.union_all(polys)))
+    stats = {k: v for k, v in tstats.items() if isinstance(v, (int, float)) and not isinstance(v, bool)}
     stats["tile_seconds"] = round(time.perf_counter() - t0, 4)
     stats["halo_cells"] = tile.cells
     return TileResult(tile.name, tuple(items), stats)
-
-
-def _no_components(fn: Callable[..., Any]) -> dict[str, Any]:
-    """``with_components=False`` where :func:`special_set` offers it (a tile's components are not used)."""
-    import inspect
-
-    return {"with_components": False} if "with_components" in inspect.signature(fn).parameters else {}
 
 
 def clip_pieces(
@@ -353,7 +382,6 @@ def tiled_special_set(
     """
     from specmap.special.components import components
     from specmap.special.compute import default_tolerance, with_reasons
-    from specmap.special.reading import points_reading
 
     t_start = time.perf_counter()
     settings = MapSettings() if settings is None else settings
@@ -393,9 +421,6 @@ def tiled_special_set(
     t_merge = time.perf_counter()
     table = pair_table(grid_f, grid_g, settings.pairs)
     items = merge_items(results, window.diameter)
-    removed = {"curves": 0, "points": 0, "patches": 0}
-    if settings.reading == "points":
-        items, removed = points_reading(table, items)
     pieces = as_pieces(table, items)
     lat = Lattice.of(window, n_a, n_b)
     comps = with_reasons(components(tuple(pieces), window, lat), pieces, table, tol)
@@ -413,7 +438,6 @@ def tiled_special_set(
         "ties_with_patches": sum(1 for _, k, _ in items if k == "patch"),
         "pieces": len(pieces),
         "reading": settings.reading,
-        **{f"coincident_{k}_removed": v for k, v in removed.items()},
         "snap": 1e-3 * tol,
         "tiles": {
             "grid": [int(tiles[0]), int(tiles[1])],

@@ -35,6 +35,7 @@ from specmap.special.compiled.contours import (
 )
 from specmap.special.compiled.curves import chain_walk, march_cells, neighbours
 from specmap.special.detect import Samples, relevant_cells
+from specmap.special.lattice import Lattice
 from specmap.special.pairs import PairTable
 
 
@@ -67,12 +68,16 @@ def refine(
     *,
     snap: float,
     rel: float = 1e-12,
+    frame: Lattice | None = None,
 ) -> np.ndarray:
     """Zero of every crossing on its edge, to ``rel`` of the window diameter; points (K, 2) in (a, b).
 
     ITP root finding on the edge (:func:`specmap.special.compiled.contours.refine_edges`)
     with exact re-evaluation of the residual; the side convention is
-    ``R >= -snap`` as in detection. Work is split over two threads.
+    ``R >= -snap`` as in detection. Work is split over two threads. The stopping width
+    is set by ``frame`` (the whole window's lattice; default the samples' own): its diameter
+    and its longest edge, so a tile of the window refines every crossing exactly as the
+    whole window does.
     """
     lat = samples.lattice
     if codes.size == 0:
@@ -81,14 +86,21 @@ def refine(
         np.asarray(edges, np.int64), np.asarray(lat.av, float), np.asarray(lat.bv, float)
     )
     slots, factor = table.tie_contours(codes)
-    h = max(float(np.max(np.hypot(a1 - a0, b1 - b0))), 1e-300)
-    diam = float(np.hypot(lat.av[-1] - lat.av[0], lat.bv[-1] - lat.bv[0]))
+    diam, _, h = _scales(lat if frame is None else frame)
     eps = 0.5 * rel * diam / h
     flat = _flat(table)
     return in_chunks(
         lambda sl: refine_edges(*flat, slots[sl], factor[sl], a0[sl], b0[sl], a1[sl], b1[sl], snap, eps),
         codes.size,
     )
+
+
+def _scales(lat: Lattice) -> tuple[float, float, float]:
+    """(window diameter, first cell's diagonal, longest edge) of a lattice: the tolerances' scale."""
+    diam = float(np.hypot(lat.av[-1] - lat.av[0], lat.bv[-1] - lat.bv[0]))
+    cell_diag = float(np.hypot(lat.av[1] - lat.av[0], lat.bv[1] - lat.bv[0]))
+    h = max(float(np.max(np.diff(lat.av))), float(np.max(np.diff(lat.bv))), 1e-300)
+    return diam, cell_diag, h
 
 
 def segments(
@@ -193,6 +205,7 @@ def trace(
     *,
     snap: float,
     tol: float,
+    frame: Lattice | None = None,
 ) -> list[TracedTie]:
     """Curves and points of every tie from its refined crossings.
 
@@ -203,6 +216,8 @@ def trace(
     points : ndarray (K, 2)
         Refined crossing points (:func:`refine`).
     snap, tol : float
+    frame : Lattice, optional
+        The whole window's lattice when ``samples`` cover a tile of it (see :func:`refine`).
 
     Returns
     -------
@@ -213,9 +228,7 @@ def trace(
     """
     if codes.size == 0:
         return []
-    lat = samples.lattice
-    diam = float(np.hypot(lat.av[-1] - lat.av[0], lat.bv[-1] - lat.bv[0]))
-    cell_diag = float(np.hypot(lat.av[1] - lat.av[0], lat.bv[1] - lat.bv[0]))
+    diam, cell_diag, _ = _scales(samples.lattice if frame is None else frame)
     segs = segments(table, samples, codes, edges, snap=snap)
     flat, plen, pclosed = chain(codes.size, segs)
     _, val, inside = _residual(table, codes, points[:, 0], points[:, 1])
