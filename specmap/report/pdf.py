@@ -574,8 +574,8 @@ def _perturb_page(pg: Pager, res: dict[str, Any]) -> None:
     if cm or pc:
         pg.para(
             f"Tie curves and points (patches left out) moved by mean {fmt(cm.get('mean'), 3)}, max "
-            f"{fmt(cm.get('max'), 3)} ((a, b) units, Hausdorff distance to the unperturbed ones). The patch "
-            f"region changed by mean {fmt_pct(pc.get('mean'))}, max {fmt_pct(pc.get('max'))} of the window "
+            f"{fmt(cm.get('max'), 3)} in (a, b) units, as the Hausdorff distance to the unperturbed ones. "
+            f"The patch region changed by mean {fmt_pct(pc.get('mean'))}, max {fmt_pct(pc.get('max'))} of the window "
             "(area of the symmetric difference)"
             + (": the unperturbed patch vanished." if _vanished(s, base, res.get("special")) else ".")
         )
