@@ -45,20 +45,15 @@ def load_input(spec: ShapeSpec, study: Study) -> tuple[Shape | Grid, dict[str, A
     if spec.source == "grid":
         return read_grid(spec.path, prefix=spec.label), None
     from specmap.shapes.build import build_shape  # local: meshio, scipy and the expression compiler
-    from specmap.shapes.normality import out_of_range, tolerated
+    from specmap.shapes.normality import out_of_range
 
-    if spec.insist:  # a non-normal pair is built, and its reason kept for the caveats
-        with tolerated() as reasons:
-            shape = build_shape(spec, study)
-        if reasons:
-            shape = dataclasses.replace(shape, meta={**shape.meta, "not_normal": reasons[0]})
-            print(
-                f"specmap: note: {spec.label}: {reasons[0]}: not a normal pair; going on because "
-                f"[{spec.label}] insist = true (every result file and the report carry the caveat)",
-                file=sys.stderr,
-            )
-    else:
-        shape = build_shape(spec, study)
+    shape = build_shape(spec, study)  # with insist = true a non-normal pair is built, its reason in meta
+    if shape.meta.get("not_normal"):
+        print(
+            f"specmap: note: {spec.label}: {shape.meta['not_normal']}: not a normal pair; going on because "
+            f"[{spec.label}] insist = true (every result file and the report carry the caveat)",
+            file=sys.stderr,
+        )
     too_big = out_of_range(shape.vertices, shape.values)
     if too_big is not None:  # products of such numbers overflow: refuse rather than print inf/nan warnings
         from specmap.errors import StudyError

@@ -86,17 +86,27 @@ def test_the_test_does_not_depend_on_the_scale(mesh, scale):
     assert "affinely dependent" in degeneracy(Vs, T, np.c_[Vs[:, 0], -2 * Vs[:, 0]])
 
 
-def test_tolerated_records_instead_of_reporting(mesh):
-    from specmap.shapes.normality import tolerated
+def test_insist_flag_records_instead_of_refusing(tmp_path: Path):
+    # closed form of the module doc: f2 = x^3 + 2x = phi(x) is dependent (chain rule); the builder
+    # refuses it, unless the spec insists: then the reason is kept in the shape's meta
+    from specmap.errors import StudyError
+    from specmap.shapes.build import build_shape
+    from specmap.study import load_study
 
-    V, T = mesh
-    fmap = compile_map(["x", "x*x*x + 2*x"])
-    with tolerated() as reasons:
-        assert degeneracy(V, T, fmap.values(V), fmap.jacobian(V)) is None
-        assert degeneracy(V, T, V[:, :2]) is None  # a normal pair adds nothing
-    assert len(reasons) == 1 and "parallel everywhere" in reasons[0]
-    # outside the block the check reports again
-    assert "parallel everywhere" in degeneracy(V, T, fmap.values(V), fmap.jacobian(V))
+    study = tmp_path / "s.toml"
+    body = (
+        '[study]\nname = "t"\n[f]\nsurface = "ellipsoid"\nradii = [1, 0.8, 0.6]\nresolution = 400\n'
+        'map = ["x", "x*x*x + 2*x"]\nINSIST[g]\nsurface = "ellipsoid"\nradii = [1, 0.8, 0.6]\n'
+        'resolution = 400\nmap = ["x", "y"]\n'
+    )
+    study.write_text(body.replace("INSIST", ""))
+    s = load_study(study)
+    with pytest.raises(StudyError, match="parallel everywhere"):
+        build_shape(s.f, s)
+    assert "not_normal" not in build_shape(s.g, s).meta  # a normal pair adds nothing
+    study.write_text(body.replace("INSIST", "insist = true\n"))
+    s = load_study(study)
+    assert "parallel everywhere" in build_shape(s.f, s).meta["not_normal"]
 
 
 def test_insist_goes_on_with_the_caveat_in_every_result(tmp_path: Path):

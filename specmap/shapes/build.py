@@ -30,10 +30,13 @@ def build_shape(spec, study) -> Shape:
     study : Study
         For its file name (errors) and constants (expressions).
 
+    A constant component or a dependent pair is refused unless ``spec.insist``; then its reason
+    is kept in ``meta["not_normal"]``.
+
     Raises
     ------
     SpecmapInputError
-        Bad expression, unreadable mesh file, non-finite values.
+        Bad expression, unreadable mesh file, non-finite values, a non-normal pair.
     ValueError
         For a grid-file spec (a grid is not a shape; read it with ``read_grid``).
     """
@@ -56,7 +59,7 @@ def build_shape(spec, study) -> Shape:
         values = fmap.values(V)
         _check_values(values, file, f"{label}.map")
         _check_domain(fmap, V, T, file, f"{label}.map")
-        _check_normal(V, T, values, fmap.jacobian(V), file, f"{label}.map")
+        why = _check_normal(V, T, values, fmap.jacobian(V), file, f"{label}.map", insist=spec.insist)
         return Shape(
             label,
             "surface",
@@ -66,7 +69,7 @@ def build_shape(spec, study) -> Shape:
             surface=surface,
             fmap=fmap,
             description=spec.describe(),
-            meta={"vertices": len(V)},
+            meta={"vertices": len(V), **({"not_normal": why} if why else {})},
         )  # settings (route, resolution) travel in GridSettings
     hygiene: dict = {}
     V, T, fields = read_mesh(spec.path, fields=spec.fields, counts=hygiene)
@@ -86,13 +89,14 @@ def build_shape(spec, study) -> Shape:
     )
     if fmap is not None:
         _check_domain(fmap, V, T, file, f"{label}.map")
-    _check_normal(
+    why = _check_normal(
         V,
         T,
         values,
         fmap.jacobian(V) if fmap is not None else None,
         file if fmap is not None else str(spec.path),
         f"{label}.map" if fmap is not None else f"{label}.fields",
+        insist=spec.insist,
     )
     return Shape(
         label,
@@ -102,7 +106,12 @@ def build_shape(spec, study) -> Shape:
         values,
         fmap=fmap,
         description=spec.describe(),
-        meta={"path": str(spec.path), "vertices": len(V), "hygiene": hygiene},
+        meta={
+            "path": str(spec.path),
+            "vertices": len(V),
+            "hygiene": hygiene,
+            **({"not_normal": why} if why else {}),
+        },
     )
 
 
@@ -123,17 +132,29 @@ def _check_domain(fmap: CompiledMap, V: np.ndarray, T: np.ndarray, file: str, fi
 
 
 def _check_normal(
-    V: np.ndarray, T: np.ndarray, values: np.ndarray, jac: np.ndarray | None, file: str, field: str
-) -> None:
-    """Refuse a constant component or a functionally dependent pair (outside the theory)."""
+    V: np.ndarray,
+    T: np.ndarray,
+    values: np.ndarray,
+    jac: np.ndarray | None,
+    file: str,
+    field: str,
+    *,
+    insist: bool = False,
+) -> str | None:
+    """Refuse a constant component or a functionally dependent pair (outside the theory).
+
+    With ``insist`` (the study's ``insist = true``) the pair is accepted and the reason returned, for
+    ``Shape.meta["not_normal"]`` and the caveat of every result; None for a normal pair.
+    """
     why = degeneracy(V, T, values, jac)
-    if why is not None:
+    if why is not None and not insist:
         raise StudyError(
             f"{why}: the pair is not normal, so its grids and special set mean nothing",
             file=file,
             field=field,
             fix="give two functionally independent, non-constant measurements (math.md section 4)",
         )
+    return why
 
 
 def _check_values(values: np.ndarray, file: str, field: str) -> None:

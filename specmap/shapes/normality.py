@@ -7,16 +7,13 @@ with f2 = phi(f1) has its Jacobi set everywhere; its "grids" are artefacts (thou
 a patch over the whole strip). This module detects the two failures that can be decided from
 the data: a constant component and a pair whose gradients are parallel at every sample.
 
-A user may insist on such a pair (``[f] insist = true`` in a study): the pipeline then builds the
-shape inside :func:`tolerated`, where :func:`degeneracy` records its reason instead of reporting
-it, and writes the reason as a caveat into every result file and the report's first page.
+A user may insist on such a pair (``[f] insist = true`` in a study): the shape builder
+(:func:`specmap.shapes.build.build_shape`) then keeps the reason :func:`degeneracy` gives in
+``Shape.meta["not_normal"]`` instead of refusing, and the pipeline writes it as a caveat into every
+result file and the report's first page.
 """
 
 from __future__ import annotations
-
-from collections.abc import Iterator
-from contextlib import contextmanager
-from contextvars import ContextVar
 
 import numpy as np
 
@@ -144,40 +141,4 @@ def degeneracy(
     V = np.asarray(V, float)
     T = np.asarray(T, np.int64)
     vals = np.asarray(values, float)
-    why = _symbolic(V, T, np.asarray(jacobian, float)) if jacobian is not None else _piecewise(V, T, vals)
-    accepted = _TOLERATED.get()
-    if why is not None and accepted is not None:
-        accepted.append(why)  # the caller insisted on this pair: recorded, not reported
-        return None
-    return why
-
-
-_TOLERATED: ContextVar[list[str] | None] = ContextVar("specmap_tolerated_degeneracy", default=None)
-
-
-@contextmanager
-def tolerated() -> Iterator[list[str]]:
-    """A block in which :func:`degeneracy` accepts a non-normal pair and records why.
-
-    Yields
-    ------
-    list of str
-        Filled with the reason of every degenerate pair :func:`degeneracy` saw in the block (it
-        returned None for them, so the shape builder goes on); empty when the pair is normal.
-
-    Examples
-    --------
-    >>> V = np.array([[0., 0, 0], [1, 0, 0], [0, 1, 0], [0, 0, 1]])
-    >>> T = np.array([[0, 2, 1], [0, 1, 3], [0, 3, 2], [1, 2, 3]])
-    >>> with tolerated() as reasons:
-    ...     degeneracy(V, T, np.c_[V[:, 0], 3 * V[:, 0]]) is None
-    True
-    >>> reasons
-    ['f1 and f2 are affinely dependent on every triangle (f2 is a function of f1)']
-    """
-    reasons: list[str] = []
-    token = _TOLERATED.set(reasons)
-    try:
-        yield reasons
-    finally:
-        _TOLERATED.reset(token)
+    return _symbolic(V, T, np.asarray(jacobian, float)) if jacobian is not None else _piecewise(V, T, vals)
