@@ -435,8 +435,11 @@ def main(argv: list[str] | None = None) -> None:
     previous = signal.signal(signal.SIGTERM, _on_sigterm)
     counts: Counter[str] = Counter()
     try:
+        from specmap.floatwarn import take_worker_counts
+
         with counted_float_warnings() as counts:
             code = run(argv)
+        counts.update(take_worker_counts())  # those of worker processes (specmap.floatwarn)
         line = float_warning_line(counts)  # on a user error the one error line says enough
         if line:
             print(line, file=sys.stderr)

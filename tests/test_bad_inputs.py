@@ -370,3 +370,36 @@ def test_zero_area_triangle_counted_in_grid_meta_and_one_note(tmp_path: Path) ->
     hyg = js["meta"]["mesh_hygiene"]
     assert hyg["zero_area_triangles"] == 1 and hyg["zero_area_flipped"] == 1
     assert len(js["contours"]) == len(piecewise_grid(V2, A, np.c_[V2[:, 0], V2[:, 1] + V2[:, 2]], label="f"))
+
+
+def _overflowing_task(n: int) -> int:
+    """n overflows and one invalid value, in whatever process runs it (a joblib worker below)."""
+    big = np.array([1e300])
+    for _ in range(n):
+        _ = big * big
+    _ = np.array([np.inf]) - np.array([np.inf])
+    return os.getpid()
+
+
+def test_float_warnings_of_worker_processes_are_counted(monkeypatch: pytest.MonkeyPatch, capsys) -> None:
+    # Issue 14: warnings raised in joblib workers printed there and were not in the count. Expected
+    # counts by construction: tasks of 1..4 overflows give 10 overflows and 4 invalid values.
+    import joblib
+
+    import specmap.cli as cli
+    from specmap.floatwarn import Counted, unwrap
+
+    pids: set[int] = set()
+
+    def parallel(argv: list[str] | None = None) -> int:
+        tasks = [joblib.delayed(Counted(_overflowing_task))(n) for n in (1, 2, 3, 4)]
+        pids.update(map(unwrap, joblib.Parallel(n_jobs=2)(tasks)))
+        return 0
+
+    monkeypatch.setattr(cli, "run", parallel)
+    with pytest.raises(SystemExit) as code:
+        cli.main([])
+    err = [ln for ln in capsys.readouterr().err.splitlines() if ln.strip()]
+    assert os.getpid() not in pids  # the tasks really ran in other processes
+    assert code.value.code == 0 and len(err) == 1, err
+    assert "14 floating-point" in err[0] and "overflow 10" in err[0] and "invalid value 4" in err[0]

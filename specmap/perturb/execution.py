@@ -148,8 +148,11 @@ def _run_set(
     if todo:
         from joblib import delayed
 
-        tasks = [delayed(run_one)(base, i, run_seed(settings.seed, i), settings) for i in todo]
-        for rec in _results(tasks, jobs, cluster):
+        from specmap.floatwarn import Counted, unwrap
+
+        # workers' numpy float warnings come back with each record and join the CLI's one-line count
+        tasks = [delayed(Counted(run_one))(base, i, run_seed(settings.seed, i), settings) for i in todo]
+        for rec in map(unwrap, _results(tasks, jobs, cluster)):
             idx = int(rec["run"])
             if idx in done:
                 continue
