@@ -1,8 +1,19 @@
 """Where tie curves cross the sample lattice: the output-sensitive sweep.
 
-At every node the pair differences |c_P| (push units) and their doubles 2|c_Q|
-are *items*. A tie curve crosses a lattice edge where the order of two items
-(P vs Q for ``equal``, P vs 2Q for ``half``) differs between the edge's ends.
+A tie |c_P| = k |c_Q| (k = 1 ``equal``, 2 ``half``) is the union of its two signed
+branches c_P = +k c_Q (branch 0) and c_P = -k c_Q (branch 1), c_P = s̄_first - s̄_second
+in push units. Each branch is smooth where its four contours are met, whereas
+|c_P| - k |c_Q| has a ridge where c_P or c_Q changes sign (lines through a crossing
+of two contours): there a tie splits into two curves that can lie within one
+lattice cell, with no sign change of the absolute residual on an edge (issue 16).
+So at every node the signed differences +c_P and -c_P and their doubles +-2 c_Q are
+*items*; a branch curve crosses a lattice edge where the order of +c_P and +k c_Q
+(branch 0) or of +c_P and -k c_Q (branch 1) differs between the edge's ends. The
+mirrored item pairs (-c_P against -+k c_Q) are skipped, so each (tie, branch, edge)
+is reported once. A crossing is identified by its *key* ``branch * 2 n² + code``
+(:func:`split_branch`); :func:`crossing_slots` orders the four contours so that the
+signed residual of the key's branch is (s̄_0 - s̄_1) - k (s̄_2 - s̄_3), which refinement
+and tracing use (:mod:`specmap.special.trace`).
 
 ``sweep`` (default) treats every item on an edge as the interval between its
 two end values, sorts the interval starts of the edge and finds each
@@ -25,6 +36,7 @@ References
 
 from __future__ import annotations
 
+import weakref
 from collections.abc import Callable
 from dataclasses import dataclass
 
@@ -64,8 +76,12 @@ class Samples:
 
     def pair_values(self, table: PairTable, j: int) -> np.ndarray:
         """|c_P| in push units on node row j: shape (n_pairs, n_a)."""
+        return np.abs(self.signed_pair_values(table, j))
+
+    def signed_pair_values(self, table: PairTable, j: int) -> np.ndarray:
+        """c_P = s̄_first - s̄_second in push units on node row j: shape (n_pairs, n_a)."""
         m = push_scale(self.lattice.av)
-        return np.abs(self.s[table.first, j] - self.s[table.second, j]) * m
+        return (self.s[table.first, j] - self.s[table.second, j]) * m
 
 
 def sample(table: PairTable, lattice: Lattice) -> Samples:
@@ -167,7 +183,7 @@ def find_crossings(
     roles: bool = True,
     node_upper: tuple[np.ndarray, float, float] | None = None,
 ) -> tuple[np.ndarray, np.ndarray, dict]:
-    """Tie codes and edge ids of all lattice edges a tie curve crosses (compiled sweep).
+    """Crossing keys and edge ids of all lattice edges a tie branch crosses (compiled sweep).
 
     Parameters
     ----------
@@ -189,7 +205,8 @@ def find_crossings(
     Returns
     -------
     codes, edges : ndarray of int64
-        Sorted by (code, edge), unique.
+        Crossing keys (tie code and branch, :func:`split_branch`) and edge ids, sorted by
+        (key, edge), unique.
     stats : dict
         ``candidate_item_pairs`` (overlaps examined), ``swaps``, ``crossings``.
     """
@@ -259,12 +276,49 @@ def unique_crossings(
     return codes, eids, stats
 
 
+def split_branch(table: PairTable, codes: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Crossing keys -> (tie codes, branches).
+
+    A crossing key is ``branch * 2 n² + code`` (n pairs; ``code`` the tie code of
+    :mod:`specmap.special.pairs`); branch 0 is the zero of c_P - k c_Q, branch 1 that of
+    c_P + k c_Q (c_P = s_first - s_second of pair P).
+    """
+    n2 = 2 * table.n_pairs * table.n_pairs
+    branch, code = np.divmod(np.asarray(codes, np.int64), n2)
+    return code, branch
+
+
+_SLOTS_CACHE: list = [None, None, None]
+
+
+def crossing_slots(table: PairTable, codes: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Contour slots (K, 4) and factors (K,) of crossing keys, ordered for the signed branch.
+
+    Branch 1 (c_P + k c_Q = 0) is branch 0 of the tie with Q's two contours swapped, so the
+    signed residual ``(s_0 - s_1) - k (s_2 - s_3)`` of the returned slots vanishes on the
+    crossing's branch (:func:`specmap.special.compiled.contours.signed_residual`). The result for
+    the last large ``codes`` array is kept (the atlas asks for it at several stages); read-only.
+    """
+    c = _SLOTS_CACHE
+    if c[0] is not None and c[0]() is codes and c[1]() is table:
+        return c[2]
+    plain, branch = split_branch(table, codes)
+    slots, factor = table.tie_contours(plain)
+    slots = slots.copy()
+    b1 = branch == 1
+    slots[b1] = slots[b1][:, [0, 1, 3, 2]]
+    out = np.ascontiguousarray(slots), np.ascontiguousarray(factor)
+    if isinstance(codes, np.ndarray) and codes.size >= 100_000:
+        c[0], c[1], c[2] = weakref.ref(codes), weakref.ref(table), out
+    return out
+
+
 def relevant_cells(table: PairTable, samples: Samples, codes: np.ndarray, edges: np.ndarray) -> np.ndarray:
-    """For each (tie, edge): which of the two cells beside the edge see the tie met.
+    """For each crossing: which of the two cells beside the edge see the tie met.
 
     A cell sees a tie when all four contours are met at one of its corners.
     Returns a bool array (K, 2) aligned with :meth:`Lattice.edge_cells`.
     """
     lat = samples.lattice
-    slots, _ = table.tie_contours(codes)
+    slots, _ = crossing_slots(table, codes)
     return tie_cells_met(samples.met, slots, np.asarray(edges, np.int64), lat.n_a, lat.n_b)

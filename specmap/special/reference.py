@@ -46,7 +46,9 @@ def naive_crossings(
 ) -> tuple[np.ndarray, np.ndarray, dict]:
     """:func:`specmap.special.detect.find_crossings` by evaluating every allowed tie on every edge.
 
-    Same parameters and results; ``stats["candidate_item_pairs"]`` counts every (tie, edge) evaluated.
+    Both signed branches c_P -+ k c_Q of every tie are tested; same parameters and results
+    (crossing keys, :func:`specmap.special.detect.split_branch`);
+    ``stats["candidate_item_pairs"]`` counts every (tie, branch, edge) evaluated.
     """
     lat = samples.lattice
     items = Items.of(table)
@@ -61,10 +63,11 @@ def naive_crossings(
     acond, aP, aQ = table.decode(all_codes)
     abig = aP
     asmall = np.where(acond == 1, items.doubled_index[aQ], aQ)
+    n2 = 2 * table.n_pairs * table.n_pairs
     for j in range(nb):
         for k in (j, j + 1):
             if k < nb and k not in dv:
-                dv[k] = samples.pair_values(table, k)
+                dv[k] = samples.signed_pair_values(table, k)
         dv.pop(j - 1, None)
         edges, V0, V1, pres = _row_edges(lat, samples, table, j, items, dv)
         code_l, ee_l = [], []
@@ -72,14 +75,15 @@ def naive_crossings(
         for t0 in range(0, all_codes.size, step):
             sl = slice(t0, t0 + step)
             b_i, s_i = abig[sl], asmall[sl]
-            n_cand += b_i.size * len(edges)
-            f0 = V0[:, b_i] - V0[:, s_i]
-            f1 = V1[:, b_i] - V1[:, s_i]
+            n_cand += 2 * b_i.size * len(edges)
             ok = pres[:, b_i] & pres[:, s_i]
-            sw = ok & ((f0 >= -snap) != (f1 >= -snap)) & (np.maximum(np.abs(f0), np.abs(f1)) > tol)
-            ei, ti = np.nonzero(sw)
-            code_l.append(all_codes[sl][ti])
-            ee_l.append(ei)
+            for branch, sign in ((0, -1.0), (1, 1.0)):  # c_P - k c_Q, c_P + k c_Q
+                f0 = V0[:, b_i] + sign * V0[:, s_i]
+                f1 = V1[:, b_i] + sign * V1[:, s_i]
+                sw = ok & ((f0 >= -snap) != (f1 >= -snap)) & (np.maximum(np.abs(f0), np.abs(f1)) > tol)
+                ei, ti = np.nonzero(sw)
+                code_l.append(all_codes[sl][ti] + branch * n2)
+                ee_l.append(ei)
         code = np.concatenate(code_l)
         ee = np.concatenate(ee_l)
         n_swap += code.size
@@ -96,7 +100,7 @@ def naive_crossings(
 def _row_edges(
     lat: Lattice, samples: Samples, table: PairTable, j: int, items: Items, dv: dict[int, np.ndarray]
 ):
-    """Edges handled for node row j, their end values (E, M) and item presence (E, M)."""
+    """Edges handled for node row j, their signed end values (E, M) and item presence (E, M)."""
     na, nb = lat.n_a, lat.n_b
     cp = samples.cell_pair
     none = np.zeros((table.n_pairs, na - 1), dtype=bool)

@@ -34,7 +34,7 @@ from specmap.special.compiled.contours import (
     slot_residuals,
 )
 from specmap.special.compiled.curves import chain_walk, march_cells, neighbours
-from specmap.special.detect import Samples, relevant_cells
+from specmap.special.detect import Samples, crossing_slots, relevant_cells, split_branch
 from specmap.special.lattice import Lattice
 from specmap.special.pairs import PairTable
 
@@ -53,11 +53,14 @@ def _flat(table: PairTable) -> tuple:
 
 
 def _residual(table: PairTable, codes: np.ndarray, a: np.ndarray, b: np.ndarray):
-    """(R, tied value, all four met) of ties ``codes`` at lines (a[k], b[k]) (compiled loop)."""
-    slots, factor = table.tie_contours(codes)
+    """(R, tied value, all four met) of crossing keys ``codes`` at lines (a[k], b[k]) (compiled loop).
+
+    R is the signed residual of the key's branch (:func:`specmap.special.detect.crossing_slots`).
+    """
+    slots, factor = crossing_slots(table, codes)
     a = np.ascontiguousarray(np.broadcast_to(np.asarray(a, float), slots.shape[:1]))
     b = np.ascontiguousarray(np.broadcast_to(np.asarray(b, float), slots.shape[:1]))
-    return slot_residuals(*_flat(table), slots, factor, a, b)
+    return slot_residuals(*_flat(table), slots, factor, a, b, True)
 
 
 def refine(
@@ -73,7 +76,7 @@ def refine(
     """Zero of every crossing on its edge, to ``rel`` of the window diameter; points (K, 2) in (a, b).
 
     ITP root finding on the edge (:func:`specmap.special.compiled.contours.refine_edges`)
-    with exact re-evaluation of the residual; the side convention is
+    with exact re-evaluation of the signed residual of the crossing's branch; the side convention is
     ``R >= -snap`` as in detection. Work is split over two threads. The stopping width
     is set by ``frame`` (the whole window's lattice; default the samples' own): its diameter
     and its longest edge, so a tile of the window refines every crossing exactly as the
@@ -85,12 +88,14 @@ def refine(
     a0, b0, a1, b1 = edge_endpoints(
         np.asarray(edges, np.int64), np.asarray(lat.av, float), np.asarray(lat.bv, float)
     )
-    slots, factor = table.tie_contours(codes)
+    slots, factor = crossing_slots(table, codes)
     diam, _, h = _scales(lat if frame is None else frame)
     eps = 0.5 * rel * diam / h
     flat = _flat(table)
     return in_chunks(
-        lambda sl: refine_edges(*flat, slots[sl], factor[sl], a0[sl], b0[sl], a1[sl], b1[sl], snap, eps),
+        lambda sl: refine_edges(
+            *flat, slots[sl], factor[sl], a0[sl], b0[sl], a1[sl], b1[sl], snap, eps, True
+        ),
         codes.size,
     )
 
@@ -115,7 +120,7 @@ def segments(
     if codes.size == 0:
         return np.zeros((0, 2), dtype=np.int64)
     rel = relevant_cells(table, samples, codes, edges)
-    slots, factor = table.tie_contours(codes)
+    slots, factor = crossing_slots(table, codes)
     codes = np.asarray(codes, np.int64)
     edges = np.asarray(edges, np.int64)
     av, bv = np.asarray(lat.av, float), np.asarray(lat.bv, float)
@@ -146,7 +151,7 @@ def chain(n: int, segs: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]
 
 def _boundary_points(table, codes, pin, pout, diam, snap, cell_diag):
     """Where polylines leave the tie's domain: chord bisection, then onto R = 0 along the boundary."""
-    slots, factor = table.tie_contours(codes)
+    slots, factor = crossing_slots(table, codes)
     flat = _flat(table)
     # bisection to 1e-13 of the window diameter (chords are at most a cell diagonal long)
     n_iter = int(np.ceil(np.log2(max(cell_diag, 1e-300) / (1e-13 * diam)))) + 1
@@ -192,6 +197,7 @@ def _boundary_points(table, codes, pin, pout, diam, snap, cell_diag):
         np.ascontiguousarray(q[:, 1]),
         snap,
         eps,
+        True,
     )
     return np.where(has[:, None], z, lo)
 
@@ -290,7 +296,7 @@ def trace(
     keep = np.ones(coords.shape[0], dtype=bool)
     keep[1:] = np.any(np.abs(np.diff(coords, axis=0)) > 1e-15 * diam, axis=1)
     keep[lstart] = True
-    rcode_l = rcode.tolist()
+    rcode_l = split_branch(table, rcode)[0].tolist()  # both branches' lines under their tie
     pieces = np.split(coords, lstart[1:]) if n_runs else []
     keeps = np.split(keep, lstart[1:]) if n_runs else []
     by_code: dict[int, tuple[list, list]] = {}

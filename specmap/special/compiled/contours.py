@@ -177,17 +177,51 @@ def _residual(meta, geo, c0, c1, c2, c3, factor, a, b):
 
 
 @numba.njit(cache=True, nogil=True, error_model="numpy")
+def signed_residual(meta, geo, c0, c1, c2, c3, factor, a, b):
+    """(R, tied value, all met) of one signed tie branch at one line; R in push units.
+
+    R = min(a, 1-a) ((s̄_0 - s̄_1) - k (s̄_2 - s̄_3)): smooth where the four contours are met
+    (no ridge where a difference changes sign, unlike |c_P| - k |c_Q|); the branch
+    c_P = -k c_Q is this with the slots 2, 3 swapped (:func:`specmap.special.detect.crossing_slots`).
+    """
+    s0, m0 = ext_param(meta, geo, c0, a, b)
+    s1, m1 = ext_param(meta, geo, c1, a, b)
+    s2, m2 = ext_param(meta, geo, c2, a, b)
+    s3, m3 = ext_param(meta, geo, c3, a, b)
+    m = min(a, 1.0 - a)
+    dp = (s0 - s1) * m
+    dq = (s2 - s3) * m * factor
+    return dp - dq, min(abs(dp), abs(dq) / factor), m0 and m1 and m2 and m3
+
+
+@numba.njit(cache=True, nogil=True, error_model="numpy")
+def _either(meta, geo, c0, c1, c2, c3, factor, a, b, signed):
+    if signed:
+        return signed_residual(meta, geo, c0, c1, c2, c3, factor, a, b)
+    return _residual(meta, geo, c0, c1, c2, c3, factor, a, b)
+
+
+@numba.njit(cache=True, nogil=True, error_model="numpy")
 def slot_residuals(
-    meta: np.ndarray, geo: np.ndarray, slots: np.ndarray, factor: np.ndarray, a: np.ndarray, b: np.ndarray
+    meta: np.ndarray,
+    geo: np.ndarray,
+    slots: np.ndarray,
+    factor: np.ndarray,
+    a: np.ndarray,
+    b: np.ndarray,
+    signed: bool = False,
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Residual R, tied value and ``all met`` of ties ``slots`` (K, 4) at lines (a[k], b[k])."""
+    """Residual R, tied value and ``all met`` of ties ``slots`` (K, 4) at lines (a[k], b[k]).
+
+    ``signed``: R of the signed branch (:func:`signed_residual`), else |c_P| - k |c_Q|.
+    """
     K = slots.shape[0]
     r = np.empty(K)
     val = np.empty(K)
     met = np.empty(K, dtype=np.bool_)
     for k in range(K):
-        r[k], val[k], met[k] = _residual(
-            meta, geo, slots[k, 0], slots[k, 1], slots[k, 2], slots[k, 3], factor[k], a[k], b[k]
+        r[k], val[k], met[k] = _either(
+            meta, geo, slots[k, 0], slots[k, 1], slots[k, 2], slots[k, 3], factor[k], a[k], b[k], signed
         )
     return r, val, met
 
@@ -218,9 +252,12 @@ def refine_edges(
     b1: np.ndarray,
     snap: float,
     eps: float,
+    signed: bool = False,
 ) -> np.ndarray:
     """Zero of R + snap on each segment (a0, b0)-(a1, b1), to a bracket below ``2 eps`` in t ∈ [0, 1].
 
+    ``signed``: R is the signed branch residual (:func:`signed_residual`, smooth where the
+    contours are met), else |c_P| - k |c_Q|.
     The sign convention is the detection's: a side is ``R >= -snap``. Each
     root is bracketed by the segment's ends and found by the ITP method
     [OT20]: never more evaluations than bisection (plus one), superlinear on
@@ -235,8 +272,8 @@ def refine_edges(
         c0, c1, c2, c3, fk = slots[k, 0], slots[k, 1], slots[k, 2], slots[k, 3], factor[k]
         da = a1[k] - a0[k]
         db = b1[k] - b0[k]
-        ya = _residual(meta, geo, c0, c1, c2, c3, fk, a0[k], b0[k])[0] + snap
-        yb = _residual(meta, geo, c0, c1, c2, c3, fk, a1[k], b1[k])[0] + snap
+        ya = _either(meta, geo, c0, c1, c2, c3, fk, a0[k], b0[k], signed)[0] + snap
+        yb = _either(meta, geo, c0, c1, c2, c3, fk, a1[k], b1[k], signed)[0] + snap
         sa = ya >= 0.0
         if sa == (yb >= 0.0):
             out[k, 0] = a1[k]
@@ -255,7 +292,7 @@ def refine_edges(
             x = xt if abs(xt - half) <= r else half - sig * r
             if not (x > lo and x < hi):
                 x = half
-            y = _residual(meta, geo, c0, c1, c2, c3, fk, a0[k] + x * da, b0[k] + x * db)[0] + snap
+            y = _either(meta, geo, c0, c1, c2, c3, fk, a0[k] + x * da, b0[k] + x * db, signed)[0] + snap
             if (y >= 0.0) == sa:
                 lo = x
                 ya = y
@@ -266,7 +303,7 @@ def refine_edges(
         # guard: finish by bisection if the ITP budget ran out (cannot happen in exact arithmetic)
         while hi - lo > 2.0 * eps:
             x = 0.5 * (lo + hi)
-            y = _residual(meta, geo, c0, c1, c2, c3, fk, a0[k] + x * da, b0[k] + x * db)[0] + snap
+            y = _either(meta, geo, c0, c1, c2, c3, fk, a0[k] + x * da, b0[k] + x * db, signed)[0] + snap
             if (y >= 0.0) == sa:
                 lo = x
             else:

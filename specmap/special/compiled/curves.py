@@ -5,7 +5,7 @@ from __future__ import annotations
 import numba
 import numpy as np
 
-from specmap.special.compiled.contours import _residual
+from specmap.special.compiled.contours import signed_residual
 from specmap.special.compiled.lattice import edge_side_cell
 
 
@@ -41,7 +41,8 @@ def march_cells(
     ``codes``, ``edges`` sorted by (code, edge); ``rel`` (K, 2) from
     :func:`tie_cells_met`. Each (tie, cell) with a relevant crossing is handled
     once: two crossings on its edges give one segment, four a saddle decided
-    by the residual at the cell centre against corner (0, 0), three (a curve
+    by the signed branch residual (``slots`` ordered per branch,
+    :func:`specmap.special.detect.crossing_slots`) at the cell centre against corner (0, 0), three (a curve
     through a node) the first two in the order bottom, right, top, left.
     """
     K = codes.size
@@ -87,10 +88,10 @@ def march_cells(
                     bb0 = bv[cj]
                     bb1 = bv[cj + 1]
                     c0, c1, c2, c3 = slots[k, 0], slots[k, 1], slots[k, 2], slots[k, 3]
-                    rc = _residual(meta, geo, c0, c1, c2, c3, factor[k], 0.5 * (a0 + a1), 0.5 * (bb0 + bb1))[
-                        0
-                    ]
-                    r00 = _residual(meta, geo, c0, c1, c2, c3, factor[k], a0, bb0)[0]
+                    ac = 0.5 * (a0 + a1)
+                    bc = 0.5 * (bb0 + bb1)
+                    rc = signed_residual(meta, geo, c0, c1, c2, c3, factor[k], ac, bc)[0]
+                    r00 = signed_residual(meta, geo, c0, c1, c2, c3, factor[k], a0, bb0)[0]
                     if (rc >= -snap) == (r00 >= -snap):
                         # centre like corner 00 (and 11): cut off corners 10 and 01
                         out[n_out, 0], out[n_out, 1] = idx[0], idx[1]

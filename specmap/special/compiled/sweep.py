@@ -1,6 +1,6 @@
 """The output-sensitive edge sweep of crossing detection, compiled.
 
-For each lattice edge, the pair differences and their doubles that are
+For each lattice edge, the signed pair differences +-c_P and their doubles +-2 c_Q that are
 present are sorted by the low end of their value interval; each is compared
 only with the following ones while the intervals overlap, so the work follows
 the number of overlapping values, not the number of quadruples. The tie rules
@@ -69,9 +69,11 @@ def sweep_rows(
     """Order swaps of pair differences on the lattice edges of node rows ``j_start`` to ``j_stop - 1``.
 
     Row j holds the horizontal edges (j, i)-(j, i+1) and the vertical edges
-    (j, i)-(j+1, i). Items are the pair differences |c_P| and their doubles
-    2|c_Q| (push units) present on an edge (pair met at a corner of a cell
-    beside it). Items are sorted by the lower end of their value interval on
+    (j, i)-(j+1, i). Items are the signed pair differences +c_P, -c_P and their doubles
+    +-2 c_Q (push units, c_P = s_first - s_second) present on an edge (pair met at a corner
+    of a cell beside it); the branch c_P = +k c_Q is the order of +c_P and +k c_Q, the branch
+    c_P = -k c_Q that of +c_P and -k c_Q, and item pairs with -c_P (their mirrors) are
+    skipped, so each branch crossing comes once. Items are sorted by the lower end of their value interval on
     the edge; each item is compared with the following ones while the
     intervals overlap (within ``snap``), so the work is the number of
     overlapping item pairs, not the number of ties. A crossing is an allowed
@@ -81,7 +83,7 @@ def sweep_rows(
     ends within ``tol``) and that is met at a corner of a cell beside the edge.
 
     ``banded``: an item takes part on an edge only when the cost it stands for can lie in
-    (``band_lo``, ``band_hi``] there: its value interval on the edge, widened by its own
+    (``band_lo``, ``band_hi``] there: its interval of absolute values on the edge, widened by its own
     width, times ``cost_lo[p]`` .. ``cost_hi[p]`` for a plain item (the role factors of
     :func:`specmap.special.focus.cost_factors`) or 1/2 for a doubled one. At a crossing both
     items stand for the tied cost, so a tie whose cost is out of the band on an edge is not
@@ -92,7 +94,8 @@ def sweep_rows(
     Returns
     -------
     codes, edges : ndarray of int64
-        Tie codes ``(cond * n + P) * n + Q`` and edge ids (:class:`Lattice` numbering).
+        Crossing keys ``branch * 2 n² + (cond * n + P) * n + Q`` (branch 0: c_P = +k c_Q,
+        1: c_P = -k c_Q) and edge ids (:class:`Lattice` numbering).
     n_candidates : int
         Overlapping item pairs examined.
     """
@@ -104,13 +107,15 @@ def sweep_rows(
     edges = np.empty(1024, dtype=np.int64)
     n_out = 0
     n_cand = 0
-    M = 2 * n_p
+    M = 4 * n_p
+    n2 = 2 * n_p * n_p
     lo = np.empty(M)
     hi = np.empty(M)
     v0 = np.empty(M)
     v1 = np.empty(M)
     ip = np.empty(M, dtype=np.int64)
     fac = np.empty(M, dtype=np.int64)
+    sgn = np.empty(M)
     cells = np.empty((2, 2), dtype=np.int64)
     for j in range(j_start, j_stop):
         n_edges_row = (na - 1) + (na if j < nb - 1 else 0)
@@ -150,35 +155,40 @@ def sweep_rows(
                         pres = True
                 if not pres:
                     continue
-                x0 = abs(s[first[p], ja, ia] - s[second[p], ja, ia]) * ma
-                x1 = abs(s[first[p], jb, ib] - s[second[p], jb, ib]) * mb
+                y0 = (s[first[p], ja, ia] - s[second[p], ja, ia]) * ma
+                y1 = (s[first[p], jb, ib] - s[second[p], jb, ib]) * mb
                 plain = True
                 dbl = doubled[p]
                 if banded:
+                    x0 = abs(y0)
+                    x1 = abs(y1)
                     w = abs(x1 - x0)
                     top = max(x0, x1) + w
                     bot = min(x0, x1) - w
                     plain = top * cost_hi[p] > band_lo and bot * cost_lo[p] <= top_e
                     dbl = dbl and top > band_lo and bot <= top_e  # 2x times 1/2
-                if plain:
-                    v0[m] = x0
-                    v1[m] = x1
-                    ip[m] = p
-                    fac[m] = 1
-                    m += 1
-                if dbl:
-                    v0[m] = 2.0 * x0
-                    v1[m] = 2.0 * x1
-                    ip[m] = p
-                    fac[m] = 2
-                    m += 1
+                for sg in (1.0, -1.0):
+                    if plain:
+                        v0[m] = sg * y0
+                        v1[m] = sg * y1
+                        ip[m] = p
+                        fac[m] = 1
+                        sgn[m] = sg
+                        m += 1
+                    if dbl:
+                        v0[m] = sg * 2.0 * y0
+                        v1[m] = sg * 2.0 * y1
+                        ip[m] = p
+                        fac[m] = 2
+                        sgn[m] = sg
+                        m += 1
             for q in range(m):
                 lo[q] = min(v0[q], v1[q])
                 hi[q] = max(v0[q], v1[q])
             order = np.argsort(lo[:m], kind="mergesort")
             for iu in range(m):
                 u = order[iu]
-                lim = hi[u] + snap + 1e-12 * hi[u]
+                lim = hi[u] + snap + 1e-12 * abs(hi[u])
                 for iv in range(iu + 1, m):
                     v = order[iv]
                     if lo[v] > lim:
@@ -194,6 +204,8 @@ def sweep_rows(
                         big, small = u, v
                     else:
                         big, small = v, u
+                    if sgn[big] < 0.0:
+                        continue  # the mirror (-P, -+Q) of the item pair (+P, +-Q)
                     P = ip[big]
                     Q = ip[small]
                     if P == Q:
@@ -219,7 +231,7 @@ def sweep_rows(
                         continue
                     codes = _grow(codes, n_out)
                     edges = _grow(edges, n_out)
-                    codes[n_out] = (cond * n_p + P) * n_p + Q
+                    codes[n_out] = (cond * n_p + P) * n_p + Q + (n2 if sgn[small] < 0.0 else 0)
                     edges[n_out] = eid
                     n_out += 1
     return codes[:n_out].copy(), edges[:n_out].copy(), n_cand
