@@ -105,3 +105,51 @@ def test_a_quiet_test_run_prints_only_the_progress_dots(tmp_path: Path) -> None:
     lines = [ln for ln in proc.stdout.splitlines() if ln.strip()]
     assert re.fullmatch(r"\.+\s+\[100%\]", lines[0]), proc.stdout
     assert len(lines) == 2 and re.match(r"\d+ passed", lines[1]), proc.stdout
+
+
+def test_progress_keeps_talking_when_the_total_grows(monkeypatch) -> None:
+    # the reduced search plans lines batch by batch after the dense sweep's 625 lines reached 100%;
+    # the clock advances 3 s per batch, so over 40 batches (120 s) the 10 s heartbeat prints a line
+    # every 4th batch (12 s apart): 40 / 4 = 10 lines (closed form), each saying the total grows
+    import io
+
+    from specmap import progress
+
+    now = [0.0]
+    monkeypatch.setattr(progress.time, "perf_counter", lambda: now[0])
+    out = io.StringIO()
+    bar = progress.Progress("distance", stream=out)
+    for done in range(0, 626, 125):
+        bar(done, 625)
+    first = out.getvalue().splitlines()
+    assert first[-1].startswith("distance: 625/625 (100%")
+    total = 625
+    for _ in range(40):
+        now[0] += 3.0
+        total += 4
+        bar(total, total)  # each batch finishes: done == total, the decile stays 10
+    later = out.getvalue().splitlines()[len(first) :]
+    assert len(later) == 10, later
+    assert all("the total grows" in ln for ln in later), later
+    assert later[-1].startswith(f"distance: {total}/{total} (100%, 120.0s"), later
+
+
+def test_progress_is_silent_between_deciles_of_a_fixed_total(monkeypatch) -> None:
+    import io
+
+    from specmap import progress
+
+    now = [0.0]
+    monkeypatch.setattr(progress.time, "perf_counter", lambda: now[0])
+    out = io.StringIO()
+    bar = progress.Progress("map", stream=out)
+    for done in range(0, 101):
+        now[0] += 0.5  # 5 s per decile: the heartbeat (10 s) never comes first
+        bar(done, 100)
+    lines = out.getvalue().splitlines()
+    assert len(lines) == 11 and lines[-1].startswith("map: 100/100 (100%")  # 0%, 10%, ..., 100%
+    slow = progress.Progress("map", stream=io.StringIO())
+    for done in range(0, 5):
+        now[0] += 30.0  # a slow first decile: one line per call, 30 s apart
+        slow(done, 100)
+    assert len(slow.stream.getvalue().splitlines()) == 5
