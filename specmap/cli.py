@@ -361,6 +361,8 @@ def run(argv: list[str] | None = None) -> int:
                 field="[f]/[g]",
                 fix="give a surface or mesh for both f and g to compute distances",
             )
+        from specmap.report.summary import why_sentences
+
         js = sr.write_distance(method=args.method, degrees=args.degrees, jobs=args.jobs)
         sr.record()
         print(
@@ -374,7 +376,7 @@ def run(argv: list[str] | None = None) -> int:
             if v.get("resolved") is False:
                 print(f"D_{k} not resolved: {v.get('resolved_why')}", file=sys.stderr)
             if v.get("certified") is False and v.get("why_not"):
-                print(f"D_{k} not certified: {v['why_not']}", file=sys.stderr)
+                print(f"D_{k} not certified. {why_sentences(v['why_not'])}", file=sys.stderr)
     elif args.verb == "perturb":
         if study.perturb is None:
             raise StudyError(
