@@ -298,3 +298,86 @@ def test_position_audit_mesh_aware_green_and_broken_grids_red():
     removed = (_ellipse_grid(1.0, 0.7, "f", drop="v0"), _ellipse_grid(1.0, 0.7, "g", drop="v0"))
     red = position_audit(sf, sg, removed, w, tolerance=1e-3, lines=12)
     assert red["fraction_explained"] < 1.0 and red["worst"]
+
+
+# --- the whole-strip branch and bound (specmap.distance.branch, issue 13 item 1) ---------------------
+
+
+def _two_ellipsoids(n=300):
+    out = []
+    for radii in ((2.0, 1.0, 1.0), (1.6, 1.0, 1.0)):
+        V, T = Ellipsoid(radii).mesh(n)
+        out.append(Shape("s", "mesh", V, T, V[:, :2].copy()))
+    return out
+
+
+def test_strip_search_two_ellipsoids_closed_form():
+    # closed form, derived here: f = (x, y) on x^2/4 + y^2 + z^2 = 1, g = (x, y) on x^2/1.6^2 + y^2 + z^2 = 1.
+    # On the limit line a -> 0 at b = b- = -2, every point has t (y + b) <= 0 <= x - b, so F* = x - b and
+    # h_0 -> |min x_f - min x_g| = 2 - 1.6 = 0.4; stability [CDFFL13] bounds h_0 by ||f - g||_inf = 0.4
+    # (x scaled by 0.8 at the same sphere point, |0.2 x| <= 0.4). So D_0 = 0.4, reached at the strip's
+    # end only (a sup, not a max over the window). The meshes share a triangulation with vertices on the
+    # surfaces: the meshed D_0 is within the largest vertex |x_f - x_g| of 0.4 (measured here).
+    from specmap.distance.branch import box_search, strip_segments
+
+    sf, sg = _two_ellipsoids()
+    w = default_window(sf.value_bounds(), sg.value_bounds())
+    tol = 1e-3 * 4.0
+    upper, kind = distance_upper_bound(sf, sg)
+    assert kind == "sup_norm"
+    ev = LineEvaluator(sf, sg, (0,))
+    box = box_search(
+        ev, sf.values, sg.values, strip_segments(0.0, 1.0), w.b, [0.0], tolerance=tol, upper=upper
+    )
+    lo, hi = box.best[0], box.bound[0]
+    mesh_term = 0.4 - float(np.abs(sf.values[:, 0] - sg.values[:, 0]).max())
+    assert 0 <= mesh_term < 0.01
+    assert lo - 1e-12 <= 0.4 <= hi + mesh_term + 1e-12 and hi - lo <= tol
+    assert box.closed == [True]
+    assert box.at[0][0] < 0.02  # found on the strip's end, outside the default window
+    # through matching_distance: the interval of by_degree[0] holds it too
+    res = _run(sf, sg, (0,), tolerance=tol)
+    e = res.by_degree[0]
+    assert e["bounds"][0] - 1e-12 <= 0.4 <= e["bounds"][1] + mesh_term + 1e-12
+    assert e["bounds"][1] - e["bounds"][0] <= tol * (1 + 1e-9) and e["certified"] is True, e
+
+
+def test_strip_search_translation_without_the_sup_norm_cap():
+    # CDFFL13 stability, closed form: g = f + (c, c) on one mesh gives D_0 = |c| (h_0(1/2, b) = |c|, the
+    # essential class shifted by c, and h_0 <= |c| everywhere). Here the a-priori cap is withheld, so
+    # only the cells' own bounds can close the search: the per-cell sup norm of F*_f - F*_g (one mesh),
+    # which is |c| on every cell (max(|c|, t |c|)). Without it a flat h needs cells below the tolerance.
+    from specmap.distance.branch import box_search, strip_segments
+
+    V, T, f = ellipsoid_pair(200)
+    c = 0.15
+    sf, sg = shapes(V, T, f, f + c)
+    w = default_window(sf.value_bounds(), sg.value_bounds())
+    tol = 1e-3 * 4.0
+    ev = LineEvaluator(sf, sg, (0,))
+    box = box_search(
+        ev, sf.values, sg.values, strip_segments(0.0, 1.0), w.b, [0.0], tolerance=tol, one_mesh=True
+    )
+    assert box.best[0] == pytest.approx(c, abs=1e-12)
+    assert box.best[0] <= c + 1e-12 <= box.bound[0] + 2e-12
+    assert box.closed == [True] and box.bound[0] - box.best[0] <= tol * (1 + 1e-9)
+
+
+def test_strip_search_bound_holds_on_brute_force_lines():
+    # brute force in the test: h on random lines of the strip (fresh evaluator) never exceeds the
+    # search's bound, in every degree, also when the search stops early at a small budget.
+    from specmap.distance.branch import box_search, strip_segments
+
+    sf, sg = _rough_pair()
+    w = default_window(sf.value_bounds(), sg.value_bounds())
+    ev = LineEvaluator(sf, sg, (0, 1, 2))
+    box = box_search(
+        ev, sf.values, sg.values, strip_segments(0.0, 1.0), w.b, [0.0] * 3, tolerance=1e-4, max_lines=400
+    )
+    assert box.lines <= 400 and not all(box.closed)
+    rng = np.random.default_rng(5)
+    a, b = rng.uniform(0.0, 1.0, 40), rng.uniform(*w.b, 40)
+    H = LineEvaluator(sf, sg, (0, 1, 2))(a, b)
+    for j in range(3):
+        assert float(H[j].max()) <= box.bound[j] + 1e-12, (j, float(H[j].max()), box.bound[j])
+        assert box.best[j] <= box.bound[j]

@@ -37,6 +37,9 @@ def theorem_audit(
     (b) ``dense_above_reduced``: the dense sweep's best D^dense_k > R_k + tol: the
         reduced search missed a larger value (the theorem's hypotheses fail on the
         grids, or a search stopped early). Not run (None) without a dense sweep.
+    (c) ``strip_above_reduced``: the whole-strip branch and bound
+        (:mod:`specmap.distance.branch`, ``by_degree[k]["strip"]``) found h_k > R_k + tol; its
+        certified bound also enters U_k in (a). Not run (None) where that search did not run.
 
     The two computations share the evaluator's memo, not their decisions (the
     reduced search takes only its own lines as its values).
@@ -60,13 +63,23 @@ def theorem_audit(
     for j, k in enumerate(degrees):
         r, r_at = by_degree[k]["value"], by_degree[k]["at"]
         u = min(upper, dense.upper(j)) if dense is not None else upper
+        strip = by_degree[k].get("strip")
+        if strip is not None:
+            u = min(u, strip["bounds"][1])
         row: dict[str, Any] = {
             "reduced_minus_upper": None,
             "reduced_above_upper": None,
             "dense_minus_reduced": None,
             "dense_above_reduced": None,
+            "strip_above_reduced": None,
             "line": None,
         }
+        if strip is not None and math.isfinite(r):
+            diff = float(strip["bounds"][0] - r)
+            row["strip_above_reduced"] = bool(diff > tolerance)
+            if diff > tolerance:
+                flags.append((diff, "the whole-strip search exceeds the reported value", k, strip["best_at"]))
+                row["line"] = _line(strip["best_at"])
         if math.isfinite(r) and math.isfinite(u):
             row["reduced_minus_upper"] = float(r - u)
             row["reduced_above_upper"] = bool(r - u > tolerance)
@@ -89,6 +102,7 @@ def theorem_audit(
         rows[str(k)] = row
     above = [r["reduced_above_upper"] for r in rows.values() if r["reduced_above_upper"] is not None]
     below = [r["dense_above_reduced"] for r in rows.values() if r["dense_above_reduced"] is not None]
+    strip_rows = [r["strip_above_reduced"] for r in rows.values() if r["strip_above_reduced"] is not None]
     out: dict[str, Any] = {
         "theorem_gap": None,
         "gap": None,
@@ -97,6 +111,7 @@ def theorem_audit(
         "theorem": {
             "reduced_above_upper": any(above) if above else None,
             "dense_above_reduced": any(below) if below else None,
+            "strip_above_reduced": any(strip_rows) if strip_rows else None,
             "by_degree": rows,
         },
     }

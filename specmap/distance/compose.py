@@ -9,6 +9,7 @@ from typing import Any
 
 from specmap.distance.audit import position_audit, theorem_audit
 from specmap.distance.bounds import distance_upper_bound, lipschitz_constants, value_range
+from specmap.distance.branch import fold_strip
 from specmap.distance.certify import degree_certificate, mesh_tolerance, resolution_check
 from specmap.distance.dense import dense_sweep
 from specmap.distance.ends import fold_ends
@@ -30,6 +31,8 @@ from specmap.strip import Window, default_window
 METHODS = ("both", "dense", "reduced")
 TOLERANCE_FRACTION = 1e-3
 """Default tolerance: this fraction of the largest value range of f and g."""
+STRIP_LINES_PER_NODE = 2.5
+"""Line budget of the whole-strip branch and bound, per node of the dense sweep's grid (about 3x its time)."""
 
 
 def _grids_pair(grids) -> tuple | None:
@@ -259,6 +262,18 @@ def matching_distance(
     )
     # the strip's ends a < a0, a > 1 - a0 (issue 16 item 4)
     ends_meta = fold_ends(ev, shape_f, shape_g, window, by_degree, degrees, tol, upper=upper)
+    # degrees still open: the 2-D branch and bound over the whole strip, ends included (issue 13 item 1)
+    strip_meta = fold_strip(
+        ev,
+        shape_f,
+        shape_g,
+        window,
+        by_degree,
+        degrees,
+        tol,
+        upper=upper,
+        max_lines=int(STRIP_LINES_PER_NODE * dense_resolution**2),
+    )
     kmax = max(degrees, key=lambda k: by_degree[k]["value"])
     top = by_degree[kmax]
 
@@ -299,5 +314,6 @@ def matching_distance(
             "lipschitz": {"a": lip[0], "b": lip[1]},
             "resolution_floor": {"distance": float(tol), "grid": floors[0], "mesh": floors[1]},
             "ends": ends_meta,
+            "strip": strip_meta,
         },
     )

@@ -268,11 +268,15 @@ def _one_branch(form: str, maps: Sequence[np.ndarray], cell: Cell) -> str | None
     return "x" if lo else "t" if hi else None
 
 
-def _cell_bound(c: _Corners, cell: Cell) -> tuple[np.ndarray, float, float]:
+def _cell_bound(
+    c: _Corners, cell: Cell, *, clipped: bool = True, moves: bool = True
+) -> tuple[np.ndarray, float, float]:
     """(bound per degree, the t-sibling move, the b-sibling move) of a cell (form, t0, t1, b0, b1).
 
     bound_k = min over corners q of h_k(q) + M_f(q) + M_g(q), M the exact sup of
     :func:`_shifted_move` (stability [CDFFL13] after a common shift of both maps).
+    ``clipped=False`` leaves out the clipped map (it helps near the limit line t = 0 only) and
+    ``moves=False`` the two direction moves (returned as 0): both only save time.
     """
     form = cell[0]
     branch = _one_branch(form, (c.vf, c.vg), cell)
@@ -290,11 +294,15 @@ def _cell_bound(c: _Corners, cell: Cell) -> tuple[np.ndarray, float, float]:
         best = ub if best is None else np.minimum(best, ub)
     assert best is not None
     lower = cell[3] if form == "below" else cell[4]  # the corner row the clipped move starts from
+    if not clipped:
+        return best, 0.0, 0.0
     for tq in (cell[1], cell[2]):
         q = (form, tq, lower)
         fq, gq = c.star[q]
         m = _clipped_move(form, c.vf, cell, tq, fq) + _clipped_move(form, c.vg, cell, tq, gq)
         best = np.minimum(best, c.h[q] + m)
+    if not moves:
+        return best, 0.0, 0.0
     # what each direction costs alone (the clipped move of a cell flat in the other direction)
     _, t0, t1, b0, b1 = cell
     tm = bm = 0.0
