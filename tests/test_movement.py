@@ -68,3 +68,37 @@ def test_summary_says_not_tracked_when_distance_is_off():
     assert s["curve_movement"]["mean"] == pytest.approx(0.02) and s["curve_movement"]["max"] == pytest.approx(
         0.03
     )
+
+
+def test_patch_change_agrees_with_the_predicted_threshold():
+    # Closed form (special/reasons.py, math.md section 5): vertical half-lines f at 0, 1 and g at 3.3, 4.3
+    # have equal spacing (|1 - 0| = |4.3 - 3.3|), so their tie holds on the whole window (one patch) and
+    # every identity involves g:v1; moving g:v1 by eps changes the tied difference by eps. The prediction
+    # breaks_at = max(defect, atlas tolerance): below it the perturbation study's patch change
+    # (atlas_digest + patch_change, as in specmap.perturb.run) is 0, far above it the patch is gone
+    # (change = the whole patch). Measured between: at 2 x breaks_at about 29% of the patch survives,
+    # none at 7 x on this window (the residual is compared in line parameter units, s = (x - b)/a).
+    from specmap.grids.model import Contour, Grid
+    from specmap.perturb.run import atlas_digest
+    from specmap.special import special_set
+
+    window = Window((0.1, 0.9), (-3.0, 3.0))
+
+    def grids(eps: float):
+        f = Grid(tuple(Contour(f"f:v{i}", "vertical", [x, -50.0]) for i, x in enumerate((0.0, 1.0))))
+        g = Grid(tuple(Contour(f"g:v{i}", "vertical", [x, -50.0]) for i, x in enumerate((3.3, 4.3 + eps))))
+        return f, g
+
+    base = special_set(*grids(0.0), window, resolution=31)
+    reasons = [r for c in base.components if c.kind == "patch" for r in c.reasons]
+    assert reasons and all(r["kind"] == "equal_spacing" and "g:v1" in r["contours"] for r in reasons)
+    eps = max(r["breaks_at"] for r in reasons)
+    area0, _, geom0 = atlas_digest(base)
+    assert area0 > 0
+    below = special_set(*grids(0.5 * eps), window, resolution=31)
+    area_b, counts_b, geom_b = atlas_digest(below)
+    assert counts_b["patch"] == 1 and patch_change(geom_b, geom0, window) == pytest.approx(0.0, abs=1e-12)
+    above = special_set(*grids(10 * eps), window, resolution=31)
+    area_a, counts_a, geom_a = atlas_digest(above)
+    assert counts_a["patch"] == 0 and area_a == 0.0
+    assert patch_change(geom_a, geom0, window) == pytest.approx(area0 / window.area, rel=1e-9)
