@@ -48,12 +48,16 @@ class TileItem:
         MultiLineString, MultiPoint or (Multi)Polygon, coordinates (a, b).
     cuts : tuple of (bool, bool)
         Curves: per line, whether its start and its end were cut at the core's border.
+    labels : tuple of int
+        Curves: per line, its component label among the tile's lines (line/line contacts in
+        the tile's cells, :func:`specmap.special.components.lattice_links`).
     """
 
     code: int
     kind: str
     geometry: Any
     cuts: tuple[tuple[bool, bool], ...] = ()
+    labels: tuple[int, ...] = ()
 
     def to_json(self) -> dict[str, Any]:
         """Plain JSON (geometry as hexadecimal WKB: exact doubles)."""
@@ -64,13 +68,15 @@ class TileItem:
         }
         if self.kind == CURVE:
             out["cuts"] = [[bool(s), bool(e)] for s, e in self.cuts]
+            out["labels"] = [int(x) for x in self.labels]
         return out
 
     @staticmethod
     def from_json(d: dict[str, Any]) -> TileItem:
         """Inverse of :meth:`to_json`."""
         cuts = tuple((bool(s), bool(e)) for s, e in d.get("cuts", ()))
-        return TileItem(int(d["code"]), str(d["kind"]), shapely.from_wkb(d["wkb"]), cuts)
+        labels = tuple(int(x) for x in d.get("labels", ()))
+        return TileItem(int(d["code"]), str(d["kind"]), shapely.from_wkb(d["wkb"]), cuts, labels)
 
 
 @dataclass(frozen=True)
@@ -165,7 +171,11 @@ def clip_lines(
 
 
 def join_runs(
-    runs: list[np.ndarray], cuts: list[tuple[bool, bool]], tol: float, group: np.ndarray | None = None
+    runs: list[np.ndarray],
+    cuts: list[tuple[bool, bool]],
+    tol: float,
+    group: np.ndarray | None = None,
+    members: list[list[int]] | None = None,
 ) -> tuple[list[np.ndarray], list[int]]:
     """Polylines from runs joined at matching cut ends (within ``tol``, same ``group``).
 
@@ -177,7 +187,8 @@ def join_runs(
     Returns
     -------
     (lines, groups)
-        The joined polylines and the group of each.
+        The joined polylines and the group of each; when a list ``members`` is given, the
+        runs of each line are appended to it.
     """
     from scipy.spatial import cKDTree
 
@@ -213,8 +224,12 @@ def join_runs(
         """Runs from run ``r`` entered at end ``enter``, following links; (pieces, closed)."""
         out: list[np.ndarray] = []
         start = (r, enter)
+        if members is not None:
+            members.append([])
         while True:
             seen[r] = True
+            if members is not None:
+                members[-1].append(r)
             c = runs[r] if enter == 0 else runs[r][::-1]
             out.append(c if not out else c[1:])
             nxt = link.get((r, 1 - enter))
@@ -248,50 +263,102 @@ def join_runs(
     return lines, groups
 
 
-def _merged_curves(items: list[TileItem], tol: float) -> dict[int, Any]:
-    """MultiLineString per tie code of all tiles' curve items (cut runs joined, the rest as they are)."""
+class _UnionFind:
+    """Union-find over ``n`` labels (path halving)."""
+
+    def __init__(self, n: int) -> None:
+        self.parent = np.arange(n)
+
+    def find(self, x: int) -> int:
+        p = self.parent
+        while p[x] != x:
+            p[x] = p[p[x]]
+            x = int(p[x])
+        return x
+
+    def union(self, x: int, y: int) -> None:
+        rx, ry = self.find(x), self.find(y)
+        if rx != ry:
+            self.parent[max(rx, ry)] = min(rx, ry)
+
+
+def _merged_curves(
+    items: list[TileItem], labels: np.ndarray, tol: float
+) -> tuple[dict[int, Any], dict[int, np.ndarray]]:
+    """MultiLineString per tie code of all tiles' curve items (cut runs joined, the rest as they are).
+
+    ``labels`` are global component labels of the items' lines (in the order of their parts);
+    the labels of the runs of one joined line are united. Returns the curves and, per code,
+    the label of each of its lines (union-find roots).
+    """
     if not items:
-        return {}
+        return {}, {}
     geoms = np.array([it.geometry for it in items], dtype=object)
     parts, pidx = shapely.get_parts(geoms, return_index=True)
     codes = np.array([it.code for it in items], dtype=np.int64)[pidx]
     cuts = [c for it in items for c in it.cuts]
     cut = np.array([s or e for s, e in cuts], dtype=bool)
+    uf = _UnionFind(int(labels.max()) + 1 if labels.size else 0)
     lines = list(parts[~cut])
     line_codes = list(codes[~cut].tolist())
+    line_labels = list(labels[~cut].tolist())
+    del geoms
     if cut.any():
         k = np.nonzero(cut)[0]
         coords, cidx = shapely.get_coordinates(parts[k], return_index=True)
         runs = np.split(coords, np.cumsum(np.bincount(cidx, minlength=k.size))[:-1])
-        joined, groups = join_runs(runs, [cuts[i] for i in k.tolist()], tol, codes[k])
+        members: list[list[int]] = []
+        joined, groups = join_runs(runs, [cuts[i] for i in k.tolist()], tol, codes[k], members)
+        for m in members:
+            first = int(labels[k[m[0]]])
+            for r in m[1:]:
+                uf.union(first, int(labels[k[r]]))
+            line_labels.append(first)
         lines.extend(shapely.linestrings(c) for c in joined)
         line_codes.extend(groups)
+    roots = np.array([uf.find(x) for x in line_labels], dtype=np.int64)
     order = np.argsort(np.array(line_codes, dtype=np.int64), kind="stable")
     lc = np.array(line_codes, dtype=np.int64)[order]
-    uc, first = np.unique(lc, return_index=True)
+    uc, first_i = np.unique(lc, return_index=True)
     mls = shapely.multilinestrings(np.array(lines, dtype=object)[order], indices=np.searchsorted(uc, lc))
-    return dict(zip(uc.tolist(), list(mls), strict=True))
+    bounds = np.append(first_i, lc.size)
+    lab = {int(c): roots[order[bounds[i] : bounds[i + 1]]] for i, c in enumerate(uc.tolist())}
+    return dict(zip(uc.tolist(), list(mls), strict=True)), lab
 
 
-def merge_items(results: Iterable[TileResult], diameter: float) -> list[tuple[int, str, Any]]:
+def merge_items(
+    results: Iterable[TileResult], diameter: float
+) -> tuple[list[tuple[int, str, Any]], dict[int, np.ndarray]]:
     """Items (code, kind, geometry) of the whole window, in the order of the one-piece atlas.
 
-    Per tie: curves joined at cut ends (:func:`join_runs`, tolerance ``1e-10 * diameter``),
-    then points; patches (unions of the tiles' clipped polygons) after all curves and points,
-    each group sorted by code.
+    Per tie: curves joined at cut ends (:func:`join_runs`, fallback tolerance
+    ``1e-10 * diameter``), then points; patches (unions of the tiles' clipped polygons) after
+    all curves and points, each group sorted by code. Also, per code, the component label of
+    each of its curve lines: the tiles' labels (contacts in each tile's cells) united where a
+    line passes from tile to tile (union-find), so the line/line part of the components needs
+    no pass over the whole window's segments.
     """
     curve_items: list[TileItem] = []
+    curve_labels: list[np.ndarray] = []
     points: dict[int, list[Any]] = {}
     patches: dict[int, list[Any]] = {}
+    offset = 0
     for res in results:
+        top = 0
         for it in res.items:
             if it.kind == CURVE:
                 curve_items.append(it)
+                lab = np.asarray(it.labels, dtype=np.int64)
+                curve_labels.append(lab + offset)
+                top = max(top, int(lab.max()) + 1 if lab.size else 0)
             elif it.kind == POINT:
                 points.setdefault(it.code, []).extend(shapely.get_parts(it.geometry))
             else:
                 patches.setdefault(it.code, []).append(it.geometry)
-    curves = _merged_curves(curve_items, 1e-10 * diameter)
+        offset += top
+    labels = np.concatenate(curve_labels) if curve_labels else np.zeros(0, np.int64)
+    curves, line_labels = _merged_curves(curve_items, labels, 1e-10 * diameter)
+    del curve_items
     items: list[tuple[int, str, Any]] = []
     for code in sorted(set(curves) | set(points)):
         if code in curves:
@@ -307,7 +374,7 @@ def merge_items(results: Iterable[TileResult], diameter: float) -> list[tuple[in
             by_parts[key] = shapely.union_all(parts)
         if not by_parts[key].is_empty:
             items.append((code, PATCH, by_parts[key]))
-    return items
+    return items, line_labels
 
 
 def as_pieces(table: PairTable, items: list[tuple[int, str, Any]]) -> list[TiePiece]:

@@ -220,9 +220,10 @@ def tile_pieces(
     items: list[TileItem] = []
     curve_k = [k for k, it in enumerate(found) if it[1] == CURVE]
     clipped_curves = clip_pieces([found[k][2] for k in curve_k], box)
-    for k, got in zip(curve_k, clipped_curves, strict=True):
-        if got is not None:
-            items.append(TileItem(int(found[k][0]), CURVE, got[0], got[1]))
+    kept = [(k, got) for k, got in zip(curve_k, clipped_curves, strict=True) if got is not None]
+    labels = _line_labels([got[0] for _, got in kept], tile, lat, window)
+    for (k, got), lab in zip(kept, labels, strict=True):
+        items.append(TileItem(int(found[k][0]), CURVE, got[0], got[1], lab))
     for code, kind, g in found:
         if kind == POINT:
             xy = shapely.get_coordinates(g)
@@ -239,6 +240,25 @@ def tile_pieces(
     stats["tile_seconds"] = round(time.perf_counter() - t0, 4)
     stats["halo_cells"] = tile.cells
     return TileResult(tile.name, tuple(items), stats)
+
+
+def _line_labels(geoms: list[Any], tile: Tile, frame: Lattice, window: Window) -> list[tuple[int, ...]]:
+    """Component labels of the lines of the clipped curve pieces ``geoms`` (per piece, per line).
+
+    :func:`specmap.special.components.lattice_links` on the tile's cells (chords interleaving
+    in a cell, shared vertices to ``1e-9`` of the whole window's diameter), labels = the
+    representative line of each line's group.
+    """
+    from specmap.special.components import lattice_links
+
+    if not geoms:
+        return []
+    parts, pidx = shapely.get_parts(np.array(geoms, dtype=object), return_index=True)
+    i0, i1, j0, j1 = tile.halo
+    lat = Lattice(np.asarray(frame.av[i0 : i1 + 1]), np.asarray(frame.bv[j0 : j1 + 1]))
+    _, rep = lattice_links(list(parts), 1e-9 * max(window.diameter, 1e-300), lat)
+    bounds = np.searchsorted(pidx, np.arange(len(geoms) + 1))
+    return [tuple(rep[bounds[k] : bounds[k + 1]].tolist()) for k in range(len(geoms))]
 
 
 def clip_pieces(
@@ -380,7 +400,7 @@ def tiled_special_set(
         ``stats`` sums the tiles' counters (cells of the halos counted in each tile that
         computes them) and adds ``tiles`` (grid, count, reused, seconds per tile).
     """
-    from specmap.special.components import components
+    from specmap.special.components import components_with
     from specmap.special.compute import default_tolerance, with_reasons
 
     t_start = time.perf_counter()
@@ -417,16 +437,27 @@ def tiled_special_set(
             done[result.name] = result
             if progress is not None:
                 progress(sum(1 for t in plan if t.name in done), len(plan))
-    results = [done[t.name] for t in plan]
+    tile_stats = [done[t.name].stats for t in plan]
     t_merge = time.perf_counter()
     table = pair_table(grid_f, grid_g, settings.pairs)
-    items = merge_items(results, window.diameter)
+    items, line_labels = merge_items((done.pop(t.name) for t in plan), window.diameter)
     pieces = as_pieces(table, items)
-    lat = Lattice.of(window, n_a, n_b)
-    comps = with_reasons(components(tuple(pieces), window, lat), pieces, table, tol)
+    # line/line contacts from the tiles' labels (united across borders); patches and points as usual
+    order = np.concatenate(
+        [line_labels[c] for c, k, _ in items if k == CURVE] or [np.zeros(0, np.int64)]
+    ).astype(np.int64)
+    del line_labels
+
+    def links(lines: list, eps: float) -> tuple[np.ndarray, np.ndarray]:
+        if len(lines) != order.size:
+            raise AssertionError("tile labels do not match the merged lines")
+        u, first = np.unique(order, return_index=True)
+        return np.arange(order.size), first[np.searchsorted(u, order)]
+
+    comps = with_reasons(components_with(tuple(pieces), window, links), pieces, table, tol)
     summed: dict[str, Any] = {}
-    for r in results:
-        for k, v in r.stats.items():
+    for st in tile_stats:
+        for k, v in st.items():
             if k not in ("contours", "pairs_total", "snap", "seconds", "tile_seconds", "halo_cells"):
                 summed[k] = summed.get(k, 0) + v
     stats = {
@@ -444,7 +475,7 @@ def tiled_special_set(
             "count": len(plan),
             "reused": reused,
             "halo_cells": 1,
-            "seconds_per_tile": [float(r.stats.get("tile_seconds", 0.0)) for r in results],
+            "seconds_per_tile": [float(st.get("tile_seconds", 0.0)) for st in tile_stats],
             "merge_s": round(time.perf_counter() - t_merge, 4),
         },
         "seconds": round(time.perf_counter() - t_start, 4),
