@@ -811,3 +811,35 @@ def test_why_not_reads_as_sentences_with_every_number_kept() -> None:
         assert len(sentences) == why.count("; ") + 1, out
         assert all(x[0].isupper() and x.endswith(".") for x in sentences), out
     assert why_sentences("an unknown reason; kept as written") == "An unknown reason. Kept as written."
+
+
+def test_degrees_below_d_that_are_not_certified_get_one_caveat_with_what_to_do() -> None:
+    # fixture: D = D_0 = 0.3 certified, D_1 = 0.2125 and D_2 = 0.1 below it with intervals (values made up
+    # here); the caveat names both, quotes their intervals and the setting that bounds each degree
+    from specmap.report.summary import ranked_notes
+
+    d = _distance()
+    d["by_degree"]["0"].update(bounds=[0.3, 0.3], certified=True, why_not=None)
+    d["by_degree"]["1"].update(
+        bounds=[0.2125, 0.3],
+        certified=False,
+        why_not="slope-one search stopped at its 200-line cap: bound 0.25 against best 0.2125",
+    )
+    d["by_degree"]["2"] = {
+        "value": 0.1,
+        "at": [0.5, 0.0],
+        "bounds": [0.1, 0.3],
+        "certified": False,
+        "why_not": "x",
+    }
+    notes = [
+        n for n in ranked_notes({"distance": d, "study": {}, "stages": {}}) if "not certified" in n.title
+    ]
+    assert len(notes) == 1 and notes[0].title == "D_1 and D_2 not certified" and notes[0].severity == 3
+    assert "[0.2125, 0.3] and [0.1, 0.3] respectively" in notes[0].text
+    assert 'certify = "each"' in notes[0].todo and "line budget" in notes[0].todo
+    d["by_degree"]["1"].update(certified=True, why_not=None, bounds=[0.2125, 0.2125])
+    d["by_degree"]["2"].update(certified=True, why_not=None, bounds=[0.1, 0.1])
+    assert not [
+        n for n in ranked_notes({"distance": d, "study": {}, "stages": {}}) if "not certified" in n.title
+    ]

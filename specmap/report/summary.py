@@ -115,6 +115,7 @@ def _derived_reason(d: dict[str, Any], k: str, v: dict[str, Any], vmax: float) -
 
 _NUM = r"(-?[0-9][0-9.e+-]*)"
 _REWORDS = (
+    (r"(^|; )slope-one search", r"\1the slope-one search"),
     (
         r'the special-set pass bounds the maximum over degrees only \(\[distance\] certify = "(\w+)"\), '
         rf"here by {_NUM}",
@@ -130,8 +131,8 @@ _REWORDS = (
         r"the dense sweep bounds it only by \1, as its cell error bound is \2",
     ),
     (
-        rf"slope-one search stopped at its (\d+)-line cap: bound {_NUM} against best {_NUM}",
-        r"the slope-one search stopped at its \1-line cap with the bound \2 against the best value \3",
+        rf"stopped at its (\d+)-line (cap|budget): bound {_NUM} against best {_NUM}",
+        r"stopped at its \1-line \2 with the bound \3 against the best value \4",
     ),
     (
         rf"are not covered: they are bounded by {_NUM} only, above D = {_NUM} \+ tolerance",
@@ -530,9 +531,34 @@ def ranked_notes(res: dict[str, Any]) -> list[Note]:
         )
     if d:
         value = num(d.get("value"))
+        lower = [
+            r
+            for r in degree_rows(d)
+            if r.status.startswith("not certified")
+            and math.isfinite(value)
+            and not abs(r.value - value) <= max(tol, 0.0)
+        ]
+        if lower:  # degrees below the maximum: one caveat for all, with the setting that bounds each
+            who = " and ".join(f"D_{r.degree}" for r in lower)
+            ivs = " and ".join(f"[{fmt(r.interval[0])}, {fmt(r.interval[1])}]" for r in lower if r.interval)
+            if ivs and len(lower) > 1:
+                ivs += " respectively"
+            capped = any("cap" in r.status or "budget" in r.status for r in lower)
+            notes.append(
+                Note(
+                    3,
+                    f"{who} not certified",
+                    f"{who} {'is' if len(lower) == 1 else 'are'} below D and known only to lie in "
+                    + (ivs if ivs else "no recorded interval")
+                    + "; D itself is not affected.",
+                    'set certify = "each" in the study\'s [distance] table to bound every degree on its own'
+                    + (", with a larger line budget where a search stopped at its cap," if capped else "")
+                    + " and rerun specmap distance.",
+                )
+            )
         for row in degree_rows(d):
             if not (math.isfinite(value) and abs(row.value - value) <= max(tol, 0.0)):
-                continue  # degrees below the maximum are reported in the table, not as notes
+                continue  # degrees below the maximum: the caveat above
             if row.status.startswith("not certified"):
                 sev = 2 if row.certified is False or row.interval is not None else 3
                 notes.append(
