@@ -51,7 +51,7 @@ def run_case(n: int, res: int, tiles: tuple[int, int]) -> dict:
 def main(argv: list[str]) -> None:
     n = int(argv[0]) if argv else 40
     res = int(argv[1]) if len(argv) > 1 else 81
-    cases = [(1, 1)] + [tuple(int(x) for x in t.split("x")) for t in (argv[2:] or ["2x2"])]
+    cases = [(1, 1)] + [tuple(int(x) for x in t.split("x")) for t in (argv[2:] or ["2x2", "3x3"])]
     rows = []
     for t in cases:
         r = run_case(n, res, t)  # type: ignore[arg-type]
