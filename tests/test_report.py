@@ -843,3 +843,18 @@ def test_degrees_below_d_that_are_not_certified_get_one_caveat_with_what_to_do()
     assert not [
         n for n in ranked_notes({"distance": d, "study": {}, "stages": {}}) if "not certified" in n.title
     ]
+
+
+def test_cover_prints_each_constant_with_its_value(tmp_path: Path) -> None:
+    # a study with [constants] twist = 0.25 (as studies/ring.toml) and an integer constant: the cover
+    # gives "name = value", not the name alone
+    root = make_folder(tmp_path / "c", stages=())
+    study = {**STUDY, "constants": {"twist": 0.25, "k": 3}}
+    study["g"] = {"description": "torus R=2 r=1, map (x + twist*z, y)", "source": "surface"}
+    _dump(root / "study.json", study)
+    cover = next(_flat(p) for p in pages_of_build(root) if "Study and provenance" in p)
+    assert "Constants: twist = 0.25, k = 3" in cover and "x + twist*z" in cover
+
+
+def pages_of_build(root: Path) -> list[str]:
+    return pdf_pages(build_report(root))
