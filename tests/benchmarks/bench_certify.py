@@ -1,0 +1,155 @@
+"""Benchmark: the whole-strip certified branch and bound against the dense sweep, same run (issue 13).
+
+Run ``python tests/benchmarks/bench_certify.py [study.toml] [--lines N]`` (default: the demo study).
+For the study's pair it times, in one process:
+
+- the dense sweep as the distance stage runs it by default (41 x 41 nodes, all degrees, pattern
+  search refinement): lines, seconds, node maximum plus its cell error bound;
+- per degree k, :func:`specmap.distance.branch.box_search` over the whole strip ]0, 1[ x [b-, b+]
+  (the strip's ends included) from nothing (floor 0, a fresh evaluator of that degree only), to
+  delta = 1e-3 of the value range, with a budget of N lines (default 2.5 x the dense nodes, the
+  budget of ``matching_distance``): lines, seconds, the interval [best, bound] and whether it closed.
+
+The target (issue 13 "Performance"): certification to delta within 3 x the dense sweep's time.
+Writes ``results_certify.md`` next to this file.
+
+``--mesh`` instead measures the mesh-to-surface term (issue 13 item 1): the study's D_k (reduced
+search, its grids and atlas) with both meshes at 1x, 2x and 4x the study's resolution, and
+writes ``results_certify_mesh.md``.
+"""
+
+from __future__ import annotations
+
+import sys
+import time
+from pathlib import Path
+
+import specmap.grids  # noqa: F401  (import order: grids before shapes)
+from specmap.distance.bounds import distance_upper_bound, value_range
+from specmap.distance.branch import _one_mesh, box_search, strip_segments
+from specmap.distance.dense import dense_sweep
+from specmap.distance.evaluator import LineEvaluator
+from specmap.pipeline import StudyRun
+from specmap.study import load_study
+
+OUT = Path(__file__).with_name("results_certify.md")
+DEMO = Path(__file__).parents[2] / "studies" / "demo.toml"
+
+
+def main(path: str | Path = DEMO, lines: int | None = None) -> str:
+    study = load_study(str(path))
+    run = StudyRun(study, show_progress=False)
+    sf, sg = run.shapes
+    w = run.window
+    degrees = (0, 1, 2)
+    tol = 1e-3 * value_range(sf, sg)
+    upper, kind = distance_upper_bound(sf, sg)
+    budget = int(lines if lines is not None else 2.5 * 41**2)
+    ev = LineEvaluator(sf, sg, degrees)
+    t = time.perf_counter()
+    dense = dense_sweep(ev, w, resolution=41, bounds=(sf.value_bounds(), sg.value_bounds()))
+    dense_s = time.perf_counter() - t
+    rows = [
+        f"| dense 41 x 41, degrees 0-2 | {dense.lines} | {dense_s:.1f} | 1.00 | "
+        + ", ".join(f"D_{k} in [{dense.best[j][0]:.5f}, {dense.upper(j):.4f}]" for j, k in enumerate(degrees))
+        + " | no |"
+    ]
+    for k in degrees:
+        evk = LineEvaluator(sf, sg, (k,))
+        box = box_search(
+            evk,
+            sf.values,
+            sg.values,
+            strip_segments(0.0, 1.0),
+            w.b,
+            [0.0],
+            tolerance=tol,
+            upper=upper,
+            max_lines=budget,
+            one_mesh=_one_mesh(sf, sg),
+        )
+        rows.append(
+            f"| strip branch and bound, degree {k} | {box.lines} | {box.seconds:.1f} | "
+            f"{box.seconds / dense_s:.2f} | [{box.best[0]:.5f}, {box.bound[0]:.5f}] "
+            f"(width {box.bound[0] - box.best[0]:.4f}) | {'yes' if box.closed[0] else 'no'} |"
+        )
+        print(rows[-1], flush=True)
+    text = "\n".join(
+        [
+            "# Certified distance: whole-strip branch and bound vs the dense sweep (same run)",
+            "",
+            f"Pair: study {study.name}, {len(sf.values)} + {len(sg.values)} vertices; window a in "
+            f"[{w.a[0]:g}, {w.a[1]:g}], searched a in ]0, 1[ (ends included); delta = 1e-3 of the value "
+            f"range = {tol:.4g}; a-priori bound {upper:.4g} ({kind}); budget {budget} lines per degree.",
+            "",
+            "| computation | lines | seconds | x dense time | interval | certified (width <= delta) |",
+            "|---|---:|---:|---:|---|---|",
+            *rows,
+            "",
+        ]
+    )
+    OUT.write_text(text)
+    return text
+
+
+def mesh_movement(path: str | Path = DEMO, factors: tuple[int, ...] = (1, 2, 4)) -> str:
+    """D_k of the study at 1x, 2x, 4x its mesh resolution (reduced search, certify = "each")."""
+    import dataclasses
+
+    from specmap.distance import compose
+
+    compose.STRIP_LINES_PER_NODE = 0  # the reduced search's own certificate only (no whole-strip search)
+    base = load_study(str(path))
+    rows = []
+    for m in factors:
+        study = dataclasses.replace(
+            base,
+            f=dataclasses.replace(base.f, resolution=m * base.f.resolution),
+            g=dataclasses.replace(base.g, resolution=m * base.g.resolution),
+        )
+        run = StudyRun(study, show_progress=False)
+        sf, _ = run.shapes
+        settings = dataclasses.replace(
+            run.distance_settings(method="reduced"), certify="each", position_lines=0
+        )
+        t = time.perf_counter()
+        res = run.distance(settings)
+        secs = time.perf_counter() - t
+        vals = {k: res.by_degree[k] for k in sorted(res.by_degree)}
+        rows.append((m, len(sf.values), vals, secs, res.meta["resolution_floor"]["mesh"]))
+        print(m, len(sf.values), {k: v["value"] for k, v in vals.items()}, f"{secs:.1f} s", flush=True)
+    ks = sorted(rows[0][2])
+    ref = rows[-1][2]
+    lines = [
+        f"# Mesh-to-surface term: D_k of study {base.name} at {', '.join(f'{m}x' for m in factors)} resolution",
+        "",
+        'Reduced search (its grids and atlas), certify = "each", no whole-strip search; movement = D_k(m x) - D_k(finest).',
+        "",
+        "| resolution | vertices | mesh tolerance | "
+        + " | ".join(f"D_{k} [bounds] (movement)" for k in ks)
+        + " | seconds |",
+        "|---|---:|---:|" + "---|" * len(ks) + "---:|",
+    ]
+    for m, n, vals, secs, mtol in rows:
+        cells = [
+            f"{v['value']:.5f} [{v['bounds'][0]:.5f}, {v['bounds'][1]:.5f}] ({v['value'] - ref[k]['value']:+.5f})"
+            for k, v in vals.items()
+        ]
+        lines.append(f"| {m}x | {n} | {mtol:.4f} | " + " | ".join(cells) + f" | {secs:.1f} |")
+    text = "\n".join(lines) + "\n"
+    OUT.with_name("results_certify_mesh.md").write_text(text)
+    return text
+
+
+if __name__ == "__main__":
+    args = sys.argv[1:]
+    if "--mesh" in args:
+        args.remove("--mesh")
+        print(mesh_movement(args[0] if args else DEMO))
+        sys.exit(0)
+    n = None
+    if "--lines" in args:
+        i = args.index("--lines")
+        n = int(args[i + 1])
+        del args[i : i + 2]
+    print(main(args[0] if args else DEMO, n))
