@@ -286,6 +286,20 @@ def special_line(js: dict, path: Path | str) -> str:
     )
 
 
+def remap_note(out: Path, method: str) -> str | None:
+    """Why ``distance`` maps the special set again although ``special.json`` exists (None if it does not).
+
+    ``special.json`` and ``special.geojson`` keep the components (their union outlines and tie
+    lists), not the curve of each tie that the reduced search walks, so the search maps it again.
+    """
+    if method not in ("reduced", "both") or not (Path(out) / "special.json").is_file():
+        return None
+    return (
+        "specmap: note: the reduced search maps the special set again (special.json keeps the "
+        "components, not the curve of each tie that the search walks)"
+    )
+
+
 def run(argv: list[str] | None = None) -> int:
     args = build_parser().parse_args(argv)
     from specmap.pipeline import StudyRun
@@ -363,6 +377,9 @@ def run(argv: list[str] | None = None) -> int:
             )
         from specmap.report.summary import why_sentences
 
+        note = remap_note(sr.out, sr.distance_settings(method=args.method).method)
+        if note and show:
+            print(note, file=sys.stderr)
         js = sr.write_distance(method=args.method, degrees=args.degrees, jobs=args.jobs)
         sr.record()
         print(

@@ -153,3 +153,13 @@ def test_progress_is_silent_between_deciles_of_a_fixed_total(monkeypatch) -> Non
         now[0] += 30.0  # a slow first decile: one line per call, 30 s apart
         slow(done, 100)
     assert len(slow.stream.getvalue().splitlines()) == 5
+
+
+def test_distance_says_why_it_maps_again_when_special_json_exists(tmp_path: Path) -> None:
+    from specmap.cli import remap_note
+
+    assert remap_note(tmp_path, "reduced") is None  # no special.json: nothing to explain
+    (tmp_path / "special.json").write_text("{}")
+    assert "maps the special set again" in (remap_note(tmp_path, "reduced") or "")
+    assert remap_note(tmp_path, "both") == remap_note(tmp_path, "reduced")
+    assert remap_note(tmp_path, "dense") is None  # the dense sweep needs no map
