@@ -231,3 +231,21 @@ def test_map_with_other_pairs_after_a_perturbation_study_is_refused(folder: Path
     assert cli("map", "s.toml", "--out", "res", "--pairs", "roles", cwd=folder).returncode == 0
     line = one_line_error(cli("report", "res", cwd=folder))
     assert "special.json" in line and "map" in line and ("summary.json" in line or "distance.json" in line)
+
+
+@pytest.mark.parametrize("order", ["distance_then_map_flag", "map_flag_then_distance"])
+def test_a_map_flag_override_is_named_and_one_command_fixes_it(folder: Path, order: str) -> None:
+    # Issue 14: after `map --resolution 25` (a flag, the study file unchanged) and `distance`, the
+    # report named the older file's stage, which reran with the file's [map] and stayed inconsistent.
+    # Expected: the file made with the flag is the stale one, whatever the order, and the command
+    # the message names makes the folder consistent (checked by running it).
+    flagged = ["map", "s.toml", "--out", "res", "--resolution", "25"]
+    steps = [["distance", "s.toml", "--out", "res"], flagged]
+    for args in steps if order == "distance_then_map_flag" else steps[::-1]:
+        assert cli(*args, cwd=folder).returncode == 0
+    line = one_line_error(cli("report", "res", cwd=folder))
+    assert "special.json" in line and "distance.json" in line and "--resolution" in line
+    assert "special.json was made with map settings other than those of " in line
+    assert "rerun `specmap map " in line and "s.toml` without overriding flags" in line
+    assert cli("map", "s.toml", "--out", "res", cwd=folder).returncode == 0
+    assert load_results(folder / "res")["stages"]["distance"]

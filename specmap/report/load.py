@@ -15,7 +15,9 @@ perturb     ``perturb/summary.json`` (+ ``perturb/runs.jsonl``)
 Every file is checked against its schema (the keys the report needs), its ``format_version``
 and, across files, its fingerprint (:mod:`specmap.fingerprint`): files of one folder made with
 different settings or inputs (e.g. ``distance.json`` from before the map was changed) are
-refused in one line naming both, the stale one being the older. A file from a newer specmap
+refused in one line naming both and the stale one: the one whose settings differ from the study
+file as it is now (a command-line flag such as ``map --pairs``, or an edited file), else the older;
+rerunning its stage without overriding flags makes the folder consistent. A file from a newer specmap
 (``format_version`` above :data:`~specmap.fingerprint.FORMAT_VERSION`) is refused. Files without
 ``format_version`` (written before it existed) are read as version 1 with a one-line note and
 without the fingerprint check: their layout is that of version 1 and the schema check still
@@ -189,13 +191,23 @@ def check_consistency(root: Path, files: dict[str, dict[str, Any]]) -> list[str]
         a, b, part = clash
         pa, pb = (root / ("perturb/" + n if n == "summary.json" else n) for n in (a, b))
         stale, other = (pa, pb) if _mtime(pa) <= _mtime(pb) else (pb, pa)
+        why = f"{stale.name} is the older"
+        current = study_parts(study_file, root).get(part)
+        matching = [n for n in (a, b) if current is not None and stamps[n][part] == current]
+        if len(matching) == 1:  # the file that disagrees with the study file as it is now is stale
+            stale = pb if matching == [a] else pa
+            why = (
+                f"{stale.name} was made with {part} settings other than those of {study_file} now "
+                "(a command-line flag such as --pairs or --resolution, or an earlier version of the file)"
+            )
+        verb = FILE_VERB.get(stale.name, "grid")
         raise ResultsError(
             f"{a} and {b} come from different runs (their {part} fingerprints differ: "
-            f"{stamps[a][part]} vs {stamps[b][part]}); {stale.name} is the older",
+            f"{stamps[a][part]} vs {stamps[b][part]}); {why}",
             file=str(stale),
             field="fingerprint",
-            fix=f"rerun `specmap {FILE_VERB.get(stale.name, 'grid')} {study_file}` (and the stages after it) "
-            f"or remove the stale file {stale}",
+            fix=f"rerun `specmap {verb} {study_file}` without overriding flags (and the stages after it) "
+            f"or remove the stale file {stale}; to keep flag values, write them into the study file first",
         )
     if not old:
         return []
@@ -204,6 +216,44 @@ def check_consistency(root: Path, files: dict[str, dict[str, Any]]) -> list[str]
         "(written before result-file versions): read as version 1 without the fingerprint check; rerun "
         "their stages to check them"
     ]
+
+
+def study_parts(study_file: str, root: Path) -> dict[str, str]:
+    """The fingerprint parts the study file gives *now*, for the parts it decides alone.
+
+    ``inputs``, ``map`` and ``distance`` always; ``window`` when the study sets one (an automatic
+    window needs the shapes). Empty when the study file is gone or no longer valid: the caller then
+    falls back on the files' ages.
+
+    Parameters
+    ----------
+    study_file : str
+        As recorded in ``study.json`` (absolute, relative to the working folder, or to the folder
+        above ``root``).
+    root : Path
+        The result folder.
+    """
+    from specmap.errors import SpecmapInputError
+    from specmap.fingerprint import distance_part, inputs_part, map_part, window_part
+    from specmap.study import load_study
+
+    for cand in (Path(study_file), root.parent / study_file):
+        if cand.is_file():
+            break
+    else:
+        return {}
+    try:
+        study = load_study(cand)
+        parts = {
+            "inputs": inputs_part(study),
+            "map": map_part(study.map),
+            "distance": distance_part(study.distance),
+        }
+    except (SpecmapInputError, OSError):
+        return {}
+    if study.window is not None:
+        parts["window"] = window_part(study.window)
+    return parts
 
 
 _NOTES: list[str] = []
