@@ -95,6 +95,17 @@ GRID_CASES = {
         ),
         ["contours[1].start", "1e+12"],
     ),
+    # tolerance relative to the data: at a scale of 1e-8 a rise of 5e-10 (5 %) is an increasing contour
+    # (it passed under the old absolute floor of 1e-9)
+    "increasing_at_small_scale": (
+        json.dumps(
+            {
+                "format": "specmap-grid/1",
+                "contours": [{"id": "p0", "kind": "proper", "points": [[0, 0], [1e-8, 5e-10]]}],
+            }
+        ),
+        ["contours[0]", "non-increasing"],
+    ),
     "nested_1e5": (
         '{"format": "specmap-grid/1", "contours": ' + "[" * 100_000 + "]" * 100_000 + "}",
         ["g.json", "nested"],

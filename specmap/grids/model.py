@@ -162,7 +162,8 @@ def validate_grid(grid: Grid, *, tol: float | None = None, file: str | None = No
     grid : Grid
     tol : float, optional
         Allowed increase along a proper contour (value units). Default:
-        1e-9 times the bounding-box diagonal.
+        1e-9 times the bounding-box diagonal (finite: coordinates are at most
+        ``COORD_LIMIT`` in size; the largest |coordinate| for a one-point grid).
     file : str, optional
         Named in the error.
 
@@ -195,7 +196,9 @@ def validate_grid(grid: Grid, *, tol: float | None = None, file: str | None = No
                 "a proper contour needs points", file=file, field=where, fix="list at least one [x, y] point"
             )
     x0, y0, x1, y1 = grid.bbox()
-    scale = max(math.hypot(x1 - x0, y1 - y0), 1.0)
+    # the scale of the finite data (its bounding-box diagonal, else its largest |coordinate|, else 1),
+    # so that the tolerance is relative at every scale: 1e-9 of 1e-8 is not 1e-9
+    scale = math.hypot(x1 - x0, y1 - y0) or max(abs(x0), abs(y0), abs(x1), abs(y1)) or 1.0
     t = 1e-9 * scale if tol is None else tol
     if not math.isfinite(t):
         raise GridFileError(
