@@ -345,7 +345,7 @@ class StudyRun:
             from specmap.distance import matching_distance
 
             sf, sg = self.shapes
-            atlas = self.atlas() if settings.method in ("both", "reduced") else None
+            atlas = self.distance_atlas(settings) if settings.method in ("both", "reduced") else None
             try:
                 cache[key] = matching_distance(
                     sf,
@@ -360,6 +360,42 @@ class StudyRun:
             except CoreInputError as exc:  # core words ("method", no mesh, ...); the file is known here
                 raise self.located(exc, "distance") from None
         return cache[key]
+
+    def distance_atlas(self, settings: DistanceSettings):
+        """The study's atlas; when the whole map does not fit its memory budget, the focused source.
+
+        The reduced search needs only the ties whose cost can lie between the slope-one
+        value and an upper bound of D (:func:`specmap.distance.focused.focused_source`); it is
+        mapped when the search knows that band, and refused in one line when even it is too big.
+        """
+        from specmap.special.preflight import AtlasTooLargeError
+
+        try:
+            return self.atlas()
+        except AtlasTooLargeError as exc:
+            from specmap.distance.focused import focused_source
+
+            ms = self.map_settings()
+            if self.show_progress:
+                print(
+                    f"specmap: {str(exc).split(';')[0]}; the reduced search maps only the ties "
+                    "it needs (focused special set)",
+                    file=sys.stderr,
+                )
+            gf, gg = self.grids
+            return focused_source(
+                gf,
+                gg,
+                self.window,
+                roles=settings.roles,
+                pairs=ms.pairs,
+                resolution=ms.resolution,
+                method=ms.method,
+                tol=ms.tol,
+                reading=ms.reading,
+                budget=ms.memory,
+                progress=self.progress("focused map"),
+            )
 
     # -- writers ----------------------------------------------------------
     def record(self, command: str | None = None) -> None:

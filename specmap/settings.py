@@ -161,6 +161,10 @@ class DistanceSettings:
         a value of h; 0 turns the node bounds off.
     polish_iters : int
         Golden-section steps of the polish.
+    special_max_lines : int
+        Lines the special-set pass of the reduced search may evaluate. When it stops with
+        candidates left, the reduced bound of D becomes the largest tied cost not refuted (an
+        interval, not a value; the degree is then not certified by the reduced search).
     position_lines : int
         Lines of the position audit (0 to skip).
     """
@@ -179,6 +183,7 @@ class DistanceSettings:
     local_bound: bool = True
     bound_grid: int = 9
     polish_iters: int = 6
+    special_max_lines: int = 3000
     position_lines: int = 20
 
     def __post_init__(self) -> None:

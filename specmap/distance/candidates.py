@@ -169,7 +169,9 @@ def _sharing_pairs(pieces: tuple, live: _LiveTies, alive: np.ndarray) -> np.ndar
             vs.append(m[v])
     if not us:
         return np.zeros((0, 2), dtype=np.int64)
-    return np.unique(np.c_[np.concatenate(us), np.concatenate(vs)], axis=0)
+    n = max(len(live.ids), 1)  # one int64 key per pair, u * n + v: a 1-d unique (same rows and order)
+    key = np.unique(np.concatenate(us) * n + np.concatenate(vs))
+    return np.c_[key // n, key % n]
 
 
 def _crossing_candidates(

@@ -93,6 +93,10 @@ def degree_certificate(
         group = next((g for g in red.groups if j in g), [j])
         r = max(max(red.slope[i].value, red.special[i].value) for i in group)
         theorem = max(float(ss.bound[j]), r + tolerance)
+        open_groups = [red.groups[g] for g in (red.left or {}).get("groups", [])]
+        left = red.left if group in open_groups else None
+        if left is not None:  # the pass stopped at its budget: D <= the largest cost not refuted
+            theorem = max(theorem, float(left["top"]))
         if lower > theorem + tolerance:
             a, b = dense.best[j][1] if dense is not None else (math.nan, math.nan)
             why = (
@@ -103,6 +107,12 @@ def degree_certificate(
         elif not ss.certified_groups[j]:
             cap = f"its {max_lines}-line cap" if max_lines else "its line budget"
             why = f"slope-one search stopped at {cap}: bound {ss.bound[j]:.4g} against best {ss.best[j]:.4g}"
+        elif left is not None and theorem - lower > slack:
+            why = (
+                f"the special-set pass stopped at its {left['budget']}-line budget with "
+                f"{left['candidates']} candidates left, tied costs up to {left['top']:.4g} not refuted "
+                "([distance] special_max_lines)"
+            )
         elif theorem - lower > slack:
             why = (
                 f"the special-set pass bounds the maximum over degrees only ([distance] certify = "

@@ -17,7 +17,7 @@ from typing import Any
 
 import numpy as np
 
-from specmap.distance.bounds import LocalBound, line_upper_bound
+from specmap.distance.bounds import LocalBound, line_upper_bound, star_rows
 from specmap.distance.candidates import ORIGINS, special_candidates
 from specmap.distance.evaluator import LineEvaluator
 from specmap.distance.node_bounds import NodeBounds, node_upper_bounds
@@ -59,6 +59,8 @@ class ReducedSettings:
         Lines per side of the coarse grid that bounds h at the nodes of a focused atlas.
     polish_iters : int
         Golden-section steps of the polish.
+    special_max_lines : int
+        Lines the special-set pass may evaluate before it stops with candidates left.
     """
 
     slope_samples: int = _DEFAULTS.slope_samples
@@ -71,6 +73,7 @@ class ReducedSettings:
     local_bound: bool = _DEFAULTS.local_bound
     bound_grid: int = _DEFAULTS.bound_grid
     polish_iters: int = _DEFAULTS.polish_iters
+    special_max_lines: int = _DEFAULTS.special_max_lines
 
     @classmethod
     def of(cls, settings: DistanceSettings) -> ReducedSettings:
@@ -115,6 +118,27 @@ def _slope_one_phase(
         for j in groups[g]:  # one degree per group
             slope[j].offer(v, (0.5, b), "slope-one")
     return slope, info
+
+
+def local_bounds(local: LocalBound, a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """``max`` over groups of ``local(a[i], b[i])`` for many lines at once (inf before any line is held).
+
+    The same bound as :meth:`LocalBound.__call__` (its ``near`` nearest evaluated lines,
+    stability of each map between the two lines [CDFFL13]), vectorised over the lines.
+    """
+    a, b = np.atleast_1d(a).astype(float), np.atleast_1d(b).astype(float)
+    if not local.pts:
+        return np.full(a.shape, math.inf)
+    P, H = local.pts[0], local.h[0]
+    q = normalise(np.c_[a, b], local.window)
+    d = np.linalg.norm(P[None, :, :] - q[:, None, :], axis=2)
+    k = min(local.near, len(P))
+    idx = np.argsort(d, axis=1, kind="stable")[:, :k]
+    move = np.zeros(idx.shape)
+    for vals, F in ((local.vf, local.Ff[0]), (local.vg, local.Fg[0])):
+        ff = star_rows(vals, a, b)
+        move += np.abs(F[idx] - ff[:, None, :]).max(axis=2)
+    return (H[idx] + move[:, :, None]).min(axis=1).max(axis=1)
 
 
 def _seeded_local_bound(
@@ -170,6 +194,7 @@ class _Descent:
     step: int
     same_mesh: bool
     local: LocalBound | None
+    max_lines: int = 1 << 62
     special: list[Best] = field(init=False)  # per degree index
     counts: dict[str, int] = field(init=False)  # candidates pruned, by rule
     evaluated: list[int] = field(init=False, default_factory=list)
@@ -178,6 +203,8 @@ class _Descent:
     line_b: np.ndarray = field(init=False)  # line_upper_bound per candidate, NaN until computed
     open_g: np.ndarray = field(init=False)  # groups not yet stopped early
     pos: int = field(init=False, default=0)  # next position in ``order``
+    local_b: np.ndarray = field(init=False)  # a LocalBound value per candidate (an earlier one), NaN if none
+    left: dict[str, Any] | None = field(init=False, default=None)  # set when the line budget stopped the pass
 
     def __post_init__(self) -> None:
         self.special = [Best() for _ in self.ev.degrees]
@@ -189,15 +216,34 @@ class _Descent:
         }
         self.order = np.argsort(-self.cand.hi, kind="stable")
         self.line_b = np.full(len(self.cand.a), np.nan)
+        self.local_b = np.full(len(self.cand.a), np.nan)
         self.open_g = ~np.isposinf(self.best)  # an infinite degree is exact: nothing to look for
 
     def run(self) -> None:
         n = len(self.cand.a)
         while self.pos < n and self.open_g.any():
+            if len(self.evaluated) >= self.max_lines and self._budget_spent():
+                return
             take = self._next_batch()
             if take:
                 self._evaluate(take)
         self.counts["below_best"] += n - self.pos  # after an early stop every later t is <= best + tol
+
+    def _budget_spent(self) -> bool:
+        """Stop at the line budget when a candidate above the best is left: record what is left."""
+        i = int(self.order[self.pos])
+        thr = float(self.best[self.open_g].min())
+        if not self.cand.hi[i] > thr + self.tolerance:
+            return False  # every later candidate is below the best: the pass ends as usual
+        n = len(self.cand.a)
+        self.left = {
+            "budget": int(self.max_lines),
+            "candidates": int(n - self.pos),
+            "top": float(self.cand.hi[i]),  # the largest tied cost not refuted (descending order)
+            "groups": [int(g) for g in np.nonzero(self.open_g)[0]],
+        }
+        self.counts["not_examined"] = int(n - self.pos)
+        return True
 
     def _pruned(self, i: int) -> str | None:
         """Why candidate i cannot beat the best line (a counter name), or None."""
@@ -210,8 +256,13 @@ class _Descent:
                 self.line_b[chunk] = line_upper_bound(self.ev.val_f, self.ev.val_g, c.a[chunk], c.b[chunk])
             if c.lo[i] > self.line_b[i] + tol:
                 return "line_bound"
-        if self.local is not None and c.lo[i] > float(self.local(c.a[i], c.b[i]).max()) + tol:
-            return "local_bound"
+        if self.local is not None:
+            if math.isnan(self.local_b[i]):  # a bound of the next candidates at once, from the lines so far
+                chunk = self.order[self.pos - 1 : self.pos - 1 + 64]
+                self.local_b[chunk] = local_bounds(self.local, c.a[chunk], c.b[chunk])
+            # an earlier bound holds still (fewer lines, not wrong ones); else the bound of all lines now
+            if c.lo[i] > self.local_b[i] + tol or c.lo[i] > float(self.local(c.a[i], c.b[i]).max()) + tol:
+                return "local_bound"
         return None
 
     def _next_batch(self) -> list[int]:
@@ -435,7 +486,7 @@ def reduced_search(
     pieces = tuple(getattr(atlas, "pieces", ()) or ())
     components = tuple(getattr(atlas, "components", ()) or ())
     local = _seeded_local_bound(ev, window, groups, own) if s.local_bound else None
-    walk = _Descent(ev, cand, groups, best, tolerance, upper, step, same_mesh, local)
+    walk = _Descent(ev, cand, groups, best, tolerance, upper, step, same_mesh, local, s.special_max_lines)
     walk.run()
     special = walk.special
     _polish(ev, special, slope, cand, window, tolerance, s)
@@ -466,4 +517,5 @@ def reduced_search(
         settings=s,
         groups=[list(g) for g in groups],
         focus=focus,
+        left=walk.left,
     )

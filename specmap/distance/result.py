@@ -183,6 +183,10 @@ class ReducedSearch:
     focus : dict or None
         Pairs kept by a focused atlas (:meth:`specmap.special.focus.Focus.to_json`); None
         when the search read a whole map.
+    left : dict or None
+        Set when the special-set pass stopped at its line budget (``special_max_lines``) with
+        candidates left: ``budget``, ``candidates`` (not examined), ``top`` (the largest tied cost
+        among them, value units: the pass bounds D of its open ``groups`` by it, not by its best).
     """
 
     slope: list[Best]
@@ -196,6 +200,7 @@ class ReducedSearch:
     settings: ReducedSettings
     groups: list[list[int]] = field(default_factory=list)
     focus: dict[str, Any] | None = None
+    left: dict[str, Any] | None = None
 
     @property
     def certify(self) -> str:
@@ -270,6 +275,7 @@ def reduced_json(
         },
         "special_groups": [[degrees[j] for j in g] for g in red.groups],
         "focus": red.focus,
+        "left": red.left,
         "degree": kmax,
     }
 

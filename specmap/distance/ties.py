@@ -29,13 +29,15 @@ def costs_at(
     ids = list(columns)
     a, b = np.asarray(a, float), np.asarray(b, float)
     quads = np.asarray(quads, dtype=np.int64).reshape(-1, 4)
-    s = np.full((4, len(a)), np.nan)
-    for col in np.unique(quads):
-        slots = quads == col
-        rows = slots.any(axis=1)
-        vals = np.empty(len(a))
-        vals[rows] = line_parameter(contours_by_id[ids[int(col)]], a[rows], b[rows])
-        for k in range(4):
-            s[k, slots[:, k]] = vals[slots[:, k]]
+    n = len(a)
+    # (slot, row) entries grouped by contour: one line_parameter call per contour on its rows
+    cols = quads.T.ravel()
+    order = np.argsort(cols, kind="stable")
+    cuts = np.flatnonzero(np.diff(cols[order])) + 1
+    flat = np.full(4 * n, np.nan)
+    for idx in np.split(order, cuts) if n else ():
+        rows = idx % n
+        flat[idx] = line_parameter(contours_by_id[ids[int(cols[idx[0]])]], a[rows], b[rows])
+    s = flat.reshape(4, n)
     m = push_scale(a)
     return costs_from_differences(codes, np.abs(s[0] - s[1]) * m, np.abs(s[2] - s[3]) * m)
