@@ -23,9 +23,10 @@ the budget.
 fewest tiles (:mod:`specmap.special.tiles`) whose per-tile estimate fits, each tile's
 crossings taken as its share of the lattice cells (its halo included) and ``jobs`` tiles
 held at once; a refusal when even tiles of ``MIN_TILE_CELLS`` cells a side do not fit.
-As measured, the merge and the whole-window components hold as much as the one-piece atlas
-(``MERGED_BYTES_PER_CROSSING``), so today no tiling fits where one piece does not and the plan
-refuses; tiles given explicitly still run (parallel, resumable).
+The merged output (pieces, components from the tiles' line labels) is held whole:
+``MERGED_BYTES_PER_CROSSING`` (measured, about 160 bytes per crossing against 250 in one
+piece), so tiles lower the peak to about two thirds of one piece, not further; a budget below
+that is refused; tiles given explicitly still run (parallel, resumable).
 """
 
 from __future__ import annotations
@@ -42,10 +43,10 @@ CROSSINGS_PER_PAIR2 = 16.0  # measured, see the module docstring
 RESOLUTION_EXPONENT = 0.75
 BYTES_PER_CROSSING = 250.0
 BASE_BYTES = 150e6  # interpreter, numpy, shapely and the grids
-# The merge and the whole-window components hold the output as the one-piece atlas does: measured
-# (tests/benchmarks/results_tiles.md, 40 contours at 81 x 81) a 2 x 2 tile peaks at 0.64 GB, the
-# tiled map at 4.17 GB (one piece 4.02 GB), about 250 bytes per crossing either way.
-MERGED_BYTES_PER_CROSSING = 250.0
+# The merged output is held whole: measured (tests/benchmarks/results_tiles.md, 40 contours at
+# 81 x 81, 16.0 M crossings) the tiled map peaks at 2.51 GB (2 x 2) and 2.95 GB (3 x 3), one piece
+# at 4.02 GB; the 3 x 3 peak less a tile's share is about 160 bytes per crossing.
+MERGED_BYTES_PER_CROSSING = 160.0
 MIN_TILE_CELLS = 4  # smallest tile side (cells) the plan goes down to
 UNITS = {
     "": 1.0,
