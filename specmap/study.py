@@ -69,6 +69,9 @@ SURFACES = {"ellipsoid": 3, "torus": 2}
 MESH_SUFFIXES = (".ply", ".off", ".obj")
 TABLES = {"study", "constants", "f", "g", "window", "map", "distance", "perturb"}
 # Integer settings that a command-line flag can also set: one range for the file and the flag.
+RADII_RANGE = (1e-12, 1e12)
+"""Accepted radii of a surface: the grid-file coordinate range (``specmap.grids.model.COORD_LIMIT``);
+radii of 1e300 overflowed in the normality test, 1e-300 underflowed to a non-finite grid."""
 LIMITS: dict[str, tuple[int, int]] = {"map.resolution": (5, 4001), "perturb.runs": (1, 100_000)}
 
 
@@ -358,6 +361,13 @@ def _shape(r: _Reader, data: dict, label: str, base: Path) -> ShapeSpec:
         radii = r.numbers(t, label, "radii", SURFACES[kind])
         if any(x <= 0 for x in radii):
             raise r.fail(f"{label}.radii", f"radii {list(radii)} must be positive", "give radii > 0")
+        lo, hi = RADII_RANGE
+        if any(not lo <= x <= hi for x in radii):
+            raise r.fail(
+                f"{label}.radii",
+                f"radii {[float(x) for x in radii]} are outside the supported range {lo:g} .. {hi:g}",
+                "rescale the surface (other length units) so that every radius is in that range",
+            )
         if kind == "torus" and radii[0] <= radii[1]:
             raise r.fail(
                 f"{label}.radii",

@@ -49,6 +49,13 @@ CASES = {
     "unknown_surface": (HEAD + GOOD_F.replace("ellipsoid", "klein") + GOOD_G, ["f.surface", "klein"]),
     "radii_count": (HEAD + GOOD_F.replace("[2, 1, 1]", "[2, 1]") + GOOD_G, ["f.radii", "expected 3"]),
     "radii_sign": (HEAD + GOOD_F.replace("[2, 1, 1]", "[2, -1, 1]") + GOOD_G, ["f.radii", "positive"]),
+    # issue 14: radii 1e300 read as a dependent pair, 1e-300 as a non-finite grid contour; the stated
+    # range is specmap.study.RADII_RANGE
+    "radii_huge": (HEAD + GOOD_F.replace("[2, 1, 1]", "[1e300, 1, 1]") + GOOD_G, ["f.radii", "range"]),
+    "radii_tiny": (
+        HEAD + GOOD_F.replace("[2, 1, 1]", "[1e-300, 1e-300, 1e-300]") + GOOD_G,
+        ["f.radii", "range"],
+    ),
     "torus_order": (
         HEAD + '[f]\nsurface = "torus"\nradii = [1, 2]\nmap = ["x", "y"]\n' + GOOD_G,
         ["f.radii", "R > r"],
@@ -192,6 +199,7 @@ def test_exact_route_needs_a_linear_map(tmp_path: Path) -> None:
 @pytest.mark.parametrize(
     "args, field",
     [
+        (["map", "--resolution", "1"], "--resolution"),  # was a ValueError (issue 14)
         (["map", "--resolution", "2"], "--resolution"),  # the file's minimum is 5
         (["map", "--resolution", "20000"], "--resolution"),  # above the file's maximum 4001
     ],
