@@ -414,3 +414,54 @@ def test_float_warnings_of_worker_processes_are_counted(monkeypatch: pytest.Monk
     assert os.getpid() not in pids  # the tasks really ran in other processes
     assert code.value.code == 0 and len(err) == 1, err
     assert "14 floating-point" in err[0] and "overflow 10" in err[0] and "invalid value 4" in err[0]
+
+
+# --------------------------------------------------------------------------- 1. degenerate maps (CLI)
+
+
+@pytest.mark.parametrize(
+    "surface, texts, needle",
+    [
+        ('"torus"\nradii = [1.0, 0.4]', '"1.5", "y"', "f1 is constant"),  # was 4,830 half-lines at one point
+        ('"torus"\nradii = [1.0, 0.4]', '"x", "x*x - x*x"', "f2 is constant"),  # was 2,254 contours
+        ('"ellipsoid"\nradii = [2, 1, 1]', '"x*y", "x*y"', "parallel everywhere"),  # was a 99.9% patch
+    ],
+)
+def test_degenerate_map_one_line_exit_2(tmp_path: Path, surface: str, texts: str, needle: str) -> None:
+    # closed forms: a constant has zero gradient; f2 = f1 has parallel gradients (math.md section 4)
+    body = f"[f]\nsurface = {surface}\nresolution = 400\nmap = [{texts}]\n"
+    body += '[g]\nsurface = "ellipsoid"\nradii = [2, 1, 1]\nresolution = 400\nmap = ["x", "y"]\n'
+    (tmp_path / "s.toml").write_text(HEAD + body)
+    assert_user_error(run_cli(["grid", "s.toml"], tmp_path), "s.toml", "f.map", needle, "not normal")
+    assert not (tmp_path / "results").exists()
+
+
+def test_constant_mesh_fields_one_line_exit_2(tmp_path: Path) -> None:
+    # constant vertex fields gave 60 half-lines at one point; a constant f1 has no critical structure
+    from specmap.shapes.meshes import write_mesh
+    from specmap.shapes.surfaces import make_surface
+
+    V, T = make_surface("ellipsoid", (2.0, 1.0, 1.0)).mesh(400)
+    write_mesh(tmp_path / "m.ply", V, T, np.c_[np.full(len(V), 2.0), V[:, 1]], names=("a", "b"))
+    (tmp_path / "s.toml").write_text(
+        HEAD + '[f]\nmesh = "m.ply"\nfields = ["a", "b"]\n[g]\nmesh = "m.ply"\nmap = ["x", "y"]\n'
+    )
+    assert_user_error(run_cli(["grid", "s.toml"], tmp_path), "m.ply", "f.fields", "f1 is constant")
+
+
+# --------------------------------------------------------------------------- 4. processes
+
+
+def test_jobs_above_the_core_count_is_capped_with_one_note(tmp_path: Path) -> None:
+    # issue 14: --jobs above the number of cores is capped, and said in one line (os.cpu_count())
+    body = (
+        '[f]\nsurface = "ellipsoid"\nradii = [2, 1, 1]\nresolution = 400\nmap = ["x", "y"]\n'
+        '[g]\nsurface = "ellipsoid"\nradii = [2, 1, 1]\nresolution = 400\nmap = ["x", "y + 0.1*z"]\n'
+        "[map]\nresolution = 5\n"
+    )
+    (tmp_path / "s.toml").write_text(HEAD + body)
+    jobs = (os.cpu_count() or 1) + 7
+    proc = run_cli(["map", "s.toml", "--out", "r", "--jobs", str(jobs)], tmp_path)
+    assert proc.returncode == 0, proc.stderr
+    notes = [ln for ln in proc.stderr.splitlines() if "--jobs" in ln]
+    assert len(notes) == 1 and f"--jobs {jobs}" in notes[0] and f"using {os.cpu_count()}" in notes[0]
