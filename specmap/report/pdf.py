@@ -252,7 +252,10 @@ def _summary_page(pg: Pager, res: dict[str, Any]) -> None:
             if row.status != "certified":
                 reasons.setdefault(row.status, []).append(f"D_{row.degree}")
         for status, who in reasons.items():
-            why = why_sentences(status.removeprefix("not certified: "))
+            # the first reason only: page 1 keeps room for the boxed note; all of them on the distance page
+            first = why_sentences(status.removeprefix("not certified: ").split("; ")[0])
+            more = "; " in status
+            why = first + (" Further reasons are on the Matching distance page." if more else "")
             pg.para(
                 f"{' and '.join(who)} {'is' if len(who) == 1 else 'are'} not certified. {why}",
                 8.5,
@@ -525,6 +528,10 @@ def _distance_page(pg: Pager, res: dict[str, Any]) -> None:
             )
     if d.get("infinite"):
         pg.para(f"Infinite costs: {', '.join(str(x) for x in d['infinite'])}.")
+    for row in degree_rows(d):
+        if row.status != "certified":
+            why = why_sentences(row.status.removeprefix("not certified: "))
+            pg.para(f"D_{row.degree} is not certified. {why}", 8.5, color="0.25")
     pg.heading("Dense sweep and reduced search")
     dense, red = d.get("dense"), d.get("reduced")
     if dense:
