@@ -167,6 +167,10 @@ class DistanceSettings:
         interval, not a value; the degree is then not certified by the reduced search).
     position_lines : int
         Lines of the position audit (0 to skip).
+    strip_budget : float
+        Line budget of the whole-strip certified branch and bound (:mod:`specmap.distance.branch`), per
+        node of the dense grid (``strip_budget * dense_resolution**2`` lines, about 3x the dense sweep's
+        time at 2.5); it runs only for degrees the other stages leave uncertified; 0 turns it off.
     """
 
     method: str = "both"
@@ -185,6 +189,7 @@ class DistanceSettings:
     polish_iters: int = 6
     special_max_lines: int = 3000
     position_lines: int = 20
+    strip_budget: float = 2.5
 
     def __post_init__(self) -> None:
         _choice("method", self.method, DISTANCE_METHODS)
@@ -295,7 +300,10 @@ class PerturbSettings:
     def distance_settings(self) -> DistanceSettings:
         """The distance settings of every run (and of the base distance)."""
         return DistanceSettings(
-            method=self.distance_method, degrees=self.degrees, dense_resolution=self.dense_resolution
+            method=self.distance_method,
+            degrees=self.degrees,
+            dense_resolution=self.dense_resolution,
+            strip_budget=0.0,  # runs compare values; the whole-strip certificate would multiply their time
         )
 
     def to_json(self) -> dict[str, Any]:

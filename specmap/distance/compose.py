@@ -31,8 +31,6 @@ from specmap.strip import Window, default_window
 METHODS = ("both", "dense", "reduced")
 TOLERANCE_FRACTION = 1e-3
 """Default tolerance: this fraction of the largest value range of f and g."""
-STRIP_LINES_PER_NODE = 2.5
-"""Line budget of the whole-strip branch and bound, per node of the dense sweep's grid (about 3x its time)."""
 
 
 def _grids_pair(grids) -> tuple | None:
@@ -272,7 +270,7 @@ def matching_distance(
         degrees,
         tol,
         upper=upper,
-        max_lines=int(STRIP_LINES_PER_NODE * dense_resolution**2),
+        max_lines=int(s.strip_budget * dense_resolution**2),
     )
     kmax = max(degrees, key=lambda k: by_degree[k]["value"])
     top = by_degree[kmax]

@@ -96,9 +96,6 @@ def mesh_movement(path: str | Path = DEMO, factors: tuple[int, ...] = (1, 2, 4))
     """D_k of the study at 1x, 2x, 4x its mesh resolution (reduced search, certify = "each")."""
     import dataclasses
 
-    from specmap.distance import compose
-
-    compose.STRIP_LINES_PER_NODE = 0  # the reduced search's own certificate only (no whole-strip search)
     base = load_study(str(path))
     rows = []
     for m in factors:
@@ -110,7 +107,7 @@ def mesh_movement(path: str | Path = DEMO, factors: tuple[int, ...] = (1, 2, 4))
         run = StudyRun(study, show_progress=False)
         sf, _ = run.shapes
         settings = dataclasses.replace(
-            run.distance_settings(method="reduced"), certify="each", position_lines=0
+            run.distance_settings(method="reduced"), certify="each", position_lines=0, strip_budget=0.0
         )
         t = time.perf_counter()
         res = run.distance(settings)
