@@ -107,3 +107,28 @@ def test_empty_end_strip_and_infinite_value():
     empty = EndStrip("above", [1.0], [1.0], [(0.99, 0.0)], 1, 1)
     assert ends_entry(0, math.inf, s, empty, 1e-3)["covered"] is True
     assert ends_entry(0, 0.5, s, empty, 1e-3)["covered"] is False
+
+
+def test_uncovered_ends_become_searched_when_the_strip_search_closes():
+    # the contract of specmap.distance.branch.apply_strip (issue 16 item 4): an end the bound does not
+    # cover is searched by the whole-strip branch and bound; a closed search of width <= tol covers it
+    # and certifies the degree, an open one leaves it uncovered with its numbers in why_not.
+    from specmap.distance.branch import apply_strip
+
+    def entry():
+        ends = {"a_below": 0.5, "a_above": 0.2, "method": "bound", "covered": False, "best": 0.1}
+        why = "the strip's ends a < 0.02 and a > 0.98 are not covered"
+        return {"value": 0.3, "bounds": [0.3, 0.5], "certified": False, "why_not": why, "ends": ends}
+
+    closed = {"bounds": [0.3005, 0.302], "closed": True, "lines": 900, "best_at": [0.01, 0.0]}
+    e = entry()
+    apply_strip(e, closed, 0.003, (0.02, 0.98))
+    assert e["ends"]["method"] == "searched" and e["ends"]["covered"] is True
+    assert e["certified"] is True and e["why_not"] is None and e["bounds"] == [0.3005, 0.302]
+    assert e["ends"]["a_below"] == 0.302
+    open_ = {"bounds": [0.3, 0.4], "closed": False, "lines": 900, "best_at": [0.01, 0.0]}
+    e = entry()
+    apply_strip(e, open_, 0.003, (0.02, 0.98))
+    assert e["ends"]["method"] == "searched" and e["ends"]["covered"] is False
+    assert e["certified"] is False and "900-line budget: bound 0.4 against best 0.3" in e["why_not"]
+    assert e["bounds"] == [0.3, 0.4]
