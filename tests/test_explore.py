@@ -387,6 +387,11 @@ def test_explorer_in_headless_chromium(tmp_path: Path) -> None:
         assert br.wait_for("window.explorerReady === true", 90)
         br.pump(0.5)
         assert br.errors() == []
+        # the headline's counts, pluralised (expected wording written here from the payload's counts)
+        data = explorer_data(load_results(page.parent), lines=False)
+        nc, nt = len(data["components"]), len(data["curves"])
+        word = (f"{nc} component" + ("" if nc == 1 else "s")) + f", {nt} tie curve" + ("" if nt == 1 else "s")
+        assert word + " drawn" in _text(br, "headline")
         before = _text(br, "here-ab")
         # on the half tie's curve a = 1/3: |c_P| = min(a, 1-a) |x1 - x0| / a = 1 and |c_Q| = 1/2 (closed form)
         _pointer(br, 1 / 3, 0.23)  # between sample rows, so the interpolation is exercised

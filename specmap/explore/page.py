@@ -316,7 +316,8 @@ const REACHED = {"slope-one": "on the slope-one line a = 1/2", "special": "on th
 const hl = D ? "D = " + fmt(D.value) + " (tolerance " + fmt(D.tolerance, 3) + "), reached " + (REACHED[D.reached_on] || "on " + D.reached_on)
   + (D.at ? " at (a, b) = (" + fmt(D.at[0]) + ", " + fmt(D.at[1]) + ")" : "") : "no distance computed";
 $("headline").textContent = hl + "; " + (DATA.special_missing ? DATA.special_missing + "."
-  : DATA.components.length + " components, " + DATA.curves.length + " tie curves drawn"
+  : DATA.components.length + (DATA.components.length === 1 ? " component, " : " components, ")
+    + DATA.curves.length + (DATA.curves.length === 1 ? " tie curve drawn" : " tie curves drawn")
   + (DATA.labelled ? "" : " (unlabelled: the grid files are missing)") + ".")
   + (DATA.special_missing ? " Point at the strip to see the line and h there."
     : " Point at the strip to see the line and the ties there; click to list a component's ties.");
