@@ -372,18 +372,20 @@ class StudyRun:
 
         try:
             return self.atlas()
-        except AtlasTooLargeError as exc:
+        except AtlasTooLargeError:
             from specmap.distance.focused import focused_source
 
+            if "_focused" in self.__dict__:
+                return self.__dict__["_focused"]
             ms = self.map_settings()
             if self.show_progress:
                 print(
-                    f"specmap: {str(exc).split(';')[0]}; the reduced search maps only the ties "
-                    "it needs (focused special set)",
+                    "specmap: the whole special-set map does not fit the memory budget; the reduced "
+                    "search maps only the ties whose cost can be D (focused special set)",
                     file=sys.stderr,
                 )
             gf, gg = self.grids
-            return focused_source(
+            self.__dict__["_focused"] = focused_source(
                 gf,
                 gg,
                 self.window,
@@ -396,6 +398,7 @@ class StudyRun:
                 budget=ms.memory,
                 progress=self.progress("focused map"),
             )
+            return self.__dict__["_focused"]
 
     # -- writers ----------------------------------------------------------
     def record(self, command: str | None = None) -> None:
@@ -455,14 +458,14 @@ class StudyRun:
         from specmap.report.figures import distance_map_figure, save_png
 
         settings = self.distance_settings(method=method, degrees=degrees)
-        atlas = self.atlas() if settings.method in ("both", "reduced") else None
+        atlas = self.distance_atlas(settings) if settings.method in ("both", "reduced") else None
         result = self.distance(settings, jobs=jobs)
         js = with_simplified_bounds(result.to_json(), *self.simplification)
         # the reduced search reads the study's map (whole or focused), so its settings are a part
         map_used = self.map_settings() if settings.method in ("both", "reduced") else None
         js.update(self.stamp(map_settings=map_used, distance_settings=settings))
         write_json(self.out / "distance.json", js)
-        geo = atlas.to_geojson() if atlas is not None else None
+        geo = atlas.to_geojson() if atlas is not None and not callable(atlas) else None
         if js.get("landscape"):
             save_png(distance_map_figure(js, geo), self.out / "figures" / "distance_map.png")
         return js

@@ -33,7 +33,8 @@ Format (all tables but ``[study]``, ``[f]``, ``[g]`` optional)::
                max_contours = <budget per grid for a mesh's simplify = "auto">,
                reading = "points" | "contours", memory = "6GB" (atlas budget; default half of RAM),
                tiles = [na, nb] | "auto"
-    [distance] method = "both" | "dense" | "reduced", degrees = [0, 1, 2], dense_resolution = <nodes>
+    [distance] method = "both" | "dense" | "reduced", degrees = [0, 1, 2], dense_resolution = <nodes>,
+               special_max_lines = <lines of the reduced search's special-set pass>
     [perturb]  model = "function" | "grid", size = <sup norm>, runs = <count>, seed = <int>,
                sizes = [1e-3, 1e-2], distance = false
 
@@ -464,7 +465,7 @@ def parse_study(data: dict[str, Any], path: Path) -> Study:
         memory=_memory(r, mt),
         tiles=_tiles(r, mt),
     )
-    dt = r.table(data, "distance", False, {"method", "degrees", "dense_resolution"})
+    dt = r.table(data, "distance", False, {"method", "degrees", "dense_resolution", "special_max_lines"})
     degrees = _DISTANCE.degrees
     if "degrees" in dt:
         dv = dt["degrees"]
@@ -483,6 +484,7 @@ def parse_study(data: dict[str, Any], path: Path) -> Study:
         dense_resolution=r.integer(
             dt, "distance", "dense_resolution", _DISTANCE.dense_resolution, lo=3, hi=1001
         ),
+        special_max_lines=r.integer(dt, "distance", "special_max_lines", _DISTANCE.special_max_lines, lo=1),
     )
     pspec = None
     if "perturb" in data:

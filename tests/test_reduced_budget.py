@@ -72,3 +72,51 @@ def test_a_pass_stopped_by_its_budget_reports_an_interval_that_holds():
     assert lo <= full.reduced["value"] + tol
     assert cut.by_degree[0]["certified"] is False
     assert "budget" in cut.by_degree[0]["why_not"]
+
+
+STUDY = """[study]
+name = "fb"
+seed = 1
+[f]
+surface = "ellipsoid"
+radii = [2, 1, 1]
+map = ["x", "y"]
+resolution = 150
+[g]
+surface = "ellipsoid"
+radii = [2, 1, 1]
+map = ["x + 0.2*z*z", "y + 0.1*z"]
+resolution = 150
+[map]
+resolution = 21
+[distance]
+dense_resolution = 5
+degrees = [0]
+special_max_lines = 2500
+"""
+
+
+def test_a_map_too_large_for_memory_sends_the_distance_to_the_focused_set(tmp_path, monkeypatch):
+    # reference: the same study's reduced search on its whole map (the focused set keeps every tie
+    # whose cost can be D, so the value must agree to the tolerance)
+    from specmap.pipeline import StudyRun
+    from specmap.special import preflight
+    from specmap.study import load_study
+
+    (tmp_path / "s.toml").write_text(STUDY)
+    study = load_study(tmp_path / "s.toml")
+    assert study.distance.special_max_lines == 2500  # the study key is read
+    whole = StudyRun(study, tmp_path / "whole", show_progress=False)
+    settings = whole.distance_settings(method="reduced")
+    with np.errstate(all="ignore"):
+        ref = whole.distance(settings)
+
+    def refuse(*args, **kw):
+        raise preflight.AtlasTooLargeError("too large for the test", file="s.toml", field="map", fix="none")
+
+    monkeypatch.setattr(preflight, "plan_atlas", refuse)
+    run = StudyRun(study, tmp_path / "focused", show_progress=False)
+    with np.errstate(all="ignore"):
+        got = run.distance(settings)
+    assert ref.reduced["focus"] is None and got.reduced["focus"] is not None
+    assert got.value == pytest.approx(ref.value, abs=ref.tolerance)
