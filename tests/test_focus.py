@@ -109,3 +109,18 @@ def test_focused_reduced_search_agrees_with_the_whole_map_and_the_dense_sweep():
     assert focused.dense["value"] <= focused.reduced["value"] + tol
     fo = focused.reduced["focus"]
     assert fo["pairs_kept"] < fo["pairs_total"] and fo["node_bounds"]["lines"] > 0
+
+
+def test_focused_set_too_large_for_its_budget_is_refused_in_one_line():
+    # reference: the probe count itself; a budget below the base bytes cannot hold any atlas
+    from specmap.special.focus import focused_special_set
+    from specmap.special.preflight import AtlasTooLargeError
+
+    gf, gg = random_grid(4, 6, "f"), random_grid(8, 5, "g")
+    with pytest.raises(AtlasTooLargeError) as info:
+        focused_special_set(gf, gg, W, (-np.inf, np.inf), resolution=21, budget=1.0)
+    line = info.value.one_line()
+    assert "\n" not in line and "over the budget" in line and "dense method" in line
+    # and a budget of machine size maps it
+    atlas = focused_special_set(gf, gg, W, (-np.inf, np.inf), resolution=21, budget=1e12)
+    assert atlas.stats["focus"]["probe_crossings"] >= 0
