@@ -370,13 +370,13 @@ class StudyRun:
         """
         from specmap.special.preflight import AtlasTooLargeError
 
+        if "_focused" in self.__dict__:  # the plan refused the whole map already
+            return self.__dict__["_focused"]
         try:
             return self.atlas()
         except AtlasTooLargeError:
             from specmap.distance.focused import focused_source
 
-            if "_focused" in self.__dict__:
-                return self.__dict__["_focused"]
             ms = self.map_settings()
             if self.show_progress:
                 print(

@@ -16,7 +16,6 @@ from test_distance import ellipsoid_pair, shapes
 
 from specmap.distance import matching_distance
 from specmap.distance.bounds import LocalBound
-from specmap.distance.reduced import local_bounds
 from specmap.grids.piecewise import piecewise_grid
 from specmap.settings import DistanceSettings
 from specmap.special import special_set
@@ -40,7 +39,7 @@ def test_vectorised_local_bound_is_the_stability_bound_of_all_lines():
     local = LocalBound(f, g, w, near=50)
     local.add(qa, qb, hq)
     pa, pb = rng.uniform(*w.a, 9), rng.uniform(*w.b, 9)
-    got = local_bounds(local, pa, pb)
+    got = local.many(pa, pb).max(axis=1)
     for i in range(9):
         mf = [np.abs(star_values(f, pa[i], pb[i]) - star_values(f, qa[k], qb[k])).max() for k in range(7)]
         mg = [np.abs(star_values(g, pa[i], pb[i]) - star_values(g, qa[k], qb[k])).max() for k in range(7)]

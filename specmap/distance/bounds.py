@@ -235,10 +235,16 @@ class LocalBound:
         """Upper bound of h (per group) at the line (a, b); ``inf`` before any line is recorded."""
         if not self.pts:
             return np.array([math.inf])
+        return self.many(np.array([a]), np.array([b]))[0]
+
+    def many(self, a: np.ndarray, b: np.ndarray) -> np.ndarray:
+        """Upper bounds of h at many lines at once: shape (len(a), groups); ``inf`` before any line."""
+        a, b = np.atleast_1d(a).astype(float), np.atleast_1d(b).astype(float)
+        if not self.pts:
+            return np.full((len(a), 1), math.inf)
         P, H = self.pts[0], self.h[0]
-        d = np.linalg.norm(P - normalise(np.array([a, b]), self.window), axis=1)
-        idx = np.argsort(d)[: self.near]
-        ff = star_rows(self.vf, np.array([a]), np.array([b]))[0]
-        fg = star_rows(self.vg, np.array([a]), np.array([b]))[0]
-        move = np.abs(self.Ff[0][idx] - ff).max(axis=1) + np.abs(self.Fg[0][idx] - fg).max(axis=1)
-        return (H[idx] + move[:, None]).min(axis=0)
+        d = np.linalg.norm(P[None, :, :] - normalise(np.c_[a, b], self.window)[:, None, :], axis=2)
+        idx = np.argsort(d, axis=1)[:, : self.near]
+        move = np.abs(self.Ff[0][idx] - star_rows(self.vf, a, b)[:, None, :]).max(axis=2)
+        move += np.abs(self.Fg[0][idx] - star_rows(self.vg, a, b)[:, None, :]).max(axis=2)
+        return (H[idx] + move[:, :, None]).min(axis=1)

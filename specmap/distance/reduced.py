@@ -17,7 +17,7 @@ from typing import Any
 
 import numpy as np
 
-from specmap.distance.bounds import LocalBound, line_upper_bound, star_rows
+from specmap.distance.bounds import LocalBound, line_upper_bound
 from specmap.distance.candidates import ORIGINS, special_candidates
 from specmap.distance.evaluator import LineEvaluator
 from specmap.distance.node_bounds import NodeBounds, node_upper_bounds
@@ -118,27 +118,6 @@ def _slope_one_phase(
         for j in groups[g]:  # one degree per group
             slope[j].offer(v, (0.5, b), "slope-one")
     return slope, info
-
-
-def local_bounds(local: LocalBound, a: np.ndarray, b: np.ndarray) -> np.ndarray:
-    """``max`` over groups of ``local(a[i], b[i])`` for many lines at once (inf before any line is held).
-
-    The same bound as :meth:`LocalBound.__call__` (its ``near`` nearest evaluated lines,
-    stability of each map between the two lines [CDFFL13]), vectorised over the lines.
-    """
-    a, b = np.atleast_1d(a).astype(float), np.atleast_1d(b).astype(float)
-    if not local.pts:
-        return np.full(a.shape, math.inf)
-    P, H = local.pts[0], local.h[0]
-    q = normalise(np.c_[a, b], local.window)
-    d = np.linalg.norm(P[None, :, :] - q[:, None, :], axis=2)
-    k = min(local.near, len(P))
-    idx = np.argsort(d, axis=1, kind="stable")[:, :k]
-    move = np.zeros(idx.shape)
-    for vals, F in ((local.vf, local.Ff[0]), (local.vg, local.Fg[0])):
-        ff = star_rows(vals, a, b)
-        move += np.abs(F[idx] - ff[:, None, :]).max(axis=2)
-    return (H[idx] + move[:, :, None]).min(axis=1).max(axis=1)
 
 
 def _seeded_local_bound(
@@ -257,11 +236,14 @@ class _Descent:
             if c.lo[i] > self.line_b[i] + tol:
                 return "line_bound"
         if self.local is not None:
-            if math.isnan(self.local_b[i]):  # a bound of the next candidates at once, from the lines so far
+            now = math.isnan(self.local_b[i])
+            if now:  # a bound of the next candidates at once, from the lines so far
                 chunk = self.order[self.pos - 1 : self.pos - 1 + 64]
-                self.local_b[chunk] = local_bounds(self.local, c.a[chunk], c.b[chunk])
+                self.local_b[chunk] = self.local.many(c.a[chunk], c.b[chunk]).max(axis=1)
             # an earlier bound holds still (fewer lines, not wrong ones); else the bound of all lines now
-            if c.lo[i] > self.local_b[i] + tol or c.lo[i] > float(self.local(c.a[i], c.b[i]).max()) + tol:
+            if c.lo[i] > self.local_b[i] + tol or (
+                not now and c.lo[i] > float(self.local(c.a[i], c.b[i]).max()) + tol
+            ):
                 return "local_bound"
         return None
 
