@@ -465,3 +465,42 @@ def test_jobs_above_the_core_count_is_capped_with_one_note(tmp_path: Path) -> No
     assert proc.returncode == 0, proc.stderr
     notes = [ln for ln in proc.stderr.splitlines() if "--jobs" in ln]
     assert len(notes) == 1 and f"--jobs {jobs}" in notes[0] and f"using {os.cpu_count()}" in notes[0]
+
+
+# --------------------------------------------------------------------------- 1. report: untracked stability
+
+
+def _pdf_text(path: Path) -> str:
+    """The text of a PDF: poppler's pdftotext when installed, else pypdf (both outside the project)."""
+    import shutil
+
+    if shutil.which("pdftotext"):
+        return subprocess.run(
+            ["pdftotext", "-layout", str(path), "-"], capture_output=True, text=True, check=True
+        ).stdout
+    pypdf = pytest.importorskip("pypdf")
+    return "\n".join(page.extract_text() or "" for page in pypdf.PdfReader(str(path)).pages)
+
+
+def test_report_without_tracked_distance_claims_no_stability_check(tmp_path: Path) -> None:
+    # Issue 14: "Stability violations: 0" was printed when [perturb] distance = false, i.e. a check
+    # that never ran. Expected: the PDF says the stability of D was not tracked and gives no count.
+    body = (
+        '[f]\nsurface = "ellipsoid"\nradii = [2, 1, 1]\nresolution = 200\nmap = ["x", "y"]\n'
+        '[g]\nsurface = "ellipsoid"\nradii = [2, 1, 1]\nresolution = 200\nmap = ["x", "y + 0.3*z"]\n'
+        "[map]\nresolution = 21\n"
+        '[perturb]\nmodel = "function"\nsize = 0.01\nruns = 2\ndistance = false\n'
+    )
+    (tmp_path / "s.toml").write_text(HEAD + body)
+    proc = run_cli(["perturb", "s.toml", "--out", "r"], tmp_path)
+    assert proc.returncode == 0, proc.stderr
+    summary = json.loads((tmp_path / "r" / "perturb" / "summary.json").read_text())
+    assert summary["stability_violations"] is None and summary["distance"] is None
+    proc = run_cli(["report", "r"], tmp_path)
+    assert proc.returncode == 0, proc.stderr
+    text = " ".join(_pdf_text(tmp_path / "r" / "report.pdf").split())
+    assert "Perturbation" in text  # the page that would carry the count is there
+    assert "Stability violations" not in text
+    assert "violate the stability bound" not in text
+    assert "respected the stability bound" not in text
+    assert "Stability of the distance: not tracked" in text
