@@ -404,6 +404,12 @@ def _path(r: _Reader, t: dict, label: str, key: str, base: Path, suffixes: tuple
             f"unsupported file type {p.suffix or '(none)'!r}",
             f"give a {' / '.join(suffixes)} file",
         )
+    if p.is_dir():
+        raise r.fail(
+            f"{label}.{key}",
+            f"{p} is a folder, not a {key} file",
+            f"give the path of the {key} file itself",
+        )
     if not p.is_file():
         raise r.fail(
             f"{label}.{key}",

@@ -194,3 +194,55 @@ def test_unreadable_study_simulated(tmp_path: Path, monkeypatch: pytest.MonkeyPa
     with pytest.raises(SpecmapInputError) as exc:
         check_study_path(str(p))
     assert "s.toml" in exc.value.one_line() and "permission denied" in exc.value.one_line()
+
+
+# -- 3. an unreadable grid file (issue 14 section 2: PermissionError became a traceback) ---------
+_GRID_TEXT = (
+    '{"format": "specmap-grid/1", "contours": [{"id": "p0", "kind": "proper", "points": [[0, 1], [1, 0]]}]}'
+)
+
+
+def _grid_study(tmp_path: Path) -> Path:
+    (tmp_path / "s.toml").write_text(_errors.HEAD + '[f]\ngrid = "g.json"\n[g]\ngrid = "g.json"\n')
+    return tmp_path / "s.toml"
+
+
+def test_grid_file_unreadable_by_permissions(tmp_path: Path) -> None:
+    # chmod 000 stops every user but root; as root the next two tests make the file unreadable
+    _skip_if_root()
+    _grid_study(tmp_path)
+    g = tmp_path / "g.json"
+    g.write_text(_GRID_TEXT)
+    g.chmod(0o000)
+    try:
+        assert_user_error(run_cli(["grid", "s.toml"], tmp_path), "g.json", "permission denied")
+    finally:
+        g.chmod(0o644)
+
+
+def test_grid_file_replaced_by_a_folder(tmp_path: Path) -> None:
+    # a folder in the file's place cannot be read as a file, by root too; the line says what it is
+    _grid_study(tmp_path)
+    (tmp_path / "g.json").mkdir()
+    proc = run_cli(["grid", "s.toml"], tmp_path)
+    assert_user_error(proc, "s.toml", "f.grid", "g.json", "folder")
+    assert "not found" not in proc.stderr
+    assert not (tmp_path / "results").exists()
+
+
+def test_grid_file_unreadable_simulated(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    # a denied read (what chmod 000 gives a normal user), simulated so it runs as root too
+    from specmap.errors import SpecmapInputError
+    from specmap.grids.model import read_grid
+
+    (tmp_path / "g.json").write_text(_GRID_TEXT)
+    assert len(read_grid(tmp_path / "g.json").contours) == 1  # readable, it reads
+
+    def denied(self, *a, **k):
+        raise PermissionError(13, "Permission denied", str(self))
+
+    monkeypatch.setattr(Path, "read_text", denied)
+    with pytest.raises(SpecmapInputError) as exc:
+        read_grid(tmp_path / "g.json")
+    line = exc.value.one_line()
+    assert "\n" not in line and "g.json" in line and "permission denied" in line
