@@ -219,3 +219,27 @@ def test_runs_flag_obeys_the_study_file_limit(tmp_path: Path) -> None:
     study.write_text(HEAD + GOOD_F + GOOD_G + "[perturb]\nsize = 0.01\nruns = 2\n")
     proc = run_cli(["perturb", str(study), "--runs", "1000000000", "--out", str(tmp_path / "o")], tmp_path)
     assert_user_error(proc, "--runs")
+
+
+def test_map_over_the_memory_budget_is_refused_before_mapping(tmp_path: Path) -> None:
+    # Issue 14 section 3: estimate before an N^4 stage, never die after. With --memory 1MB no plan
+    # fits (even the smallest tiles hold the grids' crossings), so the map must be refused in one
+    # line with the estimate, the budget and the remedies, before any map work: no folder, no tiles.
+    import re
+
+    study = tmp_path / "s.toml"
+    study.write_text(HEAD + GOOD_F + GOOD_G)
+    out = tmp_path / "o"
+    proc = run_cli(["map", str(study), "--out", str(out), "--memory", "1MB"], tmp_path)
+    assert_user_error(
+        proc, "s.toml", "map", "1 MB", "--memory", "--pairs roles", "--resolution", "--method dense"
+    )
+    m = re.search(
+        r"(\d+) \+ (\d+) contours \((\d+) pairs, about ([0-9.e+]+) crossings\) needs about ([0-9.]+) (MB|GB)",
+        proc.stderr,
+    )
+    assert m, proc.stderr
+    n = int(m[1]) + int(m[2])
+    assert int(m[3]) == n * (n - 1) // 2  # closed form: unordered pairs of n contours
+    assert float(m[5]) * {"MB": 1e6, "GB": 1e9}[m[6]] > 1e6  # the estimate is over the 1 MB budget
+    assert not out.exists()
