@@ -81,7 +81,8 @@ def load_input(spec: ShapeSpec, study: Study) -> tuple[Shape | Grid, dict[str, A
     if record["met"] is False:
         print(
             f"specmap: note: {spec.label}: simplify=auto: {record['contours_after']} contours left, budget "
-            f"{record['budget']} not met (delta {record['delta']:.3g}); the simplified pair is used; give "
+            f"{record['budget']} not met within a change of {record.get('cap') or 0:.3g} (5% of the value range; "
+            f"best found: sup change {max(record['sup_change']):.3g}); the simplified pair is used; give "
             "simplify = <larger delta>, raise [map] max_contours, or use a coarser mesh",
             file=sys.stderr,
         )

@@ -723,6 +723,7 @@ def simplify_values(
     count_fn: Callable[[np.ndarray, np.ndarray], int],
     *,
     budget: int = 60,
+    cap_fraction: float = 0.05,
 ) -> tuple[np.ndarray, dict]:
     """Simplify a mesh map as a study's ``simplify = delta | "auto"`` asks, with the record to keep.
 
@@ -732,12 +733,18 @@ def simplify_values(
     values : ndarray (n, 2)
         (f1, f2) at the vertices.
     setting : float or "auto"
-        delta >= 0 (value units), or ``"auto"`` for :func:`auto_delta` under ``budget``.
+        delta >= 0 (value units): persistence-sensitive simplification of each field
+        (:func:`simplify_pair`); or ``"auto"``: the joint simplification of the pair
+        (:func:`specmap.jacobi_smooth.auto_joint`: tube smoothing, fold straightening, persistence)
+        with the smallest measured change that meets ``budget``, within ``cap_fraction`` of the
+        larger value range.
     count_fn : callable (f1, f2) -> int
         The count to report (and for ``"auto"`` to bring under the budget), e.g. the number of
         contours of the pair's extended Pareto grid.
     budget : int
         For ``"auto"``.
+    cap_fraction : float
+        For ``"auto"``: the largest change tried, as a fraction of max(ptp f1, ptp f2).
 
     Returns
     -------
@@ -747,16 +754,57 @@ def simplify_values(
         JSON-ready: ``delta``, ``sup_change`` [f1, f2] (measured), ``contours_before``,
         ``contours_after``, ``setting``, ``budget`` and ``met`` (``"auto"`` only, else None),
         ``critical_before`` / ``critical_after`` {"f1"|"f2": {"min", "saddle", "max"}},
-        ``layout``.
+        ``layout``, ``method`` (``"persistence"`` or ``"joint"``); for ``"auto"`` also ``tube``
+        (tau of the chosen pair, None when unchanged), ``cap`` (value units) and ``tried``
+        (candidates evaluated). For the joint method ``delta`` is its bound 4 tau.
     """
     F = np.asarray(values, dtype=float)
     if F.ndim != 2 or F.shape[1] != 2:
         raise ValueError(f"values have shape {F.shape}, expected (n, 2)")
     f1, f2 = F[:, 0], F[:, 1]
+    extra: dict = {"method": "persistence"}
     if setting == "auto":
-        res = auto_delta(tri, f1, f2, count_fn, int(budget))
-        pair, before, after = res.pair, res.count_before, res.count_after
-        delta, met, used_budget = res.delta, res.met, int(budget)
+        from specmap.jacobi_smooth import auto_joint
+
+        cap = float(cap_fraction) * max(float(np.ptp(f1)), float(np.ptp(f2)), 0.0) if len(F) else 0.0
+        joint = auto_joint(tri, F, count_fn, int(budget), cap) if cap > 0 else None
+        if joint is None:  # constant fields: nothing to simplify
+            before = int(count_fn(f1, f2))
+            joint_pair, after, met = None, before, before <= int(budget)
+            tried = 0
+        else:
+            before, after, met, tried = joint.count_before, joint.count_after, joint.met, len(joint.tried)
+            joint_pair = joint.pair
+        used_budget = int(budget)
+        extra = {
+            "method": "joint",
+            "tube": None if joint_pair is None else joint_pair.tau,
+            "cap": cap,
+            "tried": tried,
+        }
+        if joint_pair is not None:
+            from specmap.grids.piecewise import pl_critical_vertices
+
+            out = joint_pair.values
+            meta = {
+                "setting": "auto",
+                "delta": float(joint_pair.bound),
+                "sup_change": [float(x) for x in joint_pair.sup_change],
+                "contours_before": int(before),
+                "contours_after": int(after),
+                "budget": used_budget,
+                "met": bool(met),
+                "critical_before": {
+                    k: pl_critical_vertices(tri, F[:, i]).counts() for i, k in enumerate(("f1", "f2"))
+                },
+                "critical_after": {
+                    k: pl_critical_vertices(tri, out[:, i]).counts() for i, k in enumerate(("f1", "f2"))
+                },
+                "layout": "aligned",
+                **extra,
+            }
+            return out, meta
+        pair, delta = None, 0.0
     elif isinstance(setting, (int, float)) and not isinstance(setting, bool):
         delta, met, used_budget = float(setting), None, None
         before = int(count_fn(f1, f2))
@@ -785,5 +833,6 @@ def simplify_values(
         "critical_before": crit,
         "critical_after": after_crit,
         "layout": layout,
+        **extra,
     }
     return out, meta
