@@ -504,3 +504,86 @@ def test_report_without_tracked_distance_claims_no_stability_check(tmp_path: Pat
     assert "violate the stability bound" not in text
     assert "respected the stability bound" not in text
     assert "Stability of the distance: not tracked" in text
+
+
+# --------------------------------------------------------------------------- 2. float warnings of all workers
+
+
+def _overflowing_tile(*args: object, **kwargs: object) -> object:
+    """One overflow, then the real tile (module level, so the workers import it by name)."""
+    from specmap.special import tiles
+
+    _ = np.array([1e300]) * np.array([1e300])
+    real = getattr(tiles, "_real_tile_pieces", tiles.tile_pieces)  # a worker imports the real module
+    return real(*args, **kwargs)
+
+
+def _counted_main(monkeypatch: pytest.MonkeyPatch, capsys, work) -> list[str]:
+    """Run ``work`` as the CLI's verb; the non-empty stderr lines."""
+    import specmap.cli as cli
+
+    def verb(argv: list[str] | None = None) -> int:
+        work()
+        return 0
+
+    monkeypatch.setattr(cli, "run", verb)
+    with pytest.raises(SystemExit) as code:
+        cli.main([])
+    assert code.value.code == 0
+    return [ln for ln in capsys.readouterr().err.splitlines() if ln.strip()]
+
+
+def _evaluator_pair():
+    from specmap.shapes.surfaces import make_surface
+    from specmap.slices import SliceEngine
+
+    # values near 5e307 and lines with b = -1.7e308: f1 - b exceeds the largest double (closed form)
+    V, T = make_surface("ellipsoid", (2.0, 1.0, 1.0)).mesh(100)
+    return SliceEngine(T, np.c_[V[:, 0], V[:, 1]] * 5e307), SliceEngine(T, np.c_[V[:, 0], V[:, 2]] * 5e307)
+
+
+def test_float_warnings_of_distance_workers_are_counted(monkeypatch: pytest.MonkeyPatch, capsys) -> None:
+    # Issue 14: the distance evaluator's joblib workers printed their warnings (two lines each) and
+    # the CLI's one line missed them. Expected: the count of the same lines evaluated in this process
+    # (numpy warns once per operation on each line, so the count does not depend on the chunks).
+    import warnings
+
+    from specmap.distance.evaluator import LineEvaluator
+    from specmap.floatwarn import float_warning_kind, take_worker_counts
+
+    a = np.full(8, 0.5)
+    b = np.r_[np.full(4, -1.7e308), np.linspace(-0.1, 0.1, 4)]
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        here = LineEvaluator(*_evaluator_pair(), jobs=1)(a, b)
+    expected = sum(1 for w in caught if float_warning_kind(w.message, w.category) == "overflow")
+    assert expected >= 4  # at least one overflow per line with b = -1.7e308
+    take_worker_counts()
+    out: list = []
+    err = _counted_main(
+        monkeypatch, capsys, lambda: out.append(LineEvaluator(*_evaluator_pair(), jobs=2)(a, b))
+    )
+    np.testing.assert_array_equal(out[0], here)
+    assert len(err) == 1, err
+    assert f"overflow {expected}" in err[0], err
+
+
+def test_float_warnings_of_map_tiles_are_counted(monkeypatch: pytest.MonkeyPatch, capsys) -> None:
+    # Issue 14: the same for the map's tile workers. Expected: one overflow per tile, raised by the
+    # wrapper above in whichever process maps the tile (4 tiles, 2 workers), and no other line.
+    from specmap.settings import MapSettings
+    from specmap.special import tiles
+    from specmap.strip import Window
+    from tests.gridgen import random_pair
+
+    gf, gg = random_pair(2, 6)
+    monkeypatch.setattr(tiles, "_real_tile_pieces", tiles.tile_pieces, raising=False)
+    monkeypatch.setattr(tiles, "tile_pieces", _overflowing_tile)
+    ms = MapSettings(resolution=21)
+    window = Window((0.05, 0.95), (-1.0, 1.0))
+    err = _counted_main(
+        monkeypatch,
+        capsys,
+        lambda: tiles.tiled_special_set(gf, gg, window, tiles=(2, 2), settings=ms, jobs=2),
+    )
+    assert len(err) == 1 and "numpy met 4 floating-point" in err[0] and "overflow 4" in err[0], err

@@ -111,6 +111,8 @@ class LineEvaluator:
     def _compute_parallel(self, lines: np.ndarray) -> np.ndarray:
         from joblib import Parallel, delayed
 
+        from specmap.floatwarn import Counted, unwrap
+
         if self._pool is None:
             self._pool = Parallel(n_jobs=self.jobs, return_as="generator")
         n_chunks = min(len(lines), 4 * self.jobs)
@@ -118,13 +120,15 @@ class LineEvaluator:
         parts = []
         for part, chunk in zip(
             self._pool(
-                delayed(_h_chunk)(self._key, self.tri_f, self.val_f, self.tri_g, self.val_g, c, self.degrees)
+                delayed(Counted(_h_chunk))(  # float warnings of the workers join the CLI's one line
+                    self._key, self.tri_f, self.val_f, self.tri_g, self.val_g, c, self.degrees
+                )
                 for c in chunks
             ),
             chunks,
             strict=True,
         ):
-            parts.append(part)
+            parts.append(unwrap(part))
             self.done += len(chunk)
             self._report()
         return np.concatenate(parts)

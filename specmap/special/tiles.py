@@ -422,16 +422,17 @@ def tiled_special_set(
     if todo:
         from joblib import delayed
 
+        from specmap.floatwarn import Counted, unwrap
         from specmap.perturb.execution import _results as results_of
 
-        tasks = [
-            delayed(tile_pieces)(grid_f, grid_g, window, (n_a, n_b), t, settings, sub=sub, seed=seed)
+        tasks = [  # Counted: the workers' float warnings join the CLI's one line (specmap.floatwarn)
+            delayed(Counted(tile_pieces))(grid_f, grid_g, window, (n_a, n_b), t, settings, sub=sub, seed=seed)
             for t in todo
         ]
         runner: Iterable[Any] = (
             results_of(tasks, max(1, int(jobs)), cluster) if (jobs > 1 or cluster) else map(_call, tasks)
         )
-        for result in runner:
+        for result in map(unwrap, runner):
             if store is not None:
                 write_tile(store, fp, result)
             done[result.name] = result
