@@ -18,7 +18,7 @@ from pathlib import Path
 
 from specmap import __version__
 from specmap.errors import SpecmapInputError, StudyError
-from specmap.report.fmt import fmt, fmt_pct, fmt_point, plural
+from specmap.report.fmt import fmt_distance, fmt_pct, fmt_point, plural, round_values
 
 REACHED = {
     "slope-one": "reached on the slope-one line a = 1/2",
@@ -383,17 +383,20 @@ def run(argv: list[str] | None = None) -> int:
         js = sr.write_distance(method=args.method, degrees=args.degrees, jobs=args.jobs)
         sr.record()
         print(
-            f"matching distance: D = {fmt(js['value'])} at (a, b) = {fmt_point(js['at'])}, "
+            f"matching distance: D = {fmt_distance(js)} at (a, b) = {fmt_point(js['at'])}, "
             f"{REACHED.get(js['reached_on'], 'reached on ' + str(js['reached_on']))} "
             f"-> {sr.out / 'distance.json'}"
         )
         if js.get("audit", {}).get("theorem_gap"):
             print("WARNING: the theorem audit failed (see distance.json audit.theorem)", file=sys.stderr)
+        tol = js.get("tolerance")
         for k, v in (js.get("by_degree") or {}).items():
             if v.get("resolved") is False:
-                print(f"D_{k} not resolved: {v.get('resolved_why')}", file=sys.stderr)
+                print(f"D_{k} not resolved: {round_values(str(v.get('resolved_why')), tol)}", file=sys.stderr)
             if v.get("certified") is False and v.get("why_not"):
-                print(f"D_{k} not certified. {why_sentences(v['why_not'])}", file=sys.stderr)
+                print(
+                    f"D_{k} not certified. {why_sentences(round_values(v['why_not'], tol))}", file=sys.stderr
+                )
     elif args.verb == "perturb":
         if study.perturb is None:
             raise StudyError(

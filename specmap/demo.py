@@ -117,35 +117,34 @@ def degree_lines(d: dict[str, Any]) -> list[str]:
 
     Examples
     --------
-    >>> degree_lines({"by_degree": {"0": {"value": 0.3, "certified": True, "bounds": [0.3, 0.3004]},
+    >>> degree_lines({"tolerance": 1e-3, "by_degree": {"0": {"value": 0.3, "certified": True, "bounds": [0.3, 0.3004]},
     ...     "1": {"value": 0.1, "certified": False, "bounds": [0.1, 0.3], "why_not": "no reduced search ran"}}})
-    ['  D_0 = 0.3, certified: in [0.3, 0.3004]', '  D_1 = 0.1, not certified: in [0.1, 0.3]. No reduced search ran.']
+    ['  D_0 = 0.3000, certified: in [0.3000, 0.3004]', '  D_1 = 0.1, not certified: in [0.1, 0.3]. No reduced search ran.']
     """
-    from specmap.report.fmt import fmt
     from specmap.report.summary import degree_rows, why_sentences
 
     out = []
     for r in degree_rows(d):
         if r.degree == "max":
             continue
-        where = f"in [{fmt(r.interval[0])}, {fmt(r.interval[1])}]" if r.interval else "no interval recorded"
+        where = f"in {r.interval_text}" if r.interval else "no interval recorded"
         if r.status == "certified":
-            out.append(f"  D_{r.degree} = {fmt(r.value)}, certified: {where}")
+            out.append(f"  D_{r.degree} = {r.value_text}, certified: {where}")
         else:
             why = why_sentences(r.status.removeprefix("not certified: ").split("; ")[0])
-            out.append(f"  D_{r.degree} = {fmt(r.value)}, not certified: {where}. {why}")
+            out.append(f"  D_{r.degree} = {r.value_text}, not certified: {where}. {why}")
     return out
 
 
 def summary_lines(o: DemoOutcome) -> list[str]:
     """What the demo prints: D, where, the special set, the verdict, and where the report went."""
     from specmap.cli import REACHED
-    from specmap.report.fmt import fmt, fmt_point
+    from specmap.report.fmt import fmt_distance, fmt_point
     from specmap.report.summary import component_counts
 
     d = o.distance
     lines = [
-        f"matching distance: D = {fmt(d.get('value'))} at (a, b) = {fmt_point(d.get('at'))}, "
+        f"matching distance: D = {fmt_distance(d)} at (a, b) = {fmt_point(d.get('at'))}, "
         f"{REACHED.get(d.get('reached_on'), 'reached on ' + str(d.get('reached_on')))}",
     ]
     lines += degree_lines(d)

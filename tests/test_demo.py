@@ -7,8 +7,10 @@ text must carry the numbers of the JSON results it was built from.
 from __future__ import annotations
 
 import json
+import math
 import subprocess
 import sys
+from decimal import ROUND_HALF_UP, Decimal
 from pathlib import Path
 
 import pytest
@@ -76,8 +78,16 @@ def test_demo_quick_end_to_end(tmp_path: Path) -> None:
     special = json.loads((out / "special.json").read_text())
     dist = json.loads((out / "distance.json").read_text())
     summary = json.loads((out / "perturb" / "summary.json").read_text())
-    assert f"{dist['value']:.4g}" in flat
-    assert f"D = {dist['value']:.4g}" in proc.stdout
+    # D to the digits it resolves (the rule, written out here): the place of the leading digit of the
+    # width of the top degree's interval (else the tolerance), rounded half up
+    top = max(dist["by_degree"].values(), key=lambda v: v["value"])
+    lo, hi = (float(x) for x in top.get("bounds") or (0.0, 0.0))
+    width = hi - lo if math.isfinite(hi - lo) and hi > lo else float(dist["tolerance"])
+    place = math.floor(math.log10(width))
+    place += 10.0 ** (place + 1) <= width
+    shown = f"{Decimal(repr(dist['value'])).quantize(Decimal(1).scaleb(place), rounding=ROUND_HALF_UP):f}"
+    assert shown in flat
+    assert f"D = {shown}" in proc.stdout
     counts = special["counts"]
     assert f"{counts['patch']} patch" in flat
     assert f"{summary['runs_with_patch']} of {summary['runs']}" in flat

@@ -306,7 +306,8 @@ def test_full_report_pages_numbers_and_pngs(tmp_path: Path) -> None:
         assert title in heads, (title, heads)
     text = _flat(" ".join(pages))
     assert "not run" not in pages[0] and "not run" not in pages[1]
-    assert "D = 0.3," in text  # distance value
+    # distance value: tolerance 1e-6 resolves six decimals (derived by hand; fixture _distance)
+    assert "D = 0.300000," in text
     assert "2 patches, 3 curve components and 1 point component (connected components)" in text
     assert "Runs with a patch: 0 of 40" in text
     assert "0.2125" in text  # degree-1 value
@@ -415,7 +416,7 @@ def test_findings_full() -> None:
     assert "2 patches cover 4.46% of the window" in text
     assert "none survived 40 perturbations of size 0.001" in text
     assert (
-        "The matching distance is 0.3 (degree 0), reached on the slope-one line at b = 0.13 "
+        "The matching distance is 0.300000 (degree 0), reached on the slope-one line at b = 0.13 "
         "(tolerance 1e-06)."
     ) in out
     assert "(tolerance 1e-07)" in text  # special-set tolerance carried
@@ -436,7 +437,8 @@ def test_findings_no_patches() -> None:
 def test_findings_theorem_gap_comes_first_and_loud() -> None:
     out = findings({"distance": _distance(gap=True)})
     assert out[0].startswith(
-        "WARNING: the dense sweep exceeds the reduced search by 0.0271 at (a, b) = (0.27, -1.4)"
+        # the gap 0.0271 is a difference of h: to the tolerance 1e-6, six decimals
+        "WARNING: the dense sweep exceeds the reduced search by 0.027100 at (a, b) = (0.27, -1.4)"
     )
     assert "disagrees with the theorem's reduction" in out[0]
 
@@ -590,7 +592,7 @@ def test_summary_page_answers_first(tmp_path: Path) -> None:
     root = make_folder(tmp_path / "sum")
     first = _flat(pdf_pages(build_report(root))[0])
     # fixture values (_distance, _special, _perturb above)
-    assert "D = 0.3 (maximum over degrees" in first
+    assert "D = 0.300000 (maximum over degrees" in first  # tolerance 1e-6: six decimals
     assert "2 patches, 3 curve components and 1 point component (connected components)" in first
     assert "4 tie curves" in first  # 3 + 1 ties of the curve components (no stats.tie_curves)
     assert "Genericity: 0 of 40 perturbed runs" in first
@@ -836,7 +838,8 @@ def test_degrees_below_d_that_are_not_certified_get_one_caveat_with_what_to_do()
         n for n in ranked_notes({"distance": d, "study": {}, "stages": {}}) if "not certified" in n.title
     ]
     assert len(notes) == 1 and notes[0].title == "D_1 and D_2 not certified" and notes[0].severity == 3
-    assert "[0.2125, 0.3] and [0.1, 0.3] respectively" in notes[0].text
+    # each interval rounded outward at the place of its width (by hand): 0.0875 wide -> 1e-2, 0.2 -> 1e-1
+    assert "[0.21, 0.30] and [0.1, 0.3] respectively" in notes[0].text
     assert 'certify = "each"' in notes[0].todo and "line budget" in notes[0].todo
     d["by_degree"]["1"].update(certified=True, why_not=None, bounds=[0.2125, 0.2125])
     d["by_degree"]["2"].update(certified=True, why_not=None, bounds=[0.1, 0.1])
@@ -858,3 +861,70 @@ def test_cover_prints_each_constant_with_its_value(tmp_path: Path) -> None:
 
 def pages_of_build(root: Path) -> list[str]:
     return pdf_pages(build_report(root))
+
+
+# -- numbers to their tolerance (issue 15 item 1) ---------------------------------------------------
+# Every expected string below is worked out by hand from the rule stated in report/fmt.py: a value is
+# rounded (half up) at the decimal place of the leading digit of its uncertainty (the width of its
+# certified interval, else the tolerance); an interval is rounded outward at the place of its width.
+
+
+@pytest.mark.parametrize(
+    ("value", "tol", "interval", "expected"),
+    [
+        (0.2702, 0.004, None, "0.270"),  # the issue's example: +/- 0.004 resolves 1e-3
+        (0.27022, 0.004, (0.27022, 0.27437), "0.270"),  # interval 0.00415 wide: 1e-3
+        (0.27051, 0.004, None, "0.271"),  # rounds half up at 1e-3
+        (0.27022, 0.04, None, "0.27"),  # 0.04 resolves 1e-2
+        (0.2702, 0.001, None, "0.270"),  # exactly 1e-3 (log10 lands on the integer)
+        (123.4, 20.0, None, "120"),  # above one: tens
+        (0.18403, 0.004, (0.18403, 0.27437), "0.18"),  # not certified: the 0.090 width decides
+        (0.1, 0.001, (0.1, float("inf")), "0.100"),  # half-open interval: the tolerance decides
+        (-0.0001, 0.004, None, "0.000"),  # no "-0.000"
+        (0.4, 1e-12, None, "0.400000"),  # six significant digits at most
+        (0.41234, None, None, "0.4123"),  # no uncertainty: four significant digits
+    ],
+)
+def test_value_printed_to_its_resolved_digits(value: float, tol: Any, interval: Any, expected: str) -> None:
+    from specmap.report.fmt import fmt_to
+
+    assert fmt_to(value, tol, interval) == expected
+
+
+@pytest.mark.parametrize(
+    ("interval", "tol", "expected"),
+    [
+        ((0.27022, 0.27437), None, "[0.270, 0.275]"),  # 0.00415 wide: down 0.27022 -> 0.270, up -> 0.275
+        ((0.2702189673, 0.2743698427), 0.004, "[0.270, 0.275]"),
+        ((0.2125, 0.3), None, "[0.21, 0.30]"),  # 0.0875 wide: 1e-2
+        ((0.10234, float("inf")), 1e-3, "[0.102, inf]"),  # half-open: the tolerance's place
+        ((-0.01234, 0.01234), None, "[-0.02, 0.02]"),  # 0.0247 wide: 1e-2, outward on both sides
+    ],
+)
+def test_interval_rounded_outward_at_its_width(interval: Any, tol: Any, expected: str) -> None:
+    from specmap.report.fmt import fmt_bounds
+
+    assert fmt_bounds(interval, tol) == expected
+
+
+def test_distance_json_values_take_the_interval_of_their_degree() -> None:
+    from specmap.report.fmt import decimals_for, fmt_distance, round_values
+
+    # D is reached in degree 1 (the largest D_k), so D takes D_1's interval (0.0012 wide: 1e-3)
+    d = {
+        "value": 0.52049,
+        "tolerance": 0.02,
+        "by_degree": {
+            "0": {"value": 0.31, "bounds": [0.31, 0.52]},  # 0.21 wide: 1e-1 -> "0.3"
+            "1": {"value": 0.52049, "bounds": [0.52049, 0.52169]},
+        },
+    }
+    assert fmt_distance(d) == "0.520"
+    assert fmt_distance(d, 0) == "0.3"
+    assert fmt_distance(d, "1") == "0.520"
+    # values inside a reason go to the tolerance (0.02: 1e-2); the window's a0 and counts stay
+    assert round_values("bound 0.5857 against best 0.5205; a < 0.02 and 200 lines", 0.02) == (
+        "bound 0.59 against best 0.52; a < 0.02 and 200 lines"
+    )
+    # the explorer receives the decimals of the same rule
+    assert decimals_for(0.02) == 2 and decimals_for(0.004, (0.27022, 0.27437)) == 3

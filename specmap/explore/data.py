@@ -18,7 +18,7 @@ import numpy as np
 
 from specmap.explore.lines import explorer_lines
 from specmap.report.figures import distance_map_samples
-from specmap.report.fmt import num, nums
+from specmap.report.fmt import MAX_DIGITS, decimals_for, fmt_distance, num, nums
 from specmap.report.summary import reason_sentence
 from specmap.report.ties import TieIndex, family, index_ties
 
@@ -158,10 +158,19 @@ def explorer_data(
             "at": _round(nums(d.get("at"))[:2]) if d.get("at") else None,
             "reached_on": d.get("reached_on"),
             "tolerance": num(d.get("tolerance")),
+            # the report's rule (report/fmt.py): D and D_k as printed there, and the decimals of
+            # what the page computes (h on a line: the tolerance; interpolated h: the dense error bound)
+            "text": fmt_distance(d),
+            "decimals": decimals_for(d.get("tolerance")),
+            "map_decimals": decimals_for((d.get("dense") or {}).get("error_bound"))
+            if decimals_for((d.get("dense") or {}).get("error_bound")) is not None
+            else decimals_for(d.get("tolerance")),
+            "max_digits": MAX_DIGITS,
             "by_degree": {
                 str(k): {
                     "value": num((v or {}).get("value")),
                     "at": _round(nums((v or {}).get("at"))[:2]) if (v or {}).get("at") else None,
+                    "text": fmt_distance(d, k),
                 }
                 for k, v in (d.get("by_degree") or {}).items()
             },

@@ -80,6 +80,17 @@ const GRID_COLOURS = {f: "#1f5fa8", g: "#d9730d"};
 const W = DATA.window;
 const fmt = (x, d) => (x === null || x === undefined || !isFinite(x)) ? "n/a" : Number(x).toPrecision(d || 4)
   .replace(/(\\.\\d*?)0+(e|$)/, "$1$2").replace(/\\.(e|$)/, "$1");
+// values of h to the digits their tolerance resolves (the rule of report/fmt.py; decimals from the payload)
+function fmtTo(x, dec) {
+  if (x === null || x === undefined) return "n/a";
+  if (!isFinite(x)) return x > 0 ? "inf" : (x < 0 ? "-inf" : "n/a");
+  if (dec === null || dec === undefined) return fmt(x);
+  if (x !== 0) dec = Math.min(dec, Math.max(0, DATA.distance.max_digits - 1 - Math.floor(Math.log10(Math.abs(x)))));
+  const s = Number(x).toFixed(dec);
+  return /^-0(\\.0*)?$/.test(s) ? s.slice(1) : s;
+}
+const fmtH = x => fmtTo(x, DATA.distance ? DATA.distance.decimals : null);
+const fmtMap = x => fmtTo(x, DATA.distance ? DATA.distance.map_decimals : null);
 const esc = s => String(s).replace(/[&<>]/g, c => ({"&": "&amp;", "<": "&lt;", ">": "&gt;"}[c]));
 function famColour(f) { const i = DATA.families.indexOf(f); return (i >= 0 && i < COLOURS.length) ? COLOURS[i] : "#8a8a8a"; }
 function tieText(t) {
@@ -124,7 +135,7 @@ stripTraces.push({type: "scatter", mode: "lines", x: [0.5, 0.5], y: W.b, name: "
   line: {color: "#555", width: 1, dash: "dot"}});
 const D = DATA.distance;
 if (D && D.at) stripTraces.push({type: "scatter", mode: "markers", x: [D.at[0]], y: [D.at[1]], hoverinfo: "skip",
-  name: "D = " + fmt(D.value) + " reached here", marker: {symbol: "star", size: 16, color: "#ff3b3b",
+  name: "D = " + D.text + " reached here", marker: {symbol: "star", size: 16, color: "#ff3b3b",
   line: {color: "black", width: 1}}});
 const stripLayout = {margin: {l: 55, r: 10, t: 30, b: 40}, title: {text: "special set in the strip (scroll to zoom, drag to pan)", font: {size: 13}, x: 0.01, xanchor: "left"},
   xaxis: {range: W.a, title: {text: "a"}, zeroline: false}, yaxis: {range: W.b, title: {text: "b"}, zeroline: false},
@@ -237,8 +248,8 @@ function update(a, b) {
   $("here-ab").textContent = "(a, b) = (" + fmt(a) + ", " + fmt(b) + ")";
   if (D && D.samples) {
     const h = interpolate(D.samples, D.samples.h, a, b);
-    const per = Object.keys(D.samples.by_degree || {}).map(k => "h_" + k + " " + fmt(interpolate(D.samples, D.samples.by_degree[k], a, b))).join(", ");
-    $("here-h").textContent = "h(a, b) = " + fmt(h) + " (interpolated; max over degrees" + (per ? "; " + per : "") + ")";
+    const per = Object.keys(D.samples.by_degree || {}).map(k => "h_" + k + " " + fmtMap(interpolate(D.samples, D.samples.by_degree[k], a, b))).join(", ");
+    $("here-h").textContent = "h(a, b) = " + fmtMap(h) + " (interpolated; max over degrees" + (per ? "; " + per : "") + ")";
   } else { $("here-h").textContent = D ? "h(a, b): distance.json has no distance-map samples (run specmap distance --method both)"
     : "h(a, b): no distance.json in this folder"; }
   const m = (1 - a) / a, c0 = -m * b - b;
@@ -313,7 +324,7 @@ function toClient(a, b) {
 }
 const REACHED = {"slope-one": "on the slope-one line a = 1/2", "special": "on the special set",
   "both": "on the slope-one line and on the special set alike", "dense": "by the dense sweep"};
-const hl = D ? "D = " + fmt(D.value) + " (tolerance " + fmt(D.tolerance, 3) + "), reached " + (REACHED[D.reached_on] || "on " + D.reached_on)
+const hl = D ? "D = " + D.text + " (tolerance " + fmt(D.tolerance, 3) + "), reached " + (REACHED[D.reached_on] || "on " + D.reached_on)
   + (D.at ? " at (a, b) = (" + fmt(D.at[0]) + ", " + fmt(D.at[1]) + ")" : "") : "no distance computed";
 $("headline").textContent = hl + "; " + (DATA.special_missing ? DATA.special_missing + "."
   : DATA.components.length + (DATA.components.length === 1 ? " component, " : " components, ")
@@ -362,19 +373,19 @@ function showLine(i, k) {
     xaxis: {title: {text: "birth"}, range: [lo, top + 0.04 * sp], zeroline: false}, yaxis: {title: {text: "death"}, range: [lo, top + 0.06 * sp], zeroline: false},
     annotations: [{x: lo, y: top, text: "inf", showarrow: false, xanchor: "left", yanchor: "bottom", font: {size: 10, color: "#666"}}]};
   Plotly.react("diagram", traces, layout, {displaylogo: false, displayModeBar: false});
-  const rec = L.recorded && L.recorded[k] !== undefined ? "; distance.json: D_" + k + " = " + fmt(L.recorded[k]) : "";
+  const rec = L.recorded && L.recorded[k] !== undefined ? "; distance.json: D_" + k + " = " + ((D && D.by_degree[k]) ? D.by_degree[k].text : fmtH(L.recorded[k])) : "";
   let worst = "";
   if (P.worst !== null) { const pr = P.pairs[P.worst];
     worst = "costliest pair: " + (pr[0] === null ? "diagonal" : "f " + pt(P.f[pr[0]])) + " - " + (pr[1] === null ? "diagonal" : "g " + pt(P.g[pr[1]]))
-      + ", cost " + (pr[2] === null ? "inf" : fmt(pr[2])); }
-  $("diagram-info").innerHTML = "<b>" + esc(L.label) + "</b>: h_" + k + " = " + (P.h === null ? "inf" : fmt(P.h)) + esc(rec)
+      + ", cost " + (pr[2] === null ? "inf" : fmtH(pr[2])); }
+  $("diagram-info").innerHTML = "<b>" + esc(L.label) + "</b>: h_" + k + " = " + (P.h === null ? "inf" : fmtH(P.h)) + esc(rec)
     + "<br>" + P.f.length + " point(s) of f, " + P.g.length + " of g; " + esc(worst);
   for (const b of document.querySelectorAll("#line-buttons button")) b.classList.toggle("on", Number(b.dataset.i) === i);
   $("degree-buttons").innerHTML = degs.map(d => "<button data-k='" + d + "'" + (d === k ? " class='on'" : "") + ">H_" + d + ": h = "
-    + (L.degrees[d].h === null ? "inf" : fmt(L.degrees[d].h, 3)) + "</button>").join("");
+    + (L.degrees[d].h === null ? "inf" : fmtH(L.degrees[d].h)) + "</button>").join("");
   for (const b of document.querySelectorAll("#degree-buttons button")) b.onclick = () => showLine(curLine, b.dataset.k);
   update(L.a, L.b);
-  $("here-h").textContent += "; computed on this line: " + degs.map(d => "h_" + d + " " + (L.degrees[d].h === null ? "inf" : fmt(L.degrees[d].h))).join(", ");
+  $("here-h").textContent += "; computed on this line: " + degs.map(d => "h_" + d + " " + (L.degrees[d].h === null ? "inf" : fmtH(L.degrees[d].h))).join(", ");
 }
 function nearLine(a, b) {
   if (!LINES) return null;

@@ -26,7 +26,7 @@ from matplotlib.ticker import MaxNLocator, NullLocator
 from shapely.geometry import shape as geo_shape
 from shapely.geometry.base import BaseGeometry
 
-from specmap.report.fmt import fmt, fraction_interval, num, nums, plural
+from specmap.report.fmt import fmt, fmt_distance, fraction_interval, num, nums, plural
 from specmap.report.summary import tie_curve_count
 from specmap.report.ties import TieIndex, index_ties
 
@@ -768,10 +768,11 @@ def distance_map_figure(
             handles.append(Line2D([], [], color="0.55", lw=0.8, label="special set: tie curves"))
     at = distance.get("at")
     if at is not None and len(at) >= 2:
-        value = distance.get("value")
+        value_text = fmt_distance(distance)
         if degree is not None:
             bd = (distance.get("by_degree") or {}).get(str(degree)) or {}
-            at, value = bd.get("at", at), bd.get("value", value)
+            at = bd.get("at", at)
+            value_text = fmt_distance(distance, degree) if bd else value_text
         ax.plot([num(at[0])], [num(at[1])], "*", ms=16, color="#ff3b3b", mec="black", mew=0.8, zorder=6)
         handles.append(
             Line2D(
@@ -782,7 +783,7 @@ def distance_map_figure(
                 ms=12,
                 color="#ff3b3b",
                 mec="black",
-                label=f"maximum {fmt(value)} at (a, b) = ({fmt(at[0], 3)}, {fmt(at[1], 3)})",
+                label=f"maximum {value_text} at (a, b) = ({fmt(at[0], 3)}, {fmt(at[1], 3)})",
             )
         )
     ax.axvline(0.5, color="0.85" if land else "0.35", ls=":", lw=1.0)

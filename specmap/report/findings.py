@@ -10,7 +10,17 @@ from __future__ import annotations
 import math
 from typing import Any
 
-from specmap.report.fmt import fmt, fmt_interval, fmt_pct, fmt_point, fraction_interval, num, plural
+from specmap.report.fmt import (
+    fmt,
+    fmt_distance,
+    fmt_interval,
+    fmt_pct,
+    fmt_point,
+    fmt_to,
+    fraction_interval,
+    num,
+    plural,
+)
 
 WARNING = "WARNING:"
 
@@ -123,7 +133,7 @@ def theorem_audit_sentence(d: dict[str, Any]) -> str | None:
                 f"(a, b) = {at}: an evaluation or a bound is wrong{_tol(d.get('tolerance'))}."
             )
         return (
-            f"{WARNING} the dense sweep exceeds the reduced search by {fmt(audit.get('gap'))} at "
+            f"{WARNING} the dense sweep exceeds the reduced search by {fmt_to(audit.get('gap'), d.get('tolerance'))} at "
             f"(a, b) = {at}: the computation disagrees with the theorem's reduction here"
             f"{_tol(d.get('tolerance'))}."
         )
@@ -175,12 +185,12 @@ def _distance_sentences(res: dict[str, Any]) -> list[str]:
     degs = [k for k, v in by.items() if num((v or {}).get("value")) == value]
     deg = f" (degree {', '.join(degs)})" if degs else ""
     out.append(
-        f"The matching distance is {fmt(value)}{deg}, "
+        f"The matching distance is {fmt_distance(d)}{deg}, "
         f"{_reached(d.get('reached_on'), d.get('at'), d.get('component'))}{_tol(d.get('tolerance'))}."
     )
     if len(by) > 1:
         parts = [
-            f"D_{k} = {fmt((v or {}).get('value'))} ({(v or {}).get('reached_on', 'n/a')})"
+            f"D_{k} = {fmt_distance(d, k)} ({(v or {}).get('reached_on', 'n/a')})"
             for k, v in sorted(by.items(), key=lambda kv: int(num(kv[0])) if kv[0].isdigit() else 0)
         ]
         out.append("Per degree: " + "; ".join(parts) + ".")
@@ -191,21 +201,22 @@ def _distance_sentences(res: dict[str, Any]) -> list[str]:
             "(unmatched essential classes); they are excluded from the finite value."
         )
     dense, red = d.get("dense"), d.get("reduced")
+    tol = d.get("tolerance")
     if dense and red:
         out.append(
             f"The dense sweep ({dense.get('lines', 'n/a')} lines, {fmt(dense.get('seconds'), 3)} s) "
-            f"gives {fmt(dense.get('value'))} with error bound {fmt(dense.get('error_bound'), 3)}; the "
+            f"gives {fmt_to(dense.get('value'), tol)} with error bound {fmt(dense.get('error_bound'), 3)}; the "
             f"reduced search ({red.get('lines', 'n/a')} lines, {fmt(red.get('seconds'), 3)} s) gives "
-            f"{fmt(red.get('value'))}."
+            f"{fmt_to(red.get('value'), tol)}."
         )
     elif dense:
         out.append(
             f"Only the dense sweep was run ({dense.get('lines', 'n/a')} lines): "
-            f"{fmt(dense.get('value'))} with error bound {fmt(dense.get('error_bound'), 3)}."
+            f"{fmt_to(dense.get('value'), tol)} with error bound {fmt(dense.get('error_bound'), 3)}."
         )
     elif red:
         out.append(
-            f"Only the reduced search was run ({red.get('lines', 'n/a')} lines): {fmt(red.get('value'))}; "
+            f"Only the reduced search was run ({red.get('lines', 'n/a')} lines): {fmt_to(red.get('value'), tol)}; "
             "no dense sweep checks it."
         )
     out.extend(audit_sentences(d))

@@ -39,7 +39,18 @@ from specmap.report.figures import (
     special_figure,
 )
 from specmap.report.findings import WARNING, audit_sentences, findings
-from specmap.report.fmt import fmt, fmt_interval, fmt_pct, fmt_point, fraction_interval, num, nums, plural
+from specmap.report.fmt import (
+    fmt,
+    fmt_distance,
+    fmt_interval,
+    fmt_pct,
+    fmt_point,
+    fmt_to,
+    fraction_interval,
+    num,
+    nums,
+    plural,
+)
 from specmap.report.layout import RED, Pager
 from specmap.report.load import STAGE_VERB, load_results
 from specmap.report.summary import (
@@ -237,14 +248,13 @@ def _summary_page(pg: Pager, res: dict[str, Any]) -> None:
     pg.heading("Matching distance")
     if d:
         pg.para(
-            f"D = {fmt(d.get('value'))} (maximum over degrees; tolerance {fmt(d.get('tolerance'), 3)}).",
+            f"D = {fmt_distance(d)} (maximum over degrees; tolerance {fmt(d.get('tolerance'), 3)}).",
             weight="bold",
         )
         pg.mono(f"{'degree':<8}{'D_k':>10}  {'interval':<20}{'at (a, b)':<20}status")
         for row in degree_rows(d):
-            iv = fmt_interval(row.interval, 4) if row.interval else "none recorded"
             pg.mono(
-                f"{row.degree:<8}{fmt(row.value):>10}  {iv:<20}{fmt_point(row.at):<20}"
+                f"{row.degree:<8}{row.value_text:>10}  {row.interval_text:<20}{fmt_point(row.at):<20}"
                 f"{'certified' if row.status == 'certified' else 'not certified'}"
             )
         reasons: dict[str, list[str]] = {}
@@ -513,7 +523,7 @@ def _distance_page(pg: Pager, res: dict[str, Any]) -> None:
         "both": "the slope-one line and the special set alike",
     }.get(str(d.get("reached_on")), d.get("reached_on"))
     pg.para(
-        f"Matching distance D = {fmt(d.get('value'))}, reached on {on or 'n/a'} at "
+        f"Matching distance D = {fmt_distance(d)}, reached on {on or 'n/a'} at "
         f"(a, b) = {fmt_point(d.get('at'))}"
         + (f", component {d['component']}" if d.get("component") is not None else "")
         + f"; tolerance {fmt(d.get('tolerance'), 3)}."
@@ -524,7 +534,7 @@ def _distance_page(pg: Pager, res: dict[str, Any]) -> None:
         for k, v in by.items():
             v = v or {}
             pg.mono(
-                f"{k:<8}{fmt(v.get('value')):>12}  {fmt_point(v.get('at')):<24}{v.get('reached_on', 'n/a')}"
+                f"{k:<8}{fmt_distance(d, k):>12}  {fmt_point(v.get('at')):<24}{v.get('reached_on', 'n/a')}"
             )
     if d.get("infinite"):
         pg.para(f"Infinite costs: {', '.join(str(x) for x in d['infinite'])}.")
@@ -536,7 +546,7 @@ def _distance_page(pg: Pager, res: dict[str, Any]) -> None:
     dense, red = d.get("dense"), d.get("reduced")
     if dense:
         pg.para(
-            f"Dense sweep: {fmt(dense.get('value'))} at {fmt_point(dense.get('at'))}; "
+            f"Dense sweep: {fmt_to(dense.get('value'), d.get('tolerance'))} at {fmt_point(dense.get('at'))}; "
             f"{dense.get('lines', 'n/a')} lines in {fmt(dense.get('seconds'), 3)} s; error bound "
             f"{fmt(dense.get('error_bound'), 3)}."
         )
@@ -544,7 +554,7 @@ def _distance_page(pg: Pager, res: dict[str, Any]) -> None:
         pg.para("Dense sweep: not run.")
     if red:
         pg.para(
-            f"Reduced search: {fmt(red.get('value'))} at {fmt_point(red.get('at'))}; "
+            f"Reduced search: {fmt_to(red.get('value'), d.get('tolerance'))} at {fmt_point(red.get('at'))}; "
             f"{red.get('lines', 'n/a')} lines in {fmt(red.get('seconds'), 3)} s (its pruning counters are "
             "in the appendix table of search statistics)."
         )

@@ -19,7 +19,17 @@ import math
 from dataclasses import dataclass
 from typing import Any
 
-from specmap.report.fmt import fmt, fmt_interval, fmt_pct, fraction_interval, num, plural
+from specmap.report.fmt import (
+    fmt,
+    fmt_bounds,
+    fmt_interval,
+    fmt_pct,
+    fmt_to,
+    fraction_interval,
+    num,
+    plural,
+    round_values,
+)
 
 RESOLVED_FACTOR = 3.0
 """D must exceed this multiple of the distance tolerance to count as resolved (issue 13, item 3)."""
@@ -40,7 +50,10 @@ class DegreeRow:
     interval : (lo, hi) or None
         ``bounds`` of the file, when present.
     status : str
-        ``"certified"`` or ``"not certified: <reason>"``.
+        ``"certified"`` or ``"not certified: <reason>"`` (its values to the digits the tolerance
+        resolves, :func:`specmap.report.fmt.round_values`).
+    tolerance : float
+        The distance tolerance of the file (``nan`` if absent).
     """
 
     degree: str
@@ -50,6 +63,17 @@ class DegreeRow:
     certified: bool | None
     interval: tuple[float, float] | None
     status: str
+    tolerance: float = math.nan
+
+    @property
+    def value_text(self) -> str:
+        """D_k to the digits its interval (else the tolerance) resolves."""
+        return fmt_to(self.value, self.tolerance, self.interval)
+
+    @property
+    def interval_text(self) -> str:
+        """The interval rounded outward at the place of its width; ``"none recorded"`` without one."""
+        return fmt_bounds(self.interval, self.tolerance) if self.interval else "none recorded"
 
 
 @dataclass(frozen=True)
@@ -98,18 +122,18 @@ def _derived_reason(d: dict[str, Any], k: str, v: dict[str, Any], vmax: float) -
     if ss and ss.get("certified") is False:
         return (
             f"the slope-one search stopped at its line cap after {ss.get('lines', 'n/a')} lines "
-            f"(bound {fmt(_first(ss.get('bound')))} against best {fmt(_first(ss.get('best')))})"
+            f"(bound {fmt_to(_first(ss.get('bound')), tol)} against best {fmt_to(_first(ss.get('best')), tol)})"
         )
     parts = ["no interval over the whole strip is recorded"]
     if ss and ss.get("certified"):
         parts.append(
             f"the slope-one search bounds a = 1/2 only: max there in "
-            f"{fmt_interval([_first(ss.get('best')), _first(ss.get('bound'))])}"
+            f"{fmt_bounds([_first(ss.get('best')), _first(ss.get('bound'))], tol)}"
         )
     dense = d.get("dense") or {}
     eb = num(dense.get("error_bound"))
     if math.isfinite(eb) and eb > num(v.get("value")):
-        parts.append(f"the dense sweep's error bound {fmt(eb, 3)} exceeds the value")
+        parts.append(f"the dense sweep's error bound {fmt_to(eb, tol)} exceeds the value")
     return "; ".join(parts)
 
 
@@ -186,6 +210,7 @@ def degree_rows(d: dict[str, Any] | None) -> list[DegreeRow]:
     if not by:
         by = {"max": {k: d.get(k) for k in ("value", "at", "reached_on", "certified", "bounds", "why_not")}}
     vmax = max((num((v or {}).get("value")) for v in by.values()), default=math.nan)
+    tol = num(d.get("tolerance"))
     rows = []
     for k in sorted(by, key=lambda s: (not str(s).isdigit(), int(s) if str(s).isdigit() else 0)):
         v = by[k] or {}
@@ -208,7 +233,8 @@ def degree_rows(d: dict[str, Any] | None) -> list[DegreeRow]:
                 str(v.get("reached_on", "n/a")),
                 cert if isinstance(cert, bool) else None,
                 interval,
-                status,
+                round_values(status, tol),
+                tol,
             )
         )
     return rows
@@ -511,7 +537,7 @@ def ranked_notes(res: dict[str, Any]) -> list[Note]:
             Note(
                 1,
                 "Theorem audit failed",
-                f"the dense sweep exceeds the reduced search by {fmt(audit.get('gap'))} at (a, b) = "
+                f"the dense sweep exceeds the reduced search by {fmt_to(audit.get('gap'), tol)} at (a, b) = "
                 f"{fmt_interval(line) if isinstance(line, list) else line}, more than the tolerance "
                 f"{fmt(tol, 3)}.",
                 "take the larger (dense) value as D; rerun specmap distance with a higher "
@@ -540,7 +566,7 @@ def ranked_notes(res: dict[str, Any]) -> list[Note]:
         ]
         if lower:  # degrees below the maximum: one caveat for all, with the setting that bounds each
             who = " and ".join(f"D_{r.degree}" for r in lower)
-            ivs = " and ".join(f"[{fmt(r.interval[0])}, {fmt(r.interval[1])}]" for r in lower if r.interval)
+            ivs = " and ".join(r.interval_text for r in lower if r.interval)
             if ivs and len(lower) > 1:
                 ivs += " respectively"
             capped = any("cap" in r.status or "budget" in r.status for r in lower)
@@ -585,7 +611,9 @@ def ranked_notes(res: dict[str, Any]) -> list[Note]:
         )
         if top is not None:  # distance.json says it (grid, mesh and distance tolerances)
             if top["resolved"] is False:
-                why, _, fix = str(top.get("resolved_why") or "the value is not resolved").partition(": ")
+                why, _, fix = round_values(
+                    str(top.get("resolved_why") or "the value is not resolved"), tol
+                ).partition(": ")
                 notes.append(
                     Note(
                         2,
@@ -599,7 +627,7 @@ def ranked_notes(res: dict[str, Any]) -> list[Note]:
                 Note(
                     2,
                     "D not resolved",
-                    f"D = {fmt(value)} is less than {fmt(RESOLVED_FACTOR, 2)} times the tolerance "
+                    f"D = {fmt_to(value, tol)} is less than {fmt(RESOLVED_FACTOR, 2)} times the tolerance "
                     f"{fmt(floor, 3)} (grid or distance): the value is not resolved.",
                     "raise the mesh resolution of f and g ([f]/[g] resolution) or use an exact "
                     "grid route, then rerun.",
