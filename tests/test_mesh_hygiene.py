@@ -145,3 +145,62 @@ def test_hygiene_counts_reach_the_grid_json(tmp_path):
     assert proc.returncode == 0, proc.stderr
     meta = json.loads((tmp_path / "o" / "grid_f.json").read_text())["meta"]
     assert meta["mesh_hygiene"]["loose_vertices"] == 2
+
+
+# -- issue 14: a zero-area triangle that no edge flip removes is one clear line, exit 2 -------------
+# Closed form, derived here. The tetrahedron on u, v, m, w with m = (u + v) / 2 (exact in binary) is
+# a closed 2-manifold (V - E + F = 4 - 6 + 4 = 2) whose triangle (u, v, m) has cross product exactly
+# 0: a triangle doubly covered by (u, v, w) and (u, m, w) + (m, v, w). The only flip that removes
+# the sliver (u, v, m) is uv -> mw, and mw is already an edge (of (u, m, w)): the flip would put mw
+# on four triangles, so the stated rule (specmap/shapes/slivers.py) refuses it. In the second case
+# all four vertices lie on one line: every triangle is zero-area and every neighbour is a sliver too.
+FLAT_TETRAHEDRA = {
+    "doubly_covered_triangle": (
+        np.array([[0.0, 0, 0], [2, 0, 0], [1, 0, 0], [0.5, 1, 0]]),  # u, v, m, w
+        np.array([[0, 1, 2], [1, 0, 3], [0, 2, 3], [2, 1, 3]]),
+        [0],
+    ),
+    "four_collinear_points": (
+        np.array([[0.0, 0, 0], [1, 0, 0], [2, 0, 0], [3, 0, 0]]),
+        np.array([[0, 1, 2], [1, 0, 3], [0, 2, 3], [2, 1, 3]]),
+        [0, 1, 2, 3],
+    ),
+}
+
+
+@pytest.mark.parametrize("case", sorted(FLAT_TETRAHEDRA))
+def test_zero_area_triangle_no_flip_removes(case):
+    from specmap.shapes.slivers import flip_slivers, zero_area_mask
+
+    V, T, slivers = FLAT_TETRAHEDRA[case]
+    assert euler_characteristic(V, T) == 2
+    assert np.nonzero(zero_area_mask(V, T))[0].tolist() == slivers
+    T2, flipped, left = flip_slivers(V, T)
+    assert flipped == 0 and left.tolist() == slivers
+    np.testing.assert_array_equal(T2, T)  # nothing was changed on the way
+
+
+@pytest.mark.parametrize("case", sorted(FLAT_TETRAHEDRA))
+def test_zero_area_triangle_no_flip_removes_is_one_line_exit_2(tmp_path, case):
+    import subprocess
+    import sys
+
+    V, T, slivers = FLAT_TETRAHEDRA[case]
+    write_mesh(tmp_path / "flat.off", V, T)
+    (tmp_path / "s.toml").write_text(
+        '[study]\nname = "t"\n[f]\nmesh = "flat.off"\nmap = ["x", "y"]\n'
+        '[g]\nsurface = "ellipsoid"\nradii = [2, 1, 1]\nmap = ["x", "y"]\n'
+    )
+    proc = subprocess.run(
+        [sys.executable, "-m", "specmap", "--quiet", "grid", "s.toml", "--out", "r"],
+        cwd=tmp_path,
+        capture_output=True,
+        text=True,
+        timeout=300,
+    )
+    lines = [ln for ln in proc.stderr.splitlines() if ln.strip()]
+    assert proc.returncode == 2 and len(lines) == 1 and "Traceback" not in proc.stderr, proc.stderr
+    assert "flat.off" in lines[0] and "mesh" in lines[0]
+    assert f"{len(slivers)} zero-area (collinear) triangles that no edge flip removes" in lines[0]
+    assert "re-triangulate" in lines[0]
+    assert not (tmp_path / "r").exists()
