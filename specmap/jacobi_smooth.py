@@ -155,7 +155,7 @@ def straighten_folds(
         (f1, f2) at the vertices (value units).
     tau : float
         Box radius >= 0 (value units): every output value is within ``tau`` of the input in each
-        component (a candidate on the box's border is clipped back by rounding, see below).
+        component (a value that rounding put outside the box is stepped back into it).
     passes, grid : int
         Sweeps over the vertices (stops early when a sweep moves none); candidates per vertex are
         a ``grid`` x ``grid`` lattice of its box.
@@ -192,7 +192,12 @@ def straighten_folds(
         int(passes),
         max(int(grid), 2),
     )
-    return np.clip(g, F - tau, F + tau)  # c - tau + 2 tau can round a last bit outside
+    g = np.clip(g, F - tau, F + tau)
+    while True:  # F + tau can round above the box: step such values back towards F
+        bad = np.abs(g - F) > tau
+        if not bad.any():
+            return g
+        g[bad] = np.nextafter(g[bad], F[bad])
 
 
 @dataclass(frozen=True)
