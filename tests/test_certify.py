@@ -381,3 +381,129 @@ def test_strip_search_bound_holds_on_brute_force_lines():
     for j in range(3):
         assert float(H[j].max()) <= box.bound[j] + 1e-12, (j, float(H[j].max()), box.bound[j])
         assert box.best[j] <= box.bound[j]
+
+
+def _reduced_stopped_early(sf, sg, w, tol, samples=3):
+    """A reduced search on an empty special set, its slope-one search stopped after ``samples`` lines."""
+    ev = LineEvaluator(sf, sg, (0,))
+    upper, _ = distance_upper_bound(sf, sg)
+    red = reduced_search(
+        ev,
+        w,
+        FakeAtlas((), ()),
+        {},
+        tolerance=tol,
+        upper=upper,
+        settings=ReducedSettings(slope_samples=samples, slope_max_lines=0, polish=False),
+    )
+    return ev, red, upper
+
+
+def test_strip_audit_flags_a_reduced_search_stopped_early():
+    # Check (c) of the theorem audit, built to fire: the reduced search sees 3 lines of a = 1/2 and an
+    # empty special set (a tie removed: all of them), so its value misses the maximum; the whole-strip
+    # search (stability bounds [CDFFL13] only, no theorem) evaluates more lines and finds more. Brute
+    # force in the test: h at the line the audit names, recomputed with a fresh evaluator, is above the
+    # reported value by more than the tolerance, so the flag is a fact about h, not about the code.
+    from specmap.distance.branch import fold_strip
+
+    sf, sg = _rough_pair()
+    w = default_window(sf.value_bounds(), sg.value_bounds())
+    tol = 1e-3
+    ev, red, upper = _reduced_stopped_early(sf, sg, w, tol)
+    by = _by_degree(red, None, (0,), tol)
+    by[0].update(bounds=[by[0]["value"], upper], certified=False, why_not="built to fail")
+    fold_strip(ev, sf, sg, w, by, (0,), tol, upper=upper, max_lines=300)
+    with pytest.warns(UserWarning, match="whole-strip search exceeds the reported value"):
+        audit = theorem_audit(None, by, (0,), tol, upper=upper)
+    row = audit["theorem"]["by_degree"]["0"]
+    assert audit["theorem"]["strip_above_reduced"] is True and row["strip_above_reduced"] is True
+    assert audit["theorem_gap"] is True
+    a, b = row["line"]
+    assert [a, b] == by[0]["strip"]["best_at"] and audit["line"] == [a, b]
+    fresh = float(LineEvaluator(sf, sg, (0,))(np.array([a]), np.array([b]))[0, 0])
+    assert fresh > red.slope[0].value + tol, (fresh, red.slope[0].value)
+    assert audit["theorem"]["dense_above_reduced"] is None  # no dense sweep: not run
+
+
+def test_strip_audit_quiet_on_the_translation_closed_form():
+    # CDFFL13 stability, closed form derived here: g = f + (c, c) on one mesh has h_0(1/2, b) = |c| on
+    # every b and h_0 <= |c| on every line, so even 3 slope-one lines reach D_0 = |c| and the whole
+    # strip cannot exceed it: check (c) runs (not null) and stays false, no line named.
+    from specmap.distance.branch import fold_strip
+
+    V, T, f = ellipsoid_pair(200)
+    c = 0.15
+    sf, sg = shapes(V, T, f, f + c)
+    w = default_window(sf.value_bounds(), sg.value_bounds())
+    tol = 1e-3
+    ev, red, upper = _reduced_stopped_early(sf, sg, w, tol)
+    assert red.slope[0].value == pytest.approx(c, abs=1e-12)
+    by = _by_degree(red, None, (0,), tol)
+    by[0].update(bounds=[by[0]["value"], upper], certified=False, why_not="not yet")
+    fold_strip(ev, sf, sg, w, by, (0,), tol, upper=math.inf, max_lines=300)
+    audit = theorem_audit(None, by, (0,), tol, upper=upper)
+    row = audit["theorem"]["by_degree"]["0"]
+    assert row["strip_above_reduced"] is False and audit["theorem"]["strip_above_reduced"] is False
+    assert row["line"] is None and audit["theorem_gap"] is False
+    assert by[0]["strip"]["bounds"][0] <= c + 1e-12
+
+
+@pytest.mark.parametrize("form", ["below", "above"])
+def test_cell_bound_brute_force(form):
+    # brute force in the test (issue 13 item 2): the sub-cell moves of specmap.distance.cellbound
+    # bound max_v |F*(p) - kappa(p) - F*(q)| at random lines p of each sub-rectangle, for every corner q
+    # and shift c; for c = 1 (A_c constant, B_c bilinear: extremes at the sub-rectangle's corners) the
+    # bound is exact, equal to the brute-force max over the sub-rectangle's corners. And the cell's
+    # bound is above h at random lines of the cell (a fresh evaluator), on two different meshes.
+    from specmap.distance.cellbound import shifts, sub_bound, sub_moves
+    from specmap.distance.ends import _Corners, _corners, end_a
+    from specmap.strip import star_values
+
+    sf, _ = _rough_pair()
+    V2, T2 = Ellipsoid((1.5, 1.1, 0.7)).mesh(250)
+    sg = Shape("g", "mesh", V2, T2, np.c_[V2[:, 0] + 0.3 * V2[:, 2] ** 2, V2[:, 1] - 0.2 * V2[:, 0]])
+    ev = LineEvaluator(sf, sg, (0, 1))
+    c = _Corners(ev, sf.values, sg.values)
+    cell = (form, 0.3, 0.55, -0.4, 0.1)
+    c.need(_corners(cell))
+    m = 3
+    moves = sub_moves(c, cell, m)
+    rng = np.random.default_rng(11)
+    tv, bv = np.linspace(cell[1], cell[2], m + 1), np.linspace(cell[3], cell[4], m + 1)
+    s = 1.0 if form == "below" else -1.0
+    for i in range(m):
+        for j in range(m):
+            pts = [(tv[i + di], bv[j + dj]) for di in (0, 1) for dj in (0, 1)]
+            pts += list(
+                zip(rng.uniform(tv[i], tv[i + 1], 30), rng.uniform(bv[j], bv[j + 1], 30), strict=True)
+            )
+            for qi, q in enumerate(_corners(cell)):
+                for k, cc in enumerate(shifts(cell)):
+                    worst = 0.0
+                    for t, b in pts:
+                        a = float(end_a(form, t))
+                        kappa = -cc * s * (b - q[2])
+                        worst = max(
+                            worst,
+                            sum(
+                                float(np.abs(star_values(v, a, b) - kappa - c.star[q][idx]).max())
+                                for idx, v in enumerate((sf.values, sg.values))
+                            ),
+                        )
+                    assert worst <= moves[i, j, qi, k] + 1e-12
+                    if cc == 1.0:  # exact: per vertex, the largest of the sub-rectangle's 4 corners
+                        exact = 0.0
+                        for idx, v in enumerate((sf.values, sg.values)):
+                            per = [
+                                np.abs(
+                                    star_values(v, float(end_a(form, t)), b) + s * (b - q[2]) - c.star[q][idx]
+                                )
+                                for t, b in pts[:4]
+                            ]
+                            exact += float(np.maximum.reduce(per).max())
+                        assert moves[i, j, qi, k] == pytest.approx(exact, abs=1e-12)
+    ub = sub_bound(c, cell, m)
+    t, b = rng.uniform(cell[1], cell[2], 25), rng.uniform(cell[3], cell[4], 25)
+    H = LineEvaluator(sf, sg, (0, 1))(end_a(form, t), b)
+    assert np.all(H.max(axis=1) <= ub + 1e-12), (H.max(axis=1), ub)

@@ -132,3 +132,43 @@ def test_uncovered_ends_become_searched_when_the_strip_search_closes():
     assert e["ends"]["method"] == "searched" and e["ends"]["covered"] is False
     assert e["certified"] is False and "900-line budget: bound 0.4 against best 0.3" in e["why_not"]
     assert e["bounds"] == [0.3, 0.4]
+
+
+@pytest.mark.parametrize("form", ["below", "above"])
+def test_cell_moves_against_brute_force_on_a_fine_grid(form):
+    # brute force in the test (the derivations of specmap.distance.ends, DEVELOPERS "Derivations"):
+    # on a 41 x 41 grid of lines of a cell, max_v |F*(p) - F*(q)| (plain), with the unit shift
+    # kappa(p) = -(beta_p - beta_q) (shifted) and with phi_p(s) = max(s - d, 0) from the lower-beta
+    # corner (clipped) never exceed the functions' values; the shifted sup is exact (closed form: a max of a
+    # constant and a bilinear function is extreme at corners), so the grid, which holds the corners,
+    # reaches it; the plain sup is reached within the grid's spacing times the rate 1 + |y + beta|.
+    from specmap.distance.ends import _clipped_move, _plain_move, _shifted_move, end_a
+    from specmap.strip import star_values
+
+    x, y = F.T
+    v = np.c_[x + 0.2 * y**2, y - 0.3 * x]
+    cell = (form, 0.0 if form == "below" else 0.05, 0.4, -0.6, 0.2)
+    _, t0, t1, b0, b1 = cell
+    s = 1.0 if form == "below" else -1.0
+    tg, bg = np.meshgrid(np.linspace(t0, t1, 41), np.linspace(b0, b1, 41))
+    for q in ((form, t0, b0), (form, t1, b1), (form, t0, b1)):
+        fq = star_values(v, float(end_a(form, q[1])), q[2])
+        plain = shifted = 0.0
+        for t, b in zip(tg.ravel(), bg.ravel(), strict=True):
+            fp = star_values(v, float(end_a(form, t)), b)
+            plain = max(plain, float(np.abs(fp - fq).max()))
+            shifted = max(shifted, float(np.abs(fp + s * (b - q[2]) - fq).max()))
+        assert plain <= _plain_move(form, v, cell, fq) + 1e-12
+        assert shifted == pytest.approx(_shifted_move(form, v, cell, q, fq), abs=1e-12)
+        rate = 1.0 + float(np.abs(y).max() + np.abs(x).max() + 1.0)
+        assert _plain_move(form, v, cell, fq) <= plain + rate * max(t1 - t0, b1 - b0) / 40 + 1e-12
+    # the clipped map from the lower-beta corner (t_q = t0 or t1)
+    lower = b0 if form == "below" else b1
+    for tq in (t0, t1):
+        fq = star_values(v, float(end_a(form, tq)), lower)
+        worst = 0.0
+        for t, b in zip(tg.ravel(), bg.ravel(), strict=True):
+            d = s * (b - lower)  # beta_p - beta_q >= 0
+            fp = star_values(v, float(end_a(form, t)), b)
+            worst = max(worst, float(np.abs(fp - np.maximum(fq - d, 0.0)).max()))
+        assert worst <= _clipped_move(form, v, cell, tq, fq) + 1e-12

@@ -47,7 +47,7 @@ def theorem_audit(
     Returns
     -------
     dict
-        ``theorem_gap`` (any flag; None when (b) did not run), ``gap`` (largest
+        ``theorem_gap`` (any flag; None when neither (b) nor (c) ran), ``gap`` (largest
         D^dense_k - R_k), ``degree``, ``line`` (where the worst flag, else the
         largest gap, happens), and ``theorem`` with ``reduced_above_upper``,
         ``dense_above_reduced`` and ``by_degree[k]`` (the two differences, flags, lines).
@@ -118,7 +118,7 @@ def theorem_audit(
     if gaps:
         gap, k, at = max(gaps, key=lambda g: g[0])
         out.update(gap=float(gap), degree=k, line=_line(at))
-    if dense is not None or flags:
+    if dense is not None or strip_rows or flags:  # a check ran: (b) or (c)
         out["theorem_gap"] = bool(flags)
     if flags:
         size, what, k, at = max(flags, key=lambda f: f[0])

@@ -51,10 +51,22 @@ from typing import Any
 
 import numpy as np
 
-from specmap.distance.ends import Cell, _cell_bound, _Corners, _corners, _plain_move, _shifted_move, end_a
+from specmap.distance.cellbound import SUB, SUB_FINE, split_moves, sub_bound
+from specmap.distance.ends import (
+    Cell,
+    _cell_bound,
+    _Corners,
+    _corners,
+    _one_branch,
+    _plain_move,
+    _shifted_move,
+    end_a,
+)
+from specmap.distance.refine import pattern_search
 from specmap.strip import Window
 
 Point = tuple[float, float]
+Key = tuple[str, float, float]
 Segment = tuple[str, float, float]
 
 T_NODES = 5
@@ -64,6 +76,10 @@ B_NODES = 17
 CLIPPED_BELOW = 0.1
 """Cells with t0 below this also use the clipped map of the cell bound (exact along the limit line)."""
 MAX_LINES = 4000
+POLISH_STEP = 1.0 / 32
+"""First step of the polish, as a fraction of the a-range (1/2) and of the b-range."""
+POLISH_A = (1e-6, 1.0 - 1e-6)
+"""The a-range the polish may move in (the limit lines themselves are corner lines)."""
 """Default line budget of one search (corner lines, memo hits included)."""
 
 
@@ -121,22 +137,6 @@ def strip_segments(a_lo: float, a_hi: float) -> list[Segment]:
     return [s for s in out if s[2] > s[1]]
 
 
-def _direction_moves(c: _Corners, cell: Cell) -> tuple[float, float]:
-    """(move in t alone, move in b alone) of a cell: the exact sup norms of :func:`_cell_bound`'s maps.
-
-    From the corner (t0, b0), over the edge [t0, t1] x {b0} and over {t0} x [b0, b1], summed over the
-    two maps (the smaller of the plain and the shifted move): the larger one is the direction to split.
-    """
-    form, t0, t1, b0, b1 = cell
-    q = (form, t0, b0)
-    tm = bm = 0.0
-    for v, fq in zip((c.vf, c.vg), c.star[q], strict=True):
-        tm += _plain_move(form, v, (form, t0, t1, b0, b0), fq)
-        edge = (form, t0, t0, b0, b1)
-        bm += min(_plain_move(form, v, edge, fq), _shifted_move(form, v, edge, q, fq))
-    return tm, bm
-
-
 def _quadrant_bound(c: _Corners, cell: Cell) -> np.ndarray:
     """Per degree: max over the four quarters of the cell of h(q) + the exact move from q, q its corner.
 
@@ -161,6 +161,27 @@ def _quadrant_bound(c: _Corners, cell: Cell) -> np.ndarray:
     return out
 
 
+def _bound(c: _Corners, cell: Cell, sub: int) -> np.ndarray:
+    """Per degree: the cell's bound, the smallest of the closed forms, the clipped map and the sub-cells.
+
+    A cell where one branch of F* rules every vertex of both maps has h in closed form
+    (:func:`~specmap.distance.ends._one_branch`); near the limit line (t0 below
+    :data:`CLIPPED_BELOW`) the corner and clipped bounds of :func:`~specmap.distance.ends._cell_bound`
+    also enter; every other cell takes :func:`~specmap.distance.cellbound.sub_bound` (``sub`` 0: the
+    quarters of :func:`_quadrant_bound` and the corner bound, the bound before issue 13 item 2).
+    """
+    if sub <= 0:
+        ub, _, _ = _cell_bound(c, cell, clipped=cell[1] < CLIPPED_BELOW, moves=False)
+        return np.minimum(ub, _quadrant_bound(c, cell))
+    if cell[1] < CLIPPED_BELOW:
+        ub, _, _ = _cell_bound(c, cell, clipped=True, moves=False)
+        return np.minimum(ub, sub_bound(c, cell, sub))
+    if _one_branch(cell[0], (c.vf, c.vg), cell) is not None:
+        ub, _, _ = _cell_bound(c, cell, clipped=False, moves=False)
+        return ub
+    return sub_bound(c, cell, sub)
+
+
 def box_search(
     ev,
     values_f: np.ndarray,
@@ -175,6 +196,9 @@ def box_search(
     t_nodes: int = T_NODES,
     b_nodes: int = B_NODES,
     one_mesh: bool = False,
+    sub: int = SUB,
+    sub_fine: int = SUB_FINE,
+    polish: bool = True,
 ) -> BoxSearch:
     """Certified branch and bound of sup h_k over the rectangles ``segments`` x ``b_range``.
 
@@ -204,6 +228,15 @@ def box_search(
         by sup over the cell of ||F*_f - F*_g||_inf <= max(X, t1 Y) in the form "below" (max(t1 X, Y)
         "above"), X = max |f1 - g1|, Y = max |f2 - g2| over the vertices, since
         |max(u, v) - max(u', v')| <= max(|u - u'|, |v - v'|) (stability [CDFFL13], no diagram).
+    sub : int
+        Sub-rectangles per side of the cell bound (:func:`~specmap.distance.cellbound.sub_bound`);
+        0 is the bound before issue 13 item 2 (quarters from their own corner, plain or unit shift).
+    sub_fine : int
+        Sub-rectangles per side tried on a cell that ``sub`` leaves open (0: none).
+    polish : bool
+        After the initial grid, a compass search (:func:`~specmap.distance.refine.pattern_search`)
+        from the best corner of each degree raises best_k, so the goals start near the maximum and
+        fewer cells need splitting (issue 13 item 2); its lines count against ``max_lines``.
 
     Returns
     -------
@@ -241,6 +274,30 @@ def box_search(
         return Hm[idx, np.arange(n_deg)] if len(keys) else np.full(n_deg, -math.inf), [keys[i] for i in idx]
 
     best, _ = best_now()
+    polished: dict[int, tuple[float, Point]] = {}
+    polish_lines = 0
+
+    def polish_from(key: Key) -> None:
+        """Raise best_k by a compass search from a corner (values of h: lower bounds; goals grow)."""
+        nonlocal best, polish_lines
+        n_before = getattr(ev, "lines", 0)
+        start = (float(end_a(key[0], key[1])), float(key[2]))
+        step = (POLISH_STEP * 0.5, POLISH_STEP * (b_range[1] - b_range[0]))
+        for j in np.flatnonzero(active):
+            if start[0] <= 0.0 or start[0] >= 1.0:
+                continue
+            v, at = pattern_search(
+                ev, int(j), start, step, Window(POLISH_A, b_range), levels=4, max_batches=12
+            )
+            if v > best[j]:
+                best[j] = v
+                polished[int(j)] = (v, at)
+        polish_lines += getattr(ev, "lines", 0) - n_before
+
+    if polish and len(c.h):
+        _, keys0 = best_now()
+        for key in dict.fromkeys(keys0[j] for j in np.flatnonzero(active)):
+            polish_from(key)
 
     def goal() -> np.ndarray:
         g = np.maximum(floor, best) + tolerance
@@ -257,22 +314,23 @@ def box_search(
 
     def push(cell: Cell) -> None:
         nonlocal count
-        ub, _, _ = _cell_bound(c, cell, clipped=cell[1] < CLIPPED_BELOW, moves=False)
+        ub = _bound(c, cell, sub)
         ub = np.minimum(ub, sup_norm(cell))
-        if excess(ub) > 0:
-            ub = np.minimum(ub, _quadrant_bound(c, cell))
         ex = excess(ub)
+        if ex > 0 and sub_fine > sub > 0:  # finer sub-rectangles only for cells that stay open
+            ub = np.minimum(ub, sub_bound(c, cell, sub_fine))
+            ex = excess(ub)
         if ex <= 0:
             closed.append(ub)
             return
-        tm, bm = _direction_moves(c, cell)
+        tm, bm = split_moves(c, cell)
         heapq.heappush(heap, (-ex, count, cell, ub, tm, bm))
         count += 1
 
     for cell in cells0:
         push(cell)
     splits = 0
-    while heap and len(c.h) + 2 <= max_lines and splits < 4 * max_lines:
+    while heap and len(c.h) + polish_lines + 2 <= max_lines and splits < 4 * max_lines:
         neg, _, cell, ub, tm, bm = heapq.heappop(heap)
         ex = excess(ub)  # the goals grew since the push: re-rank lazily
         if ex <= 0:
@@ -299,15 +357,19 @@ def box_search(
             push(h)
     ubs = closed + [e[3] for e in heap]
     bound = np.minimum(np.max(np.array(ubs), axis=0), upper) if ubs else np.full(n_deg, -math.inf)
-    best, keys = best_now()
+    corner_best, keys = best_now()
     at = [(float(end_a(k[0], k[1])), float(k[2])) for k in keys]
+    for j, (v, p) in polished.items():
+        if v > corner_best[j]:
+            at[j] = p
+    best = np.maximum(best, corner_best)
     g = np.maximum(floor, best) + tolerance * (1 + 1e-9) + 1e-15
     return BoxSearch(
         bound=[float(x) for x in bound],
         best=[float(x) for x in best],
         at=at,
         closed=[bool(x) for x in (bound <= g) | ~active],
-        lines=len(c.h),
+        lines=len(c.h) + polish_lines,
         new_lines=getattr(ev, "lines", 0) - n0,
         cells=len(ubs),
         seconds=time.perf_counter() - t_start,

@@ -375,6 +375,10 @@ def end_strip_bound(
     def push(cell: Cell) -> None:
         nonlocal count
         ub, tm, bm = _cell_bound(c, cell)
+        if not np.all(ub <= goal):  # the sub-cell bound with the shift c* = (1 - t) / 2 (issue 13 item 2)
+            from specmap.distance.cellbound import sub_bound
+
+            ub = np.minimum(ub, sub_bound(c, cell))
         # excess over the goal, counted only for degrees still coverable (no corner above the goal)
         corner = np.maximum.reduce([c.h[k] for k in _corners(cell)])
         live = (corner <= goal) & np.isfinite(goal)
