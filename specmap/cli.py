@@ -289,14 +289,14 @@ def special_line(js: dict, path: Path | str) -> str:
 def remap_note(out: Path, method: str) -> str | None:
     """Why ``distance`` maps the special set again although ``special.json`` exists (None if it does not).
 
-    ``special.json`` and ``special.geojson`` keep the components (their union outlines and tie
-    lists), not the curve of each tie that the reduced search walks, so the search maps it again.
+    Called when the written map cannot be read back (``StudyRun.reads_stored_map``): a folder
+    mapped before ``special_pieces.json`` existed, or one whose map has other settings or inputs.
     """
     if method not in ("reduced", "both") or not (Path(out) / "special.json").is_file():
         return None
     return (
-        "specmap: note: the reduced search maps the special set again (special.json keeps the "
-        "components, not the curve of each tie that the search walks)"
+        "specmap: note: the reduced search maps the special set again (the map in this folder "
+        "has other inputs or settings, or no special_pieces.json: run specmap map to refresh it)"
     )
 
 
@@ -377,7 +377,8 @@ def run(argv: list[str] | None = None) -> int:
             )
         from specmap.report.summary import why_sentences
 
-        note = remap_note(sr.out, sr.distance_settings(method=args.method).method)
+        settings = sr.distance_settings(method=args.method)
+        note = None if sr.reads_stored_map(settings) else remap_note(sr.out, settings.method)
         if note and show:
             print(note, file=sys.stderr)
         js = sr.write_distance(method=args.method, degrees=args.degrees, jobs=args.jobs)

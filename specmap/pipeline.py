@@ -271,6 +271,61 @@ class StudyRun:
     #: workers of a tiled map: local processes, or a Dask scheduler address (``specmap map --jobs/--cluster``)
     map_jobs: int = 1
     map_cluster: str | None = None
+    #: atlases this run computed (the reduced search that reads a stored map adds none)
+    maps_made: int = 0
+
+    def reads_stored_map(self, settings: DistanceSettings) -> bool:
+        """Whether the distance of ``settings`` reads the map written in ``out`` (loaded here, once).
+
+        False for the dense method (no map) and when no stored map fits (:meth:`stored_atlas`):
+        then the reduced search maps again (``cli.remap_note`` says why).
+        """
+        return settings.method in ("both", "reduced") and self._read_stored(self.map_settings())
+
+    def _read_stored(self, ms: MapSettings) -> bool:
+        """Put the stored map of ``ms`` in the atlas cache if it fits; True when the cache holds it."""
+        cache = self.__dict__.setdefault("_atlases", {})
+        done = self.__dict__.setdefault("_stored_read", {})
+        if ms not in done:
+            stored = self.stored_atlas(ms) if ms not in cache else None
+            done[ms] = stored is not None
+            if stored is not None:
+                if self.show_progress:
+                    print(
+                        f"specmap: reading the special set of {self.out / 'special.json'} (same inputs, "
+                        "window and map settings)",
+                        file=sys.stderr,
+                    )
+                cache[ms] = stored
+        return done[ms]
+
+    def stored_atlas(self, ms: MapSettings):
+        """The atlas ``specmap map`` wrote in ``out``, when its stamp is this study's for ``ms``; else None.
+
+        ``special.json``, ``special.geojson`` and ``special_pieces.json`` (the pieces of every
+        tie, which the reduced search walks) must all exist and carry the fingerprint of the
+        inputs, the window and the map settings ``ms`` (memory and tiles excluded: they do not
+        change the map); a missing, torn or stale file gives None (the caller maps again).
+        """
+        from shapely.errors import GEOSException
+
+        from specmap.special.atlas import atlas_from_files
+
+        paths = [self.out / n for n in ("special.json", "special.geojson", "special_pieces.json")]
+        if not all(p.is_file() for p in paths):
+            return None
+        want = self.stamp(map_settings=ms)
+        try:
+            docs = [read_json(p) for p in paths]
+        except (OSError, ValueError):
+            return None
+        keys = ("format_version", "fingerprint", "fingerprint_parts")
+        if any(not isinstance(d, dict) or any(d.get(k) != want[k] for k in keys) for d in docs):
+            return None
+        try:
+            return atlas_from_files(*docs)
+        except (KeyError, TypeError, ValueError, GEOSException):
+            return None
 
     def atlas(
         self,
@@ -280,16 +335,21 @@ class StudyRun:
         method: str | None = None,
         memory: float | None = None,
         tiles: tuple[int, int] | str | None = None,
+        reuse: bool = False,
     ):
         """The special-set atlas of the study's map settings (overrides given), computed once per settings.
 
         The plan (:func:`specmap.special.preflight.plan_atlas`) decides one piece or tiles
         (:func:`specmap.special.tiles.tiled_special_set`, tile folder ``out/tiles``); it is kept
-        in ``stats["plan"]``.
+        in ``stats["plan"]``. ``reuse``: read the map written in ``out`` when it was made from
+        the same inputs, window and map settings (:meth:`stored_atlas`) instead of mapping again.
         """
         ms = self.map_settings(pairs=pairs, resolution=resolution, method=method, memory=memory, tiles=tiles)
         cache = self.__dict__.setdefault("_atlases", {})
+        if ms not in cache and reuse:
+            self._read_stored(ms)
         if ms not in cache:
+            self.maps_made += 1
             from specmap.special import special_set
             from specmap.special.preflight import plan_atlas
             from specmap.special.tiles import tiled_special_set
@@ -374,7 +434,7 @@ class StudyRun:
         if "_focused" in self.__dict__:  # the plan refused the whole map already
             return self.__dict__["_focused"]
         try:
-            return self.atlas()
+            return self.atlas(reuse=True)
         except AtlasTooLargeError:
             from specmap.distance.focused import focused_source
 
@@ -440,10 +500,18 @@ class StudyRun:
 
     def write_map(self, **kw: Any) -> dict[str, Any]:
         from specmap.report.figures import save_png, special_figure
+        from specmap.special.atlas import PIECES_FORMAT, iter_piece_records
 
         atlas = self.atlas(**kw)
         head = self.stamp(map_settings=self.map_settings(**kw))
         js = {**atlas.to_json(), **head}
+        # the pieces of every tie (what the reduced search walks), so that distance reads the map back
+        write_json_streamed(
+            self.out / "special_pieces.json",
+            {"format": PIECES_FORMAT, "pieces": None, **head},
+            "pieces",
+            iter_piece_records(atlas),
+        )
         write_json(self.out / "special.json", js)
         # streamed feature by feature: the GeoJSON text is never held whole in memory (issue 14 item 3);
         # the stamp is a foreign member of the FeatureCollection (RFC 7946 section 6.1)

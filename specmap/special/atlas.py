@@ -189,3 +189,76 @@ def atlas_from_json(d: dict[str, Any]) -> AtlasSummary:
         dict(d["counts"]),
         dict(d.get("stats", {})),
     )
+
+
+PIECES_FORMAT = "specmap-pieces/1"
+"""Layout of ``special_pieces.json``: the tie pieces of a map, one record per piece, in order."""
+
+
+def piece_record(piece: TiePiece) -> dict[str, Any]:
+    """One piece as a JSON record: its tie, kind and geometry as hex WKB (exact coordinates)."""
+    import shapely
+
+    return {"tie": piece.tie.to_json(), "kind": piece.kind, "wkb": shapely.to_wkb(piece.geometry, hex=True)}
+
+
+def iter_piece_records(atlas: Atlas) -> Iterator[dict[str, Any]]:
+    """The records of ``atlas.pieces`` in order, made one at a time (for streamed writing)."""
+    for p in atlas.pieces:
+        yield piece_record(p)
+
+
+def atlas_from_files(special: dict[str, Any], geojson: dict[str, Any], pieces: dict[str, Any]) -> Atlas:
+    """The :class:`Atlas` written as ``special.json``, ``special.geojson`` and ``special_pieces.json``.
+
+    The pieces come back bit for bit (hex WKB), in their order (the reduced search names a
+    piece by its index); the components from the GeoJSON features (their summary and
+    geometry; Python's JSON floats round-trip exactly). Inverse of :meth:`Atlas.to_json`,
+    :meth:`Atlas.iter_features` and :func:`iter_piece_records`.
+
+    Raises
+    ------
+    ValueError
+        The files do not fit together (piece layout, feature count, a missing key).
+    """
+    import shapely
+    from shapely.geometry import shape
+
+    if pieces.get("format") != PIECES_FORMAT:
+        raise ValueError(f"pieces format {pieces.get('format')!r}, expected {PIECES_FORMAT!r}")
+    records = pieces["pieces"]
+    geoms = shapely.from_wkb([r["wkb"] for r in records]) if records else []
+    tp = tuple(
+        TiePiece(tie_from_json(r["tie"]), str(r["kind"]), g) for r, g in zip(records, geoms, strict=True)
+    )
+    summary = atlas_from_json(special)
+    feats = geojson["features"]
+    if len(feats) != len(summary.components):
+        raise ValueError(f"{len(feats)} GeoJSON features for {len(summary.components)} components")
+    for c, f in zip(summary.components, feats, strict=True):
+        if f.get("id") != c.id:
+            raise ValueError(f"GeoJSON feature {f.get('id')!r} where component {c.id!r} was written")
+    comps = tuple(
+        Component(
+            c.id,
+            c.kind,
+            c.area,
+            c.length,
+            (float(c.bbox[0]), float(c.bbox[1]), float(c.bbox[2]), float(c.bbox[3])),
+            c.ties,
+            shape(f["geometry"]) if f.get("geometry") is not None else None,
+            tuple(dict(r) for r in (f.get("properties") or {}).get("reasons", ())),
+        )
+        for c, f in zip(summary.components, feats, strict=True)
+    )
+    n_a, n_b = summary.resolution
+    return Atlas(
+        summary.window,
+        summary.tolerance,
+        summary.pairs,
+        summary.method,
+        (int(n_a), int(n_b)),
+        tp,
+        comps,
+        dict(summary.stats),
+    )
