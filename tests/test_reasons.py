@@ -69,3 +69,33 @@ def test_reasons_are_in_the_json():
     atlas = special_set(_verticals("f", [-1.0, 1.0]), _verticals("g", [-2.0, 2.0]), WINDOW, resolution=31)
     comp = next(c for c in atlas.to_json()["components"] if c["kind"] == "patch")
     assert {"kind", "contours", "component", "breaks_at"} <= set(comp["reasons"][0])
+
+
+def _arc_and_vertical(prefix: str, scale=(1.0, 1.0), shift=(0.0, 0.0), x_vertical: float = 1.5) -> Grid:
+    import numpy as np
+
+    th = np.linspace(0.0, np.pi / 2, 200)
+    arc = np.c_[-np.cos(th), -0.8 * np.sin(th)] * scale + shift  # non-increasing: x grows, y falls
+    return Grid(
+        (Contour(f"{prefix}:p0", "proper", arc), Contour(f"{prefix}:v0", "vertical", [x_vertical, -50.0]))
+    )
+
+
+def test_coincident_proper_contours_give_an_unexplained_patch():
+    # closed form, derived here: f and g with the same proper arc and the same vertical half-line have
+    # c_{f:p0} - c_{f:v0} = c_{g:p0} - c_{g:v0} on every line meeting them (the same points), so the
+    # equal tie holds on an open set: a patch. It involves a proper contour, for which reasons.py claims
+    # no closed form: kind "unexplained" (and no reason of another kind is invented for it).
+    atlas = special_set(_arc_and_vertical("f"), _arc_and_vertical("g"), WINDOW, resolution=31)
+    rs = _reasons(atlas)
+    assert atlas.counts()["patch"] >= 1 and rs
+    assert all(r["kind"] == "unexplained" for r in rs)
+    assert {"f:p0", "f:v0", "g:p0", "g:v0"} == set(rs[0]["contours"])
+    # a generic change of g's arc and half-line (scaled, moved): the identity and the patch are gone
+    moved = special_set(
+        _arc_and_vertical("f"),
+        _arc_and_vertical("g", scale=(1.0, 1.3), shift=(0.25, 0.1), x_vertical=2.1),
+        WINDOW,
+        resolution=31,
+    )
+    assert moved.counts()["patch"] == 0 and _reasons(moved) == []
