@@ -507,3 +507,48 @@ def test_cell_bound_brute_force(form):
     t, b = rng.uniform(cell[1], cell[2], 25), rng.uniform(cell[3], cell[4], 25)
     H = LineEvaluator(sf, sg, (0, 1))(end_a(form, t), b)
     assert np.all(H.max(axis=1) <= ub + 1e-12), (H.max(axis=1), ub)
+
+
+class _BentMap:
+    """f = (x + e z^2 + 0.3 y, y + 0.5 z + e x z) on an ellipsoid, its Jacobian derived by hand."""
+
+    def __init__(self, e: float) -> None:
+        self.e = e
+
+    def values(self, P):
+        x, y, z = P.T
+        return np.c_[x + self.e * z**2 + 0.3 * y, y + 0.5 * z + self.e * x * z]
+
+    def jacobian(self, P):
+        x, y, z = P.T
+        J = np.zeros((len(P), 2, 3))
+        J[:, 0, 0], J[:, 0, 1], J[:, 0, 2] = 1.0, 0.3, 2 * self.e * z
+        J[:, 1, 0], J[:, 1, 1], J[:, 1, 2] = self.e * z, 1.0, 0.5 + self.e * x
+        return J
+
+
+@pytest.mark.parametrize("drop", ["v0", "h0", "p0"])
+def test_position_audit_green_on_a_smooth_pair_red_without_a_contour(drop):
+    # CEF19 position theorem for a smooth normal map: with the smooth route's grid (Newton-refined
+    # Jacobi set, its own tolerance) every finite coordinate of the PL slices is a push coordinate up
+    # to the mesh term: green, all 12 lines. The same grids with one contour removed from both (a
+    # half-line or a proper arc) leave coordinates unexplained: red, with the worst ones listed.
+    from specmap.distance.audit import position_audit
+    from specmap.grids.model import Grid
+    from specmap.grids.smooth import smooth_grid
+
+    E = Ellipsoid((1.6, 1.0, 0.8))
+    mf, mg = _BentMap(0.3), _BentMap(0.15)
+    gf, gg = smooth_grid(E, mf, label="f", resolution=1500), smooth_grid(E, mg, label="g", resolution=1500)
+    V, T = E.mesh(800)
+    sf, sg = Shape("f", "mesh", V, T, mf.values(V)), Shape("g", "mesh", V, T, mg.values(V))
+    w = default_window(sf.value_bounds(), sg.value_bounds())
+    ok = position_audit(sf, sg, (gf, gg), w, tolerance=1e-3, lines=12)
+    assert ok["fraction_explained"] == 1.0 and ok["worst"] == [], ok
+    broken = tuple(
+        Grid(tuple(c for c in g.contours if c.id != f"{p}:{drop}"), tolerance=g.tolerance)
+        for g, p in ((gf, "f"), (gg, "g"))
+    )
+    assert all(len(b.contours) == len(g.contours) - 1 for b, g in zip(broken, (gf, gg), strict=True))
+    red = position_audit(sf, sg, broken, w, tolerance=1e-3, lines=12)
+    assert red["fraction_explained"] < 0.95 and red["worst"] and red["max_excess"] > 0
