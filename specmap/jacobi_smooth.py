@@ -26,7 +26,7 @@ triangles), which is all the stability theorem [CDFFL13]_ needs:
 So ||f - f'||_inf <= 4 tau by construction, and the measured value is what the record keeps.
 :func:`auto_joint` scans tau upward on a geometric grid from ``cap / 256`` to ``cap / 4`` (so the
 change stays within ``cap``), stops at the first tau whose pair meets the contour budget, and
-refines between that tau and the one before; it returns the candidate with the smallest measured
+refines between that tau and the one before (below the grid by halving when its first tau meets it); it returns the candidate with the smallest measured
 change that meets the budget, or, when none does, the one with the fewest contours and says so.
 The count is not monotone in tau (a larger tube can make more folds), hence the scan.
 
@@ -301,7 +301,8 @@ def auto_joint(
     steps : int
         Scanned taus cap / 4 * 2^(-k / 2), k = steps - 1 .. 0 (increasing).
     refine : int
-        Geometric bisection steps between the first tau that meets the budget and the one before.
+        Geometric bisection steps between the first tau that meets the budget and the one before
+        (or, when the smallest scanned tau meets it, halvings while the budget is still met).
 
     Returns
     -------
@@ -339,6 +340,12 @@ def auto_joint(
                 hi = mid
             else:
                 lo = mid
+    elif hit is not None:  # the smallest scanned tau already meets the budget: halve while it does
+        tau = hit
+        for _ in range(refine):
+            tau /= 2.0
+            if at(tau)[1] > budget:
+                break
     ok = [x for x in found if x[1] <= budget]
     if ok:
         sup, c, pair = min(ok, key=lambda x: (x[0], x[1]))
