@@ -552,3 +552,37 @@ def test_position_audit_green_on_a_smooth_pair_red_without_a_contour(drop):
     assert all(len(b.contours) == len(g.contours) - 1 for b, g in zip(broken, (gf, gg), strict=True))
     red = position_audit(sf, sg, broken, w, tolerance=1e-3, lines=12)
     assert red["fraction_explained"] < 0.95 and red["worst"] and red["max_excess"] > 0
+
+
+def test_top_degree_closed_form_and_its_cell_bound():
+    # closed form, derived here (specmap.distance.cellbound.closed_connected): on a closed connected
+    # orientable surface Dgm_2 of a lower-star filtration is the one point (max F, inf), so
+    # h_2(p) = |max F*_f(p) - max F*_g(p)| on every line; checked on random lines with the evaluator
+    # (gudhi slices). The top-vertex interval bound of a cell is above h_2 at random lines of the
+    # cell (brute force), and an open mesh is not taken for a closed one.
+    from specmap.distance.branch import top_degree_index
+    from specmap.distance.cellbound import closed_connected, sub_bound
+    from specmap.distance.ends import _Corners, _corners, end_a
+    from specmap.strip import star_values
+
+    sf, sg = _rough_pair()
+    assert closed_connected(sf.triangles, len(sf.values))
+    assert top_degree_index(sf, sg, (0, 1, 2)) == 2 and top_degree_index(sf, sg, (0, 1)) is None
+    assert not closed_connected(sf.triangles[1:], len(sf.values))  # one triangle removed: open
+    ev = LineEvaluator(sf, sg, (2,))
+    rng = np.random.default_rng(4)
+    a, b = rng.uniform(0.01, 0.99, 12), rng.uniform(-1.5, 1.5, 12)
+    H = ev(a, b)[0]
+    for x, y, h in zip(a, b, H, strict=True):
+        d = float(star_values(sf.values, x, y).max() - star_values(sg.values, x, y).max())
+        assert h == pytest.approx(abs(d), abs=1e-12)
+    ev3 = LineEvaluator(sf, sg, (0, 1, 2))
+    for form in ("below", "above"):
+        cell = (form, 0.2, 0.6, -0.8, 0.4)
+        c = _Corners(ev3, sf.values, sg.values)
+        c.need(_corners(cell))
+        ub = sub_bound(c, cell, 2, top=2)
+        assert ub[2] <= sub_bound(c, cell, 2)[2] + 1e-15
+        t, bb = rng.uniform(0.2, 0.6, 20), rng.uniform(-0.8, 0.4, 20)
+        Hc = LineEvaluator(sf, sg, (0, 1, 2))(end_a(form, t), bb)
+        assert np.all(Hc.max(axis=1) <= ub + 1e-12), (Hc.max(axis=1), ub)

@@ -51,7 +51,7 @@ from typing import Any
 
 import numpy as np
 
-from specmap.distance.cellbound import SUB, SUB_FINE, split_moves, sub_bound
+from specmap.distance.cellbound import SUB, SUB_FINE, closed_connected, split_moves, sub_bound
 from specmap.distance.ends import (
     Cell,
     _cell_bound,
@@ -161,7 +161,7 @@ def _quadrant_bound(c: _Corners, cell: Cell) -> np.ndarray:
     return out
 
 
-def _bound(c: _Corners, cell: Cell, sub: int) -> np.ndarray:
+def _bound(c: _Corners, cell: Cell, sub: int, top: int | None = None) -> np.ndarray:
     """Per degree: the cell's bound, the smallest of the closed forms, the clipped map and the sub-cells.
 
     A cell where one branch of F* rules every vertex of both maps has h in closed form
@@ -175,11 +175,11 @@ def _bound(c: _Corners, cell: Cell, sub: int) -> np.ndarray:
         return np.minimum(ub, _quadrant_bound(c, cell))
     if cell[1] < CLIPPED_BELOW:
         ub, _, _ = _cell_bound(c, cell, clipped=True, moves=False)
-        return np.minimum(ub, sub_bound(c, cell, sub))
+        return np.minimum(ub, sub_bound(c, cell, sub, top))
     if _one_branch(cell[0], (c.vf, c.vg), cell) is not None:
         ub, _, _ = _cell_bound(c, cell, clipped=False, moves=False)
         return ub
-    return sub_bound(c, cell, sub)
+    return sub_bound(c, cell, sub, top)
 
 
 def box_search(
@@ -199,6 +199,7 @@ def box_search(
     sub: int = SUB,
     sub_fine: int = SUB_FINE,
     polish: bool = True,
+    top_degree: int | None = None,
 ) -> BoxSearch:
     """Certified branch and bound of sup h_k over the rectangles ``segments`` x ``b_range``.
 
@@ -237,6 +238,11 @@ def box_search(
         After the initial grid, a compass search (:func:`~specmap.distance.refine.pattern_search`)
         from the best corner of each degree raises best_k, so the goals start near the maximum and
         fewer cells need splitting (issue 13 item 2); its lines count against ``max_lines``.
+
+    top_degree : int, optional
+        Degree index of degree 2 when both meshes are closed connected surfaces
+        (:func:`~specmap.distance.cellbound.closed_connected`): its cells are also bounded by the
+        top-vertex interval of :func:`~specmap.distance.cellbound.sub_parts`.
 
     Returns
     -------
@@ -314,11 +320,11 @@ def box_search(
 
     def push(cell: Cell) -> None:
         nonlocal count
-        ub = _bound(c, cell, sub)
+        ub = _bound(c, cell, sub, top_degree)
         ub = np.minimum(ub, sup_norm(cell))
         ex = excess(ub)
         if ex > 0 and sub_fine > sub > 0:  # finer sub-rectangles only for cells that stay open
-            ub = np.minimum(ub, sub_bound(c, cell, sub_fine))
+            ub = np.minimum(ub, sub_bound(c, cell, sub_fine, top_degree))
             ex = excess(ub)
         if ex <= 0:
             closed.append(ub)
@@ -418,7 +424,8 @@ def apply_strip(entry: dict[str, Any], strip: dict[str, Any], tolerance: float, 
     elif not entry.get("certified"):
         why = (
             f"the branch and bound over the whole strip stopped at its {strip['lines']}-line budget: "
-            f"bound {s_up:.4g} against best {s_lo:.4g}"
+            f"bound {s_up:.4g} against best {s_lo:.4g}; raise [distance] strip_budget (lines per dense node) "
+            f"to narrow it"
         )
         entry["why_not"] = why if not entry.get("why_not") else f"{entry['why_not']}; {why}"
 
@@ -432,6 +439,16 @@ def _one_mesh(shape_f, shape_g) -> bool:
         and np.shape(shape_f.values) == np.shape(shape_g.values)
         and np.array_equal(tf, tg)
     )
+
+
+def top_degree_index(shape_f, shape_g, degrees: Sequence[int]) -> int | None:
+    """The index of degree 2 in ``degrees`` when both meshes are closed connected surfaces, else None."""
+    if 2 not in degrees:
+        return None
+    for s in (shape_f, shape_g):
+        if not closed_connected(getattr(s, "triangles", None), len(s.values)):
+            return None
+    return list(degrees).index(2)
 
 
 def fold_strip(
@@ -470,6 +487,7 @@ def fold_strip(
         max_lines=max_lines,
         upper=upper,
         one_mesh=_one_mesh(shape_f, shape_g),
+        top_degree=top_degree_index(shape_f, shape_g, degrees),
     )
     for j in todo:
         k = degrees[j]

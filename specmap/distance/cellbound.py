@@ -34,6 +34,12 @@ corners of C and all shifts (the smallest), and the cell's bound is the largest 
 
     sup_C h_k <= max_S min_{q, c} [ h_k(q) + M_f(S, q, c) + M_g(S, q, c) ].
 
+*Top degree.* On two closed connected surfaces h_2(p) = |M_f(p) - M_g(p)| (or 0), M = max_v F*(p)(v)
+(:func:`closed_connected`). A common shift cancels in M_f - M_g, so over S,
+|M_f - M_g| <= max(UM_f - LM_g, UM_g - LM_f) with UM = max_v sup_S (F* - kappa) (exact) and
+LM = max_v inf_S (F* - kappa) <= inf_S max_v (F* - kappa): only the top vertices count, not the whole
+mesh, and no corner is needed.
+
 No new line is evaluated. The quarters (m = 2) from their own corner are the bound used before;
 sub-rectangles near a corner take that corner's h, the middle ones the smallest, so a cell whose
 corners differ in h is bounded by less than its worst corner plus half its move. Checked against
@@ -69,12 +75,19 @@ def shifts(cell: Cell) -> tuple[float, ...]:
     return (0.0, 1.0, 0.5 * (1.0 - 0.5 * (cell[1] + cell[2])))
 
 
-def sub_moves(c: _Corners, cell: Cell, m: int = SUB) -> np.ndarray:
-    """Upper bounds of the moves, summed over the two maps: shape (m, m, 4 corners, shifts).
+def sub_parts(c: _Corners, cell: Cell, m: int = SUB) -> tuple[np.ndarray, np.ndarray]:
+    """The moves of :func:`sub_moves` and, per sub-rectangle, the top-degree bound (module text).
 
-    Entry [i, j, q, s] bounds sup over the sub-rectangle (t-index i, b-index j) of
-    sum over maps of max_v |F*(p)(v) - kappa_s(p) - F*(q)(v)| (module text), q in the order of
-    :func:`~specmap.distance.ends._corners` and kappa_s from :func:`shifts`.
+    Returns
+    -------
+    moves : ndarray (m, m, 4, shifts)
+        Entry [i, j, q, s] bounds sup over the sub-rectangle (t-index i, b-index j) of
+        sum over maps of max_v |F*(p)(v) - kappa_s(p) - F*(q)(v)|, q in the order of
+        :func:`~specmap.distance.ends._corners` and kappa_s from :func:`shifts`.
+    top : ndarray (m, m)
+        sup over the sub-rectangle of |max_v F*_f(p) - max_v F*_g(p)|, bounded by
+        min over shifts of max(UM_f - LM_g, UM_g - LM_f), UM = max_v sup (F* - kappa),
+        LM = max_v inf (F* - kappa) (a common shift cancels in the difference).
     """
     form, t0, t1, b0, b1 = cell
     corners = _corners(cell)
@@ -82,6 +95,8 @@ def sub_moves(c: _Corners, cell: Cell, m: int = SUB) -> np.ndarray:
     bv = np.linspace(b0, b1, m + 1)
     cs = shifts(cell)
     out = np.zeros((m, m, 4, len(cs)))
+    UM = np.zeros((2, len(cs), m, m))
+    LM = np.zeros((2, len(cs), m, m))
     for idx, v in enumerate((c.vf, c.vg)):
         x, y, s = _form_parts(form, v)
         beta = s * bv  # (m + 1,)
@@ -95,22 +110,62 @@ def sub_moves(c: _Corners, cell: Cell, m: int = SUB) -> np.ndarray:
             quad = (L[:-1, :-1], L[1:, :-1], L[:-1, 1:], L[1:, 1:])
             up = np.maximum(np.maximum.reduce(quad), x[None, None, :] - (1.0 - cc) * blo[None, :, None])
             lo = np.maximum(np.minimum.reduce(quad), x[None, None, :] - (1.0 - cc) * bhi[None, :, None])
+            UM[idx, k], LM[idx, k] = up.max(axis=2, initial=-np.inf), lo.max(axis=2, initial=-np.inf)
             ref = fq + cc * bq[:, None]  # (4, n)
             hi_part = (up[:, :, None, :] - ref[None, None]).max(axis=3)
             lo_part = (ref[None, None] - lo[:, :, None, :]).max(axis=3)
             out[:, :, :, k] += np.maximum(np.maximum(hi_part, lo_part), 0.0)
-    return out
+    top = np.maximum(np.maximum(UM[0] - LM[1], UM[1] - LM[0]), 0.0).min(axis=0)  # (m, m)
+    return out, top
 
 
-def sub_bound(c: _Corners, cell: Cell, m: int = SUB) -> np.ndarray:
+def sub_moves(c: _Corners, cell: Cell, m: int = SUB) -> np.ndarray:
+    """Upper bounds of the moves, summed over the two maps: shape (m, m, 4 corners, shifts).
+
+    Entry [i, j, q, s] bounds sup over the sub-rectangle (t-index i, b-index j) of
+    sum over maps of max_v |F*(p)(v) - kappa_s(p) - F*(q)(v)| (module text), q in the order of
+    :func:`~specmap.distance.ends._corners` and kappa_s from :func:`shifts`.
+    """
+    return sub_parts(c, cell, m)[0]
+
+
+def sub_bound(c: _Corners, cell: Cell, m: int = SUB, top: int | None = None) -> np.ndarray:
     """Per degree: max over the m x m sub-rectangles of min over corners and shifts of h(q) + move.
 
-    A rigorous upper bound of sup h_k over the cell (module text); no new line.
+    A rigorous upper bound of sup h_k over the cell (module text); no new line. ``top`` is the
+    degree index of the top degree of two closed connected surfaces (degree 2), whose h is
+    |max F*_f - max F*_g| or 0 (:func:`closed_connected`); its bound is also capped, sub-rectangle
+    by sub-rectangle, by the interval bound of :func:`sub_parts`.
     """
     H = np.stack([c.h[q] for q in _corners(cell)])  # (4, n_deg)
-    moves = sub_moves(c, cell, m).min(axis=3)  # (m, m, 4)
+    parts, tops = sub_parts(c, cell, m)
+    moves = parts.min(axis=3)  # (m, m, 4)
     ub = (H[None, None, :, :] + moves[..., None]).min(axis=2)  # (m, m, n_deg)
+    if top is not None:
+        ub[:, :, top] = np.minimum(ub[:, :, top], tops)
     return ub.reshape(-1, H.shape[1]).max(axis=0)
+
+
+def closed_connected(triangles: np.ndarray | None, n_vertices: int) -> bool:
+    """Every edge in exactly two triangles, every vertex used, one connected component.
+
+    On such a mesh (a closed connected surface) a proper subcomplex carries no 2-cycle and the whole
+    complex one (orientable, over the field of the slices) or none, so Dgm_2 of a lower-star
+    filtration F is {(max F, inf)} or empty, and h_2(p) = |max F*_f(p) - max F*_g(p)| or 0 for every
+    line p [standard simplicial homology of a 2-complex: no 3-simplices, so no 2-class dies].
+    """
+    if triangles is None or len(triangles) == 0:
+        return False
+    from scipy.sparse import coo_matrix
+    from scipy.sparse.csgraph import connected_components
+
+    T = np.asarray(triangles, dtype=np.int64)
+    e = np.sort(np.concatenate([T[:, [0, 1]], T[:, [1, 2]], T[:, [0, 2]]]), axis=1)
+    uniq, counts = np.unique(e, axis=0, return_counts=True)
+    if not np.all(counts == 2) or len(np.unique(T)) != n_vertices:
+        return False
+    graph = coo_matrix((np.ones(len(uniq)), (uniq[:, 0], uniq[:, 1])), shape=(n_vertices, n_vertices))
+    return connected_components(graph, directed=False)[0] == 1
 
 
 def split_moves(c: _Corners, cell: Cell) -> tuple[float, float]:
