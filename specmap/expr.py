@@ -725,7 +725,7 @@ def domain_break(expr: Expr, P: np.ndarray, edges: np.ndarray) -> tuple[str, np.
     (intermediate value theorem): the map has a pole or leaves its domain there.
     A guard that only touches 0 without changing sign between two vertices (``log(x + 1)`` on
     the unit sphere, zero at one point) is not seen: the check is certain when it fires, not
-    complete.
+    complete; :mod:`specmap.shapes.steep` then finds its unbounded gradient.
 
     Parameters
     ----------

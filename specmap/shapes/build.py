@@ -17,6 +17,7 @@ from specmap.meshtable import mesh_edges
 from specmap.shapes.meshes import read_mesh
 from specmap.shapes.model import Shape
 from specmap.shapes.normality import degeneracy
+from specmap.shapes.steep import STEEP_LIMIT, steepest
 from specmap.shapes.surfaces import make_surface
 
 
@@ -59,6 +60,7 @@ def build_shape(spec, study) -> Shape:
         values = fmap.values(V)
         _check_values(values, file, f"{label}.map")
         _check_domain(fmap, V, T, file, f"{label}.map")
+        _check_steep(fmap, V, T, surface, file, f"{label}.map")
         why = _check_normal(V, T, values, fmap.jacobian(V), file, f"{label}.map", insist=spec.insist)
         return Shape(
             label,
@@ -89,6 +91,7 @@ def build_shape(spec, study) -> Shape:
     )
     if fmap is not None:
         _check_domain(fmap, V, T, file, f"{label}.map")
+        _check_steep(fmap, V, T, None, file, f"{label}.map")
     why = _check_normal(
         V,
         T,
@@ -129,6 +132,28 @@ def _check_domain(fmap: CompiledMap, V: np.ndarray, T: np.ndarray, file: str, fi
                 field=f"{field}[{i}]",
                 fix="use a map that is finite and smooth on the whole shape",
             )
+
+
+def _check_steep(fmap: CompiledMap, V: np.ndarray, T: np.ndarray, surface, file: str, field: str) -> None:
+    """Refuse a map whose gradient is unbounded or steeper than any mesh resolves (shapes/steep.py)."""
+    for i, e in enumerate(fmap.exprs):
+        hit = steepest(e, V, T, surface)
+        if hit is None or hit.ratio <= STEEP_LIMIT:
+            continue
+        where = ", ".join(f"{c:.4g}" for c in hit.at)
+        problem = (
+            f"{e.text!r} has no finite gradient at ({where}) on the surface (a singular point)"
+            if not hit.finite
+            else f"{e.text!r} is too steep on the surface: its gradient reaches {hit.gradient:.3g} near "
+            f"({where}), {hit.ratio:.3g} times its value range over the shape's size (limit {STEEP_LIMIT:g})"
+        )
+        raise StudyError(
+            problem,
+            file=file,
+            field=f"{field}[{i}]",
+            fix="use a map that is smooth on the scale of the shape (no zero of a sqrt, log or "
+            "division argument on or near the surface)",
+        )
 
 
 def _check_normal(
