@@ -243,3 +243,13 @@ def test_map_over_the_memory_budget_is_refused_before_mapping(tmp_path: Path) ->
     assert int(m[3]) == n * (n - 1) // 2  # closed form: unordered pairs of n contours
     assert float(m[5]) * {"MB": 1e6, "GB": 1e9}[m[6]] > 1e6  # the estimate is over the 1 MB budget
     assert not out.exists()
+
+
+@pytest.mark.parametrize("route", ["auto", "exact"])
+def test_constant_linear_map_on_an_ellipsoid(route: str, tmp_path: Path) -> None:
+    # issue 14 section 2: a constant map on an ellipsoid gave a raw ValueError from the exact route;
+    # a constant f2 has zero gradient everywhere (closed form), outside the theory (math.md section 4)
+    f = GOOD_F.replace('"y"]', '"3"]') + f'route = "{route}"\n'
+    (tmp_path / "s.toml").write_text(HEAD + f + GOOD_G)
+    assert_user_error(run_cli(["grid", "s.toml"], tmp_path), "s.toml", "f.map", "constant")
+    assert not (tmp_path / "results").exists()
