@@ -320,8 +320,8 @@ def run(argv: list[str] | None = None) -> int:
         print(f"explorer: {page} ({page.stat().st_size / 1e6:.1f} MB, opens from disk with no network)")
         print_load_notes()
         return 0
-    compile_notice(args.verb, show)
     if args.verb == "demo":
+        compile_notice(args.verb, show)
         from specmap.demo import run_demo, summary_lines
 
         outcome = run_demo(
@@ -342,6 +342,7 @@ def run(argv: list[str] | None = None) -> int:
         check_flag(str(study.path), "map.resolution", "--resolution", args.resolution)
     if args.verb == "perturb":
         check_flag(str(study.path), "perturb.runs", "--runs", args.runs)
+    compile_notice(args.verb, show)  # after the checks: a mistake in the study file stays one line
     cores = os.cpu_count() or 1
     if getattr(args, "jobs", 1) > cores and not getattr(args, "cluster", None):
         print(
