@@ -200,6 +200,7 @@ def box_search(
     sub_fine: int = SUB_FINE,
     polish: bool = True,
     top_degree: int | None = None,
+    t_extra: Sequence[float] = (),
 ) -> BoxSearch:
     """Certified branch and bound of sup h_k over the rectangles ``segments`` x ``b_range``.
 
@@ -244,6 +245,10 @@ def box_search(
         (:func:`~specmap.distance.cellbound.closed_connected`): its cells are also bounded by the
         top-vertex interval of :func:`~specmap.distance.cellbound.sub_parts`.
 
+    t_extra : sequence of float
+        More initial t nodes (e.g. the window's edges t0 of the strip's ends, whose lines the ends
+        stage has evaluated: memo hits).
+
     Returns
     -------
     BoxSearch
@@ -267,6 +272,7 @@ def box_search(
     cells0: list[Cell] = []
     for form, t0, t1 in segments:
         tv = np.linspace(t0, t1, max(2, int(t_nodes)))
+        tv = np.unique(np.r_[tv, [x for x in t_extra if t0 < x < t1]])
         for ta, tb in zip(tv[:-1], tv[1:], strict=True):
             for ba, bb in zip(bv[:-1], bv[1:], strict=True):
                 cells0.append((form, float(ta), float(tb), float(ba), float(bb)))
@@ -488,6 +494,9 @@ def fold_strip(
         upper=upper,
         one_mesh=_one_mesh(shape_f, shape_g),
         top_degree=top_degree_index(shape_f, shape_g, degrees),
+        t_extra=[
+            t for t in (window.a[0] / (1.0 - window.a[0]), (1.0 - window.a[1]) / window.a[1]) if 0 < t < 1
+        ],
     )
     for j in todo:
         k = degrees[j]
