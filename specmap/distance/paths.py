@@ -7,6 +7,7 @@ The window [a_lo, a_hi] x [b_lo, b_hi] is mapped to the unit square so that a
 from __future__ import annotations
 
 import math
+from collections.abc import Iterator, Mapping, Sequence
 
 import numpy as np
 
@@ -56,3 +57,39 @@ def sample_path(norm: np.ndarray, spacing: float) -> np.ndarray:
     out[:, 0] = np.interp(t, cum, norm[:, 0])
     out[:, 1] = np.interp(t, cum, norm[:, 1])
     return out
+
+
+class FlatPaths(Sequence[np.ndarray]):
+    """Many paths in one array: path k is ``coords[off[k]:off[k + 1]]`` (no object per path)."""
+
+    def __init__(self, coords: np.ndarray, off: np.ndarray) -> None:
+        self.coords = coords
+        self.off = off
+
+    def __len__(self) -> int:
+        return len(self.off) - 1
+
+    def __getitem__(self, k):
+        if isinstance(k, slice):
+            return [self[i] for i in range(*k.indices(len(self)))]
+        return self.coords[self.off[k] : self.off[k + 1]]
+
+
+class PathsOf(Mapping[int, list[int]]):
+    """Piece index -> indices of its paths, from the owner of each path (non-decreasing)."""
+
+    def __init__(self, owner: np.ndarray) -> None:
+        self.owner = owner
+        self._keys = np.unique(owner)
+
+    def __getitem__(self, piece: int) -> list[int]:
+        lo, hi = np.searchsorted(self.owner, [piece, piece + 1])
+        if lo == hi:
+            raise KeyError(piece)
+        return list(range(int(lo), int(hi)))
+
+    def __iter__(self) -> Iterator[int]:
+        return iter(int(k) for k in self._keys)
+
+    def __len__(self) -> int:
+        return len(self._keys)

@@ -18,6 +18,7 @@ from typing import Any
 import numpy as np
 
 from specmap.distance.bounds import LocalBound, line_upper_bound
+from specmap.distance.boxes import BoxBound
 from specmap.distance.candidates import ORIGINS, special_candidates
 from specmap.distance.evaluator import LineEvaluator
 from specmap.distance.node_bounds import NodeBounds, node_upper_bounds
@@ -122,15 +123,20 @@ def _slope_one_phase(
 
 def _seeded_local_bound(
     ev: LineEvaluator, window: Window, groups: list[list[int]], lines: list[tuple[float, float]]
-) -> LocalBound:
-    """A :class:`LocalBound` holding the ``lines`` this search evaluated (not the dense sweep's)."""
+) -> tuple[LocalBound, BoxBound]:
+    """A :class:`LocalBound` and a :class:`BoxBound` holding the ``lines`` this search evaluated.
+
+    Lines of other stages (the dense sweep) are not used: the search shares no decision with them.
+    """
     local = LocalBound(ev.val_f, ev.val_g, window)
-    known = [(p, ev.memo[p]) for p in lines if p in ev.memo]
+    boxes = BoxBound(ev.val_f, ev.val_g, window)
+    known = [(p, ev.memo[p]) for p in dict.fromkeys(lines) if p in ev.memo]
     if known:
         P = np.array([p for p, _ in known])
         V = np.array([[np.max(v[g]) for g in groups] for _, v in known])
         local.add(P[:, 0], P[:, 1], V)
-    return local
+        boxes.add(P[:, 0], P[:, 1], V)
+    return local, boxes
 
 
 def _node_bounds_of(
@@ -174,6 +180,7 @@ class _Descent:
     same_mesh: bool
     local: LocalBound | None
     max_lines: int = 1 << 62
+    boxes: BoxBound | None = None
     special: list[Best] = field(init=False)  # per degree index
     counts: dict[str, int] = field(init=False)  # candidates pruned, by rule
     evaluated: list[int] = field(init=False, default_factory=list)
@@ -184,15 +191,23 @@ class _Descent:
     pos: int = field(init=False, default=0)  # next position in ``order``
     local_b: np.ndarray = field(init=False)  # a LocalBound value per candidate (an earlier one), NaN if none
     left: dict[str, Any] | None = field(init=False, default=None)  # set when the line budget stopped the pass
+    box_id: np.ndarray = field(init=False)  # the box of each candidate (when ``boxes``)
 
     def __post_init__(self) -> None:
         self.special = [Best() for _ in self.ev.degrees]
+        built = self.cand.pruned  # rules applied while the list was built count as the pass's
         self.counts = {
             "below_best": int(self.cand.below_floor),
-            "above_bound": 0,
+            "above_bound": int(built.get("above_bound", 0)),
             "line_bound": 0,
+            "box_bound": int(built.get("box_bound", 0)),
             "local_bound": 0,
         }
+        self.box_id = (
+            self.boxes.box_of(self.cand.a, self.cand.b)
+            if self.boxes is not None
+            else np.zeros(len(self.cand.a), dtype=np.int64)
+        )
         self.order = np.argsort(-self.cand.hi, kind="stable")
         self.line_b = np.full(len(self.cand.a), np.nan)
         self.local_b = np.full(len(self.cand.a), np.nan)
@@ -235,6 +250,12 @@ class _Descent:
                 self.line_b[chunk] = line_upper_bound(self.ev.val_f, self.ev.val_g, c.a[chunk], c.b[chunk])
             if c.lo[i] > self.line_b[i] + tol:
                 return "line_bound"
+        if self.boxes is not None:  # one bound per box of the window, kept until lines are added
+            box = self.boxes
+            if not c.lo[i] > box.value[self.box_id[i]] + tol and box.lines_at[self.box_id[i]] < box.lines:
+                box.refresh(self.box_id[self.order[self.pos - 1 : self.pos - 1 + 256]])
+            if c.lo[i] > box.value[self.box_id[i]] + tol:
+                return "box_bound"
         if self.local is not None:
             now = math.isnan(self.local_b[i])
             if now:  # a bound of the next candidates at once, from the lines so far
@@ -275,6 +296,8 @@ class _Descent:
         G = np.array([[np.max(H[g, k]) for g in self.groups] for k in range(len(take))])
         if self.local is not None:
             self.local.add(c.a[take], c.b[take], G)
+        if self.boxes is not None:
+            self.boxes.add(c.a[take], c.b[take], G)
         for k, i in enumerate(take):
             for j in range(len(self.ev.degrees)):
                 if self.special[j].offer(H[j, k], (c.a[i], c.b[i]), "special"):
@@ -455,20 +478,32 @@ def reduced_search(
     if callable(atlas):  # a source: only the ties that can lie in (floor, upper] are mapped
         bounds_at, grid_top = None, None
         if s.bound_grid > 1 and finite:
+            seen = set(ev.memo)
             bounds_at, grid_top = _node_bounds_of(ev, window, finite, own, s.bound_grid)
+            own += [p for p in ev.memo if p not in seen]  # this search's lines: they bound h too
         atlas = atlas(floor + tolerance, upper + tolerance, bounds_at)
         focus = dict((getattr(atlas, "stats", None) or {}).get("focus") or {}) or None
         if focus is not None:
             focus["grid_lines"] = s.bound_grid**2 if bounds_at is not None else 0
             focus["grid_max_h"] = grid_top
+    local, boxes = _seeded_local_bound(ev, window, groups, own) if s.local_bound else (None, None)
     cand = special_candidates(
-        atlas, contours_by_id, window, spacing=s.spacing, roles=s.roles, floor=floor, tolerance=tolerance
+        atlas,
+        contours_by_id,
+        window,
+        spacing=s.spacing,
+        roles=s.roles,
+        floor=floor,
+        tolerance=tolerance,
+        upper=upper,
+        bound=boxes.at if boxes is not None and boxes.lines else None,
     )
     cand_seconds = time.perf_counter() - t1
     pieces = tuple(getattr(atlas, "pieces", ()) or ())
     components = tuple(getattr(atlas, "components", ()) or ())
-    local = _seeded_local_bound(ev, window, groups, own) if s.local_bound else None
-    walk = _Descent(ev, cand, groups, best, tolerance, upper, step, same_mesh, local, s.special_max_lines)
+    walk = _Descent(
+        ev, cand, groups, best, tolerance, upper, step, same_mesh, local, s.special_max_lines, boxes
+    )
     walk.run()
     special = walk.special
     _polish(ev, special, slope, cand, window, tolerance, s)

@@ -10,7 +10,7 @@ final :class:`DistanceResult`, whose :meth:`DistanceResult.to_json` is what
 from __future__ import annotations
 
 import math
-from collections.abc import Sequence
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any
 
@@ -130,9 +130,9 @@ class Candidates:
         Index into ``atlas.pieces``.
     origin : ndarray of int
         Index into :data:`specmap.distance.candidates.ORIGINS`.
-    paths : list of ndarray
-        Normalised path coordinates, for the polish.
-    paths_of : dict
+    paths : sequence of ndarray
+        Normalised path coordinates, for the polish (:class:`specmap.distance.paths.FlatPaths`).
+    paths_of : mapping
         Piece index -> indices into ``paths``.
     pruned : dict
         Ties dropped (``roles``, ``unknown_contour``, ``not_met``, ``outside_window``) and
@@ -151,8 +151,8 @@ class Candidates:
     hi: np.ndarray
     piece: np.ndarray
     origin: np.ndarray
-    paths: list[np.ndarray]
-    paths_of: dict[int, list[int]]
+    paths: Sequence[np.ndarray]
+    paths_of: Mapping[int, list[int]]
     pruned: dict[str, int]
     crossings: int
     below_floor: int
