@@ -10,18 +10,32 @@ simplified pair, delta, the measured sup change and the time of three treatments
 - ``persistence``: simplify_pair at delta = 2 ||noise||_inf (by stability every finite pair of a
   noisy coordinate function is shorter than that; the smooth one has none), with the aligned
   layout of filled regions (default) and with the harmonic one;
-- ``auto``: auto_delta with a budget of 60 contours per grid;
-- ``tube+persistence``: smooth_within at tau = ||noise||_inf, then simplify_pair at ||noise||_inf.
+- ``auto (persistence)``: auto_delta with a budget of 60 contours per grid (each field alone);
+- ``tube+persistence``: smooth_within at tau = ||noise||_inf, then simplify_pair at ||noise||_inf;
+- ``auto (joint)``: what ``simplify = "auto"`` runs, simplify_values(..., "auto"): the joint
+  simplification of specmap.jacobi_smooth (tube smoothing, fold straightening, persistence at
+  2 tau) with the smallest measured change that meets the budget within 5 % of the value range.
 
 Then a sampled matching-distance estimate (max over a 9 x 9 grid of lines of the bottleneck in
 degrees 0 and 1, the same lines for every pair) of the smooth, the noisy and the simplified pairs,
 with the interval D' +- (sup change of f + sup change of g) [CDFFL13] and whether it holds the
-smooth pair's value. Finally the real scans fetched by studies/data/fetch_scans.py, when present.
+smooth pair's value. Then the real scans fetched by studies/data/fetch_scans.py, when present.
+With ``--pairs``, the two scan studies with ``simplify = "auto"`` through the command line
+(studies/scans_auto.toml: cow + bone; studies/bunny_auto.toml: the 28k-vertex bunny with maps
+(x, y) and (x, z)): seconds of ``grid`` (the simplification is in it), ``map`` (its exit status
+and first line) and ``distance --method dense``, the certified width 2 (s_f + s_g) of the
+measured sup changes and its ratio to D per degree.
+
+    python tests/benchmarks/bench_simplify.py [--pairs]
 """
 
 from __future__ import annotations
 
+import json
+import resource
+import subprocess
 import sys
+import tempfile
 import time
 from collections import Counter
 from pathlib import Path
@@ -34,7 +48,7 @@ sys.path.insert(0, str(HERE.parent))
 from scangen import noisy_scan  # noqa: E402
 
 from specmap.grids.piecewise import piecewise_grid  # noqa: E402
-from specmap.simplify import auto_delta, simplify_pair, smooth_within  # noqa: E402
+from specmap.simplify import auto_delta, simplify_pair, simplify_values, smooth_within  # noqa: E402
 from specmap.slices import SliceEngine, bottleneck  # noqa: E402
 
 BUDGET = 60
@@ -74,13 +88,21 @@ def treatments(V: np.ndarray, T: np.ndarray, F: np.ndarray, noise: float | None,
     vals = r.pair.values if r.pair is not None else F
     sup = r.pair.sup_change if r.pair is not None else (0.0, 0.0)
     note = f"met={r.met}, {r.evaluations} counts"
-    out.append(("auto", vals, r.delta, sup, time.perf_counter() - t, note))
+    out.append(("auto (persistence)", vals, r.delta, sup, time.perf_counter() - t, note))
     t = time.perf_counter()
     tau = noise if noise is not None else delta0 / 2
     S = np.c_[smooth_within(T, F[:, 0], tau), smooth_within(T, F[:, 1], tau)]
     q = simplify_pair(T, S[:, 0], S[:, 1], tau)
     sup = tuple(float(x) for x in np.abs(q.values - F).max(axis=0))
     out.append(("tube+persistence", q.values, 2 * tau, sup, time.perf_counter() - t, f"tau={tau:.3g}"))
+    t = time.perf_counter()
+    vals, rec = simplify_values(T, F, "auto", count, budget=BUDGET)
+    sup = tuple(float(x) for x in np.abs(vals - F).max(axis=0))  # measured again here
+    tube = rec["tube"]
+    note = (
+        f"met={rec['met']}, {rec['tried']} tried, tau={tube:.3g}" if tube else f"met={rec['met']}, unchanged"
+    )
+    out.append(("auto (joint)", vals, rec["delta"], sup, time.perf_counter() - t, note))
     return out
 
 
@@ -167,6 +189,66 @@ def real_section() -> list[str]:
     return rows
 
 
+PAIRS = ("scans_auto.toml", "bunny_auto.toml")
+
+
+def cli(*args: str) -> tuple[int, float, str]:
+    """Run ``specmap ARGS`` in a child process: (exit status, seconds, stderr)."""
+    t = time.perf_counter()
+    code = "import sys; from specmap.cli import main; main(sys.argv[1:])"
+    done = subprocess.run([sys.executable, "-c", code, *args], capture_output=True, text=True)
+    return done.returncode, time.perf_counter() - t, done.stderr
+
+
+def pairs_section() -> list[str]:
+    studies = HERE.parents[1] / "studies"
+    rows = [
+        '## Scan pairs with simplify = "auto" through the command line (budget 60, cap 5 % of the value range)',
+        "",
+        "| study | contours f, g (before -> after, met) | s_f, s_g | grid (s) | map | distance dense (s) "
+        "| D_0 / D_1 | width 2(s_f + s_g) | width / D_0, D_1 | peak RSS (children) |",
+        "|---|---|---|---:|---|---:|---|---:|---|---:|",
+    ]
+    for name in PAIRS:
+        study = studies / name
+        if not all((studies / "data" / "scans" / m).is_file() for m in ("cow.ply", "bone.ply", "bunny.obj")):
+            rows.append(f"| {name} | not fetched | | | | | | | | |")
+            continue
+        with tempfile.TemporaryDirectory() as tmp:
+            out = str(Path(tmp) / "out")
+            code_g, sec_g, _ = cli("grid", str(study), "--out", out)
+            code_m, sec_m, err_m = cli("map", str(study), "--out", out)
+            code_d, sec_d, _ = cli("distance", str(study), "--method", "dense", "--out", out)
+            if code_g or code_d:
+                rows.append(f"| {name} | failed: grid {code_g}, distance {code_d} | | | | | | | | |")
+                continue
+            recs = [
+                json.loads((Path(out) / f"grid_{s}.json").read_text())["meta"]["simplification"] for s in "fg"
+            ]
+            dist = json.loads((Path(out) / "distance.json").read_text())
+        sups = [max(r["sup_change"]) for r in recs]
+        width = 2.0 * sum(sups)
+        by = dist["by_degree"]
+        vals = [by[k]["value"] for k in sorted(by)]
+        counts = ", ".join(
+            f"{r['contours_before']} -> {r['contours_after']} ({'met' if r['met'] else 'not met'})"
+            for r in recs
+        )
+        last = [line for line in err_m.splitlines() if "error" in line]
+        mapped = (
+            "done"
+            if code_m == 0
+            else f"exit {code_m}: " + (last[0].split(": map: ", 1)[-1][:90] + "..." if last else "")
+        )
+        ratio = ", ".join(f"{100 * width / v:.1f} %" for v in vals)
+        rss = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss / 1e6
+        rows.append(
+            f"| {name} | {counts} | {sups[0]:.4f}, {sups[1]:.4f} | {sec_g:.1f} | {mapped} ({sec_m:.1f} s) | {sec_d:.1f} "
+            f"| {' / '.join(f'{v:.4f}' for v in vals)} | {width:.4f} | {ratio} | {rss:.2f} GB |"
+        )
+    return rows
+
+
 def main() -> None:
     t0 = time.perf_counter()
     parts = [
@@ -176,6 +258,8 @@ def main() -> None:
         "",
     ]
     parts += noisy_section() + [""] + real_section()
+    if "--pairs" in sys.argv[1:]:
+        parts += [""] + pairs_section()
     parts += ["", f"Total run time {time.perf_counter() - t0:.0f} s."]
     text = "\n".join(parts) + "\n"
     (HERE / "results_simplify.md").write_text(text)
