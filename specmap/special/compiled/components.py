@@ -219,29 +219,6 @@ def _chord_unions(parent, owner, cell, chord, t0, t1, n_cells):
 
 
 @numba.njit(cache=True, nogil=True, error_model="numpy")
-def _test_pair(parent, p, q, owner, s, o, eps):
-    """Join the lines of segments s and o if they are in different components, their boxes meet
-    (widened by 2 eps) and they cross or come within ``eps``; True if joined."""
-    if _find(parent, owner[o]) == _find(parent, owner[s]):
-        return False
-    sx0 = min(p[s, 0], q[s, 0]) - 2 * eps
-    sx1 = max(p[s, 0], q[s, 0]) + 2 * eps
-    sy0 = min(p[s, 1], q[s, 1]) - 2 * eps
-    sy1 = max(p[s, 1], q[s, 1]) + 2 * eps
-    if (
-        min(p[o, 0], q[o, 0]) > sx1
-        or max(p[o, 0], q[o, 0]) < sx0
-        or min(p[o, 1], q[o, 1]) > sy1
-        or max(p[o, 1], q[o, 1]) < sy0
-    ):
-        return False
-    if _segments_close(p[s, 0], p[s, 1], q[s, 0], q[s, 1], p[o, 0], p[o, 1], q[o, 0], q[o, 1], eps):
-        _union(parent, owner[s], owner[o])
-        return True
-    return False
-
-
-@numba.njit(cache=True, nogil=True, error_model="numpy")
 def _extra_unions(parent, p, q, owner, chord, cnt, by_cell, av, bv, eps, n_lines):
     """Join lines through segments that end inside a cell, by exact tests (see :func:`lattice_labels`).
 
@@ -302,17 +279,41 @@ def _extra_unions(parent, p, q, owner, chord, cnt, by_cell, av, bv, eps, n_lines
     snap_lab = np.empty(n_lines, dtype=np.int64)
     for i in range(n_lines):
         snap_lab[i] = _find(parent, i)
+    kmax = 0
+    for c in range(n_cells):
+        if xcnt[c + 1] > xcnt[c]:
+            kmax = max(kmax, acnt[c + 1] - acnt[c])
+    box = np.empty((kmax, 4))  # the cell's segments, gathered in test order: x0, x1, y0, y1
+    seg = np.empty((kmax, 4))  # px, py, qx, qy
+    own = np.empty(kmax, dtype=np.int64)
     for c in range(n_cells):
         lo = acnt[c]
         hi = acnt[c + 1]
         if xcnt[c + 1] == xcnt[c]:
             continue
-        keys = np.empty(hi - lo, dtype=np.int64)
+        # groups of one component, each sorted by its segments' low x (the sweep of _cell_tests)
+        lx = np.empty(hi - lo)
         for t in range(lo, hi):
-            keys[t - lo] = snap_lab[owner[a_seg[t]]]
+            o = a_seg[t]
+            lx[t - lo] = min(p[o, 0], q[o, 0])
+        by_x = np.argsort(lx, kind="mergesort")
+        keys = np.empty(hi - lo, dtype=np.int64)
+        for t in range(hi - lo):
+            keys[t] = snap_lab[owner[a_seg[lo + by_x[t]]]]
         order = np.argsort(keys, kind="mergesort")
-        segs = a_seg[lo:hi][order]
+        segs = a_seg[lo:hi][by_x[order]]
         keys = keys[order]
+        for t in range(segs.size):
+            o = segs[t]
+            box[t, 0] = min(p[o, 0], q[o, 0])
+            box[t, 1] = max(p[o, 0], q[o, 0])
+            box[t, 2] = min(p[o, 1], q[o, 1])
+            box[t, 3] = max(p[o, 1], q[o, 1])
+            seg[t, 0] = p[o, 0]
+            seg[t, 1] = p[o, 1]
+            seg[t, 2] = q[o, 0]
+            seg[t, 3] = q[o, 1]
+            own[t] = owner[o]
         n_g = 1
         for t in range(1, segs.size):
             if keys[t] != keys[t - 1]:
@@ -325,13 +326,16 @@ def _extra_unions(parent, p, q, owner, chord, cnt, by_cell, av, bv, eps, n_lines
                 g_start[g] = t
                 g += 1
         g_start[n_g] = segs.size
-        _cell_tests(parent, p, q, owner, segs, keys, g_start, x_seg[xcnt[c] : xcnt[c + 1]], eps)
+        _cell_tests(parent, p, q, owner, box, seg, own, keys, g_start, x_seg[xcnt[c] : xcnt[c + 1]], eps)
 
 
 @numba.njit(cache=True, nogil=True, error_model="numpy")
-def _cell_tests(parent, p, q, owner, segs, keys, g_start, queries, eps):
+def _cell_tests(parent, p, q, owner, box, seg, own, keys, g_start, queries, eps):
     """Exact tests of a cell's query segments against its groups (runs of one component in ``segs``).
 
+    ``box``, ``seg``, ``own``: the cell's segments gathered in group order (boxes, end points,
+    lines), each group sorted by low x, so a query's scan of a group stops at the first segment
+    that starts right of its box (a sweep in x with a box filter, on contiguous memory).
     Groups are kept in *runs* of one current component (linked lists of groups): a query skips a
     run of its own component with one ``find`` and tests the groups of any other run until the
     first contact, which joins the whole run. The runs are merged again (by their current roots)
@@ -372,6 +376,11 @@ def _cell_tests(parent, p, q, owner, segs, keys, g_start, queries, eps):
             n_run = w
             dirty = False
         rs = _find(parent, owner[s])
+        px, py, qx, qy = p[s, 0], p[s, 1], q[s, 0], q[s, 1]
+        sx0 = min(px, qx) - 2 * eps
+        sx1 = max(px, qx) + 2 * eps
+        sy0 = min(py, qy) - 2 * eps
+        sy1 = max(py, qy) + 2 * eps
         for r in range(n_run):
             if _find(parent, run_root[r]) == rs:
                 continue
@@ -379,7 +388,12 @@ def _cell_tests(parent, p, q, owner, segs, keys, g_start, queries, eps):
             hit = False
             while g >= 0 and not hit:
                 for v in range(g_start[g], g_start[g + 1]):
-                    if _test_pair(parent, p, q, owner, s, segs[v], eps):
+                    if box[v, 0] > sx1:
+                        break  # the group is sorted by low x: no later segment meets the query's box
+                    if box[v, 1] < sx0 or box[v, 2] > sy1 or box[v, 3] < sy0:
+                        continue
+                    if _segments_close(px, py, qx, qy, seg[v, 0], seg[v, 1], seg[v, 2], seg[v, 3], eps):
+                        _union(parent, owner[s], own[v])
                         hit = True  # the rest of the run is now joined too
                         break
                 g = gnext[g]
