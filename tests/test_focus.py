@@ -19,12 +19,31 @@ from specmap.distance.focused import focused_source
 from specmap.distance.node_bounds import node_upper_bounds
 from specmap.grids.piecewise import piecewise_grid
 from specmap.special import special_set
-from specmap.special.focus import focus_pairs, pair_costs, pair_costs_arrays
+from specmap.special.evaluate import sample_contours
+from specmap.special.focus import PairCosts, focus_pairs, pair_costs
 from specmap.special.lattice import Lattice
 from specmap.special.pairs import pair_table
-from specmap.strip import Window, default_window
+from specmap.strip import Window, default_window, push_scale
 
 W = Window((0.05, 0.95), (-1.0, 1.0))
+
+
+def pair_costs_arrays(table, lattice: Lattice) -> PairCosts:
+    """The cost ranges of pair_costs by numpy array formulas (the reference of the compiled pass)."""
+    import warnings
+
+    A, B = lattice.mesh()
+    s, met = sample_contours(table.contours, A, B)
+    m = push_scale(lattice.av)[None, None, :]
+    i, j = table.first, table.second
+    d = np.where(met[i] & met[j], np.abs(s[i] - s[j]) * m, np.nan)
+    with np.errstate(invalid="ignore"), warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)  # all-NaN rows: pairs met at no node
+        lo, hi = np.nanmin(d, axis=(1, 2)), np.nanmax(d, axis=(1, 2))
+        da = np.nanmax(np.abs(np.diff(d, axis=2)), axis=(1, 2)) if d.shape[2] > 1 else 0.0
+        db = np.nanmax(np.abs(np.diff(d, axis=1)), axis=(1, 2)) if d.shape[1] > 1 else 0.0
+    margin = np.nan_to_num(np.fmax(da, db), nan=0.0)
+    return PairCosts(lo - margin, hi + margin, margin)
 
 
 @pytest.mark.parametrize("seed", [1, 5])

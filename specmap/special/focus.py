@@ -29,7 +29,6 @@ from __future__ import annotations
 
 import math
 import time
-import warnings
 from dataclasses import dataclass
 from typing import Any
 
@@ -42,9 +41,6 @@ from specmap.special.evaluate import sample_contours
 from specmap.special.lattice import Lattice
 from specmap.special.pairs import PairTable, grid_of
 from specmap.strip import Window, push_scale
-
-CHUNK_VALUES = 20_000_000
-"""Pair-by-node values held at once while the cost ranges are read (about 160 MB of float64)."""
 
 
 @dataclass(frozen=True)
@@ -121,41 +117,20 @@ def pair_costs(table: PairTable, lattice: Lattice) -> PairCosts:
     One compiled pass per pair (:func:`specmap.special.compiled.ranges.pair_ranges`); memory is
     the contours' samples (C x n_b x n_a) and three numbers per pair.
     """
-    from specmap.special.compiled.ranges import pair_ranges
-
-    s, met, m = _node_samples(table, lattice)
-    lo, hi, margin = pair_ranges(s, met, m, table.first, table.second)
+    _, lo, hi, margin = _ranges(table, lattice)
     return PairCosts(lo - margin, hi + margin, margin)
 
 
-def _node_samples(table: PairTable, lattice: Lattice) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Contour parameters and met flags at the nodes (C, n_b, n_a), and the push scale (n_a,)."""
+def _ranges(table: PairTable, lattice: Lattice) -> tuple[tuple, np.ndarray, np.ndarray, np.ndarray]:
+    """The node samples (s, met, m) and the raw (min, max, largest step) of |c_P| of every pair."""
+    from specmap.special.compiled.ranges import pair_ranges
+
     A, B = lattice.mesh()
     s, met = sample_contours(table.contours, A, B)
     m = np.ascontiguousarray(push_scale(lattice.av), dtype=float)
-    return np.ascontiguousarray(s, dtype=float), np.ascontiguousarray(met), m
-
-
-def pair_costs_arrays(table: PairTable, lattice: Lattice) -> PairCosts:
-    """:func:`pair_costs` with numpy array formulas (the reference of the compiled pass; chunked)."""
-    A, B = lattice.mesh()
-    s, met = sample_contours(table.contours, A, B)
-    m = push_scale(lattice.av)[None, None, :]
-    n = table.n_pairs
-    lo, hi, margin = np.full(n, np.nan), np.full(n, np.nan), np.zeros(n)
-    step = max(1, CHUNK_VALUES // max(1, A.size))
-    for start in range(0, n, step):
-        sl = slice(start, min(n, start + step))
-        i, j = table.first[sl], table.second[sl]
-        d = np.where(met[i] & met[j], np.abs(s[i] - s[j]) * m, np.nan)
-        with np.errstate(invalid="ignore"), warnings.catch_warnings():
-            warnings.simplefilter("ignore", RuntimeWarning)  # all-NaN rows: pairs met at no node
-            lo[sl] = np.nanmin(d, axis=(1, 2))
-            hi[sl] = np.nanmax(d, axis=(1, 2))
-            da = np.nanmax(np.abs(np.diff(d, axis=2)), axis=(1, 2)) if d.shape[2] > 1 else 0.0
-            db = np.nanmax(np.abs(np.diff(d, axis=1)), axis=(1, 2)) if d.shape[1] > 1 else 0.0
-        margin[sl] = np.nan_to_num(np.fmax(da, db), nan=0.0)
-    return PairCosts(lo - margin, hi + margin, margin)
+    nodes = (np.ascontiguousarray(s, dtype=float), np.ascontiguousarray(met), m)
+    lo, hi, margin = pair_ranges(*nodes, table.first, table.second)
+    return nodes, lo, hi, margin
 
 
 def focus_pairs(
@@ -196,13 +171,12 @@ def focus_pairs(
     >>> fo.below, fo.above
     (1, 1)
     """
-    from specmap.special.compiled.ranges import pair_ranges, pairs_in_band
+    from specmap.special.compiled.ranges import pairs_in_band
 
     t0 = time.perf_counter()
     n_a, n_b = (resolution, resolution) if isinstance(resolution, int) else tuple(resolution)
     lattice = Lattice.of(window, int(n_a), int(n_b))
-    s, met, m = _node_samples(table, lattice)
-    lo, hi, margin = pair_ranges(s, met, m, table.first, table.second)
+    (s, met, m), lo, hi, margin = _ranges(table, lattice)
     low_f, high_f = cost_factors(table, roles)
     floor, upper = float(band[0]), float(band[1])
     unmet = np.isnan(hi)

@@ -1,7 +1,6 @@
 """Cost range of every contour pair over the lattice nodes, in one pass per pair (numba).
 
-Tested against the array formulas of :func:`specmap.special.focus.pair_costs_arrays` in
-``tests/test_focus.py``.
+Tested against numpy array formulas (``pair_costs_arrays`` in ``tests/test_focus.py``).
 """
 
 from __future__ import annotations
