@@ -21,7 +21,7 @@ degrees 0 and 1, the same lines for every pair) of the smooth, the noisy and the
 with the interval D' +- (sup change of f + sup change of g) [CDFFL13] and whether it holds the
 smooth pair's value. Then the real scans fetched by studies/data/fetch_scans.py, when present.
 With ``--pairs``, the two scan studies with ``simplify = "auto"`` through the command line
-(studies/scans_auto.toml: cow + bone; studies/bunny_auto.toml: the 28k-vertex bunny with maps
+(studies/simplified/scans_auto.toml: cow + bone; studies/simplified/bunny_auto.toml: the 28k-vertex bunny with maps
 (x, y) and (x, z)): seconds of ``grid`` (the simplification is in it), ``map`` (its exit status
 and first line) and ``distance --method dense``, the certified width 2 (s_f + s_g) of the
 measured sup changes and its ratio to D per degree.
@@ -210,7 +210,7 @@ def pairs_section() -> list[str]:
         "|---|---|---|---:|---|---:|---|---:|---|---:|",
     ]
     for name in PAIRS:
-        study = studies / name
+        study = studies / "simplified" / name
         if not all((studies / "data" / "scans" / m).is_file() for m in ("cow.ply", "bone.ply", "bunny.obj")):
             rows.append(f"| {name} | not fetched | | | | | | | | |")
             continue
