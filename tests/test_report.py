@@ -883,6 +883,7 @@ def pages_of_build(root: Path) -> list[str]:
         (-0.0001, 0.004, None, "0.000"),  # no "-0.000"
         (0.4, 1e-12, None, "0.400000"),  # six significant digits at most
         (0.41234, None, None, "0.4123"),  # no uncertainty: four significant digits
+        (0.0467, 0.006, (0.0467, 0.1953), "0.05"),  # 0.149 wide is 1e-1, but a positive value keeps a digit
     ],
 )
 def test_value_printed_to_its_resolved_digits(value: float, tol: Any, interval: Any, expected: str) -> None:
@@ -899,6 +900,7 @@ def test_value_printed_to_its_resolved_digits(value: float, tol: Any, interval: 
         ((0.2125, 0.3), None, "[0.21, 0.30]"),  # 0.0875 wide: 1e-2
         ((0.10234, float("inf")), 1e-3, "[0.102, inf]"),  # half-open: the tolerance's place
         ((-0.01234, 0.01234), None, "[-0.02, 0.02]"),  # 0.0247 wide: 1e-2, outward on both sides
+        ((0.0467, 0.1953), None, "[0.04, 0.20]"),  # 1e-1 would read [0.0, 0.2]: the positive end keeps 0.04
     ],
 )
 def test_interval_rounded_outward_at_its_width(interval: Any, tol: Any, expected: str) -> None:

@@ -595,14 +595,15 @@ def special_figure(
                 seg_ok = ok[:-1] & ok[1:]
                 near.extend(np.stack([c.xy[:-1][seg_ok], c.xy[1:][seg_ok]], axis=1))
         if near:
-            ax.add_collection(LineCollection(near, colors="black", linewidths=1.8, zorder=5))
+            # thin enough that thousands of near ties do not hide the families under them
+            ax.add_collection(LineCollection(near, colors="black", linewidths=1.0, alpha=0.85, zorder=5))
         handles.append(
             Line2D(
                 [],
                 [],
                 color="black",
-                lw=1.8,
-                label=f"tied value D ± {fmt(r, 2)}" + ("" if near else " (none)"),
+                lw=1.4,
+                label=f"tied value within {fmt(r, 2)} of D" + ("" if near else " (none)"),
             )
         )
     pts = [p for p in ix.points.values()]
@@ -768,11 +769,12 @@ def distance_map_figure(
             handles.append(Line2D([], [], color="0.55", lw=0.8, label="special set: tie curves"))
     at = distance.get("at")
     if at is not None and len(at) >= 2:
-        value_text = fmt_distance(distance)
+        value_text, dname = fmt_distance(distance), "D"
         if degree is not None:
             bd = (distance.get("by_degree") or {}).get(str(degree)) or {}
             at = bd.get("at", at)
-            value_text = fmt_distance(distance, degree) if bd else value_text
+            if bd:
+                value_text, dname = fmt_distance(distance, degree), f"D_{degree}"
         ax.plot([num(at[0])], [num(at[1])], "*", ms=16, color="#ff3b3b", mec="black", mew=0.8, zorder=6)
         handles.append(
             Line2D(
@@ -783,7 +785,7 @@ def distance_map_figure(
                 ms=12,
                 color="#ff3b3b",
                 mec="black",
-                label=f"maximum {value_text} at (a, b) = ({fmt(at[0], 3)}, {fmt(at[1], 3)})",
+                label=f"{dname} = {value_text} at (a, b) = ({fmt(at[0], 3)}, {fmt(at[1], 3)})",
             )
         )
     ax.axvline(0.5, color="0.85" if land else "0.35", ls=":", lw=1.0)
@@ -844,6 +846,7 @@ def _hist(ax: Any, values: np.ndarray, xlabel: str, base: float | None = None) -
         ax.plot(finite, jitter, "o", color="#4a7fb5", ms=5, alpha=0.8, ls="")
         ax.set_ylim(-1, 1)
         ax.set_yticks([])
+        ax.xaxis.set_major_locator(MaxNLocator(5))  # a narrow spread gave 9 crowded ticks
         ax.set_ylabel(f"{plural(len(finite), 'run')} (one dot each)")
     elif len(finite):
         bins = min(30, max(5, int(np.sqrt(len(finite)))))

@@ -145,7 +145,7 @@ def theorem_audit_sentence(d: dict[str, Any]) -> str | None:
     if "theorem_gap" in audit:
         return (
             f"The dense sweep does not exceed the reduced search beyond the tolerance "
-            f"(gap {fmt(audit.get('gap'))}){_tol(d.get('tolerance'))}."
+            f"{fmt(d.get('tolerance'), 3)} (gap {fmt_to(audit.get('gap'), d.get('tolerance'))})."
         )
     return None
 

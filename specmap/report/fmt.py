@@ -120,8 +120,10 @@ def uncertainty(tolerance: Any = None, interval: Any = None) -> float:
 def fmt_to(x: Any, tolerance: Any = None, interval: Any = None) -> str:
     """A value printed to the digits its uncertainty (:func:`uncertainty`) resolves.
 
-    Rounded to nearest at the place of the uncertainty's leading digit; without an
-    uncertainty, :func:`fmt` (4 significant digits).
+    Rounded to nearest (half up) at the place of the uncertainty's leading digit; a value whose
+    interval has a positive lower end keeps at least one significant digit (``0.0467`` in
+    ``[0.0467, 0.195]`` reads ``0.05``, not ``0.0``); without an uncertainty, :func:`fmt`
+    (4 significant digits).
 
     Examples
     --------
@@ -134,13 +136,17 @@ def fmt_to(x: Any, tolerance: Any = None, interval: Any = None) -> str:
     place = resolved_place(uncertainty(tolerance, interval))
     if place is None or not math.isfinite(v):
         return fmt(x)
+    if interval is not None and len(interval) >= 2 and num(interval[0]) > 0.0 and v > 0.0:
+        # known to be positive: at least one significant digit, never "0.0"
+        place = min(place, math.floor(math.log10(v)))
     return _at_place(v, place)
 
 
 def fmt_bounds(iv: Any, tolerance: Any = None) -> str:
     """An interval ``[lo, hi]`` rounded outward at the place of its width (else of ``tolerance``).
 
-    The printed interval contains the computed one: ``lo`` is rounded down and ``hi`` up.
+    The printed interval contains the computed one: ``lo`` is rounded down and ``hi`` up; a
+    positive ``lo`` keeps its first significant digit (so it never reads 0).
 
     Examples
     --------
@@ -153,6 +159,8 @@ def fmt_bounds(iv: Any, tolerance: Any = None) -> str:
     place = resolved_place(uncertainty(tolerance, [lo, hi]))
     if place is None:
         return f"[{fmt(lo)}, {fmt(hi)}]"
+    if math.isfinite(lo) and lo > 0.0:  # a positive lower end keeps its first significant digit
+        place = min(place, math.floor(math.log10(lo)))
     a = _at_place(lo, place, ROUND_FLOOR) if math.isfinite(lo) else fmt(lo)
     b = _at_place(hi, place, ROUND_CEILING) if math.isfinite(hi) else fmt(hi)
     return f"[{a}, {b}]"
@@ -206,7 +214,8 @@ def fmt_distance(d: Any, degree: Any = None) -> str:
 
 
 _VALUE_AFTER = (
-    r"(\b(?:by|best|best value|bound|bound is|D|D_\d+|h|h_\d+) (?:= )?)(-?\d+\.\d+(?:e[+-]?\d+)?)\b"
+    r"(\b(?:by|best|best value|(?<!error )bound|(?<!error )bound is|D|D_\d+|h|h_\d+) (?:= )?)"
+    r"(-?\d+\.\d+(?:e[+-]?\d+)?)\b"
 )
 
 
@@ -214,12 +223,14 @@ def round_values(text: str, tolerance: Any) -> str:
     """The distance values written inside a sentence of a result file, to the digits ``tolerance`` resolves.
 
     Only numbers after ``by``, ``best``, ``bound``, ``D =``, ``D_k =`` or ``h =`` are values of h
-    (settings such as ``a < 0.02`` or a line count are left as written).
+    (settings such as ``a < 0.02``, a line count or an error bound are left as written).
 
     Examples
     --------
     >>> round_values("bound 0.05857 against best 0.01272; a < 0.02; D = 0.02508 + tolerance", 0.00268)
     'bound 0.059 against best 0.013; a < 0.02; D = 0.025 + tolerance'
+    >>> round_values("it by 1.25 only (cell error bound 1.2); cell error bound is 0.485", 0.006)
+    'it by 1.250 only (cell error bound 1.2); cell error bound is 0.485'
     """
     import re
 

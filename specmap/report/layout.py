@@ -92,6 +92,14 @@ class Pager:
         for i, line in enumerate(textwrap.wrap(text, chars) or [""]):
             self._line(line, size, indent=indent + (0.02 if i else 0.0), **kw)
 
+    def room(self) -> float:
+        """Height left on the current page (figure fraction); 0 without a page."""
+        return max(0.0, self.y - BOTTOM) if self.fig is not None else 0.0
+
+    def height(self, text: str, size: float = TEXT_PT, *, indent: float = 0.0) -> float:
+        """Height :meth:`para` would take for ``text`` (figure fraction)."""
+        return len(self._wrapped(text, size, indent)) * size * 1.45 / 72.0 / A4[1]
+
     def field(self, key: str, value: Any) -> None:
         self.para(f"{key}: {value}")
 

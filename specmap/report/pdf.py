@@ -294,8 +294,24 @@ def _summary_page(pg: Pager, res: dict[str, Any]) -> None:
         edge=edge,
         face=face,
     )
-    for i, n in enumerate(rest, 2):
-        pg.para(f"{i}. [{SEVERITY_NAMES[n.severity]}] {n.title}: {n.text} What to do: {n.todo}", 8)
+    full = [
+        f"{i}. [{SEVERITY_NAMES[n.severity]}] {n.title}: {n.text} What to do: {n.todo}"
+        for i, n in enumerate(rest, 2)
+    ]
+    if sum(pg.height(t, 8) for t in full) <= pg.room():
+        for t in full:
+            pg.para(t, 8)
+        return
+    # page 1 stays one page: the other notes by title, in full on the Findings page
+    titles = [f"{i}. {n.title}" for i, n in enumerate(rest, 2)]
+    for keep in range(len(titles), 0, -1):
+        more = f"; and {len(titles) - keep} more" if keep < len(titles) else ""
+        text = (
+            "Also (in full, with what to do, on the Findings page): " + "; ".join(titles[:keep]) + more + "."
+        )
+        if pg.height(text, 8) <= pg.room():
+            break
+    pg.para(text, 8)
 
 
 def _cover(pg: Pager, res: dict[str, Any]) -> None:
@@ -446,7 +462,7 @@ def _family_counts(ties: list[dict[str, Any]], only: list[int] | None = None) ->
 
 def _special_page(pg: Pager, res: dict[str, Any]) -> None:
     sp = res["special"]
-    sub = pg.page("Special set", 0.55)
+    sub = pg.page("Special set", 0.52)
     _draw("special", "special.json", lambda: _special_figure(res, sub))
     ix = _tie_index(res)
     pg.para(
@@ -511,7 +527,7 @@ def _special_page(pg: Pager, res: dict[str, Any]) -> None:
 def _distance_page(pg: Pager, res: dict[str, Any]) -> None:
     d = res["distance"]
     st = res["study"]
-    sub = pg.page("Matching distance", 0.5)
+    sub = pg.page("Matching distance", 0.44)
     _draw(
         "distance",
         "distance.json",
@@ -570,7 +586,7 @@ def _distance_page(pg: Pager, res: dict[str, Any]) -> None:
 def _perturb_page(pg: Pager, res: dict[str, Any]) -> None:
     s = res["perturb"]["summary"]
     runs = res["perturb"]["runs"]
-    sub = pg.page("Perturbation study", 0.5 if s.get("sweep") else 0.3)
+    sub = pg.page("Perturbation study", 0.45 if s.get("sweep") else 0.3)
     _draw("perturb", "perturb/summary.json", lambda: perturb_figure(s, runs, fig=sub))
     n = s.get("runs")
     ci = fraction_interval(s.get("runs_with_patch_ci95"), n)
@@ -679,6 +695,12 @@ def _findings_page(pg: Pager, res: dict[str, Any]) -> None:
         else:
             pg.para(f"{i}. {sentence}")
         pg.gap(0.4)
+    notes = ranked_notes(res)
+    if notes:
+        pg.heading("Notes, ranked by severity (as on page 1)")
+        for i, n in enumerate(notes, 1):
+            pg.para(f"{i}. [{SEVERITY_NAMES[n.severity]}] {n.title}: {n.text} What to do: {n.todo}", 8.5)
+            pg.gap(0.3)
 
 
 def _stat_rows(d: Any, prefix: str = "") -> list[tuple[str, str]]:

@@ -339,8 +339,11 @@ def breaking_size(sp: dict[str, Any]) -> float:
     return max(xs) if xs else math.nan
 
 
-def reason_sentence(sp: dict[str, Any]) -> str | None:
+def reason_sentence(sp: dict[str, Any], short: bool = False) -> str | None:
     """Why the patches exist, in the words of special.json's ``reasons`` (None without patches).
+
+    ``short`` leaves out the contour lists (page 1 when they are long; the Special set page
+    keeps them).
 
     Each patch component lists one reason per tie that holds on it identically
     (:func:`specmap.special.reasons.tie_reason`): ``equal_spacing`` or ``central_symmetry`` of
@@ -377,7 +380,9 @@ breaks it.'
     said = [
         f"{REASON_WORDS.get(kind, kind.replace('_', ' '))} ({plural(count[kind], 'identity', 'identities')}) "
         "of the critical values of "
-        + " and of ".join(f"{vals} (contours {_ids(ids)})" for vals, ids in sorted(groups.items()))
+        + " and of ".join(
+            vals if short else f"{vals} (contours {_ids(ids)})" for vals, ids in sorted(groups.items())
+        )
         for kind, groups in sorted(by_kind.items())
         if kind != "unexplained"
     ]
@@ -405,10 +410,11 @@ breaks it.'
             else "the patches have"
         )
         parts.append(
-            f"{whose} {plural(count['unexplained'], 'identity', 'identities')} with no closed-form explanation (contours "
-            f"{_ids(ids)}: proper contours, or vertical and horizontal half-lines mixed)"
+            f"{whose} {plural(count['unexplained'], 'identity', 'identities')} with no closed-form explanation ("
+            + ("" if short else f"contours {_ids(ids)}: ")
+            + "proper contours, or vertical and horizontal half-lines mixed)"
         )
-    return head + "; ".join(parts) + "."
+    return head + "; ".join(parts) + ("; the contours are listed on the Special set page." if short else ".")
 
 
 def _evidence(sp: dict[str, Any] | None, kept: int, size: float) -> str:
@@ -456,6 +462,8 @@ def special_lines(res: dict[str, Any]) -> list[str]:
             f"{fmt_pct(sp.get('area_fraction'))} of the window."
         )
         why = reason_sentence(sp)
+        if why is not None and len(why) > 450:  # page 1 stays one page: the contour lists go
+            why = reason_sentence(sp, short=True)
         if why:
             out.append(why)
         elif not int(num((sp.get("counts") or {}).get("patch", 0))):
@@ -591,7 +599,7 @@ def ranked_notes(res: dict[str, Any]) -> list[Note]:
                     Note(
                         sev,
                         f"D_{row.degree} not certified",
-                        row.status[len("not certified: ") :] + ".",
+                        why_sentences(row.status[len("not certified: ") :]),
                         "read D as the best value found; the dense sweep (specmap distance --method "
                         "both) gives an independent value, and a larger line budget may close the "
                         "search.",
