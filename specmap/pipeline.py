@@ -13,6 +13,7 @@ import dataclasses
 import datetime as _dt
 import shlex
 import sys
+from collections.abc import Callable
 from functools import cached_property
 from pathlib import Path
 from typing import Any
@@ -33,7 +34,16 @@ def default_out(study: Study) -> Path:
     return Path("results") / study.name
 
 
-def load_input(spec: ShapeSpec, study: Study) -> tuple[Shape | Grid, dict[str, Any] | None]:
+#: a mesh file at least this large (bytes) is read with progress lines (reading and its checks take
+#: about a minute for 2 M triangles on a busy 2-core machine)
+LARGE_MESH_BYTES = 8_000_000
+#: a mesh with at least this many triangles builds its PL grid with progress lines
+LARGE_GRID_TRIANGLES = 200_000
+
+
+def load_input(
+    spec: ShapeSpec, study: Study, progress: Callable[[int, int], None] | None = None
+) -> tuple[Shape | Grid, dict[str, Any] | None]:
     """What a study gives for f or g, and the record of its simplification (None when not simplified).
 
     The first item is a :class:`Shape` (surface or mesh) or the :class:`Grid` of a grid file
@@ -47,7 +57,9 @@ def load_input(spec: ShapeSpec, study: Study) -> tuple[Shape | Grid, dict[str, A
     from specmap.shapes.build import build_shape  # local: meshio, scipy and the expression compiler
     from specmap.shapes.normality import out_of_range
 
-    shape = build_shape(spec, study)  # with insist = true a non-normal pair is built, its reason in meta
+    shape = build_shape(
+        spec, study, **({"progress": progress} if progress else {})
+    )  # with insist = true a non-normal pair is built, its reason in meta
     if shape.meta.get("not_normal"):
         print(
             f"specmap: note: {spec.label}: {shape.meta['not_normal']}: not a normal pair; going on because "
@@ -201,7 +213,21 @@ class StudyRun:
     # -- stages -----------------------------------------------------------
     @cached_property
     def _loaded(self) -> tuple[tuple[Shape | Grid, dict | None], tuple[Shape | Grid, dict | None]]:
-        return load_input(self.study.f, self.study), load_input(self.study.g, self.study)
+        f, g = self.study.f, self.study.g
+        return (
+            load_input(f, self.study, self._input_progress(f)),
+            load_input(g, self.study, self._input_progress(g)),
+        )
+
+    def _input_progress(self, spec: ShapeSpec) -> Progress | None:
+        """Progress lines for reading a large mesh file (:data:`LARGE_MESH_BYTES`), else None."""
+        if not self.show_progress or spec.source != "mesh" or spec.path is None:
+            return None
+        try:
+            size = Path(spec.path).stat().st_size
+        except OSError:  # reading it gives the one-line error
+            return None
+        return self.progress(f"mesh {spec.label}") if size >= LARGE_MESH_BYTES else None
 
     @property
     def inputs(self) -> tuple[Shape | Grid, Shape | Grid]:
@@ -229,7 +255,13 @@ class StudyRun:
                 out.append(x)
                 continue
             try:
-                out.append(pareto_grid(x, spec.grid_settings, simplification=rec))
+                big = (
+                    self.show_progress
+                    and x.triangles is not None
+                    and len(x.triangles) >= LARGE_GRID_TRIANGLES
+                )
+                progress = self.progress(f"grid {spec.label}") if big else None
+                out.append(pareto_grid(x, spec.grid_settings, simplification=rec, progress=progress))
             except SpecmapInputError as exc:  # core words; the study file and its key are known here
                 raise self.located(exc, spec.label) from None
         return out[0], out[1]

@@ -12,6 +12,7 @@ A grid given by a file is read with :func:`read_grid` and is already a
 from __future__ import annotations
 
 import dataclasses
+from collections.abc import Callable
 from typing import TYPE_CHECKING
 
 from specmap.errors import UnsupportedInputError
@@ -73,7 +74,11 @@ def route_for(shape: Shape, route: str = "auto") -> str:
 
 
 def pareto_grid(
-    shape: Shape, settings: GridSettings | None = None, *, simplification: dict | None = None
+    shape: Shape,
+    settings: GridSettings | None = None,
+    *,
+    simplification: dict | None = None,
+    progress: Callable[[int, int], None] | None = None,
 ) -> Grid:
     """The extended Pareto grid of a shape [CEF19].
 
@@ -88,6 +93,8 @@ def pareto_grid(
         PL route only: the record of :func:`specmap.simplify.simplify_values` when the
         shape's values were simplified; copied into ``meta["simplification"]`` (``delta``,
         ``sup_change``, ``contours_before``, ``contours_after``, ...).
+    progress : callable ``(done, total)``, optional
+        PL route only: passed to :func:`piecewise_grid` (five steps).
 
     Returns
     -------
@@ -106,7 +113,7 @@ def pareto_grid(
         assert (
             V is not None and T is not None and vals is not None
         )  # route_for gives piecewise to meshes only
-        grid = piecewise_grid(V, T, vals, label=label)
+        grid = piecewise_grid(V, T, vals, label=label, progress=progress)
         hygiene = shape.meta.get("hygiene")
         if hygiene:  # what reading the mesh cleaned (loose/duplicate vertices, collapsed triangles)
             grid = dataclasses.replace(grid, meta={**grid.meta, "mesh_hygiene": dict(hygiene)})

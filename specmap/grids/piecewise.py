@@ -55,6 +55,7 @@ References
 
 from __future__ import annotations
 
+from collections.abc import Callable
 from dataclasses import dataclass
 
 import numpy as np
@@ -231,6 +232,7 @@ def piecewise_grid(
     values: np.ndarray,
     *,
     label: str = "f",
+    progress: Callable[[int, int], None] | None = None,
 ) -> Grid:
     """Extended Pareto grid of the PL map given by vertex values on a closed triangle mesh.
 
@@ -248,6 +250,9 @@ def piecewise_grid(
         vertical, ``"<label>:h<k>"`` horizontal. Every Pareto piece is kept; to
         remove short-lived critical pairs, simplify the values first
         (:func:`specmap.simplify.simplify_values`).
+    progress : callable ``(done, total)``, optional
+        Called after each of the five steps (edge table, critical vertices of f1, of f2,
+        Pareto edges, pieces), so a mesh of millions of triangles is not silent.
 
     Returns
     -------
@@ -270,10 +275,15 @@ def piecewise_grid(
     n = len(np.asarray(V))
     if F.shape != (n, 2):
         raise ValueError(f"values have shape {F.shape}, expected ({n}, 2)")
+    step = progress or (lambda done, total: None)
     table = edges_and_faces(T)
+    step(1, 5)
     crit1 = pl_critical_vertices(T, F[:, 0])
+    step(2, 5)
     crit2 = pl_critical_vertices(T, F[:, 1])
+    step(3, 5)
     mask = pareto_edges(T, F, table)
+    step(4, 5)
     pe = table.edges[mask]
     r1 = vertex_ranks(F[:, 0])
     cut = np.zeros(n, dtype=bool)
@@ -296,4 +306,6 @@ def piecewise_grid(
     }
     grid = Grid(tuple(contours), route="piecewise", tolerance=tolerance, meta=meta)
     span = float(np.ptp(F[:, 0]) + np.ptp(F[:, 1])) if n else 0.0
-    return validate_grid(grid, tol=1e-12 * max(span, 1.0))
+    grid = validate_grid(grid, tol=1e-12 * max(span, 1.0))
+    step(5, 5)
+    return grid

@@ -20,8 +20,15 @@ from specmap.shapes.normality import degeneracy
 from specmap.shapes.steep import STEEP_LIMIT, steepest
 from specmap.shapes.surfaces import make_surface
 
+#: checkpoints of :func:`build_shape` reported to its ``progress`` callback
+BUILD_STEPS = 5
 
-def build_shape(spec, study) -> Shape:
+
+def _no_progress(done: int, total: int) -> None:
+    """Default ``progress`` of :func:`build_shape`: draws nothing."""
+
+
+def build_shape(spec, study, progress=_no_progress) -> Shape:
     """Load or construct the surface or mesh a study names for f or g.
 
     Parameters
@@ -30,6 +37,9 @@ def build_shape(spec, study) -> Shape:
         ``spec.source`` is ``"surface"`` or ``"mesh"``.
     study : Study
         For its file name (errors) and constants (expressions).
+    progress : callable ``(done, total)``, optional
+        Called after each of the :data:`BUILD_STEPS` checkpoints (mesh read or surface meshed,
+        values, domain check, gradient check, normality check), so a large mesh is not silent.
 
     A constant component or a dependent pair is refused unless ``spec.insist``; then its reason
     is kept in ``meta["not_normal"]``.
@@ -56,12 +66,17 @@ def build_shape(spec, study) -> Shape:
     if spec.source == "surface":
         surface = make_surface(spec.surface, spec.radii)
         V, T = surface.mesh(spec.resolution)
+        progress(1, BUILD_STEPS)
         assert fmap is not None  # the study loader requires a map for a surface
         values = fmap.values(V)
         _check_values(values, file, f"{label}.map")
+        progress(2, BUILD_STEPS)
         _check_domain(fmap, V, T, file, f"{label}.map")
+        progress(3, BUILD_STEPS)
         _check_steep(fmap, V, T, surface, file, f"{label}.map")
+        progress(4, BUILD_STEPS)
         why = _check_normal(V, T, values, fmap.jacobian(V), file, f"{label}.map", insist=spec.insist)
+        progress(5, BUILD_STEPS)
         return Shape(
             label,
             "surface",
@@ -75,6 +90,7 @@ def build_shape(spec, study) -> Shape:
         )  # settings (route, resolution) travel in GridSettings
     hygiene: dict = {}
     V, T, fields = read_mesh(spec.path, fields=spec.fields, counts=hygiene)
+    progress(1, BUILD_STEPS)
     mesh_values = fmap.values(V) if fmap is not None else fields
     if mesh_values is None:
         raise StudyError(
@@ -89,9 +105,13 @@ def build_shape(spec, study) -> Shape:
         str(spec.path) if fmap is None else file,
         f"{label}.fields" if fmap is None else f"{label}.map",
     )
+    progress(2, BUILD_STEPS)
     if fmap is not None:
         _check_domain(fmap, V, T, file, f"{label}.map")
+    progress(3, BUILD_STEPS)
+    if fmap is not None:
         _check_steep(fmap, V, T, None, file, f"{label}.map")
+    progress(4, BUILD_STEPS)
     why = _check_normal(
         V,
         T,
@@ -101,6 +121,7 @@ def build_shape(spec, study) -> Shape:
         f"{label}.map" if fmap is not None else f"{label}.fields",
         insist=spec.insist,
     )
+    progress(5, BUILD_STEPS)
     return Shape(
         label,
         "mesh",
