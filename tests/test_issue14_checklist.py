@@ -143,13 +143,13 @@ CHECKLIST: dict[str, list[str]] = {
     "distance --jobs 1 and 2: same search metadata": [
         "test_fingerprint.py::test_jobs_do_not_change_the_search"
     ],
+    "progress for long silent stages (a 2M-face mesh's grid)": [
+        "test_stage_progress.py::test_large_mesh_and_grid_print_each_step",
+        "test_stage_progress.py::test_small_inputs_stay_quiet",
+    ],
 }
 
 MISSING: dict[str, str] = {
-    "progress for long silent stages (a 2M-face mesh's grid)": (
-        "the grid stage draws no progress yet (pipeline/grids are outside this checklist's files); "
-        "the map, tiles, distance and perturbation stages do"
-    ),
     "the README's memory figures measured and corrected": "a benchmark (tests/benchmarks/bench_tiles.py), not a test",
 }
 

@@ -31,7 +31,15 @@ gf, gg = random_pair(3, n)
 s, _ = random_pair(1, 4)
 special_set(s, _, w, resolution=9)  # load the compiled kernels outside the timing
 t = time.perf_counter()
-if (na, nb) == (1, 1):
+workers = {workers}
+if workers:  # 2 x 2 tiles on a local Dask cluster of that many single-threaded worker processes
+    from distributed import LocalCluster
+    cl = LocalCluster(n_workers=workers, threads_per_worker=1, processes=True, dashboard_address=None)
+    tiled_special_set(s, _, w, tiles=(2, 1), settings=MapSettings(resolution=9), cluster=cl.scheduler_address)
+    t = time.perf_counter()
+    at = tiled_special_set(gf, gg, w, tiles=(na, nb), settings=MapSettings(resolution=res),
+        cluster=cl.scheduler_address)
+elif (na, nb) == (1, 1):
     at = special_set(gf, gg, w, resolution=res)
 else:
     at = tiled_special_set(gf, gg, w, tiles=(na, nb), settings=MapSettings(resolution=res))
@@ -42,8 +50,8 @@ print(json.dumps({{"seconds": dt, "peak_rss": resource.getrusage(resource.RUSAGE
 """
 
 
-def run_case(n: int, res: int, tiles: tuple[int, int]) -> dict:
-    code = CHILD.format(tests=str(HERE.parent), n=n, res=res, na=tiles[0], nb=tiles[1])
+def run_case(n: int, res: int, tiles: tuple[int, int], workers: int = 0) -> dict:
+    code = CHILD.format(tests=str(HERE.parent), n=n, res=res, na=tiles[0], nb=tiles[1], workers=workers)
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
     return json.loads(out.stdout.strip().splitlines()[-1])
 
@@ -51,10 +59,15 @@ def run_case(n: int, res: int, tiles: tuple[int, int]) -> dict:
 def main(argv: list[str]) -> None:
     n = int(argv[0]) if argv else 40
     res = int(argv[1]) if len(argv) > 1 else 81
-    cases = [(1, 1)] + [tuple(int(x) for x in t.split("x")) for t in (argv[2:] or ["2x2", "3x3"])]
+    # a case "2x2" runs in this process; "dask2" is 2 x 2 tiles on a LocalCluster of 2 workers
+    cases = [(1, 1, 0)] + [
+        (2, 2, int(t[4:])) if t.startswith("dask") else (*(int(x) for x in t.split("x")), 0)
+        for t in (argv[2:] or ["2x2", "3x3"])
+    ]
     rows = []
-    for t in cases:
-        r = run_case(n, res, t)  # type: ignore[arg-type]
+    for na, nb, workers in cases:
+        r = run_case(n, res, (na, nb), workers)
+        t = (na, nb, workers)
         rows.append((t, r))
         print(t, r, flush=True)
     base = rows[0][1]
@@ -62,21 +75,28 @@ def main(argv: list[str]) -> None:
     lines = [
         "# Atlas in one piece vs tiles (tests/benchmarks/bench_tiles.py)",
         "",
-        f"Random pair of {n} contours (gridgen seed 3), {res} x {res} lattice, pairs all, one process; "
+        f"Random pair of {n} contours (gridgen seed 3), {res} x {res} lattice, pairs all; "
         f"load average at the end {load[0]:.2f} on {os.cpu_count()} cores. Tiled crossings count the "
-        "halo cells in each tile that maps them.",
+        "halo cells in each tile that maps them. Dask rows: peak RSS is the driver's only (the "
+        "workers are other processes).",
         "",
         "| plan | time (s) | peak RSS (GB) | crossings | tie curves | components | time ratio | memory ratio |",
         "|---|---|---|---|---|---|---|---|",
     ]
     for t, r in rows:
         lines.append(
-            f"| {'one piece' if t == (1, 1) else f'{t[0]} x {t[1]} tiles'} | {r['seconds']:.1f} | "
+            f"| {_name(t)} | {r['seconds']:.1f} | "
             f"{r['peak_rss'] / 1e9:.2f} | {r['crossings']:,} | {r['tie_curves']:,} | {r['components']} | "
             f"{r['seconds'] / base['seconds']:.2f} | {r['peak_rss'] / base['peak_rss']:.2f} |"
         )
     (HERE / "results_tiles.md").write_text("\n".join(lines) + "\n")
     print("\n".join(lines))
+
+
+def _name(t: tuple[int, int, int]) -> str:
+    if t[2]:
+        return f"{t[0]} x {t[1]} tiles, Dask {t[2]} worker{'s' if t[2] > 1 else ''}"
+    return "one piece" if t[:2] == (1, 1) else f"{t[0]} x {t[1]} tiles"
 
 
 if __name__ == "__main__":
