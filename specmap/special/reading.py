@@ -50,15 +50,23 @@ def shared_slots(table: PairTable, codes: np.ndarray) -> np.ndarray:
     return out
 
 
-def coincident(table: PairTable, triples: np.ndarray, a: np.ndarray, b: np.ndarray) -> np.ndarray:
+def coincident(
+    table: PairTable,
+    triples: np.ndarray,
+    a: np.ndarray,
+    b: np.ndarray,
+    flat: FlatContours | None = None,
+) -> np.ndarray:
     """Whether each line (a[k], b[k]) lies on the branch s_β = s_δ of its triple (α, β, δ).
 
     Of the two branches of |s_α − s_β| = |s_α − s_δ| the nearer one is taken: the residuals
-    |s_β − s_δ| and |s_β + s_δ − 2 s_α| are compared at the line.
+    |s_β − s_δ| and |s_β + s_δ − 2 s_α| are compared at the line. ``flat``: the table's
+    contours as :class:`FlatContours` when the caller has them (built here otherwise).
     """
     slots = np.ascontiguousarray(triples, dtype=np.int64)
+    flat = FlatContours.of(table.contours) if flat is None else flat
     s, _ = slot_params(
-        *FlatContours.of(table.contours).args,
+        *flat.args,
         slots,
         np.ascontiguousarray(a, dtype=float),
         np.ascontiguousarray(b, dtype=float),
@@ -106,28 +114,49 @@ def _kept_runs(lines: list, drop_seg: np.ndarray, seg_line: np.ndarray) -> tuple
     return out, touched
 
 
-def _curve_reading(table: PairTable, triple: np.ndarray, geom) -> tuple[list, int]:
-    """The parts of a curve piece off the coincidence branch, decided vertex by vertex.
+def _curves_reading(
+    table: PairTable, triples: np.ndarray, geoms: list, flat: FlatContours
+) -> list[tuple[list, int]]:
+    """The parts of curve pieces off the coincidence branch, decided vertex by vertex.
 
     Every vertex of a traced curve is a zero of the tie's residual (a refined crossing or a
     domain end), so it lies on one of the two branches; a segment is dropped when both its
     ends lie on the coincidence branch (segments from one branch to the other, which meet
     only where three contours meet the line in one point, are kept). The decision is local:
     a piece of the curve, e.g. in a tile of the window, is read as the whole curve is.
+
+    All pieces at once (one coordinate read, one compiled evaluation); ``triples[k]`` is the
+    (α, β, δ) of ``geoms[k]``. Returns per piece (kept lines, lines that lost a segment).
     """
-    lines = list(shapely.get_parts(geom))
-    xy, idx = shapely.get_coordinates(np.array(lines, dtype=object), return_index=True)
-    same = coincident(table, np.broadcast_to(triple, (len(xy), 3)), xy[:, 0], xy[:, 1])
+    parts = [list(shapely.get_parts(g)) for g in geoms]
+    n_lines = np.array([len(p) for p in parts], dtype=np.int64)
+    first_line = np.r_[0, np.cumsum(n_lines)].astype(np.int64)
+    lines = np.empty(int(first_line[-1]), dtype=object)
+    lines[:] = [ln for p in parts for ln in p]
+    if not len(lines):
+        return [([], 0) for _ in geoms]
+    xy, idx = shapely.get_coordinates(lines, return_index=True)
+    piece_of_line = np.repeat(np.arange(len(geoms)), n_lines)
+    same = coincident(table, triples[piece_of_line[idx]], xy[:, 0], xy[:, 1], flat)
     seg = idx[1:] == idx[:-1]
     drop = (same[1:] & same[:-1])[seg]
-    kept, touched = _kept_runs(lines, drop, idx[:-1][seg].astype(np.int64))
-    return kept, int(touched.sum())
+    seg_line = idx[:-1][seg].astype(np.int64)
+    bounds = np.searchsorted(seg_line, first_line)  # segments of piece k: bounds[k] .. bounds[k + 1]
+    out = []
+    for k, p in enumerate(parts):
+        d = drop[bounds[k] : bounds[k + 1]]
+        if not d.any():
+            out.append((p, 0))
+            continue
+        kept, touched = _kept_runs(p, d, seg_line[bounds[k] : bounds[k + 1]] - first_line[k])
+        out.append((kept, int(touched.sum())))
+    return out
 
 
 def points_reading(table: PairTable, items: list[tuple[int, str, object]]) -> tuple[list, dict[str, int]]:
     """Drop the parts of tie pieces that lie on a coincidence branch (see the module text).
 
-    Curves are read segment by segment (:func:`_curve_reading`), points one by one, patches
+    Curves are read segment by segment, all at once (:func:`_curves_reading`), points one by one, patches
     by an inner point of each part.
 
     Parameters
@@ -146,24 +175,30 @@ def points_reading(table: PairTable, items: list[tuple[int, str, object]]) -> tu
     removed = {"curves": 0, "points": 0, "patches": 0}
     codes = np.array([c for c, _, _ in items], dtype=np.int64)
     triples = shared_slots(table, codes) if len(items) else np.empty((0, 3), np.int64)
+    flat = FlatContours.of(table.contours) if (triples[:, 0] >= 0).any() else None
     probes, owner = [], []
-    curves: dict[int, list] = {}
+    on_curve = []
     for k, (_, kind, geom) in enumerate(items):
         if triples[k, 0] < 0:
             continue
         if kind == "curve":
-            kept_lines, n_touched = _curve_reading(table, triples[k], geom)
-            curves[k] = kept_lines
-            removed["curves"] += n_touched
+            on_curve.append(k)
         else:
             pts = _probe(geom)
             probes.extend(pts)
             owner.extend([k] * len(pts))
+    curves: dict[int, list] = {}
+    if on_curve:
+        assert flat is not None
+        read = _curves_reading(table, triples[on_curve], [items[k][2] for k in on_curve], flat)
+        for k, (kept_lines, n_touched) in zip(on_curve, read, strict=True):
+            curves[k] = kept_lines
+            removed["curves"] += n_touched
     drop_of: dict[int, np.ndarray] = {}
     if probes:
         P = np.array(probes, dtype=float)
         own = np.array(owner, dtype=np.int64)
-        same = coincident(table, triples[own], P[:, 0], P[:, 1])
+        same = coincident(table, triples[own], P[:, 0], P[:, 1], flat)
         for k in np.unique(own):
             drop_of[int(k)] = same[own == k]
     kept = []
