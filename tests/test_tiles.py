@@ -119,6 +119,30 @@ def test_tiled_atlas_is_the_one_piece_atlas(seed, pairs):
             assert_same_atlas(one, tiled_special_set(gf, gg, WINDOW, tiles=t, settings=ms))
 
 
+def test_a_cell_search_stays_within_its_tie():
+    # construction: the crossings of each tie are a sorted slice of one array; a search in the
+    # slice [0, 2) for the value at index 2 (the next tie's first crossing) finds nothing
+    from specmap.special.compiled.curves import _find_sorted
+
+    edges = np.array([1, 3, 5, 7], dtype=np.int64)
+    assert _find_sorted(edges, 0, 2, 3) == 1
+    assert _find_sorted(edges, 0, 2, 5) == -1  # was 2: a chord to another tie's crossing
+    assert _find_sorted(edges, 2, 4, 5) == 2 and _find_sorted(edges, 0, 4, 9) == -1
+
+
+def test_smallest_case_that_differed_in_tiles():
+    # reference: the one-piece atlas (special_set). Found by a scan of random pairs: 12
+    # contours, 31 x 31, 3 x 3 tiles gave a tie curve more than one piece (the cell search of
+    # the marching squares read one crossing past its tie's slice, and which crossing comes
+    # next depends on the lattice's edge numbering, so on the tile)
+    gf, gg = random_pair(5, 12)
+    one = special_set(gf, gg, WINDOW, resolution=31, reading="contours")
+    tiled = tiled_special_set(
+        gf, gg, WINDOW, tiles=(3, 3), settings=MapSettings(resolution=31, reading="contours")
+    )
+    assert_same_atlas(one, tiled)
+
+
 @pytest.mark.parametrize("seed", [1, 5])
 def test_tiled_atlas_is_the_one_piece_atlas_at_14_contours(seed):
     # reference: the untiled atlas (specmap.special.compute.special_set); 14 contours give

@@ -11,14 +11,19 @@ from specmap.special.compiled.lattice import edge_side_cell
 
 @numba.njit(cache=True, nogil=True, error_model="numpy")
 def _find_sorted(arr, lo, hi, x):
-    """Index of ``x`` in the sorted slice arr[lo:hi], -1 if absent."""
+    """Index of ``x`` in the sorted slice arr[lo:hi], -1 if absent.
+
+    Only the slice is searched: ``arr[hi]`` (the next tie's first crossing in
+    :func:`march_cells`) is never a match.
+    """
+    end = hi
     while lo < hi:
         mid = (lo + hi) // 2
         if arr[mid] < x:
             lo = mid + 1
         else:
             hi = mid
-    return lo if lo < arr.size and arr[lo] == x else -1
+    return lo if lo < end and arr[lo] == x else -1
 
 
 @numba.njit(cache=True, nogil=True, error_model="numpy")
