@@ -396,6 +396,9 @@ class StudyRun:
                 tiles=ms.tiles,
                 jobs=self.map_jobs,
                 file=str(self.study.path),
+                pairs=ms.pairs,
+                simplified=self.simplification,
+                max_contours=ms.max_contours,
             )
             if plan.tiled:
                 if self.show_progress:

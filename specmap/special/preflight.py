@@ -144,8 +144,7 @@ def check_atlas_size(
             f"{_size(budget)} (half of this machine's memory)",
             file=file,
             field="map",
-            fix='set simplify = "auto" (or a delta) on the mesh shapes, use --pairs roles, a coarser '
-            "--resolution, or specmap distance --method dense, which needs no map",
+            fix=map_remedies(n_f, n_g, resolution, budget=budget),
         )
     return est
 
@@ -257,6 +256,9 @@ def plan_atlas(
     tiles: tuple[int, int] | None = None,
     jobs: int = 1,
     file: str | None = None,
+    pairs: str = "all",
+    simplified: tuple[dict | None, dict | None] = (None, None),
+    max_contours: int | None = None,
 ) -> AtlasPlan:
     """The plan of the atlas under ``budget`` (bytes; default :func:`memory_budget`).
 
@@ -264,7 +266,8 @@ def plan_atlas(
     estimate fits the budget, the fewest tiles (near-square, rows of cells first) whose
     estimate fits, one piece when no budget was given and the estimate is within twice the
     default (the estimate is coarse: the refusal of the one-piece preflight), or a one-line
-    refusal.
+    refusal. ``pairs``, ``simplified`` (the simplification records of f and g) and
+    ``max_contours`` only shape the refusal's remedies (:func:`map_remedies`).
 
     Raises
     ------
@@ -309,6 +312,104 @@ def plan_atlas(
         f"{max_a} x {max_b} tiles, over the budget {_size(budget)} ({whose})",
         file=file,
         field="map",
-        fix='set simplify = "auto" (or a delta) on the mesh shapes, use --pairs roles, a coarser '
-        "--resolution, a larger --memory, or specmap distance --method dense, which needs no map",
+        fix=map_remedies(
+            n_f,
+            n_g,
+            resolution,
+            budget=budget,
+            given_budget=given_budget,
+            jobs=jobs,
+            pairs=pairs,
+            simplified=simplified,
+            max_contours=max_contours,
+        ),
     )
+
+
+def _least_bytes(n: int, resolution: int | tuple[int, int], jobs: int) -> tuple[AtlasEstimate, float]:
+    """The estimate of ``n`` contours in all and the smallest expected peak of any plan (one piece or tiles)."""
+    est = estimate_atlas(n, 0, resolution)
+    n_a, n_b = (resolution, resolution) if isinstance(resolution, int) else resolution
+    tiles = (max(1, (n_a - 1) // MIN_TILE_CELLS), max(1, (n_b - 1) // MIN_TILE_CELLS))
+    return est, min(est.bytes, _tiles_bytes(est, n_a, n_b, tiles, jobs))
+
+
+def _fits(n: int, resolution: int | tuple[int, int], budget: float, given_budget: bool, jobs: int) -> bool:
+    """Whether :func:`plan_atlas` would accept ``n`` contours in all at ``resolution`` (its rules)."""
+    est, least = _least_bytes(n, resolution, jobs)
+    return least <= budget or (not given_budget and est.bytes <= 2 * budget)
+
+
+def map_remedies(
+    n_f: int,
+    n_g: int,
+    resolution: int | tuple[int, int],
+    *,
+    budget: float,
+    given_budget: bool = False,
+    jobs: int = 1,
+    pairs: str = "all",
+    simplified: tuple[dict | None, dict | None] = (None, None),
+    max_contours: int | None = None,
+) -> str:
+    """The remedies of a refused map, from what is already set: only those that change the outcome.
+
+    ``simplified`` holds the simplification record of f and g (``setting`` "auto" or a delta,
+    ``contours_after``, ``budget``, ``met``; None for a side not simplified). Without
+    simplification the first remedy is ``simplify = "auto"``; with ``"auto"`` that met its
+    budget it is a lower ``[map] max_contours`` with the per-grid count this estimate fits
+    (the estimate depends on the total count only); with ``"auto"`` that stopped at its cap,
+    lowering the budget changes nothing (the same pair comes out), so a coarser mesh is named.
+    A coarser ``--resolution`` and a larger ``--memory`` are named only when some value fits:
+    the largest resolution from 11 up, the smallest plan's peak when it is within the machine's
+    memory (twice :func:`memory_budget`). ``--pairs roles`` only when not already set. The
+    distance methods that need no whole map close the list.
+
+    Examples
+    --------
+    >>> auto = {"setting": "auto", "contours_after": 54, "budget": 60, "met": True}
+    >>> fix = map_remedies(97, 54, 61, budget=12e9, pairs="roles", simplified=(auto, auto))
+    >>> "max_contours" in fix and "--pairs roles" not in fix and 'set simplify = "auto"' not in fix
+    True
+    """
+    n = int(n_f) + int(n_g)
+    counts = (int(n_f), int(n_g))
+    out = []
+    fit_n = next((k for k in range(n - 1, 1, -1) if _fits(k, resolution, budget, given_budget, jobs)), 0)
+    if simplified[0] is None and simplified[1] is None:
+        out.append('set simplify = "auto" (or a delta) on the mesh shapes')
+    lowered = []  # sides whose count follows max_contours: "auto" that met its budget
+    for label, rec, count in zip("fg", simplified, counts, strict=True):
+        if rec is None:
+            continue
+        if rec.get("setting") != "auto":
+            out.append(f"a larger simplify delta on {label}")
+        elif rec.get("met") is False:
+            out.append(
+                f'{label}: simplify = "auto" stopped at {count} contours within its cap (budget '
+                f"{rec.get('budget')} not met; a lower max_contours gives the same pair): a coarser or "
+                f"smoother mesh of {label}"
+            )
+        else:
+            lowered.append(label)
+    if lowered:
+        fixed = sum(c for lab, c in zip("fg", counts, strict=True) if lab not in lowered)
+        room = (fit_n - fixed) // len(lowered)
+        now = f" (now {max_contours})" if max_contours is not None else ""
+        if room >= 2:
+            where = "per grid" if len(lowered) == 2 else f"on {lowered[0]}"
+            out.append(f"a lower [map] max_contours{now}: about {room} contours {where} fit this budget")
+    if pairs != "roles":
+        out.append("--pairs roles")
+    n_a, n_b = (resolution, resolution) if isinstance(resolution, int) else resolution
+    side = max(int(n_a), int(n_b))
+    coarser = next((r for r in range(side - 1, 10, -1) if _fits(n, r, budget, given_budget, jobs)), None)
+    if coarser is not None:
+        out.append(f"--resolution {coarser}")
+    _, least = _least_bytes(n, resolution, jobs)
+    if least > budget and least <= 2 * memory_budget():
+        out.append(f"--memory {_size(least * 1.05)} (tiles then fit)")
+    out.append(
+        "or specmap distance: --method dense needs no map, --method reduced maps only the ties that can be D"
+    )
+    return ", ".join(out[:-1]) + (", " if len(out) > 1 else "") + out[-1]
