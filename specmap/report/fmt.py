@@ -52,6 +52,11 @@ def fmt(x: Any, digits: int = 4) -> str:
     --------
     >>> fmt(0.41234), fmt("inf"), fmt(None), fmt(0.001)
     ('0.4123', 'inf', 'n/a', '0.001')
+
+    Below a million no exponent is written (a length of 1580.3 reads ``1580``, not ``1.58e+03``):
+
+    >>> fmt(1580.3, 3), fmt(12446.0), fmt(-2.5e5, 2), fmt(1.264e10)
+    ('1580', '12450', '-250000', '1.264e+10')
     """
     if x is None:
         return "n/a"
@@ -60,7 +65,10 @@ def fmt(x: Any, digits: int = 4) -> str:
         return "nan"
     if math.isinf(v):
         return "inf" if v > 0 else "-inf"
-    return f"{v:.{digits}g}"
+    text = f"{v:.{digits}g}"
+    if "e+" in text and abs(v) < 1e6:
+        text = f"{float(text):.0f}"
+    return text
 
 
 MAX_DIGITS = 6

@@ -51,7 +51,7 @@ from specmap.report.fmt import (
     nums,
     plural,
 )
-from specmap.report.layout import RED, Pager
+from specmap.report.layout import RED, Pager, fit_plots
 from specmap.report.load import STAGE_VERB, load_results
 from specmap.report.summary import (
     SEVERITY_NAMES,
@@ -144,23 +144,47 @@ def _crit_change(before: Any, after: Any) -> str:
 def simplification_words(rec: dict[str, Any]) -> str:
     """A simplification record (:func:`specmap.simplify.simplify_values`) in one sentence.
 
+    It names the method (``method`` of the record: ``joint`` is the tube, fold straightening and
+    persistence at 2 tau of :mod:`specmap.jacobi_smooth`, with the bound 4 tau on the change;
+    ``persistence`` cancels the critical pairs of persistence below delta, changing each
+    function by at most delta [EMP06]) and the measured sup-norm change of f1 and f2.
+
     Examples
     --------
-    >>> simplification_words({"setting": "auto", "delta": 0.05, "sup_change": [0.049, 0.03],
-    ...     "contours_before": 40, "contours_after": 12, "budget": 60, "met": True,
-    ...     "critical_before": {"f1": {"min": 5, "max": 4}}, "critical_after": {"f1": {"min": 1, "max": 1}}})
-    'simplified with delta 0.05 (chosen automatically for a budget of 60 contours, met): contours 40 -> 12; \
-measured change f1 0.049, f2 0.03; critical vertices f1 min 5 -> 1, max 4 -> 1'
+    >>> simplification_words({"setting": "auto", "method": "joint", "tube": 0.0125, "delta": 0.05,
+    ...     "sup_change": [0.049, 0.03], "contours_before": 40, "contours_after": 12, "budget": 60,
+    ...     "met": True, "critical_before": {"f1": {"min": 5, "max": 4}},
+    ...     "critical_after": {"f1": {"min": 1, "max": 1}}})
+    'simplified jointly (tube 0.0125, fold straightening, persistence at 2 tau; chosen automatically for a budget of 60 contours, met): contours 40 -> 12; measured sup-norm change f1 0.049, f2 0.03 (bound 4 tau = 0.05); critical vertices f1 min 5 -> 1, max 4 -> 1'
+    >>> simplification_words({"setting": 0.1, "method": "persistence", "delta": 0.1,
+    ...     "sup_change": [0.08, 0.0], "contours_before": 9, "contours_after": 5})
+    'simplified by persistence at delta 0.1 (pairs of persistence below delta cancelled): contours 9 -> 5; measured sup-norm change f1 0.08, f2 0 (at most delta)'
     """
     how = ""
     if rec.get("setting") == "auto":
         met = {True: "met", False: "not met"}.get(rec.get("met"), "n/a")
-        how = f" (chosen automatically for a budget of {rec.get('budget', 'n/a')} contours, {met})"
+        how = f"chosen automatically for a budget of {rec.get('budget', 'n/a')} contours, {met}"
     sup = rec.get("sup_change") or []
     change = ", ".join(f"f{i + 1} {fmt(x, 3)}" for i, x in enumerate(sup)) if isinstance(sup, list) else "n/a"
+    delta = fmt(rec.get("delta"), 3)
+    if rec.get("method") == "joint" and rec.get("tube") is None:  # the pair was left as it is
+        return (
+            f"not simplified ({how or 'joint method'}): contours {rec.get('contours_before', 'n/a')}; "
+            f"measured sup-norm change {change}"
+        )
+    if rec.get("method") == "joint":
+        tube = rec.get("tube")
+        what = f"jointly (tube {fmt(tube, 3)}, fold straightening, persistence at 2 tau" + (
+            f"; {how})" if how else ")"
+        )
+        bound = f" (bound 4 tau = {delta})"
+    else:  # "persistence", and records written before ``method`` was stored
+        what = "by persistence at delta " + delta + " (pairs of persistence below delta cancelled"
+        what += f"; {how})" if how else ")"
+        bound = " (at most delta)"
     text = (
-        f"simplified with delta {fmt(rec.get('delta'), 3)}{how}: contours {rec.get('contours_before', 'n/a')} "
-        f"-> {rec.get('contours_after', 'n/a')}; measured change {change}"
+        f"simplified {what}: contours {rec.get('contours_before', 'n/a')} "
+        f"-> {rec.get('contours_after', 'n/a')}; measured sup-norm change {change}{bound}"
     )
     crit = _crit_change(rec.get("critical_before"), rec.get("critical_after"))
     return text + (f"; critical vertices {crit}" if crit else "")
@@ -377,17 +401,18 @@ def _cover(pg: Pager, res: dict[str, Any]) -> None:
 def _grids_page(pg: Pager, res: dict[str, Any]) -> None:
     sub = pg.page("Extended Pareto grids", 0.6)
     at = (res.get("distance") or {}).get("at")
-    _draw(
-        "grids",
-        "grid_f.json / grid_g.json",
-        lambda: grids_figure(
-            res.get("grid_f"),
-            res.get("grid_g"),
-            fig=sub,
-            line=at,
-            line_label="line r(a, b) where D is reached" if at else None,
-        ),
-    )
+    if sub is not None:
+        _draw(
+            "grids",
+            "grid_f.json / grid_g.json",
+            lambda: grids_figure(
+                res.get("grid_f"),
+                res.get("grid_g"),
+                fig=sub,
+                line=at,
+                line_label="line r(a, b) where D is reached" if at else None,
+            ),
+        )
     for name in ("f", "g"):
         grid = res.get(f"grid_{name}")
         if grid is None:
@@ -463,7 +488,8 @@ def _family_counts(ties: list[dict[str, Any]], only: list[int] | None = None) ->
 def _special_page(pg: Pager, res: dict[str, Any]) -> None:
     sp = res["special"]
     sub = pg.page("Special set", 0.52)
-    _draw("special", "special.json", lambda: _special_figure(res, sub))
+    if sub is not None:
+        _draw("special", "special.json", lambda: _special_figure(res, sub))
     ix = _tie_index(res)
     pg.para(
         f"{component_counts(sp).capitalize()} (connected components); "
@@ -524,15 +550,25 @@ def _special_page(pg: Pager, res: dict[str, Any]) -> None:
         pg.mono(f"... and {len(comps) - len(shown)} more components (not listed)")
 
 
+REACHED_SHORT = {
+    "slope-one": "a = 1/2",
+    "special": "special set",
+    "both": "a = 1/2 and special set",
+    "dense": "dense sweep",
+}
+"""distance.json's ``reached_on`` in the degree table of the distance page."""
+
+
 def _distance_page(pg: Pager, res: dict[str, Any]) -> None:
     d = res["distance"]
     st = res["study"]
     sub = pg.page("Matching distance", 0.44)
-    _draw(
-        "distance",
-        "distance.json",
-        lambda: distance_map_figure(d, res.get("geojson"), window=st.get("window"), fig=sub),
-    )
+    if sub is not None:
+        _draw(
+            "distance",
+            "distance.json",
+            lambda: distance_map_figure(d, res.get("geojson"), window=st.get("window"), fig=sub),
+        )
     on = {
         "slope-one": "the slope-one line a = 1/2",
         "special": "the special set",
@@ -550,7 +586,15 @@ def _distance_page(pg: Pager, res: dict[str, Any]) -> None:
         for k, v in by.items():
             v = v or {}
             pg.mono(
-                f"{k:<8}{fmt_distance(d, k):>12}  {fmt_point(v.get('at')):<24}{v.get('reached_on', 'n/a')}"
+                f"{k:<8}{fmt_distance(d, k):>12}  {fmt_point(v.get('at')):<24}"
+                + REACHED_SHORT.get(str(v.get("reached_on")), str(v.get("reached_on", "n/a")))
+            )
+        if any(str((v or {}).get("reached_on")) == "both" for v in by.values()):
+            pg.para(
+                "'a = 1/2 and special set': the slope-one line and the special set give the same "
+                "maximum, within the tolerance.",
+                8.5,
+                color="0.3",
             )
     if d.get("infinite"):
         pg.para(f"Infinite costs: {', '.join(str(x) for x in d['infinite'])}.")
@@ -587,7 +631,8 @@ def _perturb_page(pg: Pager, res: dict[str, Any]) -> None:
     s = res["perturb"]["summary"]
     runs = res["perturb"]["runs"]
     sub = pg.page("Perturbation study", 0.45 if s.get("sweep") else 0.3)
-    _draw("perturb", "perturb/summary.json", lambda: perturb_figure(s, runs, fig=sub))
+    if sub is not None:
+        _draw("perturb", "perturb/summary.json", lambda: perturb_figure(s, runs, fig=sub))
     n = s.get("runs")
     ci = fraction_interval(s.get("runs_with_patch_ci95"), n)
     base = s.get("base") or {}
@@ -738,8 +783,38 @@ def _statistics_page(pg: Pager, res: dict[str, Any]) -> None:
     )
     for title, data in tables:
         pg.heading(title)
-        for key, value in _stat_rows(data):
-            pg.mono(f"{key:<42}{value:>20}")
+        for line in stat_columns(_stat_rows(data)):
+            pg.mono(line)
+
+
+STAT_KEY, STAT_VALUE = 28, 18
+"""Character widths of one column of the statistics table (two columns fit the mono line)."""
+
+
+def stat_columns(rows: list[tuple[str, str]]) -> list[str]:
+    """Rows ``(key, value)`` as lines of two columns (read down the left, then the right).
+
+    Rows too wide for a column get a full line each, after the two-column block.
+
+    Examples
+    --------
+    >>> for line in stat_columns([("swaps", "12"), ("lines", "245"), ("rounds", "66")]):
+    ...     print(line.replace(" ", "_"))
+    swaps_______________________________________12____rounds______________________________________66
+    lines______________________________________245
+    """
+    short = [(k, v) for k, v in rows if len(k) <= STAT_KEY and len(v) <= STAT_VALUE]
+    wide = [(k, v) for k, v in rows if (k, v) not in short]
+    half = (len(short) + 1) // 2
+    left, right = short[:half], short[half:]
+    lines = []
+    for i, (k, v) in enumerate(left):
+        line = f"{k:<{STAT_KEY}}{v:>{STAT_VALUE}}"
+        if i < len(right):
+            line += f"    {right[i][0]:<{STAT_KEY}}{right[i][1]:>{STAT_VALUE}}"
+        lines.append(line.rstrip())
+    lines.extend(f"{k:<42}{v:>20}" if len(k) <= 42 else f"{k}: {v}" for k, v in wide)
+    return lines
 
 
 METHODS = [
@@ -844,6 +919,26 @@ def _methods_page(pg: Pager, res: dict[str, Any]) -> None:
 
 
 # -- entry point -------------------------------------------------------------------
+def _write_pages(pg: Pager, res: dict[str, Any]) -> Pager:
+    """Every page of the report on ``pg`` (a measuring Pager draws no figure); returns ``pg``."""
+    stages = res["stages"]
+    _summary_page(pg, res)
+    _cover(pg, res)
+    if stages["grids"]:
+        _grids_page(pg, res)
+    if stages["special"]:
+        _special_page(pg, res)
+    if stages["distance"]:
+        _distance_page(pg, res)
+    if stages["perturb"]:
+        _perturb_page(pg, res)
+    _findings_page(pg, res)
+    _methods_page(pg, res)
+    _statistics_page(pg, res)
+    pg.close()
+    return pg
+
+
 def _check_out_pdf(out: Path, overwrite: bool) -> None:
     """Refuse, in one line, a PDF path that is a folder, an existing file (unless ``overwrite``),
     lies under a file, or sits in a folder that cannot be written."""
@@ -946,22 +1041,9 @@ def build_report(
     name = str(res["study"].get("name", root.name))
     tmp = out.with_name(f".{out.name}.tmp")
     try:
+        fit = fit_plots(lambda f: _write_pages(Pager(None, name, fit=f), res))
         with PdfPages(tmp, metadata={"Title": f"specmap report: {name}", "Creator": "specmap"}) as pdf:
-            pg = Pager(pdf, name)
-            _summary_page(pg, res)
-            _cover(pg, res)
-            if stages["grids"]:
-                _grids_page(pg, res)
-            if stages["special"]:
-                _special_page(pg, res)
-            if stages["distance"]:
-                _distance_page(pg, res)
-            if stages["perturb"]:
-                _perturb_page(pg, res)
-            _findings_page(pg, res)
-            _methods_page(pg, res)
-            _statistics_page(pg, res)
-            pg.close()
+            _write_pages(Pager(pdf, name, fit=fit), res)
         tmp.replace(out)
     except BaseException:
         tmp.unlink(missing_ok=True)
