@@ -34,7 +34,9 @@ Format (all tables but ``[study]``, ``[f]``, ``[g]`` optional)::
                reading = "points" | "contours", memory = "6GB" (atlas budget; default half of RAM),
                tiles = [na, nb] | "auto"
     [distance] method = "both" | "dense" | "reduced", degrees = [0, 1, 2], dense_resolution = <nodes>,
-               special_max_lines = <lines of the reduced search's special-set pass>
+               special_max_lines = <lines of the reduced search's special-set pass>,
+               certify = "max" | "each", slope_max_lines = <lines of the slope-one search per degree>,
+               strip_budget = <whole-strip search lines per dense node, 0 off>
     [perturb]  model = "function" | "grid", size = <sup norm>, runs = <count>, seed = <int>,
                sizes = [1e-3, 1e-2], distance = false
 
@@ -53,6 +55,7 @@ from typing import Any
 
 from specmap.errors import StudyError
 from specmap.settings import (
+    CERTIFY,
     DISTANCE_METHODS,
     MAP_METHODS,
     MODELS,
@@ -471,7 +474,20 @@ def parse_study(data: dict[str, Any], path: Path) -> Study:
         memory=_memory(r, mt),
         tiles=_tiles(r, mt),
     )
-    dt = r.table(data, "distance", False, {"method", "degrees", "dense_resolution", "special_max_lines"})
+    dt = r.table(
+        data,
+        "distance",
+        False,
+        {
+            "method",
+            "degrees",
+            "dense_resolution",
+            "special_max_lines",
+            "certify",
+            "slope_max_lines",
+            "strip_budget",
+        },
+    )
     degrees = _DISTANCE.degrees
     if "degrees" in dt:
         dv = dt["degrees"]
@@ -491,6 +507,9 @@ def parse_study(data: dict[str, Any], path: Path) -> Study:
             dt, "distance", "dense_resolution", _DISTANCE.dense_resolution, lo=3, hi=1001
         ),
         special_max_lines=r.integer(dt, "distance", "special_max_lines", _DISTANCE.special_max_lines, lo=1),
+        certify=r.choice(dt, "distance", "certify", _DISTANCE.certify, CERTIFY),
+        slope_max_lines=r.integer(dt, "distance", "slope_max_lines", _DISTANCE.slope_max_lines, lo=1),
+        strip_budget=_strip_budget(r, dt),
     )
     pspec = None
     if "perturb" in data:
@@ -520,6 +539,16 @@ def parse_study(data: dict[str, Any], path: Path) -> Study:
             distance=dist,
         )
     return Study(name, seed, path, f, g, constants, window, mspec, dspec, pspec)
+
+
+def _strip_budget(r: _Reader, dt: dict) -> float:
+    """``[distance] strip_budget``: whole-strip search lines per dense node, a finite number >= 0."""
+    v = r.number(dt, "distance", "strip_budget", _DISTANCE.strip_budget)
+    if v < 0:
+        raise r.fail(
+            "distance.strip_budget", f"{v!r} is negative", "set strip_budget to a number >= 0 (0: off)"
+        )
+    return v
 
 
 def _memory(r: _Reader, mt: dict) -> float | None:

@@ -87,3 +87,22 @@ def test_grid_file_side_is_a_grid_and_sets_the_window(tmp_path: Path) -> None:
     b_hi = max(f[:, 0].max(), g[:, 0].max(), -f[:, 1].min(), -g[:, 1].min())
     assert run.window.b == (b_lo, b_hi) and run.window.a == (0.02, 0.98)
     assert not (tmp_path / "out").exists()  # computing stages writes nothing
+
+
+def test_distance_certificate_keys_are_read_and_checked(tmp_path: Path) -> None:
+    # the settings a why_not sentence tells the user to change are study keys (issue 13: a reason a
+    # user can act on); a bad value is one StudyError naming the field
+    (tmp_path / "g.json").write_text('{"format": "specmap-grid/1", "contours": []}')
+    head = '[study]\nname = "x"\n[f]\ngrid = "g.json"\n[g]\ngrid = "g.json"\n[distance]\n'
+    s = load_study(write(tmp_path, head + 'certify = "each"\nslope_max_lines = 900\nstrip_budget = 4.0\n'))
+    assert (s.distance.certify, s.distance.slope_max_lines, s.distance.strip_budget) == ("each", 900, 4.0)
+    d = load_study(write(tmp_path, head)).distance
+    assert (d.certify, d.slope_max_lines, d.strip_budget) == ("max", 200, 2.5)  # settings.py defaults
+    for bad, field in (
+        ('certify = "all"', "distance.certify"),
+        ("slope_max_lines = 0", "distance.slope_max_lines"),
+        ("strip_budget = -1", "distance.strip_budget"),
+        ('strip_budget = "x"', "distance.strip_budget"),
+    ):
+        with pytest.raises(StudyError, match=field.replace(".", r"\.")):
+            load_study(write(tmp_path, head + bad + "\n"))
