@@ -167,20 +167,22 @@ def grids_figure(
                 continue
             counts[kind] += 1
         tag = rf"$\Gamma({name})$"
-        handles.append(Line2D([], [], color=col, lw=1.6, label=f"{tag} proper ({counts['proper']})"))
         n_half = counts["vertical"] + counts["horizontal"]
-        handles.append(
-            Line2D(
-                [],
-                [],
-                color=col,
-                lw=1.2,
-                ls=dash,
-                marker="o",
-                mfc="white",
-                label=f"{tag} half-lines ({n_half}), o = start",
+        if counts["proper"] or not n_half:  # no legend entry for a kind the grid does not have
+            handles.append(Line2D([], [], color=col, lw=1.6, label=f"{tag} proper ({counts['proper']})"))
+        if n_half:
+            handles.append(
+                Line2D(
+                    [],
+                    [],
+                    color=col,
+                    lw=1.2,
+                    ls=dash,
+                    marker="o",
+                    mfc="white",
+                    label=f"{tag} half-lines ({n_half}), o = start",
+                )
             )
-        )
     if line is not None and len(line) >= 2 and 0.0 < num(line[0]) < 1.0:
         la, lb = num(line[0]), num(line[1])
         xs = np.linspace(x0, x1, 2)
@@ -811,16 +813,22 @@ STRIP_MAX = 40
 """Up to this many runs a distribution is drawn as a strip of dots (one per run), not a histogram."""
 
 
-def _hist(ax: Any, values: np.ndarray, xlabel: str, base: float | None = None) -> None:
-    """One distribution over runs: a sentence when all runs agree, dots for a few runs, else a histogram."""
+def _hist(
+    ax: Any, values: np.ndarray, xlabel: str, base: float | None = None, empty: str | None = None
+) -> None:
+    """One distribution over runs: a sentence when all runs agree, dots for a few runs, else a histogram.
+
+    ``empty`` says in words what a value of 0 in every run means (e.g. ``"no patch"``).
+    """
     finite = values[np.isfinite(values)]
     n_bad = len(values) - len(finite)
     notes = [f"{n_bad} non-finite omitted"] if n_bad else []
     if len(finite) and np.ptp(finite) == 0:
+        same = fmt(finite[0], 3) + (f" ({empty})" if empty and finite[0] == 0 else "")
         ax.text(
             0.5,
             0.5,
-            f"all {plural(len(finite), 'run')}: {fmt(finite[0], 3)}",
+            f"all {plural(len(finite), 'run')}: {same}",
             ha="center",
             va="center",
             transform=ax.transAxes,
@@ -901,7 +909,7 @@ def perturb_figure(
     ax_move = fig.add_subplot(gs[0, 1])
     area = nums([r.get("total_area") for r in runs])
     base = summary.get("base") or {}
-    _hist(ax_area, area, "total patch area, (a, b) units", num(base.get("total_area")))
+    _hist(ax_area, area, "total patch area, (a, b) units", num(base.get("total_area")), "no patch kept")
     ax_area.set_title(f"Patch area over {plural(len(runs), 'run')}", fontsize=10)
     size_txt = fmt(summary.get("size"), 3)
     if any("curve_movement" in r for r in runs):
@@ -936,7 +944,8 @@ def perturb_figure(
         move_mean = nums([_row_stat(s, "curve_movement", "mean") for s in rows])
         if np.isfinite(move_mean).any():
             ax2.plot(size, move_mean, "o-", color="#4a7fb5")
-            ax2.set_ylim(bottom=0)
+            # room above the largest mean, so its marker is not cut by the frame
+            ax2.set_ylim(0, 1.15 * float(np.nanmax(move_mean)) or 1.0)
             ax2.set_title("Size sweep: mean movement of the tie curves", fontsize=10)
             ax2.set_ylabel("(a, b) units")
         else:
