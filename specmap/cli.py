@@ -155,7 +155,12 @@ def build_parser() -> argparse.ArgumentParser:
         help="parallel run workers (default 1; capped at the core count unless --cluster)",
     )
     sp.add_argument("--cluster", help="Dask scheduler address, e.g. tcp://127.0.0.1:8786")
-    sp = sub.add_parser("report", help="build the PDF report of a result folder")
+    sp = sub.add_parser(
+        "report",
+        help="build the PDF report of a result folder",
+        description="build the PDF report (summary page first, then the stages run) and its "
+        "PNG figures from the files of a result folder",
+    )
     add_quiet(sp)
     sp.add_argument("dir", help="result folder")
     sp.add_argument("--out", help="PDF path (default DIR/report.pdf); an existing file needs --force")
@@ -171,7 +176,12 @@ def build_parser() -> argparse.ArgumentParser:
         "dir", help="result folder (with special.json; grid files and distance.json add to the page)"
     )
     sp.add_argument("--out", help="HTML path (default DIR/explore.html)")
-    sp = sub.add_parser("demo", help="run the shipped demo study end to end")
+    sp = sub.add_parser(
+        "demo",
+        help="run the shipped demo study end to end",
+        description="run the shipped demo study end to end (grid, map, distance, perturb, "
+        "report) and print D per degree, the verdict and where the PDF went",
+    )
     add_quiet(sp)
     sp.add_argument("--out", help="result folder (default results/demo)")
     sp.add_argument(

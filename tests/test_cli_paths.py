@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import importlib.util
 import os
+import re
 import subprocess
 import sys
 from pathlib import Path
@@ -246,3 +247,33 @@ def test_grid_file_unreadable_simulated(tmp_path: Path, monkeypatch: pytest.Monk
         read_grid(tmp_path / "g.json")
     line = exc.value.one_line()
     assert "\n" not in line and "g.json" in line and "permission denied" in line
+
+
+# -- every verb's --help says what the verb does (issue 15, "Terminal") ---------------
+def _verbs() -> list[str]:
+    """The verbs as ``specmap --help`` lists them (its "VERB" block), not as the parser holds them."""
+    out = subprocess.run(
+        [sys.executable, "-m", "specmap", "--help"], capture_output=True, text=True, timeout=60
+    ).stdout
+    block = out.split("positional arguments:", 1)[1].split("options:", 1)[0]
+    found = re.findall(r"^ {4}([a-z]+)(.*)$", block, re.MULTILINE)
+    assert all(rest.strip() for _, rest in found), found  # each verb listed with its one-line help
+    return [name for name, _ in found]
+
+
+def test_every_verb_help_has_a_description_line() -> None:
+    verbs = _verbs()
+    assert {"grid", "map", "distance", "perturb", "report", "explore", "demo"} <= set(verbs), verbs
+    for verb in verbs:
+        proc = subprocess.run(
+            [sys.executable, "-m", "specmap", verb, "--help"], capture_output=True, text=True, timeout=60
+        )
+        assert proc.returncode == 0, (verb, proc.stderr)
+        # argparse prints: usage (one or more lines), a blank line, the description, a blank line,
+        # then "positional arguments:" or "options:"; without a description the block after the
+        # usage is a section heading
+        blocks = [b.strip() for b in proc.stdout.split("\n\n")]
+        assert blocks[0].startswith(f"usage: specmap {verb}"), (verb, blocks[0])
+        desc = blocks[1]
+        first = desc.splitlines()[0] if desc else ""
+        assert first and not first.endswith(":") and len(desc.split()) >= 4, (verb, desc)
