@@ -278,20 +278,20 @@ def print_load_notes() -> None:
 
 
 def special_line(js: dict, path: Path | str) -> str:
-    """What ``specmap map`` prints: the component counts (pluralised), tie curves and patch share.
+    """What ``specmap map`` prints: the connected components by kind, the tie curves, the patch share.
+
+    The words are the report's (:func:`specmap.report.summary.component_counts`): a curve
+    component may hold many tie curves, so the two counts are said separately.
 
     >>> special_line({"counts": {"curve": 1, "patch": 1, "point": 0}, "area_fraction": 0.60312,
-    ...     "stats": {"tie_curves": 1}}, "out/special.json")
-    'special set: 1 curve, 1 patch, 0 points (connected components); 1 tie curve; patches cover 60.3% of the window -> out/special.json'
+    ...     "stats": {"tie_curves": 3}}, "out/special.json")
+    'special set: 1 patch, 1 curve component and 0 point components (connected components); 3 tie curves; patches cover 60.3% of the window -> out/special.json'
     """
-    c = js["counts"]
-    kinds = ", ".join(
-        plural(int(c[k]), k, "patches" if k == "patch" else None) for k in ("curve", "patch", "point")
-    )
-    curves = (js.get("stats") or {}).get("tie_curves")
-    ties = f"; {plural(int(curves), 'tie curve')}" if isinstance(curves, (int, float)) else ""
+    from specmap.report.summary import component_counts, tie_curve_count
+
     return (
-        f"special set: {kinds} (connected components){ties}; "
+        f"special set: {component_counts(js)} (connected components); "
+        f"{plural(tie_curve_count(js), 'tie curve')}; "
         f"patches cover {fmt_pct(js['area_fraction'])} of the window -> {path}"
     )
 

@@ -7,6 +7,7 @@ values given), not read back from the code under test.
 
 from __future__ import annotations
 
+import json
 import re
 import subprocess
 import sys
@@ -22,11 +23,69 @@ LONG = re.compile(r"\d\.\d{7,}")  # a number printed with 7 or more decimals (re
 def test_map_line_pluralises_each_count() -> None:
     one = {"counts": {"curve": 1, "patch": 1, "point": 1}, "area_fraction": 0.5, "stats": {"tie_curves": 1}}
     assert special_line(one, "s.json").startswith(
-        "special set: 1 curve, 1 patch, 1 point (connected components); 1 tie curve; patches cover 50%"
+        "special set: 1 patch, 1 curve component and 1 point component (connected components); "
+        "1 tie curve; patches cover 50%"
     )
     many = {"counts": {"curve": 2, "patch": 3, "point": 0}, "area_fraction": 0.123456789, "stats": {}}
     line = special_line(many, "s.json")
-    assert "2 curves, 3 patches, 0 points" in line and "12.3%" in line and not LONG.search(line)
+    assert "3 patches, 2 curve components and 0 point components" in line
+    assert "12.3%" in line and not LONG.search(line)
+    # no stats.tie_curves (an older special.json): the tie curves are the ties of curve components
+    assert "0 tie curves" in line
+
+
+# issue 15 item 2: "counts that say 'components' and 'tie curves' separately". The study is two
+# ellipsoids under linear maps (as in tests/test_special_reuse.py); at map resolution 21 its special
+# set is one patch and one curve component holding many tie curves, so "N curves" would be wrong
+WORDS_STUDY = """
+[study]
+name = "words"
+seed = 3
+
+[f]
+surface = "ellipsoid"
+radii = [2.0, 1.3, 0.7]
+map = ["x + 0.4*y - 0.3*z", "0.2*x + y + 0.5*z"]
+resolution = 300
+
+[g]
+surface = "ellipsoid"
+radii = [1.8, 1.4, 0.8]
+map = ["x + 0.3*y", "-0.1*x + y + 0.6*z"]
+resolution = 300
+
+[map]
+resolution = 21
+"""
+
+
+def _kind(n: int, word: str) -> str:
+    return f"{n} {word}" + ("" if n == 1 else "s")
+
+
+def test_map_says_components_and_tie_curves_separately_on_a_small_study(tmp_path: Path) -> None:
+    (tmp_path / "s.toml").write_text(WORDS_STUDY)
+    proc = subprocess.run(
+        [sys.executable, "-m", "specmap", "--quiet", "map", "s.toml", "--out", "r"],
+        cwd=tmp_path,
+        capture_output=True,
+        text=True,
+        timeout=300,
+    )
+    assert proc.returncode == 0, proc.stderr
+    js = json.loads((tmp_path / "r" / "special.json").read_text())
+    c, ties = js["counts"], js["stats"]["tie_curves"]
+    assert ties > c["curve"]  # the case the wording is for: a component holds several tie curves
+    # the expected words are written here from special.json's counts, in the PDF's order
+    # (specmap/report/pdf.py, Special set page: patches, curve components, point components)
+    patches = f"{c['patch']} patch" + ("" if c["patch"] == 1 else "es")
+    want = (
+        f"special set: {patches}, {_kind(c['curve'], 'curve component')} and "
+        f"{_kind(c['point'], 'point component')} (connected components); {_kind(ties, 'tie curve')}; "
+    )
+    lines = [ln for ln in proc.stdout.splitlines() if ln.startswith("special set:")]
+    assert len(lines) == 1 and lines[0].startswith(want), proc.stdout
+    assert not re.search(r"\d curves\b", lines[0])  # no bare "curves" count
 
 
 def test_reached_on_both_is_defined_in_words() -> None:
