@@ -19,7 +19,7 @@ import numpy as np
 from specmap.explore.lines import explorer_lines
 from specmap.report.figures import distance_map_samples
 from specmap.report.fmt import MAX_DIGITS, decimals_for, fmt_distance, num, nums
-from specmap.report.summary import reason_sentence
+from specmap.report.summary import reason_sentence, tie_curve_count
 from specmap.report.ties import TieIndex, family, index_ties
 
 CURVE_POINTS = 120_000
@@ -100,7 +100,8 @@ def explorer_data(
     dict
         ``study``, ``window``, ``grids`` {f, g: contours}, ``components`` (id, kind, area,
         ties, patch_ties), ``patches`` (component, ring, ties), ``curves`` (component,
-        family, ties, xy), ``families``, ``distance`` (value, at, reached_on, tolerance,
+        family, ties, xy: the tie curves drawn, coincident ones merged), ``tie_curves`` (the
+        count of special.json, :func:`specmap.report.summary.tie_curve_count`), ``families``, ``distance`` (value, at, reached_on, tolerance,
         by_degree, samples {a, b, h, by_degree} or None), ``tolerance`` (special set), ``lines``
         ({lines: [...] or None, why_not}), ``special_missing`` (a sentence when the folder has no
         ``special.json``, else None).
@@ -191,6 +192,7 @@ def explorer_data(
         "components": comps,
         "patches": patches,
         "curves": curves,
+        "tie_curves": tie_curve_count(sp),
         "families": sorted(fams, key=lambda k: -fams[k]),
         "labelled": ix.labelled,
         "distance": dist,

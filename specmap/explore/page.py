@@ -224,6 +224,7 @@ function tieValues(t, a, b) {
 
 // -- panels ----------------------------------------------------------------------------------
 const $ = id => document.getElementById(id);
+const plural = (n, one, many) => n + " " + (n === 1 ? one : (many || one + "s"));  // "1 tie", "3 ties"
 const HOLDS = 1e-3;  // relative residual under which a patch's tie holds at the pointer (contours are thinned)
 let elsewhere = 0;
 function tiesHere(a, b) {
@@ -262,9 +263,9 @@ function update(a, b) {
       + (t.held ? "holds on patch " + esc(t.component) : "tie curve of " + esc(t.component) + " at " + fmt(t.distance, 2) + " of the window")
       + (v ? "; |c_P| = " + fmt(v.dp) + ", |c_Q| = " + fmt(v.dq) + ", residual " + fmt(v.residual, 2) : "") + ")</div>");
   }
-  $("here-ties").innerHTML = rows.length ? "<b>" + ties.length + " tie(s) here</b>" + rows.join("") + (ties.length > 12 ? "<div class='muted'>and " + (ties.length - 12) + " more</div>" : "")
+  $("here-ties").innerHTML = rows.length ? "<b>" + plural(ties.length, "tie") + " here</b>" + rows.join("") + (ties.length > 12 ? "<div class='muted'>and " + (ties.length - 12) + " more</div>" : "")
     : "<span class='muted'>no tie here (not in a patch, no tie curve within 1.2% of the window)</span>";
-  if (elsewhere) $("here-ties").innerHTML += "<div class='muted'>" + elsewhere + " more tie(s) of this patch hold elsewhere on it</div>";
+  if (elsewhere) $("here-ties").innerHTML += "<div class='muted'>" + plural(elsewhere, "more tie") + " of this patch " + (elsewhere === 1 ? "holds" : "hold") + " elsewhere on it</div>";
   const hx = [], hy = [];
   for (const id of ids) { const xy = contourXY(contours[id]); hx.push(...xy[0], null); hy.push(...xy[1], null); }
   const mx = [], my = [], mt = [], mm = Math.min(a, 1 - a);
@@ -322,13 +323,16 @@ function toClient(a, b) {
   const gd = $("strip"), fl = gd._fullLayout, bb = gd.getBoundingClientRect();
   return {x: bb.left + fl.xaxis._offset + fl.xaxis.l2p(a), y: bb.top + fl.yaxis._offset + fl.yaxis.l2p(b)};
 }
+// the report's words (report/pdf.py _drawn_words): special.json's tie curves, and how many are drawn
+const drawnWords = (total, drawn) => (drawn && total && drawn !== total)
+  ? plural(total, "tie curve") + " (" + drawn + " drawn, coincident ones merged)"
+  : plural(total || drawn, "tie curve") + " drawn";
 const REACHED = {"slope-one": "on the slope-one line a = 1/2", "special": "on the special set",
   "both": "on the slope-one line and on the special set alike", "dense": "by the dense sweep"};
 const hl = D ? "D = " + D.text + " (tolerance " + fmt(D.tolerance, 3) + "), reached " + (REACHED[D.reached_on] || "on " + D.reached_on)
   + (D.at ? " at (a, b) = (" + fmt(D.at[0]) + ", " + fmt(D.at[1]) + ")" : "") : "no distance computed";
 $("headline").textContent = hl + "; " + (DATA.special_missing ? DATA.special_missing + "."
-  : DATA.components.length + (DATA.components.length === 1 ? " component, " : " components, ")
-    + DATA.curves.length + (DATA.curves.length === 1 ? " tie curve drawn" : " tie curves drawn")
+  : plural(DATA.components.length, "component") + ", " + drawnWords(DATA.tie_curves, DATA.curves.length)
   + (DATA.labelled ? "" : " (unlabelled: the grid files are missing)") + ".")
   + (DATA.special_missing ? " Point at the strip to see the line and h there."
     : " Point at the strip to see the line and the ties there; click to list a component's ties.");
@@ -379,7 +383,7 @@ function showLine(i, k) {
     worst = "costliest pair: " + (pr[0] === null ? "diagonal" : "f " + pt(P.f[pr[0]])) + " - " + (pr[1] === null ? "diagonal" : "g " + pt(P.g[pr[1]]))
       + ", cost " + (pr[2] === null ? "inf" : fmtH(pr[2])); }
   $("diagram-info").innerHTML = "<b>" + esc(L.label) + "</b>: h_" + k + " = " + (P.h === null ? "inf" : fmtH(P.h)) + esc(rec)
-    + "<br>" + P.f.length + " point(s) of f, " + P.g.length + " of g; " + esc(worst);
+    + "<br>" + plural(P.f.length, "point") + " of f, " + P.g.length + " of g; " + esc(worst);
   for (const b of document.querySelectorAll("#line-buttons button")) b.classList.toggle("on", Number(b.dataset.i) === i);
   $("degree-buttons").innerHTML = degs.map(d => "<button data-k='" + d + "'" + (d === k ? " class='on'" : "") + ">H_" + d + ": h = "
     + (L.degrees[d].h === null ? "inf" : fmtH(L.degrees[d].h)) + "</button>").join("");
