@@ -685,3 +685,51 @@ def test_page_without_special_set_in_headless_chromium(tmp_path: Path) -> None:
         assert br.errors() == []
     finally:
         br.close()
+
+
+def test_no_distance_says_why_there_are_no_slice_diagrams() -> None:
+    from specmap.explore.lines import explorer_lines
+
+    # specmap distance refuses a study of grid files (tests/test_cli_errors.py
+    # test_distance_on_grid_only_study_says_so): the page must not advise running it
+    grid = {"study": {"f": {"source": "grid"}, "g": {"source": "grid"}}, "distance": None}
+    why = explorer_lines(grid)["why_not"]
+    assert "grid files" in why and "run specmap distance" not in why
+    mesh = {"study": {"f": {"source": "surface"}, "g": {"source": "mesh"}}, "distance": None}
+    assert explorer_lines(mesh)["why_not"] == "no distance.json in this folder (run specmap distance)"
+
+
+@pytest.mark.skipif(
+    shutil.which("chromium") is None and shutil.which("chromium-browser") is None,
+    reason="chromium is not installed (apt-get install -y chromium; .ci/run installs it)",
+)
+def test_grid_only_page_in_headless_chromium(tmp_path: Path) -> None:
+    # as studies/ladder.toml: grid files, no distance.json, a window with a < 1/2 only
+    root = make_folder(tmp_path / "r")
+    (root / "distance.json").unlink()
+    window = {"a": [0.05, 0.45], "b": [-1.0, 1.0]}
+    for name in ("study.json", "special.json"):
+        js = json.loads((root / name).read_text())
+        js["window"] = window
+        if name == "study.json":
+            js["f"], js["g"] = {"source": "grid"}, {"source": "grid"}
+        (root / name).write_text(json.dumps(js))
+    page = build_explorer(root)
+    br = Browser(tmp_path / "profile")
+    try:
+        br.open_page()
+        br.send("Page.navigate", {"url": page.resolve().as_uri()})
+        assert br.wait_for("window.explorerReady === true", 90)
+        br.pump(0.3)
+        assert br.errors() == []
+        notes = _text(br, "notes")
+        assert "grid files" in notes and "run specmap distance" not in notes
+        assert "interpolated" not in notes  # there are no samples of h to interpolate
+        names = json.loads(
+            br.evaluate("JSON.stringify(document.getElementById('strip').data.map(t => t.name))")
+        )
+        assert "a = 1/2" not in names  # the slope-one line lies outside this window: no legend entry
+        assert "no distance.json" in _text(br, "here-h") or "no distance" in _text(br, "headline")
+        assert br.errors() == []
+    finally:
+        br.close()

@@ -215,6 +215,17 @@ def _same(v: Any, panel: dict[str, Any]) -> bool:
 def explorer_lines(res: dict[str, Any]) -> dict[str, Any]:
     """``{"lines": [...] or None, "why_not": str or None, "recorded": {label: h}}`` for the page."""
     d = res.get("distance")
+    if d is None:
+        st = res.get("study") or {}
+        grids = [s for s in ("f", "g") if (st.get(s) or {}).get("source") == "grid"]
+        if grids:  # `specmap distance` refuses such a study: a grid file has no mesh to slice
+            return {
+                "lines": None,
+                "why_not": f"no distance.json in this folder, and none can be computed: "
+                f"{' and '.join(grids)} {'is a grid file' if len(grids) == 1 else 'are grid files'}, "
+                "which have no mesh to take slice diagrams of",
+            }
+        return {"lines": None, "why_not": "no distance.json in this folder (run specmap distance)"}
     lines = recorded_lines(d)
     if not lines:
         return {"lines": None, "why_not": "distance.json records no line (run specmap distance)"}

@@ -131,8 +131,9 @@ for (const f of DATA.families) {
   stripTraces.push({type: "scatter", mode: "lines", x: x, y: y, name: f + " (" + n + ")", hoverinfo: "skip",
     line: {color: famColour(f), width: 1}, opacity: Math.min(1, Math.max(0.12, 25 / Math.max(n, 1)))});
 }
-stripTraces.push({type: "scatter", mode: "lines", x: [0.5, 0.5], y: W.b, name: "a = 1/2", hoverinfo: "skip",
-  line: {color: "#555", width: 1, dash: "dot"}});
+if (W.a[0] <= 0.5 && 0.5 <= W.a[1])  // no legend entry for a line outside the window (ladder: a up to 0.45)
+  stripTraces.push({type: "scatter", mode: "lines", x: [0.5, 0.5], y: W.b, name: "a = 1/2", hoverinfo: "skip",
+    line: {color: "#555", width: 1, dash: "dot"}});
 const D = DATA.distance;
 if (D && D.at) stripTraces.push({type: "scatter", mode: "markers", x: [D.at[0]], y: [D.at[1]], hoverinfo: "skip",
   name: "D = " + D.text + " reached here", marker: {symbol: "star", size: 16, color: "#ff3b3b",
@@ -405,8 +406,8 @@ if (LINES) {
     + "h(a, b) at the pointer is interpolated from the dense sweep's samples.";
 } else {
   $("diagram").style.display = "none";
-  $("notes").textContent = "No slice diagrams in this page: " + ((DATA.lines && DATA.lines.why_not) || "not computed")
-    + ". h(a, b) at the pointer is interpolated from the dense sweep's samples in distance.json.";
+  $("notes").textContent = "No slice diagrams in this page: " + ((DATA.lines && DATA.lines.why_not) || "not computed") + "."
+    + (D && D.samples ? " h(a, b) at the pointer is interpolated from the dense sweep's samples in distance.json." : "");
 }
 const config = {scrollZoom: true, displaylogo: false, responsive: true, displayModeBar: "hover"};
 Promise.all([Plotly.newPlot("strip", stripTraces, stripLayout, config), Plotly.newPlot("grids", gridTraces, gridLayout, config)])
