@@ -413,6 +413,13 @@ def test_explorer_in_headless_chromium(tmp_path: Path) -> None:
         assert abs(a - 1 / 3) < 0.01 and abs(b - 0.23) < 0.02
         h = float(re.search(r"h\(a, b\) = (-?[\d.]+)", _text(br, "here-h")).group(1))
         assert h == pytest.approx(a + b, abs=2e-3)  # h = a + b in the fixture, interpolated exactly
+        # and h at the nearest sample node of make_folder's grid (a: 25 nodes on [0.02, 0.98], b: 21 on [-1, 1])
+        m = re.search(r"nearest sample \((-?[\d.]+), (-?[\d.]+)\) h = (-?[\d.]+)", _text(br, "here-h"))
+        assert m is not None, _text(br, "here-h")
+        na, nb, nh = (float(x) for x in m.groups())
+        assert na == pytest.approx(min(np.linspace(0.02, 0.98, 25), key=lambda x: abs(x - a)))
+        assert nb == pytest.approx(min(np.linspace(-1.0, 1.0, 21), key=lambda x: abs(x - b)))
+        assert nh == pytest.approx(na + nb, abs=5e-4)  # to the tolerance's three decimals
         ties = _text(br, "here-ties")
         assert "|f:v0 - f:v1| = 2 |g:h0 - g:h1|" in ties and "|c_P| = 1, |c_Q| = 0.5" in ties
         assert "|f:v0 - f:v1| = |g:h0 - g:h1|" not in ties  # the equal tie's curve is a = 1/2, far away

@@ -215,6 +215,14 @@ function interpolate(S, H, a, b) {
   if (v.flat().some(x => x === null || x === undefined)) return null;
   return (1 - tb) * ((1 - ta) * v[0][0] + ta * v[0][1]) + tb * ((1 - ta) * v[1][0] + ta * v[1][1]);
 }
+function nearestSample(S, a, b) {
+  // the sample node (A[i], B[j]) nearest to (a, b) in each coordinate, and h there (null outside the samples)
+  if (!S || !S.h || !S.a.length || !S.b.length) return null;
+  if (a < S.a[0] || a > S.a[S.a.length - 1] || b < S.b[0] || b > S.b[S.b.length - 1]) return null;
+  const near = (v, x) => v.reduce((k, y, i) => Math.abs(y - x) < Math.abs(v[k] - x) ? i : k, 0);
+  const i = near(S.a, a), j = near(S.b, b), h = S.h[j] ? S.h[j][i] : null;
+  return (h === null || h === undefined) ? null : {a: S.a[i], b: S.b[j], h: h};
+}
 function tieValues(t, a, b) {
   // |c_P|, |c_Q| (push coordinates) and the residual |c_P| - k |c_Q| on the line r(a, b)
   const m = Math.min(a, 1 - a), s = t.pairs.flat().map(id => contours[id] ? lineParameter(contours[id], a, b) : null);
@@ -251,7 +259,11 @@ function update(a, b) {
   if (D && D.samples) {
     const h = interpolate(D.samples, D.samples.h, a, b);
     const per = Object.keys(D.samples.by_degree || {}).map(k => "h_" + k + " " + fmtMap(interpolate(D.samples, D.samples.by_degree[k], a, b))).join(", ");
-    $("here-h").textContent = "h(a, b) = " + fmtMap(h) + " (interpolated; max over degrees" + (per ? "; " + per : "") + ")";
+    const near = nearestSample(D.samples, a, b);
+    // interpolated h is printed to the dense error bound's digits, which can be none at all (knob:
+    // bound 0.64 for D = 0.025, every value "0.0"); the nearest sample is a computed h, to the tolerance
+    $("here-h").textContent = "h(a, b) = " + fmtMap(h) + " (interpolated; max over degrees" + (per ? "; " + per : "") + ")"
+      + (near ? "; at the nearest sample (" + fmt(near.a, 3) + ", " + fmt(near.b, 3) + ") h = " + fmtH(near.h) : "");
   } else { $("here-h").textContent = D ? "h(a, b): distance.json has no distance-map samples (run specmap distance --method both)"
     : "h(a, b): no distance.json in this folder"; }
   const m = (1 - a) / a, c0 = -m * b - b;
