@@ -721,6 +721,12 @@ def test_grid_only_page_in_headless_chromium(tmp_path: Path) -> None:
         if name == "study.json":
             js["f"], js["g"] = {"source": "grid"}, {"source": "grid"}
         (root / name).write_text(json.dumps(js))
+    # the half tie's curve a = 1/3 in 30 pieces: a family of more than 25 curves is drawn faint
+    geo = json.loads((root / "special.geojson").read_text())
+    b = np.linspace(-0.95, 0.95, 61)
+    parts = geo["features"][0]["geometry"]["geometries"]
+    parts[1]["coordinates"] = [[[1 / 3, b[k]], [1 / 3, b[k + 1]]] for k in range(0, 60, 2)]
+    (root / "special.geojson").write_text(json.dumps(geo))
     page = build_explorer(root)
     br = Browser(tmp_path / "profile")
     try:
@@ -729,6 +735,19 @@ def test_grid_only_page_in_headless_chromium(tmp_path: Path) -> None:
         assert br.wait_for("window.explorerReady === true", 90)
         br.pump(0.3)
         assert br.errors() == []
+        traces = json.loads(
+            br.evaluate(
+                "JSON.stringify(document.getElementById('strip').data.map(t => ({name: t.name, "
+                "group: t.legendgroup || null, legend: t.showlegend !== false, opacity: t.opacity ?? 1})))"
+            )
+        )
+        faint = [t for t in traces if t["opacity"] < 1]
+        assert faint and all(t["name"].endswith("(30)") for t in faint)
+        # each faint family has a legend entry at full strength in its group (opacity fades the swatch too)
+        assert all(not t["legend"] for t in faint)
+        assert all(
+            any(u["legend"] and u["group"] == t["group"] and u["opacity"] == 1 for u in traces) for t in faint
+        )
         notes = _text(br, "notes")
         assert "grid files" in notes and "run specmap distance" not in notes
         assert "interpolated" not in notes  # there are no samples of h to interpolate

@@ -128,8 +128,14 @@ for (const f of DATA.families) {
   const x = [], y = [];
   for (const c of byFam[f] || []) { for (const q of c.xy) { x.push(q[0]); y.push(q[1]); } x.push(null); y.push(null); }
   const n = (byFam[f] || []).length;
+  // a large family is drawn faint so that the overplot reads as density; its legend entry is a
+  // separate full-strength swatch (a trace's opacity also fades its legend line: knob's 2307 curves
+  // left an invisible swatch), in the same legend group so a click on it still hides the family
   stripTraces.push({type: "scatter", mode: "lines", x: x, y: y, name: f + " (" + n + ")", hoverinfo: "skip",
+    legendgroup: "fam " + f, showlegend: false,
     line: {color: famColour(f), width: 1}, opacity: Math.min(1, Math.max(0.12, 25 / Math.max(n, 1)))});
+  stripTraces.push({type: "scatter", mode: "lines", x: [null], y: [null], name: f + " (" + n + ")", hoverinfo: "skip",
+    legendgroup: "fam " + f, line: {color: famColour(f), width: 2}});
 }
 if (W.a[0] <= 0.5 && 0.5 <= W.a[1])  // no legend entry for a line outside the window (ladder: a up to 0.45)
   stripTraces.push({type: "scatter", mode: "lines", x: [0.5, 0.5], y: W.b, name: "a = 1/2", hoverinfo: "skip",
