@@ -400,7 +400,26 @@ class StudyRun:
                 simplified=self.simplification,
                 max_contours=ms.max_contours,
             )
-            if plan.tiled:
+            if plan.streamed:  # tiles on disk, merged one at a time, the GeoJSON written as it goes
+                from specmap.special.tiles import streamed_tiled_map
+
+                if self.show_progress:
+                    print(f"specmap: {plan.line()}", file=sys.stderr)
+                self.out.mkdir(parents=True, exist_ok=True)
+                atlas = streamed_tiled_map(
+                    gf,
+                    gg,
+                    self.window,
+                    tiles=plan.tiles,
+                    folder=self.out / "tiles",
+                    geojson=self.out / "special.geojson",
+                    head=self.stamp(map_settings=ms),
+                    settings=ms,
+                    jobs=self.map_jobs,
+                    cluster=self.map_cluster,
+                    progress=self.progress("map tiles"),
+                )
+            elif plan.tiled:
                 if self.show_progress:
                     print(f"specmap: {plan.line()}", file=sys.stderr)
                 atlas = tiled_special_set(
@@ -469,32 +488,36 @@ class StudyRun:
         if "_focused" in self.__dict__:  # the plan refused the whole map already
             return self.__dict__["_focused"]
         try:
-            return self.atlas(reuse=True)
+            whole = self.atlas(reuse=True)
+            if not whole.stats.get("streamed"):
+                return whole
         except AtlasTooLargeError:
-            from specmap.distance.focused import focused_source
+            pass
+        # the whole map is refused, or streamed (its pieces never in memory): the focused source
+        from specmap.distance.focused import focused_source
 
-            ms = self.map_settings()
-            if self.show_progress:
-                print(
-                    "specmap: the whole special-set map does not fit the memory budget; the reduced "
-                    "search maps only the ties whose cost can be D (focused special set)",
-                    file=sys.stderr,
-                )
-            gf, gg = self.grids
-            self.__dict__["_focused"] = focused_source(
-                gf,
-                gg,
-                self.window,
-                roles=settings.roles,
-                pairs=ms.pairs,
-                resolution=ms.resolution,
-                method=ms.method,
-                tol=ms.tol,
-                reading=ms.reading,
-                budget=ms.memory,
-                progress=self.progress("focused map"),
+        ms = self.map_settings()
+        if self.show_progress:
+            print(
+                "specmap: the whole special-set map does not fit the memory budget; the reduced "
+                "search maps only the ties whose cost can be D (focused special set)",
+                file=sys.stderr,
             )
-            return self.__dict__["_focused"]
+        gf, gg = self.grids
+        self.__dict__["_focused"] = focused_source(
+            gf,
+            gg,
+            self.window,
+            roles=settings.roles,
+            pairs=ms.pairs,
+            resolution=ms.resolution,
+            method=ms.method,
+            tol=ms.tol,
+            reading=ms.reading,
+            budget=ms.memory,
+            progress=self.progress("focused map"),
+        )
+        return self.__dict__["_focused"]
 
     # -- writers ----------------------------------------------------------
     def record(self, command: str | None = None) -> None:
@@ -540,6 +563,13 @@ class StudyRun:
         atlas = self.atlas(**kw)
         head = self.stamp(map_settings=self.map_settings(**kw))
         js = {**atlas.to_json(), **head}
+        if atlas.stats.get("streamed"):
+            # written while merging (special.geojson, feature by feature); no pieces file: the
+            # distance maps its focused source instead (distance_atlas)
+            (self.out / "special_pieces.json").unlink(missing_ok=True)
+            write_json(self.out / "special.json", js)
+            save_png(special_figure(js, None), self.out / "figures" / "special.png")
+            return js
         # the pieces of every tie (what the reduced search walks), so that distance reads the map back
         write_json_streamed(
             self.out / "special_pieces.json",

@@ -18,7 +18,7 @@ from pathlib import Path
 import pytest
 
 from specmap.settings import MapSettings
-from specmap.special.preflight import AtlasTooLargeError, map_remedies, memory_budget, plan_atlas
+from specmap.special.preflight import AtlasTooLargeError, map_remedies, plan_atlas
 
 ROOT = Path(__file__).resolve().parents[1]
 MET = {"setting": "auto", "contours_after": 54, "budget": 60, "met": True}
@@ -46,17 +46,23 @@ def test_auto_already_met_suggests_a_contour_budget_that_the_planner_accepts() -
 def test_auto_stopped_at_its_cap_is_not_told_to_lower_its_budget() -> None:
     # f's "auto" stopped at its cap: a lower max_contours gives the same f, so the count offered is g's
     # alone, with f's 97 contours kept; g cannot go low enough here, so no contour budget is offered
-    fix = map_remedies(97, 54, 61, budget=12e9, pairs="roles", simplified=(CAPPED, MET))
+    fix = map_remedies(97, 54, 61, budget=2e9, pairs="roles", simplified=(CAPPED, MET))
     assert "f: simplify" in fix and "coarser" in fix
     assert "contours per grid" not in fix and "contours on g" not in fix
     few = map_remedies(
-        30, 54, 61, budget=memory_budget(), pairs="roles", simplified=({**CAPPED, "contours_after": 30}, MET)
+        30,
+        54,
+        61,
+        budget=1e9,
+        given_budget=True,
+        pairs="roles",
+        simplified=({**CAPPED, "contours_after": 30}, MET),
     )
     m = re.search(r"about (\d+) contours on g", few)
     assert m, few
-    plan_atlas(30, int(m[1]), 61)  # the default budget's rules (no --memory)
+    plan_atlas(30, int(m[1]), 61, budget=1e9)  # a --memory budget of 1 GB
     with pytest.raises(AtlasTooLargeError):
-        plan_atlas(30, int(m[1]) + 1, 61)
+        plan_atlas(30, int(m[1]) + 1, 61, budget=1e9)
 
 
 def test_a_delta_side_is_told_to_grow_its_delta() -> None:
@@ -66,7 +72,7 @@ def test_a_delta_side_is_told_to_grow_its_delta() -> None:
 
 def test_cli_refusal_of_an_auto_simplified_pair(tmp_path: Path) -> None:
     # the shipped knob meshes, simplify = "auto" on both sides under a budget they meet; a map
-    # budget of 400 MB refuses their map; the line must not suggest what is already set
+    # budget of 300 MB refuses their map (even streamed in tiles); the line must not suggest what is already set
     for name in ("knob_a.ply", "knob_b.ply"):
         shutil.copy(ROOT / "studies" / "data" / name, tmp_path / name)
     (tmp_path / "s.toml").write_text(
@@ -76,7 +82,7 @@ def test_cli_refusal_of_an_auto_simplified_pair(tmp_path: Path) -> None:
         '[map]\npairs = "roles"\nmax_contours = 20\n'
     )
     proc = subprocess.run(
-        [sys.executable, "-m", "specmap", "--quiet", "map", "s.toml", "--out", "o", "--memory", "400MB"],
+        [sys.executable, "-m", "specmap", "--quiet", "map", "s.toml", "--out", "o", "--memory", "300MB"],
         cwd=tmp_path,
         capture_output=True,
         text=True,
@@ -95,7 +101,7 @@ def test_cli_refusal_of_an_auto_simplified_pair(tmp_path: Path) -> None:
     k = re.search(r"max_contours \(now 20\): about (\d+) contours per grid", line)
     assert k, line
     res = MapSettings().resolution  # the study gives none: the default lattice
-    plan_atlas(int(k[1]), int(k[1]), res, budget=400e6)
+    plan_atlas(int(k[1]), int(k[1]), res, budget=300e6)
     with pytest.raises(AtlasTooLargeError):
-        plan_atlas(int(k[1]) + 1, int(k[1]) + 1, res, budget=400e6)
+        plan_atlas(int(k[1]) + 1, int(k[1]) + 1, res, budget=300e6)
     assert not (tmp_path / "o").exists()

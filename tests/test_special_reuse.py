@@ -117,3 +117,37 @@ def test_cli_distance_after_map_does_not_map_again(tmp_path: Path, monkeypatch, 
     assert calls == []
     assert "reading the special set of" in err
     assert "maps the special set again" not in err
+
+
+def test_a_streamed_map_is_summarised_and_the_distance_maps_its_focused_source(
+    tmp_path: Path, monkeypatch
+) -> None:
+    # reference: the one-piece map and the fresh distance of the same study. A map merged from
+    # its tile files (specmap.special.stream: the merged output held whole would not fit, forced
+    # here by a huge measured cost per crossing) writes special.json and a streamed GeoJSON but
+    # no pieces file; the reduced search then maps its focused source, and D is the same
+    from specmap.special import preflight
+
+    path = _study(tmp_path)
+    js_one = StudyRun(load_study(path), tmp_path / "one", show_progress=False).write_map()
+    path.write_text(path.read_text().replace("[map]\n", '[map]\ntiles = [2, 2]\nmemory = "8GB"\n'))
+    study = load_study(path)
+    monkeypatch.setattr(preflight, "MERGED_BYTES_PER_CROSSING", 1e12)
+    js_st = StudyRun(study, tmp_path / "st", show_progress=False).write_map()
+    assert js_st["stats"]["plan"]["streamed"] is True and js_st["stats"]["streamed"] is True
+    assert js_st["counts"] == js_one["counts"]
+    assert [(c["id"], c["kind"], c["ties"]) for c in js_st["components"]] == [
+        (c["id"], c["kind"], c["ties"]) for c in js_one["components"]
+    ]
+    assert not (tmp_path / "st" / "special_pieces.json").exists()
+    feats = json.loads((tmp_path / "st" / "special.geojson").read_text())["features"]
+    assert {f["properties"]["component"] for f in feats} == {c["id"] for c in js_st["components"]}
+    js_d = StudyRun(study, tmp_path / "st", show_progress=False).write_distance(method="reduced")
+    monkeypatch.undo()
+    (tmp_path / "plain").mkdir()
+    fresh = StudyRun(load_study(_study(tmp_path / "plain")), tmp_path / "fresh", show_progress=False)
+    fresh_d = fresh.write_distance(method="reduced")
+    assert js_d["value"] == fresh_d["value"] and js_d["value"] > 0
+    assert {k: d["value"] for k, d in js_d["by_degree"].items()} == {
+        k: d["value"] for k, d in fresh_d["by_degree"].items()
+    }

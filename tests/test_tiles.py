@@ -23,6 +23,7 @@ from specmap.special import tiles as tiles_mod
 from specmap.special.merge import clip_lines, join_runs
 from specmap.special.preflight import AtlasTooLargeError, estimate_atlas, parse_memory, plan_atlas
 from specmap.special.tiles import plan_tiles, tiled_special_set
+from specmap.special.tiles import streamed_tiled_map as tiled_special_set_streamed
 from specmap.strip import Window
 
 WINDOW = Window((0.05, 0.95), (-1.0, 1.0))
@@ -59,6 +60,41 @@ def assert_same_atlas(one, tiled) -> None:
     assert [k for k, _, _ in ca] == [k for k, _, _ in cb]  # same kinds and member ties
     for (_, la, aa), (_, lb, ab) in zip(ca, cb, strict=True):  # crossings agree to ~1e-12 of the window
         assert lb == pytest.approx(la, rel=1e-9, abs=1e-10) and ab == pytest.approx(aa, abs=1e-9)
+
+
+def assert_same_streamed(one, folder, gf, gg, tiles, ms) -> None:
+    """The streamed merge (tile files, summaries) against the one-piece atlas: same statistics,
+    components (ids, kinds, member ties, boxes, lengths, areas, reasons), and GeoJSON features
+    that hold each tie's curve length and patch area, labelled with existing component ids."""
+    geo = folder / "special.geojson"
+    st = tiled_special_set_streamed(
+        gf, gg, WINDOW, tiles=tiles, settings=ms, folder=folder / "t", geojson=geo
+    )
+    assert st.pieces == () and st.stats["streamed"] is True
+    for k in ("tie_curves", "ties_with_curves", "ties_with_patches", "pieces"):
+        assert st.stats[k] == one.stats[k], k
+    assert [c.id for c in st.components] == [c.id for c in one.components]
+    for a, b in zip(one.components, st.components, strict=True):
+        assert (a.kind, a.ties, a.reasons) == (b.kind, b.ties, b.reasons), a.id
+        assert b.bbox == pytest.approx(a.bbox, abs=1e-9)
+        assert b.length == pytest.approx(a.length, rel=1e-9, abs=1e-10)
+        assert b.area == pytest.approx(a.area, abs=1e-9)
+    feats = json.loads(geo.read_text())["features"]
+    ids = {c.id for c in st.components}
+    got: dict = defaultdict(float)
+    for f in feats:
+        assert f["properties"]["component"] in ids
+        g = shapely.geometry.shape(f["geometry"])
+        key = (json.dumps(f["properties"]["tie"]), f["properties"]["kind"])
+        got[key] += g.length if f["properties"]["kind"] == "curve" else g.area
+    want: dict = defaultdict(float)
+    for p in one.pieces:
+        want[(json.dumps(p.tie.to_json()), p.kind)] += (
+            p.geometry.length if p.kind == "curve" else p.geometry.area
+        )
+    assert {k for k, v in got.items() if v > 0} == {k for k, v in want.items() if v > 0}
+    for k, v in want.items():
+        assert got[k] == pytest.approx(v, rel=1e-9, abs=1e-12), k
 
 
 def test_plan_tiles_partition_the_cells():
@@ -108,8 +144,9 @@ EXACT_SEEDS = (2, 3, 4, 8)
 
 @pytest.mark.parametrize("seed", EXACT_SEEDS)
 @pytest.mark.parametrize("pairs", ["all", "roles"])
-def test_tiled_atlas_is_the_one_piece_atlas(seed, pairs):
-    # reference: the untiled atlas of the same pair (specmap.special.compute.special_set)
+def test_tiled_atlas_is_the_one_piece_atlas(seed, pairs, tmp_path):
+    # reference: the untiled atlas of the same pair (specmap.special.compute.special_set), for
+    # the merge in memory and for the streamed merge (tile files read one at a time)
     gf, gg = random_pair(seed, 8)
     for reading in ("contours", "points"):
         one = special_set(gf, gg, WINDOW, resolution=41, pairs=pairs, reading=reading)
@@ -117,6 +154,7 @@ def test_tiled_atlas_is_the_one_piece_atlas(seed, pairs):
         for t in ((1, 1), (2, 2), (3, 1), (1, 2), (7, 1)):  # 1, 4, 3, 2 and 7 tiles
             ms = MapSettings(resolution=41, pairs=pairs, reading=reading)
             assert_same_atlas(one, tiled_special_set(gf, gg, WINDOW, tiles=t, settings=ms))
+            assert_same_streamed(one, tmp_path / f"{reading}{t[0]}{t[1]}", gf, gg, t, ms)
 
 
 def test_a_cell_search_stays_within_its_tie():
@@ -144,7 +182,7 @@ def test_smallest_case_that_differed_in_tiles():
 
 
 @pytest.mark.parametrize("seed", [1, 5])
-def test_tiled_atlas_is_the_one_piece_atlas_at_14_contours(seed):
+def test_tiled_atlas_is_the_one_piece_atlas_at_14_contours(seed, tmp_path):
     # reference: the untiled atlas (specmap.special.compute.special_set); 14 contours give
     # thousands of tie curves, many crossing the borders of 3 x 2 tiles
     gf, gg = random_pair(seed, 14)
@@ -152,9 +190,10 @@ def test_tiled_atlas_is_the_one_piece_atlas_at_14_contours(seed):
         one = special_set(gf, gg, WINDOW, resolution=41, reading=reading)
         ms = MapSettings(resolution=41, reading=reading)
         assert_same_atlas(one, tiled_special_set(gf, gg, WINDOW, tiles=(3, 2), settings=ms))
+        assert_same_streamed(one, tmp_path / reading, gf, gg, (3, 2), ms)
 
 
-def test_patch_across_tiles_has_the_closed_form_area():
+def test_patch_across_tiles_has_the_closed_form_area(tmp_path):
     # closed form, derived here: vertical contours at x = 0, 1 (f) and 3, 4 (g) are met by every
     # line with equal spacings, so |s_f0 - s_f1| = |s_g0 - s_g1| holds on the whole window: the
     # patch of that tie is the window (area 0.9 * 2 = 1.8); random contours add curves over it
@@ -168,6 +207,7 @@ def test_patch_across_tiles_has_the_closed_form_area():
         gf, gg, WINDOW, tiles=(2, 2), settings=MapSettings(resolution=31, reading="contours")
     )
     assert_same_atlas(one, tiled)
+    assert_same_streamed(one, tmp_path, gf, gg, (2, 2), MapSettings(resolution=31, reading="contours"))
     full = [
         p
         for p in tiled.pieces
@@ -229,34 +269,40 @@ def test_memory_sizes():
 
 
 def test_plan_takes_the_fewest_tiles_that_fit(monkeypatch):
-    # brute force in the test: among all tilings up to 30 x 30 that fit the budget the plan
-    # has the fewest tiles; one piece when the one-piece estimate fits. The selection is checked
-    # under a light merged output (monkeypatched): with the measured one (160 B per crossing, the
-    # merged output held whole) a budget of half the one-piece estimate is still refused
+    # brute force in the test: among all tilings up to 30 x 30 whose merged output held whole fits
+    # the budget the plan has the fewest tiles; one piece when the one-piece estimate fits. With the
+    # measured merged output (160 B per crossing) half the one-piece estimate fits only streamed
+    # (tiles on disk, merged from summaries); below the smallest streamed plan it is refused. The
+    # selection among held tilings is checked under a light merged output (monkeypatched)
     from specmap.special import preflight
 
     est = estimate_atlas(20, 20, 121)
     assert plan_atlas(20, 20, 121, budget=2 * est.bytes).tiles == (1, 1)
     budget = 0.5 * est.bytes
+    streamed = plan_atlas(20, 20, 121, budget=budget)
+    assert streamed.streamed and streamed.tiled and streamed.tile_bytes <= budget
+    assert plan_atlas(20, 20, 121, budget=1e15, tiles=streamed.tiles).tile_bytes > budget  # held whole
+    least = preflight._tiles_bytes(est, 121, 121, (30, 30), 1, streamed=True)
     with pytest.raises(AtlasTooLargeError, match="tiles"):
-        plan_atlas(20, 20, 121, budget=budget)
-    # without a --memory budget the coarse estimate keeps its margin of two (as before tiles)
+        plan_atlas(20, 20, 121, budget=0.9 * least)
+    # without a --memory budget: streamed tiles first, then the coarse estimate's margin of two
     monkeypatch.setattr(preflight, "memory_budget", lambda: 0.6 * est.bytes)
-    assert plan_atlas(20, 20, 121).reason == "within twice the default budget"
-    monkeypatch.setattr(preflight, "memory_budget", lambda: 0.4 * est.bytes)
+    assert plan_atlas(20, 20, 121).streamed
+    monkeypatch.setattr(preflight, "memory_budget", lambda: 0.9 * least)
     with pytest.raises(AtlasTooLargeError):
         plan_atlas(20, 20, 121)
     monkeypatch.setattr(preflight, "MERGED_BYTES_PER_CROSSING", 40.0)
     plan = plan_atlas(20, 20, 121, budget=budget)
-    assert plan.tiled and plan.tile_bytes <= budget
+    assert plan.tiled and not plan.streamed and plan.tile_bytes <= budget
     fits = [
         (ta, tb)
         for ta in range(1, 31)
         for tb in range(1, 31)
-        if (ta, tb) != (1, 1) and plan_atlas(20, 20, 121, budget=budget, tiles=(ta, tb)).tile_bytes <= budget
+        if (ta, tb) != (1, 1)
+        and not (p := plan_atlas(20, 20, 121, budget=budget, tiles=(ta, tb))).streamed
+        and p.tile_bytes <= budget
     ]
     assert plan.tiles[0] * plan.tiles[1] == min(a * b for a, b in fits)
-    # two jobs hold two tiles at once: at least as many tiles
     two = plan_atlas(20, 20, 121, budget=budget, jobs=2)
     assert two.tiles[0] * two.tiles[1] >= plan.tiles[0] * plan.tiles[1]
     with pytest.raises(AtlasTooLargeError, match="tiles") as info:

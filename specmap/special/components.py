@@ -35,13 +35,23 @@ def segments(lines: list) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
 
 def _dedupe_lines(lines: list, scale: float) -> list:
     """Lines without repeats: a line whose vertices all lie within 1e-9 * ``scale`` of an earlier
-    line's (same vertex count, either direction) is dropped.
-
-    Candidates share the vertex count and a bucket of the vertex centroid (side 1e-6 * ``scale``;
-    the 3 x 3 neighbouring buckets are searched, so rounding never separates coincident lines).
-    """
+    line's (same vertex count, either direction) is dropped (:func:`coincident_twins`)."""
     if not lines:
         return []
+    twin = coincident_twins(lines, scale)
+    return [g for i, g in enumerate(lines) if twin[i] == i]
+
+
+def coincident_twins(lines: list, scale: float) -> np.ndarray:
+    """For each line, the index of the first earlier kept line it repeats, else its own index.
+
+    A line repeats a kept line when all its vertices lie within 1e-9 * ``scale`` of that
+    line's (same vertex count, either direction). Candidates share the vertex count and a
+    bucket of the vertex centroid (side 1e-6 * ``scale``; the 3 x 3 neighbouring buckets are
+    searched, so rounding never separates coincident lines).
+    """
+    if not lines:
+        return np.zeros(0, np.int64)
     tol = 1e-9 * scale
     h = 1e-6 * scale
     coords, idx = shapely.get_coordinates(np.array(lines, dtype=object), return_index=True)
@@ -51,21 +61,23 @@ def _dedupe_lines(lines: list, scale: float) -> list:
     cell = np.floor(cen / h).astype(np.int64)
     buckets: dict[tuple[int, int, int], list[int]] = {}
 
-    def seen(i: int, cx: int, cy: int) -> bool:
+    def seen(i: int, cx: int, cy: int) -> int:
         c = coords[start[i] : start[i] + n[i]]
         for dx, dy in itertools.product((-1, 0, 1), repeat=2):
             for j in buckets.get((int(n[i]), cx + dx, cy + dy), ()):
                 d = coords[start[j] : start[j] + n[j]]
                 if np.abs(c - d).max() <= tol or np.abs(c - d[::-1]).max() <= tol:
-                    return True
-        return False
+                    return j
+        return -1
 
-    out = []
+    twin = np.arange(len(lines), dtype=np.int64)
     for i, (cx, cy) in enumerate(cell.tolist()):
-        if not seen(i, cx, cy):
+        j = seen(i, cx, cy)
+        if j < 0:
             buckets.setdefault((int(n[i]), cx, cy), []).append(i)
-            out.append(lines[i])
-    return out
+        else:
+            twin[i] = j
+    return twin
 
 
 def lattice_links(lines: list, eps: float, lattice: Lattice) -> tuple[np.ndarray, np.ndarray]:

@@ -25,8 +25,11 @@ crossings taken as its share of the lattice cells (its halo included) and ``jobs
 held at once; a refusal when even tiles of ``MIN_TILE_CELLS`` cells a side do not fit.
 The merged output (pieces, components from the tiles' line labels) is held whole:
 ``MERGED_BYTES_PER_CROSSING`` (measured, about 160 bytes per crossing against 250 in one
-piece), so tiles lower the peak to about two thirds of one piece, not further; a budget below
-that is refused; tiles given explicitly still run (parallel, resumable).
+piece), so tiles held in memory lower the peak to about two thirds of one piece, not
+further. Below that the plan *streams*: the tiles stay on disk and are merged one at a time
+from summaries (:mod:`specmap.special.stream`, ``STREAMED_BYTES_PER_CROSSING``), and the
+peak is that of ``jobs`` tiles; tiles given explicitly still run (parallel, resumable),
+streamed when held whole they would not fit.
 """
 
 from __future__ import annotations
@@ -47,6 +50,9 @@ BASE_BYTES = 150e6  # interpreter, numpy, shapely and the grids
 # 81 x 81, 16.0 M crossings) the tiled map peaks at 2.51 GB (2 x 2) and 2.95 GB (3 x 3), one piece
 # at 4.02 GB; the 3 x 3 peak less a tile's share is about 160 bytes per crossing.
 MERGED_BYTES_PER_CROSSING = 160.0
+# Streamed merge: about 100 bytes per clipped curve line kept as a summary; 80 random contours at
+# 121 x 121 (tests/benchmarks/results_tiles_n80.md) have 3.2 clipped lines per 100 crossings
+STREAMED_BYTES_PER_CROSSING = 4.0
 MIN_TILE_CELLS = 4  # smallest tile side (cells) the plan goes down to
 UNITS = {
     "": 1.0,
@@ -201,6 +207,7 @@ class AtlasPlan:
     tile_bytes: float
     jobs: int
     reason: str
+    streamed: bool = False
 
     @property
     def tiled(self) -> bool:
@@ -217,11 +224,14 @@ class AtlasPlan:
             "tile_bytes_estimate": float(self.tile_bytes),
             "jobs": int(self.jobs),
             "reason": self.reason,
+            "streamed": bool(self.streamed),
         }
 
     def line(self) -> str:
         """One line for the terminal."""
         shape = "one piece" if not self.tiled else f"{self.tiles[0]} x {self.tiles[1]} tiles"
+        if self.streamed:
+            shape += " streamed to disk"
         return (
             f"map plan: {shape} ({self.reason}); about {self.estimate.crossings:.2g} crossings, "
             f"{_size(self.estimate.bytes)} in one piece, {_size(self.tile_bytes)} as planned, "
@@ -229,8 +239,11 @@ class AtlasPlan:
         )
 
 
-def _tiles_bytes(est: AtlasEstimate, n_a: int, n_b: int, tiles: tuple[int, int], jobs: int) -> float:
-    """Expected peak with ``tiles``: ``jobs`` of the largest tile (halo included) and the merged output."""
+def _tiles_bytes(
+    est: AtlasEstimate, n_a: int, n_b: int, tiles: tuple[int, int], jobs: int, streamed: bool = False
+) -> float:
+    """Expected peak with ``tiles``: ``jobs`` of the largest tile (halo included) and the merged
+    output (held whole, or its summaries when ``streamed``)."""
     na, nb = tiles
     cells = (n_a - 1) * (n_b - 1)
     if na == nb == 1:
@@ -243,7 +256,7 @@ def _tiles_bytes(est: AtlasEstimate, n_a: int, n_b: int, tiles: tuple[int, int],
     return (
         BASE_BYTES * (1 + min(jobs, na * nb))
         + min(jobs, na * nb) * per_tile
-        + MERGED_BYTES_PER_CROSSING * crossings
+        + (STREAMED_BYTES_PER_CROSSING if streamed else MERGED_BYTES_PER_CROSSING) * crossings
     )
 
 
@@ -289,7 +302,10 @@ def plan_atlas(
     if tiles is not None:
         t = (int(tiles[0]), int(tiles[1]))
         reason = "one piece as asked" if t == (1, 1) else "tiles as asked"
-        return AtlasPlan(est, budget, t, _tiles_bytes(est, n_a, n_b, t, jobs), jobs, reason)
+        held = _tiles_bytes(est, n_a, n_b, t, jobs)
+        if t == (1, 1) or held <= budget:
+            return AtlasPlan(est, budget, t, held, jobs, reason)
+        return AtlasPlan(est, budget, t, _tiles_bytes(est, n_a, n_b, t, jobs, True), jobs, reason, True)
     if est.bytes <= budget:
         return AtlasPlan(est, budget, (1, 1), est.bytes, jobs, "fits the budget")
     max_a = max(1, (n_a - 1) // MIN_TILE_CELLS)
@@ -302,9 +318,13 @@ def plan_atlas(
         b = _tiles_bytes(est, n_a, n_b, t, jobs)
         if b <= budget:
             return AtlasPlan(est, budget, t, b, jobs, "tiled to fit the budget")
+    for t in options:  # the merged output does not fit: tiles on disk, merged from summaries
+        b = _tiles_bytes(est, n_a, n_b, t, jobs, True)
+        if b <= budget:
+            return AtlasPlan(est, budget, t, b, jobs, "tiled and streamed to fit the budget", True)
     if not given_budget and est.bytes <= 2 * budget:  # the coarse estimate's margin, as before tiles
         return AtlasPlan(est, budget, (1, 1), est.bytes, jobs, "within twice the default budget")
-    smallest = _tiles_bytes(est, n_a, n_b, (max_a, max_b), jobs)
+    smallest = _tiles_bytes(est, n_a, n_b, (max_a, max_b), jobs, True)
     whose = "the --memory budget" if given_budget else "half of this machine's memory"
     raise AtlasTooLargeError(
         f"the special-set map of {n_f} + {n_g} contours ({est.pairs} pairs, about {est.crossings:.2g} "
@@ -331,7 +351,7 @@ def _least_bytes(n: int, resolution: int | tuple[int, int], jobs: int) -> tuple[
     est = estimate_atlas(n, 0, resolution)
     n_a, n_b = (resolution, resolution) if isinstance(resolution, int) else resolution
     tiles = (max(1, (n_a - 1) // MIN_TILE_CELLS), max(1, (n_b - 1) // MIN_TILE_CELLS))
-    return est, min(est.bytes, _tiles_bytes(est, n_a, n_b, tiles, jobs))
+    return est, min(est.bytes, _tiles_bytes(est, n_a, n_b, tiles, jobs, True))
 
 
 def _fits(n: int, resolution: int | tuple[int, int], budget: float, given_budget: bool, jobs: int) -> bool:

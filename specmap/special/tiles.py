@@ -401,47 +401,35 @@ def tiled_special_set(
         computes them) and adds ``tiles`` (grid, count, reused, seconds per tile).
     """
     from specmap.special.components import components_with
-    from specmap.special.compute import default_tolerance, with_reasons
+    from specmap.special.compute import with_reasons
 
     t_start = time.perf_counter()
-    settings = MapSettings() if settings is None else settings
-    res = settings.resolution if resolution is None else resolution
-    n_a, n_b = (res, res) if isinstance(res, int) else (int(res[0]), int(res[1]))
-    tol = default_tolerance(grid_f, grid_g) if settings.tol is None else float(settings.tol)
-    settings = MapSettings(
-        pairs=settings.pairs, resolution=n_a, method=settings.method, tol=tol, reading=settings.reading
-    )
+    settings, (n_a, n_b), tol = _settings(grid_f, grid_g, settings, resolution)
     plan = plan_tiles(n_a, n_b, tiles)
     fp = fingerprint(grid_f, grid_g, window, (n_a, n_b), tiles, settings)
     store = Path(folder) if folder is not None else None
-    done = read_done_tiles(store, fp) if store is not None else {}
-    reused = sum(1 for t in plan if t.name in done)
-    todo = [t for t in plan if t.name not in done]
-    if progress is not None:
-        progress(len(plan) - len(todo), len(plan))
-    if todo:
-        from joblib import delayed
-
-        from specmap.floatwarn import Counted, unwrap
-        from specmap.perturb.execution import _results as results_of
-
-        tasks = [  # Counted: the workers' float warnings join the CLI's one line (specmap.floatwarn)
-            delayed(Counted(tile_pieces))(grid_f, grid_g, window, (n_a, n_b), t, settings, sub=sub, seed=seed)
-            for t in todo
-        ]
-        runner: Iterable[Any] = (
-            results_of(tasks, max(1, int(jobs)), cluster) if (jobs > 1 or cluster) else map(_call, tasks)
-        )
-        for result in map(unwrap, runner):
-            if store is not None:
-                write_tile(store, fp, result)
-            done[result.name] = result
-            if progress is not None:
-                progress(sum(1 for t in plan if t.name in done), len(plan))
-    tile_stats = [done[t.name].stats for t in plan]
+    done, by_name, reused = run_tiles(
+        grid_f,
+        grid_g,
+        window,
+        (n_a, n_b),
+        plan,
+        settings,
+        fp,
+        store,
+        jobs=jobs,
+        cluster=cluster,
+        progress=progress,
+        sub=sub,
+        seed=seed,
+        keep=True,
+    )
+    tile_stats = [by_name[t.name] for t in plan]
     t_merge = time.perf_counter()
     table = pair_table(grid_f, grid_g, settings.pairs)
-    items, line_labels = merge_items((done.pop(t.name) for t in plan), window.diameter)
+    items, line_labels = merge_items(
+        (r for r in (done.pop(t.name) for t in plan) if r is not None), window.diameter
+    )
     pieces = as_pieces(table, items)
     # line/line contacts from the tiles' labels (united across borders); patches and points as usual
     order = np.concatenate(
@@ -456,32 +444,223 @@ def tiled_special_set(
         return np.arange(order.size), first[np.searchsorted(u, order)]
 
     comps = with_reasons(components_with(tuple(pieces), window, links), pieces, table, tol)
-    summed: dict[str, Any] = {}
-    for st in tile_stats:
-        for k, v in st.items():
-            if k not in ("contours", "pairs_total", "snap", "seconds", "tile_seconds", "halo_cells"):
-                summed[k] = summed.get(k, 0) + v
     stats = {
-        "contours": len(table.contours),
-        "pairs_total": table.n_pairs,
-        **summed,
+        **_summed_stats(table, tile_stats),
         "tie_curves": sum(len(shapely.get_parts(g)) for _, k, g in items if k == CURVE),
         "ties_with_curves": sum(1 for _, k, _ in items if k == CURVE),
         "ties_with_patches": sum(1 for _, k, _ in items if k == "patch"),
         "pieces": len(pieces),
         "reading": settings.reading,
         "snap": 1e-3 * tol,
-        "tiles": {
-            "grid": [int(tiles[0]), int(tiles[1])],
-            "count": len(plan),
-            "reused": reused,
-            "halo_cells": 1,
-            "seconds_per_tile": [float(st.get("tile_seconds", 0.0)) for st in tile_stats],
-            "merge_s": round(time.perf_counter() - t_merge, 4),
-        },
+        "tiles": _tiles_stats(tiles, plan, reused, tile_stats, t_merge),
         "seconds": round(time.perf_counter() - t_start, 4),
     }
     return Atlas(window, tol, settings.pairs, settings.method, (n_a, n_b), tuple(pieces), comps, stats)
+
+
+def _settings(
+    grid_f: Grid, grid_g: Grid, settings: MapSettings | None, resolution: int | tuple[int, int] | None
+) -> tuple[MapSettings, tuple[int, int], float]:
+    """The map settings with the tolerance resolved, the lattice (n_a, n_b) and the tolerance."""
+    from specmap.special.compute import default_tolerance
+
+    settings = MapSettings() if settings is None else settings
+    res = settings.resolution if resolution is None else resolution
+    n_a, n_b = (res, res) if isinstance(res, int) else (int(res[0]), int(res[1]))
+    tol = default_tolerance(grid_f, grid_g) if settings.tol is None else float(settings.tol)
+    settings = MapSettings(
+        pairs=settings.pairs, resolution=n_a, method=settings.method, tol=tol, reading=settings.reading
+    )
+    return settings, (n_a, n_b), tol
+
+
+def run_tiles(
+    grid_f: Grid,
+    grid_g: Grid,
+    window: Window,
+    lattice: tuple[int, int],
+    plan: tuple[Tile, ...],
+    settings: MapSettings,
+    fp: str,
+    store: Path | None,
+    *,
+    jobs: int = 1,
+    cluster: str | None = None,
+    progress: Callable[[int, int], None] | None = None,
+    sub: int = 8,
+    seed: int = 0,
+    keep: bool = True,
+) -> tuple[dict[str, TileResult | None], dict[str, dict[str, Any]], int]:
+    """Map the tiles of ``plan`` not yet finished in ``store``; (results, statistics, tiles reused).
+
+    Results and statistics are keyed by tile name.
+
+    Each result is written to ``store`` as it arrives. With ``keep=False`` (``store``
+    required) results are dropped once written and the dict holds ``None``: the streamed
+    merge reads them back one at a time (:mod:`specmap.special.stream`), and only the
+    tiles' statistics (``stats``) stay in memory.
+    """
+    if not keep and store is None:
+        raise ValueError("a tile folder is needed when tiles are not kept in memory")
+    done: dict[str, TileResult | None] = {}
+    stats: dict[str, dict[str, Any]] = {}
+    if store is not None:
+        for name, res in _iter_done(store, fp, {t.name for t in plan}):
+            done[name] = res if keep else None
+            stats[name] = res.stats
+    reused = sum(1 for t in plan if t.name in done)
+    todo = [t for t in plan if t.name not in done]
+    if progress is not None:
+        progress(len(plan) - len(todo), len(plan))
+    if todo:
+        from joblib import delayed
+
+        from specmap.floatwarn import Counted, unwrap
+        from specmap.perturb.execution import _results as results_of
+
+        tasks = [  # Counted: the workers' float warnings join the CLI's one line (specmap.floatwarn)
+            delayed(Counted(tile_pieces))(grid_f, grid_g, window, lattice, t, settings, sub=sub, seed=seed)
+            for t in todo
+        ]
+        runner: Iterable[Any] = (
+            results_of(tasks, max(1, int(jobs)), cluster) if (jobs > 1 or cluster) else map(_call, tasks)
+        )
+        for result in map(unwrap, runner):
+            if store is not None:
+                write_tile(store, fp, result)
+            done[result.name] = result if keep else None
+            stats[result.name] = result.stats
+            del result
+            if progress is not None:
+                progress(sum(1 for t in plan if t.name in done), len(plan))
+    return done, stats, reused
+
+
+def _iter_done(folder: Path, fp: str, names: set[str]) -> Iterable[tuple[str, TileResult]]:
+    """The finished tiles of ``folder`` (fingerprint ``fp``) among ``names``, read one at a time."""
+    from specmap.special.stream import read_tile
+
+    if not folder.is_dir():
+        return
+    for path in sorted(folder.glob("tile_*.json")):
+        if path.stem not in names:
+            continue
+        try:
+            yield path.stem, read_tile(folder, path.stem, fp)
+        except (OSError, KeyError, TypeError, ValueError, shapely.errors.GEOSException):
+            continue
+
+
+def _summed_stats(table: PairTable, tile_stats: list[dict[str, Any]]) -> dict[str, Any]:
+    """The tiles' counters summed (cells of the halos counted in each tile that computes them)."""
+    summed: dict[str, Any] = {}
+    for st in tile_stats:
+        for k, v in st.items():
+            if k not in ("contours", "pairs_total", "snap", "seconds", "tile_seconds", "halo_cells"):
+                summed[k] = summed.get(k, 0) + v
+    return {"contours": len(table.contours), "pairs_total": table.n_pairs, **summed}
+
+
+def _tiles_stats(
+    tiles: tuple[int, int],
+    plan: tuple[Tile, ...],
+    reused: int,
+    tile_stats: list[dict[str, Any]],
+    t_merge: float,
+) -> dict[str, Any]:
+    return {
+        "grid": [int(tiles[0]), int(tiles[1])],
+        "count": len(plan),
+        "reused": reused,
+        "halo_cells": 1,
+        "seconds_per_tile": [float(st.get("tile_seconds", 0.0)) for st in tile_stats],
+        "merge_s": round(time.perf_counter() - t_merge, 4),
+    }
+
+
+def streamed_tiled_map(
+    grid_f: Grid,
+    grid_g: Grid,
+    window: Window,
+    *,
+    tiles: tuple[int, int],
+    folder: str | Path,
+    geojson: str | Path | None = None,
+    head: dict[str, Any] | None = None,
+    settings: MapSettings | None = None,
+    resolution: int | tuple[int, int] | None = None,
+    jobs: int = 1,
+    cluster: str | None = None,
+    progress: Callable[[int, int], None] | None = None,
+    sub: int = 8,
+    seed: int = 0,
+) -> Atlas:
+    """:func:`tiled_special_set` for maps larger than memory: tiles on disk, merged by summaries.
+
+    Each finished tile is written to ``folder`` and dropped; the merge reads the tile files
+    one at a time (:func:`specmap.special.stream.streamed_components`), and when ``geojson``
+    is given writes the features there, streamed (``head``: more members of the
+    FeatureCollection). The peak memory is that of the largest tile (or ``jobs`` of them)
+    plus the summaries (about 100 bytes per clipped curve line).
+
+    Returns
+    -------
+    Atlas
+        No pieces (``pieces == ()``) and components without geometry; the same components,
+        counts and statistics as :func:`tiled_special_set`; ``stats["streamed"]`` is True.
+    """
+    from specmap.io import write_json_streamed
+    from specmap.special.stream import iter_features, read_tile, streamed_components
+
+    t_start = time.perf_counter()
+    settings, (n_a, n_b), tol = _settings(grid_f, grid_g, settings, resolution)
+    plan = plan_tiles(n_a, n_b, tiles)
+    fp = fingerprint(grid_f, grid_g, window, (n_a, n_b), tiles, settings)
+    store = Path(folder)
+    _, by_name, reused = run_tiles(
+        grid_f,
+        grid_g,
+        window,
+        (n_a, n_b),
+        plan,
+        settings,
+        fp,
+        store,
+        jobs=jobs,
+        cluster=cluster,
+        progress=progress,
+        sub=sub,
+        seed=seed,
+        keep=False,
+    )
+    tile_stats = [by_name[t.name] for t in plan]
+    t_merge = time.perf_counter()
+    table = pair_table(grid_f, grid_g, settings.pairs)
+    names = [t.name for t in plan]
+
+    def load(name: str) -> TileResult:
+        return read_tile(store, name, fp)
+
+    got = streamed_components(names, load, table, window, tol)
+    stats = {
+        **_summed_stats(table, tile_stats),
+        **{k: v for k, v in got.stats.items() if k != "clipped_lines"},
+        "reading": settings.reading,
+        "snap": 1e-3 * tol,
+        "streamed": True,
+        "clipped_lines": got.stats["clipped_lines"],
+    }
+    atlas = Atlas(window, tol, settings.pairs, settings.method, (n_a, n_b), (), got.components, stats)
+    if geojson is not None:
+        write_json_streamed(
+            geojson,
+            {**atlas.geojson_head(), **(head or {})},
+            "features",
+            iter_features(names, load, table, got),
+        )
+    stats["tiles"] = _tiles_stats(tiles, plan, reused, tile_stats, t_merge)
+    stats["seconds"] = round(time.perf_counter() - t_start, 4)
+    return atlas
 
 
 def _call(task: tuple) -> Any:

@@ -5,7 +5,9 @@
 Each case runs in a fresh subprocess (its peak RSS from ``resource.getrusage``): a random
 generic pair of N contours together (tests/gridgen.py, seed 3), window a in [0.05, 0.95],
 b in [-1, 1], pairs "all". The numba kernels are loaded once before timing in each child.
-Writes tests/benchmarks/results_tiles.md.
+Cases: "2x2" (tiles merged in memory), "s2x2" (tiles written to disk and merged from the files,
+:func:`specmap.special.tiles.streamed_tiled_map`), "dask2" (2 x 2 tiles on a LocalCluster of 2
+workers). Writes tests/benchmarks/results_tiles.md with time per crossing (halo cells counted).
 """
 
 from __future__ import annotations
@@ -39,6 +41,12 @@ if workers:  # 2 x 2 tiles on a local Dask cluster of that many single-threaded 
     t = time.perf_counter()
     at = tiled_special_set(gf, gg, w, tiles=(na, nb), settings=MapSettings(resolution=res),
         cluster=cl.scheduler_address)
+elif {streamed}:  # tiles written to a temporary folder and merged from it one at a time
+    import tempfile
+    from specmap.special.tiles import streamed_tiled_map
+    d = tempfile.mkdtemp()
+    at = streamed_tiled_map(gf, gg, w, tiles=(na, nb), settings=MapSettings(resolution=res),
+        folder=d + "/tiles", geojson=d + "/special.geojson")
 elif (na, nb) == (1, 1):
     at = special_set(gf, gg, w, resolution=res)
 else:
@@ -50,8 +58,10 @@ print(json.dumps({{"seconds": dt, "peak_rss": resource.getrusage(resource.RUSAGE
 """
 
 
-def run_case(n: int, res: int, tiles: tuple[int, int], workers: int = 0) -> dict:
-    code = CHILD.format(tests=str(HERE.parent), n=n, res=res, na=tiles[0], nb=tiles[1], workers=workers)
+def run_case(n: int, res: int, tiles: tuple[int, int], workers: int = 0, streamed: bool = False) -> dict:
+    code = CHILD.format(
+        tests=str(HERE.parent), n=n, res=res, na=tiles[0], nb=tiles[1], workers=workers, streamed=streamed
+    )
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
     return json.loads(out.stdout.strip().splitlines()[-1])
 
@@ -59,14 +69,19 @@ def run_case(n: int, res: int, tiles: tuple[int, int], workers: int = 0) -> dict
 def main(argv: list[str]) -> None:
     n = int(argv[0]) if argv else 40
     res = int(argv[1]) if len(argv) > 1 else 81
-    # a case "2x2" runs in this process; "dask2" is 2 x 2 tiles on a LocalCluster of 2 workers
+    # a case "2x2" runs in this process; "dask2" is 2 x 2 tiles on a LocalCluster of 2 workers;
+    # "s2x2" is 2 x 2 tiles streamed: written to disk and merged from the files (-1 in the key)
     cases = [(1, 1, 0)] + [
-        (2, 2, int(t[4:])) if t.startswith("dask") else (*(int(x) for x in t.split("x")), 0)
+        (2, 2, int(t[4:]))
+        if t.startswith("dask")
+        else (*(int(x) for x in t[1:].split("x")), -1)
+        if t.startswith("s")
+        else (*(int(x) for x in t.split("x")), 0)
         for t in (argv[2:] or ["2x2", "3x3"])
     ]
     rows = []
     for na, nb, workers in cases:
-        r = run_case(n, res, (na, nb), workers)
+        r = run_case(n, res, (na, nb), max(workers, 0), workers < 0)
         t = (na, nb, workers)
         rows.append((t, r))
         print(t, r, flush=True)
@@ -80,20 +95,25 @@ def main(argv: list[str]) -> None:
         "halo cells in each tile that maps them. Dask rows: peak RSS is the driver's only (the "
         "workers are other processes).",
         "",
-        "| plan | time (s) | peak RSS (GB) | crossings | tie curves | components | time ratio | memory ratio |",
-        "|---|---|---|---|---|---|---|---|",
+        "| plan | time (s) | peak RSS (GB) | crossings | tie curves | components | time ratio | "
+        "us per crossing | per-crossing ratio | memory ratio |",
+        "|---|---|---|---|---|---|---|---|---|---|",
     ]
     for t, r in rows:
         lines.append(
             f"| {_name(t)} | {r['seconds']:.1f} | "
             f"{r['peak_rss'] / 1e9:.2f} | {r['crossings']:,} | {r['tie_curves']:,} | {r['components']} | "
-            f"{r['seconds'] / base['seconds']:.2f} | {r['peak_rss'] / base['peak_rss']:.2f} |"
+            f"{r['seconds'] / base['seconds']:.2f} | {1e6 * r['seconds'] / r['crossings']:.2f} | "
+            f"{(r['seconds'] / r['crossings']) / (base['seconds'] / base['crossings']):.2f} | "
+            f"{r['peak_rss'] / base['peak_rss']:.2f} |"
         )
     (HERE / "results_tiles.md").write_text("\n".join(lines) + "\n")
     print("\n".join(lines))
 
 
 def _name(t: tuple[int, int, int]) -> str:
+    if t[2] < 0:
+        return f"{t[0]} x {t[1]} tiles, streamed"
     if t[2]:
         return f"{t[0]} x {t[1]} tiles, Dask {t[2]} worker{'s' if t[2] > 1 else ''}"
     return "one piece" if t[:2] == (1, 1) else f"{t[0]} x {t[1]} tiles"
