@@ -99,3 +99,69 @@ def test_coincident_proper_contours_give_an_unexplained_patch():
         resolution=31,
     )
     assert moved.counts()["patch"] == 0 and _reasons(moved) == []
+
+
+def test_unexplained_patch_breaks_at_the_probed_size():
+    # built for it (coincident proper arcs and half-lines, as above): the tie has no closed form, so its
+    # breaks_at comes from the perturbation probe (specmap.special.probe: one contour moved by (eps, eps)).
+    # The prediction is then tested by re-detecting the special set with g's arc moved (closed form of
+    # the move, derived here: the grid changes by eps in sup norm): at breaks_at and 10 x breaks_at the
+    # patch is gone, at a tenth of it (below the atlas tolerance) it stays.
+    import dataclasses
+
+    def moved(eps: float):
+        g = _arc_and_vertical("g")
+        cs = tuple(dataclasses.replace(c, points=c.points + eps) if c.id == "g:p0" else c for c in g.contours)
+        return special_set(_arc_and_vertical("f"), Grid(cs), WINDOW, resolution=31)
+
+    atlas = special_set(_arc_and_vertical("f"), _arc_and_vertical("g"), WINDOW, resolution=31)
+    rs = _reasons(atlas)
+    assert rs and all(r["kind"] == "unexplained" for r in rs)
+    for r in rs:
+        assert r["probe"] is not None and r["probe"]["lines"] > 0
+        assert atlas.tolerance <= r["breaks_at"] < 1e3 * atlas.tolerance
+        assert r["probe"]["moved"] in r["contours"]
+    br = max(r["breaks_at"] for r in rs)
+    assert moved(br / 10).counts()["patch"] >= 1
+    assert moved(br).counts()["patch"] == 0 and moved(10 * br).counts()["patch"] == 0
+
+
+def test_unexplained_without_geometry_is_not_probed():
+    # the reason read without its patch (no geometry): breaks_at stays None and the probe None, and
+    # the report sentence says "not probed" (specmap.report.summary.reason_sentence)
+    from specmap.report.summary import reason_sentence
+    from specmap.special.pairs import Tie
+    from specmap.special.reasons import tie_reason
+
+    f, g = _arc_and_vertical("f"), _arc_and_vertical("g")
+    cs = {c.id: c for c in (*f.contours, *g.contours)}
+    r = tie_reason(Tie((("f:p0", "f:v0"), ("g:p0", "g:v0")), "equal"), cs, 1e-9)
+    assert r["kind"] == "unexplained" and r["breaks_at"] is None and r["probe"] is None
+    text = reason_sentence({"components": [{"kind": "patch", "reasons": [r]}]})
+    assert "not probed" in text
+    atlas = special_set(f, g, WINDOW, resolution=31)
+    probed = reason_sentence(atlas.to_json())
+    assert "perturbation probe" in probed and "not probed" not in probed
+
+
+def test_shared_extreme_is_equal_values():
+    # closed form, derived here: f's half-line f:v0 and g's g:v0 both at x = 0 (an extreme value shared by
+    # f1 and g1) have s = (0 - b)/a on every line, so every tie |s_s - s_u| = |s_s - s_w| with {u, w} =
+    # {f:v0, g:v0} holds identically: kind "equal_values" (the contours reading keeps these ties; the
+    # points reading drops them as coincidence branches, issue 13 item 4's "shared extremes").
+    from specmap.report.summary import reason_sentence
+
+    atlas = special_set(
+        _verticals("f", [0.0, 1.0]), _verticals("g", [0.0, 2.7]), WINDOW, resolution=31, reading="contours"
+    )
+    rs = _reasons(atlas)
+    assert atlas.counts()["patch"] == 1 and rs
+    assert all(r["kind"] == "equal_values" for r in rs)
+    for r in rs:
+        (shared,) = set(r["contours"][:2]) & set(r["contours"][2:])
+        others = {c for c in r["contours"] if c != shared}
+        assert others == {"f:v0", "g:v0"} and r["breaks_at"] >= atlas.tolerance
+    assert "coincidence" in reason_sentence(atlas.to_json())
+    # 0, 1 against 0, 2.7 has no spacing or symmetry, so with the coincidences dropped: no patch
+    plain = special_set(_verticals("f", [0.0, 1.0]), _verticals("g", [0.0, 2.7]), WINDOW, resolution=31)
+    assert plain.counts()["patch"] == 0

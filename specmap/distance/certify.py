@@ -106,7 +106,10 @@ def degree_certificate(
             theorem = None
         elif not ss.certified_groups[j]:
             cap = f"its {max_lines}-line cap" if max_lines else "its line budget"
-            why = f"slope-one search stopped at {cap}: bound {ss.bound[j]:.4g} against best {ss.best[j]:.4g}"
+            why = (
+                f"slope-one search stopped at {cap}: bound {ss.bound[j]:.4g} against best {ss.best[j]:.4g}; "
+                "raise [distance] slope_max_lines to close it"
+            )
         elif left is not None and theorem - lower > slack:
             why = (
                 f"the special-set pass stopped at its {left['budget']}-line budget with "

@@ -23,6 +23,7 @@ from specmap.distance.result import (
     landscape_json,
     reduced_json,
 )
+from specmap.distance.top_degree import fold_top
 from specmap.errors import MissingInputError
 from specmap.settings import DistanceSettings
 from specmap.shapes.model import require_mesh
@@ -260,6 +261,8 @@ def matching_distance(
     )
     # the strip's ends a < a0, a > 1 - a0 (issue 16 item 4)
     ends_meta = fold_ends(ev, shape_f, shape_g, window, by_degree, degrees, tol, upper=upper)
+    # degree 2 of two closed connected surfaces: h_2 in closed form over the whole strip
+    top_meta = fold_top(ev, shape_f, shape_g, window, by_degree, degrees, tol)
     # degrees still open: the 2-D branch and bound over the whole strip, ends included (issue 13 item 1)
     strip_meta = fold_strip(
         ev,
@@ -313,5 +316,6 @@ def matching_distance(
             "resolution_floor": {"distance": float(tol), "grid": floors[0], "mesh": floors[1]},
             "ends": ends_meta,
             "strip": strip_meta,
+            "top_degree": top_meta,
         },
     )

@@ -86,6 +86,17 @@ def _same_mesh(ev: LineEvaluator) -> bool:
     return ev.val_f.shape == ev.val_g.shape and np.array_equal(ev.tri_f, ev.tri_g)
 
 
+def _top_index(ev: LineEvaluator) -> int | None:
+    """Index of degree 2 in the evaluator's degrees when both meshes are closed connected surfaces."""
+    from specmap.distance.cellbound import closed_connected
+
+    if 2 not in ev.degrees:
+        return None
+    if not all(closed_connected(t, len(v)) for t, v in ((ev.tri_f, ev.val_f), (ev.tri_g, ev.val_g))):
+        return None
+    return list(ev.degrees).index(2)
+
+
 def _slope_one_phase(
     ev: LineEvaluator,
     window: Window,
@@ -114,6 +125,7 @@ def _slope_one_phase(
         max_lines=settings.slope_max_lines,
         batch=step,
         values=(ev.val_f, ev.val_g) if same_mesh else None,
+        top=_top_index(ev),
     )
     for g, (v, b) in enumerate(zip(info.best, info.at, strict=True)):
         for j in groups[g]:  # one degree per group

@@ -10,6 +10,7 @@ import numpy as np
 from specmap.distance.bounds import SLOPE_ONE_LIPSCHITZ, slope_one_sup_norm_max
 from specmap.distance.evaluator import LineEvaluator
 from specmap.distance.result import SlopeOneSearch
+from specmap.distance.top_degree import agrees, slope_one_top_cap
 from specmap.strip import Window
 
 
@@ -31,6 +32,24 @@ def _sup_norm_cap(values: tuple[np.ndarray, np.ndarray]) -> Callable[[float, flo
         return cache[key]
 
     return cap
+
+
+def _top_cap(
+    ev: LineEvaluator,
+    group: Sequence[int],
+    xs: np.ndarray,
+    tcap: Callable[[float, float], float],
+    cap: Callable[[float, float], float] | None,
+) -> Callable[[float, float], float] | None:
+    """The closed-form cap of the top degree, min with ``cap``, if the slices at ``xs`` agree with it."""
+    G = _group_values(ev, [group], xs)[:, 0]
+    scale = float(max(np.abs(ev.val_f).max(initial=0.0), np.abs(ev.val_g).max(initial=0.0)))
+    if not all(agrees(float(h), tcap(float(x), float(x)), scale) for h, x in zip(G, xs, strict=True)):
+        return cap
+    if cap is None:
+        return tcap
+    inner = cap
+    return lambda lo, hi: min(inner(lo, hi), tcap(lo, hi))
 
 
 def _split_points(
@@ -59,6 +78,7 @@ def slope_one_search(
     batch: int = 1,
     lipschitz: float = SLOPE_ONE_LIPSCHITZ,
     values: tuple[np.ndarray, np.ndarray] | None = None,
+    top: int | None = None,
 ) -> SlopeOneSearch:
     """max over b of h on the slope-one line a = 1/2, by branch and bound, certified to ``tolerance``.
 
@@ -75,7 +95,12 @@ def slope_one_search(
     (``values``) the interval bound is min(UB, S(l, r)) with S the exact max over
     [l, r] of ||F*_f - F*_g||_inf (:func:`~specmap.distance.bounds.slope_one_sup_norm_max`,
     no diagram): stability closes intervals where h cannot exceed best + tolerance
-    whatever its slope, e.g. the flat h = |c| of g = f + (c, c).
+    whatever its slope, e.g. the flat h = |c| of g = f + (c, c). For the top degree of two
+    closed connected surfaces (``top``, the group ``[top]``) h_2 = |max F*_f - max F*_g| is
+    piecewise linear in b with two kinks, and its exact max over [l, r]
+    (:func:`~specmap.distance.top_degree.slope_one_top_cap`) is the interval bound; the kinks
+    join the starting lines, and the bound is used only when every starting line agrees with
+    the closed form.
 
     Search (Piyavskii-Shubert). ``samples`` equally spaced values of b over the
     window, then repeatedly: the interval with the largest UB - best is split
@@ -105,6 +130,9 @@ def slope_one_search(
         L above; only a larger value keeps the bound valid.
     values : (ndarray (n, 2), ndarray (n, 2)), optional
         Vertex values of f and g on one mesh (same triangles), for the sup-norm bound.
+    top : int, optional
+        Degree index of degree 2 when both meshes are closed connected surfaces
+        (:func:`~specmap.distance.branch.top_degree_index`).
 
     Returns
     -------
@@ -124,21 +152,27 @@ def slope_one_search(
     xs = np.linspace(b_lo, b_hi, max(2, int(samples)))
     ev.plan(len(xs))
     cap = _sup_norm_cap(values) if values is not None else None
-    out = [
-        _search_group(
-            ev,
-            g,
-            xs,
-            b_lo,
-            b_hi,
-            tolerance=tolerance,
-            max_lines=max_lines,
-            batch=batch,
-            lipschitz=lipschitz,
-            cap=cap,
+    out = []
+    for g in groups:
+        gcap, gxs = cap, xs
+        if top is not None and list(g) == [top]:
+            tcap, kinks = slope_one_top_cap(ev.val_f, ev.val_g)
+            gxs = np.unique(np.r_[xs, [k for k in kinks if b_lo < k < b_hi]])
+            gcap = _top_cap(ev, g, gxs, tcap, cap)
+        out.append(
+            _search_group(
+                ev,
+                g,
+                gxs,
+                b_lo,
+                b_hi,
+                tolerance=tolerance,
+                max_lines=max_lines,
+                batch=batch,
+                lipschitz=lipschitz,
+                cap=gcap,
+            )
         )
-        for g in groups
-    ]
     cert = [o[2] for o in out]
     return SlopeOneSearch(
         best=[o[0] for o in out],

@@ -296,6 +296,7 @@ def component_counts(sp: dict[str, Any]) -> str:
 REASON_WORDS = {
     "equal_spacing": "equal spacing",
     "central_symmetry": "central symmetry",
+    "equal_values": "coincidence",
 }
 """How each closed-form reason of special.json (:mod:`specmap.special.reasons`) is said."""
 MAX_IDS = 8
@@ -332,11 +333,34 @@ def _patch_reasons(sp: dict[str, Any]) -> list[list[dict[str, Any]]]:
     ]
 
 
-def breaking_size(sp: dict[str, Any]) -> float:
-    """The perturbation size above which every explained identity breaks: max ``breaks_at``, else nan."""
-    xs = [num(r.get("breaks_at")) for rs in _patch_reasons(sp) for r in rs if r.get("kind") != "unexplained"]
+def breaking_size(sp: dict[str, Any], probed: bool = False) -> float:
+    """The perturbation size above which every explained identity breaks: max ``breaks_at``, else nan.
+
+    ``probed`` also takes the unexplained identities whose ``breaks_at`` the perturbation probe
+    measured (:mod:`specmap.special.probe`); it is nan when one of them was not probed or not broken.
+    """
+    rs = [r for rs in _patch_reasons(sp) for r in rs if probed or r.get("kind") != "unexplained"]
+    xs = [num(r.get("breaks_at")) for r in rs]
+    if probed and any(not math.isfinite(x) for x in xs):
+        return math.nan
     xs = [x for x in xs if math.isfinite(x)]
     return max(xs) if xs else math.nan
+
+
+def _probe_clause(rs: list[dict[str, Any]]) -> str:
+    """What the perturbation probe measured for the unexplained identities (a clause, or "")."""
+    if not rs:
+        return ""
+    xs = [num(r.get("breaks_at")) for r in rs]
+    probed = [r for r in rs if isinstance(r.get("probe"), dict)]
+    if not probed:
+        return "; breaks_at: not probed"
+    if all(math.isfinite(x) for x in xs):
+        return (
+            f"; a perturbation probe (one contour moved) breaks {'it' if len(rs) == 1 else 'each'} "
+            f"at a move of at most {fmt(max(xs), 3)}"
+        )
+    return "; the perturbation probe did not break every one of them (breaks_at: not found)"
 
 
 def reason_sentence(sp: dict[str, Any], short: bool = False) -> str | None:
@@ -413,6 +437,7 @@ breaks it.'
             f"{whose} {plural(count['unexplained'], 'identity', 'identities')} with no closed-form explanation ("
             + ("" if short else f"contours {_ids(ids)}: ")
             + "proper contours, or vertical and horizontal half-lines mixed)"
+            + _probe_clause([r for rs in per for r in rs if r.get("kind") == "unexplained"])
         )
     return head + "; ".join(parts) + ("; the contours are listed on the Special set page." if short else ".")
 

@@ -47,13 +47,18 @@ def with_reasons(
     if not patches:
         return comps
     by_id = {c.id: c for c in table.contours}
+    pts = np.concatenate([np.asarray(c.points, float) for c in table.contours])
+    scale = float(np.hypot(*(pts.max(axis=0) - pts.min(axis=0)))) if len(pts) else 1.0
     out = []
     for c in comps:
         if c.kind != "patch" or c.geometry is None:
             out.append(c)
             continue
-        ties = [p.tie for p in patches if c.geometry.intersects(p.geometry.representative_point())]
-        out.append(dataclasses.replace(c, reasons=tuple(patch_reasons(ties, by_id, tol))))
+        held = [p for p in patches if c.geometry.intersects(p.geometry.representative_point())]
+        reasons = patch_reasons(
+            [p.tie for p in held], by_id, tol, [p.geometry for p in held], scale=max(scale, tol)
+        )
+        out.append(dataclasses.replace(c, reasons=tuple(reasons)))
     return tuple(out)
 
 

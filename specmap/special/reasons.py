@@ -13,12 +13,17 @@ y0 at s = (y0 + b)/(1 − a). Hence
   branch x_f − x_g = −(x_f' − x_g') says x_f + x_f' = x_g + x_g': the two critical values of f
   and the two of g have one midpoint, as the extremes of two centrally symmetric images with a
   common centre do: the reason is **central symmetry**;
+- a tie whose two pairs share a contour, |x_s − x_u| = |x_s − x_w|, holds identically when
+  x_u = x_w: two **equal values** (an extreme value shared by f and g, coincident half-lines) --
+  or when x_s is the midpoint of x_u and x_w (equal spacing);
 - a vertical pair against a horizontal pair ties only where |Δx|/a = k |Δy|/(1 − a), a line
   a = const of the strip; pairs mixing a vertical and a horizontal half-line depend on b and
   tie on curves. Neither gives a patch.
 
 Any other patch (one involving proper contours) is reported as ``"unexplained"``: no closed
-form is claimed. Breaking the identity: moving one critical value by ε changes the tied
+form is claimed; its ``breaks_at`` is measured instead by the perturbation probe of
+:mod:`specmap.special.probe` (one contour moved by (ε, ε), the tie re-evaluated on lines of its
+patch), with the probe's record under ``probe`` (None: not probed, e.g. no patch geometry). Breaking the identity: moving one critical value by ε changes the tied
 difference by ε (k ε for the doubled pair), so a change above the residual tolerance of the
 atlas breaks it; ``breaks_at`` is that size in value units, max(gap, tolerance) with gap the
 identity's measured defect.
@@ -40,7 +45,9 @@ def _coord(c: Contour) -> tuple[str, float] | None:
     return None
 
 
-def tie_reason(tie: Tie, contours: dict[str, Contour], tol: float) -> dict[str, Any]:
+def tie_reason(
+    tie: Tie, contours: dict[str, Contour], tol: float, geometry=None, scale: float | None = None
+) -> dict[str, Any]:
     """The closed-form reason of a tie that holds on a patch (see the module text).
 
     Parameters
@@ -49,12 +56,18 @@ def tie_reason(tie: Tie, contours: dict[str, Contour], tol: float) -> dict[str, 
     contours : dict of id to Contour
     tol : float
         Residual tolerance of the atlas (value units).
+    geometry : shapely geometry, optional
+        The tie's patch in (a, b): an unexplained tie is then probed
+        (:func:`specmap.special.probe.break_probe`) for its ``breaks_at``.
+    scale : float, optional
+        Largest probe size (value units); default 1e9 times ``tol``.
 
     Returns
     -------
     dict
-        ``{"kind": "equal_spacing" | "central_symmetry" | "unexplained", "contours": [ids],
-        "component": "first" | "second" | None, "breaks_at": float | None}``.
+        ``{"kind": "equal_spacing" | "central_symmetry" | "equal_values" | "unexplained", "contours": [ids],
+        "component": "first" | "second" | None, "breaks_at": float | None}``; an unexplained
+        tie also has ``probe`` (the probe's record, or None when not probed).
 
     Examples
     --------
@@ -72,6 +85,12 @@ def tie_reason(tie: Tie, contours: dict[str, Contour], tol: float) -> dict[str, 
     coords = [_coord(contours[i]) for i in ids]
     out: dict[str, Any] = {"kind": "unexplained", "contours": ids, "component": None, "breaks_at": None}
     if any(x is None for x in coords) or len({x[0] for x in coords if x is not None}) != 1:
+        out["probe"] = None
+        if geometry is not None:
+            from specmap.special.probe import break_probe
+
+            probe = break_probe(tie, contours, geometry, tol, scale=scale if scale else 1e9 * tol)
+            out["probe"], out["breaks_at"] = probe, probe["breaks_at"]
         return out
     kind = coords[0][0]  # type: ignore[index]
     xa, xb, xc, xd = (x[1] for x in coords)  # type: ignore[index]
@@ -83,10 +102,30 @@ def tie_reason(tie: Tie, contours: dict[str, Contour], tol: float) -> dict[str, 
     cross = all(i.split(":")[0] != j.split(":")[0] for i, j in tie.pairs)
     mirror = abs((xa - xb) + (xc - xd)) < abs((xa - xb) - (xc - xd))
     out["kind"] = "central_symmetry" if (k == 1.0 and cross and mirror) else "equal_spacing"
+    # one contour in both pairs, |x_s - x_u| = |x_s - x_w|: either x_u = x_w (two equal critical
+    # values, e.g. an extreme shared by f and g: "equal_values") or x_s is their midpoint (spacing)
+    shared = set(tie.pairs[0]) & set(tie.pairs[1])
+    if k == 1.0 and len(shared) == 1:
+        (sid,) = shared
+        u = next(i for i in tie.pairs[0] if i != sid)
+        w = next(i for i in tie.pairs[1] if i != sid)
+        xs, xu, xw = (dict(zip(ids, (xa, xb, xc, xd), strict=True))[i] for i in (sid, u, w))
+        if abs(xu - xw) <= abs(xu + xw - 2.0 * xs):
+            out["kind"] = "equal_values"
     return out
 
 
-def patch_reasons(ties: list[Tie], contours: dict[str, Contour], tol: float) -> list[dict[str, Any]]:
-    """Reasons of the ties held on one patch component, explained kinds first (one per tie)."""
-    rs = [tie_reason(t, contours, tol) for t in ties]
+def patch_reasons(
+    ties: list[Tie],
+    contours: dict[str, Contour],
+    tol: float,
+    geometries: list | None = None,
+    scale: float | None = None,
+) -> list[dict[str, Any]]:
+    """Reasons of the ties held on one patch component, explained kinds first (one per tie).
+
+    ``geometries`` (one patch polygon per tie) lets the unexplained ties be probed.
+    """
+    geos = geometries if geometries is not None else [None] * len(ties)
+    rs = [tie_reason(t, contours, tol, g, scale) for t, g in zip(ties, geos, strict=True)]
     return sorted(rs, key=lambda r: (r["kind"] == "unexplained", r["kind"], r["contours"]))
