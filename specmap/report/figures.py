@@ -564,12 +564,14 @@ def special_figure(
         )
     # tie curves by family (or by their component's condition without grids)
     groups: dict[str, list[np.ndarray]] = {}
+    condition: dict[str, str] = {}  # per component: its ties are scanned once, not once per curve
     for c in ix.curves:
-        key = (
-            c.family
-            if ix.labelled and c.family != "unknown"
-            else "condition: " + _condition_of(comps.get(c.component, {}).get("ties"), {})
-        )
+        if ix.labelled and c.family != "unknown":
+            key = c.family
+        else:
+            if c.component not in condition:
+                condition[c.component] = _condition_of(comps.get(c.component, {}).get("ties"), {})
+            key = "condition: " + condition[c.component]
         groups.setdefault(key, []).append(c.xy)
     order = sorted(groups, key=lambda k: -len(groups[k]))
     if len(order) > MAX_FAMILIES:  # the rarest families share one grey style

@@ -15,6 +15,7 @@ from collections.abc import Iterator
 from dataclasses import dataclass, field
 from typing import Any
 
+import numpy as np
 from shapely.geometry import mapping
 
 from specmap.io import to_plain
@@ -131,8 +132,8 @@ class Atlas:
     def iter_features(self) -> Iterator[dict[str, Any]]:
         """The GeoJSON features, one per component, made one at a time (for streamed writing)."""
         for c in self.components:
-            geom = mapping(c.geometry) if c.geometry is not None else None
-            yield {"type": "Feature", "id": c.id, "geometry": to_plain(geom), "properties": c.summary()}
+            geom = _plain_geometry(mapping(c.geometry)) if c.geometry is not None else None
+            yield {"type": "Feature", "id": c.id, "geometry": geom, "properties": c.summary()}
 
     def geojson_head(self) -> dict[str, Any]:
         """The FeatureCollection without its features (``"features": None`` marks their place)."""
@@ -200,6 +201,31 @@ def piece_record(piece: TiePiece) -> dict[str, Any]:
     import shapely
 
     return {"tie": piece.tie.to_json(), "kind": piece.kind, "wkb": shapely.to_wkb(piece.geometry, hex=True)}
+
+
+def _plain_coordinates(coords: Any, depth: int) -> Any:
+    """Nested coordinate tuples of ``depth`` levels above the points, as plain lists of floats."""
+    if depth == 0:
+        arr = np.asarray(coords, dtype=float)
+        if arr.size == 0 or not np.isfinite(arr).all():
+            return to_plain(coords)  # writes inf/nan as strings
+        return arr.tolist()
+    return [_plain_coordinates(c, depth - 1) for c in coords]
+
+
+# levels of nesting above the arrays of points, per GeoJSON geometry type (RFC 7946 section 3.1)
+_DEPTH = {"Point": 0, "MultiPoint": 0, "LineString": 0, "MultiLineString": 1, "Polygon": 1, "MultiPolygon": 2}
+
+
+def _plain_geometry(geom: dict[str, Any]) -> dict[str, Any]:
+    """A shapely ``mapping`` as plain JSON types, the same values as :func:`to_plain` but one
+    numpy conversion per array of points instead of one Python call per number."""
+    kind = geom.get("type")
+    if kind == "GeometryCollection":
+        return {"type": kind, "geometries": [_plain_geometry(g) for g in geom["geometries"]]}
+    if kind not in _DEPTH:
+        return to_plain(geom)
+    return {"type": kind, "coordinates": _plain_coordinates(geom["coordinates"], _DEPTH[kind])}
 
 
 def iter_piece_records(atlas: Atlas) -> Iterator[dict[str, Any]]:
