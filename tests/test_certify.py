@@ -88,6 +88,10 @@ def test_translation_closed_form_inside_the_certified_interval(c):
     V, T, f = ellipsoid_pair(300)
     sf, sg = shapes(V, T, f, f + c)
     res = _run(sf, sg, (0, 2))
+    # delta defaults to 1e-3 of the value range (issue 13 item 1): the largest extent of f1, f2, g1, g2
+    assert res.tolerance == pytest.approx(
+        1e-3 * max(np.ptp(sf.values, axis=0).max(), np.ptp(sg.values, axis=0).max())
+    )
     for k in (0, 2):
         e = res.by_degree[k]
         lo, hi = e["bounds"]

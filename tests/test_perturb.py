@@ -583,3 +583,53 @@ def test_stability_check_flags_violations():
     assert stability_check(before, no_b, 0.1)[1] is True and stability_check(before, no_b, 0.1)[0][
         "checked_degrees"
     ] == ["0"]
+
+
+@needs_special
+def test_perturbation_study_tests_the_predicted_breaking_size(tmp_path):
+    # Issue 13 item 4: the perturbation study tests the breaks_at of the patch reasons, and the report
+    # names the result. Closed form, derived here (checks.md four verticals at 0, 1, 2, 3; math.md
+    # section 5): every tie of the patch is an equal spacing of exact values, so its defect is 0 and
+    # breaks_at = the atlas tolerance (specmap/special/reasons.py). The grid model moves each half-line
+    # by at most `size`, so a tied difference |dx| - k |dx'| (k <= 2) changes by at most 6 size, and by
+    # at most 6 size / a_min = 24 size in line-parameter units (s = (x - b)/a, a >= 0.25 here): at
+    # size = breaks_at / 100 that is below the tolerance on every line, so every run keeps the patch.
+    # At 1e4 x breaks_at the random moves break every identity (each defect is a continuous random
+    # variable of scale size; one below the tolerance has probability of order 1e-4 per tie).
+    from specmap.perturb import make_base, run_study
+    from specmap.report.summary import special_lines
+    from specmap.special import special_set
+
+    gf, gg = four_verticals()
+    atlas = special_set(gf, gg, WINDOW, resolution=RESOLUTION)
+    reasons = [r for c in atlas.components if c.kind == "patch" for r in c.reasons]
+    assert reasons and {r["kind"] for r in reasons} == {"equal_spacing"}
+    br = max(r["breaks_at"] for r in reasons)
+    assert br == pytest.approx(atlas.tolerance, rel=1e-12)
+    summaries = {}
+    for name, size in (("below", br / 100), ("above", 1e4 * br)):
+        settings = PerturbSettings(model="grid", size=size, runs=6, seed=5, resolution=RESOLUTION)
+        base = make_base((gf, gg), WINDOW, settings=settings)
+        summaries[name] = run_study(base, settings, tmp_path / name)
+    assert summaries["below"]["runs_with_patch"] == 6  # below the threshold: kept in every run
+    assert summaries["above"]["runs_with_patch"] == 0  # above it: gone in every run
+    sp = atlas.to_json()
+
+    def genericity(summary):
+        lines = special_lines({"special": sp, "perturb": {"summary": summary}})
+        return next(x for x in lines if x.startswith("Genericity:"))
+
+    # the report's verdict names the reason, the threshold and the result
+    why = next(x for x in special_lines({"special": sp}) if x.startswith("Why the patch"))
+    assert "equal spacing" in why and f"larger than {br:.3g} breaks it" in why
+    above = genericity(summaries["above"])
+    assert (
+        "0 of 6 perturbed runs" in above
+        and f"as its reasons predict (size {1e4 * br:.3g} > {br:.3g})" in above
+    )
+    below = genericity(summaries["below"])
+    assert "6 of 6 perturbed runs" in below and "predict" not in below and "artefact" not in below
+    # a patch kept above the threshold contradicts the reasons: the line says so (a hand-made summary,
+    # the "above" one with one run marked as keeping a patch)
+    kept = genericity({**summaries["above"], "runs_with_patch": 1})
+    assert "some patch has another cause" in kept
