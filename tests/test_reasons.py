@@ -165,3 +165,47 @@ def test_shared_extreme_is_equal_values():
     # 0, 1 against 0, 2.7 has no spacing or symmetry, so with the coincidences dropped: no patch
     plain = special_set(_verticals("f", [0.0, 1.0]), _verticals("g", [0.0, 2.7]), WINDOW, resolution=31)
     assert plain.counts()["patch"] == 0
+
+
+def test_the_shipped_ladder_study_patch_has_its_reason_and_threshold():
+    # The shipped grid-file study studies/ladder.toml (its own grid files, window and resolution): its
+    # patch is explained in closed form, and its threshold holds both ways. Closed form, derived here:
+    # the files hold vertical half-lines at 0, 1 (f) and 2, 3 (g), read back below; every tie among
+    # them that holds on an open set is an equal spacing (|dx| = |dx'| or |dx| = 2 |dx'|, defect 0),
+    # so breaks_at = the atlas tolerance. Moving the four by eps (0, 0.37, 1, 2.71) leaves every
+    # defect between 0.26 eps and 3.42 eps (all 15 differences and doubled differences, by hand), i.e.
+    # at least 0.26 eps / 0.45 in line parameters (a <= 0.45 in the window): at eps = 100 breaks_at
+    # every identity is broken (no patch); at eps = breaks_at / 100 none is (the patch stays).
+    import dataclasses
+    from pathlib import Path
+
+    from specmap.grids.model import read_grid
+    from specmap.study import load_study
+
+    st = load_study(Path(__file__).resolve().parents[1] / "studies" / "ladder.toml")
+    gf, gg = read_grid(st.f.path, prefix="f"), read_grid(st.g.path, prefix="g")
+    xs = {c.id: float(c.points[0][0]) for c in (*gf.contours, *gg.contours) if c.kind == "vertical"}
+    assert xs == {"f:v0": 0.0, "f:v1": 1.0, "g:v0": 2.0, "g:v1": 3.0}
+    atlas = special_set(gf, gg, st.window, resolution=st.map.resolution)
+    patches = [c for c in atlas.components if c.kind == "patch"]
+    assert patches and all(c.reasons for c in patches)  # every patch has its reasons
+    rs = _reasons(atlas)
+    assert {r["kind"] for r in rs} == {"equal_spacing"} and all(set(r["contours"]) <= set(xs) for r in rs)
+    assert len(rs) == atlas.to_json()["stats"]["ties_with_patches"]  # one reason per tie held on a patch
+    br = max(r["breaks_at"] for r in rs)
+    assert br == pytest.approx(atlas.tolerance, rel=1e-12)
+
+    def moved(eps: float) -> int:
+        step = {"f:v0": 0.0, "f:v1": 0.37, "g:v0": 1.0, "g:v1": 2.71}
+
+        def grid(g: Grid) -> Grid:
+            return Grid(
+                tuple(
+                    dataclasses.replace(c, points=c.points + [eps * step[c.id], 0.0]) if c.id in step else c
+                    for c in g.contours
+                )
+            )
+
+        return special_set(grid(gf), grid(gg), st.window, resolution=st.map.resolution).counts()["patch"]
+
+    assert moved(br / 100) >= 1 and moved(100 * br) == 0
