@@ -217,7 +217,8 @@ def test_resolution_check_names_what_to_raise():
     r = resolution_check(0.01, tolerance=1e-3, grid_tolerance=1e-7, mesh_tol=0.02)
     assert r["resolved"] is False and "mesh resolution" in r["resolved_why"]
     r = resolution_check(0.01, tolerance=1e-3, grid_tolerance=0.15, mesh_tol=0.0)
-    assert r["resolved"] is False and "grid" in r["resolved_why"]
+    # knob-like (issue 13: D six times below a grid tolerance of 0.15): unresolved, and the fix names the route
+    assert r["resolved"] is False and "grid" in r["resolved_why"] and "exact grid route" in r["resolved_why"]
     assert resolution_check(1.0, tolerance=1e-3, grid_tolerance=0.15, mesh_tol=0.02)["resolved"] is True
     # through matching_distance: a tiny translation on a coarse mesh is below 3 x its mesh tolerance
     sf, sg = shapes(V, T, f, f + 0.01)

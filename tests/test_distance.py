@@ -271,7 +271,10 @@ def test_fake_atlas_pruning_and_components():
         "landscape",
     ):
         assert key in js
-    assert set(js["audit"]["position"]) >= {"fraction_explained", "max_deviation", "lines"}
+    # the position audit reports both the fraction and the worst coordinates (issue 13 item 2)
+    pos = js["audit"]["position"]
+    assert set(pos) >= {"fraction_explained", "max_deviation", "lines", "mesh_aware", "max_excess", "worst"}
+    assert pos["mesh_aware"] is True and isinstance(pos["worst"], list)
 
 
 def test_theorem_audit_flags_a_gap():
