@@ -583,7 +583,7 @@ class StudyRun:
         write_json_streamed(
             self.out / "special.geojson", {**atlas.geojson_head(), **head}, "features", atlas.iter_features()
         )
-        save_png(special_figure(js, atlas.to_geojson()), self.out / "figures" / "special.png")
+        save_png(special_figure(js, atlas.shape_features()), self.out / "figures" / "special.png")
         return js
 
     def write_distance(

@@ -930,3 +930,28 @@ def test_distance_json_values_take_the_interval_of_their_degree() -> None:
     )
     # the explorer receives the decimals of the same rule
     assert decimals_for(0.02) == 2 and decimals_for(0.004, (0.27022, 0.27437)) == 3
+
+
+def test_special_figure_from_shapely_features_is_the_geojson_figure(tmp_path):
+    # reference: the figure drawn from the GeoJSON features (plain coordinates, as special.geojson is
+    # read back); the map CLI draws from the components' shapely geometries instead (no coordinate
+    # copy: at 40 contours the GeoJSON dict alone held gigabytes). Same pixels.
+    import sys
+
+    from PIL import Image
+
+    sys.path.insert(0, str(Path(__file__).resolve().parent))
+    from gridgen import random_pair
+
+    from specmap.report.figures import save_png
+    from specmap.special import special_set
+    from specmap.strip import Window
+
+    gf, gg = random_pair(1, 10)
+    atlas = special_set(gf, gg, Window((0.05, 0.95), (-1.0, 1.0)), resolution=31)
+    js = atlas.to_json()
+    save_png(special_figure(js, atlas.to_geojson()), tmp_path / "geo.png")
+    save_png(special_figure(js, atlas.shape_features()), tmp_path / "shp.png")
+    a, b = (np.asarray(Image.open(tmp_path / n)) for n in ("geo.png", "shp.png"))
+    assert a.shape == b.shape and (a != b).sum() == 0
+    assert any(f["geometry"] is not None for f in atlas.shape_features()["features"])

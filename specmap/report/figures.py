@@ -23,12 +23,11 @@ from matplotlib.lines import Line2D
 from matplotlib.patches import Patch, PathPatch, Rectangle
 from matplotlib.path import Path as MplPath
 from matplotlib.ticker import MaxNLocator, NullLocator
-from shapely.geometry import shape as geo_shape
 from shapely.geometry.base import BaseGeometry
 
 from specmap.report.fmt import fmt, fmt_distance, fraction_interval, num, nums, plural
 from specmap.report.summary import tie_curve_count
-from specmap.report.ties import TieIndex, index_ties
+from specmap.report.ties import TieIndex, geo_shape, index_ties
 
 GRID_COLOURS = {"f": "#1f5fa8", "g": "#d9730d"}
 CONDITION_STYLE = {

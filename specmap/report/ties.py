@@ -25,7 +25,8 @@ from typing import Any
 
 import numpy as np
 from shapely.geometry import Point
-from shapely.geometry import shape as geo_shape
+from shapely.geometry import shape as _geo_shape
+from shapely.geometry.base import BaseGeometry as _Base
 
 from specmap.grids.model import Contour, grid_from_json
 from specmap.special.evaluate import SlotEvaluator, residual_from_slots, sample_contours
@@ -39,6 +40,11 @@ PATCH_HOLDS = 0.1
 """Fraction of those points where a tie must hold to count as holding on the patch (a patch can be
 the union of the regions of several ties; a tie that holds on curves only holds at almost no random
 point)."""
+
+
+def geo_shape(geom: Any) -> Any:
+    """A GeoJSON geometry as shapely; a shapely geometry as it is (:meth:`Atlas.shape_features`)."""
+    return geom if isinstance(geom, _Base) else _geo_shape(geom)
 
 
 def family(tie: dict[str, Any]) -> str:

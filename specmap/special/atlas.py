@@ -147,6 +147,16 @@ class Atlas:
         """FeatureCollection, one feature per component, coordinates (a, b)."""
         return {**self.geojson_head(), "features": list(self.iter_features())}
 
+    def shape_features(self) -> dict[str, Any]:
+        """:meth:`to_geojson` with each feature's geometry the component's shapely geometry itself
+        (no coordinate copy), for the figures (:func:`specmap.report.figures.special_figure`
+        reads either form); not JSON."""
+        feats = [
+            {"type": "Feature", "id": c.id, "geometry": c.geometry, "properties": c.summary()}
+            for c in self.components
+        ]
+        return {**self.geojson_head(), "features": feats}
+
 
 @dataclass(frozen=True)
 class AtlasSummary:

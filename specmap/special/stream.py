@@ -90,7 +90,7 @@ def _tile_lines(res: TileResult, offset: int, scale: float) -> tuple[dict[str, n
     cols = {
         "code": codes,
         "label": labels,
-        "twin": _twins(parts, cuts.any(axis=1), scale) + offset,
+        "twin": _twins(np.asarray(parts), np.asarray(cuts.any(axis=1), dtype=bool), scale) + offset,
         "length": shapely.length(parts),
         "bbox": shapely.bounds(parts),
         "cut": cuts,

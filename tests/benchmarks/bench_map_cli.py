@@ -2,7 +2,7 @@
 
     python tests/benchmarks/bench_map_cli.py [N ...]
 
-For each N (default 20 30 40) a random generic pair of N contours each (tests/gridgen.py,
+For each N (default 20 30 40) a random generic pair of N contours together (tests/gridgen.py,
 ``random_pair(100 + N, N)``, the pair of ``bench_special.py``) is written as two grid files and
 mapped twice, each in a fresh subprocess whose peak RSS is read from ``resource.getrusage``:
 
