@@ -423,6 +423,7 @@ def test_strip_audit_flags_a_reduced_search_stopped_early():
         audit = theorem_audit(None, by, (0,), tol, upper=upper)
     row = audit["theorem"]["by_degree"]["0"]
     assert audit["theorem"]["strip_above_reduced"] is True and row["strip_above_reduced"] is True
+    assert row["strip_minus_reduced"] == by[0]["strip"]["bounds"][0] - by[0]["value"]  # the margin, recorded
     assert audit["theorem_gap"] is True
     a, b = row["line"]
     assert [a, b] == by[0]["strip"]["best_at"] and audit["line"] == [a, b]

@@ -443,6 +443,71 @@ def test_findings_theorem_gap_comes_first_and_loud() -> None:
     assert "disagrees with the theorem's reduction" in out[0]
 
 
+def _strip_only_distance(best: float, flagged: bool) -> dict[str, Any]:
+    """A distance.json of a reduced search checked by the whole-strip branch and bound only (no
+    dense sweep), as specmap.distance.audit.theorem_audit writes it: check (c) ran, (b) did not."""
+    d = _distance()
+    d.pop("dense")
+    d.pop("landscape")
+    d["by_degree"]["0"]["strip"] = {
+        "method": "branch and bound",
+        "bounds": [best, 0.35],
+        "best_at": [0.27, -1.4],
+        "closed": False,
+        "lines": 300,
+    }
+    d["audit"] = {
+        "theorem_gap": flagged,
+        "gap": None,  # the dense sweep did not run: no gap (the source of the old "by n/a")
+        "line": [0.27, -1.4] if flagged else None,
+        "degree": 0 if flagged else None,
+        "position": None,
+        "theorem": {
+            "reduced_above_upper": False,
+            "dense_above_reduced": None,
+            "strip_above_reduced": flagged,
+            "by_degree": {"0": {"strip_above_reduced": flagged, "line": [0.27, -1.4] if flagged else None}},
+        },
+    }
+    return d
+
+
+def test_whole_strip_audit_says_its_branch_and_margin_not_n_a(tmp_path: Path) -> None:
+    # Issue 13: with no dense sweep, a failed audit comes from the whole-strip branch and bound
+    # (check (c) of theorem_audit). Margin derived here by hand: strip best 0.3271 - reduced value 0.3 =
+    # 0.0271 > tolerance 1e-6; the sentence names the branch, the margin, the line and the strip's
+    # certified bound 0.35, never the dense sweep (it did not run) nor "n/a".
+    from specmap.report.findings import theorem_audit_sentence
+    from specmap.report.summary import ranked_notes
+
+    d = _strip_only_distance(0.3271, flagged=True)
+    said = theorem_audit_sentence(d)
+    assert said is not None and said.startswith("WARNING: the branch and bound over the whole strip")
+    for part in (
+        "h_0 = 0.327100",
+        "(0.27, -1.4)",
+        "value 0.300000 by 0.027100",
+        "bound over the strip is 0.350000",
+    ):
+        assert part in said, (part, said)
+    assert "n/a" not in said and "dense sweep" not in said
+    note = ranked_notes({"distance": d})[0]
+    assert note.severity == 1 and note.title == "Theorem audit failed"
+    assert "by 0.027100" in note.text and "whole strip" in note.text and "n/a" not in note.text
+    assert "dense" not in note.text + note.todo
+    # the PDF: page 1's box and the Findings page (sentences from the same functions)
+    root = make_folder(tmp_path / "strip", stages=())
+    _dump(root / "distance.json", d)
+    pages = [_flat(p) for p in pdf_pages(build_report(root))]
+    assert "by 0.027100" in pages[0] and "n/a at" not in pages[0]
+    findings_page = next(p for p in pages if "Findings" in p and "WARNING" in p)
+    assert "by n/a" not in findings_page and "whole strip (300 lines) found h_0 = 0.327100" in findings_page
+    # passed: best 0.2999 is 0.0001 below the reduced value (by hand); no dense sweep is claimed
+    ok = theorem_audit_sentence(_strip_only_distance(0.2999, flagged=False))
+    assert ok is not None and not ok.startswith("WARNING") and "dense" not in ok
+    assert "h_0 = 0.299900, 0.000100 below it" in ok
+
+
 def test_findings_position_audit_and_stability_warnings() -> None:
     d = _distance()
     d["audit"]["position"]["fraction_explained"] = 0.97

@@ -50,7 +50,8 @@ def theorem_audit(
         ``theorem_gap`` (any flag; None when neither (b) nor (c) ran), ``gap`` (largest
         D^dense_k - R_k), ``degree``, ``line`` (where the worst flag, else the
         largest gap, happens), and ``theorem`` with ``reduced_above_upper``,
-        ``dense_above_reduced`` and ``by_degree[k]`` (the two differences, flags, lines).
+        ``dense_above_reduced``, ``strip_above_reduced`` and ``by_degree[k]`` (the differences
+        ``reduced_minus_upper``, ``dense_minus_reduced``, ``strip_minus_reduced``, the flags, the line).
 
     Warns
     -----
@@ -71,11 +72,13 @@ def theorem_audit(
             "reduced_above_upper": None,
             "dense_minus_reduced": None,
             "dense_above_reduced": None,
+            "strip_minus_reduced": None,
             "strip_above_reduced": None,
             "line": None,
         }
         if strip is not None and math.isfinite(r):
             diff = float(strip["bounds"][0] - r)
+            row["strip_minus_reduced"] = diff
             row["strip_above_reduced"] = bool(diff > tolerance)
             if diff > tolerance:
                 flags.append((diff, "the whole-strip search exceeds the reported value", k, strip["best_at"]))

@@ -8,6 +8,7 @@ the theory start with ``WARNING:``.
 from __future__ import annotations
 
 import math
+from dataclasses import dataclass
 from typing import Any
 
 from specmap.report.fmt import (
@@ -117,25 +118,113 @@ def _reached(on: Any, at: Any, comp: Any) -> str:
     return f"reached {where}"
 
 
+@dataclass(frozen=True)
+class StripCheck:
+    """The whole-strip branch and bound against the reduced search, for one degree (check (c) of
+    :func:`specmap.distance.audit.theorem_audit`).
+
+    Attributes
+    ----------
+    degree : str
+    reduced : float
+        The reported (reduced-search) value D_k.
+    best, bound : float
+        The largest h_k the branch and bound evaluated over the whole strip, and its certified
+        upper bound there (``by_degree[k].strip.bounds``).
+    margin : float
+        ``best - reduced`` (``audit.theorem.by_degree[k].strip_minus_reduced`` when recorded):
+        above the tolerance, the reduced search missed a larger value.
+    at : list or None
+        The line (a, b) of ``best``.
+    lines : Any
+        Lines the branch and bound evaluated.
+    """
+
+    degree: str
+    reduced: float
+    best: float
+    bound: float
+    margin: float
+    at: Any
+    lines: Any
+
+
+def strip_check(d: dict[str, Any]) -> StripCheck | None:
+    """The degree whose whole-strip search comes closest to (or exceeds most) the reduced value.
+
+    None when no degree of ``distance.json`` records a ``strip`` block (the search did not run).
+
+    Examples
+    --------
+    >>> c = strip_check({"by_degree": {"0": {"value": 0.3, "strip": {"bounds": [0.32, 0.35],
+    ...     "best_at": [0.27, -1.4], "lines": 300}}}})
+    >>> c.degree, round(c.margin, 12), c.bound
+    ('0', 0.02, 0.35)
+    """
+    rows = ((d.get("audit") or {}).get("theorem") or {}).get("by_degree") or {}
+    out = []
+    for k, v in (d.get("by_degree") or {}).items():
+        strip = (v or {}).get("strip")
+        if not isinstance(strip, dict):
+            continue
+        b = strip.get("bounds") or [math.nan, math.nan]
+        reduced = num(v.get("value"))
+        margin = num((rows.get(str(k)) or {}).get("strip_minus_reduced"))
+        if not math.isfinite(margin):
+            margin = num(b[0]) - reduced
+        at = strip.get("best_at")
+        out.append(StripCheck(str(k), reduced, num(b[0]), num(b[1]), margin, at, strip.get("lines")))
+    return max(out, key=lambda c: c.margin if not math.isnan(c.margin) else -math.inf, default=None)
+
+
+def _strip_excess_clause(c: StripCheck, tol: Any) -> str:
+    """``"the branch and bound over the whole strip found h_0 = ... above ... by ..."``."""
+    return (
+        f"the branch and bound over the whole strip ({c.lines} lines) found h_{c.degree} = "
+        f"{fmt_to(c.best, tol)} at (a, b) = {fmt_point(c.at)}, above the reduced search's value "
+        f"{fmt_to(c.reduced, tol)} by {fmt_to(c.margin, tol)}, more than the tolerance {fmt(num(tol), 3)} "
+        f"(its certified upper bound over the strip is {fmt_to(c.bound, tol)})"
+    )
+
+
 def theorem_audit_sentence(d: dict[str, Any]) -> str | None:
     """The theorem-audit sentence of a distance result (``WARNING:`` when the audit failed), or ``None``.
 
-    One source for the findings list and the PDF's audit section.
+    One source for the findings list and the PDF's audit section. Each check of
+    :func:`specmap.distance.audit.theorem_audit` that ran is said: the dense sweep against the
+    reduced search (``gap``), the whole-strip branch and bound against it (:func:`strip_check`),
+    the reduced value against the certified upper bound.
     """
     audit = d.get("audit") or {}
+    th = audit.get("theorem") or {}
+    tol = d.get("tolerance")
+    strip = strip_check(d)
+    strip_flag = bool(th.get("strip_above_reduced")) or (
+        strip is not None and th.get("strip_above_reduced") is None and strip.margin > num(tol)
+    )
+    dense_ran = d.get("dense") is not None or th.get("dense_above_reduced") is not None
     if audit.get("theorem_gap"):
         line = audit.get("line")
         at = fmt_point(line) if isinstance(line, list) else str(line)
-        th = audit.get("theorem") or {}
-        if th.get("reduced_above_upper") and not th.get("dense_above_reduced"):
+        dense_flag = bool(th.get("dense_above_reduced")) or (
+            th.get("dense_above_reduced") is None and dense_ran and num(audit.get("gap")) > num(tol)
+        )
+        if th.get("reduced_above_upper") and not dense_flag and not strip_flag:
             return (
                 f"{WARNING} the reduced search's value lies above a certified upper bound of D at "
-                f"(a, b) = {at}: an evaluation or a bound is wrong{_tol(d.get('tolerance'))}."
+                f"(a, b) = {at}: an evaluation or a bound is wrong{_tol(tol)}."
             )
+        if strip_flag and strip is not None and not dense_flag:
+            return (
+                f"{WARNING} {_strip_excess_clause(strip, tol)}: the reduced search (slope-one line and "
+                "special set) missed a larger value, so the computation disagrees with the theorem's "
+                "reduction here."
+            )
+        also = f"; {_strip_excess_clause(strip, tol)}" if strip_flag and strip is not None else ""
         return (
-            f"{WARNING} the dense sweep exceeds the reduced search by {fmt_to(audit.get('gap'), d.get('tolerance'))} at "
-            f"(a, b) = {at}: the computation disagrees with the theorem's reduction here"
-            f"{_tol(d.get('tolerance'))}."
+            f"{WARNING} the dense sweep exceeds the reduced search by {fmt_to(audit.get('gap'), tol)} at "
+            f"(a, b) = {at}{also}: the computation disagrees with the theorem's reduction here"
+            f"{_tol(tol)}."
         )
     if "theorem_gap" in audit and audit["theorem_gap"] is None:
         return (
@@ -143,10 +232,26 @@ def theorem_audit_sentence(d: dict[str, Any]) -> str | None:
             "run specmap distance --method both)."
         )
     if "theorem_gap" in audit:
-        return (
-            f"The dense sweep does not exceed the reduced search beyond the tolerance "
-            f"{fmt(d.get('tolerance'), 3)} (gap {fmt_to(audit.get('gap'), d.get('tolerance'))})."
-        )
+        parts = []
+        if dense_ran or strip is None:
+            parts.append(
+                f"the dense sweep does not exceed the reduced search beyond the tolerance "
+                f"{fmt(num(tol), 3)} (gap {fmt_to(audit.get('gap'), tol)})"
+            )
+        if strip is not None:
+            gap = (
+                f"{fmt_to(-strip.margin, tol)} below it"
+                if strip.margin <= 0
+                else f"{fmt_to(strip.margin, tol)} above it, within the tolerance"
+            )
+            parts.append(
+                f"the branch and bound over the whole strip ({strip.lines} lines) found no line above "
+                f"the reduced value beyond the tolerance (closest in degree {strip.degree}: best "
+                f"h_{strip.degree} = {fmt_to(strip.best, tol)}, {gap}; certified upper bound "
+                f"{fmt_to(strip.bound, tol)})"
+            )
+        text = "; ".join(parts)
+        return text[0].upper() + text[1:] + "."
     return None
 
 

@@ -19,11 +19,13 @@ import math
 from dataclasses import dataclass
 from typing import Any
 
+from specmap.report.findings import StripCheck, strip_check
 from specmap.report.fmt import (
     fmt,
     fmt_bounds,
     fmt_interval,
     fmt_pct,
+    fmt_point,
     fmt_to,
     fraction_interval,
     num,
@@ -517,6 +519,16 @@ def special_lines(res: dict[str, Any]) -> list[str]:
     return out
 
 
+def _strip_only(audit: dict[str, Any], strip: StripCheck, tol: float) -> bool:
+    """Whether the theorem audit failed by the whole-strip check alone (no dense flag)."""
+    th = audit.get("theorem") or {}
+    if th.get("dense_above_reduced"):
+        return False
+    return bool(th.get("strip_above_reduced")) or (
+        th.get("strip_above_reduced") is None and strip.margin > tol
+    )
+
+
 def grid_only(res: dict[str, Any]) -> bool:
     """Whether f or g is a grid file (``study.json`` source ``grid``): no mesh, so no distance."""
     st = res.get("study") or {}
@@ -554,6 +566,7 @@ def ranked_notes(res: dict[str, Any]) -> list[Note]:
         audit.get("theorem_gap")
         and (audit.get("theorem") or {}).get("reduced_above_upper")
         and not (audit.get("theorem") or {}).get("dense_above_reduced")
+        and not (audit.get("theorem") or {}).get("strip_above_reduced")
     ):
         notes.append(
             Note(
@@ -562,6 +575,22 @@ def ranked_notes(res: dict[str, Any]) -> list[Note]:
                 f"the reduced search's value lies above a certified upper bound of D (line "
                 f"{fmt_interval(audit.get('line')) if isinstance(audit.get('line'), list) else 'n/a'}).",
                 "an evaluation or a bound is wrong: report it with distance.json.",
+            )
+        )
+    elif (
+        audit.get("theorem_gap") and (strip := strip_check(d)) is not None and _strip_only(audit, strip, tol)
+    ):
+        notes.append(
+            Note(
+                1,
+                "Theorem audit failed",
+                f"the branch and bound over the whole strip found h_{strip.degree} = {fmt_to(strip.best, tol)} "
+                f"at (a, b) = {fmt_point(strip.at)}, above the reduced search's value "
+                f"{fmt_to(strip.reduced, tol)} by {fmt_to(strip.margin, tol)}, more than the tolerance "
+                f"{fmt(tol, 3)} (certified upper bound over the strip {fmt_to(strip.bound, tol)}).",
+                f"take the larger (whole-strip) value as D_{strip.degree}; check the grids (a missing "
+                "contour shows here) and rerun specmap distance with larger [distance] slope_max_lines and "
+                "special_max_lines if the reduced search stopped at a budget.",
             )
         )
     elif audit.get("theorem_gap"):
