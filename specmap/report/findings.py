@@ -255,22 +255,67 @@ def theorem_audit_sentence(d: dict[str, Any]) -> str | None:
     return None
 
 
+MESH_AWARE = "the value change of F* along one mesh edge plus the grid tolerance"
+"""What the mesh-aware position tolerance adds (:func:`specmap.distance.audit.coordinate_slack`)."""
+POSITION_FIX = (
+    "raise the mesh resolution of f and g ([f]/[g] resolution) or use the piecewise grid route "
+    '(route = "piecewise", the grid of the meshed map itself); if the fraction does not rise, a contour '
+    "is missing from the grid and the reduced search may miss the maximum"
+)
+"""What to do about a red mesh-aware position audit."""
+
+
+def worst_position(pos: dict[str, Any], tol: Any = None) -> str | None:
+    """The worst coordinate of a position audit in words (``None`` when none is recorded).
+
+    Examples
+    --------
+    >>> worst_position({"worst": [{"map": "f", "a": 0.3, "b": 0.1, "coordinate": 0.41,
+    ...     "deviation": 0.036, "allowed": 0.004}]})
+    'worst: the coordinate 0.41 of f on the line (a, b) = (0.3, 0.1) is 0.036 from the nearest push coordinate, 0.004 allowed'
+    """
+    ws = [w for w in pos.get("worst") or [] if isinstance(w, dict)]
+    if not ws:
+        return None
+    w = ws[0]
+    return (
+        f"worst: the coordinate {fmt(w.get('coordinate'), 4)} of {w.get('map', '?')} on the line (a, b) = "
+        f"{fmt_point([w.get('a'), w.get('b')])} is {fmt(w.get('deviation'), 3)} from the nearest push "
+        f"coordinate, {fmt(w.get('allowed'), 3)} allowed"
+    )
+
+
 def position_audit_sentence(d: dict[str, Any]) -> str | None:
-    """The position-audit sentence of a distance result (``WARNING:`` below 100%), or ``None``."""
+    """The position-audit sentence of a distance result, or ``None``.
+
+    A mesh-aware audit (``audit.position.mesh_aware``, the default of
+    :func:`specmap.distance.audit.position_audit`) below 100% is a ``WARNING:`` with its fraction,
+    its worst coordinate and what to do: its tolerance already includes the mesh term, so a
+    shortfall points to a missing contour or a mesh too coarse for the map. A result without the
+    mesh-aware tolerance (an older ``distance.json``) keeps a caveat: its tolerance omits the mesh.
+    """
     pos = (d.get("audit") or {}).get("position") or {}
     if not pos:
         return None
     frac = num(pos.get("fraction_explained"))
+    aware = pos.get("mesh_aware") is True
+    within = f" within the mesh-aware tolerance ({MESH_AWARE})" if aware else ""
     txt = (
         f"{fmt_pct(frac)} of diagram coordinates on {pos.get('lines', 'n/a')} audited lines are push "
-        f"coordinates of grid contours (max deviation {fmt(pos.get('max_deviation'), 3)})"
+        f"coordinates of grid contours{within} (max deviation {fmt(pos.get('max_deviation'), 3)})"
     )
-    if math.isfinite(frac) and frac < 1.0:
-        # a caveat, not a WARNING: on surface studies the slices live on a mesh and the audit's tolerance
-        # omits the mesh error, so this is below 100% almost always (issue 13); the summary ranks it
+    if math.isfinite(frac) and frac < 1.0 and aware:
+        worst = worst_position(pos)
         return (
-            f"Position audit (caveat): only {txt}; the position theorem is not met within this "
-            "tolerance; the grids may be incomplete or the tolerance too tight for the mesh."
+            f"{WARNING} position audit: only {txt}; the position theorem [CEF19] is not met"
+            + (f" ({worst})" if worst else "")
+            + f": {POSITION_FIX}."
+        )
+    if math.isfinite(frac) and frac < 1.0:
+        return (
+            f"Position audit (caveat): only {txt}; this distance.json predates the mesh-aware audit "
+            "(no mesh_aware field, or false), whose tolerance omits the mesh error, so surface studies fall "
+            "short of 100%: rerun specmap distance for the mesh-aware audit."
         )
     return txt[0].upper() + txt[1:] + ", as the position theorem requires."
 

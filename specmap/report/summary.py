@@ -19,7 +19,7 @@ import math
 from dataclasses import dataclass
 from typing import Any
 
-from specmap.report.findings import StripCheck, strip_check
+from specmap.report.findings import MESH_AWARE, POSITION_FIX, StripCheck, strip_check, worst_position
 from specmap.report.fmt import (
     fmt,
     fmt_bounds,
@@ -540,8 +540,9 @@ def ranked_notes(res: dict[str, Any]) -> list[Note]:
 
     Severity 0: the pair is outside the theory (a non-normal pair the study insisted on, from
     the result files' ``caveats``); 1: the numbers contradict a theorem (theorem gap, stability violations);
-    2: a value is not sure (uncertified maximum, D not resolved above the tolerance);
-    3: caveats (position audit below 100%, a patch without a perturbation study, tie
+    2: a value is not sure (uncertified maximum, D not resolved above the tolerance, a mesh-aware
+    position audit below 100%: a contour may be missing);
+    3: caveats (a position audit without the mesh term below 100%, a patch without a perturbation study, tie
     curves that cross the slope-one line only); 4: stages not run.
 
     Examples
@@ -697,17 +698,28 @@ def ranked_notes(res: dict[str, Any]) -> list[Note]:
             )
         pos = audit.get("position") or {}
         frac = num(pos.get("fraction_explained"))
-        if math.isfinite(frac) and frac < 1.0:
+        of = f"{fmt_pct(frac)} of {pos.get('coordinates', 'the')} diagram coordinates on {pos.get('lines', 'n/a')} lines"
+        if math.isfinite(frac) and frac < 1.0 and pos.get("mesh_aware") is True:
+            worst = worst_position(pos)
+            notes.append(
+                Note(
+                    2,  # the tolerance includes the mesh term: a contour may be missing, so D may be too low
+                    "Position audit failed",
+                    f"only {of} are push coordinates of grid contours within the mesh-aware tolerance "
+                    f"({MESH_AWARE})" + (f"; {worst}" if worst else "") + ".",
+                    POSITION_FIX + ".",
+                )
+            )
+        elif math.isfinite(frac) and frac < 1.0:
             notes.append(
                 Note(
                     3,
                     "Position audit below 100%",
-                    f"{fmt_pct(frac)} of {pos.get('coordinates', 'the')} diagram coordinates on "
-                    f"{pos.get('lines', 'n/a')} lines are push coordinates of contours (worst deviation "
-                    f"{fmt(pos.get('max_deviation'), 3)}); the tolerance omits the mesh error, so "
-                    "surface studies fall short.",
-                    "rerun at a higher mesh resolution: the fraction should rise; if it does not, a "
-                    "contour is missing.",
+                    f"{of} are push coordinates of contours (worst deviation "
+                    f"{fmt(pos.get('max_deviation'), 3)}); this distance.json predates the mesh-aware "
+                    "audit, whose tolerance omits the mesh error, so surface studies fall short.",
+                    "rerun specmap distance: the audit then includes the mesh term; if it stays below 100%, "
+                    "a contour is missing.",
                 )
             )
     sp = res.get("special") or {}
