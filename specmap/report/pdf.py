@@ -55,6 +55,7 @@ from specmap.report.layout import RED, Pager, fit_plots
 from specmap.report.load import STAGE_VERB, load_results
 from specmap.report.summary import (
     SEVERITY_NAMES,
+    audits_sentence,
     component_counts,
     degree_rows,
     grid_only,
@@ -296,6 +297,7 @@ def _summary_page(pg: Pager, res: dict[str, Any]) -> None:
                 color="0.25",
             )
         pg.para(where_sentence(d))
+        pg.para(audits_sentence(d), 8.5, color="0.25")
     elif grid_only(res):
         pg.para("Not available: f and g are given as grid files, which have no mesh, so no slice diagrams.")
     else:

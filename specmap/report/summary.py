@@ -259,6 +259,55 @@ def where_sentence(d: dict[str, Any]) -> str:
     return f"D is reached {where}, at (a, b) = ({fmt(a)}, {fmt(b)}): the filtering line {line}, drawn on the grids."
 
 
+def audits_sentence(d: dict[str, Any]) -> str:
+    """How the two audits of ``distance.json`` went, in one short sentence for page 1.
+
+    Passed, failed or not run, for the theorem audit (which of its checks ran:
+    :func:`specmap.distance.audit.theorem_audit`) and the position audit (the fraction of
+    coordinates explained, and whether its tolerance has the mesh term). Details and what to do
+    are in the notes and on the Matching distance page.
+
+    Examples
+    --------
+    >>> audits_sentence({"audit": {"theorem_gap": False, "theorem": {"dense_above_reduced": False},
+    ...     "position": {"fraction_explained": 1.0, "coordinates": 412, "mesh_aware": True}}})
+    'Audits: theorem check passed (dense lower bound below the reduced value within tolerance); position check explained 100% of 412 coordinates (mesh-aware tolerance).'
+    """
+    audit = d.get("audit") or {}
+    th = audit.get("theorem") or {}
+    ran = [
+        what
+        for key, what in (
+            ("dense_above_reduced", "dense lower bound"),
+            ("strip_above_reduced", "whole-strip search"),
+        )
+        if th.get(key) is not None
+    ]
+    if not ran and d.get("dense") is not None:
+        ran = ["dense lower bound"]
+    gap = audit.get("theorem_gap")
+    if gap is None:
+        theorem = "theorem check not run (no dense sweep or whole-strip search)"
+    elif gap:
+        theorem = "theorem check failed (see What to do next)"
+    else:
+        theorem = "theorem check passed" + (
+            f" ({' and '.join(ran)} below the reduced value within tolerance)" if ran else ""
+        )
+    pos = audit.get("position") or {}
+    frac = num(pos.get("fraction_explained"))
+    if not pos or not math.isfinite(frac):
+        position = "position check not run"
+    else:
+        n = pos.get("coordinates")
+        of = f" of {int(num(n))} coordinates" if isinstance(n, (int, float)) else " of the coordinates"
+        aware = pos.get("mesh_aware") is True
+        how = "mesh-aware tolerance" if aware else "tolerance without the mesh term"
+        verdict = "" if frac >= 1.0 else ("; failed, see What to do next" if aware else "; a caveat")
+        position = f"position check explained {fmt_pct(frac)}{of} ({how}{verdict})"
+    return f"Audits: {theorem}; {position}."
+
+
 def line_equation(a: float, b: float) -> str:
     """The line r(a, b) as an equation in the (x, y) = (f1, f2) plane.
 
