@@ -633,3 +633,77 @@ def test_perturbation_study_tests_the_predicted_breaking_size(tmp_path):
     # the "above" one with one run marked as keeping a patch)
     kept = genericity({**summaries["above"], "runs_with_patch": 1})
     assert "some patch has another cause" in kept
+
+
+@needs_special
+def test_the_study_verdict_names_the_reason_and_the_breaking_size(tmp_path):
+    # Issue 13 item 4: perturb/summary.json's own verdict (printed by specmap perturb) names why the
+    # patch exists, its breaking size and the result, not only the report. Closed form, derived here
+    # (as in test_perturbation_study_tests_the_predicted_breaking_size): vertical half-lines at 0, 1 (f)
+    # and 2, 3 (g) differ by 1 = 1, an equal spacing of critical values of f1 and g1 with defect 0, so
+    # breaks_at = the atlas tolerance; runs of size breaks_at / 100 keep the patch, of 1e4 x breaks_at
+    # lose it (6 of 6 and 0 of 6 there).
+    from specmap.perturb import make_base, run_study
+    from specmap.special import special_set
+
+    gf, gg = four_verticals()
+    br = special_set(gf, gg, WINDOW, resolution=RESOLUTION).tolerance
+    said = {}
+    for name, size in (("below", br / 100), ("above", 1e4 * br)):
+        settings = PerturbSettings(model="grid", size=size, runs=6, seed=5, resolution=RESOLUTION)
+        base = make_base((gf, gg), WINDOW, settings=settings)
+        run_study(base, settings, tmp_path / name)
+        said[name] = json.loads((tmp_path / name / "summary.json").read_text())  # what the CLI prints
+    for s in said.values():
+        assert s["base"]["breaks_at"] == pytest.approx(br, rel=1e-12)
+        assert s["base"]["reason"].startswith("equal spacing (") and s["base"]["reason"].endswith(
+            "of the critical values of f1 and g1"
+        )
+        assert (
+            f"non-generic by {s['base']['reason']}, which breaks at perturbations larger than {br:.3g}"
+            in (s["verdict"])
+        )
+    above, below = said["above"]["verdict"], said["below"]["verdict"]
+    assert f"0 of 6 perturbed runs of size {1e4 * br:g} kept a patch" in above
+    assert f"as its reasons predict (size {1e4 * br:.3g} > {br:.3g})" in above
+    assert f"6 of 6 perturbed runs of size {br / 100:g} kept a patch" in below and "predict" not in below
+    # a patch kept above the breaking size contradicts the reason: the verdict says so (hand-made count)
+    kept = verdict(said["above"]["base"], 6, 1, wilson_interval(1, 6), 1e4 * br, WINDOW.area)
+    assert "some patch has another cause" in kept
+    # a base without recorded reasons keeps the plain sentence (no claim of a reason)
+    plain = verdict({"total_area": 0.25, "counts": {"patch": 1}}, 6, 0, wilson_interval(0, 6), 1e-3, 0.25)
+    assert "non-generic" not in plain and "predict" not in plain
+
+
+@needs_special
+def test_cli_perturb_prints_the_verdict_with_its_reason(tmp_path):
+    # The shipped grid-file study studies/ladder.toml: vertical half-lines at 0, 1 (f) and 2, 3 (g)
+    # (tests/test_reasons.py reads the files back), an equal spacing of critical values of f1 and g1;
+    # its [perturb] size 1e-3 is far above breaks_at = the atlas tolerance (< 1e-6), so a run set
+    # with no patch left reads "as its reasons predict".
+    root = Path(__file__).resolve().parents[1]
+    out = tmp_path / "ladder"
+    proc = subprocess.run(
+        [
+            sys.executable,
+            "-m",
+            "specmap",
+            "--quiet",
+            "perturb",
+            str(root / "studies" / "ladder.toml"),
+            "--out",
+            str(out),
+            "--runs",
+            "4",
+        ],
+        cwd=tmp_path,
+        capture_output=True,
+        text=True,
+        timeout=600,
+    )
+    assert proc.returncode == 0, proc.stderr
+    s = json.loads((out / "perturb" / "summary.json").read_text())
+    assert s["verdict"] in proc.stdout.splitlines()
+    assert "non-generic by equal spacing (" in s["verdict"] and "critical values of f1 and g1" in s["verdict"]
+    assert s["base"]["breaks_at"] < 1e-6
+    assert s["runs_with_patch"] == 0 and "as its reasons predict (size 0.001 >" in s["verdict"]

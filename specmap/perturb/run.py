@@ -62,6 +62,9 @@ class PerturbBase:
         ``{"value": float, "by_degree": {k: float}, "tolerance": float}`` of the base pair.
     grid_settings : (GridSettings, GridSettings)
         How the grids of perturbed shapes are computed ("function" model).
+    patch_reasons : tuple of tuple of dict
+        The ``reasons`` of each patch component of the base special set (``special.json``), from
+        which :meth:`summary` says why the patches exist and the verdict reads the runs.
     """
 
     grid_f: Grid
@@ -74,13 +77,23 @@ class PerturbBase:
     geometry: Any = None
     distance: dict[str, Any] | None = None
     grid_settings: tuple[GridSettings, GridSettings] = (GridSettings(), GridSettings())
+    patch_reasons: tuple[tuple[dict[str, Any], ...], ...] = ()
 
     def summary(self) -> dict[str, Any]:
-        return {
+        """Area, counts and distance of the base; with patches, why they exist (``reason``, the
+        report's words) and the size that breaks them (``breaks_at``, None when not recorded)."""
+        out: dict[str, Any] = {
             "total_area": self.total_area,
             "counts": dict(self.counts or {}),
             "distance": None if self.distance is None else self.distance["value"],
         }
+        if any(self.patch_reasons):
+            from specmap.report.genericity import breaking_size, reason_phrase  # lazy: parent only
+
+            sp = {"components": [{"kind": "patch", "reasons": list(rs)} for rs in self.patch_reasons]}
+            br = breaking_size(sp)
+            out.update(reason=reason_phrase(sp), breaks_at=br if math.isfinite(br) else None)
+        return out
 
 
 def atlas_digest(atlas: Any) -> tuple[float, dict[str, int], Any]:
@@ -321,4 +334,14 @@ def make_base(
         geometry,
         dist,
         grid_settings or (GridSettings(), GridSettings()),
+        patch_reasons(atlas),
+    )
+
+
+def patch_reasons(atlas: Any) -> tuple[tuple[dict[str, Any], ...], ...]:
+    """The ``reasons`` of every patch component of an atlas (:mod:`specmap.special.reasons`)."""
+    return tuple(
+        tuple(dict(r) for r in getattr(c, "reasons", ()) or ())
+        for c in getattr(atlas, "components", ())
+        if getattr(c, "kind", None) == "patch"
     )

@@ -78,13 +78,26 @@ def verdict(
     size: float,
     window_area: float,
 ) -> str:
-    """One sentence: the base special set, then how many perturbed runs had a patch.
+    """One sentence: the base special set (with why its patches exist), then how many perturbed runs
+    had a patch, read against the size that breaks the patch's identities.
+
+    ``base`` may carry ``reason`` (:func:`specmap.report.genericity.reason_phrase` of the base's
+    patches) and ``breaks_at`` (their :func:`~specmap.report.genericity.breaking_size`, None when
+    unknown), as :meth:`specmap.perturb.run.PerturbBase.summary` writes them; the result is then
+    read by :func:`specmap.report.genericity.evidence`, the report's own words.
 
     Examples
     --------
     >>> verdict({"total_area": 0.84, "counts": {"patch": 1, "curve": 0, "point": 0}},
     ...         50, 0, (0.0, 0.0713), 1e-3, 0.84)
     'The base special set has 1 patch (area 0.84, 100% of the window); 0 of 50 perturbed runs of size 0.001 kept a patch (95% CI 0-7.1%).'
+    >>> verdict({"total_area": 0.84, "counts": {"patch": 1}, "breaks_at": 3e-5,
+    ...          "reason": "equal spacing (1 identity) of the critical values of f1 and g1"},
+    ...         20, 0, (0.0, 0.161), 1e-3, 0.84)  # doctest: +NORMALIZE_WHITESPACE
+    "The base special set has 1 patch (area 0.84, 100% of the window), non-generic by equal spacing
+    (1 identity) of the critical values of f1 and g1, which breaks at perturbations larger than 3e-05;
+    0 of 20 perturbed runs of size 0.001 kept a patch (95% CI 0-16.1%): the patch is an artefact of a
+    non-generic input, not of the pair's geometry, as its reasons predict (size 0.001 > 3e-05)."
     """
     counts = base.get("counts", {})
     n_patch = int(counts.get("patch", 0))
@@ -105,7 +118,18 @@ def verdict(
             f"{int(counts.get('point', 0))} isolated points)"
         )
         verb = "gained"
-    return f"{head}; {with_patch} of {n_runs} perturbed runs of size {size:g} {verb} a patch ({ci_text})."
+    reason = base.get("reason") if n_patch else None
+    if not reason:
+        return f"{head}; {with_patch} of {n_runs} perturbed runs of size {size:g} {verb} a patch ({ci_text})."
+    from specmap.report.genericity import evidence  # lazy: workers never build a verdict
+
+    br = base.get("breaks_at")
+    br = float(br) if isinstance(br, (int, float)) else math.nan
+    breaks = f", which breaks at perturbations larger than {br:.3g}" if math.isfinite(br) else ""
+    return (
+        f"{head}, non-generic by {reason}{breaks}; {with_patch} of {n_runs} perturbed runs of size {size:g} "
+        f"{verb} a patch ({ci_text})" + evidence(n_patch, br, with_patch, size)
+    )
 
 
 def summarize_runs(
@@ -158,7 +182,13 @@ def summarize_runs(
         "runs": n,
         "size": float(size),
         "model": model,
-        "base": {"total_area": float(base.get("total_area", 0.0)), "counts": dict(base.get("counts", {}))},
+        "base": {
+            "total_area": float(base.get("total_area", 0.0)),
+            "counts": dict(base.get("counts", {})),
+            # why the base's patches exist and the size that breaks them (None: not recorded)
+            "reason": base.get("reason"),
+            "breaks_at": base.get("breaks_at"),
+        },
         "runs_with_patch": with_patch,
         "runs_with_patch_ci95": [ci[0], ci[1]],
         "total_area": _mean_max([r["total_area"] for r in recs]),
