@@ -157,6 +157,10 @@ CHECKLIST: dict[str, list[str]] = {
         "test_perturb.py::test_perturbation_study_tests_the_predicted_breaking_size",
         "test_report.py::test_summary_quotes_the_patch_reasons_with_contours_and_breaking_size",
     ],
+    "4. the perturbation summary's own verdict (summary.json, the CLI) names the reason": [
+        "test_perturb.py::test_the_study_verdict_names_the_reason_and_the_breaking_size",
+        "test_perturb.py::test_cli_perturb_prints_the_verdict_with_its_reason",
+    ],
     "4. curves: movement measured on the curve parts only (a vanishing patch is not curve movement)": [
         "test_movement.py::test_curve_moving_alone",
         "test_movement.py::test_vanishing_patch_is_not_curve_movement",
@@ -258,6 +262,14 @@ CHECKLIST: dict[str, list[str]] = {
     "Done when: the first page says a failed audit, in plain sentences": [
         "test_report.py::test_theorem_gap_is_loud_in_pdf",
         "test_report.py::test_ranked_notes_put_contradictions_before_the_position_caveat",
+        # a failure of the whole-strip check alone (no dense sweep): its branch, margin and bound, not "n/a"
+        "test_report.py::test_whole_strip_audit_says_its_branch_and_margin_not_n_a",
+    ],
+    "Done when: the first page says the audits that passed or did not run": [
+        "test_report.py::test_summary_page_says_how_the_audits_went",
+    ],
+    "2. a red position audit is red in the report (a warning with its fraction, worst coordinate, fix)": [
+        "test_report.py::test_mesh_aware_position_audit_below_100_is_a_warning_with_its_worst_coordinate",
     ],
     "Done when: the first page says why each patch exists and its tested threshold": [
         "test_report.py::test_summary_quotes_the_patch_reasons_with_contours_and_breaking_size",
@@ -273,33 +285,18 @@ MISSING: dict[str, str] = {
         "result for a user's study, so there is nothing for a test to check; needs code (a re-meshing stage)"
     ),
     "2. the demo and shipped studies are green where the theory holds, red only where it does not": (
-        "no test and no recorded measurement since the mesh-aware position audit landed (README still "
-        "quotes 89% on the demo from before it); needs the demo and shipped-study runs (minutes each, "
-        "the lead's heavy runs), not a test"
+        "no test and no recorded measurement since the mesh-aware position audit landed (README quotes "
+        "89% on the demo and says it is from before it); needs the demo and shipped-study runs (minutes "
+        "each, the lead's heavy runs), not a test"
     ),
     "2. position audit against the PL grid of the same mesh": (
         "the issue offers it as an alternative ('or'); the mesh-aware tolerance was built instead; "
         "tests/test_piecewise_grid.py::test_position_theorem_audit shows the PL grid also needs a mesh "
         "term (within 3 x the largest edge change), so it is not exact for the lower-star slices"
     ),
-    "2. a red position audit is red in the report": (
-        "the report still ranks a position audit below 100% as a caveat (severity 3) whose text says "
-        "'the tolerance omits the mesh error', which is no longer true (the audit is mesh-aware); needs "
-        "a change of specmap/report/summary.py and findings.py, not a test"
-    ),
     "4. curves: how far they move per unit of perturbation size (slope of movement vs size)": (
         "curve movement is measured per run and its mean per size in the sweep rows (curve_movement_mean), "
         "but no slope against size is computed or reported anywhere; needs code"
-    ),
-    "4. the perturbation summary's own verdict names the reason": (
-        "perturb/summary.json's verdict (and the CLI 'verdict:' line) counts runs only; the reason and "
-        "breaks_at are joined to it by the report (report.summary.special_lines, tested above)"
-    ),
-    "Done when: the first page says the audits that passed or did not run": (
-        "page 1 states an audit only through a note when it fails (theorem) or is below 100% (position); "
-        "a passing or not-run audit is stated on the Matching distance page only "
-        "(test_report.py::test_pdf_audit_section_uses_the_findings_sentences); needs a line in "
-        "report/pdf.py's summary page"
     ),
     "Performance: certification on the demo pair to delta = 1e-3 in at most 3x the dense sweep's time": (
         "a benchmark, not a test (tests/benchmarks/bench_certify.py, results_certify.md, README): per "
