@@ -97,7 +97,9 @@ def _indented(text: str, pad: str) -> str:
     return text.replace("\n", "\n" + pad)
 
 
-def write_json_streamed(path: str | Path, head: dict[str, Any], key: str, items: Iterable[Any]) -> Path:
+def write_json_streamed(
+    path: str | Path, head: dict[str, Any], key: str, items: Iterable[Any], plain: bool = False
+) -> Path:
     """Write ``{**head, key: list(items)}`` atomically, one item at a time.
 
     The bytes are those :func:`write_json` would write for the whole object (indent 2, with
@@ -111,6 +113,11 @@ def write_json_streamed(path: str | Path, head: dict[str, Any], key: str, items:
     key : str
     items : iterable
         JSON-serialisable items (e.g. GeoJSON features), consumed once.
+    plain : bool
+        The items are plain JSON types already (no :func:`to_plain` copy); their lists may then
+        be made lazily as the encoder walks them (e.g. one part of a large geometry at a time,
+        :func:`specmap.special.atlas.iter_features_streamed`). Each item is written in the
+        encoder's chunks, never as one string.
 
     Examples
     --------
@@ -134,10 +141,11 @@ def write_json_streamed(path: str | Path, head: dict[str, Any], key: str, items:
                 continue
             fh.write("[")
             n = 0
+            encoder = json.JSONEncoder(indent=2)  # the separators and layout of json.dumps(indent=2)
             for item in items:
-                fh.write(
-                    ("," if n else "") + "\n    " + _indented(json.dumps(to_plain(item), indent=2), "    ")
-                )
+                fh.write(("," if n else "") + "\n    ")
+                for chunk in encoder.iterencode(item if plain else to_plain(item)):
+                    fh.write(_indented(chunk, "    "))
                 n += 1
             fh.write("\n  ]" if n else "]")
         fh.write("\n}\n" if head else "}\n")

@@ -581,7 +581,11 @@ class StudyRun:
         # streamed feature by feature: the GeoJSON text is never held whole in memory (issue 14 item 3);
         # the stamp is a foreign member of the FeatureCollection (RFC 7946 section 6.1)
         write_json_streamed(
-            self.out / "special.geojson", {**atlas.geojson_head(), **head}, "features", atlas.iter_features()
+            self.out / "special.geojson",
+            {**atlas.geojson_head(), **head},
+            "features",
+            atlas.iter_features_streamed(),
+            plain=True,
         )
         save_png(special_figure(js, atlas.shape_features()), self.out / "figures" / "special.png")
         return js

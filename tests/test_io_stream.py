@@ -58,6 +58,30 @@ def test_atlas_geojson_streamed_equals_whole(tmp_path: Path):
     assert (tmp_path / "a.geojson").read_bytes() == (tmp_path / "b.geojson").read_bytes()
 
 
+def test_lazy_geojson_features_write_the_same_bytes(tmp_path: Path):
+    # reference: json.dumps(indent=2) of the whole FeatureCollection (write_json). The map CLI writes
+    # multi-part coordinates one part at a time (Atlas.iter_features_streamed, plain=True): same bytes,
+    # on curves (random pair) and on a patch crossed by curves (verticals at 0, 1 and 3, 4 tie on the
+    # whole window: closed form, see tests/test_tiles.py)
+    from specmap.grids.model import Contour, Grid
+    from specmap.special import special_set
+    from specmap.strip import Window
+    from tests.gridgen import random_pair
+
+    w = Window((0.05, 0.95), (-1.0, 1.0))
+    rf, rg = random_pair(3, 6)
+    vf = (Contour("f:v90", "vertical", [0.0, -50.0]), Contour("f:v91", "vertical", [1.0, -50.0]))
+    vg = (Contour("g:v90", "vertical", [3.0, -50.0]), Contour("g:v91", "vertical", [4.0, -50.0]))
+    patchy = (Grid(vf + rf.contours), Grid(vg + rg.contours))
+    for gf, gg in (random_pair(1, 14), patchy):
+        atlas = special_set(gf, gg, w, resolution=31, reading="contours")
+        lazy = atlas.iter_features_streamed()
+        write_json_streamed(tmp_path / "a.geojson", atlas.geojson_head(), "features", lazy, plain=True)
+        write_json(tmp_path / "b.geojson", atlas.to_geojson())
+        assert (tmp_path / "a.geojson").read_bytes() == (tmp_path / "b.geojson").read_bytes()
+    assert atlas.counts()["patch"] >= 1 and atlas.stats["tie_curves"] > 0  # curves over the patch
+
+
 def test_interrupted_stream_leaves_no_file(tmp_path: Path):
     def items():
         yield {"ok": 1}

@@ -135,6 +135,15 @@ class Atlas:
             geom = _plain_geometry(mapping(c.geometry)) if c.geometry is not None else None
             yield {"type": "Feature", "id": c.id, "geometry": geom, "properties": c.summary()}
 
+    def iter_features_streamed(self) -> Iterator[dict[str, Any]]:
+        """:meth:`iter_features` for :func:`specmap.io.write_json_streamed` with ``plain=True``: the
+        same JSON, but the coordinates of a multi-part geometry are made one part at a time as the
+        encoder walks them (:class:`_LazyParts`), so a component of millions of points is never
+        held as Python lists whole. Only for that writer: the lists read empty to other code."""
+        for c in self.components:
+            geom = _lazy_geometry(c.geometry) if c.geometry is not None else None
+            yield {"type": "Feature", "id": c.id, "geometry": geom, "properties": to_plain(c.summary())}
+
     def geojson_head(self) -> dict[str, Any]:
         """The FeatureCollection without its features (``"features": None`` marks their place)."""
         return {
@@ -236,6 +245,44 @@ def _plain_geometry(geom: dict[str, Any]) -> dict[str, Any]:
     if kind not in _DEPTH:
         return to_plain(geom)
     return {"type": kind, "coordinates": _plain_coordinates(geom["coordinates"], _DEPTH[kind])}
+
+
+class _LazyParts(list):
+    """A JSON array whose items are made when iterated: ``make(part)`` for each of ``parts``.
+
+    The pure-Python JSON encoder (the one used with an indent) tests an array's truth and then
+    iterates it, so it writes these items one at a time. The list itself is empty: indexing,
+    numpy and the C encoder see nothing, hence only :func:`specmap.io.write_json_streamed`.
+    """
+
+    def __init__(self, parts: list[Any], make: Any) -> None:
+        super().__init__()
+        self._parts = parts
+        self._make = make
+
+    def __iter__(self) -> Iterator[Any]:
+        return (self._make(p) for p in self._parts)
+
+    def __len__(self) -> int:
+        return len(self._parts)
+
+    def __bool__(self) -> bool:
+        return bool(self._parts)
+
+
+def _lazy_geometry(geometry: Any) -> dict[str, Any]:
+    """The plain GeoJSON geometry of :func:`_plain_geometry`, multi-part coordinates made lazily."""
+    kind = geometry.geom_type
+    if kind == "GeometryCollection":
+        return {"type": kind, "geometries": [_lazy_geometry(g) for g in geometry.geoms]}
+    if kind in ("MultiLineString", "MultiPolygon", "MultiPoint"):
+        return {
+            "type": kind,
+            "coordinates": _LazyParts(
+                list(geometry.geoms), lambda p: _plain_geometry(mapping(p))["coordinates"]
+            ),
+        }
+    return _plain_geometry(mapping(geometry))
 
 
 def iter_piece_records(atlas: Atlas) -> Iterator[dict[str, Any]]:
