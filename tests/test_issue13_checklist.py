@@ -161,6 +161,9 @@ CHECKLIST: dict[str, list[str]] = {
         "test_perturb.py::test_the_study_verdict_names_the_reason_and_the_breaking_size",
         "test_perturb.py::test_cli_perturb_prints_the_verdict_with_its_reason",
     ],
+    "4. curves: how far they move per unit of perturbation size (slope of movement vs size)": [
+        "test_perturb.py::test_curve_movement_per_unit_size_and_its_slope_over_a_sweep"
+    ],
     "4. curves: movement measured on the curve parts only (a vanishing patch is not curve movement)": [
         "test_movement.py::test_curve_moving_alone",
         "test_movement.py::test_vanishing_patch_is_not_curve_movement",
@@ -293,10 +296,6 @@ MISSING: dict[str, str] = {
         "the issue offers it as an alternative ('or'); the mesh-aware tolerance was built instead; "
         "tests/test_piecewise_grid.py::test_position_theorem_audit shows the PL grid also needs a mesh "
         "term (within 3 x the largest edge change), so it is not exact for the lower-star slices"
-    ),
-    "4. curves: how far they move per unit of perturbation size (slope of movement vs size)": (
-        "curve movement is measured per run and its mean per size in the sweep rows (curve_movement_mean), "
-        "but no slope against size is computed or reported anywhere; needs code"
     ),
     "Performance: certification on the demo pair to delta = 1e-3 in at most 3x the dense sweep's time": (
         "a benchmark, not a test (tests/benchmarks/bench_certify.py, results_certify.md, README): per "

@@ -707,3 +707,42 @@ def test_cli_perturb_prints_the_verdict_with_its_reason(tmp_path):
     assert "non-generic by equal spacing (" in s["verdict"] and "critical values of f1 and g1" in s["verdict"]
     assert s["base"]["breaks_at"] < 1e-6
     assert s["runs_with_patch"] == 0 and "as its reasons predict (size 0.001 >" in s["verdict"]
+
+
+def test_curve_movement_per_unit_size_and_its_slope_over_a_sweep(tmp_path):
+    # Issue 13 item 4, curves: how far the tie curves move per unit of perturbation size. Reference:
+    # the raw run records (runs.jsonl of each size, read back here) and the least-squares slope through
+    # the origin, k = sum s m / sum s^2 (closed form of the fit, derived here). A generic random pair
+    # has regular tie curves (implicit-function theorem), so their movement is linear in a small size:
+    # the per-size ratios of the three sizes agree within a factor of 3.
+    import sys
+
+    from specmap.perturb import make_base, run_study
+    from specmap.perturb.execution import size_tag
+    from specmap.report.findings import _perturb_sentences
+
+    sys.path.insert(0, str(Path(__file__).resolve().parent))
+    from gridgen import random_pair
+
+    gf, gg = random_pair(2, 6)
+    sizes = (1e-3, 2e-3, 4e-3)
+    settings = PerturbSettings(model="grid", size=sizes[0], runs=4, seed=3, resolution=RESOLUTION)
+    base = make_base((gf, gg), WINDOW, settings=settings)
+    summary = run_study(base, settings, tmp_path / "p", sizes=sizes)
+    means = {}
+    for s in sizes:
+        folder = tmp_path / "p" if s == sizes[0] else tmp_path / "p" / "sweep" / size_tag(s)
+        recs = load_runs(folder / "runs.jsonl").values()
+        moves = [float(r["curve_movement"]) for r in recs]
+        assert len(moves) == 4
+        means[s] = sum(moves) / len(moves)
+        if s == sizes[0]:
+            per = summary["curve_movement_per_size"]
+            assert per["mean"] == pytest.approx(sum(m / s for m in moves) / 4, rel=1e-12)
+            assert per["max"] == pytest.approx(max(moves) / s, rel=1e-12)
+    k = sum(s * means[s] for s in sizes) / sum(s * s for s in sizes)
+    assert summary["curve_movement_slope"] == pytest.approx(k, rel=1e-9) and k > 0
+    ratios = [means[s] / s for s in sizes]
+    assert max(ratios) <= 3 * min(ratios)
+    text = " ".join(_perturb_sentences({"perturb": {"summary": summary}}))
+    assert "per unit of perturbation size" in text

@@ -17,7 +17,7 @@ from specmap.errors import StudyError
 from specmap.io import append_jsonl, to_plain
 from specmap.perturb.run import PerturbBase, PerturbSettings, run_one, run_seed
 from specmap.perturb.store import fingerprint, locked, switch_run_set, tidy_runs, write_summary
-from specmap.perturb.summary import summarize_runs, sweep_row
+from specmap.perturb.summary import movement_slope, summarize_runs, sweep_row
 
 
 def _results(tasks: list, jobs: int, cluster: str | None) -> Iterator[dict[str, Any]]:
@@ -115,7 +115,7 @@ def run_study(
                     progress=progress,
                 )
                 rows.append(sweep_row(sub))
-            summary = {**summary, "sweep": rows}
+            summary = {**summary, "sweep": rows, "curve_movement_slope": movement_slope(rows)}
         write_summary(folder, summary)
     return summary
 

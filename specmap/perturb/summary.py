@@ -14,7 +14,7 @@ import math
 from collections.abc import Sequence
 from typing import Any
 
-__all__ = ["wilson_interval", "summarize_runs", "verdict", "sweep_row"]
+__all__ = ["wilson_interval", "summarize_runs", "verdict", "sweep_row", "movement_slope"]
 
 Z95 = 1.959963984540054
 """Two-sided 95% normal quantile."""
@@ -195,6 +195,12 @@ def summarize_runs(
         "hausdorff": _mean_max([r["hausdorff"] for r in recs]),
         # curves and points only (a vanishing patch is not curve movement), and the patch change
         "curve_movement": _mean_max([r.get("curve_movement") for r in recs]),
+        # per unit of perturbation size (value units): how far the curves move per unit of change
+        "curve_movement_per_size": _mean_max(
+            [float(r["curve_movement"]) / float(size) for r in recs if r.get("curve_movement") is not None]
+            if float(size) > 0
+            else []
+        ),
         "patch_change": _mean_max([r.get("patch_change") for r in recs]),
         "distance": distance,
         "stability_violations": violations,
@@ -203,6 +209,29 @@ def summarize_runs(
         "runs_per_minute": runs_per_minute,
         "runs_per_minute_basis": runs_per_minute_basis,
     }
+
+
+def movement_slope(rows: Sequence[dict[str, Any]]) -> float | None:
+    """Least-squares slope through the origin of the mean curve movement against the size.
+
+    ``rows`` are :func:`sweep_row` rows; the slope k minimises sum (m_i - k s_i)^2 over the sizes
+    s_i with a finite mean movement m_i, so k = sum s_i m_i / sum s_i^2 ((a, b) units per value
+    unit). None with no such row.
+
+    Examples
+    --------
+    >>> movement_slope([{"size": 0.01, "curve_movement_mean": 0.02}, {"size": 0.02, "curve_movement_mean": 0.04}])
+    2.0
+    """
+    pts = [
+        (float(r["size"]), float(r["curve_movement_mean"]))
+        for r in rows
+        if r.get("curve_movement_mean") is not None and math.isfinite(float(r["curve_movement_mean"]))
+    ]
+    den = sum(s * s for s, _ in pts)
+    if not pts or den <= 0:
+        return None
+    return sum(s * m for s, m in pts) / den
 
 
 def sweep_row(summary: dict[str, Any]) -> dict[str, Any]:

@@ -416,6 +416,18 @@ def _perturb_sentences(res: dict[str, Any]) -> list[str]:
             for r in rows
         ]
         out.append("Size sweep, runs with a patch: " + ", ".join(parts) + ".")
+    slope = num(s.get("curve_movement_slope"))
+    per = num((s.get("curve_movement_per_size") or {}).get("mean"))
+    if math.isfinite(slope):
+        out.append(
+            f"The tie curves move by about {fmt(slope, 2)} in (a, b) per unit of perturbation size "
+            "(least-squares slope of the mean curve movement over the sweep, curve parts only)."
+        )
+    elif math.isfinite(per):
+        out.append(
+            f"The tie curves move by about {fmt(per, 2)} in (a, b) per unit of perturbation size "
+            "(mean over the runs, curve parts only)."
+        )
     if s.get("verdict"):
         out.append(f"Verdict of the perturbation study: {s['verdict']}")
     return [t if t.endswith(".") else t + "." for t in out]
