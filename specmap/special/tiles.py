@@ -446,7 +446,9 @@ def tiled_special_set(
     comps = with_reasons(components_with(tuple(pieces), window, links), pieces, table, tol)
     stats = {
         **_summed_stats(table, tile_stats),
-        "tie_curves": sum(len(shapely.get_parts(g)) for _, k, g in items if k == CURVE),
+        "tie_curves": int(
+            shapely.get_num_geometries(np.array([g for _, k, g in items if k == CURVE], dtype=object)).sum()
+        ),
         "ties_with_curves": sum(1 for _, k, _ in items if k == CURVE),
         "ties_with_patches": sum(1 for _, k, _ in items if k == "patch"),
         "pieces": len(pieces),

@@ -70,9 +70,12 @@ def main(argv: list[str]) -> None:
     n = int(argv[0]) if argv else 40
     res = int(argv[1]) if len(argv) > 1 else 81
     # a case "2x2" runs in this process; "dask2" is 2 x 2 tiles on a LocalCluster of 2 workers;
-    # "s2x2" is 2 x 2 tiles streamed: written to disk and merged from the files (-1 in the key)
+    # "s2x2" is 2 x 2 tiles streamed: written to disk and merged from the files (-1 in the key);
+    # "dask2:4x4" is 4 x 4 tiles on 2 workers
     cases = [(1, 1, 0)] + [
-        (2, 2, int(t[4:]))
+        (*(int(x) for x in t.split(":")[1].split("x")), int(t[4:].split(":")[0]))
+        if t.startswith("dask") and ":" in t
+        else (2, 2, int(t[4:]))
         if t.startswith("dask")
         else (*(int(x) for x in t[1:].split("x")), -1)
         if t.startswith("s")
