@@ -592,3 +592,50 @@ def test_top_degree_closed_form_and_its_cell_bound():
         t, bb = rng.uniform(0.2, 0.6, 20), rng.uniform(-0.8, 0.4, 20)
         Hc = LineEvaluator(sf, sg, (0, 1, 2))(end_a(form, t), bb)
         assert np.all(Hc.max(axis=1) <= ub + 1e-12), (Hc.max(axis=1), ub)
+
+
+def test_position_audit_leaves_out_sub_two_delta_pairs_and_is_green_on_the_knob_meshes():
+    # The shipped knob study (two PL meshes, their PL grids) was red (94.5% of 366 coordinates): the
+    # lower-star slices interpolate F* from the vertices, the grid is that of max of the interpolated
+    # pair, and the two differ by at most delta, the largest edge change of F* on the line; by
+    # bottleneck stability [CDFFL13] only pairs of persistence above 2 delta must sit on the grid
+    # (the rule of tests/test_piecewise_grid.py::test_position_theorem_audit). Reference for the count
+    # of left-out coordinates: gudhi's lower-star persistence built here, independently of the audit's
+    # slice engine, on the audit's lines (seeded uniform draws in the window, same order).
+    import dataclasses
+    from pathlib import Path
+
+    import gudhi
+
+    from specmap.distance.audit import position_audit
+    from specmap.meshtable import mesh_edges
+    from specmap.pipeline import StudyRun
+    from specmap.study import load_study
+
+    root = Path(__file__).resolve().parents[1]
+    run = StudyRun(load_study(root / "studies" / "knob.toml"), Path("unused"), show_progress=False)
+    (sf, sg), grids, w = run.shapes, run.grids, run.window
+    got = position_audit(sf, sg, grids, w, tolerance=1e-3, lines=8, seed=2)
+    assert got["fraction_explained"] == 1.0 and got["coordinates"] > 0
+    rng = np.random.default_rng(2)
+    A, B = rng.uniform(*w.a, 8), rng.uniform(*w.b, 8)
+    short = 0
+    for shape in (sf, sg):
+        V = np.asarray(shape.values, dtype=float)
+        T = np.asarray(shape.triangles)
+        E = mesh_edges(T)
+        for a, b in zip(A, B, strict=True):
+            phi = min(a, 1 - a) * np.maximum((V[:, 0] - b) / a, (V[:, 1] + b) / (1 - a))
+            st = gudhi.SimplexTree()
+            st.insert_batch(np.arange(len(V))[None, :], phi)
+            st.insert_batch(E.T, phi[E].max(axis=1))
+            st.insert_batch(T.T, phi[T].max(axis=1))
+            st.compute_persistence(persistence_dim_max=True)
+            delta = np.abs(phi[E[:, 0]] - phi[E[:, 1]]).max()
+            short += sum(2 for _, (x, y) in st.persistence() if np.isfinite(y) and 0 < y - x <= 2 * delta)
+    assert got["short_pair_coordinates"] == short and short > 0
+    # the rule leaves out only short pairs: a grid without its longest contour is still red
+    gf, gg = grids
+    longest = max(gf.contours, key=lambda c: len(c.points))
+    broken = (dataclasses.replace(gf, contours=tuple(c for c in gf.contours if c is not longest)), gg)
+    assert position_audit(sf, sg, broken, w, tolerance=1e-3, lines=8, seed=2)["fraction_explained"] < 1.0

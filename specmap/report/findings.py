@@ -304,6 +304,12 @@ def position_audit_sentence(d: dict[str, Any]) -> str | None:
         f"{fmt_pct(frac)} of diagram coordinates on {pos.get('lines', 'n/a')} audited lines are push "
         f"coordinates of grid contours{within} (max deviation {fmt(pos.get('max_deviation'), 3)})"
     )
+    short = pos.get("short_pair_coordinates")
+    if isinstance(short, int) and short > 0:
+        txt += (
+            f"; {short} coordinates of pairs of persistence at most twice the largest edge change of F* "
+            "(mesh interpolation noise, by stability) are left out"
+        )
     if math.isfinite(frac) and frac < 1.0 and aware:
         worst = worst_position(pos)
         return (
