@@ -353,3 +353,38 @@ def test_cli_map_size_mistakes_are_one_line(tmp_path, capsys):
     assert exc.value.code == 2
     err = capsys.readouterr().err.strip().splitlines()
     assert len(err) == 1 and "map.tiles" in err[0]
+
+
+def test_a_streamed_rerun_reads_tile_statistics_from_their_sidecars(tmp_path, monkeypatch):
+    # reference: the first streamed run of the same map. A rerun finds every tile finished and
+    # takes its statistics from stats_<tile>.json (the tile file is parsed only by the merge); a
+    # sidecar whose recorded size no longer matches its tile file is ignored and that tile parsed
+    gf, gg = random_pair(3, 8)
+    ms = MapSettings(resolution=31)
+    folder = tmp_path / "t"
+    first = tiled_special_set_streamed(gf, gg, WINDOW, tiles=(2, 2), settings=ms, folder=folder)
+    assert sorted(p.name for p in folder.glob("stats_tile_*.json")) == [
+        f"stats_tile_{i}_{j}.json" for i in range(2) for j in range(2)
+    ]
+    parsed: list[set] = []
+    real = tiles_mod._iter_done
+
+    def spy(store, fp, names):
+        parsed.append(set(names))
+        return real(store, fp, names)
+
+    monkeypatch.setattr(tiles_mod, "_iter_done", spy)
+    again = tiled_special_set_streamed(gf, gg, WINDOW, tiles=(2, 2), settings=ms, folder=folder)
+    assert parsed == [set()] and again.stats["tiles"]["reused"] == 4
+    side = folder / "stats_tile_1_0.json"
+    d = json.loads(side.read_text())
+    side.write_text(json.dumps({**d, "bytes": d["bytes"] + 1}))
+    third = tiled_special_set_streamed(gf, gg, WINDOW, tiles=(2, 2), settings=ms, folder=folder)
+    assert parsed[-1] == {"tile_1_0"} and third.stats["tiles"]["reused"] == 4
+    for at in (again, third):
+        assert [(c.id, c.kind, c.ties, c.length) for c in at.components] == [
+            (c.id, c.kind, c.ties, c.length) for c in first.components
+        ]
+        assert {k: at.stats[k] for k in ("tie_curves", "crossings")} == {
+            k: first.stats[k] for k in ("tie_curves", "crossings")
+        }

@@ -344,10 +344,42 @@ def read_done_tiles(folder: Path, fp: str) -> dict[str, TileResult]:
 def write_tile(folder: Path, fp: str, result: TileResult) -> Path:
     """Write one finished tile (atomic and fsynced; ``"done": true`` marks it complete)."""
     folder.mkdir(parents=True, exist_ok=True)
-    return write_json(
+    path = write_json(
         folder / f"{result.name}.json",
         {"format": FORMAT, "fingerprint": fp, "done": True, "result": result.to_json()},
     )
+    # the statistics alone, written after the tile: a streamed rerun reads these instead of parsing
+    # every finished tile whole (at 80 contours, 4.9 GB of tile files and about 510 s)
+    write_json(
+        folder / f"stats_{result.name}.json",
+        {"format": FORMAT, "fingerprint": fp, "bytes": path.stat().st_size, "stats": result.stats},
+    )
+    return path
+
+
+def _done_stats(folder: Path, fp: str, names: set[str]) -> dict[str, dict[str, Any]]:
+    """Statistics of the finished tiles of ``folder`` among ``names`` from their ``stats_*.json``
+    files, where the tile file is there with the recorded size (a missing, stale or torn sidecar
+    leaves its tile to :func:`_iter_done`)."""
+    out: dict[str, dict[str, Any]] = {}
+    if not folder.is_dir():
+        return out
+    for name in sorted(names):
+        side, tile = folder / f"stats_{name}.json", folder / f"{name}.json"
+        try:
+            d = read_json(side)
+            ok = (
+                isinstance(d, dict)
+                and d.get("format") == FORMAT
+                and d.get("fingerprint") == fp
+                and isinstance(d.get("stats"), dict)
+                and tile.stat().st_size == d.get("bytes")
+            )
+        except (OSError, ValueError, TypeError):
+            ok = False
+        if ok:
+            out[name] = d["stats"]
+    return out
 
 
 def tiled_special_set(
@@ -507,7 +539,11 @@ def run_tiles(
     done: dict[str, TileResult | None] = {}
     stats: dict[str, dict[str, Any]] = {}
     if store is not None:
-        for name, res in _iter_done(store, fp, {t.name for t in plan}):
+        names = {t.name for t in plan}
+        if not keep:  # the streamed merge reads the tiles later: their statistics suffice here
+            stats.update(_done_stats(store, fp, names))
+            done.update(dict.fromkeys(stats))
+        for name, res in _iter_done(store, fp, names - set(stats)):
             done[name] = res if keep else None
             stats[name] = res.stats
     reused = sum(1 for t in plan if t.name in done)
