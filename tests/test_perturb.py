@@ -746,3 +746,45 @@ def test_curve_movement_per_unit_size_and_its_slope_over_a_sweep(tmp_path):
     assert max(ratios) <= 3 * min(ratios)
     text = " ".join(_perturb_sentences({"perturb": {"summary": summary}}))
     assert "per unit of perturbation size" in text
+
+
+def test_curve_movement_that_does_not_scale_with_the_size_gets_no_rate():
+    # closed form, derived here: mean movements 0.115 and 0.2 at sizes 0.0005 and 0.02 are 230 and 10 per
+    # unit of size (ratio 23 > 3): not a linear move of the base curves (the demo's base is one patch that
+    # vanishes), so the Findings give no rate; movements 0.001 and 0.004 at sizes 0.001 and 0.004 (1 per
+    # unit at both) keep the least-squares rate
+    from specmap.report.findings import _perturb_sentences
+
+    def rows(pts):
+        return [{"size": s, "runs": 4, "runs_with_patch": 0, "curve_movement_mean": m} for s, m in pts]
+
+    base = {"runs": 4, "size": 0.02, "runs_with_patch": 0, "runs_with_patch_ci95": [0.0, 0.49]}
+    bad = " ".join(
+        _perturb_sentences(
+            {
+                "perturb": {
+                    "summary": {
+                        **base,
+                        "sweep": rows([(0.0005, 0.115), (0.02, 0.2)]),
+                        "curve_movement_slope": 10.0,
+                    }
+                }
+            }
+        )
+    )
+    assert "does not scale with the size (230 per unit at size 0.0005, 10 at 0.02)" in bad
+    assert "move by about" not in bad
+    good = " ".join(
+        _perturb_sentences(
+            {
+                "perturb": {
+                    "summary": {
+                        **base,
+                        "sweep": rows([(0.001, 0.001), (0.004, 0.004)]),
+                        "curve_movement_slope": 1.0,
+                    }
+                }
+            }
+        )
+    )
+    assert "move by about 1 in (a, b) per unit of perturbation size" in good

@@ -424,7 +424,19 @@ def _perturb_sentences(res: dict[str, Any]) -> list[str]:
         out.append("Size sweep, runs with a patch: " + ", ".join(parts) + ".")
     slope = num(s.get("curve_movement_slope"))
     per = num((s.get("curve_movement_per_size") or {}).get("mean"))
-    if math.isfinite(slope):
+    ratios = [
+        (num(r.get("size")), num(r.get("curve_movement_mean")) / num(r.get("size")))
+        for r in sorted(sweep, key=lambda r: num(r.get("size")))
+        if num(r.get("size")) > 0 and math.isfinite(num(r.get("curve_movement_mean")))
+    ]
+    spread = [q for _, q in ratios if q > 0]
+    if len(spread) >= 2 and max(spread) > 3 * min(spread):
+        out.append(
+            f"The tie-curve movement does not scale with the size ({fmt(ratios[0][1], 2)} per unit at size "
+            f"{fmt(ratios[0][0], 3)}, {fmt(ratios[-1][1], 2)} at {fmt(ratios[-1][0], 3)}): the perturbed curves "
+            "are not small moves of the unperturbed ones (e.g. where a patch vanished), so no rate is given."
+        )
+    elif math.isfinite(slope):
         out.append(
             f"The tie curves move by about {fmt(slope, 2)} in (a, b) per unit of perturbation size "
             "(least-squares slope of the mean curve movement over the sweep, curve parts only)."
