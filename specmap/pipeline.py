@@ -29,6 +29,10 @@ from specmap.shapes.model import Shape
 from specmap.strip import Window, window_for
 from specmap.study import ShapeSpec, Study
 
+LONG_PLAN_SECONDS = 60.0
+"""A one-piece map whose rough time (:attr:`specmap.special.preflight.AtlasPlan.seconds`) is above
+this prints its plan line first (tiled and streamed plans always do)."""
+
 
 def default_out(study: Study) -> Path:
     return Path("results") / study.name
@@ -434,6 +438,8 @@ class StudyRun:
                     progress=self.progress("map tiles"),
                 )
             else:
+                if self.show_progress and plan.seconds > LONG_PLAN_SECONDS:  # say it before a long wait
+                    print(f"specmap: {plan.line()}", file=sys.stderr)
                 atlas = special_set(
                     gf,
                     gg,

@@ -54,6 +54,10 @@ MERGED_BYTES_PER_CROSSING = 160.0
 # 121 x 121 (tests/benchmarks/results_tiles_n80.md) have 3.2 clipped lines per 100 crossings
 STREAMED_BYTES_PER_CROSSING = 4.0
 MIN_TILE_CELLS = 4  # smallest tile side (cells) the plan goes down to
+# Rough work per estimated crossing on one core, for the plan's time estimate: 40 random contours at
+# 41 x 41 (tests/benchmarks/results_tiles.md, quiet 2-core machine) took 50.0 s in one piece, 75.6 s
+# in 2 x 2 tiles held in memory and 202.2 s streamed, for 10.66 M crossings of the one-piece map
+SECONDS_PER_CROSSING = {"one piece": 4.7e-6, "tiles": 7.1e-6, "streamed": 19e-6}
 UNITS = {
     "": 1.0,
     "B": 1.0,
@@ -213,6 +217,13 @@ class AtlasPlan:
     def tiled(self) -> bool:
         return self.tiles != (1, 1)
 
+    @property
+    def seconds(self) -> float:
+        """A rough time of the plan on one core (:data:`SECONDS_PER_CROSSING`; work spread over
+        ``jobs`` processes or a cluster takes less, the merge does not)."""
+        kind = "streamed" if self.streamed else ("tiles" if self.tiled else "one piece")
+        return float(self.estimate.crossings) * SECONDS_PER_CROSSING[kind]
+
     def to_json(self) -> dict[str, Any]:
         return {
             "contours": self.estimate.contours,
@@ -225,6 +236,7 @@ class AtlasPlan:
             "jobs": int(self.jobs),
             "reason": self.reason,
             "streamed": bool(self.streamed),
+            "seconds_estimate": self.seconds,
         }
 
     def line(self) -> str:
@@ -235,8 +247,17 @@ class AtlasPlan:
         return (
             f"map plan: {shape} ({self.reason}); about {self.estimate.crossings:.2g} crossings, "
             f"{_size(self.estimate.bytes)} in one piece, {_size(self.tile_bytes)} as planned, "
-            f"budget {_size(self.budget)}"
+            f"budget {_size(self.budget)}; roughly {_duration(self.seconds)} of work on one core"
         )
+
+
+def _duration(seconds: float) -> str:
+    """A rough duration in words: seconds, minutes or hours (two significant digits)."""
+    if seconds < 90:
+        return f"{seconds:.2g} s"
+    if seconds < 5400:
+        return f"{seconds / 60:.2g} min"
+    return f"{seconds / 3600:.2g} h"
 
 
 def _tiles_bytes(
