@@ -404,11 +404,11 @@ class StudyRun:
                 simplified=self.simplification,
                 max_contours=ms.max_contours,
             )
+            if self.show_progress and (plan.tiled or plan.seconds > LONG_PLAN_SECONDS):  # before a long wait
+                print(f"specmap: {plan.line()}", file=sys.stderr)
             if plan.streamed:  # tiles on disk, merged one at a time, the GeoJSON written as it goes
                 from specmap.special.tiles import streamed_tiled_map
 
-                if self.show_progress:
-                    print(f"specmap: {plan.line()}", file=sys.stderr)
                 self.out.mkdir(parents=True, exist_ok=True)
                 atlas = streamed_tiled_map(
                     gf,
@@ -424,8 +424,6 @@ class StudyRun:
                     progress=self.progress("map tiles"),
                 )
             elif plan.tiled:
-                if self.show_progress:
-                    print(f"specmap: {plan.line()}", file=sys.stderr)
                 atlas = tiled_special_set(
                     gf,
                     gg,
@@ -438,8 +436,6 @@ class StudyRun:
                     progress=self.progress("map tiles"),
                 )
             else:
-                if self.show_progress and plan.seconds > LONG_PLAN_SECONDS:  # say it before a long wait
-                    print(f"specmap: {plan.line()}", file=sys.stderr)
                 atlas = special_set(
                     gf,
                     gg,

@@ -25,7 +25,7 @@ from specmap.special.lattice import Lattice
 from specmap.special.pairs import pair_table
 from specmap.special.patches import patch_cells, patch_polygons
 from specmap.special.reading import READINGS, points_reading
-from specmap.special.reasons import patch_reasons
+from specmap.special.reasons import contour_scale, patch_reasons
 from specmap.special.reference import naive_crossings
 from specmap.special.trace import refine, trace
 from specmap.strip import Window
@@ -47,17 +47,14 @@ def with_reasons(
     if not patches:
         return comps
     by_id = {c.id: c for c in table.contours}
-    pts = np.concatenate([np.asarray(c.points, float) for c in table.contours])
-    scale = float(np.hypot(*(pts.max(axis=0) - pts.min(axis=0)))) if len(pts) else 1.0
+    scale = contour_scale(table.contours, tol)
     out = []
     for c in comps:
         if c.kind != "patch" or c.geometry is None:
             out.append(c)
             continue
         held = [p for p in patches if c.geometry.intersects(p.geometry.representative_point())]
-        reasons = patch_reasons(
-            [p.tie for p in held], by_id, tol, [p.geometry for p in held], scale=max(scale, tol)
-        )
+        reasons = patch_reasons([p.tie for p in held], by_id, tol, [p.geometry for p in held], scale=scale)
         out.append(dataclasses.replace(c, reasons=tuple(reasons)))
     return tuple(out)
 

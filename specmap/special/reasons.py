@@ -33,6 +33,8 @@ from __future__ import annotations
 
 from typing import Any
 
+import numpy as np
+
 from specmap.grids.model import Contour
 from specmap.special.pairs import Tie
 
@@ -113,6 +115,13 @@ def tie_reason(
         if abs(xu - xw) <= abs(xu + xw - 2.0 * xs):
             out["kind"] = "equal_values"
     return out
+
+
+def contour_scale(contours, tol: float) -> float:
+    """The probe's largest size: the diagonal of the contours' points (value units), at least ``tol``."""
+    pts = np.concatenate([np.asarray(c.points, float) for c in contours]) if contours else np.zeros((0, 2))
+    scale = float(np.hypot(*(pts.max(axis=0) - pts.min(axis=0)))) if len(pts) else 1.0
+    return max(scale, tol)
 
 
 def patch_reasons(

@@ -41,8 +41,8 @@ import numpy as np
 import shapely
 from shapely.geometry import mapping
 
-from specmap.io import read_json, to_plain
-from specmap.special.atlas import Component
+from specmap.io import read_json
+from specmap.special.atlas import Component, _plain_geometry
 from specmap.special.merge import CURVE, PATCH, POINT, TileResult
 from specmap.special.pairs import PairTable, Tie
 from specmap.strip import Window
@@ -184,7 +184,7 @@ def streamed_components(
     from scipy.sparse import coo_matrix
     from scipy.sparse.csgraph import connected_components
 
-    from specmap.special.reasons import patch_reasons
+    from specmap.special.reasons import contour_scale, patch_reasons
 
     scale = max(window.diameter, 1e-300)
     eps = 1e-9 * scale
@@ -361,8 +361,7 @@ def streamed_components(
             if pk in first_region:
                 held.setdefault(int(label[o_r + first_region[pk]]), []).append(pk)
     by_id = {c.id: c for c in table.contours}
-    cpts = np.concatenate([np.asarray(c.points, float) for c in table.contours])
-    cscale = float(np.hypot(*(cpts.max(axis=0) - cpts.min(axis=0)))) if len(cpts) else 1.0
+    cscale = contour_scale(table.contours, tol)
     comps = []
     for c in np.nonzero(present)[0].tolist():
         kind = "patch" if has_p[c] else ("curve" if has_l[c] else "point")
@@ -376,7 +375,7 @@ def streamed_components(
                     by_id,
                     tol,
                     [patches[k][1] for k in hk],
-                    scale=max(cscale, tol),
+                    scale=cscale,
                 )
             )
         comps.append(
@@ -471,4 +470,4 @@ def _feature(geom: Any, comp: str, tie: Tie, kind: str, tile: str | None) -> dic
     props: dict[str, Any] = {"component": comp, "kind": kind, "tie": tie.to_json()}
     if tile is not None:
         props["tile"] = tile
-    return {"type": "Feature", "geometry": to_plain(mapping(geom)), "properties": props}
+    return {"type": "Feature", "geometry": _plain_geometry(mapping(geom)), "properties": props}

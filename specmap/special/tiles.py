@@ -15,8 +15,8 @@ perturbation study, :mod:`specmap.perturb.execution`); each finished tile is wri
 so an interrupted map resumes with the missing tiles only. The result does not depend on
 the number of workers nor on the order in which tiles finish.
 
-This module is an I/O edge for its tile folder only (:func:`read_done_tiles`,
-:func:`write_tile`); :func:`tile_pieces` and :func:`plan_tiles` are pure.
+This module is an I/O edge for its tile folder only (:func:`write_tile`, finished tiles read back
+by :func:`specmap.special.stream.read_tile`); :func:`tile_pieces` and :func:`plan_tiles` are pure.
 
 References
 ----------
@@ -317,30 +317,6 @@ def fingerprint(
     return hashlib.sha256(blob.encode()).hexdigest()[:16]
 
 
-def read_done_tiles(folder: Path, fp: str) -> dict[str, TileResult]:
-    """Finished tiles of ``folder`` with fingerprint ``fp`` (others, torn or stale, are ignored)."""
-    out: dict[str, TileResult] = {}
-    if not folder.is_dir():
-        return out
-    for path in sorted(folder.glob("tile_*.json")):
-        try:
-            d = read_json(path)
-        except (OSError, ValueError):
-            continue
-        if (
-            isinstance(d, dict)
-            and d.get("format") == FORMAT
-            and d.get("done") is True
-            and d.get("fingerprint") == fp
-        ):
-            try:
-                res = TileResult.from_json(d["result"])
-            except (KeyError, TypeError, ValueError, shapely.errors.GEOSException):
-                continue
-            out[res.name] = res
-    return out
-
-
 def write_tile(folder: Path, fp: str, result: TileResult) -> Path:
     """Write one finished tile (atomic and fsynced; ``"done": true`` marks it complete)."""
     folder.mkdir(parents=True, exist_ok=True)
@@ -436,27 +412,11 @@ def tiled_special_set(
     from specmap.special.compute import with_reasons
 
     t_start = time.perf_counter()
-    settings, (n_a, n_b), tol = _settings(grid_f, grid_g, settings, resolution)
-    plan = plan_tiles(n_a, n_b, tiles)
-    fp = fingerprint(grid_f, grid_g, window, (n_a, n_b), tiles, settings)
-    store = Path(folder) if folder is not None else None
-    done, by_name, reused = run_tiles(
-        grid_f,
-        grid_g,
-        window,
-        (n_a, n_b),
-        plan,
-        settings,
-        fp,
-        store,
-        jobs=jobs,
-        cluster=cluster,
-        progress=progress,
-        sub=sub,
-        seed=seed,
-        keep=True,
+    run = _map_tiles(
+        grid_f, grid_g, window, tiles, settings, resolution, folder, jobs, cluster, progress, sub, seed, True
     )
-    tile_stats = [by_name[t.name] for t in plan]
+    settings, (n_a, n_b), tol, plan, done = run.settings, run.lattice, run.tol, run.plan, run.done
+    tile_stats, reused = run.tile_stats, run.reused
     t_merge = time.perf_counter()
     table = pair_table(grid_f, grid_g, settings.pairs)
     items, line_labels = merge_items(
@@ -490,6 +450,60 @@ def tiled_special_set(
         "seconds": round(time.perf_counter() - t_start, 4),
     }
     return Atlas(window, tol, settings.pairs, settings.method, (n_a, n_b), tuple(pieces), comps, stats)
+
+
+@dataclass(frozen=True)
+class _TileRun:
+    """The tiles of one map, mapped or read back (:func:`_map_tiles`)."""
+
+    settings: MapSettings
+    lattice: tuple[int, int]
+    tol: float
+    plan: tuple[Tile, ...]
+    fp: str
+    done: dict[str, TileResult | None]
+    tile_stats: list[dict[str, Any]]
+    reused: int
+
+
+def _map_tiles(
+    grid_f: Grid,
+    grid_g: Grid,
+    window: Window,
+    tiles: tuple[int, int],
+    settings: MapSettings | None,
+    resolution: int | tuple[int, int] | None,
+    folder: str | Path | None,
+    jobs: int,
+    cluster: str | None,
+    progress: Callable[[int, int], None] | None,
+    sub: int,
+    seed: int,
+    keep: bool,
+) -> _TileRun:
+    """Settings, plan and fingerprint of a tiled map, and its tiles by :func:`run_tiles` (held in
+    memory with ``keep``, else on disk in ``folder``): what both merges start from."""
+    settings, lattice, tol = _settings(grid_f, grid_g, settings, resolution)
+    plan = plan_tiles(lattice[0], lattice[1], tiles)
+    fp = fingerprint(grid_f, grid_g, window, lattice, tiles, settings)
+    store = Path(folder) if folder is not None else None
+    done, by_name, reused = run_tiles(
+        grid_f,
+        grid_g,
+        window,
+        lattice,
+        plan,
+        settings,
+        fp,
+        store,
+        jobs=jobs,
+        cluster=cluster,
+        progress=progress,
+        sub=sub,
+        seed=seed,
+        keep=keep,
+    )
+    return _TileRun(settings, lattice, tol, plan, fp, done, [by_name[t.name] for t in plan], reused)
 
 
 def _settings(
@@ -651,27 +665,11 @@ def streamed_tiled_map(
     from specmap.special.stream import iter_features, read_tile, streamed_components
 
     t_start = time.perf_counter()
-    settings, (n_a, n_b), tol = _settings(grid_f, grid_g, settings, resolution)
-    plan = plan_tiles(n_a, n_b, tiles)
-    fp = fingerprint(grid_f, grid_g, window, (n_a, n_b), tiles, settings)
-    store = Path(folder)
-    _, by_name, reused = run_tiles(
-        grid_f,
-        grid_g,
-        window,
-        (n_a, n_b),
-        plan,
-        settings,
-        fp,
-        store,
-        jobs=jobs,
-        cluster=cluster,
-        progress=progress,
-        sub=sub,
-        seed=seed,
-        keep=False,
+    run = _map_tiles(
+        grid_f, grid_g, window, tiles, settings, resolution, folder, jobs, cluster, progress, sub, seed, False
     )
-    tile_stats = [by_name[t.name] for t in plan]
+    settings, (n_a, n_b), tol, plan, fp = run.settings, run.lattice, run.tol, run.plan, run.fp
+    tile_stats, reused, store = run.tile_stats, run.reused, Path(folder)
     t_merge = time.perf_counter()
     table = pair_table(grid_f, grid_g, settings.pairs)
     names = [t.name for t in plan]
