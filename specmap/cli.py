@@ -15,10 +15,14 @@ from collections import Counter
 from collections.abc import Iterator
 from contextlib import contextmanager
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 from specmap import __version__
 from specmap.errors import SpecmapInputError, StudyError
 from specmap.report.fmt import fmt_distance, fmt_pct, fmt_point, plural, round_values
+
+if TYPE_CHECKING:
+    from specmap.study import Study
 
 REACHED = {
     "slope-one": "reached on the slope-one line a = 1/2",
@@ -136,6 +140,12 @@ def build_parser() -> argparse.ArgumentParser:
         "or both; default: study's",
     )
     sp.add_argument("--degrees", type=_degrees, help="homology degrees, e.g. 0,1,2")
+    sp.add_argument(
+        "--mesh-check",
+        metavar="FACTORS",
+        help="mesh-to-surface term: D_k again with both surfaces at these multiples of their "
+        "resolution, e.g. 2,4 (off: turn off the study's [distance] mesh_check); default: study's",
+    )
     sp.add_argument(
         "--jobs",
         type=_positive,
@@ -310,6 +320,44 @@ def remap_note(out: Path, method: str) -> str | None:
     )
 
 
+def mesh_check_flag(text: str | None, study: Study) -> tuple[int, ...] | None:
+    """``--mesh-check 2,4`` (or ``off``) checked like ``[distance] mesh_check``; None when not given.
+
+    Asked for on the command line, the term must be measurable: a side given as a mesh or grid
+    file (no resolution to raise) is a one-line error here, before any work (in the study file
+    it only makes ``mesh_term`` null, with the reason).
+    """
+    from specmap.meshterm import not_remeshable
+    from specmap.study import mesh_check_factors
+
+    if text is None:
+        return None
+    if text.strip().lower() == "off":
+        return ()
+    items: list[int | str] = []
+    for x in text.split(","):
+        try:
+            items.append(int(x))
+        except ValueError:
+            items = [text]  # not whole numbers: the check names the text
+            break
+    field = "--mesh-check (distance.mesh_check)"
+    factors = mesh_check_factors(
+        items, (study.f, study.g), file=str(study.path), field=field, form="--mesh-check 2,4"
+    )
+    why = not_remeshable(study) if factors else None
+    if why is not None:
+        label = why[0]
+        spec = study.f if label == "f" else study.g
+        raise StudyError(
+            f"{label} is a {spec.source} file, which has no resolution to raise, so it cannot be re-meshed",
+            file=str(study.path),
+            field=f"{field}: {label}.{spec.source}",
+            fix=f"drop --mesh-check, or give {label} as surface = ... with a resolution",
+        )
+    return factors
+
+
 def run(argv: list[str] | None = None) -> int:
     args = build_parser().parse_args(argv)
     from specmap.pipeline import StudyRun
@@ -352,6 +400,7 @@ def run(argv: list[str] | None = None) -> int:
         check_flag(str(study.path), "map.resolution", "--resolution", args.resolution)
     if args.verb == "perturb":
         check_flag(str(study.path), "perturb.runs", "--runs", args.runs)
+    mesh_check = mesh_check_flag(args.mesh_check, study) if args.verb == "distance" else None
     compile_notice(args.verb, show)  # after the checks: a mistake in the study file stays one line
     cores = os.cpu_count() or 1
     if getattr(args, "jobs", 1) > cores and not getattr(args, "cluster", None):
@@ -392,7 +441,9 @@ def run(argv: list[str] | None = None) -> int:
         note = None if sr.reads_stored_map(settings) else remap_note(sr.out, settings.method)
         if note and show:
             print(note, file=sys.stderr)
-        js = sr.write_distance(method=args.method, degrees=args.degrees, jobs=args.jobs)
+        js = sr.write_distance(
+            method=args.method, degrees=args.degrees, mesh_check=mesh_check, jobs=args.jobs
+        )
         sr.record()
         print(
             f"matching distance: D = {fmt_distance(js)} at (a, b) = {fmt_point(js['at'])}, "
@@ -409,6 +460,10 @@ def run(argv: list[str] | None = None) -> int:
                 print(
                     f"D_{k} not certified. {why_sentences(round_values(v['why_not'], tol))}", file=sys.stderr
                 )
+        if js.get("mesh_term") is not None:
+            print(js["mesh_term"]["sentence"])
+        elif mesh_check if mesh_check is not None else study.distance.mesh_check:
+            print(f"mesh term: {js.get('mesh_term_why_not')}", file=sys.stderr)
     elif args.verb == "perturb":
         if study.perturb is None:
             raise StudyError(

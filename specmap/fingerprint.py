@@ -121,8 +121,15 @@ def map_part(settings: Any) -> str:
 
 
 def distance_part(settings: Any) -> str:
-    """The ``distance`` part of a :class:`~specmap.settings.DistanceSettings`."""
-    return digest(asdict(settings))
+    """The ``distance`` part of a :class:`~specmap.settings.DistanceSettings`.
+
+    ``mesh_check`` enters only when set: off, the part is the one written before the setting
+    existed, so those ``distance.json`` files stay current.
+    """
+    js = asdict(settings)
+    if not js.get("mesh_check"):
+        js.pop("mesh_check", None)
+    return digest(js)
 
 
 def stamp(parts: Mapping[str, str], caveats: list[str] | tuple[str, ...] = ()) -> dict[str, Any]:

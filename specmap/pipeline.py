@@ -13,6 +13,7 @@ import dataclasses
 import datetime as _dt
 import shlex
 import sys
+import time
 from collections.abc import Callable
 from functools import cached_property
 from pathlib import Path
@@ -292,10 +293,14 @@ class StudyRun:
         return dataclasses.replace(self.study.map, **chosen)
 
     def distance_settings(
-        self, *, method: str | None = None, degrees: tuple[int, ...] | None = None
+        self,
+        *,
+        method: str | None = None,
+        degrees: tuple[int, ...] | None = None,
+        mesh_check: tuple[int, ...] | None = None,
     ) -> DistanceSettings:
         """The study's ``[distance]`` settings with the command line's overrides."""
-        given = {"method": method, "degrees": degrees}
+        given = {"method": method, "degrees": degrees, "mesh_check": mesh_check}
         return dataclasses.replace(self.study.distance, **{k: v for k, v in given.items() if v is not None})
 
     @cached_property
@@ -462,6 +467,7 @@ class StudyRun:
             from specmap.distance import matching_distance
 
             sf, sg = self.shapes
+            start = time.perf_counter()
             atlas = self.distance_atlas(settings) if settings.method in ("both", "reduced") else None
             try:
                 cache[key] = matching_distance(
@@ -476,7 +482,108 @@ class StudyRun:
                 )
             except CoreInputError as exc:  # core words ("method", no mesh, ...); the file is known here
                 raise self.located(exc, "distance") from None
+            self.__dict__.setdefault("_distance_seconds", {})[key] = time.perf_counter() - start
         return cache[key]
+
+    def distance_seconds(self, settings: DistanceSettings, *, jobs: int = 1) -> float | None:
+        """Wall seconds of :meth:`distance` for these settings (map included when made for it); None if not run."""
+        return self.__dict__.get("_distance_seconds", {}).get((settings, int(jobs)))
+
+    def mesh_term(
+        self, settings: DistanceSettings, *, jobs: int = 1, store: bool = True
+    ) -> tuple[dict[str, Any] | None, str | None]:
+        """The mesh-to-surface term of ``settings.mesh_check`` (:mod:`specmap.meshterm`): (block, why not).
+
+        Factor 1 is the study's own distance (:meth:`distance`, computed once); for each factor
+        m of ``settings.mesh_check`` the study is run again with both surfaces at m times their
+        resolution, on this run's window and with the same settings (grids and map recomputed
+        for that mesh; its tiles, if any, under ``out/mesh_term/x<m>/``). Each finished factor is
+        written to ``out/mesh_term/x<m>.json`` with the stamp of its run, so a rerun of the same
+        study reads it back instead of computing it again (``store=False``: neither read nor
+        written, e.g. for a benchmark). Returns ``(None, sentence)`` when the term is off or a
+        side cannot be re-meshed (a mesh or grid file), else ``(block, None)`` without its
+        sentence (:meth:`write_distance` adds it).
+        """
+        from specmap import meshterm
+
+        if not settings.mesh_check:
+            return None, (
+                "not measured: [distance] mesh_check is off (set mesh_check = [2, 4], or "
+                "--mesh-check 2,4, to run D_k again at 2x and 4x the mesh resolution)"
+            )
+        why = meshterm.not_remeshable(self.study)
+        if why is not None:
+            return None, why[1]
+        base = self.distance(settings, jobs=jobs)
+        sf, sg = self.shapes
+        assert sf is not None and sg is not None  # surfaces (not_remeshable)
+        rows = [
+            meshterm.MeshRow.of(
+                1,
+                base.to_json(),
+                (len(sf.values), len(sg.values)),
+                self.distance_seconds(settings, jobs=jobs),
+            )
+        ]
+        sub_settings = dataclasses.replace(settings, mesh_check=())
+        progress = self.progress("mesh term")
+        factors = settings.mesh_check
+        for i, m in enumerate(factors):
+            sub = StudyRun(
+                meshterm.remeshed(self.study, m, self.window),
+                self.out / "mesh_term" / f"x{m}",
+                show_progress=self.show_progress,
+            )
+            sub.map_jobs, sub.map_cluster = self.map_jobs, self.map_cluster
+            reduced = sub_settings.method in ("both", "reduced")
+            head = sub.stamp(
+                map_settings=sub.map_settings() if reduced else None, distance_settings=sub_settings
+            )
+            path = self.out / "mesh_term" / f"x{m}.json"
+            row = self._stored_mesh_row(path, head) if store else None
+            if self.show_progress:
+                what = "read back from " + str(path) if row is not None else "computing"
+                print(
+                    f"specmap: mesh term: {m}x the mesh resolution (f {sub.study.f.resolution}, g "
+                    f"{sub.study.g.resolution} vertices asked; factor {i + 1} of {len(factors)}): {what}",
+                    file=sys.stderr,
+                )
+            if row is None:
+                res = sub.distance(sub_settings, jobs=jobs)
+                tf, tg = sub.shapes
+                assert tf is not None and tg is not None
+                row = meshterm.MeshRow.of(
+                    m,
+                    res.to_json(),
+                    (len(tf.values), len(tg.values)),
+                    sub.distance_seconds(sub_settings, jobs=jobs),
+                )
+                if store:
+                    path.parent.mkdir(parents=True, exist_ok=True)
+                    write_json(path, {**row.to_json(), **head})
+            rows.append(row)
+            progress(i + 1, len(factors))
+        words = (
+            f"method {settings.method}, certify {settings.certify!r}, the study's window and [map] settings "
+            "at every factor"
+        )
+        return meshterm.mesh_term_block(rows, settings=words), None
+
+    @staticmethod
+    def _stored_mesh_row(path: Path, head: dict[str, Any]) -> Any:
+        """The :class:`~specmap.meshterm.MeshRow` written at ``path`` when its stamp is ``head``'s; else None."""
+        from specmap.meshterm import MeshRow
+
+        if not path.is_file():
+            return None
+        try:
+            js = read_json(path)
+            keys = ("format_version", "fingerprint", "fingerprint_parts")
+            if not isinstance(js, dict) or any(js.get(k) != head[k] for k in keys):
+                return None
+            return MeshRow.from_json(js)
+        except (OSError, ValueError, KeyError, TypeError, IndexError):
+            return None  # torn or stale: computed again
 
     def distance_atlas(self, settings: DistanceSettings):
         """The study's atlas; when the whole map does not fit its memory budget, the focused source.
@@ -593,17 +700,41 @@ class StudyRun:
         return js
 
     def write_distance(
-        self, *, method: str | None = None, degrees: tuple[int, ...] | None = None, jobs: int = 1
+        self,
+        *,
+        method: str | None = None,
+        degrees: tuple[int, ...] | None = None,
+        mesh_check: tuple[int, ...] | None = None,
+        jobs: int = 1,
     ) -> dict[str, Any]:
-        from specmap.report.figures import distance_map_figure, save_png
+        """Write ``distance.json`` (and the distance map figure); with ``mesh_check``, its ``mesh_term``.
 
-        settings = self.distance_settings(method=method, degrees=degrees)
+        The study's own distance is written first; when the mesh term runs, the file says so
+        (``mesh_term_why_not``) until the re-meshed runs are done and it is rewritten with the block.
+        """
+        from specmap.report.figures import distance_map_figure, save_png
+        from specmap.report.summary import mesh_term_sentence
+
+        settings = self.distance_settings(method=method, degrees=degrees, mesh_check=mesh_check)
         atlas = self.distance_atlas(settings) if settings.method in ("both", "reduced") else None
         result = self.distance(settings, jobs=jobs)
         js = with_simplified_bounds(result.to_json(), *self.simplification)
         # the reduced search reads the study's map (whole or focused), so its settings are a part
         map_used = self.map_settings() if settings.method in ("both", "reduced") else None
         js.update(self.stamp(map_settings=map_used, distance_settings=settings))
+        from specmap.meshterm import not_remeshable
+
+        if settings.mesh_check and not_remeshable(self.study) is None:
+            js.update(
+                mesh_term=None,
+                mesh_term_why_not="not finished: the re-meshed runs of [distance] mesh_check are running "
+                "or were stopped (a rerun reads back the finished factors)",
+            )
+            write_json(self.out / "distance.json", js)  # the study's own answer first
+        block, why = self.mesh_term(settings, jobs=jobs)  # off, or not re-meshable: (None, why)
+        if block is not None:
+            block["sentence"] = mesh_term_sentence({"mesh_term": block, "tolerance": js.get("tolerance")})
+        js.update(mesh_term=block, mesh_term_why_not=why)
         write_json(self.out / "distance.json", js)
         geo = atlas.to_geojson() if atlas is not None and not callable(atlas) else None
         if js.get("landscape"):

@@ -171,6 +171,11 @@ class DistanceSettings:
         Line budget of the whole-strip certified branch and bound (:mod:`specmap.distance.branch`), per
         node of the dense grid (``strip_budget * dense_resolution**2`` lines, about 3x the dense sweep's
         time at 2.5); it runs only for degrees the other stages leave uncertified; 0 turns it off.
+    mesh_check : tuple of int
+        Factors m > 1 of the mesh-to-surface term (issue 13 item 1): after the study's own distance,
+        the pipeline (:meth:`specmap.pipeline.StudyRun.mesh_term`) recomputes D_k with both surfaces
+        meshed at m times their resolution and records how D_k moves; empty (the default) is off.
+        :func:`~specmap.distance.matching_distance` itself does not read it.
     """
 
     method: str = "both"
@@ -190,11 +195,20 @@ class DistanceSettings:
     special_max_lines: int = 3000
     position_lines: int = 20
     strip_budget: float = 2.5
+    mesh_check: tuple[int, ...] = ()
 
     def __post_init__(self) -> None:
         _choice("method", self.method, DISTANCE_METHODS)
         _choice("certify", self.certify, CERTIFY)
         object.__setattr__(self, "degrees", tuple(int(d) for d in self.degrees))
+        factors = tuple(sorted({int(m) for m in self.mesh_check}))
+        if any(m < 2 for m in factors):
+            raise InputValueError(
+                f"mesh_check {list(self.mesh_check)!r} holds a factor below 2",
+                subject="mesh_check",
+                fix="give whole factors > 1 like [2, 4], or [] for off",
+            )
+        object.__setattr__(self, "mesh_check", factors)
 
 
 _MAP = MapSettings()

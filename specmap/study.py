@@ -36,7 +36,9 @@ Format (all tables but ``[study]``, ``[f]``, ``[g]`` optional)::
     [distance] method = "both" | "dense" | "reduced", degrees = [0, 1, 2], dense_resolution = <nodes>,
                special_max_lines = <lines of the reduced search's special-set pass>,
                certify = "max" | "each", slope_max_lines = <lines of the slope-one search per degree>,
-               strip_budget = <whole-strip search lines per dense node, 0 off>
+               strip_budget = <whole-strip search lines per dense node, 0 off>,
+               mesh_check = [2, 4] (mesh-to-surface term: D_k again at 2x and 4x the surfaces'
+               resolution; default [] = off)
     [perturb]  model = "function" | "grid", size = <sup norm>, runs = <count>, seed = <int>,
                sizes = [1e-3, 1e-2], distance = false
 
@@ -77,6 +79,69 @@ RADII_RANGE = (1e-12, 1e12)
 """Accepted radii of a surface: the grid-file coordinate range (``specmap.grids.model.COORD_LIMIT``);
 radii of 1e300 overflowed in the normality test, 1e-300 underflowed to a non-finite grid."""
 LIMITS: dict[str, tuple[int, int]] = {"map.resolution": (5, 4001), "perturb.runs": (1, 100_000)}
+SURFACE_RESOLUTION = (100, 2_000_000)
+"""Accepted ``resolution`` (mesh vertices) of a surface; a ``mesh_check`` factor must keep it inside."""
+MESH_CHECK_FACTORS = (2, 64)
+"""Accepted factors of ``[distance] mesh_check`` (and ``--mesh-check``)."""
+
+
+def mesh_check_factors(
+    value: Any, shapes: tuple[ShapeSpec, ShapeSpec], *, file: str, field: str, form: str
+) -> tuple[int, ...]:
+    """The factors of ``[distance] mesh_check`` or ``--mesh-check``, sorted, duplicates dropped.
+
+    ``value`` is a list of whole numbers in :data:`MESH_CHECK_FACTORS`; an empty list is off. The
+    largest factor times the resolution of each surface must stay within
+    :data:`SURFACE_RESOLUTION` (a mesh or grid file has no resolution: that is not checked here,
+    see :func:`specmap.meshterm.not_remeshable`).
+
+    Parameters
+    ----------
+    shapes : (ShapeSpec, ShapeSpec)
+        f and g.
+    file, field : str
+        Where the value was given (the study file, and ``distance.mesh_check`` or the flag).
+    form : str
+        How to write a good value there, for the fix (``mesh_check = [2, 4]`` or ``--mesh-check 2,4``).
+
+    Raises
+    ------
+    StudyError
+        One line naming ``file``, ``field`` and the fix.
+
+    Examples
+    --------
+    >>> s = ShapeSpec("f", "surface", resolution=1000)
+    >>> mesh_check_factors([4, 2, 4], (s, s), file="s.toml", field="distance.mesh_check", form="[2, 4]")
+    (2, 4)
+    """
+    lo, hi = MESH_CHECK_FACTORS
+    if not isinstance(value, list) or not all(isinstance(x, int) and not isinstance(x, bool) for x in value):
+        raise StudyError(
+            f"{value!r} is not a list of whole factors",
+            file=file,
+            field=field,
+            fix=f"give whole factors > 1 like {form} (an empty list is off)",
+        )
+    bad = [x for x in value if not lo <= x <= hi]
+    if bad:
+        raise StudyError(
+            f"factor {bad[0]} is out of range",
+            file=file,
+            field=field,
+            fix=f"give whole factors in [{lo}, {hi}] like {form}",
+        )
+    factors = tuple(sorted(set(value)))
+    for spec in shapes:
+        if factors and spec.source == "surface" and factors[-1] * spec.resolution > SURFACE_RESOLUTION[1]:
+            raise StudyError(
+                f"factor {factors[-1]} times {spec.label}.resolution {spec.resolution} is "
+                f"{factors[-1] * spec.resolution} vertices, above the limit {SURFACE_RESOLUTION[1]}",
+                file=file,
+                field=field,
+                fix=f"give smaller factors, or lower {spec.label}.resolution",
+            )
+    return factors
 
 
 def check_flag(study_path: str, field: str, flag: str, value: int | None) -> int | None:
@@ -378,7 +443,7 @@ def _shape(r: _Reader, data: dict, label: str, base: Path) -> ShapeSpec:
                 f"torus needs R > r, got R={radii[0]:g}, r={radii[1]:g}",
                 "give radii = [R, r] with R > r > 0",
             )
-        res = r.integer(t, label, "resolution", 3000, lo=100, hi=2_000_000)
+        res = r.integer(t, label, "resolution", 3000, lo=SURFACE_RESOLUTION[0], hi=SURFACE_RESOLUTION[1])
         route = r.choice(t, label, "route", GridSettings.route, ROUTES)
         return ShapeSpec(
             label, "surface", surface=kind, radii=radii, map=fmap, resolution=res, route=route, insist=insist
@@ -486,6 +551,7 @@ def parse_study(data: dict[str, Any], path: Path) -> Study:
             "certify",
             "slope_max_lines",
             "strip_budget",
+            "mesh_check",
         },
     )
     degrees = _DISTANCE.degrees
@@ -510,6 +576,13 @@ def parse_study(data: dict[str, Any], path: Path) -> Study:
         certify=r.choice(dt, "distance", "certify", _DISTANCE.certify, CERTIFY),
         slope_max_lines=r.integer(dt, "distance", "slope_max_lines", _DISTANCE.slope_max_lines, lo=1),
         strip_budget=_strip_budget(r, dt),
+        mesh_check=mesh_check_factors(
+            dt.get("mesh_check", list(_DISTANCE.mesh_check)),
+            (f, g),
+            file=str(path),
+            field="distance.mesh_check",
+            form="mesh_check = [2, 4]",
+        ),
     )
     pspec = None
     if "perturb" in data:

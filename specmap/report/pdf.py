@@ -59,6 +59,7 @@ from specmap.report.summary import (
     component_counts,
     degree_rows,
     grid_only,
+    mesh_term_sentence,
     ranked_notes,
     reason_sentence,
     special_lines,
@@ -298,6 +299,7 @@ def _summary_page(pg: Pager, res: dict[str, Any]) -> None:
             )
         pg.para(where_sentence(d))
         pg.para(audits_sentence(d), 8.5, color="0.25")
+        pg.para(mesh_term_sentence(d), 8.5, color="0.25")
     elif grid_only(res):
         pg.para("Not available: f and g are given as grid files, which have no mesh, so no slice diagrams.")
     else:

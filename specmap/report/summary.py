@@ -309,6 +309,69 @@ def audits_sentence(d: dict[str, Any]) -> str:
     return f"Audits: {theorem}; {position}."
 
 
+def mesh_term_sentence(d: dict[str, Any]) -> str:
+    """The mesh-to-surface term of ``distance.json`` (``mesh_term``) in one short sentence for page 1.
+
+    With the block: how far each D_k moves between the study's mesh and the finer ones
+    (max_m |D_k(m) - D_k(1)|, :mod:`specmap.meshterm`), at the digits the distance tolerance
+    resolves; without it, "not measured" and the short reason (``mesh_term_why_not``).
+
+    Examples
+    --------
+    >>> mesh_term_sentence({"tolerance": 0.004, "mesh_term": {"factors": [1, 2, 4],
+    ...     "vertices": {"f": [1442, 2892, 5762]}, "by_degree": {
+    ...     "0": {"values": [0.2702, 0.2624, 0.2467], "movement": 0.02355, "moved_most_at": 4},
+    ...     "1": {"values": [0.184, 0.1748, 0.184], "movement": 0.00923, "moved_most_at": 2},
+    ...     "2": {"values": [0.1617, 0.1633, 0.1633], "movement": 0.0016, "moved_most_at": 4}}}})
+    'Mesh term: D_0 moves by 0.024 between 1x and 4x the mesh resolution (f: 1442 to 5762 vertices); D_1 by 0.009 (1x to 2x); D_2 by 0.0016 (below the tolerance 0.004). The certified intervals hold the meshed maps: the surface values are known to about these movements (measured, not bounded).'
+    >>> mesh_term_sentence({"mesh_term": None})
+    'Mesh term: not measured (set [distance] mesh_check = [2, 4] to see how D moves with the mesh).'
+    """
+    block = d.get("mesh_term")
+    if not isinstance(block, dict):
+        why = str(d.get("mesh_term_why_not") or "")
+        if why.startswith("not finished"):
+            return "Mesh term: not finished (rerun specmap distance: the finished factors are read back)."
+        if "cannot be re-meshed" in why:
+            who = why.removeprefix("not measured: ").split(", which")[0]
+            return f"Mesh term: not measured ({who}: it cannot be re-meshed)."
+        return (
+            "Mesh term: not measured (set [distance] mesh_check = [2, 4] to see how D moves with the mesh)."
+        )
+    tol = num(d.get("tolerance"))
+    factors = list(block.get("factors") or [1])
+    vf = (block.get("vertices") or {}).get("f") or []
+    parts, big = [], False
+    for i, (k, e) in enumerate((block.get("by_degree") or {}).items()):
+        move = num(e.get("movement"))
+        span = f"1x and {e.get('moved_most_at')}x"
+        vals = [num(x) for x in e.get("values") or []]
+        if vals and all(math.isinf(x) for x in vals):
+            what = "is infinite at every resolution"
+        elif math.isinf(move):
+            what = f"changes between finite and infinite ({span})"
+            big = True
+        elif math.isfinite(tol) and move < tol:
+            what = f"{'moves ' if i == 0 else ''}by {fmt(move, 2)} (below the tolerance {fmt(tol, 2)})"
+        else:
+            big = True
+            if i == 0:
+                verts = f" (f: {int(num(vf[0]))} to {int(num(vf[-1]))} vertices)" if len(vf) > 1 else ""
+                what = f"moves by {fmt_to(move, tol)} between {span} the mesh resolution{verts}"
+            else:
+                what = f"by {fmt_to(move, tol)} ({span.replace(' and ', ' to ')})"
+        parts.append(f"D_{k} {what}")
+    if not parts:
+        return f"Mesh term: no degree recorded at {', '.join(f'{m}x' for m in factors)}."
+    tail = (
+        " The certified intervals hold the meshed maps: the surface values are known to about these "
+        "movements (measured, not bounded)."
+        if big
+        else " Every degree moves by less than the tolerance (measured, not bounded)."
+    )
+    return "Mesh term: " + "; ".join(parts) + "." + tail
+
+
 def line_equation(a: float, b: float) -> str:
     """The line r(a, b) as an equation in the (x, y) = (f1, f2) plane.
 
