@@ -150,15 +150,16 @@ def components_with(
 
     scale = max(window.diameter, 1e-300)
     eps = 1e-9 * scale
-    parts, owner = [], []
-    for k, p in enumerate(pieces):
-        for g in shapely.get_parts(p.geometry):
-            if not g.is_empty:
-                parts.append(g)
-                owner.append(k)
-    if not parts:
+    if not pieces:
         return ()
-    arr = np.array(parts, dtype=object)
+    arr, owner_idx = shapely.get_parts(
+        np.array([p.geometry for p in pieces], dtype=object), return_index=True
+    )
+    keep = ~shapely.is_empty(arr)
+    arr, owner_idx = arr[keep], owner_idx[keep]
+    if not arr.size:
+        return ()
+    parts, owner = list(arr), owner_idx.tolist()
     types = shapely.get_type_id(arr)
     line_idx = np.nonzero(types == 1)[0]
     la, lb = line_links(list(arr[line_idx]), eps)

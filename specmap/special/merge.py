@@ -314,7 +314,10 @@ def _merged_curves(
             for r in m[1:]:
                 uf.union(first, int(labels[k[r]]))
             line_labels.append(first)
-        lines.extend(shapely.linestrings(c) for c in joined)
+        if joined:
+            sizes = np.array([len(c) for c in joined], dtype=np.int64)
+            made = shapely.linestrings(np.vstack(joined), indices=np.repeat(np.arange(sizes.size), sizes))
+            lines.extend(made.tolist())
         line_codes.extend(groups)
     roots = np.array([uf.find(x) for x in line_labels], dtype=np.int64)
     order = np.argsort(np.array(line_codes, dtype=np.int64), kind="stable")
@@ -340,22 +343,25 @@ def merge_items(
     """
     curve_items: list[TileItem] = []
     curve_labels: list[np.ndarray] = []
-    points: dict[int, list[Any]] = {}
+    point_codes: list[int] = []
+    point_geoms: list[Any] = []
     patches: dict[int, list[Any]] = {}
     offset = 0
     for res in results:
-        top = 0
+        tile_labels: list[int] = []
         for it in res.items:
             if it.kind == CURVE:
                 curve_items.append(it)
-                lab = np.asarray(it.labels, dtype=np.int64)
-                curve_labels.append(lab + offset)
-                top = max(top, int(lab.max()) + 1 if lab.size else 0)
+                tile_labels.extend(it.labels)
             elif it.kind == POINT:
-                points.setdefault(it.code, []).extend(shapely.get_parts(it.geometry))
+                point_codes.append(it.code)
+                point_geoms.append(it.geometry)
             else:
                 patches.setdefault(it.code, []).append(it.geometry)
-        offset += top
+        lab = np.asarray(tile_labels, dtype=np.int64)
+        curve_labels.append(lab + offset)
+        offset += int(lab.max()) + 1 if lab.size else 0
+    points = _points_by_code(point_codes, point_geoms)
     labels = np.concatenate(curve_labels) if curve_labels else np.zeros(0, np.int64)
     curves, line_labels = _merged_curves(curve_items, labels, 1e-10 * diameter)
     del curve_items
@@ -375,6 +381,18 @@ def merge_items(
         if not by_parts[key].is_empty:
             items.append((code, PATCH, by_parts[key]))
     return items, line_labels
+
+
+def _points_by_code(codes: list[int], geoms: list[Any]) -> dict[int, list[Any]]:
+    """The single points of the tiles' point items per tie code, in the order the items came."""
+    if not geoms:
+        return {}
+    parts, idx = shapely.get_parts(np.array(geoms, dtype=object), return_index=True)
+    pc = np.asarray(codes, dtype=np.int64)[idx]
+    order = np.argsort(pc, kind="stable")
+    uc, first = np.unique(pc[order], return_index=True)
+    bounds = np.append(first, order.size)
+    return {int(c): list(parts[order[bounds[i] : bounds[i + 1]]]) for i, c in enumerate(uc.tolist())}
 
 
 def as_pieces(table: PairTable, items: list[tuple[int, str, Any]]) -> list[TiePiece]:

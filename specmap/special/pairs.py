@@ -165,6 +165,15 @@ class PairTable:
         return np.where(self.cross, CROSS, SAME).astype(np.int64)
 
     @cached_property
+    def pair_names(self) -> list[tuple[str, str]]:
+        """The sorted contour ids of every pair (as in a canonical :class:`Tie`)."""
+        ids = self.ids
+        return [
+            tuple(sorted((ids[i], ids[j])))
+            for i, j in zip(self.first.tolist(), self.second.tolist(), strict=True)
+        ]
+
+    @cached_property
     def rules(self) -> RoleRules:
         return role_rules(self.mode)
 
@@ -200,12 +209,19 @@ class PairTable:
     def ties(self, codes: np.ndarray) -> list[Tie]:
         """:meth:`tie` of many codes (one decode)."""
         cond, p, q = (x.tolist() for x in self.decode(np.asarray(codes, np.int64)))
-        ids = self.ids
-        f, g = self.first.tolist(), self.second.tolist()
-        return [
-            Tie.make((ids[f[pp]], ids[g[pp]]), (ids[f[qq]], ids[g[qq]]), CONDITIONS[c])
-            for c, pp, qq in zip(cond, p, q, strict=True)
-        ]
+        if not cond:
+            return []
+        if min(cond) < 0 or max(cond) >= len(CONDITIONS):
+            raise ValueError(f"tie codes out of range for {self.n_pairs} pairs")
+        # the canonical form of :meth:`Tie.make`, with each pair's sorted ids made once
+        named = self.pair_names
+        out = []
+        for c, pp, qq in zip(cond, p, q, strict=True):
+            a, b = named[pp], named[qq]
+            if c == 0 and b < a:  # "equal": the pairs in order
+                a, b = b, a
+            out.append(Tie((a, b), CONDITIONS[c]))
+        return out
 
     def tie_contours(self, codes: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """Contour indices (k, 4) = (P.first, P.second, Q.first, Q.second) and factors (1 or 2).
