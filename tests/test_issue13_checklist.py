@@ -78,6 +78,19 @@ CHECKLIST: dict[str, list[str]] = {
         "test_certify.py::test_strip_search_two_ellipsoids_closed_form",  # closed form minus the mesh term
         "test_certify.py::test_position_audit_mesh_aware_green_and_broken_grids_red",
     ],
+    # [distance] mesh_check / --mesh-check: D_k again at m x the surfaces' resolution, distance.json mesh_term
+    "1. mesh-to-surface term measured by re-meshing at 2x and 4x on surface studies, how D moves reported": [
+        # closed form per mesh (1.5 max_v |w_1|, CDFFL13 stability + the slope-one line) inside each factor's interval
+        "test_mesh_term.py::test_each_factor_is_the_closed_form_of_its_mesh_and_the_movement_is_their_spread",
+        "test_mesh_term.py::test_factor_values_agree_with_an_independent_run_of_the_remeshed_study",
+        "test_mesh_term.py::test_movement_is_the_largest_move_from_the_first_factor",
+        "test_mesh_term.py::test_a_rerun_reads_back_finished_factors_and_recomputes_a_torn_or_stale_one",
+        "test_mesh_term.py::test_a_mesh_file_shape_gives_null_with_why_not",
+        "test_mesh_term.py::test_bad_study_settings_give_the_one_line_error",
+        "test_mesh_term.py::test_cli_flag_bad_values_and_a_mesh_file_are_one_line_errors",
+        "test_mesh_term.py::test_cli_flag_runs_the_term_and_prints_its_sentence",
+        "test_mesh_term.py::test_report_first_page_states_the_term_or_not_measured",
+    ],
     # -- What to build, 2: audits that can fail, both ways --------------------------------------------
     "2. theorem audit: reduced above the certified upper bound is flagged": [
         "test_certify.py::test_audit_flags_a_reduced_search_built_to_fail",
@@ -282,11 +295,6 @@ CHECKLIST: dict[str, list[str]] = {
 }
 
 MISSING: dict[str, str] = {
-    "1. mesh-to-surface term measured by re-meshing at 2x and 4x on surface studies, how D moves reported": (
-        "measured for the demo only, by a benchmark (tests/benchmarks/bench_certify.py --mesh, "
-        "results_certify_mesh.md, quoted in README); distance.json and the report carry no re-meshing "
-        "result for a user's study, so there is nothing for a test to check; needs code (a re-meshing stage)"
-    ),
     "2. the demo and shipped studies are green where the theory holds, red only where it does not": (
         "measured, not a test (study runs of a minute each): the demo is green (theorem check passed, "
         "position check 100% of 94 coordinates, mesh-aware; session 9 demo run), pebbles green (100% of "

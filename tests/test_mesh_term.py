@@ -278,3 +278,27 @@ def test_cli_flag_runs_the_term_and_prints_its_sentence(tmp_path):
     before = asdict(study.distance)
     assert before.pop("mesh_check") == ()
     assert distance_part(study.distance) == digest(before)
+
+
+def test_report_first_page_states_the_term_or_not_measured(measured, tmp_path):
+    # the report reads distance.json only: page 1 carries the sentence of mesh_term, else "not measured"
+    from pypdf import PdfReader
+
+    from specmap.report.pdf import build_report
+
+    run, js, _ = measured
+    run.write_grids()
+    run.record()
+    pdf = build_report(run.out, tmp_path / "r.pdf")
+    page1 = " ".join(PdfReader(str(pdf)).pages[0].extract_text().split())
+    move = js["mesh_term"]["by_degree"]["0"]["movement"]
+    assert "Mesh term: D_0 moves by" in page1 and "between 1x and 4x the mesh resolution" in page1, page1
+    assert f"{move:.3f}" in page1  # to the digits the tolerance (0.004) resolves
+    assert "measured, not bounded" in page1
+    data = json.loads((run.out / "distance.json").read_text())
+    data.update(mesh_term=None, mesh_term_why_not=None)
+    (run.out / "distance.json").write_text(json.dumps(data))
+    page1 = " ".join(
+        PdfReader(str(build_report(run.out, tmp_path / "r2.pdf"))).pages[0].extract_text().split()
+    )
+    assert "Mesh term: not measured" in page1, page1
