@@ -259,6 +259,53 @@ def test_workers_do_not_change_the_atlas():
     assert_same_atlas(one, got)
 
 
+def test_a_small_map_on_two_dask_workers_is_the_one_process_map():
+    # construction, as above, small enough for every CI run: the tiles travel back from the
+    # workers pickled in columns (TileResult.__reduce__) and the largest start first (tile_costs)
+    distributed = pytest.importorskip("distributed", reason="dask.distributed is not installed")
+    gf, gg = random_pair(8, 5)
+    ms = MapSettings(resolution=21)
+    one = tiled_special_set(gf, gg, WINDOW, tiles=(2, 2), settings=ms)
+    with distributed.LocalCluster(
+        n_workers=2, threads_per_worker=1, processes=True, dashboard_address=None
+    ) as c:
+        got = tiled_special_set(gf, gg, WINDOW, tiles=(2, 2), settings=ms, cluster=c.scheduler_address)
+    assert_same_atlas(one, got)
+
+
+def test_a_tile_result_pickles_to_the_same_items_bit_for_bit():
+    # round trip: the columns (one WKB array, flat cuts and labels) give back every item exactly
+    import pickle
+
+    gf, gg = random_pair(8, 6)
+    lattice = (21, 21)
+    settings = MapSettings(resolution=21, tol=1e-9)
+    tile = plan_tiles(*lattice, (2, 2))[0]
+    res = tiles_mod.tile_pieces(gf, gg, WINDOW, lattice, tile, settings)
+    kinds = {it.kind for it in res.items}
+    assert "curve" in kinds
+    back = pickle.loads(pickle.dumps(res))
+    assert back.name == res.name and back.stats == res.stats and len(back.items) == len(res.items)
+    for a, b in zip(res.items, back.items, strict=True):
+        assert (a.code, a.kind, a.cuts, a.labels) == (b.code, b.kind, b.cuts, b.labels)
+        assert shapely.to_wkb(a.geometry) == shapely.to_wkb(b.geometry)
+
+
+def test_tile_costs_rank_the_tiles_by_their_crossings():
+    # the coarse count against the tiles' own crossing counts (the full detection in each tile):
+    # a rank correlation, since the coarse lattice sees a curve only where it crosses its edges
+    from scipy.stats import spearmanr
+
+    gf, gg = random_pair(3, 20)
+    lattice = (31, 31)
+    settings = MapSettings(resolution=31, tol=1e-9)
+    plan = plan_tiles(*lattice, (3, 3))
+    cost = tiles_mod.tile_costs(gf, gg, WINDOW, lattice, plan, settings)
+    real = [tiles_mod.tile_pieces(gf, gg, WINDOW, lattice, t, settings).stats["crossings"] for t in plan]
+    assert spearmanr(cost, real)[0] >= 0.9
+    assert int(np.argmax(real)) in np.argsort(cost)[-2:]
+
+
 def test_memory_sizes():
     assert parse_memory("6GB") == 6e9
     assert parse_memory("512 mb") == 512e6

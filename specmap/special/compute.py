@@ -16,6 +16,7 @@ from collections.abc import Callable
 import numpy as np
 import shapely
 
+from specmap.gcpause import paused
 from specmap.grids.model import Grid
 from specmap.settings import MapSettings
 from specmap.special.atlas import Atlas, Component, TiePiece
@@ -59,6 +60,7 @@ def with_reasons(
     return tuple(out)
 
 
+@paused
 def special_set(
     grid_f: Grid,
     grid_g: Grid,

@@ -94,6 +94,48 @@ class TileResult:
     def from_json(d: dict[str, Any]) -> TileResult:
         return TileResult(str(d["name"]), tuple(TileItem.from_json(x) for x in d["items"]), dict(d["stats"]))
 
+    def __reduce__(self) -> tuple[Any, tuple[Any, ...]]:
+        """Pickle in columns (one WKB array, flat cuts and labels): what a worker sends back.
+
+        Pickling the items one by one costs a shapely object each way; in columns a tile of
+        150k items goes through ``pickle`` about 4x faster, with the same doubles (WKB).
+        """
+        items = self.items
+        n_lines = np.array([len(it.cuts) for it in items], dtype=np.int64)
+        n_labels = np.array([len(it.labels) for it in items], dtype=np.int64)
+        columns = (
+            np.array([it.code for it in items], dtype=np.int64),
+            [it.kind for it in items],
+            shapely.to_wkb(np.array([it.geometry for it in items], dtype=object)),
+            n_lines,
+            np.array([c for it in items for c in it.cuts], dtype=bool).reshape(-1, 2),
+            n_labels,
+            np.array([x for it in items for x in it.labels], dtype=np.int64),
+        )
+        return (_tile_result, (self.name, columns, self.stats))
+
+
+def _tile_result(name: str, columns: tuple[Any, ...], stats: dict[str, Any]) -> TileResult:
+    """Inverse of :meth:`TileResult.__reduce__`."""
+    from specmap.gcpause import collector_paused
+
+    with collector_paused():  # 150k small objects at once (specmap.gcpause): 3.1 s -> 0.5 s a tile
+        return _unpacked(name, columns, stats)
+
+
+def _unpacked(name: str, columns: tuple[Any, ...], stats: dict[str, Any]) -> TileResult:
+    codes, kinds, wkb, n_lines, cuts, n_labels, labels = columns
+    geoms = shapely.from_wkb(wkb) if len(wkb) else []
+    cut_rows = [(bool(a), bool(b)) for a, b in cuts.tolist()]
+    label_list = labels.tolist()
+    c0 = np.concatenate([[0], np.cumsum(n_lines)]).tolist()
+    l0 = np.concatenate([[0], np.cumsum(n_labels)]).tolist()
+    items = tuple(
+        TileItem(int(c), k, g, tuple(cut_rows[c0[i] : c0[i + 1]]), tuple(label_list[l0[i] : l0[i + 1]]))
+        for i, (c, k, g) in enumerate(zip(codes.tolist(), kinds, geoms, strict=True))
+    )
+    return TileResult(name, items, stats)
+
 
 def tie_codes(table: PairTable, ties: Sequence[Tie]) -> np.ndarray:
     """Tie codes of ``table`` for canonical ties (inverse of :meth:`PairTable.ties`).
