@@ -467,6 +467,29 @@ def test_dask_local_cluster_matches_joblib(tmp_path):
     assert a == b
 
 
+def _pid(_: int) -> int:
+    import os
+
+    return os.getpid()
+
+
+def test_a_one_worker_cluster_runs_the_tasks_on_its_worker():
+    # construction: joblib's dask backend ran every task in the calling process when the cluster
+    # had one worker thread; the tasks must run in the worker process (another pid)
+    import os
+
+    from joblib import delayed
+
+    from specmap.perturb.execution import _results
+
+    distributed = pytest.importorskip("distributed", reason="dask.distributed is not installed")
+    with distributed.LocalCluster(
+        n_workers=1, threads_per_worker=1, processes=True, dashboard_address=None
+    ) as cluster:
+        pids = set(_results([delayed(_pid)(i) for i in range(3)], 1, cluster.scheduler_address))
+    assert len(pids) == 1 and os.getpid() not in pids
+
+
 def test_cluster_without_dask_is_a_one_line_error(tmp_path, monkeypatch):
     # construction: dask is an optional extra; its absence is a StudyError with the fix.
     from specmap.errors import StudyError

@@ -81,7 +81,7 @@ def perturbation_study(
     jobs : int
         joblib worker processes (results do not depend on it).
     cluster : str, optional
-        ``"tcp://host:port"``: run on a Dask cluster through joblib's dask backend.
+        ``"tcp://host:port"``: run on the workers of a Dask cluster (:func:`specmap.perturb.execution._on_cluster`).
     progress : callable(done, total), optional
 
     Returns

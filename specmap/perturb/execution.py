@@ -44,10 +44,41 @@ def _results(tasks: list, jobs: int, cluster: str | None) -> Iterator[dict[str, 
             fix="start a scheduler (dask scheduler) or check the address tcp://host:port",
         ) from None
     try:
-        with joblib.parallel_backend("dask"):
-            yield from joblib.Parallel(n_jobs=-1, return_as="generator_unordered")(tasks)
+        yield from _on_cluster(client, tasks)
     finally:
         client.close()
+
+
+_PLAIN = (int, float, str, bool, type(None))
+
+
+def _on_cluster(client: Any, tasks: list) -> Iterator[Any]:
+    """Results of joblib ``tasks`` run on the workers of a Dask ``client``, as they finish.
+
+    Submitted to Dask itself (not through joblib's dask backend, which runs every task in
+    this process when the cluster has a single worker thread), in the order given (Dask
+    starts earlier submissions first); arguments that are not plain values are scattered
+    once each and shared by the tasks (the grids of a map, the base of a run set).
+    """
+    from distributed import as_completed
+
+    scattered: dict[int, Any] = {}
+
+    def ship(x: Any) -> Any:
+        if isinstance(x, _PLAIN) or (isinstance(x, tuple) and all(isinstance(y, _PLAIN) for y in x)):
+            return x
+        if id(x) not in scattered:
+            scattered[id(x)] = client.scatter(x, hash=False, broadcast=False)
+        return scattered[id(x)]
+
+    futures = [
+        client.submit(fn, *[ship(a) for a in args], pure=False, **{k: ship(v) for k, v in kwargs.items()})
+        for fn, args, kwargs in tasks
+    ]
+    for fut in as_completed(futures):
+        result = fut.result()
+        fut.release()
+        yield result
 
 
 def size_tag(size: float) -> str:
@@ -78,7 +109,7 @@ def run_study(
     jobs : int
         joblib workers (processes); results do not depend on it.
     cluster : str, optional
-        ``"tcp://host:port"`` of a Dask scheduler: run through joblib's dask backend instead.
+        ``"tcp://host:port"`` of a Dask scheduler: run on its workers instead (tasks submitted to Dask directly).
     progress : callable(done, total), optional
     sizes : sequence of float, optional
         A sweep: every other size is its own run set under ``folder/sweep/size-<size>/`` (same
