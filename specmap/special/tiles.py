@@ -674,7 +674,6 @@ def _tiles_stats(
     }
 
 
-@paused
 def streamed_tiled_map(
     grid_f: Grid,
     grid_g: Grid,

@@ -9,7 +9,9 @@ evaluator per computation (no line is shared between them), it times
   (:mod:`specmap.distance.top_degree`, in the slope-one search and over the whole strip) switched
   off: what the demo ran before this change;
 - **after, max**: ``certify = "max"`` with the closed form (the default of every study);
-- **after**: the study's own settings (the demo sets ``certify = "each"``).
+- **after**: the study's own settings (the demo sets ``certify = "each"``);
+- **baseline**: the dense sweep alone on 41 x 41 lines of the window, degrees 0-2 (issue 13's
+  "today's dense sweep"), timed first; every row gives its time as a multiple of it.
 
 Per computation: lines, seconds, and per degree the interval and whether it is certified (else the
 reason). Writes ``results_demo_certify.md`` next to this file.
@@ -26,6 +28,8 @@ from pathlib import Path
 
 import specmap.grids  # noqa: F401  (import order: grids before shapes)
 from specmap.distance import compose, matching_distance, reduced
+from specmap.distance.dense import dense_sweep
+from specmap.distance.evaluator import LineEvaluator
 from specmap.pipeline import StudyRun
 from specmap.study import load_study
 
@@ -45,13 +49,17 @@ def without_closed_form():
         compose.fold_top, reduced._top_index = saved
 
 
-def _row(name: str, res, seconds: float) -> str:
+def _row(name: str, res, seconds: float, dense_s: float) -> str:
     cells = []
     for k, e in sorted(res.by_degree.items()):
         lo, hi = e["bounds"]
         state = "yes" if e["certified"] else f"no ({e['why_not']})"
         cells.append(f"D_{k} in [{lo:.5f}, {hi:.5f}] {state}")
-    return f"| {name} | {res.meta['lines_total']} | {seconds:.1f} | " + "; ".join(cells) + " |"
+    return (
+        f"| {name} | {res.meta['lines_total']} | {seconds:.1f} | {seconds / dense_s:.2f} | "
+        + "; ".join(cells)
+        + " |"
+    )
 
 
 def main(path: str | Path = DEMO) -> str:
@@ -63,6 +71,18 @@ def main(path: str | Path = DEMO) -> str:
     t = time.perf_counter()
     atlas = run.distance_atlas(base)
     atlas_s = time.perf_counter() - t
+    ev = LineEvaluator(sf, sg, tuple(base.degrees))
+    t = time.perf_counter()
+    dense = dense_sweep(ev, run.window, resolution=41, bounds=(sf.value_bounds(), sg.value_bounds()))
+    dense_s = time.perf_counter() - t
+    dense_row = (
+        f"| dense sweep alone, 41 x 41 (baseline) | {dense.lines} | {dense_s:.1f} | 1.00 | "
+        + "; ".join(
+            f"D_{k} in [{dense.best[j][0]:.5f}, {dense.upper(j):.4f}] no" for j, k in enumerate(base.degrees)
+        )
+        + " |"
+    )
+    print(dense_row, flush=True)
     runs = [
         ("before (certify max, no closed form of h_2)", dataclasses.replace(base, certify="max"), True),
         ("after, certify max", dataclasses.replace(base, certify="max"), False),
@@ -77,7 +97,7 @@ def main(path: str | Path = DEMO) -> str:
         else:
             res = matching_distance(sf, sg, settings=s, window=run.window, atlas=atlas, grids=run.grids)
         secs.append(time.perf_counter() - t)
-        rows.append(_row(name, res, secs[-1]))
+        rows.append(_row(name, res, secs[-1], dense_s))
         print(rows[-1], flush=True)
     load1 = os.getloadavg()[0]
     text = "\n".join(
@@ -88,8 +108,9 @@ def main(path: str | Path = DEMO) -> str:
             f"{load1:.1f} at the end; the runs were niced. One process, one job; the atlas is built once "
             f"({atlas_s:.1f} s, not in the rows) and each row has a fresh slice evaluator.",
             "",
-            "| computation | lines | seconds | per degree |",
-            "|---|---:|---:|---|",
+            "| computation | lines | seconds | x dense time | per degree |",
+            "|---|---:|---:|---:|---|",
+            dense_row,
             *rows,
             "",
             f"Same-run ratio after / before: {secs[2] / secs[0]:.2f} (study's settings), "

@@ -58,6 +58,46 @@ print(json.dumps({{"seconds": dt, "peak_rss": resource.getrusage(resource.RUSAGE
 """
 
 
+TILE_CHILD = r"""
+import json, sys, time
+sys.path.insert(0, {tests!r})
+from gridgen import random_pair
+from specmap.settings import MapSettings
+from specmap.special import special_set
+from specmap.special.tiles import _settings, plan_tiles, tile_pieces
+from specmap.strip import Window
+w = Window((0.05, 0.95), (-1.0, 1.0))
+gf, gg = random_pair(3, {n})
+s, _ = random_pair(1, 4)
+special_set(s, _, w, resolution=9)
+settings, lattice, _tol = _settings(gf, gg, MapSettings(resolution={res}), None)
+tile = plan_tiles(*lattice, (2, 2))[{k}]
+t = time.perf_counter()
+tile_pieces(gf, gg, w, lattice, tile, settings)
+print(json.dumps({{"seconds": time.perf_counter() - t}}))
+"""
+
+
+def two_process_ceiling(n: int, res: int, k: int = 2) -> tuple[float, float, float]:
+    """Seconds of 2 x 2 tile ``k`` mapped alone, and by each of two processes at once (same tile).
+
+    What this machine gives two workers at best: if two copies of one tile take ``x`` times
+    the time of one, two workers are at most ``2 / x`` times one worker on the tile phase.
+    """
+    code = TILE_CHILD.format(tests=str(HERE.parent), n=n, res=res, k=k)
+
+    def start() -> subprocess.Popen:
+        return subprocess.Popen([sys.executable, "-c", code], stdout=subprocess.PIPE, text=True)
+
+    def seconds(p: subprocess.Popen) -> float:
+        out, _ = p.communicate()
+        return float(json.loads(out.strip().splitlines()[-1])["seconds"])
+
+    alone = seconds(start())
+    a, b = start(), start()
+    return alone, seconds(a), seconds(b)
+
+
 def run_case(n: int, res: int, tiles: tuple[int, int], workers: int = 0, streamed: bool = False) -> dict:
     code = CHILD.format(
         tests=str(HERE.parent), n=n, res=res, na=tiles[0], nb=tiles[1], workers=workers, streamed=streamed
@@ -110,6 +150,13 @@ def main(argv: list[str]) -> None:
             f"{(r['seconds'] / r['crossings']) / (base['seconds'] / base['crossings']):.2f} | "
             f"{r['peak_rss'] / base['peak_rss']:.2f} |"
         )
+    alone, a, b = two_process_ceiling(n, res)
+    lines += [
+        "",
+        f"Two processes at once on this machine: tile 2 of the 2 x 2 plan alone {alone:.1f} s; two copies "
+        f"started together {a:.1f} s and {b:.1f} s ({max(a, b) / alone:.2f}x), so two workers are at most "
+        f"{2 * alone / max(a, b):.2f}x one worker on the tile phase here, before the merge.",
+    ]
     (HERE / "results_tiles.md").write_text("\n".join(lines) + "\n")
     print("\n".join(lines))
 
