@@ -55,9 +55,9 @@ MERGED_BYTES_PER_CROSSING = 160.0
 STREAMED_BYTES_PER_CROSSING = 4.0
 MIN_TILE_CELLS = 4  # smallest tile side (cells) the plan goes down to
 # Rough work per estimated crossing on one core, for the plan's time estimate: 40 random contours at
-# 41 x 41 (tests/benchmarks/results_tiles.md, quiet 2-core machine) took 50.0 s in one piece, 75.6 s
-# in 2 x 2 tiles held in memory and 202.2 s streamed, for 10.66 M crossings of the one-piece map
-SECONDS_PER_CROSSING = {"one piece": 4.7e-6, "tiles": 7.1e-6, "streamed": 19e-6}
+# 41 x 41 (tests/benchmarks/results_tiles.md, quiet 2-core machine) took 41.4 s in one piece, 48.2 s
+# in 2 x 2 tiles held in memory and 176.0 s streamed, for 10.66 M crossings of the one-piece map
+SECONDS_PER_CROSSING = {"one piece": 3.9e-6, "tiles": 4.5e-6, "streamed": 16.5e-6}
 UNITS = {
     "": 1.0,
     "B": 1.0,
