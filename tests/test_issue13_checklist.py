@@ -309,8 +309,11 @@ MISSING: dict[str, str] = {
         "term (within 3 x the largest edge change), so it is not exact for the lower-star slices"
     ),
     "Performance: certification on the demo pair to delta = 1e-3 in at most 3x the dense sweep's time": (
-        "a benchmark, not a test (tests/benchmarks/bench_certify.py, results_certify.md, README): per "
-        "degree alone 2.45x / 2.80x / 2.34x (met), all three degrees in one search 5.79x (not met)"
+        "met, shown by a benchmark, not a test (speed is never asserted in tests): "
+        "tests/benchmarks/bench_demo_certify.py, results_demo_certify.md, README: the demo's distance stage "
+        "(closed-form degree 2, reduced search with certify = each) certifies D_0, D_1, D_2 to delta in "
+        "1.47x the dense sweep's time, same run (12.3 s vs 8.3 s); whole-strip searches per degree "
+        "2.45x / 2.80x / 2.34x, all three in one whole-strip search 5.79x (bench_certify.py)"
     ),
 }
 

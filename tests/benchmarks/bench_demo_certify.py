@@ -104,8 +104,8 @@ def main(path: str | Path = DEMO) -> str:
         [
             f"# Distance stage of {Path(path).name}: before and after (same run)",
             "",
-            f"Shared machine (2 cores, other sessions running): load average {load0:.1f} at the start, "
-            f"{load1:.1f} at the end; the runs were niced. One process, one job; the atlas is built once "
+            f"Shared 2-core machine: load average {load0:.1f} at the start, "
+            f"{load1:.1f} at the end. One process, one job; the atlas is built once "
             f"({atlas_s:.1f} s, not in the rows) and each row has a fresh slice evaluator.",
             "",
             "| computation | lines | seconds | x dense time | per degree |",
