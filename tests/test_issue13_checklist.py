@@ -121,6 +121,12 @@ CHECKLIST: dict[str, list[str]] = {
         "test_certify.py::test_position_audit_mesh_aware_green_and_broken_grids_red",
         "test_certify.py::test_position_audit_green_on_a_smooth_pair_red_without_a_contour",
     ],
+    "2. the demo and shipped studies are green where the theory holds, red only where it does not": [
+        # every shipped study with slices (the ladder is grid-only: no slices, no audits)
+        "test_shipped_audits.py::test_position_audit_is_green_on_the_shipped_study",
+        "test_shipped_audits.py::test_distance_audits_are_green_on_the_shipped_study",
+        "test_certify.py::test_position_audit_leaves_out_sub_two_delta_pairs_and_is_green_on_the_knob_meshes",
+    ],
     # -- What to build, 3: tolerance sanity -------------------------------------------------------------
     "3. D < 3x tolerance: the result says the value is not resolved and what to raise (mesh, route)": [
         "test_certify.py::test_resolution_check_names_what_to_raise",
@@ -295,14 +301,6 @@ CHECKLIST: dict[str, list[str]] = {
 }
 
 MISSING: dict[str, str] = {
-    "2. the demo and shipped studies are green where the theory holds, red only where it does not": (
-        "measured, not a test (study runs of a minute each): the demo is green (theorem check passed, "
-        "position check 100% of 94 coordinates, mesh-aware; session 9 demo run), pebbles green (100% of "
-        "102), knob green (100% of 80, 286 coordinates of sub-2-delta pairs left out; it was 94.5% of 366 "
-        "before they were: "
-        "test_certify.py::test_position_audit_leaves_out_sub_two_delta_pairs_and_is_green_on_the_knob_meshes); "
-        "ring and ladder not re-run"
-    ),
     "2. position audit against the PL grid of the same mesh": (
         "the issue offers it as an alternative ('or'); the mesh-aware tolerance was built instead; "
         "tests/test_piecewise_grid.py::test_position_theorem_audit shows the PL grid also needs a mesh "
