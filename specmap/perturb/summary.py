@@ -56,7 +56,8 @@ def wilson_interval(successes: int, trials: int, z: float = Z95) -> tuple[float,
     return lo, hi
 
 
-def _mean_max(values: Sequence[float]) -> dict[str, float | None]:
+def _mean_max(values: Sequence[float | None]) -> dict[str, float | None]:
+    """Mean and maximum of the finite values (None and non-finite left out; both None when none is left)."""
     vals = [float(v) for v in values if v is not None and math.isfinite(float(v))]
     if not vals:
         return {"mean": None, "max": None}
