@@ -695,6 +695,7 @@ class StudyRun:
             "features",
             atlas.iter_features_streamed(),
             plain=True,
+            compact=True,
         )
         save_png(special_figure(js, atlas.shape_features()), self.out / "figures" / "special.png")
         return js

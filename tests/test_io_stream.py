@@ -6,6 +6,7 @@ reference; the streamed writer must agree byte for byte on arbitrary JSON values
 
 from __future__ import annotations
 
+import json
 import os
 import stat
 from pathlib import Path
@@ -80,6 +81,29 @@ def test_lazy_geojson_features_write_the_same_bytes(tmp_path: Path):
         write_json(tmp_path / "b.geojson", atlas.to_geojson())
         assert (tmp_path / "a.geojson").read_bytes() == (tmp_path / "b.geojson").read_bytes()
     assert atlas.counts()["patch"] >= 1 and atlas.stats["tie_curves"] > 0  # curves over the patch
+
+
+def test_compact_geojson_is_the_same_json_one_feature_a_line(tmp_path: Path):
+    # reference: json.loads of json.dumps(indent=2) of the whole FeatureCollection (write_json); the
+    # map writes special.geojson compact (one feature a line), lazily made parts included
+    from specmap.special import special_set
+    from specmap.strip import Window
+    from tests.gridgen import random_pair
+
+    gf, gg = random_pair(1, 14)
+    atlas = special_set(gf, gg, Window((0.05, 0.95), (-1.0, 1.0)), resolution=31, reading="contours")
+    lazy = atlas.iter_features_streamed()
+    write_json_streamed(
+        tmp_path / "a.geojson", atlas.geojson_head(), "features", lazy, plain=True, compact=True
+    )
+    write_json(tmp_path / "b.geojson", atlas.to_geojson())
+    a, b = (tmp_path / "a.geojson").read_bytes(), (tmp_path / "b.geojson").read_bytes()
+    assert json.loads(a) == json.loads(b) and len(json.loads(a)["features"]) > 0
+    assert len(a) < 0.5 * len(b)
+    lines = a.decode().splitlines()
+    assert sum(1 for line in lines if line.lstrip().startswith('{"type":"Feature"')) == len(
+        json.loads(a)["features"]
+    )
 
 
 def test_interrupted_stream_leaves_no_file(tmp_path: Path):

@@ -737,6 +737,7 @@ def streamed_tiled_map(
             {**atlas.geojson_head(), **(head or {})},
             "features",
             iter_features(names, load, table, got),
+            compact=True,
         )
     stats["tiles"] = _tiles_stats(tiles, plan, reused, tile_stats, t_merge)
     stats["seconds"] = round(time.perf_counter() - t_start, 4)
