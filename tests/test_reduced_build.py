@@ -20,7 +20,7 @@ from test_distance import ellipsoid_pair, shapes
 from specmap.distance.boxes import BoxBound, box_star_range
 from specmap.distance.candidates import CROSSING, special_candidates
 from specmap.distance.evaluator import LineEvaluator
-from specmap.distance.kernels import sample_paths
+from specmap.distance.kernels import near_line_bound, sample_paths
 from specmap.distance.paths import sample_path
 from specmap.special import special_set
 from specmap.strip import Window, default_window, star_values
@@ -43,6 +43,25 @@ def test_compiled_resampling_is_the_per_path_numpy_one():
     got, pid = sample_paths(np.concatenate(paths), off, 1 / 37)
     for k, p in enumerate(paths):
         np.testing.assert_array_equal(got[pid == k], sample_path(p, 1 / 37))
+
+
+def test_compiled_near_line_bound_is_the_numpy_form_bit_for_bit():
+    # reference: the numpy form LocalBound.many had (gather, |difference|, max, two sums, min),
+    # written out here; NaN propagates as in numpy's max and min
+    rng = np.random.default_rng(4)
+    L, nf, ng, groups, k, near = 40, 57, 33, 3, 9, 6
+    Ff, Fg = rng.normal(size=(L, nf)), rng.normal(size=(L, ng))
+    H = rng.uniform(size=(L, groups))
+    idx = np.stack([rng.permutation(L)[:near] for _ in range(k)])
+    Sf, Sg = rng.normal(size=(k, nf)), rng.normal(size=(k, ng))
+    Ff[idx[2, 1], 5] = np.nan
+    move = np.abs(Ff[idx] - Sf[:, None, :]).max(axis=2)
+    move += np.abs(Fg[idx] - Sg[:, None, :]).max(axis=2)
+    want = (H[idx] + move[:, :, None]).min(axis=1)
+    got = near_line_bound(Ff, Fg, H, idx, Sf, Sg)
+    assert np.array_equal(want, got, equal_nan=True) and np.isnan(got[2]).all()
+    clean = ~(idx == idx[2, 1]).any(axis=1)  # rows whose near lines miss the NaN
+    assert clean.any() and np.isfinite(got[clean]).all()
 
 
 @pytest.mark.parametrize("seed,n_f,n_g,floor", [(1, 7, 6, None), (4, 8, 7, 0.5), (11, 6, 9, None)])

@@ -244,7 +244,10 @@ class LocalBound:
             return np.full((len(a), 1), math.inf)
         P, H = self.pts[0], self.h[0]
         d = np.linalg.norm(P[None, :, :] - normalise(np.c_[a, b], self.window)[:, None, :], axis=2)
-        idx = np.argsort(d, axis=1)[:, : self.near]
-        move = np.abs(self.Ff[0][idx] - star_rows(self.vf, a, b)[:, None, :]).max(axis=2)
-        move += np.abs(self.Fg[0][idx] - star_rows(self.vg, a, b)[:, None, :]).max(axis=2)
-        return (H[idx] + move[:, :, None]).min(axis=1)
+        idx = np.ascontiguousarray(np.argsort(d, axis=1)[:, : self.near])
+        from specmap.distance.kernels import near_line_bound
+
+        # = (H[idx] + max_v |Ff[idx] - F*_f| + max_v |Fg[idx] - F*_g|).min over the near lines, compiled
+        return near_line_bound(
+            self.Ff[0], self.Fg[0], H, idx, star_rows(self.vf, a, b), star_rows(self.vg, a, b)
+        )

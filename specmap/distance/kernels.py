@@ -1,4 +1,5 @@
-"""Compiled inner loops of the candidate list (numba): path resampling and tie-curve crossings.
+"""Compiled inner loops of the candidate list (numba): path resampling, tie-curve crossings, and the
+stability bound from the nearest evaluated lines (:func:`near_line_bound`).
 
 Both work on flat arrays (all paths' points in one array, ``off`` the path offsets), so the
 candidate list of :mod:`specmap.distance.candidates` holds no Python object per tie piece.
@@ -258,3 +259,39 @@ def bucket_crossings(
                 ov,
             )
     return ox, oy, ou, ov
+
+
+@numba.njit(cache=True, nogil=True, parallel=True)
+def near_line_bound(
+    Ff: np.ndarray, Fg: np.ndarray, H: np.ndarray, idx: np.ndarray, Sf: np.ndarray, Sg: np.ndarray
+) -> np.ndarray:
+    """min_j (H[idx[k, j]] + max_v |Ff[idx[k, j]] - Sf[k]| + max_v |Fg[idx[k, j]] - Sg[k]|), per k and group.
+
+    The numpy form of :meth:`specmap.distance.bounds.LocalBound.many` in one pass, without its
+    (k, near, vertices) temporaries; the same operations in the same order (max of absolute
+    differences, one sum, one sum, min), so the same doubles.
+    """
+    n, near = idx.shape
+    groups = H.shape[1]
+    out = np.empty((n, groups))
+    for k in numba.prange(n):
+        for g in range(groups):
+            out[k, g] = math.inf
+        for j in range(near):
+            q = idx[k, j]
+            mf = 0.0
+            for v in range(Ff.shape[1]):
+                d = abs(Ff[q, v] - Sf[k, v])
+                if d > mf or d != d:
+                    mf = d
+            mg = 0.0
+            for v in range(Fg.shape[1]):
+                d = abs(Fg[q, v] - Sg[k, v])
+                if d > mg or d != d:
+                    mg = d
+            move = mf + mg
+            for g in range(groups):
+                x = H[q, g] + move
+                if x < out[k, g] or x != x:
+                    out[k, g] = x
+    return out
