@@ -30,13 +30,15 @@ def run_cli(args: list[str], cwd: Path) -> subprocess.CompletedProcess:
     )
 
 
-def assert_user_error(proc: subprocess.CompletedProcess, *needles: str) -> None:
+def assert_user_error(proc: subprocess.CompletedProcess, *needles: str) -> str:
+    """The error contract: exit 2, one line naming the needles, no traceback; returns the line."""
     assert proc.returncode == 2, proc.stderr
     lines = [ln for ln in proc.stderr.splitlines() if ln.strip()]
     assert len(lines) == 1, proc.stderr
     assert "Traceback" not in proc.stderr
     for n in needles:
         assert n in lines[0], (n, lines[0])
+    return lines[0]
 
 
 CASES = {

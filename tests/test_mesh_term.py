@@ -20,12 +20,11 @@ Sources named beside each check:
 from __future__ import annotations
 
 import json
-import subprocess
-import sys
 from pathlib import Path
 
 import numpy as np
 import pytest
+from test_cli_errors import assert_user_error, run_cli
 
 from specmap.meshterm import MeshRow, mesh_term_block, movement
 from specmap.pipeline import StudyRun
@@ -205,26 +204,6 @@ def test_a_mesh_file_shape_gives_null_with_why_not(tmp_path):
     assert mesh_term_sentence(off).startswith("Mesh term: not measured")
 
 
-def _cli(args: list[str], cwd: Path) -> subprocess.CompletedProcess:
-    return subprocess.run(
-        [sys.executable, "-m", "specmap", "--quiet", *args],
-        cwd=cwd,
-        capture_output=True,
-        text=True,
-        timeout=300,
-    )
-
-
-def _one_line_error(proc: subprocess.CompletedProcess, *needles: str) -> str:
-    # the project's error contract: exit 2, one line naming file, field and fix, no traceback
-    assert proc.returncode == 2, proc.stderr
-    lines = [ln for ln in proc.stderr.splitlines() if ln.strip()]
-    assert len(lines) == 1 and "Traceback" not in proc.stderr, proc.stderr
-    for n in needles:
-        assert n in lines[0], (n, lines[0])
-    return lines[0]
-
-
 @pytest.mark.parametrize(
     ("setting", "needles"),
     [
@@ -237,24 +216,28 @@ def _one_line_error(proc: subprocess.CompletedProcess, *needles: str) -> str:
         ),
     ],
 )
-def test_bad_study_settings_give_the_one_line_error(tmp_path, setting, needles):
+def test_bad_study_settings_give_theassert_user_error(tmp_path, setting, needles):
     path = _study(tmp_path, mesh_check=setting)
     if "[64]" in setting:
         path.write_text(path.read_text().replace(f"resolution = {RES}", "resolution = 40000", 1))
         needles = ("distance.mesh_check", "factor 64 times f.resolution 40000", "lower f.resolution")
-    line = _one_line_error(_cli(["distance", str(path)], tmp_path), str(path), *needles)
+    line = assert_user_error(run_cli(["distance", str(path)], tmp_path), str(path), *needles)
     assert line.startswith("specmap: error: ")
     assert not (tmp_path / "results").exists()
 
 
 def test_cli_flag_bad_values_and_a_mesh_file_are_one_line_errors(tmp_path):
     path = _study(tmp_path, mesh_check="")
-    _one_line_error(_cli(["distance", str(path), "--mesh-check", "1,2"], tmp_path), "--mesh-check", "[2, 64]")
-    _one_line_error(_cli(["distance", str(path), "--mesh-check", "two"], tmp_path), "--mesh-check", "'two'")
+    assert_user_error(
+        run_cli(["distance", str(path), "--mesh-check", "1,2"], tmp_path), "--mesh-check", "[2, 64]"
+    )
+    assert_user_error(
+        run_cli(["distance", str(path), "--mesh-check", "two"], tmp_path), "--mesh-check", "'two'"
+    )
     # asked for explicitly, a shape that cannot be re-meshed is an error, before any work
     mesh = _mesh_study(tmp_path)
-    line = _one_line_error(
-        _cli(["distance", str(mesh), "--mesh-check", "2,4"], tmp_path), str(mesh), "g.mesh"
+    line = assert_user_error(
+        run_cli(["distance", str(mesh), "--mesh-check", "2,4"], tmp_path), str(mesh), "g.mesh"
     )
     assert "cannot be re-meshed" in line and "drop --mesh-check" in line
     assert not (tmp_path / "results").exists()
@@ -262,7 +245,7 @@ def test_cli_flag_bad_values_and_a_mesh_file_are_one_line_errors(tmp_path):
 
 def test_cli_flag_runs_the_term_and_prints_its_sentence(tmp_path):
     path = _study(tmp_path, mesh_check="")
-    proc = _cli(["distance", str(path), "--mesh-check", "2", "--out", str(tmp_path / "o")], tmp_path)
+    proc = run_cli(["distance", str(path), "--mesh-check", "2", "--out", str(tmp_path / "o")], tmp_path)
     assert proc.returncode == 0, proc.stderr
     js = json.loads((tmp_path / "o" / "distance.json").read_text())
     assert js["mesh_term"]["factors"] == [1, 2]

@@ -782,32 +782,13 @@ def test_curve_movement_that_does_not_scale_with_the_size_gets_no_rate():
         return [{"size": s, "runs": 4, "runs_with_patch": 0, "curve_movement_mean": m} for s, m in pts]
 
     base = {"runs": 4, "size": 0.02, "runs_with_patch": 0, "runs_with_patch_ci95": [0.0, 0.49]}
-    bad = " ".join(
-        _perturb_sentences(
-            {
-                "perturb": {
-                    "summary": {
-                        **base,
-                        "sweep": rows([(0.0005, 0.115), (0.02, 0.2)]),
-                        "curve_movement_slope": 10.0,
-                    }
-                }
-            }
-        )
-    )
+
+    def sentences(pts, slope):
+        summary = {**base, "sweep": rows(pts), "curve_movement_slope": slope}
+        return " ".join(_perturb_sentences({"perturb": {"summary": summary}}))
+
+    bad = sentences([(0.0005, 0.115), (0.02, 0.2)], 10.0)
     assert "does not scale with the size (230 per unit at size 0.0005, 10 at 0.02)" in bad
     assert "move by about" not in bad
-    good = " ".join(
-        _perturb_sentences(
-            {
-                "perturb": {
-                    "summary": {
-                        **base,
-                        "sweep": rows([(0.001, 0.001), (0.004, 0.004)]),
-                        "curve_movement_slope": 1.0,
-                    }
-                }
-            }
-        )
-    )
+    good = sentences([(0.001, 0.001), (0.004, 0.004)], 1.0)
     assert "move by about 1 in (a, b) per unit of perturbation size" in good

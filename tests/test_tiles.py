@@ -243,6 +243,14 @@ def test_interrupted_map_resumes_with_the_missing_tiles(tmp_path, monkeypatch):
     assert len(calls) == 4
 
 
+def _on_two_dask_workers(distributed, gf, gg, ms):
+    """The 2 x 2 tiled map on a LocalCluster of two single-threaded worker processes."""
+    with distributed.LocalCluster(
+        n_workers=2, threads_per_worker=1, processes=True, dashboard_address=None
+    ) as c:
+        return tiled_special_set(gf, gg, WINDOW, tiles=(2, 2), settings=ms, cluster=c.scheduler_address)
+
+
 @pytest.mark.slow
 def test_workers_do_not_change_the_atlas():
     # construction: tiles are pure functions of their inputs; 2 joblib processes and a Dask
@@ -252,11 +260,7 @@ def test_workers_do_not_change_the_atlas():
     one = tiled_special_set(gf, gg, WINDOW, tiles=(2, 2), settings=ms)
     assert_same_atlas(one, tiled_special_set(gf, gg, WINDOW, tiles=(2, 2), settings=ms, jobs=2))
     distributed = pytest.importorskip("distributed", reason="dask.distributed is not installed")
-    with distributed.LocalCluster(
-        n_workers=2, threads_per_worker=1, processes=True, dashboard_address=None
-    ) as c:
-        got = tiled_special_set(gf, gg, WINDOW, tiles=(2, 2), settings=ms, cluster=c.scheduler_address)
-    assert_same_atlas(one, got)
+    assert_same_atlas(one, _on_two_dask_workers(distributed, gf, gg, ms))
 
 
 def test_a_small_map_on_two_dask_workers_is_the_one_process_map():
@@ -266,11 +270,7 @@ def test_a_small_map_on_two_dask_workers_is_the_one_process_map():
     gf, gg = random_pair(8, 5)
     ms = MapSettings(resolution=21)
     one = tiled_special_set(gf, gg, WINDOW, tiles=(2, 2), settings=ms)
-    with distributed.LocalCluster(
-        n_workers=2, threads_per_worker=1, processes=True, dashboard_address=None
-    ) as c:
-        got = tiled_special_set(gf, gg, WINDOW, tiles=(2, 2), settings=ms, cluster=c.scheduler_address)
-    assert_same_atlas(one, got)
+    assert_same_atlas(one, _on_two_dask_workers(distributed, gf, gg, ms))
 
 
 def test_a_tile_result_pickles_to_the_same_items_bit_for_bit():

@@ -142,14 +142,11 @@ def tile_costs(
     2 x 2 tiles take 0.057-0.069 s per thousand coarse crossings). Costs about ``nodes / n`` of a
     map on ``n`` nodes a side. Used to start the largest tiles first when they run in parallel.
     """
+    from specmap.special.compute import default_tolerance
     from specmap.special.detect import find_crossings, sample
 
     table = pair_table(grid_f, grid_g, settings.pairs)
-    tol = float(settings.tol) if settings.tol is not None else None
-    if tol is None:
-        from specmap.special.compute import default_tolerance
-
-        tol = default_tolerance(grid_f, grid_g)
+    tol = default_tolerance(grid_f, grid_g) if settings.tol is None else float(settings.tol)
     lat = Lattice.of(window, *lattice)
     out = []
     for t in plan:

@@ -19,19 +19,23 @@ import sys
 from pathlib import Path
 
 HERE = Path(__file__).resolve().parent
-CHILD = r"""
+PROLOGUE = r"""
 import json, resource, sys, time
 sys.path.insert(0, {tests!r})
 from gridgen import random_pair
 from specmap.settings import MapSettings
 from specmap.special import special_set
-from specmap.special.tiles import tiled_special_set
+from specmap.special.tiles import _settings, plan_tiles, tile_pieces, tiled_special_set
 from specmap.strip import Window
-n, res, na, nb = {n}, {res}, {na}, {nb}
 w = Window((0.05, 0.95), (-1.0, 1.0))
-gf, gg = random_pair(3, n)
+gf, gg = random_pair(3, {n})
 s, _ = random_pair(1, 4)
 special_set(s, _, w, resolution=9)  # load the compiled kernels outside the timing
+"""
+CHILD = (
+    PROLOGUE
+    + r"""
+n, res, na, nb = {n}, {res}, {na}, {nb}
 t = time.perf_counter()
 workers = {workers}
 if workers:  # 2 x 2 tiles on a local Dask cluster of that many single-threaded worker processes
@@ -56,26 +60,19 @@ print(json.dumps({{"seconds": dt, "peak_rss": resource.getrusage(resource.RUSAGE
     "crossings": at.stats.get("crossings"), "tie_curves": at.stats.get("tie_curves"),
     "components": len(at.components)}}))
 """
+)
 
 
-TILE_CHILD = r"""
-import json, sys, time
-sys.path.insert(0, {tests!r})
-from gridgen import random_pair
-from specmap.settings import MapSettings
-from specmap.special import special_set
-from specmap.special.tiles import _settings, plan_tiles, tile_pieces
-from specmap.strip import Window
-w = Window((0.05, 0.95), (-1.0, 1.0))
-gf, gg = random_pair(3, {n})
-s, _ = random_pair(1, 4)
-special_set(s, _, w, resolution=9)
+TILE_CHILD = (
+    PROLOGUE
+    + r"""
 settings, lattice, _tol = _settings(gf, gg, MapSettings(resolution={res}), None)
 tile = plan_tiles(*lattice, (2, 2))[{k}]
 t = time.perf_counter()
 tile_pieces(gf, gg, w, lattice, tile, settings)
 print(json.dumps({{"seconds": time.perf_counter() - t}}))
 """
+)
 
 
 def two_process_ceiling(n: int, res: int, k: int = 2) -> tuple[float, float, float]:
