@@ -216,7 +216,7 @@ def test_a_mesh_file_shape_gives_null_with_why_not(tmp_path):
         ),
     ],
 )
-def test_bad_study_settings_give_theassert_user_error(tmp_path, setting, needles):
+def test_bad_study_settings_give_the_one_line_error(tmp_path, setting, needles):
     path = _study(tmp_path, mesh_check=setting)
     if "[64]" in setting:
         path.write_text(path.read_text().replace(f"resolution = {RES}", "resolution = 40000", 1))
