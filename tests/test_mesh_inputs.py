@@ -154,6 +154,38 @@ def test_garbled_obj_names_obj(tmp_path: Path) -> None:
     assert "as OBJ" in text and "valid OBJ" in text and "PLY" not in text
 
 
+def _textured_obj(V: np.ndarray, T: np.ndarray, *, quad: bool = False) -> str:
+    """OBJ text with texture coordinates and normals not one per vertex (OBJ appendix B1: ``vt``, ``vn``
+    and ``f v/vt/vn``), as textured scans are written: a seam duplicates texture coordinates.
+    """
+    lines = [f"v {float(x)!r} {float(y)!r} {float(z)!r}" for x, y, z in V]
+    lines += [f"vt {k / (2 * len(V))!r} 0.5" for k in range(2 * len(V))]  # twice as many vt as v
+    lines += ["vn 0 0 1"]
+    lines += [f"f {i + 1}/{2 * i + 1}/1 {j + 1}/{2 * j + 2}/1 {k + 1}/{2 * k + 1}/1" for i, j, k in T]
+    if quad:
+        lines.append("f 1/1/1 2/2/1 3/3/1 4/4/1")
+    return "\n".join(lines) + "\n"
+
+
+def test_textured_obj_reads_as_its_geometry(tmp_path: Path) -> None:
+    # A valid OBJ whose vt count differs from its v count (meshio refuses it): the v and f
+    # statements alone give the mesh, the same vertices and triangles as the plain file.
+    V, T = torus_mesh(2.0, 0.7, 8, 5)
+    plain, _ = _obj(V, T, relative=False, interleave=False)
+    (tmp_path / "plain.obj").write_text(plain)
+    (tmp_path / "textured.obj").write_text(_textured_obj(V, T))
+    Vp, Tp, _ = read_mesh(tmp_path / "plain.obj")
+    Vt, Tt, _ = read_mesh(tmp_path / "textured.obj")
+    assert np.array_equal(Vt, V) and np.array_equal(Vt, Vp) and np.array_equal(Tt, Tp)
+
+
+def test_textured_obj_with_a_quad_is_refused_as_not_triangles(tmp_path: Path) -> None:
+    V, T = torus_mesh(2.0, 0.7, 8, 5)
+    p = tmp_path / "quad.obj"
+    p.write_text(_textured_obj(V, T, quad=True))
+    assert "not triangles" in _one_line_mesh_error(p)
+
+
 # -- study.name on one line ----------------------------------------------------------------------
 GOOD = (
     '[f]\nsurface = "ellipsoid"\nradii = [2, 1, 1]\nmap = ["x", "y"]\nresolution = 400\n'

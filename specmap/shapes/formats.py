@@ -8,6 +8,9 @@
 - OBJ face indices count from 1; a negative index ``-k`` is relative and means
   the k-th vertex defined before that face line (so ``-1`` is the last one).
   meshio keeps them negative; :func:`obj_triangles` resolves them.
+- meshio refuses valid OBJ files whose texture coordinates (``vt``) or normals
+  (``vn``) are not one per vertex, as textured scans usually are;
+  :func:`obj_geometry` reads the ``v`` and ``f`` statements alone.
 
 References
 ----------
@@ -227,3 +230,70 @@ def obj_triangles(path: str | Path) -> np.ndarray:
                     row.append(k)
                 tris.append(row)
     return np.asarray(tris, dtype=np.int64).reshape(-1, 3)
+
+
+def obj_geometry(path: str | Path) -> tuple[np.ndarray, list[np.ndarray]]:
+    """Vertex positions and faces of an OBJ file from its ``v`` and ``f`` statements alone [OBJ].
+
+    Texture coordinates, normals, groups and materials are ignored (a face vertex
+    ``i/t/n`` keeps ``i``), so a textured file whose ``vt`` count differs from its
+    ``v`` count reads as its geometry. Relative indices are resolved as in
+    :func:`obj_triangles`.
+
+    Returns
+    -------
+    points : ndarray (n, 3)
+        The first three coordinates of every ``v`` line (a fourth, the weight, is dropped).
+    faces : list of ndarray (k,) of int
+        0-based vertex indices of each face, in file order (triangles have k = 3).
+
+    Raises
+    ------
+    ValueError
+        A ``v`` line with fewer than three numbers, or a face index naming no vertex: the
+        message names the line.
+
+    Examples
+    --------
+    >>> import tempfile, os
+    >>> text = "v 0 0 0\\nv 1 0 0\\nv 0 1 0\\nvt 0 0\\nvt 1 0\\nvt 0 1\\nvt 1 1\\nf 1/4 2/2 3/3\\n"
+    >>> with tempfile.NamedTemporaryFile("w", suffix=".obj", delete=False) as fh:
+    ...     _ = fh.write(text)
+    >>> V, F = obj_geometry(fh.name)
+    >>> V.shape, [f.tolist() for f in F]
+    ((3, 3), [[0, 1, 2]])
+    >>> os.unlink(fh.name)
+    """
+    points: list[list[float]] = []
+    faces: list[np.ndarray] = []
+    with open(path, encoding="utf-8", errors="replace") as fh:
+        for lineno, line in enumerate(fh, 1):
+            words = line.split()
+            if not words:
+                continue
+            if words[0] == "v":
+                try:
+                    points.append([float(w) for w in words[1:4]])
+                except ValueError:
+                    raise ValueError(
+                        f"line {lineno}: a vertex with a coordinate that is not a number"
+                    ) from None
+                if len(points[-1]) < 3:
+                    raise ValueError(f"line {lineno}: a vertex with fewer than three coordinates")
+            elif words[0] == "f":
+                n = len(points)
+                row = []
+                for w in words[1:]:
+                    try:
+                        i = int(w.split("/")[0])
+                    except ValueError:
+                        raise ValueError(f"line {lineno}: face index {w!r} is not a whole number") from None
+                    k = i - 1 if i > 0 else n + i
+                    if i == 0 or not 0 <= k < n:
+                        raise ValueError(
+                            f"line {lineno}: index {i} names no vertex "
+                            f"({n} defined so far; OBJ counts from 1, -1 is the last)"
+                        )
+                    row.append(k)
+                faces.append(np.asarray(row, dtype=np.int64))
+    return np.asarray(points, dtype=float).reshape(-1, 3), faces

@@ -418,6 +418,10 @@ def read_mesh(
     except (Exception, SystemExit) as exc:  # meshio exits on some parse errors
         _check_ply_header(p, fmt)
         said = " ".join(chatter.getvalue().split()) or str(exc) or type(exc).__name__
+        mesh = _obj_fallback(p) if fmt == "obj" else None
+    else:
+        said = ""
+    if mesh is None:
         fix = f"write a valid {fmt.upper()} file of triangles"
         if "triangular" in said:
             fix = "triangulate the faces first (split every polygon into triangles)"
@@ -529,6 +533,32 @@ def _without_slivers(V: np.ndarray, T: np.ndarray, found: dict, file: str) -> np
             fix="re-triangulate the mesh around them (no triangle with three collinear vertices)",
         )
     return T
+
+
+def _obj_fallback(path: Path):
+    """The OBJ file's geometry as a meshio Mesh when meshio itself refused it; None if that fails too.
+
+    meshio refuses valid OBJ files whose ``vt``/``vn`` counts differ from the vertex count
+    (textured scans); :func:`specmap.shapes.formats.obj_geometry` reads the ``v`` and ``f``
+    statements alone. Faces that are not triangles come back as a ``polygon`` block, so the
+    caller refuses them as it does for meshio's own result.
+    """
+    import meshio
+
+    from specmap.shapes.formats import obj_geometry
+
+    try:
+        V, faces = obj_geometry(path)
+    except (OSError, ValueError):
+        return None
+    if not len(V) or not faces:
+        return None
+    tri = [f for f in faces if len(f) == 3]
+    cells = [("triangle", np.asarray(tri, dtype=np.int64).reshape(-1, 3))] if tri else []
+    if len(tri) < len(faces):
+        other = [f for f in faces if len(f) != 3]
+        cells.append(("polygon", np.asarray(other[:1][0]).reshape(1, -1)))
+    return meshio.Mesh(V, cells)
 
 
 def _check_ply_header(p: Path, fmt: str) -> None:
