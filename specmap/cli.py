@@ -19,6 +19,7 @@ from typing import TYPE_CHECKING
 
 from specmap import __version__
 from specmap.errors import SpecmapInputError, StudyError
+from specmap.io import read_json
 from specmap.report.fmt import fmt_distance, fmt_pct, fmt_point, plural, round_values
 
 if TYPE_CHECKING:
@@ -125,6 +126,12 @@ def build_parser() -> argparse.ArgumentParser:
         "a map over it is computed in tiles",
     )
     sp.add_argument("--tiles", type=_tiles, help="tiles along a and b, e.g. 2x2, or auto (default: study's)")
+    sp.add_argument(
+        "--costs",
+        metavar="LO,HI",
+        help="map only the ties whose tied cost lies in [LO, HI] (value units), e.g. 0.95,1.3 "
+        "(default: study's [map] costs, else the whole special set)",
+    )
     sp.add_argument(
         "--jobs",
         type=_positive,
@@ -299,8 +306,12 @@ def special_line(js: dict, path: Path | str) -> str:
     """
     from specmap.report.summary import component_counts, tie_curve_count
 
+    band = (js.get("costs") or {}).get("band")
+    what = (
+        f"special set restricted to tied costs in [{band[0]:.4g}, {band[1]:.4g}]" if band else "special set"
+    )
     return (
-        f"special set: {component_counts(js)} (connected components); "
+        f"{what}: {component_counts(js)} (connected components); "
         f"{plural(tie_curve_count(js), 'tie curve')}; "
         f"patches cover {fmt_pct(js['area_fraction'])} of the window -> {path}"
     )
@@ -312,12 +323,43 @@ def remap_note(out: Path, method: str) -> str | None:
     Called when the written map cannot be read back (``StudyRun.reads_stored_map``): a folder
     mapped before ``special_pieces.json`` existed, or one whose map has other settings or inputs.
     """
-    if method not in ("reduced", "both") or not (Path(out) / "special.json").is_file():
+    path = Path(out) / "special.json"
+    if method not in ("reduced", "both") or not path.is_file():
         return None
+    try:
+        band = ((read_json(path).get("costs") or {}).get("band")) if path.stat().st_size < 50e6 else None
+    except (OSError, ValueError, AttributeError):
+        band = None
+    if band:
+        return (
+            f"specmap: note: the map in this folder is restricted to tied costs in [{band[0]:.4g}, "
+            f"{band[1]:.4g}], so the reduced search does not read it: it maps its own focused special set"
+        )
     return (
         "specmap: note: the reduced search maps the special set again (the map in this folder "
         "has other inputs or settings, or no special_pieces.json: run specmap map to refresh it)"
     )
+
+
+def costs_flag(text: str | None, study: Study) -> tuple[float, float] | None:
+    """``--costs LO,HI`` checked like ``[map] costs`` (one line naming the study and the flag); None when not given."""
+    from specmap.errors import InputValueError
+    from specmap.settings import check_costs
+
+    if text is None:
+        return None
+    parts = text.split(",")
+    try:
+        if len(parts) != 2:
+            raise ValueError(text)
+        return check_costs([float(x) for x in parts])
+    except (ValueError, InputValueError):
+        raise StudyError(
+            f"{text!r} is not a band LO,HI of two finite numbers with LO < HI and HI > 0",
+            file=str(study.path),
+            field="--costs (map.costs)",
+            fix="give --costs lo,hi in value units, like --costs 0.95,1.3, or drop it for the whole map",
+        ) from None
 
 
 def mesh_check_flag(text: str | None, study: Study) -> tuple[int, ...] | None:
@@ -396,8 +438,10 @@ def run(argv: list[str] | None = None) -> int:
         return 0
     check_study_path(args.study)
     study = load_study(args.study)
+    costs = None
     if args.verb == "map":
         check_flag(str(study.path), "map.resolution", "--resolution", args.resolution)
+        costs = costs_flag(args.costs, study)
     if args.verb == "perturb":
         check_flag(str(study.path), "perturb.runs", "--runs", args.runs)
     mesh_check = mesh_check_flag(args.mesh_check, study) if args.verb == "distance" else None
@@ -423,6 +467,7 @@ def run(argv: list[str] | None = None) -> int:
             method=args.method,
             memory=args.memory,
             tiles=args.tiles,
+            costs=costs,
         )
         sr.write_grids()
         sr.record()

@@ -15,7 +15,7 @@ Every result file (``study.json``, ``grid_f.json``, ``grid_g.json``, ``special.j
               simplify, route), the sha256 of every mesh or grid file they read, the
               constants, the contour budget of ``simplify = "auto"``, the specmap version
     window    the window of the strip
-    map       the atlas settings (pairs, resolution, method, tol, reading)
+    map       the atlas settings (pairs, resolution, method, tol, reading; costs when set)
     distance  the distance settings (all of :class:`~specmap.settings.DistanceSettings`)
     perturb   the run-set fingerprint of :mod:`specmap.perturb.store`
     ========  ================================================================================
@@ -116,8 +116,15 @@ def window_part(window: Any) -> str:
 
 
 def map_part(settings: Any) -> str:
-    """The ``map`` part of a :class:`~specmap.settings.MapSettings` (the fields the atlas reads)."""
-    return digest({k: v for k, v in asdict(settings).items() if k not in _NOT_ATLAS})
+    """The ``map`` part of a :class:`~specmap.settings.MapSettings` (the fields the atlas reads).
+
+    ``costs`` (a band of tied costs) enters only when set: the whole map's part is the one written
+    before the setting existed, and a banded map's part differs from the whole map's.
+    """
+    js = {k: v for k, v in asdict(settings).items() if k not in _NOT_ATLAS}
+    if js.get("costs") is None:
+        js.pop("costs", None)
+    return digest(js)
 
 
 def distance_part(settings: Any) -> str:

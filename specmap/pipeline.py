@@ -284,9 +284,17 @@ class StudyRun:
         method: str | None = None,
         memory: float | None = None,
         tiles: tuple[int, int] | str | None = None,
+        costs: tuple[float, float] | None = None,
     ) -> MapSettings:
         """The study's ``[map]`` settings with the command line's overrides (``tiles="auto"``: the budget decides)."""
-        given = {"pairs": pairs, "resolution": resolution, "method": method, "memory": memory, "tiles": tiles}
+        given = {
+            "pairs": pairs,
+            "resolution": resolution,
+            "method": method,
+            "memory": memory,
+            "tiles": tiles,
+            "costs": costs,
+        }
         chosen = {k: v for k, v in given.items() if v is not None}
         if chosen.get("tiles") == "auto":
             chosen["tiles"] = None
@@ -318,10 +326,12 @@ class StudyRun:
     def reads_stored_map(self, settings: DistanceSettings) -> bool:
         """Whether the distance of ``settings`` reads the map written in ``out`` (loaded here, once).
 
-        False for the dense method (no map) and when no stored map fits (:meth:`stored_atlas`):
-        then the reduced search maps again (``cli.remap_note`` says why).
+        False for the dense method (no map), when the study's map is banded (``[map] costs``: a
+        partial map is never the reduced search's atlas, :meth:`distance_atlas`) and when no stored
+        map fits (:meth:`stored_atlas`): then the reduced search maps again (``cli.remap_note`` says why).
         """
-        return settings.method in ("both", "reduced") and self._read_stored(self.map_settings())
+        ms = self.map_settings()
+        return settings.method in ("both", "reduced") and ms.costs is None and self._read_stored(ms)
 
     def _read_stored(self, ms: MapSettings) -> bool:
         """Put the stored map of ``ms`` in the atlas cache if it fits; True when the cache holds it."""
@@ -376,6 +386,7 @@ class StudyRun:
         method: str | None = None,
         memory: float | None = None,
         tiles: tuple[int, int] | str | None = None,
+        costs: tuple[float, float] | None = None,
         reuse: bool = False,
     ):
         """The special-set atlas of the study's map settings (overrides given), computed once per settings.
@@ -384,9 +395,18 @@ class StudyRun:
         (:func:`specmap.special.tiles.tiled_special_set`, tile folder ``out/tiles``); it is kept
         in ``stats["plan"]``. ``reuse``: read the map written in ``out`` when it was made from
         the same inputs, window and map settings (:meth:`stored_atlas`) instead of mapping again.
+        With ``costs`` (or ``[map] costs``) the map holds only the ties whose tied cost lies in the
+        band (:meth:`banded_atlas`).
         """
-        ms = self.map_settings(pairs=pairs, resolution=resolution, method=method, memory=memory, tiles=tiles)
+        ms = self.map_settings(
+            pairs=pairs, resolution=resolution, method=method, memory=memory, tiles=tiles, costs=costs
+        )
         cache = self.__dict__.setdefault("_atlases", {})
+        if ms.costs is not None:
+            if ms not in cache:
+                self.maps_made += 1
+                cache[ms] = self.banded_atlas(ms)
+            return cache[ms]
         if ms not in cache and reuse:
             self._read_stored(ms)
         if ms not in cache:
@@ -408,6 +428,7 @@ class StudyRun:
                 pairs=ms.pairs,
                 simplified=self.simplification,
                 max_contours=ms.max_contours,
+                band=self.suggested_band(),
             )
             if self.show_progress and (plan.tiled or plan.seconds > LONG_PLAN_SECONDS):  # before a long wait
                 print(f"specmap: {plan.line()}", file=sys.stderr)
@@ -454,6 +475,99 @@ class StudyRun:
                 )
             cache[ms] = dataclasses.replace(atlas, stats={**atlas.stats, "plan": plan.to_json()})
         return cache[ms]
+
+    def suggested_band(self) -> tuple[float, float] | None:
+        """A band of tied costs around the distance already in ``out``: [0.9 D, the largest upper bound].
+
+        Read from ``out/distance.json`` when it holds a finite positive value D (the max over degrees)
+        and its stamp's inputs and window are this study's; the upper end is the largest finite upper
+        end of the degrees' ``bounds`` (else 1.1 D). None otherwise. Only the map's refusal uses it.
+        """
+        import math
+
+        path = self.out / "distance.json"
+        if not path.is_file():
+            return None
+        try:
+            js = read_json(path)
+            parts = js.get("fingerprint_parts") or {}
+            head = self.stamp()["fingerprint_parts"]
+            if any(parts.get(k) != head[k] for k in ("inputs", "window")):
+                return None
+            value = float(js["value"])
+            uppers = [
+                float(v["bounds"][1])
+                for v in (js.get("by_degree") or {}).values()
+                if isinstance(v, dict) and isinstance(v.get("bounds"), list) and len(v["bounds"]) == 2
+            ]
+        except (OSError, ValueError, KeyError, TypeError, AttributeError):
+            return None
+        if not (math.isfinite(value) and value > 0):
+            return None
+        top = max((u for u in uppers if math.isfinite(u)), default=1.1 * value)
+        return (0.9 * value, max(top, 1.01 * value))
+
+    def banded_atlas(self, ms: MapSettings):
+        """The map of ``ms`` restricted to its band of tied costs (:mod:`specmap.special.banded`), one piece.
+
+        The banded map is estimated first (pairs kept, crossings on a probe lattice, bytes) and
+        refused in one line with its remedies when it exceeds the memory budget (``[map] memory`` /
+        ``--memory``, else twice half of this machine's memory, the rule of the whole map's plan).
+
+        Raises
+        ------
+        StudyError
+            ``method = "naive"``: the naive reference has no band.
+        AtlasTooLargeError
+            The banded map's estimate is over the budget.
+        """
+        from specmap.errors import StudyError
+        from specmap.special.banded import banded_fits, banded_remedies, banded_special_set, estimate_banded
+        from specmap.special.preflight import AtlasTooLargeError, memory_budget, size_text
+
+        assert ms.costs is not None
+        lo, hi = ms.costs
+        if ms.method != "sweep":
+            raise StudyError(
+                f"a band of tied costs needs the sweep detection, not {ms.method!r}",
+                file=str(self.study.path),
+                field="map.costs",
+                fix='use method = "sweep" (--method sweep), or drop costs for the naive reference map',
+            )
+        gf, gg = self.grids
+        est = estimate_banded(gf, gg, self.window, ms)
+        given = ms.memory is not None
+        budget = float(ms.memory) if given else memory_budget()
+        focus = est.focus
+        what = (
+            f"tied costs in [{lo:.4g}, {hi:.4g}] keep {focus.kept.size} of {focus.pairs_total} contour "
+            f"pairs; their map has about {est.crossings:.2g} crossings, {size_text(est.bytes)}"
+        )
+        if not banded_fits(est, budget, given):
+            whose = "the --memory budget" if given else "half of this machine's memory"
+            raise AtlasTooLargeError(
+                f"{what}, over the budget {size_text(budget)} ({whose})",
+                file=str(self.study.path),
+                field="map.costs",
+                fix=banded_remedies(
+                    est, ms, budget=budget, given_budget=given, simplified=self.simplification
+                ),
+            )
+        if self.show_progress:
+            extra = "; tiles are not used for a band (one piece)" if ms.tiles not in (None, (1, 1)) else ""
+            print(f"specmap: banded map: {what}, budget {size_text(budget)}{extra}", file=sys.stderr)
+        atlas = banded_special_set(
+            gf, gg, self.window, ms, estimate=est, progress=self.progress("banded map")
+        )
+        plan = {
+            "banded": True,
+            "tiles": [1, 1],
+            "crossings_estimate": float(est.crossings),
+            "bytes_estimate": float(est.bytes),
+            "budget": budget,
+            "reason": "a band of tied costs, in one piece",
+        }
+        return dataclasses.replace(atlas, stats={**atlas.stats, "plan": plan})
 
     def distance(self, settings: DistanceSettings, *, jobs: int = 1):
         """The :class:`~specmap.distance.DistanceResult` of ``settings`` (with the study's atlas), once per process.
@@ -591,25 +705,32 @@ class StudyRun:
         The reduced search needs only the ties whose cost can lie between the slope-one
         value and an upper bound of D (:func:`specmap.distance.focused.focused_source`); it is
         mapped when the search knows that band, and refused in one line when even it is too big.
+        A study whose map is banded (``[map] costs``) also gives the focused source: a map of a
+        band the user chose is no atlas of the search (its ties outside the band are missing).
         """
         from specmap.special.preflight import AtlasTooLargeError
 
         if "_focused" in self.__dict__:  # the plan refused the whole map already
             return self.__dict__["_focused"]
-        try:
-            whole = self.atlas(reuse=True)
-            if not whole.stats.get("streamed"):
-                return whole
-        except AtlasTooLargeError:
-            pass
-        # the whole map is refused, or streamed (its pieces never in memory): the focused source
+        ms = self.map_settings()
+        if ms.costs is None:
+            try:
+                whole = self.atlas(reuse=True)
+                if not whole.stats.get("streamed"):
+                    return whole
+            except AtlasTooLargeError:
+                pass
+        # the whole map is refused, streamed (its pieces never in memory) or banded: the focused source
         from specmap.distance.focused import focused_source
 
-        ms = self.map_settings()
         if self.show_progress:
+            why = (
+                f"the study's map is restricted to tied costs in [{ms.costs[0]:.4g}, {ms.costs[1]:.4g}]"
+                if ms.costs is not None
+                else "the whole special-set map does not fit the memory budget"
+            )
             print(
-                "specmap: the whole special-set map does not fit the memory budget; the reduced "
-                "search maps only the ties whose cost can be D (focused special set)",
+                f"specmap: {why}; the reduced search maps only the ties whose cost can be D (focused special set)",
                 file=sys.stderr,
             )
         gf, gg = self.grids
@@ -668,10 +789,11 @@ class StudyRun:
     def write_map(self, **kw: Any) -> dict[str, Any]:
         from specmap.report.figures import save_png, special_figure
         from specmap.special.atlas import PIECES_FORMAT, iter_piece_records
+        from specmap.special.banded import costs_entry
 
         atlas = self.atlas(**kw)
         head = self.stamp(map_settings=self.map_settings(**kw))
-        js = {**atlas.to_json(), **head}
+        js = {**atlas.to_json(), "costs": costs_entry(atlas), **head}
         if atlas.stats.get("streamed"):
             # written while merging (special.geojson, feature by feature); no pieces file: the
             # distance maps its focused source instead (distance_atlas)
@@ -679,13 +801,17 @@ class StudyRun:
             write_json(self.out / "special.json", js)
             save_png(special_figure(js, None), self.out / "figures" / "special.png")
             return js
-        # the pieces of every tie (what the reduced search walks), so that distance reads the map back
-        write_json_streamed(
-            self.out / "special_pieces.json",
-            {"format": PIECES_FORMAT, "pieces": None, **head},
-            "pieces",
-            iter_piece_records(atlas),
-        )
+        if js["costs"] is not None:
+            # a partial map (a band of tied costs): no pieces file, no distance reads it as its atlas
+            (self.out / "special_pieces.json").unlink(missing_ok=True)
+        else:
+            # the pieces of every tie (what the reduced search walks), so that distance reads the map back
+            write_json_streamed(
+                self.out / "special_pieces.json",
+                {"format": PIECES_FORMAT, "pieces": None, **head},
+                "pieces",
+                iter_piece_records(atlas),
+            )
         write_json(self.out / "special.json", js)
         # streamed feature by feature: the GeoJSON text is never held whole in memory (issue 14 item 3);
         # the stamp is a foreign member of the FeatureCollection (RFC 7946 section 6.1)

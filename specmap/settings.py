@@ -63,6 +63,40 @@ class GridSettings:
         _choice("route", self.route, ROUTES)
 
 
+def check_costs(costs: Any) -> tuple[float, float]:
+    """A band of tied costs ``(lo, hi)``: two finite numbers with lo < hi and hi > 0 (lo may be <= 0).
+
+    Raises
+    ------
+    InputValueError
+        Otherwise (subject ``"costs"``).
+
+    Examples
+    --------
+    >>> check_costs([0.9, 1.3])
+    (0.9, 1.3)
+    >>> try:
+    ...     check_costs((1.3, 0.9))
+    ... except InputValueError as exc:
+    ...     print(exc.problem)
+    costs [1.3, 0.9] is not a band lo < hi with hi > 0
+    """
+    try:
+        lo, hi = (float(x) for x in costs)
+        ok = not any(isinstance(x, bool) for x in costs)
+    except (TypeError, ValueError):
+        lo = hi = math.nan
+        ok = False
+    if not (ok and math.isfinite(lo) and math.isfinite(hi) and lo < hi and hi > 0):
+        shown = list(costs) if isinstance(costs, (list, tuple)) else costs
+        raise InputValueError(
+            f"costs {shown!r} is not a band lo < hi with hi > 0",
+            subject="costs",
+            fix="give two finite numbers lo < hi in value units, hi > 0, like costs = [0.9, 1.3]",
+        )
+    return (lo, hi)
+
+
 @dataclass(frozen=True)
 class MapSettings:
     """Settings of the special-set atlas.
@@ -88,6 +122,12 @@ class MapSettings:
     tiles : (int, int) or None
         Tiles along a and b (:mod:`specmap.special.tiles`); None to let the budget decide.
         Tiles change the plan, not the atlas (merged exactly; see the module for its limits).
+    costs : (float, float) or None
+        A band [lo, hi] of tied costs (value units; math.md section 5: the cost both tied pairs
+        carry, a cross pair's |c|, a same-grid pair's |c| / 2): the map then holds only the ties
+        whose tied cost lies in the band, curves give or take one lattice cell at the band's ends,
+        patches of the kept pairs whole (:mod:`specmap.special.banded`). None (default): the whole
+        special set. A banded map is a partial map: the reduced search never reads it as its atlas.
     """
 
     pairs: str = "all"
@@ -98,6 +138,7 @@ class MapSettings:
     reading: str = "points"
     memory: float | None = None
     tiles: tuple[int, int] | None = None
+    costs: tuple[float, float] | None = None
 
     def __post_init__(self) -> None:
         _choice("pairs", self.pairs, PAIRS)
@@ -118,6 +159,8 @@ class MapSettings:
                     fix='give tiles = [na, nb] like [2, 2], or "auto"',
                 )
             object.__setattr__(self, "tiles", (t[0], t[1]))
+        if self.costs is not None:
+            object.__setattr__(self, "costs", check_costs(self.costs))
 
 
 @dataclass(frozen=True)
@@ -230,8 +273,9 @@ class PerturbSettings:
     runs : int
         Number of runs wanted (not part of the fingerprint: a run set can be extended).
     seed : int
-    pairs, resolution, method, tol, reading
-        The :class:`MapSettings` of every run.
+    pairs, resolution, method, tol, reading, costs
+        The :class:`MapSettings` of every run (``costs``: every run maps the same band of tied
+        costs, and a run's distance uses the focused source, never the banded map).
     distance : bool
         Recompute the matching distance in every run ("function" model only).
     distance_method : {"reduced", "dense"}
@@ -249,6 +293,7 @@ class PerturbSettings:
     method: str = _MAP.method
     tol: float | None = _MAP.tol
     reading: str = _MAP.reading
+    costs: tuple[float, float] | None = _MAP.costs
     distance: bool = False
     distance_method: str = "reduced"
     degrees: tuple[int, ...] = _DISTANCE.degrees
@@ -265,6 +310,8 @@ class PerturbSettings:
                 f"runs {self.runs!r} is negative", subject="runs", fix="give a number of runs >= 0, like 20"
             )
         object.__setattr__(self, "degrees", tuple(int(d) for d in self.degrees))
+        if self.costs is not None:
+            object.__setattr__(self, "costs", check_costs(self.costs))
 
     @classmethod
     def of(
@@ -293,6 +340,7 @@ class PerturbSettings:
             method=map.method,
             tol=map.tol,
             reading=map.reading,
+            costs=map.costs,
             distance=bool(distance),
             distance_method="dense" if dist.method == "dense" else "reduced",
             degrees=tuple(dist.degrees),
@@ -308,6 +356,7 @@ class PerturbSettings:
             method=self.method,
             tol=self.tol,
             reading=self.reading,
+            costs=self.costs,
         )
 
     @property
@@ -321,5 +370,11 @@ class PerturbSettings:
         )
 
     def to_json(self) -> dict[str, Any]:
-        """Plain JSON of the fields (tuples as lists): the run set's ``settings``."""
-        return to_plain(asdict(self))
+        """Plain JSON of the fields (tuples as lists): the run set's ``settings``.
+
+        ``costs`` enters only when set, so run sets made before the setting keep their fingerprint.
+        """
+        js = to_plain(asdict(self))
+        if js.get("costs") is None:
+            js.pop("costs", None)
+        return js

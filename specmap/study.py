@@ -32,7 +32,8 @@ Format (all tables but ``[study]``, ``[f]``, ``[g]`` optional)::
     [map]      pairs = "all" | "roles", resolution = <nodes per side>, method = "sweep" | "naive",
                max_contours = <budget per grid for a mesh's simplify = "auto">,
                reading = "points" | "contours", memory = "6GB" (atlas budget; default half of RAM),
-               tiles = [na, nb] | "auto"
+               tiles = [na, nb] | "auto", costs = [lo, hi] (map only the ties whose tied cost lies
+               in [lo, hi], value units; default: the whole special set)
     [distance] method = "both" | "dense" | "reduced", degrees = [0, 1, 2], dense_resolution = <nodes>,
                special_max_lines = <lines of the reduced search's special-set pass>,
                certify = "max" | "each", slope_max_lines = <lines of the slope-one search per degree>,
@@ -528,7 +529,10 @@ def parse_study(data: dict[str, Any], path: Path) -> Study:
             raise r.fail("window.b", f"{list(b)} is empty", "give b = [lo, hi] with lo < hi")
         window = Window(a, b)
     mt = r.table(
-        data, "map", False, {"pairs", "resolution", "method", "max_contours", "reading", "memory", "tiles"}
+        data,
+        "map",
+        False,
+        {"pairs", "resolution", "method", "max_contours", "reading", "memory", "tiles", "costs"},
     )
     mspec = MapSpec(
         pairs=r.choice(mt, "map", "pairs", _MAP.pairs, PAIRS),
@@ -538,6 +542,7 @@ def parse_study(data: dict[str, Any], path: Path) -> Study:
         reading=r.choice(mt, "map", "reading", _MAP.reading, READINGS),
         memory=_memory(r, mt),
         tiles=_tiles(r, mt),
+        costs=_costs(r, mt),
     )
     dt = r.table(
         data,
@@ -650,6 +655,25 @@ def _tiles(r: _Reader, mt: dict) -> tuple[int, int] | None:
             "map.tiles", f"{t!r} is not two counts >= 1", 'give tiles = [2, 2] (along a, b) or "auto"'
         )
     return (int(t[0]), int(t[1]))
+
+
+def _costs(r: _Reader, mt: dict) -> tuple[float, float] | None:
+    """``[map] costs``: a band ``[lo, hi]`` of tied costs (value units), or None for the whole map."""
+    if "costs" not in mt:
+        return None
+    from specmap.errors import InputValueError
+    from specmap.settings import check_costs
+
+    fix = "give costs = [lo, hi] with lo < hi and hi > 0 (value units), like [0.9, 1.3], or drop it"
+    v = mt["costs"]
+    if not (isinstance(v, list) and len(v) == 2):
+        raise r.fail("map.costs", f"{v!r} is not two numbers [lo, hi]", fix)
+    try:
+        return check_costs(r.numbers(mt, "map", "costs", 2))
+    except InputValueError as exc:
+        raise r.fail("map.costs", exc.problem, fix) from None
+    except StudyError:
+        raise r.fail("map.costs", f"{v!r} is not two finite numbers", fix) from None
 
 
 def load_study(path: str | Path) -> Study:

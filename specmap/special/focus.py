@@ -253,6 +253,62 @@ def probe_crossings(
     return count * side**0.75, count
 
 
+@dataclass(frozen=True)
+class FocusEstimate:
+    """The kept pairs of a band and the expected size of their banded atlas (before it is built).
+
+    Attributes
+    ----------
+    focus : Focus
+    crossings : float
+        Expected crossings at the atlas's resolution (:func:`probe_crossings`).
+    probe : int
+        Crossings counted on the probe lattice.
+    bytes : float
+        Expected peak bytes, ``BASE_BYTES + BYTES_PER_CROSSING * crossings``.
+    """
+
+    focus: Focus
+    crossings: float
+    probe: int
+    bytes: float
+
+    def to_json(self) -> dict[str, Any]:
+        """:meth:`Focus.to_json` with the probe count and the estimates (``stats["focus"]``)."""
+        return {
+            **self.focus.to_json(),
+            "probe_crossings": self.probe,
+            "estimated_crossings": round(self.crossings),
+            "estimated_bytes": round(self.bytes),
+        }
+
+
+def estimate_focused(
+    grid_f: Grid,
+    grid_g: Grid,
+    window: Window,
+    band: tuple[float, float],
+    *,
+    roles: bool = True,
+    node_upper: tuple[np.ndarray, float, float] | None = None,
+    pairs: str = "all",
+    resolution: int | tuple[int, int] = MapSettings.resolution,
+    tol: float | None = None,
+) -> FocusEstimate:
+    """The pairs whose cost can lie in ``band`` (:func:`focus_pairs`) and their atlas's expected size."""
+    from specmap.special.compute import default_tolerance
+    from specmap.special.pairs import pair_table
+    from specmap.special.preflight import BASE_BYTES
+
+    table = pair_table(grid_f, grid_g, pairs)
+    focus = focus_pairs(table, window, resolution, band, roles=roles, node_upper=node_upper)
+    tol = default_tolerance(grid_f, grid_g) if tol is None else float(tol)
+    crossings, probe = probe_crossings(
+        table.subset(focus.kept), window, resolution, band, roles=roles, tol=tol, node_upper=node_upper
+    )
+    return FocusEstimate(focus, crossings, probe, BASE_BYTES + BYTES_PER_CROSSING * crossings)
+
+
 def focused_special_set(
     grid_f: Grid,
     grid_g: Grid,
@@ -268,7 +324,7 @@ def focused_special_set(
 
     ``atlas_kw`` are :func:`~specmap.special.compute.special_set` keywords (``pairs``,
     ``resolution``, ``method``, ``tol``, ``reading``, ``progress``); the atlas's
-    ``stats["focus"]`` holds :meth:`Focus.to_json`. ``node_upper``: upper bounds of h at the
+    ``stats["focus"]`` holds :meth:`FocusEstimate.to_json`. ``node_upper``: upper bounds of h at the
     nodes of the atlas's lattice (``resolution``) and the two edge terms, which lower the top
     of the band where h is known to be small (:func:`focus_pairs`,
     :func:`specmap.special.detect.find_crossings`).
@@ -279,20 +335,21 @@ def focused_special_set(
         When even the kept pairs' atlas is estimated over twice the memory budget
         (:func:`specmap.special.preflight.memory_budget` by default), with the remedies.
     """
-    from specmap.special.compute import default_tolerance, special_set
-    from specmap.special.pairs import pair_table
-    from specmap.special.preflight import BASE_BYTES, AtlasTooLargeError, memory_budget
+    from specmap.special.compute import special_set
+    from specmap.special.preflight import AtlasTooLargeError, memory_budget
 
-    pairs = atlas_kw.get("pairs", "all")
-    resolution = atlas_kw.get("resolution", MapSettings.resolution)
-    table = pair_table(grid_f, grid_g, pairs)
-    focus = focus_pairs(table, window, resolution, band, roles=roles, node_upper=node_upper)
-    tol = atlas_kw.get("tol")
-    tol = default_tolerance(grid_f, grid_g) if tol is None else float(tol)
-    crossings, probe = probe_crossings(
-        table.subset(focus.kept), window, resolution, band, roles=roles, tol=tol, node_upper=node_upper
+    est = estimate_focused(
+        grid_f,
+        grid_g,
+        window,
+        band,
+        roles=roles,
+        node_upper=node_upper,
+        pairs=atlas_kw.get("pairs", "all"),
+        resolution=atlas_kw.get("resolution", MapSettings.resolution),
+        tol=atlas_kw.get("tol"),
     )
-    need = BASE_BYTES + BYTES_PER_CROSSING * crossings
+    focus, crossings, need = est.focus, est.crossings, est.bytes
     budget = memory_budget() if budget is None else float(budget)
     if need > 2 * budget:
         raise AtlasTooLargeError(
@@ -314,10 +371,5 @@ def focused_special_set(
         node_upper=node_upper,
         **atlas_kw,
     )
-    atlas.stats["focus"] = {
-        **focus.to_json(),
-        "probe_crossings": probe,
-        "estimated_crossings": round(crossings),
-        "estimated_bytes": round(need),
-    }
+    atlas.stats["focus"] = est.to_json()
     return atlas

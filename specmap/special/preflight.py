@@ -123,11 +123,19 @@ def estimate_atlas(n_f: int, n_g: int, resolution: int | tuple[int, int]) -> Atl
     return AtlasEstimate(n, p, crossings, BASE_BYTES + BYTES_PER_CROSSING * crossings)
 
 
-def _size(b: float) -> str:
+def size_text(b: float) -> str:
+    """A byte count in words: ``"1.2 GB"``, ``"350 MB"``, ``"12 B"`` (three significant digits).
+
+    >>> size_text(1.234e9), size_text(3.5e8)
+    ('1.23 GB', '350 MB')
+    """
     for unit, scale in (("TB", 1e12), ("GB", 1e9), ("MB", 1e6)):
         if b >= scale:
             return f"{b / scale:.3g} {unit}"
     return f"{b:.0f} B"
+
+
+_size = size_text
 
 
 def check_atlas_size(
@@ -293,6 +301,7 @@ def plan_atlas(
     pairs: str = "all",
     simplified: tuple[dict | None, dict | None] = (None, None),
     max_contours: int | None = None,
+    band: tuple[float, float] | None = None,
 ) -> AtlasPlan:
     """The plan of the atlas under ``budget`` (bytes; default :func:`memory_budget`).
 
@@ -300,8 +309,9 @@ def plan_atlas(
     estimate fits the budget, the fewest tiles (near-square, rows of cells first) whose
     estimate fits, one piece when no budget was given and the estimate is within twice the
     default (the estimate is coarse: the refusal of the one-piece preflight), or a one-line
-    refusal. ``pairs``, ``simplified`` (the simplification records of f and g) and
-    ``max_contours`` only shape the refusal's remedies (:func:`map_remedies`).
+    refusal. ``pairs``, ``simplified`` (the simplification records of f and g), ``max_contours``
+    and ``band`` (a band of tied costs to suggest) only shape the refusal's remedies
+    (:func:`map_remedies`).
 
     Raises
     ------
@@ -363,6 +373,7 @@ def plan_atlas(
             pairs=pairs,
             simplified=simplified,
             max_contours=max_contours,
+            band=band,
         ),
     )
 
@@ -392,6 +403,7 @@ def map_remedies(
     pairs: str = "all",
     simplified: tuple[dict | None, dict | None] = (None, None),
     max_contours: int | None = None,
+    band: tuple[float, float] | None = None,
 ) -> str:
     """The remedies of a refused map, from what is already set: only those that change the outcome.
 
@@ -403,14 +415,20 @@ def map_remedies(
     lowering the budget changes nothing (the same pair comes out), so a coarser mesh is named.
     A coarser ``--resolution`` and a larger ``--memory`` are named only when some value fits:
     the largest resolution from 11 up, the smallest plan's peak when it is within the machine's
-    memory (twice :func:`memory_budget`). ``--pairs roles`` only when not already set. The
-    distance methods that need no whole map close the list.
+    memory (twice :func:`memory_budget`). ``--pairs roles`` only when not already set. A map of a
+    band of tied costs (``[map] costs``, :mod:`specmap.special.banded`) is always offered; with
+    ``band`` (e.g. around a distance already computed) that band is named. The distance methods
+    that need no whole map close the list.
 
     Examples
     --------
     >>> auto = {"setting": "auto", "contours_after": 54, "budget": 60, "met": True}
     >>> fix = map_remedies(97, 54, 61, budget=12e9, pairs="roles", simplified=(auto, auto))
     >>> "max_contours" in fix and "--pairs roles" not in fix and 'set simplify = "auto"' not in fix
+    True
+    >>> "[map] costs = [lo, hi] (--costs lo,hi)" in fix
+    True
+    >>> "costs = [0.92, 1.1] (--costs 0.92,1.1" in map_remedies(97, 54, 61, budget=12e9, band=(0.92, 1.1))
     True
     """
     n = int(n_f) + int(n_g)
@@ -450,6 +468,14 @@ def map_remedies(
     _, least = _least_bytes(n, resolution, jobs)
     if least > budget and least <= 2 * memory_budget():
         out.append(f"--memory {_size(least * 1.05)} (tiles then fit)")
+    if band is not None:
+        lo, hi = (f"{x:.3g}" for x in band)
+        out.append(
+            f"map a band of tied costs around the distance already in this folder: [map] costs = [{lo}, "
+            f"{hi}] (--costs {lo},{hi})"
+        )
+    else:
+        out.append("map a band of tied costs: [map] costs = [lo, hi] (--costs lo,hi)")
     out.append(
         "or specmap distance: --method dense needs no map, --method reduced maps only the ties that can be D"
     )
