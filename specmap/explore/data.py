@@ -19,7 +19,7 @@ import numpy as np
 from specmap.explore.lines import explorer_lines
 from specmap.report.figures import distance_map_samples
 from specmap.report.fmt import MAX_DIGITS, decimals_for, fmt_distance, num, nums
-from specmap.report.summary import reason_sentence, tie_curve_count
+from specmap.report.summary import costs_band, costs_sentence, reason_sentence, tie_curve_count
 from specmap.report.ties import TieIndex, family, index_ties
 
 CURVE_POINTS = 120_000
@@ -198,4 +198,7 @@ def explorer_data(
         "distance": dist,
         "lines": explorer_lines(res) if lines else {"lines": None, "why_not": "not computed (lines=False)"},
         "special_missing": None if res.get("special") is not None else NO_SPECIAL,
+        # a map restricted to a band of tied costs ([map] costs): the band and the report's sentence
+        "costs_band": list(costs_band(sp) or []) or None,
+        "costs_note": costs_sentence(sp),
     }

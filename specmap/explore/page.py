@@ -144,7 +144,9 @@ const D = DATA.distance;
 if (D && D.at) stripTraces.push({type: "scatter", mode: "markers", x: [D.at[0]], y: [D.at[1]], hoverinfo: "skip",
   name: "D = " + D.text + " reached here", marker: {symbol: "star", size: 16, color: "#ff3b3b",
   line: {color: "black", width: 1}}});
-const stripLayout = {margin: {l: 55, r: 10, t: 30, b: 40}, title: {text: "special set in the strip (scroll to zoom, drag to pan)", font: {size: 13}, x: 0.01, xanchor: "left"},
+const stripLayout = {margin: {l: 55, r: 10, t: 30, b: 40}, title: {text: "special set in the strip"
+  + (DATA.costs_band ? ", tied costs in [" + fmt(DATA.costs_band[0], 4) + ", " + fmt(DATA.costs_band[1], 4) + "] only" : "")
+  + " (scroll to zoom, drag to pan)", font: {size: 13}, x: 0.01, xanchor: "left"},
   xaxis: {range: W.a, title: {text: "a"}, zeroline: false}, yaxis: {range: W.b, title: {text: "b"}, zeroline: false},
   dragmode: "pan", hovermode: false, showlegend: true,
   legend: {font: {size: 10}, orientation: "h", x: 0, y: -0.12, yanchor: "top", bgcolor: "rgba(255,255,255,0.8)"}};
@@ -354,7 +356,8 @@ $("headline").textContent = hl + "; " + (DATA.special_missing ? DATA.special_mis
   : plural(DATA.components.length, "component") + ", " + drawnWords(DATA.tie_curves, DATA.curves.length)
   + (DATA.labelled ? "" : " (unlabelled: the grid files are missing)") + ".")
   + (DATA.special_missing ? " Point at the strip to see the line and h there."
-    : " Point at the strip to see the line and the ties there; click to list a component's ties.");
+    : " Point at the strip to see the line and the ties there; click to list a component's ties.")
+  + (DATA.costs_note ? " " + DATA.costs_note : "");
 // -- slice diagrams on the lines computed when the page was written ---------------------------------
 const LINES = (DATA.lines && DATA.lines.lines) || null;
 let curLine = null, curDeg = null;

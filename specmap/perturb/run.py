@@ -133,9 +133,14 @@ def _distance_digest(result: Any) -> dict[str, Any]:
 
 
 def _special(grid_f: Grid, grid_g: Grid, window: Window, settings: PerturbSettings) -> Any:
+    """The special set of a run: the whole map, or the map of the band ``settings.costs``."""
     from specmap.special import special_set
 
     ms = settings.map_settings
+    if ms.costs is not None:
+        from specmap.special.banded import banded_special_set
+
+        return banded_special_set(grid_f, grid_g, window, ms)
     return special_set(
         grid_f,
         grid_g,
@@ -158,6 +163,21 @@ def _distance(
 ) -> dict[str, Any]:
     from specmap.distance import matching_distance
 
+    ms = settings.map_settings
+    if ms.costs is not None:  # a banded map is no atlas of the search: its own focused source
+        from specmap.distance.focused import focused_source
+
+        atlas = focused_source(
+            grids[0],
+            grids[1],
+            window,
+            roles=settings.distance_settings.roles,
+            pairs=ms.pairs,
+            resolution=ms.resolution,
+            method=ms.method,
+            tol=ms.tol,
+            reading=ms.reading,
+        )
     res = matching_distance(
         shape_f, shape_g, settings=settings.distance_settings, window=window, atlas=atlas, grids=grids
     )

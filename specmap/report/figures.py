@@ -26,7 +26,7 @@ from matplotlib.ticker import MaxNLocator, NullLocator
 from shapely.geometry.base import BaseGeometry
 
 from specmap.report.fmt import fmt, fmt_distance, fraction_interval, num, nums, plural
-from specmap.report.summary import tie_curve_count
+from specmap.report.summary import costs_band, tie_curve_count
 from specmap.report.ties import TieIndex, geo_shape, index_ties
 
 GRID_COLOURS = {"f": "#1f5fa8", "g": "#d9730d"}
@@ -646,8 +646,14 @@ def special_figure(
         if ix.curves and len(ix.curves) != n_curves
         else ""
     )
+    band = costs_band(special)
     ax.set_title(
-        "Special set: components "
+        (
+            f"Special set, tied costs in [{fmt(band[0], 4)}, {fmt(band[1], 4)}] only: "
+            if band
+            else "Special set: "
+        )
+        + "components "
         + ", ".join(
             [
                 plural(int(num(counts.get("patch", 0))), "patch", "patches"),

@@ -57,6 +57,7 @@ from specmap.report.summary import (
     SEVERITY_NAMES,
     audits_sentence,
     component_counts,
+    costs_sentence,
     degree_rows,
     grid_only,
     mesh_term_sentence,
@@ -495,6 +496,9 @@ def _special_page(pg: Pager, res: dict[str, Any]) -> None:
     if sub is not None:
         _draw("special", "special.json", lambda: _special_figure(res, sub))
     ix = _tie_index(res)
+    partial = costs_sentence(sp)
+    if partial:
+        pg.para(partial)
     pg.para(
         f"{component_counts(sp).capitalize()} (connected components); "
         + _drawn_words(tie_curve_count(sp), len(ix.curves))

@@ -398,6 +398,37 @@ def tie_curve_count(sp: dict[str, Any]) -> int:
     return sum(len(c.get("ties") or []) for c in sp.get("components") or [] if c.get("kind") == "curve")
 
 
+def costs_band(sp: dict[str, Any] | None) -> tuple[float, float] | None:
+    """The band [lo, hi] of tied costs a map is restricted to (``special.json`` ``costs``), None for a whole map."""
+    band = ((sp or {}).get("costs") or {}).get("band")
+    vals = [num(x) for x in band] if isinstance(band, list) else []
+    ok = len(vals) == 2 and all(isinstance(v, float) and math.isfinite(v) for v in vals)
+    return (float(vals[0]), float(vals[1])) if ok else None
+
+
+def costs_sentence(sp: dict[str, Any] | None) -> str | None:
+    """What a banded map holds, in one sentence (None for a whole map).
+
+    >>> costs_sentence({"costs": {"band": [0.95, 1.3], "pairs_kept": 10, "pairs_total": 100}})[:78]
+    'This map is restricted to the ties whose tied cost lies in [0.95, 1.3] (10 of '
+    """
+    band = costs_band(sp)
+    if band is None:
+        return None
+    c = (sp or {}).get("costs") or {}
+    kept, total = c.get("pairs_kept"), c.get("pairs_total")
+    of = (
+        f" ({int(num(kept))} of {int(num(total))} contour pairs can carry such a cost)"
+        if isinstance(kept, (int, float)) and isinstance(total, (int, float))
+        else ""
+    )
+    return (
+        f"This map is restricted to the ties whose tied cost lies in [{fmt(band[0], 4)}, {fmt(band[1], 4)}]"
+        f"{of}: a partial special set, its curves cut where their cost leaves the band (give or take one "
+        "lattice cell), patches of the kept pairs whole; ties of other costs are not shown."
+    )
+
+
 def component_counts(sp: dict[str, Any]) -> str:
     """``"1 patch, 1 curve component and 0 point components"``."""
     c = sp.get("counts") or {}
@@ -424,8 +455,14 @@ def special_lines(res: dict[str, Any]) -> list[str]:
             if isinstance(stats.get("ties_with_patches"), (int, float))
             else ""
         )
+        band = costs_band(sp)
+        which = (
+            f"Special set restricted to tied costs in [{fmt(band[0], 4)}, {fmt(band[1], 4)}] (a partial map)"
+            if band
+            else "Special set"
+        )
         out.append(
-            f"Special set: {component_counts(sp)} (connected components); "
+            f"{which}: {component_counts(sp)} (connected components); "
             f"{plural(tie_curve_count(sp), 'tie curve')}{of} in all{holds}. Patches cover "
             f"{fmt_pct(sp.get('area_fraction'))} of the window."
         )
@@ -436,7 +473,9 @@ def special_lines(res: dict[str, Any]) -> list[str]:
             out.append(why)
         elif not int(num((sp.get("counts") or {}).get("patch", 0))):
             out.append(
-                "Genericity: no patch, so the special set has zero area, as it has for a generic pair "
+                "Genericity: no patch among the ties of this band; ties of other costs were not mapped."
+                if band
+                else "Genericity: no patch, so the special set has zero area, as it has for a generic pair "
                 "[EFQT23]: the reduction to a = 1/2 and the special set applies."
             )
     pert = (res.get("perturb") or {}).get("summary")
