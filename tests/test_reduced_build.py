@@ -64,6 +64,55 @@ def test_compiled_near_line_bound_is_the_numpy_form_bit_for_bit():
     assert clean.any() and np.isfinite(got[clean]).all()
 
 
+def _star(V: np.ndarray, a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """F*(a, b) at the vertices by its definition [CDFFL13]: min(a, 1 - a) max((v1 - b) / a, (v2 + b) / (1 - a))."""
+    a, b = a[:, None], b[:, None]
+    return np.minimum(a, 1 - a) * np.maximum((V[None, :, 0] - b) / a, (V[None, :, 1] + b) / (1 - a))
+
+
+def test_coarse_moves_never_below_the_vertex_sup_norm():
+    # closed form in the test: the sup over vertices of |F*(p) - F*(q)| from the definition of F*
+    from specmap.distance.bounds import _extremes, coarse_moves
+
+    rng = np.random.default_rng(8)
+    for _ in range(100):
+        V = rng.normal(size=(40, 2)) * rng.uniform(0.1, 5)
+        a, aq = rng.uniform(0.02, 0.98, 25), rng.uniform(0.02, 0.98, 25)
+        b = rng.uniform(-3, 3, 25)
+        bq = b + rng.normal(size=25) * rng.uniform(1e-3, 1)
+        exact = np.abs(_star(V, a, b) - _star(V, aq, bq)).max(axis=1)
+        got = coarse_moves(_extremes(V), a[:, None], b[:, None], aq[:, None], bq[:, None])[:, 0]
+        assert (got >= exact).all()
+    # and equal when only the offset moves on a = 1/2 and one term is active at every vertex
+    V = np.c_[np.linspace(5, 6, 9), np.zeros(9)]
+    a = np.array([0.5])
+    exact = np.abs(_star(V, a, np.array([0.0])) - _star(V, a, np.array([0.1]))).max()
+    got = coarse_moves(_extremes(V), a[:, None], np.zeros((1, 1)), a[:, None], np.full((1, 1), 0.1))
+    assert np.isclose(got[0, 0], exact, rtol=1e-9) and np.isclose(exact, 0.1)
+
+
+def test_local_bound_refute_decides_as_the_vertex_bound():
+    # the O(1) pre-test only ever refutes lines the vertex-wise bound refutes, and the others
+    # get the vertex-wise bound bit for bit
+    from specmap.distance.bounds import LocalBound
+
+    rng = np.random.default_rng(3)
+    vf, vg = rng.normal(size=(60, 2)), rng.normal(size=(45, 2)) * 1.3
+    lb = LocalBound(vf, vg, W)
+    qa, qb = rng.uniform(*W.a, 50), rng.uniform(*W.b, 50)
+    lb.add(qa, qb, rng.uniform(0.2, 0.6, size=(50, 2)))
+    a, b = rng.uniform(*W.a, 400), rng.uniform(*W.b, 400)
+    exact = lb.many(a, b)
+    tol = 1e-3
+    lo = exact.max(axis=1) + rng.uniform(-0.5, 1.5, 400)
+    got = lb.many(a, b, (lo, tol))
+    refuted_exact = lo > exact.max(axis=1) + tol
+    refuted_got = lo > got.max(axis=1) + tol
+    assert np.array_equal(refuted_exact, refuted_got)
+    coarse = ~(got == exact).all(axis=1)  # rows given the O(1) bound
+    assert coarse.any() and refuted_got[coarse].all() and (got[coarse] >= exact[coarse]).all()
+
+
 @pytest.mark.parametrize("seed,n_f,n_g,floor", [(1, 7, 6, None), (4, 8, 7, 0.5), (11, 6, 9, None)])
 def test_flat_build_gives_the_shapely_candidates(seed, n_f, n_g, floor):
     # reference: the per-piece shapely build (GEOS intersections of the tie geometries)

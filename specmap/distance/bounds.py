@@ -201,6 +201,55 @@ def slope_one_sup_norm_max(values_f: np.ndarray, values_g: np.ndarray, lo: float
     return m
 
 
+def _ratios(a: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """(r1, r2) of F* = max(r1 (v1 - b), r2 (v2 + b)) on lines of slope parameter a (:func:`star_values`)."""
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(a <= 0.5, 1.0, (1.0 - a) / a), np.where(a <= 0.5, a / (1.0 - a), 1.0)
+
+
+def coarse_moves(
+    extremes: np.ndarray, a: np.ndarray, b: np.ndarray, aq: np.ndarray, bq: np.ndarray
+) -> np.ndarray:
+    """An upper bound of max_v |F*(a, b)(v) - F*(aq, bq)(v)| from the value extremes alone, O(1) a pair.
+
+    With F* = max(A, B), A = r1 (v1 - b), B = r2 (v2 + b) (:func:`specmap.strip.star_values`),
+    |max(A, B) - max(A', B')| <= max(|A - A'|, |B - B'|), and A - A' = (r1 - r1') v1 - (r1 b - r1' b')
+    is affine in v1 alone (B - B' in v2 alone), so its largest size over the vertices is at the
+    smallest or largest v1 (v2). Never below the vertex-wise sup norm; often close to it for near
+    lines. A relative slack of 1e-12 keeps it above that norm in floating point too.
+
+    Parameters
+    ----------
+    extremes : ndarray (4,)
+        (min v1, max v1, min v2, max v2) over the vertices (value units).
+    a, b : ndarray (k, 1)
+        The lines bounded.
+    aq, bq : ndarray (k, m)
+        The lines they are compared with.
+
+    Returns
+    -------
+    ndarray (k, m), value units.
+    """
+    lo1, hi1, lo2, hi2 = (float(x) for x in extremes)
+    r1, r2 = _ratios(a)
+    q1, q2 = _ratios(aq)
+    d1, e1 = r1 - q1, r1 * b - q1 * bq
+    d2, e2 = r2 - q2, r2 * b - q2 * bq
+    with np.errstate(invalid="ignore"):
+        m = np.maximum.reduce(
+            [np.abs(d1 * lo1 - e1), np.abs(d1 * hi1 - e1), np.abs(d2 * lo2 + e2), np.abs(d2 * hi2 + e2)]
+        )
+    return np.where(np.isfinite(m), m * (1.0 + 1e-12) + 1e-300, np.inf)
+
+
+def _extremes(values: np.ndarray) -> np.ndarray:
+    v = np.asarray(values, float)
+    if not len(v):
+        return np.zeros(4)
+    return np.array([v[:, 0].min(), v[:, 0].max(), v[:, 1].min(), v[:, 1].max()])
+
+
 class LocalBound:
     """h at a line from h at evaluated lines: h(p) <= h(q) + ||F*_f(p) - F*_f(q)|| + ||F*_g(p) - F*_g(q)||.
 
@@ -209,7 +258,9 @@ class LocalBound:
     live on different meshes), plus the triangle inequality for d_B. Exact
     vertex-wise sup norms, no Lipschitz constant; only the ``near`` evaluated
     lines closest to p (normalised window distance) are used, which keeps it an
-    upper bound.
+    upper bound. :meth:`many` with ``refute`` first tries the O(1) bound of the same
+    lines (:func:`coarse_moves`) and computes the vertex-wise norms only where that
+    one does not refute the line.
     """
 
     def __init__(self, values_f: np.ndarray, values_g: np.ndarray, window: Window, near: int = 16) -> None:
@@ -217,28 +268,44 @@ class LocalBound:
         self.window = window
         self.near = near
         self.pts: list[np.ndarray] = []
+        self.ab: list[np.ndarray] = []
         self.h: list[np.ndarray] = []
         self.Ff: list[np.ndarray] = []
         self.Fg: list[np.ndarray] = []
+        self.ext_f, self.ext_g = _extremes(values_f), _extremes(values_g)
 
     def add(self, a: np.ndarray, b: np.ndarray, H: np.ndarray) -> None:
         """Record lines (a, b) with h values H (n_lines, n_groups)."""
         a, b = np.atleast_1d(a).astype(float), np.atleast_1d(b).astype(float)
         self.pts.append(normalise(np.c_[a, b], self.window))
+        self.ab.append(np.c_[a, b])
         self.h.append(np.asarray(H, float).reshape(len(a), -1))
         self.Ff.append(star_rows(self.vf, a, b))
         self.Fg.append(star_rows(self.vg, a, b))
-        self.pts, self.h = [np.concatenate(self.pts)], [np.concatenate(self.h)]
+        self.pts, self.h, self.ab = (
+            [np.concatenate(self.pts)],
+            [np.concatenate(self.h)],
+            [np.concatenate(self.ab)],
+        )
         self.Ff, self.Fg = [np.concatenate(self.Ff)], [np.concatenate(self.Fg)]
 
-    def __call__(self, a: float, b: float) -> np.ndarray:
+    def __call__(self, a: float, b: float, refute: tuple[float, float] | None = None) -> np.ndarray:
         """Upper bound of h (per group) at the line (a, b); ``inf`` before any line is recorded."""
         if not self.pts:
             return np.array([math.inf])
-        return self.many(np.array([a]), np.array([b]))[0]
+        r = None if refute is None else (np.array([refute[0]]), refute[1])
+        return self.many(np.array([a]), np.array([b]), r)[0]
 
-    def many(self, a: np.ndarray, b: np.ndarray) -> np.ndarray:
-        """Upper bounds of h at many lines at once: shape (len(a), groups); ``inf`` before any line."""
+    def many(
+        self, a: np.ndarray, b: np.ndarray, refute: tuple[np.ndarray, float] | None = None
+    ) -> np.ndarray:
+        """Upper bounds of h at many lines at once: shape (len(a), groups); ``inf`` before any line.
+
+        ``refute`` = (lo, tol): a line whose O(1) bound from the same near lines already has
+        lo > its max over groups + tol gets that bound (it refutes the line as the vertex-wise one
+        would, which is never larger); the others get the vertex-wise bound. Without it every
+        line gets the vertex-wise bound.
+        """
         a, b = np.atleast_1d(a).astype(float), np.atleast_1d(b).astype(float)
         if not self.pts:
             return np.full((len(a), 1), math.inf)
@@ -247,7 +314,28 @@ class LocalBound:
         idx = np.ascontiguousarray(np.argsort(d, axis=1)[:, : self.near])
         from specmap.distance.kernels import near_line_bound
 
+        out = None
+        rest = np.arange(len(a))
+        if refute is not None:
+            lo, tol = refute
+            aq, bq = self.ab[0][idx, 0], self.ab[0][idx, 1]
+            move = coarse_moves(self.ext_f, a[:, None], b[:, None], aq, bq) + coarse_moves(
+                self.ext_g, a[:, None], b[:, None], aq, bq
+            )
+            out = (H[idx] + move[:, :, None]).min(axis=1)
+            rest = np.nonzero(~(np.asarray(lo, float) > out.max(axis=1) + tol))[0]
+            if not len(rest):
+                return out
         # = (H[idx] + max_v |Ff[idx] - F*_f| + max_v |Fg[idx] - F*_g|).min over the near lines, compiled
-        return near_line_bound(
-            self.Ff[0], self.Fg[0], H, idx, star_rows(self.vf, a, b), star_rows(self.vg, a, b)
+        exact = near_line_bound(
+            self.Ff[0],
+            self.Fg[0],
+            H,
+            np.ascontiguousarray(idx[rest]),
+            star_rows(self.vf, a[rest], b[rest]),
+            star_rows(self.vg, a[rest], b[rest]),
         )
+        if out is None:
+            return exact
+        out[rest] = exact
+        return out

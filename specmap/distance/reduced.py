@@ -272,10 +272,10 @@ class _Descent:
             now = math.isnan(self.local_b[i])
             if now:  # a bound of the next candidates at once, from the lines so far
                 chunk = self.order[self.pos - 1 : self.pos - 1 + 64]
-                self.local_b[chunk] = self.local.many(c.a[chunk], c.b[chunk]).max(axis=1)
+                self.local_b[chunk] = self.local.many(c.a[chunk], c.b[chunk], (c.lo[chunk], tol)).max(axis=1)
             # an earlier bound holds still (fewer lines, not wrong ones); else the bound of all lines now
             if c.lo[i] > self.local_b[i] + tol or (
-                not now and c.lo[i] > float(self.local(c.a[i], c.b[i]).max()) + tol
+                not now and c.lo[i] > float(self.local(c.a[i], c.b[i], (float(c.lo[i]), tol)).max()) + tol
             ):
                 return "local_bound"
         return None
