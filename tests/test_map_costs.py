@@ -233,3 +233,35 @@ def test_perturbation_runs_map_the_same_band(tmp_path: Path) -> None:
     rows = [json.loads(x) for x in (tmp_path / "o" / "perturb" / "runs.jsonl").read_text().splitlines()]
     assert len(rows) == 2 and summary["settings"]["costs"] == [0.05, 0.3]
     assert summary["fingerprint_parts"]["map"] == sr.stamp(map_settings=study.map)["fingerprint_parts"]["map"]
+
+
+def test_point_contacts_are_the_strtree_dwithin_pairs() -> None:
+    # reference: shapely's STRtree.query(points, predicate="dwithin") over the lines and points (GEOS
+    # distances); the points sit on line vertices, inside segments, and eps / 2 and 2 eps off them
+    from specmap.special.components import point_contacts
+
+    rng = np.random.default_rng(4)
+    step = (0.03, 0.07)
+    lines = []
+    for _ in range(60):  # chords shorter than a cell, as the traced curves are
+        start = rng.uniform([0.0, -1.0], [1.0, 1.0])
+        lines.append(shapely.LineString(start + np.cumsum(rng.uniform(-0.5, 0.5, (8, 2)) * step, axis=0)))
+    eps = 1e-9
+    pts = []
+    for ln in lines[:40]:
+        c = shapely.get_coordinates(ln)
+        k = int(rng.integers(0, len(c) - 1))
+        mid = c[k] + rng.uniform() * (c[k + 1] - c[k])
+        normal = np.array([c[k + 1][1] - c[k][1], c[k][0] - c[k + 1][0]])
+        normal /= np.hypot(*normal)
+        pts += [c[k], mid, mid + 0.5 * eps * normal, mid + 2 * eps * normal]
+    pts += [pts[0] + [0.3 * eps, 0.0], rng.uniform([0.0, -1.0], [1.0, 1.0])]
+    pts = np.array(pts)
+    geoms = shapely.points(pts)
+    tree = shapely.STRtree(np.concatenate([np.array(lines, dtype=object), geoms]))
+    qi, ti = tree.query(geoms, predicate="dwithin", distance=eps)
+    want = {(int(i), int(j)) for i, j in zip(qi, ti, strict=True)}
+    pp_i, pp_j, pl_p, pl_l = point_contacts(pts, lines, eps, step)
+    got = {(int(i), int(j) + len(lines)) for i, j in zip(pp_i, pp_j, strict=True)}
+    got |= {(int(i), int(j)) for i, j in zip(pl_p, pl_l, strict=True)}
+    assert got == want and len(want) > len(pts)  # contacts beyond each point with itself

@@ -117,6 +117,88 @@ def lattice_links(lines: list, eps: float, lattice: Lattice) -> tuple[np.ndarray
     return np.arange(n_lines), rep[label]
 
 
+def _cells(
+    lo: np.ndarray, hi: np.ndarray, origin: np.ndarray, step: np.ndarray
+) -> tuple[np.ndarray, np.ndarray]:
+    """(item, cell key) for every hash cell the boxes [lo, hi] (n x 2) touch, cells of size ``step``."""
+    c0 = np.floor((lo - origin) / step).astype(np.int64)
+    c1 = np.floor((hi - origin) / step).astype(np.int64)
+    span = c1 - c0 + 1
+    count = span[:, 0] * span[:, 1]
+    item = np.repeat(np.arange(lo.shape[0], dtype=np.int64), count)
+    k = np.arange(item.size, dtype=np.int64) - np.repeat(np.cumsum(count) - count, count)
+    cx = c0[item, 0] + k % span[item, 0]
+    cy = c0[item, 1] + k // span[item, 0]
+    return item, cy * (1 << 32) + cx
+
+
+def point_contacts(
+    points: np.ndarray, lines: list, eps: float, step: tuple[float, float], *, chunk: int = 4_000_000
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Pairs of points within ``eps`` of each other, and (point, line) pairs within ``eps``.
+
+    The result of ``STRtree.query(points, predicate="dwithin", distance=eps)`` over the points and
+    lines, without a tree: segments and points are hashed to cells of size ``step`` (the lattice
+    cell, which holds a traced chord), each by the cells its box widened by ``eps`` touches, and
+    the exact point-segment distance (projection clipped to the segment) is computed for the
+    candidates of a shared cell, ``chunk`` pairs at a time. On a map with long tie curves the
+    tree's boxes hold most of the window, and its per-pair distance walks whole curves: this is
+    linear in the candidates instead (a scan pair: 61,596 points, 733,236 curves).
+
+    Returns
+    -------
+    pp_i, pp_j : ndarray of int
+        Point index pairs (each point with itself included).
+    pl_p, pl_l : ndarray of int
+        (point index, line index) pairs.
+    """
+    from scipy.spatial import cKDTree
+
+    pts = np.asarray(points, float).reshape(-1, 2)
+    pairs = cKDTree(pts).query_pairs(eps, output_type="ndarray") if len(pts) else np.empty((0, 2), int)
+    self_ = np.arange(len(pts), dtype=np.int64)
+    pp_i = np.concatenate([self_, pairs[:, 0], pairs[:, 1]]).astype(np.int64)
+    pp_j = np.concatenate([self_, pairs[:, 1], pairs[:, 0]]).astype(np.int64)
+    empty = np.empty(0, np.int64)
+    if not lines or not len(pts):
+        return pp_i, pp_j, empty, empty
+    u, v, owner = segments(lines)
+    origin = np.minimum(u.min(axis=0), pts.min(axis=0))
+    st = np.asarray(step, float)
+    s_item, s_key = _cells(np.minimum(u, v) - eps, np.maximum(u, v) + eps, origin, st)
+    p_item, p_key = _cells(pts - eps, pts + eps, origin, st)
+    order = np.argsort(s_key, kind="stable")
+    s_key, s_item = s_key[order], s_item[order]
+    first = np.searchsorted(s_key, p_key, side="left")
+    last = np.searchsorted(s_key, p_key, side="right")
+    n_cand = last - first
+    out_p, out_l = [], []
+    start = 0
+    ends = np.cumsum(n_cand)
+    while start < p_item.size:
+        base = ends[start - 1] if start else 0
+        stop = int(np.searchsorted(ends, base + chunk, side="right"))
+        stop = max(stop, start + 1)
+        cnt = n_cand[start:stop]
+        q = np.repeat(np.arange(start, stop), cnt)
+        off = np.arange(q.size) - np.repeat(np.cumsum(cnt) - cnt, cnt)
+        seg = s_item[first[q] + off]
+        pi = p_item[q]
+        p = pts[pi]
+        a, d = u[seg], v[seg] - u[seg]
+        dd = np.einsum("ij,ij->i", d, d)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            t = np.where(dd > 0, np.einsum("ij,ij->i", p - a, d) / dd, 0.0)
+        t = np.clip(t, 0.0, 1.0)
+        gap = p - (a + t[:, None] * d)
+        hit = np.einsum("ij,ij->i", gap, gap) <= eps * eps
+        out_p.append(pi[hit])
+        out_l.append(owner[seg[hit]])
+        start = stop
+    pl = np.unique(np.column_stack([np.concatenate(out_p), np.concatenate(out_l)]), axis=0)
+    return pp_i, pp_j, pl[:, 0].astype(np.int64), pl[:, 1].astype(np.int64)
+
+
 def components(pieces: tuple[TiePiece, ...], window: Window, lattice: Lattice) -> tuple[Component, ...]:
     """Connected components of the union of all pieces.
 
@@ -130,7 +212,16 @@ def components(pieces: tuple[TiePiece, ...], window: Window, lattice: Lattice) -
     length the sum over distinct curves (curves of several ties that coincide
     to 1e-9 count once).
     """
-    return components_with(pieces, window, lambda lines, eps: lattice_links(lines, eps, lattice))
+    cell = (
+        float(np.ptp(lattice.av)) / max(1, lattice.n_a - 1),
+        float(np.ptp(lattice.bv)) / max(1, lattice.n_b - 1),
+    )
+    return components_with(
+        pieces,
+        window,
+        lambda lines, eps: lattice_links(lines, eps, lattice),
+        cell=cell if min(cell) > 0 else None,
+    )
 
 
 LineLinks = Callable[[list, float], tuple[np.ndarray, np.ndarray]]
@@ -138,12 +229,18 @@ LineLinks = Callable[[list, float], tuple[np.ndarray, np.ndarray]]
 
 
 def components_with(
-    pieces: tuple[TiePiece, ...], window: Window, line_links: LineLinks
+    pieces: tuple[TiePiece, ...],
+    window: Window,
+    line_links: LineLinks,
+    *,
+    cell: tuple[float, float] | None = None,
 ) -> tuple[Component, ...]:
     """:func:`components` with the line/line contacts found by ``line_links``.
 
     The reference segment test (:func:`specmap.special.reference.segment_links`)
-    plugs in here as well as the production :func:`lattice_links`.
+    plugs in here as well as the production :func:`lattice_links`. With ``cell`` (the lattice's
+    cell size (da, db), every traced chord inside one cell) the point contacts come from
+    :func:`point_contacts`; without it from an ``STRtree`` query (the reference).
     """
     from scipy.sparse import coo_matrix
     from scipy.sparse.csgraph import connected_components
@@ -167,7 +264,9 @@ def components_with(
     poly_idx = np.nonzero(types == 3)[0]
     point_idx = np.nonzero((types != 1) & (types != 3))[0]
     rest = np.concatenate([line_idx, point_idx])  # everything but polygons
-    rest_tree = shapely.STRtree(arr[rest]) if rest.size and (poly_idx.size or point_idx.size) else None
+    fast_points = bool(point_idx.size) and cell is not None and bool(np.all(types[point_idx] == 0))
+    tree_needed = poly_idx.size or (point_idx.size and not fast_points)
+    rest_tree = shapely.STRtree(arr[rest]) if rest.size and tree_needed else None
     n = len(parts)
     n_nodes = n
     if poly_idx.size:
@@ -187,7 +286,14 @@ def components_with(
             qi, ti = rest_tree.query(regions, predicate="dwithin", distance=eps)
             ea.append(rnode[qi])
             eb.append(rest[ti])
-    if point_idx.size:
+    if fast_points:
+        assert cell is not None
+        pp_i, pp_j, pl_p, pl_l = point_contacts(
+            shapely.get_coordinates(arr[point_idx]), list(arr[line_idx]), eps, cell
+        )
+        ea += [point_idx[pp_i], point_idx[pl_p]]
+        eb += [point_idx[pp_j], line_idx[pl_l]]
+    elif point_idx.size:
         assert rest_tree is not None  # points are in ``rest``, so the tree exists
         qi, ti = rest_tree.query(arr[point_idx], predicate="dwithin", distance=eps)
         ea.append(point_idx[qi])
