@@ -261,7 +261,7 @@ def test_point_contacts_are_the_strtree_dwithin_pairs() -> None:
     tree = shapely.STRtree(np.concatenate([np.array(lines, dtype=object), geoms]))
     qi, ti = tree.query(geoms, predicate="dwithin", distance=eps)
     want = {(int(i), int(j)) for i, j in zip(qi, ti, strict=True)}
-    pp_i, pp_j, pl_p, pl_l = point_contacts(pts, lines, eps, step)
+    pp_i, pp_j, pl_p, pl_l = point_contacts(pts, lines, eps)
     got = {(int(i), int(j) + len(lines)) for i, j in zip(pp_i, pp_j, strict=True)}
     got |= {(int(i), int(j)) for i, j in zip(pl_p, pl_l, strict=True)}
     assert got == want and len(want) > len(pts)  # contacts beyond each point with itself

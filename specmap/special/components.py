@@ -117,33 +117,18 @@ def lattice_links(lines: list, eps: float, lattice: Lattice) -> tuple[np.ndarray
     return np.arange(n_lines), rep[label]
 
 
-def _cells(
-    lo: np.ndarray, hi: np.ndarray, origin: np.ndarray, step: np.ndarray
-) -> tuple[np.ndarray, np.ndarray]:
-    """(item, cell key) for every hash cell the boxes [lo, hi] (n x 2) touch, cells of size ``step``."""
-    c0 = np.floor((lo - origin) / step).astype(np.int64)
-    c1 = np.floor((hi - origin) / step).astype(np.int64)
-    span = c1 - c0 + 1
-    count = span[:, 0] * span[:, 1]
-    item = np.repeat(np.arange(lo.shape[0], dtype=np.int64), count)
-    k = np.arange(item.size, dtype=np.int64) - np.repeat(np.cumsum(count) - count, count)
-    cx = c0[item, 0] + k % span[item, 0]
-    cy = c0[item, 1] + k // span[item, 0]
-    return item, cy * (1 << 32) + cx
-
-
 def point_contacts(
-    points: np.ndarray, lines: list, eps: float, step: tuple[float, float], *, chunk: int = 4_000_000
+    points: np.ndarray, lines: list, eps: float, chunk: int = 2_000_000
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
     """Pairs of points within ``eps`` of each other, and (point, line) pairs within ``eps``.
 
-    The result of ``STRtree.query(points, predicate="dwithin", distance=eps)`` over the points and
-    lines, without a tree: segments and points are hashed to cells of size ``step`` (the lattice
-    cell, which holds a traced chord), each by the cells its box widened by ``eps`` touches, and
-    the exact point-segment distance (projection clipped to the segment) is computed for the
-    candidates of a shared cell, ``chunk`` pairs at a time. On a map with long tie curves the
-    tree's boxes hold most of the window, and its per-pair distance walks whole curves: this is
-    linear in the candidates instead (a scan pair: 61,596 points, 733,236 curves).
+    The pairs of ``STRtree.query(points, predicate="dwithin", distance=eps)`` over the points and
+    lines, with the lines cut into their segments first (a point is within eps of a line exactly
+    when it is within eps of one of its segments): a long tie curve's box holds most of the
+    window, so a tree of whole curves hands every point thousands of curves to walk, while a
+    segment's box is one lattice cell at most (a scan pair's banded map: 61,596 points against
+    733,236 curves took 612 s that way). Segments go into the tree ``chunk`` at a time; point
+    pairs come from a KD-tree.
 
     Returns
     -------
@@ -163,38 +148,13 @@ def point_contacts(
     if not lines or not len(pts):
         return pp_i, pp_j, empty, empty
     u, v, owner = segments(lines)
-    origin = np.minimum(u.min(axis=0), pts.min(axis=0))
-    st = np.asarray(step, float)
-    s_item, s_key = _cells(np.minimum(u, v) - eps, np.maximum(u, v) + eps, origin, st)
-    p_item, p_key = _cells(pts - eps, pts + eps, origin, st)
-    order = np.argsort(s_key, kind="stable")
-    s_key, s_item = s_key[order], s_item[order]
-    first = np.searchsorted(s_key, p_key, side="left")
-    last = np.searchsorted(s_key, p_key, side="right")
-    n_cand = last - first
-    out_p, out_l = [], []
-    start = 0
-    ends = np.cumsum(n_cand)
-    while start < p_item.size:
-        base = ends[start - 1] if start else 0
-        stop = int(np.searchsorted(ends, base + chunk, side="right"))
-        stop = max(stop, start + 1)
-        cnt = n_cand[start:stop]
-        q = np.repeat(np.arange(start, stop), cnt)
-        off = np.arange(q.size) - np.repeat(np.cumsum(cnt) - cnt, cnt)
-        seg = s_item[first[q] + off]
-        pi = p_item[q]
-        p = pts[pi]
-        a, d = u[seg], v[seg] - u[seg]
-        dd = np.einsum("ij,ij->i", d, d)
-        with np.errstate(invalid="ignore", divide="ignore"):
-            t = np.where(dd > 0, np.einsum("ij,ij->i", p - a, d) / dd, 0.0)
-        t = np.clip(t, 0.0, 1.0)
-        gap = p - (a + t[:, None] * d)
-        hit = np.einsum("ij,ij->i", gap, gap) <= eps * eps
-        out_p.append(pi[hit])
-        out_l.append(owner[seg[hit]])
-        start = stop
+    geoms = shapely.points(pts)
+    out_p, out_l = [empty], [empty]
+    for k in range(0, len(u), chunk):
+        segs = shapely.linestrings(np.stack([u[k : k + chunk], v[k : k + chunk]], axis=1))
+        qi, ti = shapely.STRtree(segs).query(geoms, predicate="dwithin", distance=eps)
+        out_p.append(qi.astype(np.int64))
+        out_l.append(owner[k + ti])
     pl = np.unique(np.column_stack([np.concatenate(out_p), np.concatenate(out_l)]), axis=0)
     return pp_i, pp_j, pl[:, 0].astype(np.int64), pl[:, 1].astype(np.int64)
 
@@ -212,15 +172,8 @@ def components(pieces: tuple[TiePiece, ...], window: Window, lattice: Lattice) -
     length the sum over distinct curves (curves of several ties that coincide
     to 1e-9 count once).
     """
-    cell = (
-        float(np.ptp(lattice.av)) / max(1, lattice.n_a - 1),
-        float(np.ptp(lattice.bv)) / max(1, lattice.n_b - 1),
-    )
     return components_with(
-        pieces,
-        window,
-        lambda lines, eps: lattice_links(lines, eps, lattice),
-        cell=cell if min(cell) > 0 else None,
+        pieces, window, lambda lines, eps: lattice_links(lines, eps, lattice), segment_points=True
     )
 
 
@@ -233,14 +186,14 @@ def components_with(
     window: Window,
     line_links: LineLinks,
     *,
-    cell: tuple[float, float] | None = None,
+    segment_points: bool = False,
 ) -> tuple[Component, ...]:
     """:func:`components` with the line/line contacts found by ``line_links``.
 
     The reference segment test (:func:`specmap.special.reference.segment_links`)
-    plugs in here as well as the production :func:`lattice_links`. With ``cell`` (the lattice's
-    cell size (da, db), every traced chord inside one cell) the point contacts come from
-    :func:`point_contacts`; without it from an ``STRtree`` query (the reference).
+    plugs in here as well as the production :func:`lattice_links`. With ``segment_points``
+    the point contacts come from :func:`point_contacts` (a tree of segments); without it from an
+    ``STRtree`` query over whole parts (the reference).
     """
     from scipy.sparse import coo_matrix
     from scipy.sparse.csgraph import connected_components
@@ -264,7 +217,7 @@ def components_with(
     poly_idx = np.nonzero(types == 3)[0]
     point_idx = np.nonzero((types != 1) & (types != 3))[0]
     rest = np.concatenate([line_idx, point_idx])  # everything but polygons
-    fast_points = bool(point_idx.size) and cell is not None and bool(np.all(types[point_idx] == 0))
+    fast_points = bool(point_idx.size) and segment_points and bool(np.all(types[point_idx] == 0))
     tree_needed = poly_idx.size or (point_idx.size and not fast_points)
     rest_tree = shapely.STRtree(arr[rest]) if rest.size and tree_needed else None
     n = len(parts)
@@ -287,9 +240,8 @@ def components_with(
             ea.append(rnode[qi])
             eb.append(rest[ti])
     if fast_points:
-        assert cell is not None
         pp_i, pp_j, pl_p, pl_l = point_contacts(
-            shapely.get_coordinates(arr[point_idx]), list(arr[line_idx]), eps, cell
+            shapely.get_coordinates(arr[point_idx]), list(arr[line_idx]), eps
         )
         ea += [point_idx[pp_i], point_idx[pl_p]]
         eb += [point_idx[pp_j], line_idx[pl_l]]
