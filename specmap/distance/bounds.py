@@ -310,8 +310,11 @@ class LocalBound:
         if not self.pts:
             return np.full((len(a), 1), math.inf)
         P, H = self.pts[0], self.h[0]
-        d = np.linalg.norm(P[None, :, :] - normalise(np.c_[a, b], self.window)[:, None, :], axis=2)
-        idx = np.ascontiguousarray(np.argsort(d, axis=1)[:, : self.near])
+        x = normalise(np.c_[a, b], self.window)
+        d2 = (x[:, None, 0] - P[None, :, 0]) ** 2 + (x[:, None, 1] - P[None, :, 1]) ** 2
+        k = min(self.near, len(P))  # the k nearest in any order: the bound is a min over them
+        near = np.argpartition(d2, k - 1, axis=1)[:, :k] if k < len(P) else np.argsort(d2, axis=1)
+        idx = np.ascontiguousarray(near)
         from specmap.distance.kernels import near_line_bound
 
         out = None

@@ -30,6 +30,8 @@ from specmap.settings import DistanceSettings
 from specmap.strip import Window
 
 _DEFAULTS = DistanceSettings()
+_RULES = {1: "above_bound", 2: "line_bound", 3: "box_bound", 4: "local_bound"}
+"""Names of the pruning rules by their code in :meth:`_Descent._verdicts` (the counters of the result)."""
 
 
 @dataclass(frozen=True)
@@ -251,52 +253,70 @@ class _Descent:
         self.counts["not_examined"] = int(n - self.pos)
         return True
 
-    def _pruned(self, i: int) -> str | None:
-        """Why candidate i cannot beat the best line (a counter name), or None."""
+    def _verdicts(self, idx: np.ndarray) -> np.ndarray:
+        """Why each candidate of ``idx`` cannot beat the best line: a rule code (0 = it may), vectorised.
+
+        The rules in order (codes 1-4: ``_RULES``): its lower cost above the upper bound of D, above
+        the sup-norm bound of its line (one mesh), above the bound of its box, above the stability
+        bound from the nearest evaluated lines. Every bound holds whatever lines it was computed
+        from, so a stored one refutes still and a fresh one (from the lines now) is kept when smaller.
+        """
         c, tol = self.cand, self.tolerance
-        if c.lo[i] > self.upper + tol:
-            return "above_bound"
+        lo = c.lo[idx]
+        why = np.where(lo > self.upper + tol, 1, 0)
         if self.same_mesh:
-            if math.isnan(self.line_b[i]):
-                chunk = self.order[self.pos - 1 : self.pos - 1 + 256]
-                self.line_b[chunk] = line_upper_bound(self.ev.val_f, self.ev.val_g, c.a[chunk], c.b[chunk])
-            if c.lo[i] > self.line_b[i] + tol:
-                return "line_bound"
-        if self.boxes is not None:  # one bound per box of the window, kept until lines are added
+            open_ = idx[why == 0]
+            need = open_[np.isnan(self.line_b[open_])]
+            if len(need):
+                self.line_b[need] = line_upper_bound(self.ev.val_f, self.ev.val_g, c.a[need], c.b[need])
+            why[(why == 0) & (lo > self.line_b[idx] + tol)] = 2
+        if self.boxes is not None:  # one bound per box, recomputed when lines were added since
             box = self.boxes
-            if not c.lo[i] > box.value[self.box_id[i]] + tol and box.lines_at[self.box_id[i]] < box.lines:
-                box.refresh(self.box_id[self.order[self.pos - 1 : self.pos - 1 + 256]])
-            if c.lo[i] > box.value[self.box_id[i]] + tol:
-                return "box_bound"
+            bid = self.box_id[idx]
+            stale = (why == 0) & ~(lo > box.value[bid] + tol) & (box.lines_at[bid] < box.lines)
+            if stale.any():
+                box.refresh(bid[stale])
+            why[(why == 0) & (lo > box.value[bid] + tol)] = 3
         if self.local is not None:
-            now = math.isnan(self.local_b[i])
-            if now:  # a bound of the next candidates at once, from the lines so far
-                chunk = self.order[self.pos - 1 : self.pos - 1 + 64]
-                self.local_b[chunk] = self.local.many(c.a[chunk], c.b[chunk], (c.lo[chunk], tol)).max(axis=1)
-            # an earlier bound holds still (fewer lines, not wrong ones); else the bound of all lines now
-            if c.lo[i] > self.local_b[i] + tol or (
-                not now and c.lo[i] > float(self.local(c.a[i], c.b[i], (float(c.lo[i]), tol)).max()) + tol
-            ):
-                return "local_bound"
-        return None
+            old = self.local_b[idx]
+            why[(why == 0) & (lo > old + tol)] = 4
+            fresh = np.nonzero(why == 0)[0]
+            if len(fresh):
+                j = idx[fresh]
+                now = self.local.many(c.a[j], c.b[j], (c.lo[j], tol)).max(axis=1)
+                self.local_b[j] = np.fmin(self.local_b[j], now)
+                why[fresh[lo[fresh] > now + tol]] = 4
+        return why
 
     def _next_batch(self) -> list[int]:
-        """Up to ``step`` candidates, in descending order of ``hi``, that survive the pruning rules."""
+        """Up to ``step`` candidates, in descending order of ``hi``, that survive the pruning rules.
+
+        No line is evaluated while a batch is chosen, so the rules are applied to blocks of the
+        order at once (:meth:`_verdicts`); a block's candidates past the batch are left for the next
+        one (their bounds are kept).
+        """
         n = len(self.cand.a)
         thr = float(self.best[self.open_g].min())
         take: list[int] = []
+        block = 4 * self.step
         while self.pos < n and len(take) < self.step:
-            i = int(self.order[self.pos])
-            if not self.cand.hi[i] > thr + self.tolerance:
+            idx = self.order[self.pos : self.pos + block]
+            below = ~(self.cand.hi[idx] > thr + self.tolerance)
+            cut = int(np.argmax(below)) if below.any() else len(idx)
+            why = self._verdicts(idx[:cut])
+            ok = np.nonzero(why == 0)[0]
+            need = self.step - len(take)
+            used = int(ok[need - 1]) + 1 if len(ok) >= need else cut
+            for code, k in zip(*np.unique(why[:used], return_counts=True), strict=True):
+                if code:
+                    self.counts[_RULES[code]] += int(k)
+            take.extend(int(i) for i in idx[ok[:need]])
+            self.pos += used
+            if used == cut < len(idx):  # the rest is at or below the best
                 self.counts["below_best"] += n - self.pos
                 self.pos = n
                 break
-            self.pos += 1
-            why = self._pruned(i)
-            if why is not None:
-                self.counts[why] += 1
-                continue
-            take.append(i)
+            block = min(2 * block, 4096)
         return take
 
     def _evaluate(self, take: list[int]) -> None:
