@@ -203,7 +203,7 @@ class _Descent:
     line_b: np.ndarray = field(init=False)  # line_upper_bound per candidate, NaN until computed
     open_g: np.ndarray = field(init=False)  # groups not yet stopped early
     pos: int = field(init=False, default=0)  # next position in ``order``
-    local_b: np.ndarray = field(init=False)  # a LocalBound value per candidate (an earlier one), NaN if none
+    local_b: np.ndarray = field(init=False)  # smallest LocalBound value so far per candidate, NaN if none
     left: dict[str, Any] | None = field(init=False, default=None)  # set when the line budget stopped the pass
     box_id: np.ndarray = field(init=False)  # the box of each candidate (when ``boxes``)
 
